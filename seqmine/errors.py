@@ -1,0 +1,54 @@
+"""Exception hierarchy of seqmine.
+
+User errors (bad files, bad options) derive from :class:`SeqmineInputError`, which
+is also a :class:`ValueError`, so callers can catch either. The command line turns
+them into a one-line message and exit status 2; anything else is an internal error
+(exit status 1).
+"""
+
+__all__ = [
+    "SeqmineError",
+    "SeqmineInputError",
+    "DataFileError",
+    "ColumnError",
+    "ParameterError",
+    "PatternExplosionError",
+    "NotFittedError",
+    "SeqmineWarning",
+]
+
+
+class SeqmineError(Exception):
+    """Base class of every error raised on purpose by seqmine."""
+
+
+class SeqmineInputError(SeqmineError, ValueError):
+    """A user error: bad input file, bad option, impossible request.
+
+    The message is one line that names the file, row, column or option and says
+    how to fix it.
+    """
+
+
+class DataFileError(SeqmineInputError):
+    """An input file is missing, empty, unreadable or malformed."""
+
+
+class ColumnError(SeqmineInputError):
+    """A required column is missing from an input table."""
+
+
+class ParameterError(SeqmineInputError):
+    """An option or parameter has an invalid value."""
+
+
+class PatternExplosionError(SeqmineInputError):
+    """Mining would produce more patterns than the configured limit."""
+
+
+class NotFittedError(SeqmineError, ValueError, AttributeError):
+    """An estimator was used before ``fit``."""
+
+
+class SeqmineWarning(UserWarning):
+    """Something the user should know about but that does not stop the run."""
