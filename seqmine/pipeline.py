@@ -62,6 +62,10 @@ def prepare_sequences(load_result, outcomes, *, encoder, grouping=None, grouping
             "No learner has both events and a group: check that the learner identifiers "
             "in the events and the outcomes match (e.g. same spelling and case).")
     per = report["learners_per_group"]
+    if len(names) < 2:
+        raise DataFileError(
+            f"The outcomes form only one group ({', '.join(map(repr, names))}); comparing "
+            f"groups needs at least two: check the label column or use pre/post scores.")
     for name in names:
         if per.get(name, 0) < min_group_learners:
             raise DataFileError(
