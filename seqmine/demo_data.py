@@ -19,13 +19,15 @@ import numpy as np
 import pandas as pd
 
 from ._validation import check_int
-from .errors import ParameterError
+from .errors import DataFileError, ParameterError
+from .patterns import PATTERN_SEPARATOR
 
 __all__ = [
     "ACTIONS",
     "BEHAVIOURS",
     "GreenhouseData",
     "generate_greenhouse",
+    "planted_patterns",
     "write_greenhouse",
 ]
 
@@ -403,6 +405,68 @@ def write_greenhouse(folder, n_learners=300, *, seed=20261202, events_per_learne
     return {"events": ev_path, "outcomes": out_path, "ground_truth": gt_path}
 
 
+def planted_patterns(ground_truth, *, variants=False):
+    """Planted patterns of a ground truth as a tidy table.
+
+    Parameters
+    ----------
+    ground_truth : dict or str or Path
+        The ``ground_truth`` of a :class:`GreenhouseData`, or the path of a
+        ``ground_truth.json`` file.
+    variants : bool, default False
+        Also list every full token form of each episode (``role`` = ``variant``).
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns ``behaviour``, ``kind`` (productive / unproductive / neutral),
+        ``direction`` (the group the behaviour favours: strong / weak / neutral),
+        ``role`` (``key`` or ``variant``), ``pattern`` (tokens joined by ``" > "``, as
+        in ``patterns.csv``), ``length``, ``share_strong`` and ``share_weak`` (share of
+        learners of each group with the key pattern as planted; empty for variants).
+
+    Examples
+    --------
+    >>> gt = generate_greenhouse(30, seed=2).ground_truth
+    >>> planted_patterns(gt)[["behaviour", "direction", "pattern"]].iloc[0].tolist()
+    ['controlled_comparison', 'strong', 'advance_week > measure_height > pause:long']
+    """
+    if not isinstance(ground_truth, dict):
+        path = Path(ground_truth)
+        try:
+            ground_truth = json.loads(path.read_text(encoding="utf-8"))
+        except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+            raise DataFileError(
+                f"{path}: cannot read the ground truth ({type(exc).__name__}); pass the "
+                "ground_truth.json written by write_greenhouse.") from None
+    try:
+        behaviours = ground_truth["behaviours"]
+        rows = []
+        for b in behaviours:
+            forms = [("key", b["key_pattern"])]
+            if variants:
+                forms += [("variant", v) for v in b["variants"]]
+            for role, tokens in forms:
+                key = role == "key"
+                rows.append({
+                    "behaviour": b["name"], "kind": b["kind"], "direction": b["direction"],
+                    "role": role, "pattern": PATTERN_SEPARATOR.join(tokens),
+                    "length": len(tokens),
+                    "share_strong": (b["planted"]["strong"]["share_with_key_pattern"]
+                                     if key else None),
+                    "share_weak": (b["planted"]["weak"]["share_with_key_pattern"]
+                                   if key else None),
+                })
+    except (KeyError, TypeError):
+        raise DataFileError(
+            "The ground truth lacks 'behaviours' with 'name', 'kind', 'direction', "
+            "'key_pattern', 'variants' and 'planted'; pass the ground_truth.json written "
+            "by write_greenhouse.") from None
+    out = pd.DataFrame(rows, columns=["behaviour", "kind", "direction", "role", "pattern",
+                                      "length", "share_strong", "share_weak"])
+    return out.astype({"share_strong": float, "share_weak": float})
+
+
 # ---------------------------------------------------------------------------------
 # private helpers
 
@@ -416,8 +480,25 @@ def _iso_times(times):
 def _write_events(events, path, fmt, chunk=200_000):
     """Write events with times as ISO 8601 text, in chunks to bound memory."""
     if fmt == "parquet":
-        out = events.assign(time=_iso_times(events["time"]).astype(object))
-        out.to_parquet(path, index=False)
+        try:
+            import pyarrow as pa
+            import pyarrow.parquet as pq
+        except ImportError:
+            raise ParameterError(
+                "Writing Parquet needs pyarrow; install it (pip install 'seqmine[parquet]') "
+                "or use events_format='csv'.") from None
+        writer = None
+        try:
+            for i in range(0, max(len(events), 1), chunk):
+                part = events.iloc[i:i + chunk]
+                part = part.assign(time=_iso_times(part["time"]).astype(object))
+                table = pa.Table.from_pandas(part, preserve_index=False)
+                if writer is None:
+                    writer = pq.ParquetWriter(path, table.schema)
+                writer.write_table(table)
+        finally:
+            if writer is not None:
+                writer.close()
         return
     with open(path, "w", encoding="utf-8", newline="") as fh:
         for i in range(0, max(len(events), 1), chunk):
@@ -593,8 +674,14 @@ def _ground_truth(*, n, seed, lo, hi, start, learners, ep_learner, ep_type, sett
             "pause_bins": 3,
             "pause_labels": list(_PAUSE_LABELS),
             "implicit_pauses": ["short"],
-            "note": "key patterns are contiguous token runs under this encoding; as "
-                    "gapped subsequences most of them occur in almost every learner",
+        },
+        "matching": {
+            "max_gap": 0,
+            "max_window": None,
+            "skip_pauses": False,
+            "note": "planted patterns are contiguous token runs under the assumed "
+                    "encoding; as gapped subsequences (max_gap=None) the productive one "
+                    "occurs in almost every learner, so its presence no longer differs",
         },
         "pause_edges_seconds": [_r(e) for e in edges],
         "pause_context_counts": {lab: int((gap_cls == i).sum())

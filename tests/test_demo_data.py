@@ -14,9 +14,10 @@ from seqmine.demo_data import (
     BEHAVIOURS,
     GreenhouseData,
     generate_greenhouse,
+    planted_patterns,
     write_greenhouse,
 )
-from seqmine.errors import ParameterError
+from seqmine.errors import DataFileError, ParameterError
 
 SHIPPED = Path(__file__).resolve().parents[1] / "datasets" / "greenhouse"
 SHIPPED_SEED = 20261202
@@ -144,6 +145,7 @@ def test_ground_truth_json_is_plain_and_sorted():
     assert gt["generator"]["seed"] == SHIPPED_SEED
     assert gt["generator"]["n_learners"] == SHIPPED_N
     assert "synthetic" in gt["about"].lower()
+    assert gt["matching"]["max_gap"] == 0
 
 
 # ---------------------------------------------------------------------------------
@@ -349,3 +351,36 @@ def test_start_zone_handled():
     c = generate_greenhouse(5, seed=1, start="2026-03-02T09:00:00")
     pd.testing.assert_frame_equal(a.events, b.events)
     pd.testing.assert_frame_equal(b.events, c.events)
+
+
+# ---------------------------------------------------------------------------------
+# planted_patterns
+
+
+def test_planted_patterns_table_from_file_and_dict(small):
+    from_file = planted_patterns(SHIPPED / "ground_truth.json")
+    from_dict = planted_patterns(small.ground_truth)
+    pd.testing.assert_frame_equal(from_file, from_dict)
+    assert list(from_file.columns) == ["behaviour", "kind", "direction", "role", "pattern",
+                                       "length", "share_strong", "share_weak"]
+    assert from_file["behaviour"].tolist() == list(BEHAVIOURS)
+    assert (from_file["role"] == "key").all()
+    row = from_file.set_index("behaviour").loc["settings_burst"]
+    assert row["pattern"] == "set_temperature > advance_week > reset"
+    assert row["length"] == 3 and row["direction"] == "weak"
+    assert row["share_weak"] > row["share_strong"]
+    full = planted_patterns(small.ground_truth, variants=True)
+    assert (full["role"] == "variant").sum() == sum(
+        len(b["variants"]) for b in small.ground_truth["behaviours"])
+    assert full.loc[full["role"] == "variant", "share_strong"].isna().all()
+
+
+def test_planted_patterns_bad_input(tmp_path):
+    with pytest.raises(DataFileError, match=r"nope\.json: cannot read the ground truth"):
+        planted_patterns(tmp_path / "nope.json")
+    bad = tmp_path / "bad.json"
+    bad.write_text("{not json", encoding="utf-8")
+    with pytest.raises(DataFileError, match=r"bad\.json: cannot read the ground truth"):
+        planted_patterns(bad)
+    with pytest.raises(DataFileError, match=r"lacks 'behaviours'"):
+        planted_patterns({"behaviours": [{"name": "x"}]})
