@@ -134,7 +134,9 @@ def bootstrap_significance(presence, labels, direction, *, n_resamples=100, alph
     alpha : float
         Nominal (uncorrected) level.
     seed : int
-        Resamples come from ``numpy.random.default_rng([seed, 1])``.
+        Resamples come from ``rng = numpy.random.default_rng([seed, 1])``: for
+        resample ``r = 0 .. R-1`` and group ``g = 0 .. k-1`` in turn,
+        ``rng.choice(members_g, size=n_g, replace=True)`` (independent of batching).
 
     Returns
     -------
@@ -158,12 +160,12 @@ def bootstrap_significance(presence, labels, direction, *, n_resamples=100, alph
     done = 0
     while done < n_resamples:
         nb = min(batch, n_resamples - done)
-        counts = np.empty((n_groups, m, nb))
-        for g, mem in enumerate(members):
-            w = np.zeros((n, nb), dtype=np.float32)
-            for b in range(nb):
-                w[:, b] = np.bincount(rng.choice(mem, size=len(mem), replace=True), minlength=n)
-            counts[g] = np.rint(pt @ w)
+        w = np.zeros((n_groups, n, nb), dtype=np.float32)
+        for b in range(nb):
+            for g, mem in enumerate(members):
+                w[g, :, b] = np.bincount(rng.choice(mem, size=len(mem), replace=True),
+                                         minlength=n)
+        counts = np.stack([np.rint(pt @ w[g]) for g in range(n_groups)])
         frac = counts / sizes[:, None, None]
         if n_groups == 2:
             a, c = counts[0], counts[1]

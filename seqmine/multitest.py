@@ -60,7 +60,7 @@ def adjust_pvalues(pvalues, method="bh"):
     ok = ~np.isnan(flat)
     if np.any((flat[ok] < 0) | (flat[ok] > 1)):
         bad = flat[ok][(flat[ok] < 0) | (flat[ok] > 1)][0]
-        raise ParameterError(f"p-values must lie in [0, 1]; got {bad!r}.")
+        raise ParameterError(f"p-values must lie in [0, 1]; got {float(bad)!r}.")
     vals = flat[ok]
     m = len(vals)
     if method == "none" or m == 0:
