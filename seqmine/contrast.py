@@ -309,7 +309,7 @@ def pairwise_contrast(patterns, db=None, *, lengths=None, groups=None, correctio
 
 
 def sequence_rates(patterns, lengths=None, *, per=100.0):
-    """Instance rates per sequence: ``counts / length * per`` (sparse, same shape).
+    """Instance rates per sequence: ``(counts / length) * per`` (sparse, same shape).
 
     Parameters
     ----------
@@ -337,9 +337,11 @@ def sequence_rates(patterns, lengths=None, *, per=100.0):
     if lengths is None:
         return counts
     lengths = np.asarray(lengths, dtype=np.float64)
-    scale = np.where(lengths > 0, per / np.where(lengths > 0, lengths, 1.0), 0.0)
     rows = np.repeat(np.arange(counts.shape[0]), np.diff(counts.indptr))
-    counts.data = counts.data * scale[rows]
+    denom = lengths[rows]
+    # count / length first, then the scale: equal fractions (1/3, 2/6) give equal
+    # floats, so rank ties in the Mann-Whitney test are the mathematical ones
+    counts.data = np.where(denom > 0, counts.data / np.where(denom > 0, denom, 1.0), 0.0) * per
     counts.eliminate_zeros()
     return counts
 
