@@ -7,6 +7,7 @@ import pandas as pd
 import pytest
 import scipy.sparse as sp
 
+from seqmine._progress import is_quiet, set_quiet
 from seqmine.cli import main
 from seqmine.commands.contrast import read_patternset
 from seqmine.contrast import contrast
@@ -94,6 +95,16 @@ def workdir(tmp_path):
 
 def test_contrast_command_writes_tables(workdir, capsys):
     tmp, db, ps = workdir
+    was_quiet = is_quiet()
+    set_quiet(False)
+    try:
+        _check_command_writes_tables(tmp, db, ps, capsys)
+    finally:
+        set_quiet(was_quiet)
+    assert is_quiet() == was_quiet
+
+
+def _check_command_writes_tables(tmp, db, ps, capsys):
     rc = main(["contrast", str(tmp / "mined"), "--seqdb", str(tmp / "seqdb"), "--out",
                str(tmp / "out" / "patterns.csv"), "--transitions", str(tmp / "out" / "t.csv"),
                "--correction", "westfall-young", "--permutations", "99", "--seed", "3",

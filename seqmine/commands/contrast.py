@@ -70,8 +70,16 @@ def add_arguments(parser):
 
 def run(args):
     """Run ``seqmine contrast``."""
+    was_quiet = is_quiet()
     if args.quiet:
         set_quiet(True)
+    try:
+        return _run(args)
+    finally:
+        set_quiet(was_quiet)
+
+
+def _run(args):
     ps = read_patternset(args.patterns)
     db = SequenceDB.load(args.seqdb) if args.seqdb else None
     if args.transitions and db is None:
