@@ -310,18 +310,21 @@ def _sparse_ranks(x):
     ranks = np.zeros(nnz)
     if nnz == 0:
         return ranks, zeros, tie_term
-    cols = np.repeat(np.arange(n_cols), counts)
+    # sorting by (column, value) keeps each column's block where CSC has it, so the
+    # column of sorted entry k is still cols[k]
+    cols = np.repeat(np.arange(n_cols, dtype=np.int32), counts)
     order = np.lexsort((x.data, cols))
     v = x.data[order]
-    c = cols[order]
-    pos = np.arange(nnz) - x.indptr[c]
     new = np.ones(nnz, dtype=bool)
-    new[1:] = (v[1:] != v[:-1]) | (c[1:] != c[:-1])
-    block = np.cumsum(new) - 1
+    new[1:] = (v[1:] != v[:-1]) | (cols[1:] != cols[:-1])
+    del v
     starts = np.flatnonzero(new)
+    block = np.cumsum(new, dtype=np.int64) - 1
+    del new
+    c0 = cols[starts]
     size = np.diff(np.append(starts, nnz)).astype(np.float64)
-    first = pos[starts].astype(np.float64)
-    avg = first + (size - 1) / 2.0 + 1.0 + zeros[c[starts]]
+    first = (starts - x.indptr[c0]).astype(np.float64)
+    avg = first + (size - 1) / 2.0 + 1.0 + zeros[c0]
     ranks[order] = avg[block]
-    tie_term = tie_term + np.bincount(c[starts], weights=size ** 3 - size, minlength=n_cols)
+    tie_term = tie_term + np.bincount(c0, weights=size ** 3 - size, minlength=n_cols)
     return ranks, zeros, tie_term

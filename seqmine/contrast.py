@@ -193,8 +193,7 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
         p = stats["p_value"]
         direction = np.sign(stats["risk_difference"]).astype(np.int64)
     else:
-        counts = np.stack([np.asarray(pres[labels == g].sum(axis=0)).ravel()
-                           for g in range(len(names))])
+        counts = np.rint(_group_sums(pres, labels, len(names)))
         sizes = np.bincount(labels, minlength=len(names))
         chi, p = chi2_presence(counts, sizes)
         h, p_rate = kruskal_sparse(rates, labels, len(names))
@@ -428,8 +427,10 @@ def _prepare(patterns, db, lengths, groups, rate_unit, where):
                 f"as independent units, which overstates the evidence. Encode one sequence "
                 f"per learner for learner-level tests.", SeqmineWarning, stacklevel=3)
     rates_all = sequence_rates(patterns, lengths)
-    presence = patterns.presence()[keep]
-    rates = rates_all[keep]
+    presence_all = patterns.presence()
+    everything = len(keep) == n_seq
+    presence = presence_all if everything else presence_all[keep]
+    rates = rates_all if everything else rates_all[keep]
     if patterns.n_patterns and presence.shape[0]:
         k = np.asarray(presence.sum(axis=0)).ravel()
         if np.all((k == 0) | (k == presence.shape[0])):
@@ -439,26 +440,34 @@ def _prepare(patterns, db, lengths, groups, rate_unit, where):
                 stacklevel=3)
     return {"names": [all_names[g] for g in chosen], "labels": labels, "keep": keep,
             "presence": presence, "rates": rates, "rates_all": rates_all,
+            "presence_all": presence_all,
             "rate_unit": rate_unit, "all_names": all_names}
 
 
 def _base_columns(patterns, rates, prep):
     seq_groups = patterns.seq_groups
     table = {"pattern": patterns.names, "length": patterns.lengths}
-    pres_all = patterns.presence()
-    rates_all = prep["rates_all"]
     names = prep["all_names"]
+    sizes = np.bincount(seq_groups[seq_groups >= 0], minlength=len(names))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        support = np.rint(_group_sums(prep["presence_all"], seq_groups, len(names))) \
+            / sizes[:, None]
+        rate = _group_sums(prep["rates_all"], seq_groups, len(names)) / sizes[:, None]
     for g, name in enumerate(names):
-        rows = np.flatnonzero(seq_groups == g)
-        n = len(rows)
-        table[f"support_{name}"] = (np.asarray(pres_all[rows].sum(axis=0)).ravel() / n
-                                    if n else np.full(patterns.n_patterns, np.nan))
+        table[f"support_{name}"] = support[g]
     for g, name in enumerate(names):
-        rows = np.flatnonzero(seq_groups == g)
-        n = len(rows)
-        table[f"rate_{name}"] = (np.asarray(rates_all[rows].sum(axis=0)).ravel() / n
-                                 if n else np.full(patterns.n_patterns, np.nan))
+        table[f"rate_{name}"] = rate[g]
     return table
+
+
+def _group_sums(matrix, labels, n_groups):
+    """Column sums of ``matrix`` per group, (n_groups, n_columns), via one sparse product
+    (rows with label -1 are left out; no copy of the matrix)."""
+    labels = np.asarray(labels, dtype=np.int64)
+    rows = np.flatnonzero(labels >= 0)
+    ind = sp.csr_matrix((np.ones(len(rows)), (labels[rows], rows)),
+                        shape=(n_groups, matrix.shape[0]))
+    return np.asarray((ind @ matrix).todense(), dtype=np.float64).reshape(n_groups, -1)
 
 
 def _two_group_stats(pres, rates, in_a, in_b):
@@ -466,17 +475,17 @@ def _two_group_stats(pres, rates, in_a, in_b):
     in_a = np.asarray(in_a, dtype=bool)
     in_b = np.asarray(in_b, dtype=bool)
     n1, n2 = int(in_a.sum()), int(in_b.sum())
-    a = np.asarray(pres[in_a].sum(axis=0)).ravel().astype(np.int64)
-    c = np.asarray(pres[in_b].sum(axis=0)).ravel().astype(np.int64)
+    lab = np.where(in_a, 0, np.where(in_b, 1, -1))
+    a, c = np.rint(_group_sums(pres, lab, 2)).astype(np.int64)
+    rate_a, rate_b = _group_sums(rates, lab, 2) / np.array([[n1], [n2]])
     b, d = n1 - a, n2 - c
     pa, pb = a / n1, c / n2
     orr = odds_ratio_haldane(a, b, c, d)
     sel = in_a | in_b
-    u1, p_rate = mannwhitney_sparse(rates[sel], in_a[sel])
+    u1, p_rate = mannwhitney_sparse(rates if sel.all() else rates[sel], in_a[sel])
     return {
         "support_a": pa, "support_b": pb,
-        "rate_a": np.asarray(rates[in_a].mean(axis=0)).ravel(),
-        "rate_b": np.asarray(rates[in_b].mean(axis=0)).ravel(),
+        "rate_a": rate_a, "rate_b": rate_b,
         "p_value": fisher_exact_many(a, b, c, d),
         "risk_difference": pa - pb, "odds_ratio": orr, "log_odds_ratio": np.log(orr),
         "growth_rate": growth_rate(pa, pb), "cohens_h": cohens_h(pa, pb),

@@ -1,16 +1,17 @@
-"""Multiple-comparison corrections: Benjamini-Hochberg FDR and Holm's step-down FWER."""
+"""Multiple-comparison corrections: Benjamini-Hochberg FDR, Holm and Westfall-Young FWER."""
 
 from __future__ import annotations
 
 import numpy as np
 
+from ._permutation import westfall_young_minp
 from ._validation import check_choice
 from .errors import ParameterError
 
-__all__ = ["adjust_pvalues", "CORRECTIONS"]
+__all__ = ["adjust_pvalues", "westfall_young_minp", "CORRECTIONS"]
 
-#: Corrections :func:`adjust_pvalues` knows (Westfall-Young needs the data and lives
-#: in :mod:`seqmine.contrast`).
+#: Corrections :func:`adjust_pvalues` knows (Westfall-Young needs the data, not only
+#: the p-values: see :func:`westfall_young_minp`).
 CORRECTIONS = ("bh", "holm", "none")
 
 
