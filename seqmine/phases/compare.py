@@ -254,9 +254,10 @@ def model_distance(model_a, model_b, *, lengths=None, n_tokens=20000, seed=0):
     """
     _check_same_vocab(model_a, model_b)
     n_tokens = check_int(n_tokens, "n_tokens", "model_distance", minimum=1)
-    rng = np.random.default_rng(seed)
     d = {}
     for key, src, other in (("d_ab", model_b, model_a), ("d_ba", model_a, model_b)):
+        # the same stream for both directions makes the symmetric value exactly symmetric
+        rng = np.random.default_rng(seed)
         lens = _draw_lengths(lengths, n_tokens, rng)
         X, _ = src.sample(lens, rng)
         T = float(len(X))

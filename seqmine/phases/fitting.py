@@ -106,8 +106,8 @@ def select_n_states(sequences, *, n_states=range(2, 7), n_restarts=5, n_folds=3,
         n0 = counts[0]
         raise ParameterError(
             f"The {label} data ({len(X)} tokens) cannot support {n0} states: that model has "
-            f"{_hmm.n_free_parameters(n0, M)} free parameters. Lower 'n_states' or provide "
-            f"more sequences.")
+            f"{_hmm.n_free_parameters(n0, M)} free parameters. Lower "
+            f"'n_states' (--states) or provide more sequences.")
     if len(supported) < len(counts):
         dropped = [n for n in counts if n not in supported]
         warnings.warn(
@@ -254,7 +254,8 @@ def _check_supported(n_states, n_symbols, n_tokens, label):
     if k >= n_tokens:
         raise ParameterError(
             f"The {label} data ({n_tokens} tokens) cannot support {n_states} states: that "
-            f"model has {k} free parameters. Lower 'n_states' or provide more sequences.")
+            f"model has {k} free parameters. Lower 'n_states' (--states) or provide more "
+            f"sequences.")
 
 
 def _take(X, offsets, lengths, idx):

@@ -342,6 +342,7 @@ class PhaseModel:
                     f"lengths sum to {int(lengths.sum())} but there are {len(X)} tokens.")
         else:
             seqs = [np.asarray(s).ravel() for s in sequences]
+            seqs = [s if len(s) else s.astype(np.int64) for s in seqs]
             lengths = np.array([len(s) for s in seqs], dtype=np.int64)
             X = np.concatenate(seqs) if seqs else np.zeros(0, dtype=np.int64)
         X = np.asarray(X)
