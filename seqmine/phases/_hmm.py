@@ -143,9 +143,13 @@ def posterior_occupancy(startprob, transmat, emissionprob, X, lengths):
     n = len(np.asarray(startprob))
     if len(X) == 0:
         return np.full(n, 1.0 / n)
-    hmm = _hmm_from(startprob, transmat, emissionprob)
     lengths = np.asarray(lengths, dtype=np.int64)
-    post = hmm.predict_proba(X.reshape(-1, 1), lengths[lengths > 0])
+    hmm = _hmm_from(startprob, transmat, emissionprob, implementation="scaling")
+    try:
+        post = hmm.predict_proba(X.reshape(-1, 1), lengths[lengths > 0])
+    except ValueError:  # underflow in the scaled pass: use log space
+        hmm = _hmm_from(startprob, transmat, emissionprob)
+        post = hmm.predict_proba(X.reshape(-1, 1), lengths[lengths > 0])
     return post.mean(axis=0)
 
 
@@ -226,13 +230,21 @@ def fit_restart(X, lengths, n_states, n_symbols, seed, *, n_iter=200, tol=1e-4,
     trans = rng.dirichlet(np.ones(n_states), size=n_states)
     emis = 0.5 * rng.dirichlet(np.ones(n_symbols), size=n_states) + 0.5 * freq[None, :]
     emis /= emis.sum(axis=1, keepdims=True)
-    hmm = CategoricalHMM(n_components=n_states, n_features=n_symbols, init_params="",
-                         params="ste", n_iter=n_iter, tol=tol * max(len(X), 1),
-                         random_state=0, implementation="log")
-    hmm.startprob_ = start
-    hmm.transmat_ = trans
-    hmm.emissionprob_ = emis
-    hmm.fit(X.reshape(-1, 1), lengths)
+    # the scaled forward-backward is ~10x faster than hmmlearn's log version; if it
+    # underflows (hmmlearn raises ValueError) the same start is refitted in log space
+    for implementation in ("scaling", "log"):
+        hmm = CategoricalHMM(n_components=n_states, n_features=n_symbols, init_params="",
+                             params="ste", n_iter=n_iter, tol=tol * max(len(X), 1),
+                             random_state=0, implementation=implementation)
+        hmm.startprob_ = start.copy()
+        hmm.transmat_ = trans.copy()
+        hmm.emissionprob_ = emis.copy()
+        try:
+            hmm.fit(X.reshape(-1, 1), lengths)
+            break
+        except ValueError:
+            if implementation == "log":
+                raise
     pi, A = _renormalise(hmm.startprob_), _renormalise(hmm.transmat_)
     B = apply_emission_floor(hmm.emissionprob_, emission_floor)
     ll = float(forward_loglik(pi, A, B, X, lengths).sum())
@@ -250,10 +262,10 @@ def _renormalise(p):
     return p
 
 
-def _hmm_from(startprob, transmat, emissionprob):
+def _hmm_from(startprob, transmat, emissionprob, implementation="log"):
     B = np.asarray(emissionprob, dtype=np.float64)
     hmm = CategoricalHMM(n_components=B.shape[0], n_features=B.shape[1], init_params="",
-                         params="", implementation="log")
+                         params="", implementation=implementation)
     hmm.startprob_ = np.asarray(startprob, dtype=np.float64)
     hmm.transmat_ = np.asarray(transmat, dtype=np.float64)
     hmm.emissionprob_ = B

@@ -68,7 +68,7 @@ class GroupHMMClassifier(ClassifierMixin, BaseEstimator):
     True
     """
 
-    def __init__(self, *, n_states=3, n_restarts=3, seed=0, n_iter=200, tol=1e-5,
+    def __init__(self, *, n_states=3, n_restarts=3, seed=0, n_iter=200, tol=1e-4,
                  emission_floor=DEFAULT_EMISSION_FLOOR, prior="empirical", n_jobs=1):
         self.n_states = n_states
         self.n_restarts = n_restarts

@@ -22,7 +22,7 @@ DEFAULT_EMISSION_FLOOR = 1e-4
 
 
 def fit_phase_model(sequences, *, n_states=3, n_restarts=5, seed=0, n_jobs=1, n_iter=200,
-                    tol=1e-5, emission_floor=DEFAULT_EMISSION_FLOOR, vocab=None,
+                    tol=1e-4, emission_floor=DEFAULT_EMISSION_FLOOR, vocab=None,
                     label="model", _purpose=0):
     """Fit one categorical HMM by Baum--Welch with several random restarts.
 
@@ -75,7 +75,7 @@ def fit_phase_model(sequences, *, n_states=3, n_restarts=5, seed=0, n_jobs=1, n_
 
 
 def select_n_states(sequences, *, n_states=range(2, 7), n_restarts=5, n_folds=3, seed=0,
-                    n_jobs=1, n_iter=200, tol=1e-5, emission_floor=DEFAULT_EMISSION_FLOOR,
+                    n_jobs=1, n_iter=200, tol=1e-4, emission_floor=DEFAULT_EMISSION_FLOOR,
                     learners=None, vocab=None, label="pooled", _purpose=0):
     """Fit every state count in a range; score it by BIC and held-out log-likelihood.
 

@@ -136,7 +136,7 @@ class PhaseResult:
 
 
 def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, criterion="bic",
-               n_folds=3, min_length=2, groups=None, n_iter=200, tol=1e-5,
+               n_folds=3, min_length=2, groups=None, n_iter=200, tol=1e-4,
                emission_floor=DEFAULT_EMISSION_FLOOR, n_permutations=19,
                distance_tokens=20000, edge_threshold=0.05, alpha=0.05):
     """Fit phase models (HMMs) pooled and per outcome group, and compare the groups.
