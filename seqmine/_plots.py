@@ -12,9 +12,11 @@ cleaned of control characters and shortened by :func:`clean_label`.
 
 from __future__ import annotations
 
+import contextlib
 import io
 import math
 import re
+import warnings
 from html import escape
 
 import matplotlib
@@ -125,7 +127,7 @@ def svg_boxes(stats, *, title, xlabel, fig_id):
             label += f" (n={int(s['n'])})"
         boxes.append({"label": label, "whislo": s["min"], "q1": s["q1"], "med": s["median"],
                       "q3": s["q3"], "whishi": s["max"], "fliers": []})
-    with matplotlib.rc_context(_RC):
+    with _style():
         fig = Figure(figsize=(6.4, 0.6 + 0.45 * len(boxes)))
         ax = fig.subplots()
         art = ax.bxp(boxes[::-1], orientation="horizontal", patch_artist=True, widths=0.55,
@@ -133,7 +135,7 @@ def svg_boxes(stats, *, title, xlabel, fig_id):
         for patch, i in zip(art["boxes"], range(len(boxes) - 1, -1, -1)):
             patch.set_facecolor(PALETTE[i % len(PALETTE)])
             patch.set_alpha(0.55)
-        ax.set_title(clean_label(title, 80), loc="left")
+        _title(fig, title)
         ax.set_xlabel(clean_label(xlabel, 80))
         ax.grid(axis="x", color=_GRID, linewidth=0.6)
         ax.set_axisbelow(True)
@@ -161,7 +163,7 @@ def svg_support_bars(patterns, supports, *, fig_id, title="Share of sequences co
     groups = list(supports)
     n, g = len(patterns), max(len(groups), 1)
     height = 0.8 / g
-    with matplotlib.rc_context(_RC):
+    with _style():
         fig = Figure(figsize=(7.6, 0.9 + 0.32 * n * max(g, 2) / 2 + 0.2))
         ax = fig.subplots()
         y = np.arange(n)[::-1].astype(float)
@@ -175,8 +177,8 @@ def svg_support_bars(patterns, supports, *, fig_id, title="Share of sequences co
         ax.xaxis.set_major_formatter(matplotlib.ticker.PercentFormatter(1.0, decimals=0))
         ax.grid(axis="x", color=_GRID, linewidth=0.6)
         ax.set_axisbelow(True)
-        ax.set_title(clean_label(title, 80), loc="left")
-        ax.legend(loc="lower right", fontsize=8)
+        _title(fig, title)
+        _legend_above(ax, g)
         fig.tight_layout()
         return _to_svg(fig, fig_id, title)
 
@@ -205,7 +207,7 @@ def svg_residual_heatmap(matrix, rows, cols, *, title, fig_id, counts=None):
     lim = min(lim, 10.0)
     n_r, n_c = m.shape
     cell = 0.42
-    with matplotlib.rc_context(_RC):
+    with _style():
         fig = Figure(figsize=(max(4.0, 2.2 + cell * n_c), max(2.6, 1.6 + cell * n_r)))
         ax = fig.subplots()
         # Vector cells (no embedded raster image); row 0 at the top.
@@ -233,7 +235,7 @@ def svg_residual_heatmap(matrix, rows, cols, *, title, fig_id, counts=None):
         for side in ("top", "right", "left", "bottom"):
             ax.spines[side].set_visible(False)
         ax.tick_params(length=0)
-        ax.set_title(clean_label(title, 80), loc="left")
+        _title(fig, title)
         fig.tight_layout()
         return _to_svg(fig, fig_id, title)
 
@@ -273,7 +275,7 @@ def svg_state_diagram(states, transmat, *, title, fig_id, min_prob=0.05):
     ang = [math.pi / 2 - 2 * math.pi * k / max(n, 1) for k in range(n)]
     radius = 1.0 if n > 1 else 0.0
     pos = {k: (radius * math.cos(t), radius * math.sin(t)) for k, t in enumerate(ang)}
-    with matplotlib.rc_context(_RC):
+    with _style():
         ys = [xy[1] for xy in pos.values()] or [0.0]
         y_lo, y_hi = min(ys) - 0.5, max(ys) + 0.5
         width = 4.8 if n <= 4 else 6.4
@@ -296,7 +298,7 @@ def svg_state_diagram(states, transmat, *, title, fig_id, min_prob=0.05):
         ax.set_xlim(-1.7, 1.7)
         ax.set_ylim(y_lo, y_hi)
         ax.set_axis_off()
-        ax.set_title(clean_label(title, 80), loc="left")
+        _title(fig, title)
         fig.tight_layout()
         fig.canvas.draw()
         renderer = fig.canvas.get_renderer()
@@ -361,7 +363,7 @@ def svg_prediction_curves(curves, *, fig_id, baseline=None, chance=None, ylabel,
     str
         SVG fragment.
     """
-    with matplotlib.rc_context(_RC):
+    with _style():
         fig = Figure(figsize=(5.2, 3.4))
         ax = fig.subplots()
         for k, (name, c) in enumerate(curves.items()):
@@ -385,13 +387,37 @@ def svg_prediction_curves(curves, *, fig_id, baseline=None, chance=None, ylabel,
         ax.set_ylabel(clean_label(ylabel, 40))
         ax.grid(color=_GRID, linewidth=0.6)
         ax.set_axisbelow(True)
-        ax.set_title(clean_label(title, 80), loc="left")
-        ax.legend(loc="lower right", fontsize=7.5)
+        _title(fig, title)
+        _legend_above(ax, 2)
         fig.tight_layout()
         return _to_svg(fig, fig_id, title)
 
 
 # --------------------------------------------------------------------------- helpers
+
+
+@contextlib.contextmanager
+def _style():
+    """Fixed style and SVG settings; no warnings about glyphs matplotlib's font lacks.
+
+    Text stays text in the SVG and the browser picks a font that has the glyph, so a
+    glyph missing from matplotlib's own font does not matter here.
+    """
+    with matplotlib.rc_context(_RC), warnings.catch_warnings():
+        warnings.filterwarnings("ignore", message=r"Glyph \d+ .*missing from",
+                                category=UserWarning)
+        yield
+
+
+def _title(fig, text):
+    """Figure title at the top left (outside the axes, never clipped by long labels)."""
+    fig.suptitle(clean_label(text, 80), x=0.01, ha="left", fontsize=10, fontweight="bold")
+
+
+def _legend_above(ax, ncol):
+    """Legend in a row between the title and the axes, so it never hides data."""
+    ax.legend(loc="lower left", bbox_to_anchor=(0.0, 1.01), ncol=max(1, min(ncol, 4)),
+              fontsize=8, borderaxespad=0.2, handlelength=1.6, columnspacing=1.2)
 
 
 def _edge_distance(box, ux, uy):

@@ -114,12 +114,32 @@ def esc(value, max_chars=400):
     return escape(s, quote=True)
 
 
+#: Sections of the configuration searched (in order) by :func:`lookup`.
+CONFIG_SECTIONS = ("contrast", "mine", "validate", "phases", "encode", "grouping", "privacy",
+                   "report")
+
+
 def lookup(summary, key):
-    """Value of ``key`` in summary['method'], the summary itself, or its configuration."""
-    for place in (summary.get("method"), summary):
+    """Value of ``key`` in the summary: ``method``, the top level, then the configuration.
+
+    The configuration is searched at its top level, then in the sections named in
+    :data:`CONFIG_SECTIONS`, in that order; ``None`` when absent.
+
+    Examples
+    --------
+    >>> lookup({"config": {"contrast": {"alpha": 0.1}}}, "alpha")
+    0.1
+    >>> lookup({"method": {"alpha": 0.01}, "config": {"alpha": 0.1}}, "alpha")
+    0.01
+    """
+    config = summary.get("config")
+    places = [summary.get("method"), summary, config]
+    if isinstance(config, dict):
+        places += [config.get(name) for name in CONFIG_SECTIONS]
+    for place in places:
         if isinstance(place, dict) and key in place:
             return place[key]
-    return _find_nested(summary.get("config"), key, depth=3)
+    return None
 
 
 _COUNT_KEYS = ("rows_in", "rows_kept", "rows_rejected", "learners", "learners_per_group",
@@ -969,18 +989,6 @@ def _five_numbers(obj):
                 out[str(g)] = dict(zip(("min", "q1", "median", "q3", "max"), map(float, q)),
                                    n=int(x.size))
     return out
-
-
-def _find_nested(obj, key, depth):
-    if not isinstance(obj, dict) or depth < 0:
-        return None
-    if key in obj:
-        return obj[key]
-    for k in sorted(obj, key=str):
-        found = _find_nested(obj[k], key, depth - 1)
-        if found is not None:
-            return found
-    return None
 
 
 def _describe_grouping(v):

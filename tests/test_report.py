@@ -77,12 +77,22 @@ def test_cautions_are_always_there(tmp_path):
         assert phrase in text
 
 
-@pytest.mark.parametrize("name", sorted(set(OUTPUT_FILES.values()) - {"phases"}))
-def test_missing_file_gives_a_note(tmp_path, name):
-    folder = write_output_folder(tmp_path / "out", drop=(name,))
+@pytest.mark.parametrize("keep", [("summary.json",), ("patterns.csv", "transitions.csv")])
+def test_missing_files_give_notes(tmp_path, keep):
+    names = sorted(set(OUTPUT_FILES.values()) - {"phases"})
+    folder = write_output_folder(tmp_path / "out", drop=[n for n in names if n not in keep])
     text = render_report(folder).read_text(encoding="utf-8")
-    assert f"Not produced in this run ({name} not found" in text or (
-        name == "examples.json" and "example excerpts: examples.json not found" in text)
+    for name in names:
+        if name in keep:
+            assert f"({name} not found" not in text
+        elif name == "examples.json":
+            if "patterns.csv" in keep:
+                assert "example excerpts: examples.json not found" in text
+        else:
+            assert f"Not produced in this run ({name} not found" in text, name
+    # Sections are all there even when their files are not.
+    ids = [a.get("id") for _, a in _parse(text).tags]
+    assert all(sid in ids for sid in SECTION_IDS)
 
 
 def test_only_summary(tmp_path):
