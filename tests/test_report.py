@@ -274,3 +274,20 @@ def test_cli_report(folder, tmp_path, capsys):
     assert "does not exist or is not a folder" in err and len(err.strip().splitlines()) == 1
     assert main(["report", str(folder), "--max-patterns", "0"]) == 2
     assert "--max-patterns must be" in capsys.readouterr().err
+
+
+def test_outputs_doc_lists_every_key_the_report_reads():
+    from pathlib import Path
+
+    from seqmine import report as rep
+
+    doc = (Path(__file__).resolve().parents[1] / "docs" / "outputs.md").read_text("utf-8")
+    tables = [rep.SUMMARY_KEYS, rep.REJECT_COLUMNS, rep.PATTERN_COLUMNS, rep.TRANSITION_COLUMNS,
+              rep.PHASE_MODEL_KEYS, rep.STATE_SELECTION_COLUMNS, rep.OCCUPANCY_COLUMNS,
+              rep.PREDICTION_COLUMNS, rep.DETECTOR_KEYS, rep.EXAMPLE_KEYS]
+    for table in tables:
+        for key in table:
+            last = re.split(r"\.|\[\]\.", key)[-1]
+            assert f"`{key}`" in doc or f"`{last}`" in doc, key
+    for name in rep.OUTPUT_FILES.values():
+        assert f"`{name}" in doc, name
