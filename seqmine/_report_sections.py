@@ -17,7 +17,7 @@ import pandas as pd
 
 from . import _plots
 
-__all__ = ["esc", "lookup", "counts_of", "group_names_of", "FigureIds", "PAGE_TITLE", "CSS"]
+__all__ = ["esc", "lookup", "config_of", "counts_of", "phase_model", "group_names_of", "FigureIds", "PAGE_TITLE", "CSS"]
 
 PAGE_TITLE = "seqmine report: behaviour patterns and outcomes"
 _SEP = " > "
@@ -132,7 +132,7 @@ def lookup(summary, key):
     >>> lookup({"method": {"alpha": 0.01}, "config": {"alpha": 0.1}}, "alpha")
     0.01
     """
-    config = summary.get("config")
+    config = config_of(summary)
     places = [summary.get("method"), summary, config]
     if isinstance(config, dict):
         places += [config.get(name) for name in CONFIG_SECTIONS]
@@ -145,6 +145,14 @@ def lookup(summary, key):
 _COUNT_KEYS = ("rows_in", "rows_kept", "rows_rejected", "learners", "learners_per_group",
                "learners_without_group", "sequences", "sequences_per_group",
                "patterns_mined", "patterns_significant", "rejects_by_reason")
+
+
+def config_of(summary):
+    """The effective configuration of a summary (``configuration`` or ``config``)."""
+    for key in ("configuration", "config"):
+        if isinstance(summary.get(key), dict):
+            return summary[key]
+    return None
 
 
 def counts_of(summary):
@@ -300,7 +308,15 @@ def section_patterns(d, figs, *, examples, max_patterns, max_examples):
         return _section("patterns", out + ['<p class="note">No pattern was mined.</p>'])
     groups = d["groups"]
     sup_cols = [(g, f"support_{g}") for g in groups if f"support_{g}" in df.columns]
+    hidden = 0
+    if "redundant_of" in df.columns:
+        redundant = df["redundant_of"].astype(str).str.strip() != ""
+        hidden = int(redundant.sum())
+        df = df[~redundant]
     top, note = _top_patterns(df, d["alpha"], max_patterns)
+    if hidden:
+        note += (f" {_plural(hidden, 'pattern')} that nearly duplicate a listed one (same "
+                 "learners) left out here; see the redundant_of column of patterns.csv.")
     out.append(f'<p class="note">{note}</p>')
     if sup_cols and len(top):
         out.append(_plots.svg_support_bars(
@@ -352,41 +368,78 @@ def section_phases(d, figs):
     """Phase models as state diagrams, state selection and occupancy."""
     out = [_h2("phases"),
            "<p>A hidden Markov model groups moments of work into a few <b>phases</b> (states), "
-           "each with the actions it most often produces. Arrows show how likely the next "
+           "each with the tokens it most often produces. Arrows show how likely the next "
            "step moves to another phase; <b>stays</b> is the expected number of consecutive "
-           "steps in a phase. Models were fitted per group and on all learners together "
-           "(pooled); state names are labels, not judgements.</p>"]
+           "steps in a phase. Models were fitted on all learners together (pooled) and per "
+           "group; phase names are made from their most frequent tokens, not judgements.</p>"]
     models = d["models"]
     if not models:
         out.append(_missing(d["models_note"]))
+    psum = d["phases_summary"].value or {}
+    if _is_num(psum.get("n_states")):
+        crit = psum.get("criterion")
+        out.append(f"<p>Every model has {_int(psum['n_states'])} phases"
+                   + (f" (count chosen by {esc(crit)})" if crit else "") + ".</p>")
     order = {"pooled": -1, **{g: i for i, g in enumerate(d["groups"])}}
-    models = sorted(models, key=lambda m: (order.get(str(m.get("group")), len(order)),
-                                           str(m.get("group")), m["_file"]))
+    models = sorted(models, key=lambda m: (order.get(m["group"], len(order)), m["group"],
+                                           m["file"]))
     cells = []
     for m in models:
-        states = [_state(s, k) for k, s in enumerate(m.get("states") or [])]
-        if not states:
-            continue
-        group = str(m.get("group"))
-        tm = _matrix(m.get("transmat"), len(states))
-        rows = [[esc(s["name"]), _fmt(s.get("dwell"), 1),
+        states = m["states"]
+        rows = [[esc(st["name"]), _fmt(st.get("dwell"), 1),
                  ", ".join(f'<span class="tok">{esc(t)}</span> {_pct(p)}'
-                           for t, p in s["emissions"][:5])] for s in states]
+                           for t, p in st["emissions"][:5])] for st in states]
         cells.append(
-            f"<div><h3>{_group_label(group, d['groups'])} "
-            f'<span class="note">({esc(m["_file"])})</span></h3>\n'
-            + _plots.svg_state_diagram(states, tm, title=f"Phase model: {group}",
-                                       fig_id=figs())
+            f"<div><h3>{_group_label(m['group'], d['groups'])} "
+            f'<span class="note">({esc(m["file"])})</span></h3>\n'
+            + _plots.svg_state_diagram(states, m["transmat"],
+                                       title=f"Phase model: {m['group']}", fig_id=figs())
             + _table(["phase", "stays (steps)", "most frequent tokens"], rows,
                      raw_cells=False, num_cols=(1,)) + "</div>")
     if cells:
         out.append('<div class="grid2">' + "\n".join(cells) + "</div>")
-    out.append(_state_selection(d["state_selection"]))
+    out.append(_state_selection(d["state_selection"], psum.get("n_states")))
     out.append(_occupancy(d["occupancy"], d["groups"], figs))
     if d["graphml"]:
         out.append("<p>Graphs for network tools: " + ", ".join(
             f"<code>phases/{esc(n)}</code>" for n in d["graphml"]) + ".</p>")
     return _section("phases", out)
+
+
+def phase_model(data):
+    """States and transition matrix of a phase model JSON object, or None if unusable.
+
+    Reads ``vocab``, ``emissionprob`` (states x vocab), ``transmat``, ``state_labels``
+    and ``state_names``; dwell is ``1 / (1 - a_ii)``.
+
+    Examples
+    --------
+    >>> m = phase_model({"vocab": ["a", "b"], "emissionprob": [[0.9, 0.1], [0.2, 0.8]],
+    ...                  "transmat": [[0.5, 0.5], [0.25, 0.75]]})
+    >>> [(s["name"], s["dwell"], s["emissions"][0]) for s in m["states"]]
+    [('S1', 2.0, ('a', 0.9)), ('S2', 4.0, ('b', 0.8))]
+    """
+    try:
+        emis = np.asarray(data.get("emissionprob"), dtype=float)
+        vocab = [str(v) for v in data.get("vocab") or []]
+    except (TypeError, ValueError):
+        return None
+    if emis.ndim != 2 or emis.shape[1] != len(vocab) or emis.shape[0] == 0:
+        return None
+    n = emis.shape[0]
+    tm = _matrix(data.get("transmat"), n)
+    labels = _str_list(data.get("state_labels"), n) or [f"S{i + 1}" for i in range(n)]
+    names = _str_list(data.get("state_names"), n)
+    states = []
+    for i in range(n):
+        order = sorted(range(len(vocab)), key=lambda j: (-emis[i, j], j))[:5]
+        stay = float(tm[i, i]) if tm is not None else math.nan
+        dwell = 1.0 / (1.0 - stay) if math.isfinite(stay) and stay < 1 else None
+        name = labels[i] if not names or names[i] == labels[i] else f"{labels[i]} {names[i]}"
+        states.append({"name": name, "dwell": dwell,
+                       "emissions": [(vocab[j], float(emis[i, j])) for j in order
+                                     if math.isfinite(emis[i, j])]})
+    return {"states": states, "transmat": tm}
 
 
 def section_prediction(d, figs):
@@ -396,7 +449,7 @@ def section_prediction(d, figs):
            "the first part of each test sequence. <b>Balanced accuracy</b> averages the share "
            "recognised in each group, so 0.5 is chance whatever the group sizes. The dashed "
            "line is the <b>majority baseline</b>: always guessing the larger group. Shaded "
-           "bands are confidence intervals.</p>"]
+           "bands are bootstrap confidence intervals.</p>"]
     inp = d["early_prediction"]
     if not inp.ok:
         return _section("early-prediction", out + [_missing(inp.note)])
@@ -407,24 +460,31 @@ def section_prediction(d, figs):
             "early_prediction.csv needs 'fraction' and 'accuracy' or 'balanced_accuracy'")])
     if "classifier" not in df.columns:
         df = df.assign(classifier="classifier")
+    df = df.assign(classifier=df["classifier"].astype(str))
     names = list(dict.fromkeys(df["classifier"]))
     rank = {n: i for i, n in enumerate(names)}
     df = (df.assign(_r=df["classifier"].map(rank))
           .sort_values(["_r", "fraction"], kind="mergesort").drop(columns="_r"))
+    base_col = next((c for c in ("baseline_accuracy", "baseline") if c in df.columns), None)
+    shown = [n for n in names if n != "majority"] or names
     charts = []
     for metric in metrics:
         curves = {}
-        for name in names:
+        for name in shown:
             sub = df[df["classifier"] == name]
-            lo, hi = f"{metric}_ci_low", f"{metric}_ci_high"
-            curves[str(name)] = {
-                "fraction": sub["fraction"], "value": sub[metric],
-                "low": sub[lo] if lo in sub.columns and sub[lo].notna().all() else None,
-                "high": sub[hi] if hi in sub.columns and sub[hi].notna().all() else None}
+            lo, hi = _bounds(sub, metric)
+            curves[name] = {"fraction": sub["fraction"], "value": sub[metric],
+                            "low": lo, "high": hi}
         baseline = chance = None
-        if metric == "accuracy" and "baseline" in df.columns:
-            b = df.groupby("fraction", sort=True)["baseline"].mean()
-            baseline = {"fraction": b.index, "value": b.to_numpy(), "label": "majority baseline"}
+        if metric == "accuracy":
+            if base_col is not None:
+                b = df.groupby("fraction", sort=True)[base_col].mean()
+                baseline = {"fraction": b.index, "value": b.to_numpy(),
+                            "label": "majority baseline"}
+            elif "majority" in names and len(shown) < len(names):
+                b = df[df["classifier"] == "majority"]
+                baseline = {"fraction": b["fraction"], "value": b["accuracy"],
+                            "label": "majority baseline"}
         if metric == "balanced_accuracy":
             chance = 0.5
         label = metric.replace("_", " ")
@@ -432,15 +492,56 @@ def section_prediction(d, figs):
             curves, fig_id=figs(), baseline=baseline, chance=chance, ylabel=label,
             title=f"{label.capitalize()} by share of sequence observed") + "</div>")
     out.append('<div class="grid2">' + "".join(charts) + "</div>")
-    out.append(_first_above_chance(df, names))
-    recall = [c for c in df.columns if c.startswith("recall_")]
-    cols = [c for c in ("accuracy", "balanced_accuracy", *recall, "roc_auc", "baseline")
-            if c in df.columns]
-    rows = [[esc(r["classifier"]), _pct(r["fraction"])] + [_fmt(r[c], 2) for c in cols]
-            for _, r in df.iterrows()]
-    heads = ["classifier", "observed"] + [_metric_head(c) for c in cols]
-    out.append(_table(heads, rows, raw_cells=False, num_cols=tuple(range(1, len(heads)))))
+    out.append(_earliest(df, shown))
+    recall = [c for c in df.columns if c.startswith("recall_") and not c.endswith(("_low",
+                                                                                    "_high"))]
+    cols = [c for c in ("n_learners", "accuracy", "balanced_accuracy", *recall, "roc_auc",
+                        base_col) if c is not None and c in df.columns]
+    rows = []
+    for _, r in df.iterrows():
+        row = [esc(r["classifier"]), _pct(r["fraction"])]
+        for c in cols:
+            row.append(_int(r[c]) if c == "n_learners" else _fmt(r[c], 2))
+        if "beats_baseline" in df.columns:
+            row.append("✓" if _true(r["beats_baseline"]) else "")
+        rows.append(row)
+    heads = (["classifier", "observed"] + [_metric_head(c) for c in cols]
+             + (["beats baseline"] if "beats_baseline" in df.columns else []))
+    out.append("<details><summary>All values</summary>"
+               + _table(heads, rows, raw_cells=False, num_cols=tuple(range(1, 2 + len(cols))))
+               + "</details>")
     return _section("early-prediction", out)
+
+
+def _bounds(sub, metric):
+    for lo, hi in ((f"{metric}_low", f"{metric}_high"),
+                   (f"{metric}_ci_low", f"{metric}_ci_high")):
+        if lo in sub.columns and hi in sub.columns and sub[[lo, hi]].notna().all().all():
+            return sub[lo], sub[hi]
+    return None, None
+
+
+def _earliest(df, names):
+    """Earliest fraction at which each classifier is reliably better than the baseline."""
+    if "beats_baseline" in df.columns:
+        rule = ("the classifier was right for significantly more held-out learners than "
+                "the majority baseline (one-sided test)")
+        hit = df["beats_baseline"].map(_true)
+    elif "balanced_accuracy" in df.columns and _bounds(df, "balanced_accuracy")[0] is not None:
+        rule = "the lower confidence bound of balanced accuracy is above chance"
+        hit = _bounds(df, "balanced_accuracy")[0] > 0.5
+    else:
+        return ""
+    parts = []
+    for name in names:
+        sel = (df["classifier"] == name) & hit
+        if sel.any():
+            parts.append(f"<li>{esc(name)}: from {_pct(df.loc[sel, 'fraction'].min())} of "
+                         "the sequence.</li>")
+        else:
+            parts.append(f"<li>{esc(name)}: not at any observed share.</li>")
+    return (f"<p>Earliest reliable recognition (first share of the sequence at which {rule}):"
+            "</p><ul>" + "".join(parts) + "</ul>")
 
 
 def section_detectors(d):
@@ -450,18 +551,32 @@ def section_detectors(d):
            "fires, can show its hint. <b>Encourage</b> marks orderings more common among "
            "learners who did well; <b>discourage</b> marks orderings more common among those "
            "who did not. Hint texts and priorities are drafts to edit in "
-           "<code>detectors.json</code>; pilot them with educators before they reach "
-           "learners.</p>"]
+           "<code>detectors.json</code> (priority 1 is delivered first); review them with "
+           "educators and pilot them before they reach learners.</p>"]
     inp = d["detectors"]
     if not inp.ok:
         return _section("detectors", out + [_missing(inp.note)])
-    dets = inp.value.get("detectors")
+    doc = inp.value
+    dets = doc.get("detectors")
     if not isinstance(dets, list):
         return _section("detectors", out + [_missing("detectors.json has no 'detectors' list")])
+    if doc.get("notice"):
+        out.append(f'<p class="warn">{esc(doc["notice"], max_chars=2000)}</p>')
+    matching = doc.get("matching")
+    if isinstance(matching, dict):
+        parts = []
+        if matching.get("max_gap") is not None:
+            parts.append(f"at most {esc(matching['max_gap'])} other tokens between two steps")
+        if matching.get("max_window") is not None:
+            parts.append(f"the whole pattern within {esc(matching['max_window'])} tokens")
+        if matching.get("skip_pauses"):
+            parts.append("pause tokens not counted")
+        if parts:
+            out.append("<p>Matching: " + "; ".join(parts) + ".</p>")
     if not dets:
         return _section("detectors", out + ['<p class="note">No detector was exported.</p>'])
     indexed = [(i, x) for i, x in enumerate(dets) if isinstance(x, dict)]
-    indexed.sort(key=lambda t: (-_num(t[1].get("priority"), 0.0), t[0]))
+    indexed.sort(key=lambda t: (_num(t[1].get("priority"), math.inf), t[0]))
     for i, det in indexed:
         out.append(_detector_card(i, det, d["groups"]))
     return _section("detectors", out)
@@ -487,8 +602,10 @@ def section_method(d):
     add("Multiple-comparison correction", "correction",
         lambda v: esc(_CORRECTIONS.get(str(v).lower(), v)))
     add("Threshold on q", "alpha")
-    add("Permutations", "n_permutations")
-    add("Cross-validation folds (early prediction)", "cv_folds")
+    if str(lookup(summary, "correction") or "").lower().startswith("westfall"):
+        add("Permutations", "n_permutations")
+    add("Bootstrap resamples behind stability", "stability_resamples")
+    add("Cross-validation folds (early prediction)", "folds")
     items.append("<li><b>Patterns</b> were mined by prefix projection (PrefixSpan) and kept "
                  "when frequent in at least one group. <b>Transitions</b>: lag-1 counts with "
                  "adjusted residuals and Yule's Q. <b>Phases</b>: hidden Markov models with "
@@ -507,7 +624,7 @@ def section_method(d):
         out.append(_table(["package", "version"],
                           [[esc(k), esc(v)] for k, v in sorted(versions.items(), key=str)],
                           raw_cells=False))
-    config = summary.get("config")
+    config = config_of(summary)
     if config is not None:
         text = json.dumps(config, indent=2, sort_keys=True, ensure_ascii=False, default=str)
         out.append("<details><summary>Effective configuration</summary>"
@@ -576,6 +693,7 @@ def _pattern_card(rank, row, sup_cols, groups, alpha, excerpts, examples, max_ex
                                ("risk difference", "risk_difference", 2),
                                ("odds ratio", "odds_ratio", 2), ("Cohen's h", "cohens_h", 2),
                                ("Cliff's delta", "cliffs_delta", 2),
+                               ("Cramér's V", "cramers_v", 2), ("q (rates)", "q_rate", None),
                                ("stability", "stability", 2), ("length", "length", 0)]:
         if col in row.index:
             val = _fmt_p(row[col]) if digits is None else _fmt(row[col], digits)
@@ -613,12 +731,19 @@ def _excerpt(ex, groups):
 
 
 def _detector_card(i, det, groups):
-    tokens = det.get("pattern")
-    tokens = _split(tokens) if isinstance(tokens, str) else [str(t) for t in tokens or []]
+    tokens = det.get("tokens", det.get("pattern"))
+    if isinstance(tokens, str):
+        tokens = _split(tokens)
+    elif isinstance(tokens, list):
+        tokens = [str(t) for t in tokens]
+    else:
+        tokens = []
     direction = str(det.get("direction", "")).lower()
     badge = {"encourage": '<span class="badge enc">▲ encourage</span>',
              "discourage": '<span class="badge dis">▼ discourage</span>'}.get(
         direction, f'<span class="badge none">{esc(direction or "no direction")}</span>')
+    if det.get("enabled") is False:
+        badge += ' <span class="badge none">switched off</span>'
     name = det.get("id", det.get("name", f"detector {i + 1}"))
     out = ['<article class="card">', f"<h3>{badge} <code>{esc(name)}</code></h3>",
            f"<p>{_chips(tokens)}</p>"]
@@ -630,26 +755,59 @@ def _detector_card(i, det, groups):
     facts = []
     if det.get("priority") is not None:
         facts.append(f"<span>priority <b>{esc(det['priority'])}</b></span>")
+    if det.get("favours"):
+        facts.append(f"<span>more common among {_group_label(det['favours'], groups)}</span>")
+    absence = det.get("absence")
+    if isinstance(absence, dict):
+        when = []
+        if _is_num(absence.get("after_events")):
+            when.append(f"{_int(absence['after_events'])} events")
+        if _is_num(absence.get("after_seconds")):
+            when.append(_duration(absence["after_seconds"]))
+        if when:
+            facts.append("<span>also fires when the pattern has not occurred after "
+                         + " or ".join(when) + "</span>")
     for key in ("max_gap", "max_window"):
         if det.get(key) is not None:
             facts.append(f"<span>{key.replace('_', ' ')} <b>{esc(det[key])}</b></span>")
     if facts:
         out.append('<div class="stats">' + "".join(facts) + "</div>")
+    if det.get("notes"):
+        out.append(f"<p>Notes: {esc(det['notes'], max_chars=2000)}</p>")
     ev = det.get("evidence")
     if isinstance(ev, dict) and ev:
-        rows = [[esc(k), _evidence_value(k, v)] for k, v in ev.items()]
+        rows = [[esc(label), _evidence_value(key, v)] for label, key, v in _flatten(ev)]
         out.append(_table(["evidence", "value"], rows, raw_cells=False, num_cols=(1,)))
     out.append("</article>")
     return "\n".join(out)
 
 
+def _flatten(obj, prefix=(), depth=0):
+    """(label, last key, value) for every leaf of a nested evidence object."""
+    out = []
+    for k, v in obj.items():
+        path = (*prefix, str(k))
+        if isinstance(v, dict) and depth < 2:
+            out += _flatten(v, path, depth + 1)
+        else:
+            label = path[0].replace("_", " ") + (f" ({', '.join(path[1:])})" if len(path) > 1
+                                                 else "")
+            out.append((label, "/".join(path), v))
+    return out
+
+
 def _evidence_value(key, v):
     if isinstance(v, bool) or not _is_num(v):
+        if isinstance(v, float) and math.isnan(v) or v is None:
+            return "–"
         return esc(v if not isinstance(v, (dict, list)) else json.dumps(v, sort_keys=True))
+    head = key.split("/")[0]
     if "p_value" in key or "q_value" in key:
         return _fmt_p(v)
-    if key.startswith("support") or key.startswith("recall"):
+    if head.startswith(("support", "recall")) or key.startswith("support_"):
         return _pct(v)
+    if head == "n":
+        return _int(v)
     return _fmt(v, 3)
 
 
@@ -697,91 +855,107 @@ def _transition_table(sub, n=5):
                            kind="mergesort").head(n)
     lo = lo[lo["_k"] < 0]
     hi = hi[hi["_k"] > 0]
-    cols = [c for c in ("count", "expected", "adjusted_residual", "yules_q") if c in sub.columns]
+    cols = [c for c in ("count", "probability", "expected", "adjusted_residual", "yules_q",
+                        "q_difference") if c in sub.columns]
     rows = []
     for label, part in (("more often than expected", hi), ("less often than expected", lo)):
         for _, r in part.iterrows():
             rows.append([esc(label), f"{_chip(r['from'])}<span class=\"arrow\">→</span>"
-                         f"{_chip(r['to'])}"] + [_fmt(r[c], 0 if c == "count" else 2)
-                                                 for c in cols])
+                         f"{_chip(r['to'])}"] + [_transition_cell(c, r[c]) for c in cols])
     if not rows:
         return ""
-    heads = ["", "transition"] + [c.replace("_", " ") for c in cols]
+    heads = ["", "transition"] + [{"probability": "share of next steps",
+                                   "q_difference": "q (groups differ)",
+                                   "yules_q": "Yule's Q"}.get(c, c.replace("_", " "))
+                                  for c in cols]
     return _table(heads, rows, raw_cells=False, num_cols=tuple(range(2, len(heads))))
 
 
-def _state_selection(inp):
+def _transition_cell(col, value):
+    if col == "count":
+        return _fmt(value, 0)
+    if col == "probability":
+        return _pct(value)
+    if col == "q_difference":
+        return _fmt_p(value)
+    return _fmt(value, 2)
+
+
+def _state_selection(inp, used=None):
+    head = "<h3>Choosing the number of phases</h3>"
     if not inp.ok:
-        return f"<h3>Choosing the number of phases</h3>{_missing(inp.note)}"
+        return head + _missing(inp.note)
     df = inp.value
-    cols = [c for c in ("group", "n_states", "bic", "heldout_loglik", "chosen")
-            if c in df.columns]
+    cols = [c for c in ("model", "group", "n_states", "bic", "heldout_loglik") if c in df.columns]
+    marks = [c for c in ("best_bic", "best_heldout", "chosen") if c in df.columns]
     rows = []
     for _, r in df.iterrows():
         row = []
         for c in cols:
-            if c == "chosen":
-                row.append("✓ chosen" if str(r[c]).strip().lower() in ("true", "1", "yes")
-                           else "")
-            elif c == "group":
+            if c in ("model", "group"):
                 row.append(esc(r[c]))
             else:
-                row.append(_fmt(r[c], 0 if c == "n_states" else 2))
+                row.append(_fmt(r[c], 0 if c == "n_states" else 1))
+        notes = [{"best_bic": "lowest BIC", "best_heldout": "best held-out",
+                  "chosen": "chosen"}[c] for c in marks if _true(r[c])]
+        if _is_num(used) and _num(r.get("n_states")) == _num(used):
+            notes.append("used")
+        row.append(esc(", ".join(dict.fromkeys(notes))))
         rows.append(row)
     heads = [{"n_states": "phases", "heldout_loglik": "held-out log-likelihood",
-              "bic": "BIC"}.get(c, c) for c in cols]
+              "bic": "BIC"}.get(c, c) for c in cols] + [""]
     nums = tuple(i for i, c in enumerate(cols) if c in ("n_states", "bic", "heldout_loglik"))
-    return ("<h3>Choosing the number of phases</h3><p>Lower BIC and higher held-out "
-            "log-likelihood are better.</p>" + _table(heads, rows, raw_cells=False,
-                                                      num_cols=nums))
+    return (head + "<p>Each number of phases was fitted and scored: lower BIC and higher "
+            "held-out log-likelihood are better.</p>"
+            + _table(heads, rows, raw_cells=False, num_cols=nums))
 
 
 def _occupancy(inp, groups, figs):
-    head = "<h3>Time spent in each phase, by group</h3>"
+    head = ("<h3>Time spent in each phase, by group</h3><p>Each learner's sequence was "
+            "decoded with the pooled model; bars show the mean share of steps spent in each "
+            "phase. Cliff's delta and q come from a Mann–Whitney U test per phase.</p>")
     if not inp.ok:
         return head + _missing(inp.note)
     df = inp.value
-    if "state" not in df.columns:
-        return head + _missing("occupancy.csv has no 'state' column")
-    if {"group", "occupancy"} <= set(df.columns):
-        wide = df.pivot_table(index="state", columns="group", values="occupancy",
-                              aggfunc="first", sort=False)
-    else:
-        occ = [c for c in df.columns if c.startswith("occupancy_")]
-        if not occ:
-            return head + _missing("occupancy.csv needs 'group' and 'occupancy' columns")
-        wide = df.set_index("state")[occ].rename(columns=lambda c: c[len("occupancy_"):])
-    states = [str(s) for s in dict.fromkeys(df["state"])]
-    wide.index = wide.index.map(str)
-    cols = _ordered(wide.columns, groups)
-    out = [head, _plots.svg_occupancy(states, {str(g): wide.loc[states, g].to_numpy(float)
-                                               for g in cols}, fig_id=figs())]
-    extra = [c for c in ("p_value", "q_value") if c in df.columns]
+    need = [c for c in ("measure", "state", "group_a", "group_b", "mean_a", "mean_b")
+            if c not in df.columns]
+    if need:
+        return head + _missing(f"{inp.name} lacks column(s) " + ", ".join(need))
+    occ = df[df["measure"] == "occupancy"]
+    if occ.empty:
+        return head + _missing(f"{inp.name} has no 'occupancy' rows")
+    pairs = list(dict.fromkeys(zip(occ["group_a"], occ["group_b"])))
+    ga, gb = pairs[0]
+    sub = occ[(occ["group_a"] == ga) & (occ["group_b"] == gb)]
+    label = {}
+    for _, r in sub.iterrows():
+        name = str(r.get("state_name", "") or "")
+        label[str(r["state"])] = f"{r['state']} {name}".strip() if name != str(r["state"]) \
+            else str(r["state"])
+    states = list(dict.fromkeys(str(x) for x in sub["state"]))
+    first = {st: sub[sub["state"].astype(str) == st].iloc[0] for st in states}
+    means = {str(ga): [_num(first[st]["mean_a"]) for st in states],
+             str(gb): [_num(first[st]["mean_b"]) for st in states]}
+    out = [head, _plots.svg_occupancy([label[st] for st in states], means, fig_id=figs())]
+    extra = [c for c in ("cliffs_delta", "q_value", "favours") if c in sub.columns]
     rows = []
-    for s in states:
-        row = [esc(s)] + [_pct(wide.loc[s, g]) for g in cols]
-        if extra:
-            first = df[df["state"].astype(str) == s].iloc[0]
-            row += [_fmt_p(first[c]) for c in extra]
+    for st in states:
+        r = first[st]
+        row = [esc(label[st]), _pct(r["mean_a"]), _pct(r["mean_b"])]
+        for c in extra:
+            row.append(_fmt_p(r[c]) if c == "q_value" else
+                       _fmt(r[c], 2) if c == "cliffs_delta" else
+                       (_group_label(r[c], groups) if str(r[c]) else ""))
         rows.append(row)
-    heads = ["phase"] + [str(g) for g in cols] + [c.replace("_", " ") for c in extra]
-    out.append(_table(heads, rows, raw_cells=False, num_cols=tuple(range(1, len(heads)))))
+    heads = ["phase", str(ga), str(gb)] + [
+        {"cliffs_delta": "Cliff's delta", "q_value": "q", "favours": "favours"}[c]
+        for c in extra]
+    nums = (1, 2) + tuple(3 + i for i, c in enumerate(extra) if c != "favours")
+    out.append(_table(heads, rows, raw_cells=False, num_cols=nums))
+    if len(pairs) > 1:
+        out.append(f'<p class="note">{len(pairs) - 1} more pairs of groups in '
+                   f"{esc(inp.name)}.</p>")
     return "".join(out)
-
-
-def _first_above_chance(df, names):
-    if not {"balanced_accuracy_ci_low", "fraction"} <= set(df.columns):
-        return ""
-    parts = []
-    for name in names:
-        sub = df[(df["classifier"] == name) & (df["balanced_accuracy_ci_low"] > 0.5)]
-        if len(sub):
-            parts.append(f"<li>{esc(name)}: after {_pct(sub['fraction'].min())} of the "
-                         "sequence, the lower confidence bound of balanced accuracy is above "
-                         "chance.</li>")
-        else:
-            parts.append(f"<li>{esc(name)}: never clearly above chance.</li>")
-    return "<p>Earliest reliable recognition:</p><ul>" + "".join(parts) + "</ul>"
 
 
 def _group_table(counts, groups, title="Learners and sequences per group"):
@@ -826,9 +1000,15 @@ def _pause_bins(summary):
     pause = enc.get("pause") if isinstance(enc, dict) else None
     if not isinstance(pause, dict):
         pause = summary.get("pause") if isinstance(summary.get("pause"), dict) else None
-    if pause is None and ("pause_edges_seconds" in summary or "pause_labels" in summary):
-        pause = {"edges": summary.get("pause_edges_seconds") or [],
-                 "labels": summary.get("pause_labels") or []}
+    if "pause_edges_seconds" in summary or "pause_labels" in summary:
+        pause = dict(pause or {})
+        pause.setdefault("edges", summary.get("pause_edges_seconds") or [])
+        pause.setdefault("labels", summary.get("pause_labels") or [])
+    if pause is not None:
+        enc_cfg = (config_of(summary) or {}).get("encode")
+        if isinstance(enc_cfg, dict):
+            pause.setdefault("implicit", enc_cfg.get("implicit_pauses") or [])
+            pause.setdefault("strategy", enc_cfg.get("pause_strategy"))
     head = "<h3>Pause bins</h3>"
     if not pause:
         return head + _missing("pause bins not recorded in summary.json")
@@ -942,27 +1122,6 @@ def _top_patterns(df, alpha, n):
                           "value without correction for multiple testing.")
 
 
-def _state(s, k):
-    if not isinstance(s, dict):
-        s = {}
-    em = s.get("emissions", s.get("top_emissions", []))
-    pairs = []
-    if isinstance(em, dict):
-        pairs = list(em.items())
-    elif isinstance(em, list):
-        for e in em:
-            if isinstance(e, (list, tuple)) and len(e) >= 2:
-                pairs.append((e[0], e[1]))
-            elif isinstance(e, dict):
-                pairs.append((e.get("token", e.get("action", "?")),
-                              e.get("prob", e.get("p", e.get("probability")))))
-    pairs = [(str(t), _num(p)) for t, p in pairs if math.isfinite(_num(p))]
-    pairs.sort(key=lambda tp: (-tp[1], tp[0]))
-    dwell = _num(s.get("dwell"))
-    return {"name": str(s.get("name", f"phase {k + 1}")), "emissions": pairs,
-            "dwell": dwell if math.isfinite(dwell) else None}
-
-
 def _matrix(tm, n):
     try:
         a = np.asarray(tm, dtype=float)
@@ -1005,6 +1164,20 @@ def _metric_head(c):
     if c.startswith("recall_"):
         return f"recall {c[len('recall_'):]}"
     return {"roc_auc": "ROC AUC", "balanced_accuracy": "balanced accuracy"}.get(c, c)
+
+
+def _plural(n, word):
+    return f"{_int(n)} {word}" + ("" if n == 1 else "s")
+
+
+def _true(v):
+    return v is True or str(v).strip().lower() in ("true", "1", "yes")
+
+
+def _str_list(v, n):
+    if isinstance(v, list) and len(v) == n:
+        return [str(x) for x in v]
+    return None
 
 
 def _is_num(v):

@@ -34,6 +34,7 @@ __all__ = [
     "REJECT_COLUMNS",
     "PATTERN_COLUMNS",
     "TRANSITION_COLUMNS",
+    "PHASES_SUMMARY_KEYS",
     "PHASE_MODEL_KEYS",
     "STATE_SELECTION_COLUMNS",
     "OCCUPANCY_COLUMNS",
@@ -52,21 +53,24 @@ OUTPUT_FILES = {
     "patterns": "patterns.csv",
     "transitions": "transitions.csv",
     "phases": "phases",
+    "phases_summary": "phases/phases.json",
     "state_selection": "phases/state_selection.csv",
-    "occupancy": "phases/occupancy.csv",
+    "occupancy": "phases/occupancy_comparison.csv",
     "early_prediction": "early_prediction.csv",
     "detectors": "detectors.json",
     "examples": "examples.json",
 }
 
-#: Keys of ``summary.json`` the report reads (all optional; dotted = nested).
+#: Keys of ``summary.json`` the report reads (all optional; dotted = nested). Counts
+#: may also sit at the top level instead of under ``counts``.
 SUMMARY_KEYS = {
     "seqmine_version": "version of seqmine that wrote the folder (else versions.seqmine)",
     "seed": "random seed of the run",
-    "groups": "list of outcome group names in display order, e.g. ['strong', 'weak']",
+    "group_names": "outcome group names in display order (also accepted: groups)",
     "counts.rows_in": "event rows read from the input file",
     "counts.rows_kept": "event rows used",
     "counts.rows_rejected": "event rows rejected (listed in rejects.csv)",
+    "counts.rejects_by_reason": "{reason: rows}",
     "counts.learners": "learners with at least one kept event",
     "counts.learners_per_group": "{group: learners}",
     "counts.learners_without_group": "learners with events but no outcome group",
@@ -76,23 +80,24 @@ SUMMARY_KEYS = {
     "counts.patterns_significant": "patterns whose q value is at or below alpha",
     "gain_by_group": "{group: {n, min, q1, median, q3, max}} or {group: [values]}",
     "sequence_lengths": "{group: {n, min, q1, median, q3, max}} or {group: [values]} (tokens)",
-    "encoding.unit": "'learner' or 'session'",
+    "pause_edges_seconds": "pause bin edges in seconds, ascending (or encoding.pause.edges)",
+    "pause_labels": "pause bin labels, one more than edges (or encoding.pause.labels)",
     "encoding.pause.strategy": "how pause bins were chosen",
-    "encoding.pause.edges": "bin edges in seconds, ascending",
-    "encoding.pause.labels": "bin labels, one more than edges",
     "encoding.pause.implicit": "labels not written as tokens",
-    "method.grouping": "how learners were split into groups (text)",
-    "method.presence_test": "test on pattern presence (text), e.g. Fisher's exact test",
-    "method.rate_test": "test on per-sequence rates (text), e.g. Mann-Whitney U",
+    "encoding.unit": "'learner' or 'session'",
+    "grouping": "how learners were split: text or {rule, cut points}",
+    "method.presence_test": "test on pattern presence (text)",
+    "method.rate_test": "test on per-sequence rates (text)",
     "method.correction": "'bh', 'holm' or 'westfall-young'",
     "method.alpha": "threshold on q values",
     "method.n_permutations": "permutations for Westfall-Young",
+    "method.stability_resamples": "bootstrap resamples behind stability",
     "method.min_support": "minimum support in at least one group",
     "method.max_length": "longest pattern mined",
     "method.max_gap": "largest gap (tokens) between pattern items",
-    "method.cv_folds": "learner-level cross-validation folds of early prediction",
+    "method.folds": "learner-level cross-validation folds of early prediction",
     "pseudonymized": "true when learner identifiers were replaced by keyed hashes",
-    "config": "effective configuration (shown verbatim)",
+    "configuration": "effective configuration, shown verbatim (also accepted: config)",
     "versions": "{package: version}",
 }
 
@@ -110,8 +115,11 @@ PATTERN_COLUMNS = {
     "risk_difference": "support in the first group minus support in the second",
     "odds_ratio": "odds of presence, first group over second",
     "cohens_h": "Cohen's h between the two supports",
-    "cliffs_delta": "Cliff's delta of per-sequence instance counts",
-    "stability": "share of resamples in which the pattern was again significant (0-1)",
+    "cliffs_delta": "Cliff's delta of per-sequence rates",
+    "cramers_v": "Cramer's V (more than two groups)",
+    "q_rate": "corrected p value of the rate test",
+    "stability": "share of bootstrap resamples with p <= alpha in the same direction (0-1)",
+    "redundant_of": "kept pattern this one nearly duplicates, else empty",
 }
 
 #: Columns of ``transitions.csv``.
@@ -120,63 +128,84 @@ TRANSITION_COLUMNS = {
     "from": "token",
     "to": "next token",
     "count": "observed transitions",
-    "expected": "expected count under independence",
+    "probability": "share of the transitions out of 'from' that go to 'to'",
+    "expected": "expected count under (quasi-)independence",
     "adjusted_residual": "adjusted residual (z-like; |value| > 1.96 is notable)",
     "yules_q": "Yule's Q of the 2x2 table of the transition (-1..1)",
+    "q_difference": "corrected p value of the difference between groups",
 }
 
-#: Keys of each phase model ``phases/*.json`` (a JSON object with ``states``).
+#: Keys of ``phases/phases.json`` (which model file belongs to which group).
+PHASES_SUMMARY_KEYS = {
+    "models": "{'pooled' or group: model file name without .json}",
+    "n_states": "state count used for every model",
+    "criterion": "how the state count was chosen",
+}
+
+#: Keys of each phase model ``phases/model_*.json``.
 PHASE_MODEL_KEYS = {
-    "group": "group the model was fitted on, or 'pooled'",
-    "n_states": "number of states",
-    "states": "list of {name, emissions: [[token, prob], ...] most likely first, dwell}",
-    "states[].dwell": "expected consecutive steps in the state, 1 / (1 - a_ii)",
-    "transmat": "transition matrix, list of rows (row = from state)",
+    "label": "model label (group name or 'pooled')",
+    "vocab": "tokens, in the column order of emissionprob",
     "startprob": "initial state probabilities",
+    "transmat": "transition matrix, list of rows (row = from state)",
+    "emissionprob": "emission probabilities, one row per state over vocab",
+    "state_labels": "short state labels (S1, S2, ...)",
+    "state_names": "readable state names",
 }
 
 #: Columns of ``phases/state_selection.csv``.
 STATE_SELECTION_COLUMNS = {
-    "group": "group or 'pooled'",
+    "model": "model the state counts were tried on",
     "n_states": "number of states tried",
     "bic": "Bayesian information criterion (lower is better)",
-    "heldout_loglik": "held-out log-likelihood per token (higher is better)",
-    "chosen": "true for the state count kept",
+    "heldout_loglik": "held-out log-likelihood (higher is better)",
+    "best_bic": "true for the count with the lowest BIC",
+    "best_heldout": "true for the count with the best held-out log-likelihood",
 }
 
-#: Columns of ``phases/occupancy.csv`` (tidy form; a wide form with
-#: ``occupancy_<group>`` columns is accepted too).
+#: Columns of ``phases/occupancy_comparison.csv`` read by the report.
 OCCUPANCY_COLUMNS = {
-    "state": "state name (as in the pooled model)",
-    "group": "group",
-    "occupancy": "share of the group's time steps decoded into the state (0-1)",
-    "p_value": "optional test of the difference between groups",
-    "q_value": "optional corrected p value",
+    "measure": "'occupancy', 'mean_dwell' or 'transition_rate'",
+    "state": "state label",
+    "state_name": "state name",
+    "group_a": "first group of the pair",
+    "group_b": "second group of the pair",
+    "mean_a": "mean per-sequence value in group_a",
+    "mean_b": "mean per-sequence value in group_b",
+    "cliffs_delta": "Cliff's delta (positive when group_a tends higher)",
+    "q_value": "Benjamini-Hochberg q value",
+    "favours": "group with the higher values when significant, else empty",
 }
 
 #: Columns of ``early_prediction.csv``.
 PREDICTION_COLUMNS = {
-    "classifier": "name of the classifier",
+    "classifier": "name of the classifier ('majority' = the baseline)",
     "fraction": "share of each sequence observed (0-1]",
+    "n_learners": "held-out learners",
     "accuracy": "accuracy over held-out learners",
     "balanced_accuracy": "mean of per-group recalls",
     "recall_<group>": "share of the group's learners recognised",
     "roc_auc": "area under the ROC curve",
-    "accuracy_ci_low": "lower confidence bound of accuracy",
-    "accuracy_ci_high": "upper confidence bound of accuracy",
-    "balanced_accuracy_ci_low": "lower confidence bound of balanced accuracy",
-    "balanced_accuracy_ci_high": "upper confidence bound of balanced accuracy",
-    "baseline": "accuracy of always predicting the majority group",
+    "<metric>_low": "lower bootstrap bound of each metric",
+    "<metric>_high": "upper bootstrap bound of each metric",
+    "baseline_accuracy": "accuracy of always predicting the majority group",
+    "beats_baseline": "true when the classifier beats the baseline (one-sided test)",
 }
 
-#: Keys of ``detectors.json``: ``{"detectors": [...]}``, each detector an object.
+#: Keys of ``detectors.json``: top level and each entry of ``detectors``.
 DETECTOR_KEYS = {
+    "notice": "caution text of the file",
+    "matching": "{max_gap, max_window, skip_pauses} used by every detector",
     "id": "identifier of the detector",
-    "pattern": "list of tokens (or a string joined by ' > ')",
+    "tokens": "list of tokens (also accepted: pattern, a list or ' > ' string)",
     "direction": "'encourage' or 'discourage'",
+    "favours": "group the pattern is more common in",
     "hint": "hint text shown to learners when it fires (user-editable)",
-    "priority": "number; higher first",
-    "evidence": "object of evidence values (e.g. q_value, support_<group>, stability)",
+    "priority": "number; smaller is delivered first (1 = most important)",
+    "enabled": "false to switch a detector off",
+    "absence": "{after_events, after_seconds}: encourage detectors fire when absent",
+    "evidence": "object of evidence values (support, n, p_value, q_value, effects, stability)",
+    "notes": "free text for reviewers",
 }
 
 #: Keys of ``examples.json``: ``{"patterns": {pattern: [excerpt, ...]}}``.
@@ -264,23 +293,31 @@ def _read_all(folder):
     d["rejects"] = _read_csv(folder, OUTPUT_FILES["rejects"], numeric=("source_row",))
     d["patterns"] = _read_csv(
         folder, OUTPUT_FILES["patterns"],
-        numeric=("length", "p_value", "q_value", "risk_difference", "odds_ratio", "cohens_h",
-                 "cliffs_delta", "stability"), numeric_prefix=("support_",))
-    d["transitions"] = _read_csv(folder, OUTPUT_FILES["transitions"],
-                                 numeric=("count", "expected", "adjusted_residual", "yules_q"))
-    d["state_selection"] = _read_csv(folder, OUTPUT_FILES["state_selection"],
-                                     numeric=("n_states", "bic", "heldout_loglik"))
-    d["occupancy"] = _read_csv(folder, OUTPUT_FILES["occupancy"],
-                               numeric=("occupancy", "p_value", "q_value"),
-                               numeric_prefix=("occupancy_",))
+        numeric=("length", "p_value", "q_value", "risk_difference", "odds_ratio",
+                 "log_odds_ratio", "growth_rate", "cohens_h", "cliffs_delta", "p_rate",
+                 "q_rate", "chi2", "cramers_v", "kruskal_h", "stability"),
+        numeric_prefix=("support_", "rate_"))
+    d["transitions"] = _read_csv(
+        folder, OUTPUT_FILES["transitions"],
+        numeric=("count", "from_total", "to_total", "total", "expected", "probability",
+                 "adjusted_residual", "yules_q", "p_difference", "q_difference"))
+    d["phases_summary"] = _read_json(folder, OUTPUT_FILES["phases_summary"], dict)
+    d["state_selection"] = _read_csv(
+        folder, OUTPUT_FILES["state_selection"],
+        numeric=("n_states", "n_parameters", "n_observations", "log_likelihood", "bic",
+                 "heldout_loglik", "heldout_loglik_per_token"))
+    d["occupancy"] = _read_csv(
+        folder, OUTPUT_FILES["occupancy"],
+        numeric=("n_a", "n_b", "mean_a", "mean_b", "median_a", "median_b", "u_statistic",
+                 "cliffs_delta", "p_value", "q_value"))
     d["early_prediction"] = _read_csv(
         folder, OUTPUT_FILES["early_prediction"],
-        numeric=("fraction", "accuracy", "balanced_accuracy", "roc_auc", "baseline",
-                 "accuracy_ci_low", "accuracy_ci_high", "balanced_accuracy_ci_low",
-                 "balanced_accuracy_ci_high"), numeric_prefix=("recall_",))
+        numeric=("fraction", "n_learners", "baseline_accuracy", "baseline",
+                 "n_only_classifier_right", "n_only_baseline_right", "p_value"),
+        numeric_prefix=("accuracy", "balanced_accuracy", "recall_", "roc_auc"))
     d["detectors"] = _read_json(folder, OUTPUT_FILES["detectors"], dict)
     d["examples"] = _read_json(folder, OUTPUT_FILES["examples"], dict)
-    d["models"], d["graphml"], d["models_note"] = _read_models(folder)
+    d["models"], d["graphml"], d["models_note"] = _read_models(folder, d["phases_summary"])
     summary = d["summary"].value or {}
     d["groups"] = _group_names(summary, d)
     d["alpha"] = _alpha(summary)
@@ -316,20 +353,31 @@ def _read_csv(folder, name, numeric=(), numeric_prefix=()):
     return _Input(name, df)
 
 
-def _read_models(folder):
+def _read_models(folder, phases_summary):
+    """Phase models as ``[{"group", "file", "states", "transmat"}]``, GraphML names, note."""
     pdir = folder / OUTPUT_FILES["phases"]
     if not pdir.is_dir():
         return [], [], "phases/ not found"
+    mapping = (phases_summary.value or {}).get("models")
+    if isinstance(mapping, dict) and mapping:
+        files = [(str(k), f"{v}.json") for k, v in mapping.items() if isinstance(v, str)]
+    else:
+        files = [(None, p.name) for p in sorted(pdir.glob("model_*.json"))]
     models = []
-    for path in sorted(pdir.glob("*.json")):
-        inp = _read_json(pdir, path.name, dict)
-        if inp.ok and isinstance(inp.value.get("states"), list):
-            m = dict(inp.value)
-            m.setdefault("group", path.stem)
-            m["_file"] = f"phases/{path.name}"
-            models.append(m)
+    for key, name in files:
+        if "/" in name or "\\" in name or name.startswith("."):
+            continue  # only files directly inside phases/
+        inp = _read_json(pdir, name, dict)
+        if not inp.ok:
+            continue
+        model = sec.phase_model(inp.value)
+        if model is None:
+            continue
+        model["group"] = key if key is not None else str(inp.value.get("label", name))
+        model["file"] = f"phases/{name}"
+        models.append(model)
     graphml = sorted(p.name for p in pdir.glob("*.graphml"))
-    return models, graphml, None if models else "no phase model (phases/*.json with 'states')"
+    return models, graphml, None if models else "no phase model (phases/model_*.json)"
 
 
 def _group_names(summary, d):
