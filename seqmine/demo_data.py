@@ -323,7 +323,12 @@ def write_greenhouse(folder, n_learners=300, *, seed=20261202, events_per_learne
     data = generate_greenhouse(n_learners, seed=seed, events_per_learner=events_per_learner,
                                start=start, sessions=sessions)
     folder = Path(folder)
-    folder.mkdir(parents=True, exist_ok=True)
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise DataFileError(
+            f"{folder}: cannot create the output folder ({exc.strerror or exc}); choose "
+            "another folder.") from None
     ev_path = folder / f"events.{events_format}"
     _write_events(data.events, ev_path, events_format)
     out_path = folder / OUTCOMES_FILE

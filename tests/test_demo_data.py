@@ -482,3 +482,10 @@ def test_ground_truth_is_a_private_copy():
     assert b.ground_truth["generator"]["parameters"]["score_max"] == 20
     assert b.ground_truth["generator"]["parameters"]["gain_coefficients"]["decorating"] < 0
     assert (b.outcomes["max"] == 20).all()
+
+
+def test_output_folder_that_is_a_file(tmp_path):
+    blocker = tmp_path / "taken"
+    blocker.write_text("x", encoding="utf-8")
+    with pytest.raises(DataFileError, match=r"taken: cannot create the output folder"):
+        write_greenhouse(blocker, 3)
