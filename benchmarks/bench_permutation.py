@@ -2,7 +2,8 @@
 
 Run from the repository root::
 
-    python benchmarks/bench_permutation.py            # 10,000 learners x 10,000 patterns x 1,000 permutations
+    python benchmarks/bench_permutation.py          # 10,000 learners x 10,000 patterns
+                                                    # x 1,000 permutations
     python benchmarks/bench_permutation.py --quick    # 2,000 x 2,000 x 200, a few seconds
 
 Both methods run in the same process on the same data: the vectorised test on the
@@ -85,7 +86,8 @@ def main(argv=None):
     parser.add_argument("--seed", type=int, default=0)
     parser.add_argument("--skip-contrast", action="store_true",
                         help="time only the permutation test, not the whole contrast table")
-    parser.add_argument("--out", default=str(Path(__file__).parent / "results" / "permutation.json"))
+    parser.add_argument("--out",
+                        default=str(Path(__file__).parent / "results" / "permutation.json"))
     args = parser.parse_args(argv)
     set_quiet(True)
     n = args.learners or (2_000 if args.quick else 10_000)

@@ -6,6 +6,8 @@ import numpy as np
 import pandas as pd
 import pytest
 import scipy.sparse as sp
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy import stats
 
 from seqmine._permutation import bootstrap_significance, westfall_young_minp
@@ -39,7 +41,8 @@ def brute_patternset(db, patterns):
     """PatternSet of the given token-name patterns counted by brute force on db."""
     ids = [tuple(db.vocab.index(t) for t in p) for p in patterns]
     counts = np.array([[_instances(db.sequence(i).tolist(), p) for p in ids]
-                       for i in range(db.n_sequences)], dtype=np.int64).reshape(db.n_sequences, len(ids))
+                       for i in range(db.n_sequences)], dtype=np.int64)
+    counts = counts.reshape(db.n_sequences, len(ids))
     sup = np.stack([(counts[db.groups == g] > 0).sum(axis=0) for g in range(db.n_groups)], axis=1)
     return PatternSet(patterns=ids, vocab=db.vocab, is_pause=db.is_pause,
                       group_names=db.group_names, group_sizes=db.group_sizes(),
@@ -434,3 +437,26 @@ def test_ungrouped_sequences_are_left_out():
     sub = db.subset(np.arange(6, 40))
     df = contrast(brute_patternset(sub, PATTERNS), sub, stability_resamples=0, redundancy=None)
     pd.testing.assert_frame_equal(df, df2, check_like=False)
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.integers(0, 10_000), st.sampled_from([0.5, 0.75, 0.9, 1.0]))
+def test_prune_matches_brute_force_greedy(seed, threshold):
+    # Brute force: visit patterns in priority order; redundant when some earlier kept
+    # pattern has Jaccard >= threshold; point to the earliest such pattern.
+    rng = np.random.default_rng(seed)
+    base = rng.random((15, 5)) < 0.5
+    flips = rng.random((15, 12)) < 0.08
+    pres = base[:, rng.integers(0, 5, 12)] ^ flips
+    order = rng.permutation(12)
+    got = prune_redundant(sp.csr_matrix(pres.astype(int)), order, threshold)
+    kept, ref = [], np.full(12, -1)
+    for j in order:
+        for i in kept:
+            union = (pres[:, i] | pres[:, j]).sum()
+            if union and (pres[:, i] & pres[:, j]).sum() / union >= threshold:
+                ref[j] = i
+                break
+        else:
+            kept.append(j)
+    np.testing.assert_array_equal(got, ref)

@@ -39,7 +39,8 @@ def brute_patternset(db, patterns):
     """PatternSet of the given token-name patterns counted by brute force on db."""
     ids = [tuple(db.vocab.index(t) for t in p) for p in patterns]
     counts = np.array([[_instances(db.sequence(i).tolist(), p) for p in ids]
-                       for i in range(db.n_sequences)], dtype=np.int64).reshape(db.n_sequences, len(ids))
+                       for i in range(db.n_sequences)], dtype=np.int64)
+    counts = counts.reshape(db.n_sequences, len(ids))
     sup = np.stack([(counts[db.groups == g] > 0).sum(axis=0) for g in range(db.n_groups)], axis=1)
     return PatternSet(patterns=ids, vocab=db.vocab, is_pause=db.is_pause,
                       group_names=db.group_names, group_sizes=db.group_sizes(),
