@@ -460,3 +460,59 @@ def test_prune_matches_brute_force_greedy(seed, threshold):
         else:
             kept.append(j)
     np.testing.assert_array_equal(got, ref)
+
+
+# ------------------------------------------------------------ learner as unit
+def _session_db():
+    rng = np.random.default_rng(21)
+    seqs, groups, learners = [], [], []
+    for k in range(24):
+        g = ["strong", "weak"][k % 2]
+        for _ in range(int(rng.integers(1, 4))):
+            p = np.ones(len(ACTIONS))
+            p[3] += 2.0 if g == "strong" else 0.0
+            seqs.append(list(rng.choice(ACTIONS, size=int(rng.integers(3, 9)), p=p / p.sum())))
+            groups.append(g)
+            learners.append(f"learner{k:02d}")
+    return SequenceDB.from_lists(seqs, groups=groups, group_names=["strong", "weak"],
+                                 learners=learners, pause_tokens=["pause:long"], vocab=ACTIONS)
+
+
+def test_learner_unit_merges_sessions():
+    db = _session_db()
+    ps = brute_patternset(db, PATTERNS)
+    with pytest.warns(SeqmineWarning, match="Some learners have several sequences"):
+        contrast(ps, db, stability_resamples=0)
+    got = contrast(ps, db, unit="learner", stability_resamples=20, correction="westfall-young",
+                   n_permutations=50)
+    # reference: merge by hand, loop over learners
+    names = list(dict.fromkeys(db.learners))
+    counts = ps.counts.toarray()
+    merged = np.array([counts[db.learners == n].sum(axis=0) for n in names])
+    lengths = np.array([db.lengths[db.learners == n].sum() for n in names])
+    lgroups = np.array([db.groups[db.learners == n][0] for n in names])
+    sup = np.stack([(merged[lgroups == g] > 0).sum(axis=0) for g in range(2)], axis=1)
+    ref_ps = PatternSet(patterns=ps.patterns, vocab=ps.vocab, is_pause=ps.is_pause,
+                        group_names=ps.group_names, group_sizes=np.bincount(lgroups),
+                        support_counts=sup, counts=sp.csr_matrix(merged), seq_groups=lgroups)
+    ref = contrast(ref_ps, lengths=lengths, stability_resamples=20,
+                   correction="westfall-young", n_permutations=50)
+    ref.attrs, got.attrs = {}, {}
+    pd.testing.assert_frame_equal(got, ref)
+    assert ((got["support_strong"] * 12) % 1 == 0).all()  # shares of 12 learners
+
+
+def test_learner_unit_errors():
+    db = _session_db()
+    ps = brute_patternset(db, PATTERNS[:2])
+    with pytest.raises(ParameterError, match="unit='learner' of contrast needs db="):
+        contrast(ps, unit="learner")
+    groups = db.groups.copy()
+    groups[1] = 1 - groups[1]  # one session of a learner moves to the other group
+    db2 = db.with_groups(groups, db.group_names)
+    ps2 = brute_patternset(db2, PATTERNS[:2])
+    bad = db2.learners[1]
+    with pytest.raises(ParameterError, match=f"Learner '{bad}' has sequences in different"):
+        contrast(ps2, db2, unit="learner")
+    with pytest.raises(ParameterError, match="'unit' parameter of contrast must be one of"):
+        contrast(ps, db, unit="session")
