@@ -68,7 +68,7 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
     correction : {"bh", "holm", "westfall-young"}
         Multiple-comparison control of ``q_value``: Benjamini-Hochberg FDR, Holm
         FWER, or the Westfall-Young step-down min-P permutation FWER (labels permuted
-        across sequences; see :func:`seqmine._permutation.westfall_young_minp`).
+        across sequences; see :func:`seqmine.multitest.westfall_young_minp`).
     alpha : float
         Level: ``favours`` is filled when ``q_value <= alpha``; also the nominal
         level of the stability resamples.
