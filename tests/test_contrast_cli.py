@@ -167,3 +167,23 @@ def test_three_groups_pairwise_file(tmp_path):
     assert rc == 0
     assert "chi2" in pd.read_csv(tmp_path / "p.csv").columns
     assert len(pd.read_csv(tmp_path / "pw.csv")) == 3 * len(PATTERNS)
+
+
+def test_permutation_benchmark_runs_in_tiny_mode(tmp_path):
+    # Smoke test so the benchmark script does not rot (timings are not checked).
+    import importlib.util
+    from pathlib import Path
+
+    path = Path(__file__).resolve().parents[1] / "benchmarks" / "bench_permutation.py"
+    spec = importlib.util.spec_from_file_location("bench_permutation", path)
+    bench = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(bench)
+    out = tmp_path / "perm.json"
+    was_quiet = is_quiet()
+    try:
+        assert bench.main(["--learners", "120", "--patterns", "50", "--permutations", "20",
+                           "--out", str(out)]) == 0
+    finally:
+        set_quiet(was_quiet)
+    result = json.loads(out.read_text())
+    assert result["patterns"] == 50 and result["speedup_vs_naive"] > 0
