@@ -160,7 +160,7 @@ def bootstrap_significance(presence, labels, direction, *, n_resamples=100, alph
     done = 0
     while done < n_resamples:
         nb = min(batch, n_resamples - done)
-        w = np.zeros((n_groups, n, nb), dtype=np.float32)
+        w = np.zeros((n_groups, n, nb), dtype=pt.dtype)
         for b in range(nb):
             for g, mem in enumerate(members):
                 w[g, :, b] = np.bincount(rng.choice(mem, size=len(mem), replace=True),
@@ -193,7 +193,9 @@ def _prepare(presence, labels):
     sizes = np.bincount(labels, minlength=n_groups).astype(np.int64)
     if n_groups < 2 or np.any(sizes == 0):
         raise ParameterError("Permutation and bootstrap tests need at least two non-empty groups.")
-    pt = (presence > 0).astype(np.float32).T.tocsr()
+    # float32 products count exactly up to 2**24 sequences; beyond that use float64
+    dtype = np.float32 if presence.shape[0] < 2 ** 24 else np.float64
+    pt = (presence > 0).astype(dtype).T.tocsr()
     return pt, sizes
 
 
@@ -203,7 +205,7 @@ def _group_counts(pt, labels2d, n_groups):
     out = np.empty((n_groups, pt.shape[0], labels2d.shape[1]))
     rest = np.zeros((pt.shape[0], labels2d.shape[1]))
     for g in range(n_groups - 1):
-        ind = (labels2d == g).astype(np.float32)
+        ind = (labels2d == g).astype(pt.dtype)
         out[g] = np.rint(pt @ ind)
         rest += out[g]
     out[n_groups - 1] = total[:, None] - rest
