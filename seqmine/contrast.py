@@ -18,7 +18,7 @@ from ._effects import (
     mannwhitney_sparse,
     odds_ratio_haldane,
 )
-from ._permutation import bootstrap_significance, westfall_young_minp
+from ._permutation import bootstrap_significance, westfall_young_minp, westfall_young_rates
 from ._redundancy import prune_redundant
 from ._validation import check_choice, check_fraction, check_int
 from .errors import ParameterError, SeqmineWarning
@@ -115,9 +115,9 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
         cell (Haldane-Anscombe); ``log_odds_ratio``; ``growth_rate`` support A /
         support B (inf when B is 0); ``cohens_h``; ``cliffs_delta`` on rates,
         P(rate A > rate B) - P(rate A < rate B); ``p_rate`` two-sided Mann-Whitney
-        U on rates; ``q_rate`` ``p_rate`` adjusted by BH when ``correction``
-        is "bh", by Holm otherwise (the permutation adjustment covers the presence
-        test only); ``stability``; ``redundant_of``
+        U on rates; ``q_rate`` ``p_rate`` adjusted by ``correction`` (for
+        "westfall-young" the same permutations applied to the rank test, with the
+        normal-approximation p-value as statistic); ``stability``; ``redundant_of``
         the kept pattern whose supporting sequences nearly coincide (``""`` if none).
 
         For more than two groups the effect-size columns are replaced by ``chi2``
@@ -214,7 +214,11 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
                                    batch_size=batch_size)
     else:
         q = adjust_pvalues(p, correction)
-    q_rate = adjust_pvalues(stats["p_rate"], "bh" if correction == "bh" else "holm")
+    if correction == "westfall-young":
+        _, q_rate = westfall_young_rates(rates, labels, n_permutations=n_permutations,
+                                         seed=seed, batch_size=batch_size)
+    else:
+        q_rate = adjust_pvalues(stats["p_rate"], correction)
 
     if len(names) == 2:
         sup = np.stack([stats["support_a"], stats["support_b"]])

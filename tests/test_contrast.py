@@ -516,3 +516,39 @@ def test_learner_unit_errors():
         contrast(ps2, db2, unit="learner")
     with pytest.raises(ParameterError, match="'unit' parameter of contrast must be one of"):
         contrast(ps, db, unit="session")
+
+
+@pytest.mark.parametrize("n_groups", [2, 3])
+def test_westfall_young_rates_equals_brute_force_loop(n_groups):
+    # Direct loops with scipy.stats.mannwhitneyu(method="asymptotic") / scipy.stats.kruskal
+    # per pattern and permutation, replaying the documented permutation stream.
+    from seqmine._permutation import westfall_young_rates
+
+    ps = random_patternset(n_seq=30, n_pat=6, seed=5, effect={0: 0.5}, n_groups=n_groups)
+    rates = sequence_rates(ps, np.arange(30) % 7 + 3)
+    dense = rates.toarray()
+    labels = ps.seq_groups
+    raw, adj = westfall_young_rates(rates, labels, n_permutations=40, seed=8, batch_size=9)
+
+    def pvals(lab):
+        if n_groups == 2:
+            return np.array([stats.mannwhitneyu(dense[lab == 0, j], dense[lab == 1, j],
+                                                method="asymptotic").pvalue for j in range(6)])
+        return np.array([stats.kruskal(*[dense[lab == g, j] for g in range(3)]).pvalue
+                         for j in range(6)])
+
+    ref_raw = pvals(labels)
+    order = np.argsort(ref_raw, kind="stable")
+    rng = np.random.default_rng(8)
+    exceed = np.zeros(6)
+    for _ in range(40):
+        q = np.minimum.accumulate(pvals(rng.permutation(labels))[order][::-1])[::-1]
+        exceed += q <= ref_raw[order] * (1 + 1e-7)
+    ref_adj = np.empty(6)
+    ref_adj[order] = np.maximum.accumulate((exceed + 1) / 41)
+    np.testing.assert_allclose(raw, ref_raw, rtol=1e-10)
+    np.testing.assert_allclose(adj, ref_adj, atol=1e-12)
+    table = contrast(ps, lengths=np.arange(30) % 7 + 3, correction="westfall-young",
+                     n_permutations=40, seed=8, stability_resamples=0, redundancy=None)
+    np.testing.assert_allclose(table.set_index("pattern").loc[[f"t{j}" for j in range(6)],
+                                                              "q_rate"], ref_adj, atol=1e-12)
