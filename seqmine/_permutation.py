@@ -148,11 +148,13 @@ def westfall_young_rates(rates, labels, *, n_permutations=1000, seed=0, batch_si
     n = len(labels)
     n_groups = len(sizes)
 
-    def rank_sums(lab2d):
-        out = np.empty((n_groups, m, lab2d.shape[1]))
-        for g in range(n_groups):
-            ind = (lab2d == g).astype(np.float64)
-            out[g] = rt @ ind + (sizes[g] - nzt @ ind) * zero_rank[:, None]
+    both = sp.vstack([rt, nzt]).tocsr()
+
+    def rank_sums(lab2d, groups):
+        out = np.empty((len(groups), m, lab2d.shape[1]))
+        for k, g in enumerate(groups):
+            prod = both @ (lab2d == g).astype(np.float64)
+            out[k] = prod[:m] + (sizes[g] - prod[m:]) * zero_rank[:, None]
         return out
 
     if n_groups == 2:
@@ -161,7 +163,7 @@ def westfall_young_rates(rates, labels, *, n_permutations=1000, seed=0, batch_si
         s = np.sqrt(n1 * n2 / 12 * ((n + 1) - tie_term / (n * (n - 1))))[:, None]
 
         def pfunc(lab2d):
-            u1 = rank_sums(lab2d)[0] - n1 * (n1 + 1) / 2.0
+            u1 = rank_sums(lab2d, [0])[0] - n1 * (n1 + 1) / 2.0
             u = np.maximum(u1, n1 * n2 - u1)
             with np.errstate(divide="ignore", invalid="ignore"):
                 z = (u - mu - 0.5) / s
@@ -170,7 +172,7 @@ def westfall_young_rates(rates, labels, *, n_permutations=1000, seed=0, batch_si
         ties = (1.0 - tie_term / (float(n) ** 3 - n))[:, None]
 
         def pfunc(lab2d):
-            rs = rank_sums(lab2d)
+            rs = rank_sums(lab2d, range(n_groups))
             ssbn = (rs * rs / sizes[:, None, None]).sum(axis=0)
             h = 12.0 / (n * (n + 1)) * ssbn - 3 * (n + 1)
             with np.errstate(divide="ignore", invalid="ignore"):
