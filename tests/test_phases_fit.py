@@ -138,13 +138,7 @@ def test_em_improves_on_its_start():
     db = _sample_db(n=10, length=30)
     X, lengths = db.tokens.astype(np.int64), db.lengths
     seed = 11
-    rng = np.random.default_rng(seed)  # same draws as fit_restart's start
-    freq = np.bincount(X, minlength=6) + 1e-3
-    freq = freq / freq.sum()
-    start = rng.dirichlet(np.ones(3))
-    trans = rng.dirichlet(np.ones(3), size=3)
-    emis = 0.5 * rng.dirichlet(np.ones(6), size=3) + 0.5 * freq
-    emis /= emis.sum(axis=1, keepdims=True)
+    start, trans, emis = _hmm.start_point(X, 3, 6, seed)  # fit_restart's start
     ll0 = _hmm.forward_loglik(start, trans, emis, X, lengths).sum()
     fit = _hmm.fit_restart(X, lengths, 3, 6, seed, emission_floor=0.0)
     assert fit["loglik"] >= ll0

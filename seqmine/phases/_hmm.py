@@ -20,6 +20,7 @@ __all__ = [
     "posterior_occupancy",
     "sample_sequences",
     "fit_restart",
+    "start_point",
     "derive_seed",
 ]
 
@@ -205,13 +206,34 @@ def derive_seed(*parts):
     return int(np.random.SeedSequence([int(p) for p in parts]).generate_state(1)[0])
 
 
+def start_point(X, n_states, n_symbols, seed):
+    """Random start of Baum--Welch, drawn with ``numpy.random.default_rng(seed)``.
+
+    Start probabilities: flat Dirichlet. Transition rows: ``0.5 I + 0.5 Dir(1)``
+    (phases tend to persist). Emission rows: ``0.8 Dir(1) + 0.2 f`` with ``f`` the
+    overall token frequencies. Compared with flat draws for everything, this start
+    stalls less often in near-symmetric saddles (fewer EM iterations, more restarts
+    reaching the best optimum on our benchmark data).
+
+    Returns
+    -------
+    startprob, transmat, emissionprob : ndarray
+    """
+    rng = np.random.default_rng(seed)
+    freq = np.bincount(np.asarray(X, dtype=np.int64), minlength=n_symbols).astype(np.float64)
+    freq = (freq + 1e-3) / (freq.sum() + 1e-3 * n_symbols)
+    start = rng.dirichlet(np.ones(n_states))
+    trans = 0.5 * np.eye(n_states) + 0.5 * rng.dirichlet(np.ones(n_states), size=n_states)
+    emis = 0.8 * rng.dirichlet(np.ones(n_symbols), size=n_states) + 0.2 * freq[None, :]
+    emis /= emis.sum(axis=1, keepdims=True)
+    return start, trans, emis
+
+
 def fit_restart(X, lengths, n_states, n_symbols, seed, *, n_iter=200, tol=1e-4,
                 emission_floor=1e-4):
     """One Baum--Welch run from a random start; returns fitted parameters.
 
-    The start point is drawn with ``numpy.random.default_rng(seed)``: start and
-    transition rows from a flat Dirichlet, emission rows as an even mix of a flat
-    Dirichlet draw and the overall token frequencies. ``tol`` is per token: EM stops
+    The start point comes from :func:`start_point`. ``tol`` is per token: EM stops
     when the log-likelihood gains less than ``tol * n_tokens``.
 
     Returns
@@ -223,13 +245,7 @@ def fit_restart(X, lengths, n_states, n_symbols, seed, *, n_iter=200, tol=1e-4,
     """
     X = np.asarray(X, dtype=np.int64)
     lengths = np.asarray(lengths, dtype=np.int64)
-    rng = np.random.default_rng(seed)
-    freq = np.bincount(X, minlength=n_symbols).astype(np.float64) + 1e-3
-    freq /= freq.sum()
-    start = rng.dirichlet(np.ones(n_states))
-    trans = rng.dirichlet(np.ones(n_states), size=n_states)
-    emis = 0.5 * rng.dirichlet(np.ones(n_symbols), size=n_states) + 0.5 * freq[None, :]
-    emis /= emis.sum(axis=1, keepdims=True)
+    start, trans, emis = start_point(X, n_states, n_symbols, seed)
     # the scaled forward-backward is ~10x faster than hmmlearn's log version; if it
     # underflows (hmmlearn raises ValueError) the same start is refitted in log space
     for implementation in ("scaling", "log"):
