@@ -60,6 +60,8 @@ th { background: var(--soft); font-weight: 600; }
 td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; }
 .grid2 { display:grid; grid-template-columns: repeat(auto-fit, minmax(440px, 1fr));
   gap: 4px 24px; align-items: start; }
+.grid2 table { width: 100%; font-size: 13px; }
+.grid2 td:first-child { width: 34%; overflow-wrap: anywhere; }
 .fig { max-width: 100%; height: auto; display: block; margin: 6px 0 12px; }
 .tok { display:inline-block; border:1px solid #c9c9c9; background:#fff; border-radius:4px;
   padding:0 6px; margin:1px 0; font: 13px/1.6 ui-monospace, "DejaVu Sans Mono",
@@ -387,8 +389,8 @@ def section_phases(d, figs):
     for m in models:
         states = m["states"]
         rows = [[esc(st["name"]), _fmt(st.get("dwell"), 1),
-                 ", ".join(f'<span class="tok">{esc(t)}</span> {_pct(p)}'
-                           for t, p in st["emissions"][:5])] for st in states]
+                 " · ".join(f"<code>{esc(t)}</code>&nbsp;{_pct(p)}"
+                            for t, p in st["emissions"][:5])] for st in states]
         cells.append(
             f"<div><h3>{_group_label(m['group'], d['groups'])} "
             f'<span class="note">({esc(m["file"])})</span></h3>\n'
