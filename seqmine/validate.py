@@ -1,0 +1,755 @@
+"""Learner-level cross-validation of the whole discovery pipeline and early prediction.
+
+Every step that learns from data -- the outcome grouping thresholds, the pause-bin
+edges, pattern mining, differential selection and the group HMMs -- is fitted on the
+training learners of a fold only, then applied unchanged to the held-out learners,
+whose sequences are cut to their first 10 %, 20 %, ... of events and classified.
+Findings are correlational; a detector built on them should be piloted and reviewed
+by educators before it drives hints for real learners.
+"""
+
+from __future__ import annotations
+
+import copy
+import json
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from scipy.stats import binomtest
+from sklearn.base import clone
+from sklearn.dummy import DummyClassifier
+from sklearn.linear_model import LogisticRegression
+from sklearn.model_selection import StratifiedKFold
+from sklearn.pipeline import FeatureUnion, make_pipeline
+from sklearn.preprocessing import StandardScaler
+
+from ._progress import progress
+from ._validation import check_fraction, check_int, check_number
+from .errors import ParameterError
+from .features import FrequencyPauseFeaturizer, HMMLikelihoodFeaturizer, PatternFeaturizer
+
+__all__ = [
+    "validate",
+    "ValidationResult",
+    "learner_folds",
+    "early_prediction_table",
+    "default_featurizers",
+    "make_classifier",
+    "CLASSIFIERS",
+    "DEFAULT_FRACTIONS",
+]
+
+#: Observed fractions of each held-out sequence used by default.
+DEFAULT_FRACTIONS = (0.1, 0.2, 0.25, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0)
+
+#: Classifier name -> featurizers whose columns it uses (``()`` = majority class).
+CLASSIFIERS = {
+    "pattern": ("pattern",),
+    "hmm": ("hmm",),
+    "frequency_pause": ("frequency_pause",),
+    "fusion": ("pattern", "hmm", "frequency_pause"),
+    "majority": (),
+}
+
+
+def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTIONS,
+             grouping=None, encoder=None, featurizers=None, classifiers=None, C=1.0,
+             n_bootstrap=1000, confidence=0.95, alpha=0.05, seed=0, n_jobs=1,
+             backend=None):
+    """Cross-validate the discovery pipeline by learner and measure early prediction.
+
+    Parameters
+    ----------
+    events : pandas.DataFrame
+        Event table (``learner``, ``time``, ``action``, ...), as in
+        ``load_events(...).events``.
+    outcomes : pandas.DataFrame
+        Outcome table with a ``learner`` column, as from ``load_outcomes``.
+    folds : int, default 5
+        Number of stratified folds (ignored when ``loo``).
+    loo : bool, default False
+        Leave one learner out instead of k folds. The majority baseline is
+        pessimistic under leave-one-out (removing a learner tips the training
+        majority towards the other group), so prefer k folds for the comparison.
+    fractions : sequence of float in (0, 1]
+        Observed fractions of each held-out sequence (of its action events, see
+        :meth:`SequenceDB.cut`).
+    grouping : estimator, optional
+        Unfitted outcome grouping with ``fit(outcomes)``, ``transform(outcomes)``
+        (learner -> group name, NaN = none) and ``group_names_``. Default
+        ``seqmine.outcomes.Grouping()`` (median split on normalized gain).
+    encoder : estimator, optional
+        Unfitted encoder with ``fit(events)``, ``transform(events) -> SequenceDB``
+        and ``encoding_``. Default ``seqmine.encode.Encoder()``.
+    featurizers : dict, optional
+        Name -> unfitted featurizer; default :func:`default_featurizers`.
+    classifiers : sequence of str, optional
+        Names from :data:`CLASSIFIERS` to compare (default: all five).
+    C : float, default 1.0
+        Inverse L2 regularisation strength of the logistic regression.
+    n_bootstrap : int, default 1000
+        Bootstrap resamples of the held-out learners for the confidence intervals.
+    confidence : float, default 0.95
+    alpha : float, default 0.05
+        Level of the one-sided test against the majority baseline.
+    seed : int, default 0
+        Seeds the fold split, the featurizers and the bootstrap.
+    n_jobs : int, default 1
+        Folds run in parallel with joblib; results are identical to the serial run.
+    backend : str, optional
+        joblib backend (e.g. ``"loky"``, ``"threading"`` or ``"dask"`` inside a
+        ``joblib.parallel_config`` block with a Dask client).
+
+    Returns
+    -------
+    ValidationResult
+
+    Notes
+    -----
+    Held-out learners are labelled with the *training* fold's grouping thresholds
+    and encoded with the training pause edges. The fold split is stratified by the
+    grouping fitted on all learners; that only balances fold composition and does
+    not enter any fitted model. Classifiers are trained on the full training
+    sequences and applied to the cut held-out sequences; pattern features are
+    rates per 100 tokens so their scale does not depend on sequence length. When
+    a learner has several sequences, the predicted probabilities of its sequences
+    are averaged and the learner is the unit of every metric.
+    """
+    where = "validate"
+    fractions = _check_fractions(fractions)
+    check_int(n_bootstrap, "n_bootstrap", where, minimum=1)
+    check_fraction(confidence, "confidence", where, high_inclusive=False)
+    check_fraction(alpha, "alpha", where, high_inclusive=False)
+    check_number(C, "C", where, minimum=0, strict=True)
+    check_int(n_jobs, "n_jobs", where, minimum=-1)
+    if n_jobs == 0:
+        raise ParameterError("The 'n_jobs' parameter of validate must be >= 1 or -1. Got 0 "
+                             "instead.")
+    names = list(CLASSIFIERS) if classifiers is None else list(classifiers)
+    for n in names:
+        if n not in CLASSIFIERS:
+            raise ParameterError(
+                f"Unknown classifier {n!r}; choose from {', '.join(CLASSIFIERS)}.")
+    if "majority" not in names:
+        names.append("majority")
+    grouping = grouping if grouping is not None else _default_grouping()
+    encoder = encoder if encoder is not None else _default_encoder()
+    featurizers = featurizers if featurizers is not None else default_featurizers(seed=seed)
+    needed = sorted({f for n in names for f in CLASSIFIERS[n]})
+    missing = [f for f in needed if f not in featurizers]
+    if missing:
+        raise ParameterError(f"featurizers lacks {missing}; give one for each of {needed}.")
+    featurizers = {f: featurizers[f] for f in needed}
+
+    started = time.perf_counter()
+    events = pd.DataFrame(events)
+    outcomes = pd.DataFrame(outcomes)
+    for table, label in ((events, "events"), (outcomes, "outcomes")):
+        if "learner" not in table.columns:
+            raise ParameterError(f"The {label} table needs a 'learner' column.")
+    events = events.assign(learner=events["learner"].astype(str))
+    outcomes = outcomes.assign(learner=outcomes["learner"].astype(str))
+    # stratification labels only (fold composition), from all learners
+    strat_grouping = _fresh(grouping).fit(outcomes)
+    strat = strat_grouping.transform(outcomes)
+    strat = pd.Series(np.asarray(strat, dtype=object), index=outcomes["learner"].to_numpy())
+    has_events = set(events["learner"].unique())
+    learners = np.array(sorted(lr for lr, g in strat.items()
+                               if lr in has_events and not pd.isna(g)), dtype=object)
+    labels = np.array([str(strat[lr]) for lr in learners], dtype=object)
+    split = learner_folds(learners, labels, folds=folds, loo=loo, seed=seed)
+
+    ev_by = {lr: idx for lr, idx in events.groupby("learner", sort=False).indices.items()}
+    jobs = []
+    for k, (tr, te) in enumerate(split):
+        tr_l, te_l = learners[tr], learners[te]
+        ev_tr = events.iloc[np.sort(np.concatenate([ev_by[lr] for lr in tr_l]))]
+        ev_te = events.iloc[np.sort(np.concatenate([ev_by[lr] for lr in te_l]))]
+        oc_tr = outcomes[outcomes["learner"].isin(set(tr_l))]
+        oc_te = outcomes[outcomes["learner"].isin(set(te_l))]
+        jobs.append((k, ev_tr, ev_te, oc_tr, oc_te))
+    run = _FoldRunner(grouping=grouping, encoder=encoder, featurizers=featurizers,
+                      classifiers=names, fractions=fractions, C=C)
+    if n_jobs == 1:
+        outs = [run(*job) for job in progress(jobs, desc="folds", unit="fold")]
+    else:
+        from joblib import Parallel, delayed
+
+        outs = Parallel(n_jobs=n_jobs, backend=backend)(delayed(run)(*job) for job in jobs)
+    group_names = outs[0]["group_names"]
+    for o in outs:
+        if o["group_names"] != group_names:
+            raise ParameterError(
+                f"Fold {o['fold']} produced groups {o['group_names']} but fold 0 produced "
+                f"{group_names}; the grouping must give the same group names in every fold.")
+    predictions = pd.concat([o["predictions"] for o in outs], ignore_index=True)
+    order = {n: i for i, n in enumerate(names)}
+    predictions = predictions.sort_values(
+        ["classifier", "fraction", "learner"], key=lambda s: s.map(order) if s.name ==
+        "classifier" else s, kind="mergesort", ignore_index=True)
+    metrics = early_prediction_table(predictions, group_names, n_bootstrap=n_bootstrap,
+                                     confidence=confidence, alpha=alpha, seed=seed)
+    fold_table = pd.DataFrame({
+        "learner": np.concatenate([learners[te] for _, te in split]),
+        "fold": np.concatenate([np.full(len(te), k) for k, (_, te) in enumerate(split)]),
+    }).sort_values("learner", kind="mergesort", ignore_index=True)
+    settings = {
+        "folds": None if loo else int(folds), "loo": bool(loo),
+        "fractions": list(fractions), "classifiers": names, "C": float(C),
+        "n_bootstrap": int(n_bootstrap), "confidence": float(confidence),
+        "alpha": float(alpha), "seed": int(seed),
+        "test": "one-sided exact McNemar (binomial test on discordant pairs) vs majority",
+        "n_learners": int(len(learners)),
+    }
+    return ValidationResult(
+        metrics=metrics, predictions=predictions, folds=fold_table,
+        selected_patterns={o["fold"]: o["selected_patterns"] for o in outs},
+        encodings={o["fold"]: o["encoding"] for o in outs},
+        group_names=list(group_names), settings=settings,
+        runtime_seconds=time.perf_counter() - started,
+    )
+
+
+@dataclass
+class ValidationResult:
+    """Outcome of :func:`validate`.
+
+    Attributes
+    ----------
+    metrics : pandas.DataFrame
+        The early-prediction table (see :func:`early_prediction_table`).
+    predictions : pandas.DataFrame
+        One row per held-out learner x classifier x fraction: ``fold``,
+        ``learner``, ``group`` (true, from the training thresholds),
+        ``classifier``, ``fraction``, ``predicted``, ``proba_<group>``.
+    folds : pandas.DataFrame
+        ``learner``, ``fold`` (the fold in which the learner was held out).
+    selected_patterns : dict
+        Fold -> readable names of the patterns selected on that fold's training
+        learners.
+    encodings : dict
+        Fold -> the encoder's ``encoding_`` fitted on that fold's training events.
+    group_names : list of str
+    settings : dict
+    runtime_seconds : float
+        Wall time of the run (not part of any table, so reruns compare equal).
+    """
+
+    metrics: pd.DataFrame
+    predictions: pd.DataFrame
+    folds: pd.DataFrame
+    selected_patterns: dict
+    encodings: dict
+    group_names: list
+    settings: dict = field(default_factory=dict)
+    runtime_seconds: float = float("nan")
+
+    def to_frame(self):
+        """The early-prediction table (one row per classifier x fraction)."""
+        return self.metrics.copy()
+
+    def to_long(self):
+        """Plot-ready long table: ``classifier``, ``fraction``, ``metric``, ``value``,
+        ``low``, ``high``, ``n_learners``."""
+        m = self.metrics
+        metric_names = ["accuracy", "balanced_accuracy", "roc_auc"] + [
+            f"recall_{g}" for g in self.group_names]
+        rows = []
+        for name in metric_names:
+            part = m[["classifier", "fraction", "n_learners"]].copy()
+            part["metric"] = name
+            part["value"] = m[name].to_numpy()
+            part["low"] = m[f"{name}_low"].to_numpy()
+            part["high"] = m[f"{name}_high"].to_numpy()
+            rows.append(part)
+        out = pd.concat(rows, ignore_index=True)
+        return out[["classifier", "fraction", "metric", "value", "low", "high", "n_learners"]]
+
+    def earliest_fraction(self):
+        """Smallest fraction at which each classifier beats the majority baseline.
+
+        Returns
+        -------
+        pandas.Series
+            Classifier -> fraction (NaN when it never does), majority excluded.
+        """
+        m = self.metrics[self.metrics["classifier"] != "majority"]
+        out = {}
+        for name, part in m.groupby("classifier", sort=False):
+            hits = part.loc[part["beats_baseline"], "fraction"]
+            out[name] = float(hits.min()) if len(hits) else float("nan")
+        return pd.Series(out, name="earliest_fraction", dtype=float)
+
+    def save(self, folder):
+        """Write ``early_prediction.csv``, ``early_prediction_long.csv``,
+        ``validation_predictions.csv`` and ``validation_folds.json`` to ``folder``."""
+        folder = Path(folder)
+        folder.mkdir(parents=True, exist_ok=True)
+        self.metrics.to_csv(folder / "early_prediction.csv", index=False)
+        self.to_long().to_csv(folder / "early_prediction_long.csv", index=False)
+        self.predictions.to_csv(folder / "validation_predictions.csv", index=False)
+        info = {
+            "settings": self.settings,
+            "group_names": self.group_names,
+            "earliest_fraction": {k: (None if np.isnan(v) else v)
+                                  for k, v in self.earliest_fraction().items()},
+            "folds": [
+                {"fold": int(k),
+                 "held_out": self.folds.loc[self.folds["fold"] == k, "learner"].tolist(),
+                 "selected_patterns": list(self.selected_patterns[k]),
+                 "encoding": self.encodings[k]}
+                for k in sorted(self.selected_patterns)
+            ],
+        }
+        (folder / "validation_folds.json").write_text(
+            json.dumps(info, indent=1, sort_keys=True, default=_json_default), encoding="utf-8")
+        return folder
+
+
+def learner_folds(learners, labels, *, folds=5, loo=False, seed=0):
+    """Split samples into folds so that no learner spans two folds.
+
+    Parameters
+    ----------
+    learners : array-like of str, shape (n_samples,)
+        Learner of each sample; a learner may have several samples (sessions).
+    labels : array-like, shape (n_samples,)
+        Group of each sample, used to stratify (the first sample of a learner
+        gives the learner's label).
+    folds : int, default 5
+        Number of stratified folds over learners (ignored when ``loo``).
+    loo : bool, default False
+        One fold per learner.
+    seed : int, default 0
+        Shuffles learners before the stratified split.
+
+    Returns
+    -------
+    list of (ndarray, ndarray)
+        ``(train_indices, test_indices)`` into the samples, one pair per fold.
+
+    Examples
+    --------
+    >>> learners = ["a", "a", "b", "c", "d", "e", "f"]
+    >>> labels = ["x", "x", "x", "x", "y", "y", "y"]
+    >>> for tr, te in learner_folds(learners, labels, folds=3):
+    ...     print(sorted(set(np.asarray(learners)[te])))
+    ['a', 'd']
+    ['c', 'f']
+    ['b', 'e']
+    """
+    where = "learner_folds"
+    learners = np.asarray(learners, dtype=object).astype(str)
+    labels = np.asarray(labels, dtype=object)
+    if len(labels) != len(learners):
+        raise ParameterError(f"learners has {len(learners)} entries but labels has "
+                             f"{len(labels)}; give one label per sample.")
+    uniq, first, inverse = np.unique(learners, return_index=True, return_inverse=True)
+    n = len(uniq)
+    if loo:
+        if n < 2:
+            raise ParameterError(f"Leave-one-learner-out needs at least 2 learners; got {n}.")
+        test_sets = [np.array([i]) for i in range(n)]
+    else:
+        folds = check_int(folds, "folds", where, minimum=2)
+        if n < folds:
+            raise ParameterError(
+                f"There are {n} learners but {folds} folds were asked for; use at most "
+                f"{n} folds (--folds {max(n, 2)}) or leave-one-learner-out (--loo).")
+        lab = np.array([str(v) for v in labels[first]], dtype=object)
+        names, counts = np.unique(lab, return_counts=True)
+        if len(names) < 2:
+            raise ParameterError(
+                f"All {n} learners are in group {names[0]!r}; cross-validation needs learners "
+                f"of at least two groups.")
+        small = int(np.argmin(counts))
+        if counts[small] < folds:
+            raise ParameterError(
+                f"Group {names[small]!r} has {counts[small]} learners, fewer than the {folds} "
+                f"folds, so some fold would hold one group only; use at most "
+                f"{counts[small]} folds (--folds {max(int(counts[small]), 2)}) or "
+                f"leave-one-learner-out (--loo).")
+        skf = StratifiedKFold(n_splits=folds, shuffle=True, random_state=seed)
+        test_sets = [te for _, te in skf.split(np.zeros(n), lab)]
+    out = []
+    for te_l in test_sets:
+        in_test = np.zeros(n, dtype=bool)
+        in_test[te_l] = True
+        test_mask = in_test[inverse]
+        out.append((np.flatnonzero(~test_mask), np.flatnonzero(test_mask)))
+    return out
+
+
+def early_prediction_table(predictions, group_names, *, n_bootstrap=1000, confidence=0.95,
+                           alpha=0.05, seed=0):
+    """Metrics per classifier x fraction with bootstrap intervals and the baseline test.
+
+    Parameters
+    ----------
+    predictions : pandas.DataFrame
+        Columns ``classifier``, ``fraction``, ``learner``, ``group``,
+        ``predicted`` and ``proba_<group>`` for every group; must contain the
+        ``majority`` classifier, and every classifier x fraction must cover the same
+        learners.
+    group_names : list of str
+    n_bootstrap : int
+        Resamples (with replacement) of the held-out learners; the same resamples
+        are used for every classifier and fraction (paired).
+    confidence : float
+        Percentile interval level.
+    alpha : float
+        Level of the test against the majority baseline.
+    seed : int
+
+    Returns
+    -------
+    pandas.DataFrame
+        ``classifier``, ``fraction``, ``n_learners``, then ``accuracy``,
+        ``balanced_accuracy``, ``recall_<group>`` for each group and ``roc_auc``,
+        each followed by ``<metric>_low`` and ``<metric>_high``; then
+        ``baseline_accuracy``, ``n_only_classifier_right``,
+        ``n_only_baseline_right``, ``p_value``, ``beats_baseline``.
+
+    Notes
+    -----
+    ``roc_auc`` scores the probability of ``group_names[1]`` for two groups
+    (one-vs-rest macro average for more), as :func:`sklearn.metrics.roc_auc_score`.
+    ``balanced_accuracy`` is the mean recall over the groups present.
+
+    The classifier *beats the baseline* at a fraction when the one-sided exact
+    McNemar test on paired correctness rejects at ``alpha``: with ``b`` learners
+    classified correctly only by the classifier and ``c`` only by the majority
+    baseline, ``p = P(X >= b)`` for ``X ~ Binomial(b + c, 1/2)`` (McNemar 1947;
+    recommended for comparing two classifiers on one test set by Dietterich 1998).
+    The tests at different fractions are not corrected for multiplicity; the
+    earliest fraction is the smallest fraction that rejects.
+
+    References
+    ----------
+    .. [1] McNemar, Q. (1947). Note on the sampling error of the difference between
+       correlated proportions or percentages. Psychometrika 12(2), 153-157.
+    .. [2] Dietterich, T. G. (1998). Approximate statistical tests for comparing
+       supervised classification learning algorithms. Neural Computation 10(7).
+    .. [3] Efron, B., & Tibshirani, R. J. (1993). An Introduction to the Bootstrap
+       (percentile intervals).
+    """
+    group_names = list(group_names)
+    k = len(group_names)
+    pos = {g: i for i, g in enumerate(group_names)}
+    preds = predictions.sort_values(["classifier", "fraction", "learner"], kind="mergesort")
+    cells = {key: part for key, part in preds.groupby(["classifier", "fraction"], sort=False)}
+    classifiers = list(dict.fromkeys(predictions["classifier"]))
+    if "majority" not in classifiers:
+        raise ParameterError("predictions need the 'majority' classifier as the baseline.")
+    fractions = sorted(set(predictions["fraction"]))
+    first = cells[(classifiers[0], fractions[0])]
+    learners = first["learner"].to_numpy()
+    n = len(learners)
+    rng = np.random.default_rng(seed)
+    boot = rng.integers(0, n, size=(n_bootstrap, n))
+    weights = _bootstrap_weights(boot, n)
+    q = (1 - confidence) / 2
+    rows = []
+    for frac in fractions:
+        base = cells[("majority", frac)]
+        y = base["group"].map(pos).to_numpy(dtype=np.int64)
+        base_right = base["predicted"].map(pos).to_numpy() == y
+        for name in classifiers:
+            part = cells[(name, frac)]
+            if not np.array_equal(part["learner"].to_numpy(), learners):
+                raise ParameterError(
+                    f"Classifier {name!r} at fraction {frac} covers other learners than "
+                    f"{classifiers[0]!r}; every cell must cover the same held-out learners.")
+            pred = part["predicted"].map(pos).to_numpy(dtype=np.int64)
+            proba = part[[f"proba_{g}" for g in group_names]].to_numpy(dtype=float)
+            point = _metrics(y, pred, proba, np.ones((1, n)), k)
+            boots = _metrics(y, pred, proba, weights, k)
+            row = {"classifier": name, "fraction": float(frac), "n_learners": n}
+            for key in point:
+                col = _metric_column(key, group_names)
+                row[col] = float(point[key][0])
+                vals = boots[key]
+                vals = vals[np.isfinite(vals)]
+                if len(vals):
+                    row[f"{col}_low"] = float(np.quantile(vals, q))
+                    row[f"{col}_high"] = float(np.quantile(vals, 1 - q))
+                else:
+                    row[f"{col}_low"] = row[f"{col}_high"] = float("nan")
+            right = pred == y
+            b = int(np.sum(right & ~base_right))
+            c = int(np.sum(~right & base_right))
+            p = float(binomtest(b, b + c, 0.5, alternative="greater").pvalue) if b + c else 1.0
+            row.update(baseline_accuracy=float(base_right.mean()),
+                       n_only_classifier_right=b, n_only_baseline_right=c, p_value=p,
+                       beats_baseline=bool(p < alpha) and name != "majority")
+            rows.append(row)
+    table = pd.DataFrame(rows)
+    metric_cols = []
+    for key in ["accuracy", "balanced_accuracy"] + [f"recall_{g}" for g in group_names] + [
+            "roc_auc"]:
+        metric_cols += [key, f"{key}_low", f"{key}_high"]
+    cols = (["classifier", "fraction", "n_learners"] + metric_cols
+            + ["baseline_accuracy", "n_only_classifier_right", "n_only_baseline_right",
+               "p_value", "beats_baseline"])
+    return table[cols]
+
+
+def _metric_column(key, group_names):
+    if key.startswith("recall_"):
+        return f"recall_{group_names[int(key[7:])]}"
+    return key
+
+
+def default_featurizers(*, seed=0, pattern_params=None, hmm_params=None):
+    """The three featurizers compared by :func:`validate`, unfitted.
+
+    Returns
+    -------
+    dict
+        ``"pattern"``: :class:`PatternFeaturizer`, ``"hmm"``:
+        :class:`HMMLikelihoodFeaturizer`, ``"frequency_pause"``:
+        :class:`FrequencyPauseFeaturizer`.
+    """
+    return {
+        "pattern": PatternFeaturizer(seed=seed, **(pattern_params or {})),
+        "hmm": HMMLikelihoodFeaturizer(seed=seed, **(hmm_params or {})),
+        "frequency_pause": FrequencyPauseFeaturizer(),
+    }
+
+
+def make_classifier(name, *, featurizers=None, C=1.0, seed=0):
+    """A scikit-learn Pipeline equivalent to one classifier of :func:`validate`.
+
+    Features of the named featurizers are stacked (:class:`FeatureUnion`),
+    standardised and fed to an L2-regularised logistic regression; ``"majority"``
+    is a :class:`~sklearn.dummy.DummyClassifier` (``most_frequent``). ``X`` is a
+    SequenceDB and ``y`` the group of each sequence.
+
+    Examples
+    --------
+    >>> from seqmine.sequences import SequenceDB
+    >>> db = SequenceDB.from_lists([["a", "a"], ["a", "a", "b"], ["b", "b"], ["b", "b", "a"]])
+    >>> clf = make_classifier("frequency_pause").fit(db, ["x", "x", "y", "y"])
+    >>> clf.predict(db).tolist()
+    ['x', 'x', 'y', 'y']
+    """
+    if name not in CLASSIFIERS:
+        raise ParameterError(f"Unknown classifier {name!r}; choose from {', '.join(CLASSIFIERS)}.")
+    if name == "majority":
+        return DummyClassifier(strategy="most_frequent")
+    feats = featurizers if featurizers is not None else default_featurizers(seed=seed)
+    union = FeatureUnion([(f, clone(feats[f])) for f in CLASSIFIERS[name]])
+    return make_pipeline(union, StandardScaler(), _logistic(C))
+
+
+# --------------------------------------------------------------------- private
+class _FoldRunner:
+    """Runs one fold: fit every learned step on training learners, predict held-out."""
+
+    def __init__(self, *, grouping, encoder, featurizers, classifiers, fractions, C):
+        self.grouping = grouping
+        self.encoder = encoder
+        self.featurizers = featurizers
+        self.classifiers = classifiers
+        self.fractions = fractions
+        self.C = C
+
+    def __call__(self, fold, ev_tr, ev_te, oc_tr, oc_te):
+        grouping = _fresh(self.grouping).fit(oc_tr)
+        names = [str(g) for g in grouping.group_names_]
+        g_tr = _group_series(grouping.transform(oc_tr), oc_tr)
+        g_te = _group_series(grouping.transform(oc_te), oc_te)
+        encoder = _fresh(self.encoder).fit(ev_tr)
+        db_tr = _with_learner_groups(encoder.transform(ev_tr), g_tr, names)
+        db_te = _with_learner_groups(encoder.transform(ev_te), g_te, names)
+        db_tr = db_tr.subset(db_tr.groups >= 0)
+        db_te = db_te.subset(db_te.groups >= 0)
+        present = np.unique(db_tr.groups)
+        if len(present) < len(names):
+            only = ", ".join(repr(names[i]) for i in present) or "none"
+            raise ParameterError(
+                f"Fold {fold}: the training learners hold only group(s) {only} after "
+                f"grouping with the training thresholds; use fewer folds or check the "
+                f"outcomes.")
+        y_tr = db_tr.groups
+        fitted = {}
+        blocks = {}
+        for fname, feat in self.featurizers.items():
+            fitted[fname] = clone(feat).fit(db_tr, y_tr)
+            blocks[fname] = np.asarray(fitted[fname].transform(db_tr), dtype=float)
+        models = {}
+        for cname in self.classifiers:
+            if cname == "majority":
+                models[cname] = DummyClassifier(strategy="most_frequent").fit(
+                    np.zeros((len(y_tr), 1)), y_tr)
+            else:
+                X = np.hstack([blocks[f] for f in CLASSIFIERS[cname]])
+                models[cname] = make_pipeline(StandardScaler(), _logistic(self.C)).fit(X, y_tr)
+        rows = []
+        learners_te = db_te.learners
+        uniq, inv = np.unique(learners_te, return_inverse=True)
+        true = np.full(len(uniq), -1, dtype=np.int64)
+        true[inv] = db_te.groups
+        n_seq = np.bincount(inv, minlength=len(uniq)).astype(float)
+        for frac in self.fractions:
+            cut = db_te if frac >= 1 else db_te.cut(frac)
+            te_blocks = {f: np.asarray(m.transform(cut), dtype=float) for f, m in fitted.items()}
+            for cname in self.classifiers:
+                if cname == "majority":
+                    X = np.zeros((cut.n_sequences, 1))
+                else:
+                    X = np.hstack([te_blocks[f] for f in CLASSIFIERS[cname]])
+                proba = _full_proba(models[cname], X, len(names))
+                per = np.zeros((len(uniq), len(names)))
+                np.add.at(per, inv, proba)
+                per /= n_seq[:, None]
+                pred = np.argmax(per, axis=1)
+                frame = {"fold": fold, "learner": uniq, "group": [names[i] for i in true],
+                         "classifier": cname, "fraction": float(frac),
+                         "predicted": [names[i] for i in pred]}
+                for gi, g in enumerate(names):
+                    frame[f"proba_{g}"] = per[:, gi]
+                rows.append(pd.DataFrame(frame))
+        selected = []
+        if "pattern" in fitted and hasattr(fitted["pattern"], "get_feature_names_out"):
+            selected = [n.removeprefix("pattern: ") for n in
+                        fitted["pattern"].get_feature_names_out() if n != "no_pattern"]
+        return {
+            "fold": fold, "group_names": names, "predictions": pd.concat(rows, ignore_index=True),
+            "selected_patterns": selected,
+            "encoding": copy.deepcopy(getattr(encoder, "encoding_", {})),
+        }
+
+
+def _full_proba(model, X, k):
+    proba = model.predict_proba(X)
+    out = np.zeros((X.shape[0], k))
+    out[:, np.asarray(model.classes_, dtype=np.int64)] = proba
+    return out
+
+
+def _logistic(C):
+    return LogisticRegression(C=C, max_iter=2000)
+
+
+def _metrics(y, pred, proba, weights, k):
+    """Weighted metrics; ``weights`` (B, n) are bootstrap multiplicities (1 = point)."""
+    right = (pred == y).astype(float)
+    tot = weights.sum(axis=1)
+    out = {"accuracy": weights @ right / tot}
+    recalls = []
+    for g in range(k):
+        in_g = (y == g).astype(float)
+        n_g = weights @ in_g
+        with np.errstate(invalid="ignore", divide="ignore"):
+            r = np.where(n_g > 0, (weights @ (right * in_g)) / n_g, np.nan)
+        recalls.append(r)
+        out[f"recall_{g}"] = r
+    rec = np.vstack(recalls)
+    present = np.isfinite(rec)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out["balanced_accuracy"] = np.where(present.any(axis=0),
+                                            np.nansum(rec, axis=0) / present.sum(axis=0), np.nan)
+    if k == 2:
+        out["roc_auc"] = _weighted_auc(y == 1, proba[:, 1], weights)
+    else:
+        aucs = np.vstack([_weighted_auc(y == g, proba[:, g], weights) for g in range(k)])
+        out["roc_auc"] = aucs.mean(axis=0)
+    return {key: np.asarray(out[key], dtype=float) for key in
+            ["accuracy", "balanced_accuracy"] + [f"recall_{g}" for g in range(k)] + ["roc_auc"]}
+
+
+def _weighted_auc(positive, score, weights):
+    """ROC AUC with sample multiplicities: P(s+ > s-) + P(s+ = s-) / 2, per row of weights.
+
+    Equals :func:`sklearn.metrics.roc_auc_score` on the resampled data (the
+    Mann-Whitney form of the area, Hanley & McNeil 1982); NaN when a class is absent.
+    """
+    order = np.argsort(score, kind="mergesort")
+    s = score[order]
+    pos = positive[order].astype(float)
+    w = weights[:, order]
+    starts = np.flatnonzero(np.concatenate([[True], s[1:] != s[:-1]]))
+    wp = np.add.reduceat(w * pos, starts, axis=1)
+    wn = np.add.reduceat(w * (1 - pos), starts, axis=1)
+    below = np.cumsum(wn, axis=1) - wn
+    num = np.sum(wp * (below + 0.5 * wn), axis=1)
+    den = wp.sum(axis=1) * wn.sum(axis=1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(den > 0, num / den, np.nan)
+
+
+def _bootstrap_weights(boot, n):
+    b = boot.shape[0]
+    flat = (boot + (np.arange(b) * n)[:, None]).ravel()
+    return np.bincount(flat, minlength=b * n).reshape(b, n).astype(float)
+
+
+def _check_fractions(fractions):
+    try:
+        vals = [fractions] if np.isscalar(fractions) else list(fractions)
+    except TypeError:
+        raise ParameterError(f"fractions must be a list of numbers in (0, 1]; got "
+                             f"{fractions!r}.") from None
+    if not vals:
+        raise ParameterError("fractions is empty; give at least one fraction in (0, 1], e.g. "
+                             "0.25,0.5,1.")
+    out = []
+    for v in vals:
+        try:
+            f = float(v)
+        except (TypeError, ValueError):
+            f = float("nan")
+        if not (0 < f <= 1):
+            raise ParameterError(
+                f"Cut fraction {v!r} is outside (0, 1]; fractions are shares of each "
+                f"sequence's events, e.g. 0.1,0.25,0.5,1.")
+        out.append(f)
+    return sorted(set(out))
+
+
+def _group_series(result, outcomes):
+    """Grouping output as a learner -> group (str or NaN) Series."""
+    if isinstance(result, pd.Series) and not isinstance(result.index, pd.RangeIndex):
+        s = result
+    else:
+        s = pd.Series(np.asarray(result, dtype=object), index=outcomes["learner"].to_numpy())
+    s.index = s.index.astype(str)
+    return s
+
+
+def _with_learner_groups(db, groups, names):
+    pos = {g: i for i, g in enumerate(names)}
+    codes = np.array([pos.get(str(groups.get(lr)), -1) if not pd.isna(groups.get(lr, np.nan))
+                      else -1 for lr in db.learners], dtype=np.int64)
+    return db.with_groups(codes, names)
+
+
+def _fresh(est):
+    try:
+        return clone(est)
+    except TypeError:
+        return copy.deepcopy(est)
+
+
+def _default_grouping():
+    from .outcomes import Grouping  # noqa: PLC0415 (stage written separately)
+
+    return Grouping()
+
+
+def _default_encoder():
+    from .encode import Encoder  # noqa: PLC0415
+
+    return Encoder()
+
+
+def _json_default(o):
+    if isinstance(o, np.ndarray):
+        return o.tolist()
+    if isinstance(o, np.generic):
+        return o.item()
+    raise TypeError(f"not JSON serialisable: {type(o).__name__}")
