@@ -266,11 +266,12 @@ class HMMLikelihoodFeaturizer(TransformerMixin, BaseEstimator):
     """Log-likelihood ratio of each sequence under group-specific hidden Markov models.
 
     ``fit`` trains one categorical HMM per group on that group's training
-    sequences (Baum–Welch via hmmlearn, ``n_restarts`` random starts, best
-    log-likelihood kept). ``transform`` returns, for each group ``g`` other than
-    the first, ``(log L_g(s) - log L_0(s)) / len(s)``: the log-likelihood ratio per
-    token, which stays on one scale whether the whole sequence or only its
-    beginning is seen. Empty sequences get 0.
+    sequences (Baum–Welch, ``n_restarts`` random starts, best log-likelihood
+    kept). ``transform`` returns, for each group ``g`` other than the first,
+    ``(log L_g(s) - log L_0(s)) / len(s)``: the log-likelihood ratio per token,
+    which stays on one scale whether the whole sequence or only its beginning is
+    seen. Empty sequences get 0. Tokens not in the training vocabulary are left
+    out of the held-out sequence before scoring.
 
     Parameters
     ----------
@@ -279,26 +280,26 @@ class HMMLikelihoodFeaturizer(TransformerMixin, BaseEstimator):
     n_iter : int, default 50
         Baum–Welch iterations per restart.
     smoothing : float > 0, default 1e-3
-        Added to every emission probability after fitting (then renormalised), so
-        tokens rare or unseen in one group do not give an infinite ratio. Tokens
-        not in the training vocabulary map to one shared "unseen" symbol.
+        Emission probability floor (added, then renormalised), so a token rare in
+        one group does not give an infinite ratio.
     seed : int, default 0
-    backend : callable or None
-        ``backend(sequences_by_group, n_symbols)`` returning a list of fitted
-        models with a ``score(X, lengths)`` method; default fits
-        :class:`hmmlearn.hmm.CategoricalHMM` models.
+    backend : {"auto", "phases", "hmmlearn"}, default "auto"
+        ``"phases"`` uses :class:`seqmine.phases.GroupHMMClassifier` (this class is
+        then a thin adapter); ``"hmmlearn"`` fits
+        :class:`hmmlearn.hmm.CategoricalHMM` models directly; ``"auto"`` prefers
+        the former when it is installed.
 
     Attributes
     ----------
     vocab_ : list of str
-        Training vocabulary (symbol ``i`` of the models; ``len(vocab_)`` = unseen).
-    models_ : list
-        One fitted model per group, in ``group_names_`` order.
+        Training vocabulary (symbol ``i`` of the models).
+    models_ : object
+        The fitted group models (a GroupHMMClassifier or a list of hmmlearn models).
     group_names_ : list of str
     """
 
     def __init__(self, *, n_states=3, n_restarts=2, n_iter=50, smoothing=1e-3, seed=0,
-                 backend=None):
+                 backend="auto"):
         self.n_states = n_states
         self.n_restarts = n_restarts
         self.n_iter = n_iter
@@ -313,38 +314,61 @@ class HMMLikelihoodFeaturizer(TransformerMixin, BaseEstimator):
         check_int(self.n_restarts, "n_restarts", where, minimum=1)
         check_int(self.n_iter, "n_iter", where, minimum=1)
         check_number(self.smoothing, "smoothing", where, minimum=0, strict=True)
+        backend = check_choice(self.backend, "backend", ("auto", "phases", "hmmlearn"), where)
         db = _as_db(X, where)
         codes, names = group_codes(db, y)
         self.vocab_ = list(db.vocab)
         self.group_names_ = list(names)
-        n_symbols = len(self.vocab_) + 1
-        by_group = []
         for g in range(len(names)):
-            seqs = [db.sequence(i) for i in np.flatnonzero(codes == g) if db.lengths[i] > 0]
-            if not seqs:
+            if not np.any(db.lengths[codes == g] > 0):
                 raise ParameterError(
                     f"HMMLikelihoodFeaturizer: group {names[g]!r} has no non-empty training "
                     f"sequence; every group needs data to fit its model.")
-            by_group.append(seqs)
-        if self.backend is not None:
-            self.models_ = list(self.backend(by_group, n_symbols))
+        if backend == "auto":
+            backend = "phases" if _phases_classifier() is not None else "hmmlearn"
+        self.backend_ = backend
+        if backend == "phases":
+            cls = _phases_classifier()
+            if cls is None:
+                raise ParameterError("backend='phases' needs seqmine.phases; use 'hmmlearn'.")
+            # class names "0", "1", ... keep the group order (classes_ are sorted)
+            labels = np.array([f"{c:06d}" for c in codes], dtype=object)
+            self.models_ = cls(n_states=self.n_states, n_restarts=self.n_restarts,
+                               seed=self.seed, n_iter=self.n_iter,
+                               emission_floor=self.smoothing).fit(db, labels)
         else:
-            self.models_ = [self._fit_one(seqs, n_symbols, g) for g, seqs in enumerate(by_group)]
+            by_group = [[db.sequence(i) for i in np.flatnonzero(codes == g)
+                         if db.lengths[i] > 0] for g in range(len(names))]
+            self.models_ = [self._fit_one(seqs, len(self.vocab_), g)
+                            for g, seqs in enumerate(by_group)]
         return self
 
-    def transform(self, X):
-        """Per-token log-likelihood ratios, shape (n_sequences, n_groups - 1)."""
+    def log_likelihoods(self, X):
+        """``log P(s | model_g)`` per sequence and group, shape (n_sequences, n_groups),
+        and the number of scored tokens per sequence."""
         _check_fitted(self, "models_")
         db = _as_db(X, "HMMLikelihoodFeaturizer")
         index = {v: i for i, v in enumerate(self.vocab_)}
-        remap = np.array([index.get(v, len(self.vocab_)) for v in db.vocab], dtype=np.int64)
+        remap = np.array([index.get(v, -1) for v in db.vocab], dtype=np.int64)
         sym = remap[db.tokens] if db.n_tokens else np.zeros(0, np.int64)
-        lengths = db.lengths
-        ll = np.zeros((db.n_sequences, len(self.models_)))
-        for i in np.flatnonzero(lengths > 0):
-            s = sym[db.offsets[i]: db.offsets[i + 1]].reshape(-1, 1)
-            for g, model in enumerate(self.models_):
-                ll[i, g] = model.score(s, [len(s)])
+        known = sym >= 0
+        lengths = np.bincount(db.seq_index[known], minlength=db.n_sequences)
+        sym = sym[known]
+        offsets = np.concatenate([[0], np.cumsum(lengths)])
+        seqs = [sym[offsets[i]: offsets[i + 1]] for i in range(db.n_sequences)]
+        if self.backend_ == "phases":
+            ll = np.asarray(self.models_.log_likelihoods(seqs), dtype=float)
+        else:
+            ll = np.zeros((db.n_sequences, len(self.models_)))
+            for i in np.flatnonzero(lengths > 0):
+                s = seqs[i].reshape(-1, 1)
+                for g, model in enumerate(self.models_):
+                    ll[i, g] = model.score(s, [len(s)])
+        return ll, lengths
+
+    def transform(self, X):
+        """Per-token log-likelihood ratios, shape (n_sequences, n_groups - 1)."""
+        ll, lengths = self.log_likelihoods(X)
         per_token = ll / np.maximum(lengths, 1)[:, None]
         return per_token[:, 1:] - per_token[:, [0]]
 
@@ -470,6 +494,14 @@ def _check_fitted(est, attr):
             f"This {type(est).__name__} is not fitted yet; call 'fit' with training data first.")
 
 
+def _phases_classifier():
+    try:
+        from .phases import GroupHMMClassifier  # noqa: PLC0415 (stage written separately)
+    except ImportError:
+        return None
+    return GroupHMMClassifier
+
+
 def _default_miner():
     from .mine import mine  # noqa: PLC0415 (stage written separately)
 
@@ -494,4 +526,4 @@ class _ContrastScorer:
         from .contrast import contrast  # noqa: PLC0415
 
         return contrast(patterns, db, correction=self.correction, alpha=self.alpha,
-                        seed=self.seed)
+                        seed=self.seed, stability_resamples=0, redundancy=None)

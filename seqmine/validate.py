@@ -34,7 +34,7 @@ from .features import FrequencyPauseFeaturizer, HMMLikelihoodFeaturizer, Pattern
 __all__ = [
     "validate",
     "ValidationResult",
-    "learner_folds",
+    "learner_splits",
     "early_prediction_table",
     "default_featurizers",
     "make_classifier",
@@ -160,7 +160,7 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
     learners = np.array(sorted(lr for lr, g in strat.items()
                                if lr in has_events and not pd.isna(g)), dtype=object)
     labels = np.array([str(strat[lr]) for lr in learners], dtype=object)
-    split = learner_folds(learners, labels, folds=folds, loo=loo, seed=seed)
+    split = learner_splits(learners, labels, folds=folds, loo=loo, seed=seed)
 
     ev_by = {lr: idx for lr, idx in events.groupby("learner", sort=False).indices.items()}
     jobs = []
@@ -309,7 +309,7 @@ class ValidationResult:
         return folder
 
 
-def learner_folds(learners, labels, *, folds=5, loo=False, seed=0):
+def learner_splits(learners, labels, *, folds=5, loo=False, seed=0):
     """Split samples into folds so that no learner spans two folds.
 
     Parameters
@@ -335,13 +335,13 @@ def learner_folds(learners, labels, *, folds=5, loo=False, seed=0):
     --------
     >>> learners = ["a", "a", "b", "c", "d", "e", "f"]
     >>> labels = ["x", "x", "x", "x", "y", "y", "y"]
-    >>> for tr, te in learner_folds(learners, labels, folds=3):
-    ...     print(sorted(set(np.asarray(learners)[te])))
-    ['a', 'd']
-    ['c', 'f']
-    ['b', 'e']
+    >>> for tr, te in learner_splits(learners, labels, folds=3):
+    ...     print(" ".join(sorted(set(np.asarray(learners)[te]))))
+    c e
+    b f
+    a d
     """
-    where = "learner_folds"
+    where = "learner_splits"
     learners = np.asarray(learners, dtype=object).astype(str)
     labels = np.asarray(labels, dtype=object)
     if len(labels) != len(learners):

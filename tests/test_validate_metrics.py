@@ -19,7 +19,7 @@ from seqmine.validate import (
     _metrics,
     _weighted_auc,
     early_prediction_table,
-    learner_folds,
+    learner_splits,
 )
 
 GROUPS = ["strong", "weak"]
@@ -159,9 +159,9 @@ def test_no_learner_spans_two_folds(spec, folds, seed):
     per_group = pd.Series([w for _, w in spec]).value_counts()
     if len(per_group) < 2 or per_group.min() < folds:
         with pytest.raises(ParameterError, match="folds|at least two groups"):
-            learner_folds(learners, labels, folds=folds, seed=seed)
+            learner_splits(learners, labels, folds=folds, seed=seed)
         return
-    split = learner_folds(learners, labels, folds=folds, seed=seed)
+    split = learner_splits(learners, labels, folds=folds, seed=seed)
     assert len(split) == folds
     seen = np.zeros(len(learners), dtype=int)
     for tr, te in split:
@@ -177,7 +177,7 @@ def test_no_learner_spans_two_folds(spec, folds, seed):
 
 def test_leave_one_learner_out_keeps_sessions_together():
     learners = ["a", "a", "b", "c", "c", "c"]
-    split = learner_folds(learners, ["x", "x", "y", "x", "x", "x"], loo=True)
+    split = learner_splits(learners, ["x", "x", "y", "x", "x", "x"], loo=True)
     assert [te.tolist() for _, te in split] == [[0, 1], [2], [3, 4, 5]]
 
 
@@ -186,9 +186,9 @@ def test_leave_one_learner_out_keeps_sessions_together():
     (["a", "b", "c", "d"], ["x", "x", "x", "x"], {"folds": 2}, r"group 'x'; cross-validation"),
     (["a", "b", "c", "d", "e", "f"], ["x", "x", "x", "x", "x", "y"], {"folds": 3},
      r"Group 'y' has 1 learners, fewer than the 3 folds"),
-    (["a", "b"], ["x", "y"], {"folds": 1}, r"'folds' parameter of learner_folds must be an int >= 2"),
+    (["a", "b"], ["x", "y"], {"folds": 1}, r"'folds' parameter of learner_splits must be an int >= 2"),
     (["a"], ["x"], {"loo": True}, r"at least 2 learners"),
 ])
 def test_fold_errors(learners, labels, kw, msg):
     with pytest.raises(ParameterError, match=msg):
-        learner_folds(learners, labels, **kw)
+        learner_splits(learners, labels, **kw)
