@@ -48,14 +48,18 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
 
     Parameters
     ----------
-    min_support : float in (0, 1], default 0.2
+    min_support : float in (0, 1], default 0.1
         Mining threshold: a pattern is kept when at least this share of the
         sequences of at least one group contain it.
     min_length, max_length : int, default 1 and 3
         Pattern length limits for mining.
-    max_gap, max_window : int or None, default None
-        Occurrence constraints (see :mod:`seqmine.patterns`), used for mining and
-        for counting.
+    max_gap : int or None, default 0
+        Occurrence constraint (see :mod:`seqmine.patterns`), used for mining and
+        for counting. The default 0 looks for contiguous runs of tokens (pause
+        tokens included), i.e. short ordered episodes; ``None`` allows any gap,
+        which makes long patterns behave much like action frequencies.
+    max_window : int or None, default None
+        Span limit in tokens.
     skip_pauses : bool, default False
         Pause tokens do not count towards gaps and windows.
     correction : str, default "bh"
@@ -93,7 +97,7 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
     training prior).
     """
 
-    def __init__(self, *, min_support=0.2, min_length=1, max_length=3, max_gap=None,
+    def __init__(self, *, min_support=0.1, min_length=1, max_length=3, max_gap=0,
                  max_window=None, skip_pauses=False, correction="bh", alpha=0.05, top_k=30,
                  value="rate", seed=0, miner=None, matcher=None, scorer=None):
         self.min_support = min_support

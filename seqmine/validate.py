@@ -154,8 +154,7 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
     outcomes = outcomes.assign(learner=outcomes["learner"].astype(str))
     # stratification labels only (fold composition), from all learners
     strat_grouping = _fresh(grouping).fit(outcomes)
-    strat = strat_grouping.transform(outcomes)
-    strat = pd.Series(np.asarray(strat, dtype=object), index=outcomes["learner"].to_numpy())
+    strat = _group_series(strat_grouping.transform(outcomes), outcomes)
     has_events = set(events["learner"].unique())
     learners = np.array(sorted(lr for lr, g in strat.items()
                                if lr in has_events and not pd.isna(g)), dtype=object)
@@ -713,10 +712,11 @@ def _check_fractions(fractions):
 
 def _group_series(result, outcomes):
     """Grouping output as a learner -> group (str or NaN) Series."""
-    if isinstance(result, pd.Series) and not isinstance(result.index, pd.RangeIndex):
-        s = result
+    learners = outcomes["learner"].astype(str).to_numpy()
+    if isinstance(result, pd.Series) and not result.index.equals(outcomes.index):
+        s = result.copy()  # already indexed by learner
     else:
-        s = pd.Series(np.asarray(result, dtype=object), index=outcomes["learner"].to_numpy())
+        s = pd.Series(np.asarray(result, dtype=object), index=learners)
     s.index = s.index.astype(str)
     return s
 
