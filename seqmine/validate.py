@@ -100,8 +100,9 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
     n_jobs : int, default 1
         Folds run in parallel with joblib; results are identical to the serial run.
     backend : str, optional
-        joblib backend (e.g. ``"loky"``, ``"threading"`` or ``"dask"`` inside a
-        ``joblib.parallel_config`` block with a Dask client).
+        joblib backend for ``n_jobs != 1``: ``"loky"`` (default, processes),
+        ``"threading"``, or ``"dask"`` to run the folds on the Dask cluster of the
+        active ``distributed.Client`` (local or a scheduler address).
 
     Returns
     -------
@@ -175,9 +176,10 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
     if n_jobs == 1:
         outs = [run(*job) for job in progress(jobs, desc="folds", unit="fold")]
     else:
-        from joblib import Parallel, delayed
+        from joblib import Parallel, delayed, parallel_config
 
-        outs = Parallel(n_jobs=n_jobs, backend=backend)(delayed(run)(*job) for job in jobs)
+        with parallel_config(backend=backend or "loky"):
+            outs = Parallel(n_jobs=n_jobs)(delayed(run)(*job) for job in jobs)
     group_names = outs[0]["group_names"]
     for o in outs:
         if o["group_names"] != group_names:

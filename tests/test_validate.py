@@ -230,3 +230,12 @@ def test_null_data_no_classifier_beats_the_baseline_beyond_chance():
                     - models.groupby("classifier")["baseline_accuracy"].mean())
     assert rejections <= 3
     assert (pd.concat(gaps, axis=1).mean(axis=1) < 0.1).all()
+
+
+def test_folds_on_a_dask_cluster_give_identical_results(planted, planted_result):
+    distributed = pytest.importorskip("distributed")
+    with distributed.Client(processes=False, n_workers=1, threads_per_worker=2,
+                            dashboard_address=None):
+        r2 = _run(*planted, n_jobs=2, backend="dask")
+    pd.testing.assert_frame_equal(planted_result.to_frame(), r2.to_frame())
+    pd.testing.assert_frame_equal(planted_result.predictions, r2.predictions)
