@@ -63,9 +63,9 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
 
     Parameters
     ----------
-    events : pandas.DataFrame
-        Event table (``learner``, ``time``, ``action``, ...), as in
-        ``load_events(...).events``.
+    events : pandas.DataFrame or LoadResult
+        Event table (``learner``, ``time`` in seconds, ``action``, ...), as in
+        ``load_events(...).events`` (a LoadResult is accepted too).
     outcomes : pandas.DataFrame
         Outcome table with a ``learner`` column, as from ``load_outcomes``.
     folds : int, default 5
@@ -146,6 +146,8 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
     featurizers = {f: featurizers[f] for f in needed}
 
     started = time.perf_counter()
+    if not isinstance(events, pd.DataFrame) and hasattr(events, "events"):
+        events = events.events
     events = pd.DataFrame(events)
     outcomes = pd.DataFrame(outcomes)
     for table, label in ((events, "events"), (outcomes, "outcomes")):
