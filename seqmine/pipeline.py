@@ -10,7 +10,7 @@ import pandas as pd
 from .errors import DataFileError
 from .outcomes import Grouping, match_learners
 
-__all__ = ["Prepared", "prepare_sequences", "MIN_GROUP_LEARNERS"]
+__all__ = ["Prepared", "prepare_sequences", "analyze", "AnalysisResult", "MIN_GROUP_LEARNERS"]
 
 #: Fewest learners a group may have before the run stops with a message.
 MIN_GROUP_LEARNERS = 2
@@ -111,3 +111,134 @@ def _describe(values):
             "min": round(float(q[0]), 6), "q1": round(float(q[1]), 6),
             "median": round(float(q[2]), 6), "q3": round(float(q[3]), 6),
             "max": round(float(q[4]), 6)}
+
+
+# ---------------------------------------------------------------------- analyze
+@dataclass
+class AnalysisResult:
+    """What :func:`analyze` wrote and the headline counts."""
+
+    out_dir: object
+    summary: dict
+    files: list
+
+    def message(self):
+        """One-paragraph description for the command line."""
+        s = self.summary
+        rep = [f for f in self.files if str(f).endswith("report.html")]
+        lines = [f"seqmine: {s.get('rows_kept', 0)} of {s.get('rows_in', 0)} rows kept "
+                 f"({s.get('rows_rejected', 0)} rejected), {s.get('sequences', 0)} sequences, "
+                 f"{s.get('patterns_mined', 0)} patterns mined, "
+                 f"{s.get('patterns_significant', 0)} significant."]
+        lines.append(f"Results in {self.out_dir}")
+        if rep:
+            lines.append(f"Report: {rep[0]}")
+        return "\n".join(lines)
+
+
+def _write_json(path, data):
+    import json
+    path.write_text(json.dumps(data, indent=2, sort_keys=True, ensure_ascii=False,
+                               default=_json_default) + "\n", encoding="utf-8")
+
+
+def _json_default(obj):
+    if isinstance(obj, (np.integer,)):
+        return int(obj)
+    if isinstance(obj, (np.floating,)):
+        return float(obj)
+    if isinstance(obj, np.ndarray):
+        return obj.tolist()
+    raise TypeError(f"not JSON serialisable: {type(obj).__name__}")
+
+
+def _versions():
+    import importlib.metadata as md
+    import platform
+
+    from ._version import __version__
+    out = {"seqmine": __version__, "python": platform.python_version()}
+    for pkg in ("numpy", "pandas", "scipy", "scikit-learn", "hmmlearn", "networkx", "matplotlib"):
+        try:
+            out[pkg] = md.version(pkg)
+        except md.PackageNotFoundError:  # pragma: no cover
+            out[pkg] = None
+    return out
+
+
+def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
+    """Run the whole pipeline and write the output folder.
+
+    Parameters
+    ----------
+    events_path, outcomes_path : str or Path
+    out_dir : str or Path
+        Created if missing; the contract files in it are replaced.
+    config : dict, optional
+        A configuration as from :func:`seqmine.config.load_config`; defaults otherwise.
+    quiet : bool
+        No progress bars.
+
+    Returns
+    -------
+    AnalysisResult
+    """
+    from pathlib import Path
+
+    from ._progress import set_quiet
+    from .config import default_config
+    from .encode import Encoder, load_mapping
+    from .load import load_events
+    from .outcomes import load_outcomes
+    from .privacy import pseudonymize_frame, read_key
+
+    if quiet:
+        set_quiet(True)
+    cfg = config or default_config()
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    files = []
+    ev_cfg, oc_cfg, en_cfg = cfg["events"], cfg["outcomes"], cfg["encode"]
+
+    # 1. load and validate
+    columns = {role: ev_cfg[f"{role}_column"] for role in
+               ("learner", "time", "action", "session", "target", "channel")}
+    loaded = load_events(events_path, columns=columns, format=ev_cfg["format"],
+                         delimiter=ev_cfg["delimiter"], encoding=ev_cfg["encoding"],
+                         duplicates=ev_cfg["duplicates"], max_bytes=ev_cfg["max_bytes"])
+    outcomes = load_outcomes(outcomes_path, columns={
+        k: oc_cfg[f"{k}_column"] for k in ("learner", "pre", "post", "max", "score", "label")},
+        max_score=oc_cfg["max_score"])
+    key_path = cfg["privacy"]["pseudonymize_key"]
+    if key_path:
+        key = read_key(key_path)
+        loaded.events = pseudonymize_frame(loaded.events, key).sort_values(
+            ["learner", "time"], kind="mergesort").reset_index(drop=True)
+        kind = outcomes.attrs.get("outcome_kind")
+        outcomes = pseudonymize_frame(outcomes, key)
+        outcomes.attrs["outcome_kind"] = kind
+
+    # 2. group and encode
+    rule = oc_cfg["grouping"] or ("label" if outcomes.attrs.get("outcome_kind") == "label"
+                                  else "median")
+    grouping = Grouping(rule, fraction=oc_cfg["fraction"], low=oc_cfg["low"], high=oc_cfg["high"])
+    encoder = Encoder(
+        template=en_cfg["template"],
+        mapping=load_mapping(en_cfg["mapping"]) if en_cfg["mapping"] else None,
+        collapse_repeats=en_cfg["collapse_repeats"], pause_strategy=en_cfg["pause_strategy"],
+        pause_bins=en_cfg["pause_bins"], pause_thresholds=en_cfg["pause_thresholds"],
+        implicit_pauses=tuple(en_cfg["implicit_pauses"] or ()), unit=en_cfg["unit"],
+        session_gap=en_cfg["session_gap"])
+    prepared = prepare_sequences(loaded, outcomes, encoder=encoder, grouping=grouping)
+    db = prepared.db
+    loaded.rejects.to_csv(out / "rejects.csv", index=False)
+    files.append(out / "rejects.csv")
+
+    summary = dict(prepared.summary)
+    summary["seed"] = int(cfg["seed"])
+    summary["configuration"] = cfg
+    summary["versions"] = _versions()
+    summary["pseudonymized"] = bool(key_path)
+    _write_json(out / "summary.json", summary)
+    files.append(out / "summary.json")
+    return AnalysisResult(out_dir=out, summary=summary, files=files)
