@@ -26,6 +26,7 @@ from sklearn.model_selection import StratifiedKFold
 from sklearn.pipeline import FeatureUnion, make_pipeline
 from sklearn.preprocessing import StandardScaler
 
+from ._parallel import parallel_map
 from ._progress import progress
 from ._validation import check_fraction, check_int, check_number
 from .errors import ParameterError
@@ -58,7 +59,7 @@ CLASSIFIERS = {
 def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTIONS,
              grouping=None, encoder=None, featurizers=None, classifiers=None, C=1.0,
              n_bootstrap=1000, confidence=0.95, alpha=0.05, seed=0, n_jobs=1,
-             backend=None):
+             scheduler=None):
     """Cross-validate the discovery pipeline by learner and measure early prediction.
 
     Parameters
@@ -98,11 +99,12 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
     seed : int, default 0
         Seeds the fold split, the featurizers and the bootstrap.
     n_jobs : int, default 1
-        Folds run in parallel with joblib; results are identical to the serial run.
-    backend : str, optional
-        joblib backend for ``n_jobs != 1``: ``"loky"`` (default, processes),
-        ``"threading"``, or ``"dask"`` to run the folds on the Dask cluster of the
-        active ``distributed.Client`` (local or a scheduler address).
+        Folds run in this many local processes (joblib; -1 = all cores); results are
+        identical to the serial run.
+    scheduler : str, optional
+        Run the folds on a Dask cluster: a scheduler address (``"tcp://host:8786"``)
+        or ``"local"`` for a local cluster with ``n_jobs`` workers. Results are
+        identical to the serial run.
 
     Returns
     -------
@@ -175,13 +177,10 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
         jobs.append((k, ev_tr, ev_te, oc_tr, oc_te))
     run = _FoldRunner(grouping=grouping, encoder=encoder, featurizers=featurizers,
                       classifiers=names, fractions=fractions, C=C)
-    if n_jobs == 1:
-        outs = [run(*job) for job in progress(jobs, desc="folds", unit="fold")]
+    if n_jobs == 1 and not scheduler:
+        outs = [run(job) for job in progress(jobs, desc="folds", unit="fold")]
     else:
-        from joblib import Parallel, delayed, parallel_config
-
-        with parallel_config(backend=backend or "loky"):
-            outs = Parallel(n_jobs=n_jobs)(delayed(run)(*job) for job in jobs)
+        outs = parallel_map(run, jobs, jobs=n_jobs, scheduler=scheduler)
     group_names = outs[0]["group_names"]
     for o in outs:
         if o["group_names"] != group_names:
@@ -560,7 +559,8 @@ class _FoldRunner:
         self.fractions = fractions
         self.C = C
 
-    def __call__(self, fold, ev_tr, ev_te, oc_tr, oc_te):
+    def __call__(self, job):
+        fold, ev_tr, ev_te, oc_tr, oc_te = job
         grouping = _fresh(self.grouping).fit(oc_tr)
         names = [str(g) for g in grouping.group_names_]
         g_tr = _group_series(grouping.transform(oc_tr), oc_tr)

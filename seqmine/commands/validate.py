@@ -39,8 +39,8 @@ def add_arguments(p):
     p.add_argument("--jobs", type=int, default=1, metavar="N",
                    help="folds run in parallel on N processes (-1: all cores); same results")
     p.add_argument("--scheduler", default=None, metavar="ADDRESS",
-                   help="run the folds on this Dask scheduler (e.g. tcp://host:8786) "
-                        "instead of local processes; same results")
+                   help="run the folds on this Dask scheduler (e.g. tcp://host:8786, or "
+                        "'local' for a local cluster with --jobs workers); same results")
     p.add_argument("--seed", type=int, default=0, help="seed of folds, models and bootstrap")
     p.add_argument("--bootstrap", type=int, default=1000, metavar="B",
                    help="bootstrap resamples of held-out learners (default: 1000)")
@@ -79,27 +79,12 @@ def run(args):
                             max_gap=None if args.max_gap < 0 else args.max_gap,
                             top_k=args.top_k, alpha=args.alpha),
         hmm_params=dict(n_states=args.hmm_states))
-    kw = dict(folds=args.folds, loo=args.loo, fractions=fractions,
-              grouping=_options.grouping_from_args(args, outcomes),
-              encoder=_options.encoder_from_args(args), featurizers=featurizers,
-              classifiers=classifiers, n_bootstrap=args.bootstrap, alpha=args.alpha,
-              seed=args.seed, n_jobs=args.jobs)
-    if args.scheduler:
-        try:
-            from distributed import Client
-        except ImportError:
-            raise ParameterError("--scheduler needs the 'distributed' package "
-                                 "(pip install 'seqmine[distributed]').") from None
-        try:
-            client = Client(args.scheduler, timeout=10)
-        except OSError as exc:
-            raise ParameterError(f"--scheduler {args.scheduler}: cannot connect ({exc}); "
-                                 f"check the address or drop the option.") from None
-        with client:
-            result = validate(loaded.events, outcomes, backend="dask",
-                              **{**kw, "n_jobs": -1})
-    else:
-        result = validate(loaded.events, outcomes, **kw)
+    result = validate(
+        loaded.events, outcomes, folds=args.folds, loo=args.loo, fractions=fractions,
+        grouping=_options.grouping_from_args(args, outcomes),
+        encoder=_options.encoder_from_args(args), featurizers=featurizers,
+        classifiers=classifiers, n_bootstrap=args.bootstrap, alpha=args.alpha,
+        seed=args.seed, n_jobs=args.jobs, scheduler=args.scheduler)
     out = result.save(Path(args.out))
     if not args.quiet:
         earliest = result.earliest_fraction()
