@@ -270,8 +270,17 @@ class ValidationResult:
         out = pd.concat(rows, ignore_index=True)
         return out[["classifier", "fraction", "metric", "value", "low", "high", "n_learners"]]
 
-    def earliest_fraction(self):
+    def earliest_fraction(self, *, sustained=False):
         """Smallest fraction at which each classifier beats the majority baseline.
+
+        "Beats" means the one-sided exact McNemar test rejects at ``alpha`` (see
+        :func:`early_prediction_table`).
+
+        Parameters
+        ----------
+        sustained : bool, default False
+            Only count a fraction if the classifier also beats the baseline at
+            every larger fraction.
 
         Returns
         -------
@@ -281,7 +290,11 @@ class ValidationResult:
         m = self.metrics[self.metrics["classifier"] != "majority"]
         out = {}
         for name, part in m.groupby("classifier", sort=False):
-            hits = part.loc[part["beats_baseline"], "fraction"]
+            part = part.sort_values("fraction")
+            beats = part["beats_baseline"].to_numpy(dtype=bool)
+            if sustained:
+                beats = np.logical_and.accumulate(beats[::-1])[::-1]
+            hits = part["fraction"].to_numpy()[beats]
             out[name] = float(hits.min()) if len(hits) else float("nan")
         return pd.Series(out, name="earliest_fraction", dtype=float)
 

@@ -78,9 +78,28 @@ def test_ordering_signal_is_recognised_before_the_session_ends(planted_result):
     t = planted_result.to_frame().set_index(["classifier", "fraction"])
     assert t.loc[("pattern", 0.5), "accuracy"] > t.loc[("majority", 0.5), "accuracy"]
     assert np.isnan(earliest.get("majority", np.nan))
+    sustained = planted_result.earliest_fraction(sustained=True)
+    assert (sustained >= earliest).all()
 
 
-def test_planted_pattern_in_held_out_learners_only_is_never_selected():
+def test_earliest_fraction_rules():
+    from seqmine.validate import ValidationResult
+
+    m = pd.DataFrame({"classifier": ["a"] * 3 + ["majority"] * 3, "fraction": [0.2, 0.5, 1.0] * 2,
+                      "beats_baseline": [True, False, True, False, False, False]})
+    r = ValidationResult(metrics=m, predictions=None, folds=None, selected_patterns={},
+                         encodings={}, group_names=["strong", "weak"])
+    assert r.earliest_fraction().to_dict() == {"a": 0.2}
+    assert r.earliest_fraction(sustained=True).to_dict() == {"a": 1.0}
+
+
+def _real_miner():
+    mine = pytest.importorskip("seqmine.mine")
+    return dict(TOY, miner=mine.mine, matcher=mine.match)
+
+
+@pytest.mark.parametrize("steps", [lambda: TOY, _real_miner], ids=["brute-force", "miner"])
+def test_planted_pattern_in_held_out_learners_only_is_never_selected(steps):
     ev, oc = planted_data(60, seed=2)
     grouping = MedianGrouping().fit(oc)
     lab = grouping.transform(oc)
@@ -94,7 +113,9 @@ def test_planted_pattern_in_held_out_learners_only_is_never_selected():
         t_end = ev.loc[ev.learner == lr, "time"].max()
         extra += [(lr, t_end + 1.0, "open_guide"), (lr, t_end + 2.0, "open_guide")]
     ev2 = pd.concat([ev, pd.DataFrame(extra, columns=ev.columns)], ignore_index=True)
-    r = _run(ev2, oc, featurizers=_feats(top_k=500), fractions=[1.0], n_bootstrap=10)
+    feats = default_featurizers(pattern_params={**steps(), "top_k": 500},
+                                hmm_params=dict(n_states=2, n_restarts=1, n_iter=10))
+    r = _run(ev2, oc, featurizers=feats, fractions=[1.0], n_bootstrap=10)
     sel = {k: [p for p in v if "open_guide" in p] for k, v in r.selected_patterns.items()}
     assert sel[0] == []
     # the same pattern is selected where it is in the training data (the check can fail)
