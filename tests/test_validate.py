@@ -79,7 +79,9 @@ def test_ordering_signal_is_recognised_before_the_session_ends(planted_result):
     assert t.loc[("pattern", 0.5), "accuracy"] > t.loc[("majority", 0.5), "accuracy"]
     assert np.isnan(earliest.get("majority", np.nan))
     sustained = planted_result.earliest_fraction(sustained=True)
-    assert (sustained >= earliest).all()
+    both = earliest.notna() & sustained.notna()
+    assert (sustained[both] >= earliest[both]).all()
+    assert not (sustained.notna() & earliest.isna()).any()
 
 
 def test_earliest_fraction_rules():

@@ -19,6 +19,15 @@ from seqmine.validate import default_featurizers, validate  # noqa: E402
 FAST_HMM = dict(n_states=2, n_restarts=1, n_iter=20)
 
 
+@pytest.fixture(autouse=True)
+def _restore_quiet():
+    # the command line's --quiet switches progress output off process-wide
+    from seqmine._progress import is_quiet, set_quiet
+    before = is_quiet()
+    yield
+    set_quiet(before)
+
+
 def _greenhouse(n, seed):
     d = generate_greenhouse(n, seed=seed)
     ev = d.events.assign(time=parse_times(d.events["time"])[0])
