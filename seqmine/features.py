@@ -62,8 +62,14 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
         Span limit in tokens.
     skip_pauses : bool, default False
         Pause tokens do not count towards gaps and windows.
+    start_with_action, end_with_action, closed, maximal : bool, default False
+        Further mining filters, passed to the miner only when switched on.
+    max_patterns : int or None, default None
+        Pattern-explosion guard of the miner (None = the miner's default).
     correction : str, default "bh"
         Multiple-testing correction passed to the scorer.
+    n_permutations : int, default 1000
+        Permutations when ``correction="westfall-young"``.
     alpha : float in (0, 1], default 0.05
         Patterns with ``q_value <= alpha`` are selected.
     top_k : int, default 30
@@ -98,7 +104,9 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
     """
 
     def __init__(self, *, min_support=0.1, min_length=1, max_length=3, max_gap=0,
-                 max_window=None, skip_pauses=False, correction="bh", alpha=0.05, top_k=30,
+                 max_window=None, skip_pauses=False, start_with_action=False,
+                 end_with_action=False, closed=False, maximal=False, max_patterns=None,
+                 correction="bh", alpha=0.05, n_permutations=1000, top_k=30,
                  value="rate", seed=0, miner=None, matcher=None, scorer=None):
         self.min_support = min_support
         self.min_length = min_length
@@ -106,8 +114,14 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
         self.max_gap = max_gap
         self.max_window = max_window
         self.skip_pauses = skip_pauses
+        self.start_with_action = start_with_action
+        self.end_with_action = end_with_action
+        self.closed = closed
+        self.maximal = maximal
+        self.max_patterns = max_patterns
         self.correction = correction
         self.alpha = alpha
+        self.n_permutations = n_permutations
         self.top_k = top_k
         self.value = value
         self.seed = seed
@@ -126,10 +140,15 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
         codes, names = group_codes(db, y)
         db = db.with_groups(codes, names)
         miner = self.miner or _default_miner()
-        scorer = self.scorer or _ContrastScorer(self.correction, self.alpha, self.seed)
+        scorer = self.scorer or _ContrastScorer(self.correction, self.alpha, self.seed,
+                                                self.n_permutations)
+        options = {k: True for k in ("start_with_action", "end_with_action", "closed",
+                                     "maximal") if getattr(self, k)}
+        if self.max_patterns is not None:
+            options["max_patterns"] = self.max_patterns
         mined = miner(db, min_support=self.min_support, min_length=self.min_length,
                       max_length=self.max_length, max_gap=self.max_gap,
-                      max_window=self.max_window, skip_pauses=self.skip_pauses)
+                      max_window=self.max_window, skip_pauses=self.skip_pauses, **options)
         self.n_mined_ = int(mined.n_patterns)
         if mined.n_patterns:
             scores = pd.DataFrame(scorer(mined, db))
@@ -521,13 +540,15 @@ def _default_matcher():
 class _ContrastScorer:
     """Calls :func:`seqmine.contrast.contrast` with fixed options (picklable)."""
 
-    def __init__(self, correction, alpha, seed):
+    def __init__(self, correction, alpha, seed, n_permutations):
         self.correction = correction
         self.alpha = alpha
         self.seed = seed
+        self.n_permutations = n_permutations
 
     def __call__(self, patterns, db):
         from .contrast import contrast  # noqa: PLC0415
 
         return contrast(patterns, db, correction=self.correction, alpha=self.alpha,
-                        seed=self.seed, stability_resamples=0, redundancy=None)
+                        seed=self.seed, n_permutations=self.n_permutations,
+                        stability_resamples=0, redundancy=None)

@@ -298,6 +298,40 @@ class ValidationResult:
             out[name] = float(hits.min()) if len(hits) else float("nan")
         return pd.Series(out, name="earliest_fraction", dtype=float)
 
+    def summary(self):
+        """A JSON-ready digest (for ``summary.json`` and the report).
+
+        Keys: ``settings``, ``group_names``, ``earliest_fraction`` and
+        ``earliest_fraction_sustained`` (classifier -> fraction or None),
+        ``accuracy`` and ``balanced_accuracy`` (classifier -> fraction -> value),
+        ``baseline_accuracy`` (fraction -> value), ``patterns_selected_per_fold``
+        and ``runtime_seconds`` (rounded to 0.1 s).
+        """
+        m = self.metrics
+
+        def nested(col):
+            return {name: {f"{f:g}": round(float(v), 6) for f, v in
+                           zip(part["fraction"], part[col])}
+                    for name, part in m.groupby("classifier", sort=False)}
+
+        def clean(series):
+            return {k: (None if np.isnan(v) else float(v)) for k, v in series.items()}
+
+        base = m[m["classifier"] == "majority"]
+        return {
+            "settings": dict(self.settings),
+            "group_names": list(self.group_names),
+            "earliest_fraction": clean(self.earliest_fraction()),
+            "earliest_fraction_sustained": clean(self.earliest_fraction(sustained=True)),
+            "accuracy": nested("accuracy"),
+            "balanced_accuracy": nested("balanced_accuracy"),
+            "baseline_accuracy": {f"{f:g}": round(float(v), 6) for f, v in
+                                  zip(base["fraction"], base["accuracy"])},
+            "patterns_selected_per_fold": {str(k): len(v) for k, v in
+                                           sorted(self.selected_patterns.items())},
+            "runtime_seconds": round(float(self.runtime_seconds), 1),
+        }
+
     def save(self, folder):
         """Write ``early_prediction.csv``, ``early_prediction_long.csv``,
         ``validation_predictions.csv`` and ``validation_folds.json`` to ``folder``."""
@@ -306,11 +340,12 @@ class ValidationResult:
         self.metrics.to_csv(folder / "early_prediction.csv", index=False)
         self.to_long().to_csv(folder / "early_prediction_long.csv", index=False)
         self.predictions.to_csv(folder / "validation_predictions.csv", index=False)
+        digest = self.summary()
         info = {
             "settings": self.settings,
             "group_names": self.group_names,
-            "earliest_fraction": {k: (None if np.isnan(v) else v)
-                                  for k, v in self.earliest_fraction().items()},
+            "earliest_fraction": digest["earliest_fraction"],
+            "earliest_fraction_sustained": digest["earliest_fraction_sustained"],
             "folds": [
                 {"fold": int(k),
                  "held_out": self.folds.loc[self.folds["fold"] == k, "learner"].tolist(),

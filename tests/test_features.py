@@ -183,3 +183,18 @@ def test_hmm_featurizer_is_deterministic_and_checks_params():
         HMMLikelihoodFeaturizer(n_states=0).fit(db, y)
     with pytest.raises(ParameterError, match="'backend' parameter"):
         HMMLikelihoodFeaturizer(backend="gpu").fit(db, y)
+
+
+def test_pattern_featurizer_with_the_real_stages_and_their_options():
+    pytest.importorskip("seqmine.contrast")
+    db, y = _db()
+    f = PatternFeaturizer(max_length=3, min_length=2, start_with_action=True,
+                          correction="westfall-young", n_permutations=200, top_k=50).fit(db, y)
+    assert f.patterns_ and all(len(p) >= 2 and not p[0].startswith("pause:")
+                               for p in f.patterns_)
+    assert ("a", "b", "c") in f.patterns_
+    # counts agree with the brute-force contiguous matcher used elsewhere in the tests
+    toy = PatternFeaturizer(value="count", **TOY).fit(db, y)
+    toy.patterns_ = list(f.patterns_)
+    real = clone(f).set_params(value="count").fit(db, y)
+    np.testing.assert_array_equal(real.transform(db), toy.transform(db))

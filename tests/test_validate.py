@@ -165,6 +165,11 @@ def test_same_seed_same_result_and_save(planted, planted_result, tmp_path):
     info = json.loads((out / "validation_folds.json").read_text())
     assert len(info["folds"]) == 3 and info["settings"]["seed"] == 0
     assert info["earliest_fraction"]["pattern"] == planted_result.earliest_fraction()["pattern"]
+    digest = json.loads(json.dumps(planted_result.summary()))
+    assert digest["accuracy"]["pattern"]["0.5"] == pytest.approx(
+        planted_result.to_frame().query("classifier == 'pattern' and fraction == 0.5")
+        ["accuracy"].item())
+    assert set(digest["baseline_accuracy"]) == {"0.25", "0.5", "1"}
 
 
 def test_pipeline_classifier_matches_the_fold_runner(planted):
