@@ -49,12 +49,9 @@ def build_parser():
         p = sub.add_parser(mod.NAME, help=mod.HELP, description=getattr(mod, "DESCRIPTION", mod.HELP),
                            parents=[common])
         mod.add_arguments(p)
-        p.set_defaults(_run=mod.run)
+        # the defaults let a command tell which flags were given (config overrides)
+        p.set_defaults(_run=mod.run, _defaults={a.dest: a.default for a in p._actions})
     return parser
-
-
-class _Parser(argparse.ArgumentParser):
-    pass
 
 
 def _one_line(msg):

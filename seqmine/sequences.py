@@ -241,15 +241,14 @@ class SequenceDB:
         csum = np.cumsum(act)
         start_cum = np.concatenate([[0], csum])[self.offsets[:-1]]
         within = csum - start_cum[seq]
-        n_act = np.add.reduceat(act, self.offsets[:-1]) if self.n_tokens else np.zeros(0, np.int64)
-        n_act = np.where(self.lengths > 0, n_act, 0)
+        n_act = np.bincount(seq, weights=act, minlength=self.n_sequences).astype(np.int64)
         keep_n = np.ceil(np.round(fraction * n_act, 9)).astype(np.int64)
         keep_n = np.minimum(np.maximum(keep_n, np.minimum(n_act, 1)), n_act)
         is_act = act.astype(bool)
         # keep an action if it is among the first keep_n; keep a pause if a later
         # kept action follows it, i.e. the number of actions before it < keep_n
         keep = np.where(is_act, within <= keep_n[seq], within < keep_n[seq])
-        lens = np.bincount(seq[keep], minlength=self.n_sequences) if self.n_tokens else np.zeros(self.n_sequences, np.int64)
+        lens = np.bincount(seq[keep], minlength=self.n_sequences)
         new_off = np.zeros(self.n_sequences + 1, dtype=np.int64)
         np.cumsum(lens, out=new_off[1:])
         return SequenceDB(

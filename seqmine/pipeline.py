@@ -1,0 +1,244 @@
+"""The pipeline that ties the stages together (``seqmine analyze`` / ``seqmine demo``)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from .errors import DataFileError
+from .outcomes import Grouping, match_learners
+
+__all__ = ["Prepared", "prepare_sequences", "analyze", "AnalysisResult", "MIN_GROUP_LEARNERS"]
+
+#: Fewest learners a group may have before the run stops with a message.
+MIN_GROUP_LEARNERS = 2
+
+
+@dataclass
+class Prepared:
+    """Loaded, grouped and encoded data plus its accounting."""
+
+    db: object
+    events: pd.DataFrame
+    outcomes: pd.DataFrame
+    groups: pd.Series
+    rejects: pd.DataFrame
+    summary: dict
+    encoder: object
+    grouping: object
+
+
+def prepare_sequences(load_result, outcomes, *, encoder, grouping=None, grouping_factory=None,
+                      min_group_learners=MIN_GROUP_LEARNERS):
+    """Group the learners and encode their events.
+
+    Parameters
+    ----------
+    load_result : LoadResult
+    outcomes : DataFrame from :func:`load_outcomes`
+    encoder : Encoder (unfitted)
+    grouping : Grouping, optional
+    grouping_factory : callable outcomes -> Grouping, optional
+
+    Returns
+    -------
+    Prepared
+
+    Raises
+    ------
+    DataFileError
+        When no learner has both events and an outcome, or a group is empty or has
+        fewer than ``min_group_learners`` learners with events.
+    """
+    if grouping is None:
+        grouping = grouping_factory(outcomes) if grouping_factory else Grouping()
+    groups = grouping.fit(outcomes).transform(outcomes)
+    mapping, report = match_learners(load_result.events, outcomes, groups)
+    names = list(grouping.group_names_)
+    if not mapping:
+        raise DataFileError(
+            "No learner has both events and a group: check that the learner identifiers "
+            "in the events and the outcomes match (e.g. same spelling and case).")
+    per = report["learners_per_group"]
+    if len(names) < 2:
+        raise DataFileError(
+            f"The outcomes form only one group ({', '.join(map(repr, names))}); comparing "
+            f"groups needs at least two: check the label column or use pre/post scores.")
+    for name in names:
+        if per.get(name, 0) < min_group_learners:
+            raise DataFileError(
+                f"Group {name!r} has {per.get(name, 0)} learner(s) with events (at least "
+                f"{min_group_learners} needed); check the outcomes or choose another "
+                f"--grouping rule.")
+    db = encoder.fit(load_result.events).transform(load_result.events, groups=mapping,
+                                                   group_names=names)
+    summary = dict(load_result.summary())
+    summary.update({
+        "sequences": int(db.n_sequences),
+        "tokens": int(db.n_tokens),
+        "vocabulary": int(len(db.vocab)),
+        "group_names": names,
+        "sequences_per_group": {n: int(c) for n, c in zip(names, db.group_sizes())},
+        "sequences_without_group": int((db.groups < 0).sum()),
+        "learners_per_group": per,
+        "grouping": {"rule": grouping.rule, **{k: float(v) for k, v in
+                                               getattr(grouping, "thresholds_", {}).items()}},
+        "outcome_kind": outcomes.attrs.get("outcome_kind", ""),
+        "events_without_outcome": len(report["events_without_outcome"]),
+        "outcomes_without_events": len(report["outcomes_without_events"]),
+        "outcome_undefined": len(report["outcome_undefined"]),
+        "learners_between_cut_points": len(report["no_group"]),
+        "pause_edges_seconds": [float(e) for e in encoder.edges_],
+        "pause_labels": list(encoder.labels_),
+    })
+    if "gain" in outcomes.columns:
+        g = pd.Series(outcomes["gain"].to_numpy(float), index=outcomes["learner"].to_numpy())
+        summary["gain_by_group"] = {
+            n: _describe(g[groups.to_numpy() == n].to_numpy()) for n in names}
+    return Prepared(db=db, events=load_result.events, outcomes=outcomes, groups=groups,
+                    rejects=load_result.rejects, summary=summary, encoder=encoder,
+                    grouping=grouping)
+
+
+def _describe(values):
+    v = values[np.isfinite(values)]
+    if len(v) == 0:
+        return {"n": 0}
+    q = np.quantile(v, [0, 0.25, 0.5, 0.75, 1])
+    return {"n": int(len(v)), "mean": round(float(v.mean()), 6),
+            "min": round(float(q[0]), 6), "q1": round(float(q[1]), 6),
+            "median": round(float(q[2]), 6), "q3": round(float(q[3]), 6),
+            "max": round(float(q[4]), 6)}
+
+
+# ---------------------------------------------------------------------- analyze
+@dataclass
+class AnalysisResult:
+    """What :func:`analyze` wrote and the headline counts."""
+
+    out_dir: object
+    summary: dict
+    files: list
+
+    def message(self):
+        """One-paragraph description for the command line."""
+        s = self.summary
+        rep = [f for f in self.files if str(f).endswith("report.html")]
+        lines = [f"seqmine: {s.get('rows_kept', 0)} of {s.get('rows_in', 0)} rows kept "
+                 f"({s.get('rows_rejected', 0)} rejected), {s.get('sequences', 0)} sequences, "
+                 f"{s.get('patterns_mined', 0)} patterns mined, "
+                 f"{s.get('patterns_significant', 0)} significant."]
+        lines.append(f"Results in {self.out_dir}")
+        if rep:
+            lines.append(f"Report: {rep[0]}")
+        return "\n".join(lines)
+
+
+def _write_json(path, data):
+    import json
+    path.write_text(json.dumps(data, indent=2, sort_keys=True, ensure_ascii=False,
+                               default=_json_default) + "\n", encoding="utf-8")
+
+
+def _json_default(obj):
+    if isinstance(obj, (np.integer,)):
+        return int(obj)
+    if isinstance(obj, (np.floating,)):
+        return float(obj)
+    if isinstance(obj, np.ndarray):
+        return obj.tolist()
+    raise TypeError(f"not JSON serialisable: {type(obj).__name__}")
+
+
+def _versions():
+    import importlib.metadata as md
+    import platform
+
+    from ._version import __version__
+    out = {"seqmine": __version__, "python": platform.python_version()}
+    for pkg in ("numpy", "pandas", "scipy", "scikit-learn", "hmmlearn", "networkx", "matplotlib"):
+        try:
+            out[pkg] = md.version(pkg)
+        except md.PackageNotFoundError:  # pragma: no cover
+            out[pkg] = None
+    return out
+
+
+def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
+    """Run the whole pipeline and write the output folder.
+
+    Parameters
+    ----------
+    events_path, outcomes_path : str or Path
+    out_dir : str or Path
+        Created if missing; the contract files in it are replaced.
+    config : dict, optional
+        A configuration as from :func:`seqmine.config.load_config`; defaults otherwise.
+    quiet : bool
+        No progress bars.
+
+    Returns
+    -------
+    AnalysisResult
+    """
+    from pathlib import Path
+
+    from ._progress import set_quiet
+    from .config import default_config
+    from .encode import Encoder, load_mapping
+    from .load import load_events
+    from .outcomes import load_outcomes
+    from .privacy import pseudonymize_frame, read_key
+
+    if quiet:
+        set_quiet(True)
+    cfg = config or default_config()
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    files = []
+    ev_cfg, oc_cfg, en_cfg = cfg["events"], cfg["outcomes"], cfg["encode"]
+
+    # 1. load and validate
+    columns = {role: ev_cfg[f"{role}_column"] for role in
+               ("learner", "time", "action", "session", "target", "channel")}
+    loaded = load_events(events_path, columns=columns, format=ev_cfg["format"],
+                         delimiter=ev_cfg["delimiter"], encoding=ev_cfg["encoding"],
+                         duplicates=ev_cfg["duplicates"], max_bytes=ev_cfg["max_bytes"])
+    outcomes = load_outcomes(outcomes_path, columns={
+        k: oc_cfg[f"{k}_column"] for k in ("learner", "pre", "post", "max", "score", "label")},
+        max_score=oc_cfg["max_score"])
+    key_path = cfg["privacy"]["pseudonymize_key"]
+    if key_path:
+        key = read_key(key_path)
+        loaded.events = pseudonymize_frame(loaded.events, key).sort_values(
+            ["learner", "time"], kind="mergesort").reset_index(drop=True)
+        kind = outcomes.attrs.get("outcome_kind")
+        outcomes = pseudonymize_frame(outcomes, key)
+        outcomes.attrs["outcome_kind"] = kind
+
+    # 2. group and encode
+    rule = oc_cfg["grouping"] or ("label" if outcomes.attrs.get("outcome_kind") == "label"
+                                  else "median")
+    grouping = Grouping(rule, fraction=oc_cfg["fraction"], low=oc_cfg["low"], high=oc_cfg["high"])
+    encoder = Encoder(
+        template=en_cfg["template"],
+        mapping=load_mapping(en_cfg["mapping"]) if en_cfg["mapping"] else None,
+        collapse_repeats=en_cfg["collapse_repeats"], pause_strategy=en_cfg["pause_strategy"],
+        pause_bins=en_cfg["pause_bins"], pause_thresholds=en_cfg["pause_thresholds"],
+        implicit_pauses=tuple(en_cfg["implicit_pauses"] or ()), unit=en_cfg["unit"],
+        session_gap=en_cfg["session_gap"])
+    prepared = prepare_sequences(loaded, outcomes, encoder=encoder, grouping=grouping)
+    db = prepared.db
+    loaded.rejects.to_csv(out / "rejects.csv", index=False)
+    files.append(out / "rejects.csv")
+
+    summary = dict(prepared.summary)
+    summary["seed"] = int(cfg["seed"])
+    summary["configuration"] = cfg
+    summary["versions"] = _versions()
+    summary["pseudonymized"] = bool(key_path)
+    _write_json(out / "summary.json", summary)
+    files.append(out / "summary.json")
+    return AnalysisResult(out_dir=out, summary=summary, files=files)
