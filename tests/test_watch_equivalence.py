@@ -173,3 +173,74 @@ def test_one_partial_match_per_node_bounds_memory():
     # one entry per trie node that has children: a, a>b, a>b>a
     assert len(w._learners["x"].nodes) <= w.n_nodes_
     assert all(isinstance(v, tuple) for v in w._learners["x"].nodes.values())
+
+
+def _encoder_counts(events, doc):
+    """Offline counts from the project's Encoder (rebuilt from the file's encoding)."""
+    import pandas as pd
+
+    from seqmine.encode import Encoder
+
+    if not events:
+        return Counter(), None
+    df = pd.DataFrame(events)
+    for col in ("session", "target", "channel"):
+        if col not in df.columns:
+            df[col] = ""
+    # the loader rejects exact duplicates (keeping the first); the Encoder expects that
+    df = df[~df.duplicated(["learner", "time", "action", "session", "target", "channel"])]
+    db = Encoder.from_encoding(doc["encoding"]).transform(df)
+    m = doc["matching"]
+    counts = Counter()
+    for i in range(db.n_sequences):
+        names = db.decode(i)
+        for d in doc["detectors"]:
+            n = brute_instance_count(names, d["tokens"], m["max_gap"], m["max_window"],
+                                     m["skip_pauses"])
+            if n:
+                counts[(str(db.learners[i]), d["id"])] += n
+    return counts, db
+
+
+@settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(scenario())
+def test_watcher_counts_equal_counts_on_the_encoders_token_stream(case):
+    events, doc = case
+    live, _ = _watch_counts(events, doc)
+    offline, db = _encoder_counts(events, doc)
+    assert live == offline
+    if db is not None:
+        # the test's reference tokeniser agrees with the Encoder token for token
+        ref = reference_tokens(events, doc["encoding"])
+        flat = [s for lr in sorted(ref) for s in ref[lr]]
+        assert [[tok for tok, _t in s] for s in flat] == [db.decode(i) for i in range(db.n_sequences)]
+        assert [[t for _tok, t in s] for s in flat] == [db.times[db.offsets[i]:db.offsets[i + 1]].tolist()
+                                                         for i in range(db.n_sequences)]
+
+
+def _match_counts(db, doc):
+    """Offline counts from the miner's matcher on the Encoder's SequenceDB."""
+    mine = pytest.importorskip("seqmine.mine", reason="seqmine.mine (the miner) is not merged yet")
+    m = doc["matching"]
+    index = {v: i for i, v in enumerate(db.vocab)}
+    usable = [d for d in doc["detectors"] if all(t in index for t in d["tokens"])]
+    counts = Counter()
+    if not usable or db.n_sequences == 0:
+        return counts
+    ps = mine.match(db, [tuple(index[t] for t in d["tokens"]) for d in usable],
+                    max_gap=m["max_gap"], max_window=m["max_window"], skip_pauses=m["skip_pauses"])
+    mat = ps.counts.tocoo()
+    for i, j, v in zip(mat.row, mat.col, mat.data):
+        if v:
+            counts[(str(db.learners[i]), usable[j]["id"])] += int(v)
+    return counts
+
+
+@settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(scenario())
+def test_watcher_counts_equal_the_miners_match_counts(case):
+    events, doc = case
+    live, _ = _watch_counts(events, doc)
+    _, db = _encoder_counts(events, doc)
+    offline = _match_counts(db, doc) if db is not None else Counter()
+    assert live == offline
