@@ -35,13 +35,14 @@ import json
 import math
 import numbers
 import string
+import warnings
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
 from ._validation import check_int, check_number
-from .errors import ColumnError, DataFileError, ParameterError
+from .errors import ColumnError, DataFileError, ParameterError, SeqmineWarning
 from .patterns import PATTERN_SEPARATOR
 from .sequences import PAUSE_PREFIX
 
@@ -88,7 +89,8 @@ def select_detectors(contrast_table, *, max_q=0.05, min_effect=0.2, effect="cohe
     value of its ``effect`` column is at least ``min_effect``, its ``stability`` is at
     least ``min_stability``, its length is allowed and its favoured group is in
     ``groups``. Kept rows are ranked by absolute effect (largest first), then q value,
-    then pattern name; with ``drop_redundant`` a row is dropped when its pattern
+    then pattern name; with ``drop_redundant`` a row is dropped when the contrast
+    table marks it redundant (a non-empty ``redundant_of``), or when its pattern
     contains, or is contained in, an already kept pattern favouring the same group
     (as a subsequence), so one behaviour yields one detector.
 
@@ -159,7 +161,15 @@ def select_detectors(contrast_table, *, max_q=0.05, min_effect=0.2, effect="cohe
     keep = (favours != "").to_numpy() & (q <= max_q) & (eff >= min_effect)
     if min_stability > 0:
         stab = pd.to_numeric(t["stability"], errors="coerce").to_numpy(float)
+        if len(stab) and np.isnan(stab).all():
+            warnings.warn("The contrast table has no stability values (resampling was "
+                          "skipped), so no pattern passes min_stability; pass "
+                          "min_stability=0 (--min-stability 0) or compute stability.",
+                          SeqmineWarning, stacklevel=2)
         keep &= stab >= min_stability
+    if drop_redundant and "redundant_of" in t.columns:
+        red = t["redundant_of"].astype(object).where(t["redundant_of"].notna(), "")
+        keep &= (red.astype(str).str.strip() == "").to_numpy()
     if lengths is not None:
         keep &= _length_mask(lens, lengths)
     if groups is not None:

@@ -297,7 +297,7 @@ class Watcher:
                 raise EventError(
                     f"learner {learner!r}: time {traw!r} is {st.raw_time - t:g} s before the "
                     f"learner's latest event (tolerance {self.out_of_order_tolerance:g} s); "
-                    f"event not processed")
+                    f"events are not reordered")
         g = event.get
         unit_session = self._unit_session
         if self.reject_duplicates or unit_session or not self._simple_template:
@@ -311,7 +311,7 @@ class Watcher:
                         self.stats["rejected"] += 1
                         self.stats["duplicates"] += 1
                         raise EventError(f"learner {learner!r}: duplicate of an earlier event "
-                                         f"at time {traw!r}; event not processed")
+                                         f"at time {traw!r}")
                     st.dup_keys.add(key)
                 elif t > st.dup_time:
                     st.dup_time = t
