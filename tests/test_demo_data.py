@@ -7,16 +7,20 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy.stats import fisher_exact
 
 from seqmine.demo_data import (
+    _within_cumsum,
     ACTIONS,
     BEHAVIOURS,
     GreenhouseData,
     generate_greenhouse,
+    planted_patterns,
     write_greenhouse,
 )
-from seqmine.errors import ParameterError
+from seqmine.errors import DataFileError, ParameterError
 
 SHIPPED = Path(__file__).resolve().parents[1] / "datasets" / "greenhouse"
 SHIPPED_SEED = 20261202
@@ -144,6 +148,7 @@ def test_ground_truth_json_is_plain_and_sorted():
     assert gt["generator"]["seed"] == SHIPPED_SEED
     assert gt["generator"]["n_learners"] == SHIPPED_N
     assert "synthetic" in gt["about"].lower()
+    assert gt["matching"]["max_gap"] == 0
 
 
 # ---------------------------------------------------------------------------------
@@ -189,19 +194,26 @@ def test_outcomes_valid(small):
     assert ((o["pre"] >= 0) & (o["pre"] <= o["max"])).all()
     assert ((o["post"] >= 0) & (o["post"] <= o["max"])).all()
     assert (o["max"] == 20).all()
-    # pre == max is kept rare and counted in the ground truth
+    # pre == max is planted for round(0.5 %) of learners, counted in the ground truth
     n_full = int((o["pre"] == o["max"]).sum())
-    assert n_full == small.ground_truth["counts"]["pre_equals_max"]
-    assert n_full <= 0.01 * len(o)
+    assert n_full == small.ground_truth["counts"]["pre_equals_max"] == 2
 
 
-def test_pre_equals_max_counted_on_large_set():
-    d = generate_greenhouse(4000, seed=11, events_per_learner=(10, 12))
-    o = d.outcomes
-    n_full = int((o["pre"] == o["max"]).sum())
-    assert n_full == d.ground_truth["counts"]["pre_equals_max"]
-    assert n_full <= 0.005 * len(o)
-    assert d.ground_truth["grouping"]["no_group_pre_equals_max"] == n_full
+@pytest.mark.parametrize("n", [1, 99, 4000])
+def test_pre_equals_max_rare_planted_and_left_out_of_groups(n):
+    d = generate_greenhouse(n, seed=11, events_per_learner=(10, 12))
+    o = d.outcomes.set_index("learner")
+    full = o.index[o["pre"] == o["max"]]
+    planted = int(np.floor(0.005 * n + 0.5))
+    top = d.learners.sort_values("tendency", ascending=False)["learner"][:planted]
+    assert set(top) <= set(full)
+    # binomial pre scores reach the maximum by chance about once in 10^5 learners
+    assert planted <= len(full) <= planted + max(1, 0.002 * n)
+    assert (o.loc[full, "post"] == o.loc[full, "max"]).all()
+    gt = d.ground_truth
+    assert gt["counts"]["pre_equals_max"] == len(full)
+    assert gt["grouping"]["no_group_pre_equals_max"] == len(full)
+    assert gt["grouping"]["strong"] + gt["grouping"]["weak"] + len(full) == n
 
 
 # ---------------------------------------------------------------------------------
@@ -349,3 +361,114 @@ def test_start_zone_handled():
     c = generate_greenhouse(5, seed=1, start="2026-03-02T09:00:00")
     pd.testing.assert_frame_equal(a.events, b.events)
     pd.testing.assert_frame_equal(b.events, c.events)
+
+
+# ---------------------------------------------------------------------------------
+# planted_patterns
+
+
+def test_planted_patterns_table_from_file_and_dict(small):
+    from_file = planted_patterns(SHIPPED / "ground_truth.json")
+    from_dict = planted_patterns(small.ground_truth)
+    pd.testing.assert_frame_equal(from_file, from_dict)
+    assert list(from_file.columns) == ["behaviour", "kind", "direction", "role", "pattern",
+                                       "length", "share_strong", "share_weak"]
+    assert from_file["behaviour"].tolist() == list(BEHAVIOURS)
+    assert (from_file["role"] == "key").all()
+    row = from_file.set_index("behaviour").loc["settings_burst"]
+    assert row["pattern"] == "set_temperature > advance_week > reset"
+    assert row["length"] == 3 and row["direction"] == "weak"
+    assert row["share_weak"] > row["share_strong"]
+    full = planted_patterns(small.ground_truth, variants=True)
+    assert (full["role"] == "variant").sum() == sum(
+        len(b["variants"]) for b in small.ground_truth["behaviours"])
+    assert full.loc[full["role"] == "variant", "share_strong"].isna().all()
+
+
+def test_planted_patterns_bad_input(tmp_path):
+    with pytest.raises(DataFileError, match=r"nope\.json: cannot read the ground truth"):
+        planted_patterns(tmp_path / "nope.json")
+    bad = tmp_path / "bad.json"
+    bad.write_text("{not json", encoding="utf-8")
+    with pytest.raises(DataFileError, match=r"bad\.json: cannot read the ground truth"):
+        planted_patterns(bad)
+    with pytest.raises(DataFileError, match=r"lacks 'behaviours'"):
+        planted_patterns({"behaviours": [{"name": "x"}]})
+
+
+# ---------------------------------------------------------------------------------
+# sessions
+
+
+def test_sessions_split_between_episodes_one_week_later():
+    plain = generate_greenhouse(200, seed=8)
+    split = generate_greenhouse(200, seed=8, sessions=True)
+    ev = split.events
+    assert list(ev.columns) == ["learner", "time", "action", "target", "session"]
+    assert set(ev["session"]) == {"s1", "s2"}
+    # same work, scores and planted counts; only times move and the column is added
+    key = ["learner", "action", "target"]
+    a = plain.events.sort_values(["learner", "time"], kind="stable")[key]
+    b = ev.sort_values(["learner", "time"], kind="stable")[key]
+    assert a.reset_index(drop=True).equals(b.reset_index(drop=True))
+    pd.testing.assert_frame_equal(plain.outcomes, split.outcomes)
+    assert plain.ground_truth["behaviours"] == split.ground_truth["behaviours"]
+    assert split.ground_truth["generator"]["sessions"] is True
+    assert ev["time"].is_monotonic_increasing
+    per = ev.groupby(["learner", "session"])["time"].agg(["min", "max", "size"]).unstack()
+    two = per["size"]["s2"].notna()
+    # share of learners with a second session: 0.3 configured; 4-sigma binomial bound
+    assert abs(two.mean() - 0.3) < 4 * np.sqrt(0.3 * 0.7 / 200)
+    gap = per["min"]["s2"][two] - per["max"]["s1"][two]
+    assert (gap >= pd.Timedelta(days=6)).all()
+    n_ev = per["size"].sum(axis=1)
+    assert (per["size"]["s1"][two] >= n_ev[two] // 2).all()
+    nsess = split.learners.set_index("learner")["n_sessions"]
+    assert (nsess[two.index[two]] == 2).all() and (nsess[two.index[~two]] == 1).all()
+    # the split never cuts a planted episode (a cut would turn a short pause inside it
+    # into a week-long one and lose the key pattern)
+    toks_split, edges_split = tokenise(ev)
+    toks_plain, edges_plain = tokenise(plain.events)
+    assert list(edges_split) == list(edges_plain)
+    for b in split.ground_truth["behaviours"]:
+        for learner in toks_plain:
+            assert count_contiguous(toks_split[learner], b["key_pattern"]) == \
+                count_contiguous(toks_plain[learner], b["key_pattern"])
+
+
+def test_sessions_must_be_bool():
+    with pytest.raises(ParameterError, match=r"'sessions' parameter.*True or False"):
+        generate_greenhouse(3, sessions="yes")
+
+
+# ---------------------------------------------------------------------------------
+# internals checked against pandas
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.tuples(st.integers(0, 5), st.integers(0, 50)), max_size=40))
+def test_within_cumsum_matches_pandas_groupby(rows):
+    rows = sorted(rows, key=lambda r: r[0])
+    group = np.array([r[0] for r in rows], dtype=np.int64)
+    values = np.array([r[1] for r in rows], dtype=np.int64)
+    got = _within_cumsum(values, group, 6)
+    # reference: pandas groupby cumulative sum
+    ref = pd.Series(values).groupby(group).cumsum().to_numpy() if len(rows) else values
+    assert got.tolist() == ref.tolist()
+
+
+def test_pause_contexts_follow_configured_lognormals(small):
+    """Gaps inside decorating runs (short context) and after a controlled comparison
+    (long context) have the configured medians (2 s and 60 s) up to rounding."""
+    ev = small.events.sort_values(["learner", "time"], kind="stable").reset_index(drop=True)
+    t = (ev["time"] - ev["time"].iloc[0]).dt.total_seconds().to_numpy()
+    same = ev["learner"].to_numpy()[1:] == ev["learner"].to_numpy()[:-1]
+    gap = np.diff(t)
+    act = ev["action"].to_numpy()
+    paint = same & (act[:-1] == "paint_pot") & (act[1:] == "paint_pot")
+    assert 1.5 <= np.median(gap[paint]) <= 2.5
+    cc = np.zeros(len(gap), dtype=bool)
+    cc[2:] = (same[2:] & np.isin(act[:-3], ["set_light", "set_water", "set_temperature"])
+              & (act[1:-2] == "advance_week") & np.char.startswith(act[2:-1].astype(str),
+                                                                   "measure_"))
+    assert 50 <= np.median(gap[cc]) <= 70

@@ -1,0 +1,155 @@
+"""Property tests: the miner and the matcher equal a brute-force enumerator.
+
+The reference (tests/_mine_bruteforce.py) enumerates every index tuple of every
+small random sequence, checks the gap/window/pause rules literally as documented in
+seqmine/patterns.py and counts instances as the largest set of disjoint spans.
+"""
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from seqmine.mine import match, mine
+from seqmine.sequences import SequenceDB
+
+from _mine_bruteforce import brute_mine, max_disjoint, occurrences
+
+VOCAB = ["a", "b", "c", "pause:short", "pause:long"]
+PAUSES = ["pause:short", "pause:long"]
+IS_PAUSE = [v in PAUSES for v in VOCAB]
+
+SETTINGS = settings(max_examples=700, deadline=None,
+                    suppress_health_check=[HealthCheck.too_slow])
+
+
+@st.composite
+def databases(draw):
+    n_vocab = draw(st.integers(2, 5))
+    n_seq = draw(st.integers(1, 7))
+    seqs = [draw(st.lists(st.integers(0, n_vocab - 1), min_size=0, max_size=8))
+            for _ in range(n_seq)]
+    grouped = draw(st.booleans())
+    if grouped:
+        groups = [draw(st.sampled_from([0, 1, 1, 0, -1])) for _ in range(n_seq)]
+    else:
+        groups = None
+    return seqs, groups
+
+
+@st.composite
+def constraint_settings(draw):
+    max_length = draw(st.integers(1, 4))
+    min_length = draw(st.integers(1, max_length))
+    max_gap = draw(st.one_of(st.none(), st.integers(0, 3)))
+    max_window = draw(st.one_of(st.none(), st.integers(max(min_length, 1), 6)))
+    return dict(
+        min_length=min_length, max_length=max_length, max_gap=max_gap, max_window=max_window,
+        skip_pauses=draw(st.booleans()), start_with_action=draw(st.booleans()),
+        end_with_action=draw(st.booleans()),
+        closed=draw(st.booleans()), maximal=draw(st.booleans()) and draw(st.booleans()))
+
+
+def _db(seqs, groups):
+    names = [[VOCAB[t] for t in s] for s in seqs]
+    if groups is None:
+        return SequenceDB.from_lists(names, pause_tokens=PAUSES, vocab=VOCAB)
+    return SequenceDB.from_lists(names, groups=groups, group_names=["strong", "weak"],
+                                 pause_tokens=PAUSES, vocab=VOCAB)
+
+
+def _as_dict(ps):
+    dense = ps.counts.toarray()
+    return {p: (tuple(int(x) for x in ps.support_counts[i]), dense[:, i].tolist())
+            for i, p in enumerate(ps.patterns)}
+
+
+@SETTINGS
+@given(databases(), constraint_settings(), st.data())
+def test_mine_equals_brute_force(dbspec, cons, data):
+    seqs, groups = dbspec
+    db = _db(seqs, groups)
+    if groups is None:
+        eff_groups, n_groups = [0] * len(seqs), 1
+    else:
+        eff_groups, n_groups = groups, 2
+    sizes = [sum(g == j for g in eff_groups) for j in range(n_groups)]
+    if max(sizes) == 0 or not any(seqs):
+        return  # no grouped sequence or no token: mine refuses (tested elsewhere)
+    if data.draw(st.booleans()):
+        min_support = data.draw(st.integers(1, max(sizes)))
+    else:
+        min_support = data.draw(st.sampled_from([0.2, 0.25, 1 / 3, 0.5, 0.6, 2 / 3, 1.0]))
+    ps = mine(db, min_support=min_support, **cons)
+    ref = brute_mine(seqs, eff_groups, n_groups, IS_PAUSE, min_support=min_support, **cons)
+    got = _as_dict(ps)
+    assert set(got) == set(ref)
+    for p in ref:
+        assert got[p] == ref[p], p
+    # deterministic order: by length, then token ids
+    assert ps.patterns == sorted(ps.patterns, key=lambda p: (len(p), p))
+
+
+@SETTINGS
+@given(databases(), st.data())
+def test_match_equals_brute_force(dbspec, data):
+    seqs, groups = dbspec
+    db = _db(seqs, groups)
+    n_vocab = len(VOCAB)
+    patterns = data.draw(st.lists(st.lists(st.integers(0, n_vocab - 1), min_size=1, max_size=4)
+                                  .map(tuple), min_size=1, max_size=6))
+    max_gap = data.draw(st.one_of(st.none(), st.integers(0, 3)))
+    max_window = data.draw(st.one_of(st.none(), st.integers(1, 6)))
+    skip = data.draw(st.booleans())
+    ps = match(db, patterns, max_gap=max_gap, max_window=max_window, skip_pauses=skip)
+    assert ps.patterns == patterns
+    occ = [occurrences(s, IS_PAUSE, 4, max_gap, max_window, skip) for s in seqs]
+    dense = ps.counts.toarray()
+    for i, p in enumerate(patterns):
+        expected = [max_disjoint(d[p]) if p in d else 0 for d in occ]
+        assert dense[:, i].tolist() == expected, p
+        if groups is None:
+            assert ps.support_counts[i].tolist() == [sum(c > 0 for c in expected)]
+        else:
+            sup = [sum(c > 0 for c, g in zip(expected, groups) if g == j) for j in range(2)]
+            assert ps.support_counts[i].tolist() == sup
+
+
+@settings(max_examples=300, deadline=None)
+@given(databases(), constraint_settings())
+def test_match_reproduces_mine(dbspec, cons):
+    # the matcher on the mined patterns gives the same supports and counts
+    seqs, groups = dbspec
+    db = _db(seqs, groups)
+    if (groups is not None and not any(g >= 0 for g in groups)) or not any(seqs):
+        return
+    ps = mine(db, min_support=1, **cons)
+    m = match(db, ps.patterns, max_gap=cons["max_gap"], max_window=cons["max_window"],
+              skip_pauses=cons["skip_pauses"])
+    assert np.array_equal(m.support_counts, ps.support_counts)
+    assert (m.counts != ps.counts).nnz == 0
+
+
+@settings(max_examples=300, deadline=None)
+@given(databases(), constraint_settings(), st.randoms(use_true_random=False))
+def test_invariants_extension_and_shuffle(dbspec, cons, rnd):
+    seqs, groups = dbspec
+    db = _db(seqs, groups)
+    if (groups is not None and not any(g >= 0 for g in groups)) or not any(seqs):
+        return
+    ps = mine(db, min_support=1, **{**cons, "closed": False, "maximal": False,
+                                     "min_length": 1, "end_with_action": False})
+    sup = {p: ps.support_counts[i] for i, p in enumerate(ps.patterns)}
+    # support never grows when a pattern is extended (its prefix is always reported)
+    for p, s in sup.items():
+        if len(p) > 1:
+            assert np.all(sup[p[:-1]] >= s)
+    # shuffling the sequence order gives the same patterns and supports
+    order = list(range(len(seqs)))
+    rnd.shuffle(order)
+    db2 = _db([seqs[i] for i in order], None if groups is None else [groups[i] for i in order])
+    ps2 = mine(db2, min_support=1, **{**cons, "closed": False, "maximal": False,
+                                       "min_length": 1, "end_with_action": False})
+    assert ps2.patterns == ps.patterns
+    assert np.array_equal(ps2.support_counts, ps.support_counts)
+    assert (ps2.counts != ps.counts[order]).nnz == 0
