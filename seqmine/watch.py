@@ -266,9 +266,10 @@ class Watcher:
             learner = event["learner"]
             action = event["action"]
             traw = event["time"]
-        except KeyError as exc:
+        except KeyError:
             self.stats["rejected"] += 1
-            raise EventError(f"missing field {exc.args[0]!r}; every event needs learner, "
+            missing = ", ".join(repr(k) for k in ("learner", "time", "action") if k not in event)
+            raise EventError(f"missing field {missing}; every event needs learner, "
                              f"time and action") from None
         except (TypeError, IndexError):
             self.stats["rejected"] += 1
