@@ -209,8 +209,16 @@ def parse_times(values, *, source="time"):
     >>> (float(s[1] - s[0]), list(r), k)
     (0.0, [None, None, 'bad_time'], 'iso')
     """
-    s = pd.Series(np.asarray(values, dtype=object)).astype("string").str.strip()
+    s = (values if isinstance(values, pd.Series) else
+         pd.Series(np.asarray(values, dtype=object))).astype("string").str.strip()
     n = len(s)
+    fast = _fast_iso(s)
+    if fast is not None:
+        reason = np.full(n, None, dtype=object)
+        out = (fast < _T_MIN) | (fast > _T_MAX)
+        reason[out] = "time_out_of_range"
+        fast[out] = np.nan
+        return fast, reason, "iso"
     seconds = np.full(n, np.nan)
     reason = np.full(n, None, dtype=object)
     missing = (s.isna() | (s == "")).to_numpy()
@@ -240,6 +248,25 @@ def parse_times(values, *, source="time"):
 
 
 # ---------------------------------------------------------------- internals
+_FAST_ISO = r"\d{4}-\d{2}-\d{2}(?:[T ]\d{2}:\d{2}(?::\d{2}(?:\.\d{1,9})?)?)?Z?"
+
+
+def _fast_iso(s):
+    """Seconds for a column that is all UTC/naive ISO 8601 (the common case), else None.
+
+    numpy parses such strings about ten times faster than the general ISO 8601 path;
+    anything else (offsets, gaps, other forms) goes the general way.
+    """
+    if len(s) == 0 or not s.str.fullmatch(_FAST_ISO).all():
+        return None
+    text = s.str.removesuffix("Z").str.replace(" ", "T", regex=False)
+    try:
+        stamps = np.array(text.to_numpy(dtype=object).astype(str), dtype="datetime64[ns]")
+    except ValueError:
+        return None
+    return (stamps - np.datetime64("1970-01-01T00:00:00", "ns")) / np.timedelta64(1, "s")
+
+
 def _resolve_columns(columns):
     cols = {role: role for role in EVENT_ROLES}
     if columns:
@@ -469,19 +496,18 @@ def _validate(raw, cols, path, duplicates, max_action_length):
     def col(role):
         name = cols[role]
         if name in raw.columns:
-            return raw[name].astype("string").fillna("").str.strip().astype(object).to_numpy()
-        return np.full(n, "", dtype=object)
+            return raw[name].astype("string").fillna("").str.strip()
+        return pd.Series(np.full(n, "", dtype=object), dtype="string")
 
-    learner, action = col("learner"), col("action")
-    session, target, channel = col("session"), col("target"), col("channel")
+    lser, aser = col("learner"), col("action")
+    learner, action = lser.to_numpy(dtype=object), aser.to_numpy(dtype=object)
+    session, target, channel = (col(r).to_numpy(dtype=object) for r in ("session", "target", "channel"))
     source_row = np.arange(1, n + 1, dtype=np.int64)
     seconds, reason, kind = parse_times(col("time"), source=cols["time"])
     detail = np.full(n, "", dtype=object)
     # earlier checks win: the first reason found is the one reported
     for r, code in bad_rows.items():
         reason[r - 1] = code
-    lser = pd.Series(learner, dtype="string")
-    aser = pd.Series(action, dtype="string")
     checks = [
         ("missing_learner", (lser == "").to_numpy()),
         ("missing_action", (aser == "").to_numpy()),
@@ -491,15 +517,14 @@ def _validate(raw, cols, path, duplicates, max_action_length):
     ]
     prior = reason.copy()
     for code, mask in checks:
-        unset = np.array([x is None for x in reason])
-        reason[mask & unset] = code
+        reason[mask & pd.isna(reason)] = code
     # keep the time reason when nothing else was wrong
-    unset = np.array([x is None for x in reason])
+    unset = pd.isna(reason)
     reason[unset] = prior[unset]
     for code in ("action_too_long",):
         m = reason == code
         detail[m] = [f"{len(a)} characters > {max_action_length}" for a in action[m]]
-    ok = np.array([x is None for x in reason])
+    ok = pd.isna(reason)
     if duplicates == "reject" and ok.any():
         idx = np.flatnonzero(ok)
         key = pd.DataFrame({"l": learner[idx], "t": seconds[idx], "a": action[idx],

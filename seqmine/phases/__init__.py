@@ -1,0 +1,39 @@
+"""Phases of work: hidden Markov models per outcome group and comparison of their paths.
+
+Public API
+----------
+- :func:`fit_phases` -> :class:`PhaseResult` (the whole stage; ``.save(folder)``)
+- :class:`PhaseModel` (one categorical HMM: score, decode, sample, JSON, GraphML)
+- :func:`fit_phase_model`, :func:`select_n_states` (Baum--Welch with restarts; BIC and
+  held-out log-likelihood per state count)
+- :func:`compare_state_paths`, :func:`align_states`, :func:`compare_transitions`,
+  :func:`model_distance`, :func:`state_paths_db`
+- :class:`GroupHMMClassifier` (log-likelihood-ratio classifier, scikit-learn contract)
+"""
+
+from .classify import GroupHMMClassifier
+from .compare import (align_states, bh_adjust, compare_state_paths, compare_transitions,
+                      model_distance, path_measures, state_paths_db)
+from .fitting import fit_phase_model, learner_folds, parse_state_range, select_n_states
+from .model import PhaseModel, name_state
+from .pipeline import PhaseResult, fit_phases, load_phase_models
+
+__all__ = [
+    "fit_phases",
+    "PhaseResult",
+    "load_phase_models",
+    "PhaseModel",
+    "name_state",
+    "fit_phase_model",
+    "select_n_states",
+    "learner_folds",
+    "parse_state_range",
+    "compare_state_paths",
+    "path_measures",
+    "align_states",
+    "compare_transitions",
+    "model_distance",
+    "state_paths_db",
+    "bh_adjust",
+    "GroupHMMClassifier",
+]

@@ -1,0 +1,396 @@
+"""The phases stage: pooled and per-group phase models, comparisons and output files."""
+
+from __future__ import annotations
+
+import json
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from joblib import Parallel, delayed
+
+from .._progress import progress
+from .._validation import check_choice, check_fraction, check_int, check_number
+from ..errors import ParameterError
+from ..sequences import SequenceDB
+from . import _hmm
+from .compare import (align_states, compare_state_paths, compare_transitions,
+                      model_distance, state_paths_db)
+from .fitting import DEFAULT_EMISSION_FLOOR, fit_phase_model, parse_state_range, select_n_states
+from .model import PhaseModel
+
+__all__ = ["fit_phases", "PhaseResult", "load_phase_models"]
+
+_FORMAT = "seqmine-phases"
+_VERSION = 1
+
+
+@dataclass
+class PhaseResult:
+    """Everything the phases stage produces.
+
+    Attributes
+    ----------
+    models : dict str -> PhaseModel
+        ``"pooled"`` and one model per outcome group (keyed by group name).
+    n_states : int
+        The state count used for every model.
+    selection : DataFrame
+        BIC and held-out log-likelihood per state count (see :func:`select_n_states`).
+    states : DataFrame
+        :meth:`PhaseModel.describe_states` of every model.
+    state_paths : DataFrame
+        ``learner``, ``sequence`` (index in the input SequenceDB), ``position``,
+        ``state`` (``S1``..), ``state_name``: the pooled model's Viterbi paths.
+    state_db : SequenceDB
+        The same paths as sequences of state tokens ``"S1:<name>"``.
+    path_comparison : DataFrame
+        :func:`compare_state_paths` of the pooled model's paths.
+    alignment, aligned_transitions : DataFrame
+        :func:`align_states` / :func:`compare_transitions` per pair of groups, with
+        ``group_a`` and ``group_b`` columns first.
+    distances : DataFrame
+        Per pair of groups: ``group_a``, ``group_b``, ``d_ab``, ``d_ba``,
+        ``symmetric`` (Juang--Rabiner), ``n_tokens``, ``n_permutations``,
+        ``permutation_mean``, ``permutation_max``, ``p_value``
+        (``(1 + #{perm >= observed}) / (1 + n_permutations)``; NaN without permutations).
+    excluded : DataFrame
+        Sequences left out for being too short: ``sequence``, ``learner``, ``session``,
+        ``length``.
+    unseen_tokens : dict str -> list of str
+        Per group, vocabulary tokens that never occur in the group's sequences
+        (their emission probability is the floor).
+    params : dict
+        The effective parameters.
+    """
+
+    models: dict
+    n_states: int
+    selection: pd.DataFrame
+    states: pd.DataFrame
+    state_paths: pd.DataFrame
+    state_db: SequenceDB
+    path_comparison: pd.DataFrame
+    alignment: pd.DataFrame
+    aligned_transitions: pd.DataFrame
+    distances: pd.DataFrame
+    excluded: pd.DataFrame
+    unseen_tokens: dict = field(default_factory=dict)
+    params: dict = field(default_factory=dict)
+
+    @property
+    def n_excluded(self):
+        """Number of sequences left out for being too short."""
+        return len(self.excluded)
+
+    def summary(self):
+        """Plain-data summary (written as ``phases.json``)."""
+        return {
+            "format": _FORMAT, "version": _VERSION,
+            "n_states": int(self.n_states),
+            "criterion": self.params.get("criterion"),
+            "n_sequences_used": int(self.state_db.n_sequences),
+            "n_tokens_used": int(self.state_db.n_tokens),
+            "n_excluded": int(self.n_excluded),
+            "excluded_reason": f"shorter than {self.params.get('min_length')} tokens",
+            "models": {k: _model_file(k) for k in self.models},
+            "log_likelihood": {k: m.log_likelihood for k, m in self.models.items()},
+            "unseen_tokens": self.unseen_tokens,
+            "params": self.params,
+        }
+
+    def save(self, folder):
+        """Write every table, model (JSON) and graph (GraphML) to ``folder``.
+
+        Files: ``phases.json``, ``model_<name>.json``, ``graph_<name>.graphml``,
+        ``states.csv``, ``state_paths.csv``, ``state_selection.csv``,
+        ``occupancy_comparison.csv``, ``state_alignment.csv``,
+        ``aligned_transitions.csv``, ``model_distance.csv``, ``excluded.csv`` and
+        ``state_sequences/`` (the state-token SequenceDB).
+        """
+        folder = Path(folder)
+        folder.mkdir(parents=True, exist_ok=True)
+        threshold = self.params.get("edge_threshold", 0.05)
+        for key, model in self.models.items():
+            model.save(folder / f"{_model_file(key)}.json")
+            model.write_graphml(folder / f"{_graph_file(key)}.graphml", threshold=threshold)
+        tables = {
+            "states.csv": self.states,
+            "state_paths.csv": self.state_paths,
+            "state_selection.csv": self.selection,
+            "occupancy_comparison.csv": self.path_comparison,
+            "state_alignment.csv": self.alignment,
+            "aligned_transitions.csv": self.aligned_transitions,
+            "model_distance.csv": self.distances,
+            "excluded.csv": self.excluded,
+        }
+        for name, table in tables.items():
+            table.to_csv(folder / name, index=False, lineterminator="\n", float_format="%.10g")
+        self.state_db.save(folder / "state_sequences")
+        (folder / "phases.json").write_text(
+            json.dumps(self.summary(), indent=1, sort_keys=True, default=_json_default),
+            encoding="utf-8")
+        return folder
+
+
+def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, criterion="bic",
+               n_folds=3, min_length=2, groups=None, n_iter=200, tol=1e-4,
+               emission_floor=DEFAULT_EMISSION_FLOOR, n_permutations=19,
+               distance_tokens=20000, edge_threshold=0.05, alpha=0.05):
+    """Fit phase models (HMMs) pooled and per outcome group, and compare the groups.
+
+    1. Sequences shorter than ``min_length`` tokens are left out (listed in
+       ``excluded``).
+    2. The pooled model is fitted for every state count in ``n_states``; the count
+       with the lowest BIC (``criterion="bic"``) or the highest held-out
+       log-likelihood over ``n_folds`` learner folds (``"heldout"``) is used for
+       every model. Both scores are reported in ``selection``.
+    3. One model per group at that state count; every model shares the full
+       vocabulary (tokens unseen in a group keep the emission floor).
+    4. Comparisons: groups on the pooled model's Viterbi paths (Mann--Whitney, BH);
+       aligned states and transition matrices of each pair of group models; the
+       Juang--Rabiner distance with a permutation reference (group labels
+       permuted among the pair's sequences, models refitted, ``n_permutations``
+       times); the paths as a SequenceDB of state tokens.
+
+    Parameters
+    ----------
+    db : SequenceDB
+    n_states : int, range, list of int or str like ``"2-6"``
+    n_restarts : int
+        Baum--Welch restarts per fit (seeded; best log-likelihood wins).
+    seed : int
+    n_jobs : int
+        joblib workers for restarts, state counts and permutations; results equal
+        the serial run.
+    criterion : {"bic", "heldout"}
+    n_folds : int
+        Learner folds for the held-out score (0 = off).
+    min_length : int
+        Shortest sequence used (at least 2).
+    groups : list of str, optional
+        Groups to model and compare; default every group with sequences.
+    n_iter, tol : int, float
+        EM limits (``tol`` per token).
+    emission_floor : float
+        Additive emission smoothing.
+    n_permutations : int
+        Permutations for the distance reference (0 = none).
+    distance_tokens : int
+        Tokens sampled per direction for the Juang--Rabiner distance.
+    edge_threshold : float
+        Smallest transition probability drawn as a graph edge.
+    alpha : float
+        Level for ``favours`` in the path comparison.
+
+    Returns
+    -------
+    PhaseResult
+
+    Examples
+    --------
+    >>> db = SequenceDB.from_lists([["a", "b", "a", "b", "c"]] * 6 + [["c", "c", "a", "b"]] * 6,
+    ...                            groups=["strong"] * 6 + ["weak"] * 6)
+    >>> res = fit_phases(db, n_states=2, n_restarts=1, n_folds=0, n_permutations=0)
+    >>> sorted(res.models), res.n_states
+    (['pooled', 'strong', 'weak'], 2)
+    """
+    where = "fit_phases"
+    if not isinstance(db, SequenceDB):
+        raise ParameterError(f"fit_phases needs a SequenceDB; got {type(db).__name__}.")
+    counts = parse_state_range(n_states)
+    n_restarts = check_int(n_restarts, "n_restarts", where, minimum=1)
+    n_jobs = check_int(n_jobs, "n_jobs", where)
+    seed = check_int(seed, "seed", where, minimum=0)
+    criterion = check_choice(criterion, "criterion", ("bic", "heldout"), where)
+    n_folds = check_int(n_folds, "n_folds", where, minimum=0)
+    min_length = check_int(min_length, "min_length", where, minimum=2)
+    n_permutations = check_int(n_permutations, "n_permutations", where, minimum=0)
+    distance_tokens = check_int(distance_tokens, "distance_tokens", where, minimum=100)
+    emission_floor = check_number(emission_floor, "emission_floor", where, minimum=0)
+    edge_threshold = check_fraction(edge_threshold, "edge_threshold", where)
+    if criterion == "heldout" and n_folds < 2:
+        raise ParameterError("criterion='heldout' needs n_folds >= 2 (held-out scoring); "
+                             "set n_folds or use criterion='bic'.")
+    keep = db.lengths >= min_length
+    excluded = pd.DataFrame({"sequence": np.flatnonzero(~keep),
+                             "learner": db.learners[~keep], "session": db.sessions[~keep],
+                             "length": db.lengths[~keep]})
+    if not keep.any():
+        raise ParameterError(
+            f"No sequence has at least {min_length} tokens ({db.n_sequences} sequences, all "
+            f"shorter); phase models need sequences of {min_length} or more tokens.")
+    used_idx = np.flatnonzero(keep)
+    data = db.subset(used_idx)
+    group_list = _groups_to_model(data, groups)
+    fit_kw = dict(n_iter=n_iter, tol=tol, emission_floor=emission_floor)
+
+    bar = progress(total=3 + len(group_list), desc="phases")
+    selection, by_count = select_n_states(
+        data, n_states=counts, n_restarts=n_restarts, n_folds=n_folds, seed=seed,
+        n_jobs=n_jobs, learners=data.learners, label="pooled", _purpose=0, **fit_kw)
+    col = "best_bic" if criterion == "bic" else "best_heldout"
+    chosen = int(selection.loc[selection[col], "n_states"].iloc[0])
+    selection["selected"] = selection["n_states"] == chosen
+    bar.update(1)
+    models = {"pooled": by_count[chosen]}
+    unseen = {}
+    for g in group_list:
+        gi = data.group_names.index(g)
+        sub = data.subset(np.flatnonzero(data.groups == gi))
+        present = np.bincount(sub.tokens.astype(np.int64), minlength=len(data.vocab)) > 0
+        unseen[g] = [t for t, p in zip(data.vocab, present) if not p]
+        models[g] = fit_phase_model(sub, n_states=chosen, n_restarts=n_restarts, seed=seed,
+                                    n_jobs=n_jobs, label=g, _purpose=1 + gi, **fit_kw)
+        bar.update(1)
+    pooled = models["pooled"]
+    _, states = pooled.decode(data)
+    bar.update(1)
+    labels = np.array(pooled.state_labels, dtype=object)
+    names = np.array(pooled.state_names, dtype=object)
+    seq_local = data.seq_index
+    position = np.arange(data.n_tokens) - data.offsets[:-1][seq_local]
+    state_paths = pd.DataFrame({"learner": data.learners[seq_local],
+                                "sequence": used_idx[seq_local], "position": position,
+                                "state": labels[states], "state_name": names[states]})
+    state_db = state_paths_db(pooled, data, states)
+    path_cmp = compare_state_paths(pooled, data, states, groups=group_list, alpha=alpha)
+    align_rows, trans_rows, dist_rows = [], [], []
+    pairs = [(group_list[i], group_list[j]) for i in range(len(group_list))
+             for j in range(i + 1, len(group_list))]
+    for pair_no, (ga, gb) in enumerate(pairs):
+        al = align_states(models[ga], models[gb])
+        tr = compare_transitions(models[ga], models[gb], al)
+        al.insert(0, "group_b", gb)
+        al.insert(0, "group_a", ga)
+        tr.insert(0, "group_b", gb)
+        tr.insert(0, "group_a", ga)
+        align_rows.append(al)
+        trans_rows.append(tr)
+        dist_rows.append(pd.DataFrame([_distance_with_reference(
+            data, models, ga, gb, pair_no, chosen, n_restarts, seed, n_jobs, n_permutations,
+            distance_tokens, fit_kw)]))
+    bar.update(1)
+    bar.close()
+    state_tables = pd.concat([m.describe_states() for m in models.values()], ignore_index=True)
+    params = {"n_states": counts, "n_restarts": n_restarts, "seed": seed, "criterion": criterion,
+              "n_folds": n_folds, "min_length": min_length, "groups": group_list,
+              "n_iter": n_iter, "tol": tol, "emission_floor": emission_floor,
+              "n_permutations": n_permutations, "distance_tokens": distance_tokens,
+              "edge_threshold": edge_threshold, "alpha": alpha}
+    return PhaseResult(
+        models=models, n_states=chosen, selection=selection, states=state_tables,
+        state_paths=state_paths, state_db=state_db, path_comparison=path_cmp,
+        alignment=_concat(align_rows, ["group_a", "group_b", "state_a", "state_b", "name_a",
+                                       "name_b", "js_distance"]),
+        aligned_transitions=_concat(trans_rows, ["group_a", "group_b", "from_a", "to_a",
+                                                 "from_b", "to_b", "name_from", "name_to",
+                                                 "prob_a", "prob_b", "difference"]),
+        distances=_concat(dist_rows, _DIST_COLUMNS), excluded=excluded,
+        unseen_tokens=unseen, params=params)
+
+
+def load_phase_models(folder):
+    """Read the models written by :meth:`PhaseResult.save` (dict name -> PhaseModel)."""
+    folder = Path(folder)
+    summary_path = folder / "phases.json"
+    if not summary_path.is_file():
+        raise ParameterError(f"{folder}: no phases.json; run 'seqmine phases' first.")
+    summary = json.loads(summary_path.read_text(encoding="utf-8"))
+    return {k: PhaseModel.load(folder / f"{v}.json") for k, v in summary["models"].items()}
+
+
+# ----------------------------------------------------------------- helpers
+_DIST_COLUMNS = ["group_a", "group_b", "d_ab", "d_ba", "symmetric", "n_tokens",
+                 "n_permutations", "permutation_mean", "permutation_max", "p_value"]
+
+
+def _groups_to_model(data, groups):
+    sizes = data.group_sizes()
+    if "pooled" in data.group_names:
+        raise ParameterError("A group is named 'pooled', which is the name of the model of all "
+                             "learners; rename the group (e.g. in the outcomes file).")
+    if groups is None:
+        return [g for g, n in zip(data.group_names, sizes) if n > 0]
+    out = []
+    for g in groups:
+        g = str(g)
+        if g not in data.group_names:
+            raise ParameterError(
+                f"Group {g!r} is not in the data (groups: {', '.join(data.group_names) or 'none'}).")
+        if sizes[data.group_names.index(g)] == 0:
+            raise ParameterError(f"Group {g!r} has no sequence of at least 2 tokens to model.")
+        out.append(g)
+    return out
+
+
+def _distance_with_reference(data, models, ga, gb, pair_no, n_states, n_restarts, seed, n_jobs,
+                             n_permutations, distance_tokens, fit_kw):
+    ia, ib = data.group_names.index(ga), data.group_names.index(gb)
+    members = np.flatnonzero((data.groups == ia) | (data.groups == ib))
+    lengths = data.lengths[members]
+    dseed = _hmm.derive_seed(seed, 4242, pair_no)
+    d = model_distance(models[ga], models[gb], lengths=lengths, n_tokens=distance_tokens,
+                       seed=dseed)
+    row = {"group_a": ga, "group_b": gb, **d, "n_permutations": n_permutations,
+           "permutation_mean": np.nan, "permutation_max": np.nan, "p_value": np.nan}
+    if n_permutations:
+        is_a = data.groups[members] == ia
+        calls = [delayed(_permuted_distance)(data, members, is_a, p, pair_no, n_states,
+                                             n_restarts, seed, dseed, distance_tokens, fit_kw)
+                 for p in range(n_permutations)]
+        if n_jobs == 1:
+            ref = [c[0](*c[1], **c[2]) for c in calls]
+        else:
+            ref = Parallel(n_jobs=n_jobs)(calls)
+        ref = np.asarray(ref)
+        row.update(permutation_mean=float(ref.mean()), permutation_max=float(ref.max()),
+                   p_value=float((1 + np.sum(ref >= d["symmetric"])) / (1 + n_permutations)))
+    return row
+
+
+def _permuted_distance(data, members, is_a, p, pair_no, n_states, n_restarts, seed, dseed,
+                       distance_tokens, fit_kw):
+    rng = np.random.default_rng(_hmm.derive_seed(seed, 31337, pair_no, p))
+    perm = rng.permutation(is_a)
+    fitted = []
+    for k, mask in enumerate((perm, ~perm)):
+        sub = data.subset(members[mask])
+        fitted.append(fit_phase_model(sub, n_states=n_states, n_restarts=n_restarts, seed=seed,
+                                      n_jobs=1, label=f"perm{k}",
+                                      _purpose=10_000 + 2 * p + k, **fit_kw))
+    d = model_distance(fitted[0], fitted[1], lengths=data.lengths[members],
+                       n_tokens=distance_tokens, seed=dseed)
+    return d["symmetric"]
+
+
+def _concat(frames, columns):
+    if not frames:
+        return pd.DataFrame(columns=columns)
+    return pd.concat(frames, ignore_index=True)[columns]
+
+
+def _safe(name):
+    return re.sub(r"[^A-Za-z0-9_.-]", "_", str(name))
+
+
+def _model_file(key):
+    return "model_pooled" if key == "pooled" else f"model_group-{_safe(key)}"
+
+
+def _graph_file(key):
+    return "graph_pooled" if key == "pooled" else f"graph_group-{_safe(key)}"
+
+
+def _json_default(obj):
+    if isinstance(obj, (np.integer,)):
+        return int(obj)
+    if isinstance(obj, (np.floating,)):
+        return float(obj)
+    if isinstance(obj, np.ndarray):
+        return obj.tolist()
+    if isinstance(obj, range):
+        return list(obj)
+    raise TypeError(f"not JSON serialisable: {type(obj).__name__}")

@@ -1,0 +1,168 @@
+"""Tests of the ``seqmine contrast`` command."""
+
+import json
+
+import numpy as np
+import pandas as pd
+import pytest
+import scipy.sparse as sp
+
+from seqmine._progress import is_quiet, set_quiet
+from seqmine.cli import main
+from seqmine.commands.contrast import read_patternset
+from seqmine.contrast import contrast
+from seqmine.transitions import TRANSITION_COLUMNS
+from seqmine.patterns import PatternSet
+from seqmine.sequences import SequenceDB
+
+# helpers copied from test_contrast.py (kept self-contained so the module imports alone)
+ACTIONS = ["set_light", "set_water", "advance_week", "measure_height", "reset", "paint_pot",
+           "pause:long"]
+
+
+def _instances(seq, pat):
+    """Brute-force instance count (unlimited gap): earliest-end greedy, disjoint spans."""
+    count, start = 0, 0
+    while True:
+        pos, k = start, 0
+        while pos < len(seq) and k < len(pat):
+            if seq[pos] == pat[k]:
+                k += 1
+            pos += 1
+        if k < len(pat):
+            return count
+        count += 1
+        start = pos
+
+
+def brute_patternset(db, patterns):
+    """PatternSet of the given token-name patterns counted by brute force on db."""
+    ids = [tuple(db.vocab.index(t) for t in p) for p in patterns]
+    counts = np.array([[_instances(db.sequence(i).tolist(), p) for p in ids]
+                       for i in range(db.n_sequences)], dtype=np.int64).reshape(db.n_sequences, len(ids))
+    sup = np.stack([(counts[db.groups == g] > 0).sum(axis=0) for g in range(db.n_groups)], axis=1)
+    return PatternSet(patterns=ids, vocab=db.vocab, is_pause=db.is_pause,
+                      group_names=db.group_names, group_sizes=db.group_sizes(),
+                      support_counts=sup, counts=sp.csr_matrix(counts), seq_groups=db.groups)
+
+
+def random_db(n=40, seed=0, n_groups=2, planted=True):
+    """Random greenhouse-like sequences; 'strong' learners more often measure after advancing."""
+    rng = np.random.default_rng(seed)
+    names = ["strong", "weak", "middle"][:n_groups]
+    groups = [names[i % n_groups] for i in range(n)]
+    seqs = []
+    for g in groups:
+        length = int(rng.integers(4, 14))
+        p = np.ones(len(ACTIONS))
+        if planted and g == "strong":
+            p[3] = 4.0
+        if planted and g == "weak":
+            p[4] = 3.0
+        seqs.append(list(rng.choice(ACTIONS, size=length, p=p / p.sum())))
+    return SequenceDB.from_lists(seqs, groups=groups, group_names=names,
+                                 pause_tokens=["pause:long"], vocab=ACTIONS)
+
+
+PATTERNS = [("measure_height",), ("reset",), ("advance_week", "measure_height"),
+            ("set_light", "advance_week"), ("reset", "reset"), ("paint_pot",),
+            ("set_water", "pause:long"), ("set_light", "advance_week", "measure_height")]
+
+
+def _write_patternset(ps, folder):
+    """The pattern set folder format of 'seqmine mine' (patternset.json + counts.npz)."""
+    folder.mkdir(parents=True, exist_ok=True)
+    sp.save_npz(folder / "counts.npz", sp.csr_matrix(ps.counts, dtype=np.int64))
+    meta = {"format": "seqmine-patternset", "version": 1,
+            "patterns": [list(p) for p in ps.patterns], "names": ps.names,
+            "vocab": list(ps.vocab), "is_pause": [bool(x) for x in ps.is_pause],
+            "group_names": list(ps.group_names), "group_sizes": [int(x) for x in ps.group_sizes],
+            "support_counts": ps.support_counts.tolist(),
+            "seq_groups": [int(x) for x in ps.seq_groups], "constraints": {}}
+    (folder / "patternset.json").write_text(json.dumps(meta), encoding="utf-8")
+    ps.to_frame().to_csv(folder / "patterns.csv", index=False)
+    return folder
+
+
+@pytest.fixture
+def workdir(tmp_path):
+    db = random_db(n=40, seed=1)
+    ps = brute_patternset(db, PATTERNS)
+    db.save(tmp_path / "seqdb")
+    _write_patternset(ps, tmp_path / "mined")
+    return tmp_path, db, ps
+
+
+def test_contrast_command_writes_tables(workdir, capsys):
+    tmp, db, ps = workdir
+    was_quiet = is_quiet()
+    set_quiet(False)
+    try:
+        _check_command_writes_tables(tmp, db, ps, capsys)
+    finally:
+        set_quiet(was_quiet)
+    assert is_quiet() == was_quiet
+
+
+def _check_command_writes_tables(tmp, db, ps, capsys):
+    rc = main(["contrast", str(tmp / "mined"), "--seqdb", str(tmp / "seqdb"), "--out",
+               str(tmp / "out" / "patterns.csv"), "--transitions", str(tmp / "out" / "t.csv"),
+               "--correction", "westfall-young", "--permutations", "99", "--seed", "3",
+               "--stability-resamples", "10"])
+    assert rc == 0
+    assert "wrote 8 patterns" in capsys.readouterr().out
+    got = pd.read_csv(tmp / "out" / "patterns.csv", keep_default_na=False)
+    ref = contrast(ps, db, correction="westfall-young", n_permutations=99, seed=3,
+                   stability_resamples=10)
+    assert list(got.columns) == list(ref.columns)
+    np.testing.assert_allclose(got["q_value"].astype(float), ref["q_value"])
+    assert list(got["favours"]) == list(ref["favours"])
+    tr = pd.read_csv(tmp / "out" / "t.csv")
+    assert list(tr.columns) == TRANSITION_COLUMNS
+    # same input and seed: byte-identical output
+    main(["contrast", str(tmp / "mined"), "--seqdb", str(tmp / "seqdb"), "-q", "--out",
+          str(tmp / "again.csv"), "--correction", "westfall-young", "--permutations", "99",
+          "--seed", "3", "--stability-resamples", "10"])
+    assert (tmp / "again.csv").read_bytes() == (tmp / "out" / "patterns.csv").read_bytes()
+
+
+def test_reads_folder_or_its_csv(workdir):
+    tmp, db, ps = workdir
+    a = read_patternset(tmp / "mined")
+    b = read_patternset(tmp / "mined" / "patterns.csv")
+    assert a.names == ps.names == b.names
+    assert (a.counts != ps.counts).nnz == 0
+
+
+def test_user_errors_exit_2_with_one_line(workdir, capsys):
+    tmp, db, ps = workdir
+    rc = main(["contrast", str(tmp / "nowhere"), "--out", str(tmp / "p.csv")])
+    err = capsys.readouterr().err
+    assert rc == 2 and "no such pattern set folder" in err and err.count("\n") == 1
+    rc = main(["contrast", str(tmp / "mined"), "--out", str(tmp / "p.csv"), "--transitions",
+               str(tmp / "t.csv")])
+    assert rc == 2 and "--transitions needs --seqdb" in capsys.readouterr().err
+    rc = main(["contrast", str(tmp / "mined"), "--out", str(tmp / "p.csv"), "--groups",
+               "strong,best"])
+    assert rc == 2 and "Group 'best' of contrast is not among" in capsys.readouterr().err
+    rc = main(["contrast", str(tmp / "mined"), "--out", str(tmp / "p.csv"), "--redundancy",
+               "lots"])
+    assert rc == 2 and "--redundancy must be a Jaccard threshold" in capsys.readouterr().err
+    rc = main(["contrast", str(tmp / "seqdb"), "--out", str(tmp / "p.csv")])
+    assert rc == 2 and "not a pattern set folder" in capsys.readouterr().err
+    rc = main(["contrast", str(tmp / "mined"), "--out", str(tmp / "p.csv"), "--pairwise",
+               str(tmp / "pw.csv")])
+    assert rc == 2 and "--pairwise needs more than two" in capsys.readouterr().err
+
+
+def test_three_groups_pairwise_file(tmp_path):
+    db = random_db(n=45, seed=2, n_groups=3)
+    ps = brute_patternset(db, PATTERNS)
+    db.save(tmp_path / "seqdb")
+    _write_patternset(ps, tmp_path / "mined")
+    rc = main(["contrast", str(tmp_path / "mined"), "--seqdb", str(tmp_path / "seqdb"), "-q",
+               "--out", str(tmp_path / "p.csv"), "--pairwise", str(tmp_path / "pw.csv"),
+               "--stability-resamples", "0"])
+    assert rc == 0
+    assert "chi2" in pd.read_csv(tmp_path / "p.csv").columns
+    assert len(pd.read_csv(tmp_path / "pw.csv")) == 3 * len(PATTERNS)
