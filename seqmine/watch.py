@@ -55,7 +55,7 @@ class EventError(SeqmineInputError):
     """A live event that cannot be used (the message says why, in one line)."""
 
 
-@dataclass
+@dataclass(slots=True)
 class Firing:
     """One detector firing for one learner.
 
@@ -98,7 +98,7 @@ class Firing:
     hint: str = ""
     suppressed: bool = False
     reason: str = None
-    _rank: tuple = field(default=(), repr=False, compare=False)
+    _index: int = field(default=-1, repr=False, compare=False)
 
     def to_dict(self, iso_times=False):
         """Plain JSON record (``type`` = ``"firing"``); times as ISO 8601 if asked."""
@@ -276,8 +276,17 @@ class Watcher:
             raise EventError("the event is not a JSON object with learner, time and "
                              "action") from None
         try:
-            learner = _text(learner, "learner")
-            action = _text(action, "action")
+            # fast path for ordinary strings; _text gives the precise messages
+            if type(learner) is str and type(action) is str:
+                learner = learner.strip()
+                action = action.strip()
+                if not (learner and action and len(action) <= _MAX_ACTION_LENGTH
+                        and learner.isprintable() and action.isprintable()):
+                    learner = _text(learner, "learner")
+                    action = _text(action, "action")
+            else:
+                learner = _text(learner, "learner")
+                action = _text(action, "action")
             t, kind = parse_event_time(traw)
             if kind != self._time_kind:
                 if self._time_kind is None:
@@ -300,23 +309,27 @@ class Watcher:
                     f"learner's latest event (tolerance {self.out_of_order_tolerance:g} s); "
                     f"events are not reordered")
         g = event.get
+        if self.reject_duplicates:
+            raw = (action, g("session"), g("target"), g("channel"))
+            if t == st.dup_time:
+                key = _event_key(raw)
+                if st.dup_keys is None:
+                    st.dup_keys = {_event_key(st.dup_first)}
+                if key in st.dup_keys:
+                    self.stats["rejected"] += 1
+                    self.stats["duplicates"] += 1
+                    raise EventError(f"learner {learner!r}: duplicate of an earlier event "
+                                     f"at time {traw!r}")
+                st.dup_keys.add(key)
+            elif t > st.dup_time:
+                st.dup_time = t
+                st.dup_first = raw
+                st.dup_keys = None
         unit_session = self._unit_session
-        if self.reject_duplicates or unit_session or not self._simple_template:
+        if unit_session or not self._simple_template:
             target = _opt_text(g("target"))
             channel = _opt_text(g("channel"))
             session = _opt_text(g("session"))
-            if self.reject_duplicates:
-                key = (action, session, target, channel)
-                if t == st.dup_time:
-                    if key in st.dup_keys:
-                        self.stats["rejected"] += 1
-                        self.stats["duplicates"] += 1
-                        raise EventError(f"learner {learner!r}: duplicate of an earlier event "
-                                         f"at time {traw!r}")
-                    st.dup_keys.add(key)
-                elif t > st.dup_time:
-                    st.dup_time = t
-                    st.dup_keys = {key}
         if t > st.raw_time:
             st.raw_time = t
         if t > self._stream_time:
@@ -459,11 +472,9 @@ class Watcher:
                         has_child[par] = True
                 par = n
             dets_at[par].append(k)
-        self._parent = parent
-        self._dets_at = [tuple(x) for x in dets_at]
-        self._has_child = has_child
-        self._by_token = [tuple(sorted(by_token.get(i, ()), key=lambda n: -depth[n]))
-                          for i in range(len(self._sym_id))]
+        self._steps = [tuple((n, parent[n], tuple(dets_at[n]), has_child[n])
+                             for n in sorted(by_token.get(i, ()), key=lambda n: -depth[n]))
+                       for i in range(len(self._sym_id))]
         self.n_nodes_ = len(parent)
         # absence rules sorted by threshold
         ev_rules, sec_rules = [], []
@@ -508,10 +519,8 @@ class Watcher:
         nodes = st.nodes
         max_gap = self._max_gap
         max_win = self._max_window
-        parent = self._parent
-        has_child = self._has_child
-        for n in self._by_token[tok]:
-            par = parent[n]
+        # (node, parent, detectors ending here, has children), deepest first
+        for n, par, dets, has_child in self._steps[tok]:
             if par < 0:
                 s = i
                 cbs = cb
@@ -529,14 +538,13 @@ class Watcher:
                     continue
                 s = e[0]
                 times = e[3] + (time,)
-            dets = self._dets_at[n]
             if dets:
                 last_end = st.last_end
                 for d in dets:
                     if s > last_end.get(d, -1):
                         last_end[d] = i
                         fired.append((d, times))
-            if has_child[n]:
+            if has_child:
                 nodes[n] = (s, cbs, c, times)
 
     def _check_absence(self, st, t, fired, learner):
@@ -559,6 +567,7 @@ class Watcher:
         """Build Firing objects; rank them and apply the learner's cool-down."""
         out = []
         counts = st.counts
+        label = st.label
         for d, times in fired:
             if times is None:
                 kind, occ, times = "absence", 0, ()
@@ -566,13 +575,9 @@ class Watcher:
                 kind = "occurrence"
                 occ = counts.get(d, 0) + 1
                 counts[d] = occ
-            f = Firing(learner=learner, detector=self._det_ids[d], kind=kind, time=t,
-                       event_times=times, sequence=st.label, occurrence=occ,
-                       direction=self._det_dir[d], priority=self._det_priority[d],
-                       hint=self._det_hint[d])
-            f._rank = (self._det_priority[d], -self._det_effect[d],
-                       st.hint_times.get(d, _NEG_INF), d)
-            out.append(f)
+            out.append(Firing(learner, self._det_ids[d], kind, t, times, label, occ,
+                              self._det_dir[d], self._det_priority[d], self._det_hint[d],
+                              False, None, d))
         self.stats["firings"] += len(out)
         candidates = []
         for f in out:
@@ -580,7 +585,10 @@ class Watcher:
                 f.suppressed, f.reason = True, "no_hint"
             else:
                 candidates.append(f)
-        candidates.sort(key=lambda f: f._rank)
+        if len(candidates) > 1:
+            hint_times = st.hint_times
+            candidates.sort(key=lambda f: (f.priority, -self._det_effect[f._index],
+                                           hint_times.get(f._index, _NEG_INF), f._index))
         delivered_now = False
         for f in candidates:
             if st.last_hint is not None and t - st.last_hint < self.cooldown_seconds:
@@ -589,7 +597,7 @@ class Watcher:
                 f.suppressed, f.reason = True, "outranked"
             else:
                 st.last_hint = t
-                st.hint_times[f._rank[3]] = t
+                st.hint_times[f._index] = t
                 delivered_now = True
                 self.stats["hints"] += 1
         return out
@@ -606,7 +614,7 @@ class Watcher:
 class _Learner:
     """Per-learner state: encoder position, partial matches, hint bookkeeping."""
 
-    __slots__ = ("raw_time", "last_time", "prev_tok_time", "prev_sym", "dup_time", "dup_keys",
+    __slots__ = ("raw_time", "last_time", "prev_tok_time", "prev_sym", "dup_time", "dup_first", "dup_keys",
                  "seq", "session", "label", "pos", "c", "nodes", "last_end", "n_events",
                  "start_time", "abs_e", "abs_s", "abs_done", "counts", "last_hint",
                  "hint_times")
@@ -617,7 +625,8 @@ class _Learner:
         self.prev_tok_time = _NEG_INF
         self.prev_sym = None
         self.dup_time = _NEG_INF
-        self.dup_keys = set()
+        self.dup_first = None
+        self.dup_keys = None
         self.seq = 0
         self.session = ""
         self.label = ""
@@ -650,6 +659,10 @@ def _text(value, name):
     if name == "action" and len(s) > _MAX_ACTION_LENGTH:
         raise EventError(f"the action is {len(s)} characters long (limit {_MAX_ACTION_LENGTH})")
     return s
+
+
+def _event_key(raw):
+    return (raw[0],) + tuple(_opt_text(v) for v in raw[1:])
 
 
 def _opt_text(value):
