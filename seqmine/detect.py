@@ -52,6 +52,7 @@ __all__ = [
     "DETECTOR_NOTICE",
     "select_detectors",
     "build_detectors",
+    "export_detectors",
     "save_detectors",
     "load_detectors",
     "validate_detectors",
@@ -318,6 +319,44 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
     }
     validate_detectors(doc, source=where)
     return doc
+
+
+def export_detectors(contrast_table, db, constraints=None, *, max_q=0.05, min_effect=0.2,
+                     effect="cohens_h", min_stability=0.5, lengths=None, groups=None,
+                     max_detectors=50, drop_redundant=True, strong=None, weak=None,
+                     absence_after_events=None, absence_after_seconds=None):
+    """Select rows of a contrast table and build the detectors document in one step.
+
+    Parameters
+    ----------
+    contrast_table : DataFrame
+        Output of ``contrast()``.
+    db : SequenceDB
+        The database the patterns were mined on (gives the encoding, group names and
+        sizes, and the offline vocabulary).
+    constraints : dict, optional
+        ``PatternSet.constraints`` of the mined patterns.
+    max_q, min_effect, effect, min_stability, lengths, groups, max_detectors, drop_redundant
+        See :func:`select_detectors`.
+    strong, weak, absence_after_events, absence_after_seconds
+        See :func:`build_detectors`.
+
+    Returns
+    -------
+    dict
+        A valid detectors document (write it with :func:`save_detectors`).
+    """
+    selection = {"max_q": max_q, "min_effect": min_effect, "min_stability": min_stability,
+                 "lengths": list(lengths) if isinstance(lengths, (tuple, list)) else lengths,
+                 "groups": groups, "max_detectors": max_detectors,
+                 "drop_redundant": drop_redundant}
+    rows = select_detectors(contrast_table, effect=effect, **dict(selection, lengths=lengths))
+    return build_detectors(
+        rows, db.encoding, constraints, group_names=db.group_names, strong=strong, weak=weak,
+        group_sizes=db.group_sizes().tolist(),
+        vocabulary=[v for v, p in zip(db.vocab, db.is_pause) if not p], effect=effect,
+        absence_after_events=absence_after_events, absence_after_seconds=absence_after_seconds,
+        selection=selection)
 
 
 def default_hint(tokens, direction):

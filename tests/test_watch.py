@@ -13,6 +13,16 @@ from seqmine.errors import DataFileError, ParameterError
 from seqmine.watch import EventError, Firing, Watcher, parse_event_time
 
 
+@pytest.fixture(autouse=True)
+def _restore_quiet():
+    # 'seqmine ... -q' switches progress output off process-wide; undo it after each test
+    from seqmine._progress import is_quiet, set_quiet
+
+    before = is_quiet()
+    yield
+    set_quiet(before)
+
+
 def _doc(dets=None, encoding=None, matching=None, **extra):
     doc = {"format": "seqmine-detectors", "version": 1,
            "encoding": encoding or {"template": "{action}"},

@@ -23,6 +23,16 @@ pytestmark = pytest.mark.skipif(not (DEMO / "events.csv").is_file(),
                                 reason="demo data set not present")
 
 
+@pytest.fixture(autouse=True)
+def _restore_quiet():
+    # 'seqmine ... -q' switches progress output off process-wide; undo it after each test
+    from seqmine._progress import is_quiet, set_quiet
+
+    before = is_quiet()
+    yield
+    set_quiet(before)
+
+
 def _offline_counts(db, doc):
     from seqmine.mine import match
 

@@ -9,7 +9,7 @@ from pathlib import Path
 import pandas as pd
 
 from .._progress import is_quiet, set_quiet
-from ..detect import build_detectors, save_detectors, select_detectors
+from ..detect import export_detectors, save_detectors
 from ..errors import DataFileError, ParameterError
 from ..sequences import SequenceDB
 
@@ -96,16 +96,13 @@ def run(args):
     if args.min_length is not None or args.max_length is not None:
         lengths = (args.min_length, args.max_length)
     groups = [g.strip() for g in args.favours.split(",") if g.strip()] if args.favours else None
-    selection = {"max_q": args.max_q, "min_effect": args.min_effect,
-                 "min_stability": args.min_stability, "lengths": lengths, "groups": groups,
-                 "max_detectors": args.max_detectors, "drop_redundant": not args.keep_redundant}
-    rows = select_detectors(table, effect=args.effect, **selection)
-    doc = build_detectors(
-        rows, db.encoding, constraints, group_names=db.group_names, strong=args.strong_group,
-        weak=args.weak_group, group_sizes=db.group_sizes().tolist(),
-        vocabulary=[v for v, p in zip(db.vocab, db.is_pause) if not p], effect=args.effect,
-        absence_after_events=args.absence_events, absence_after_seconds=args.absence_seconds,
-        selection=dict(selection, source=str(table_path), constraints_from=source))
+    doc = export_detectors(
+        table, db, constraints, max_q=args.max_q, min_effect=args.min_effect,
+        effect=args.effect, min_stability=args.min_stability, lengths=lengths, groups=groups,
+        max_detectors=args.max_detectors, drop_redundant=not args.keep_redundant,
+        strong=args.strong_group, weak=args.weak_group,
+        absence_after_events=args.absence_events, absence_after_seconds=args.absence_seconds)
+    doc["selection"].update(source=str(table_path), constraints_from=source)
     out = save_detectors(doc, args.out)
     if not is_quiet():
         n_dis = sum(d["direction"] == "discourage" for d in doc["detectors"])
