@@ -189,12 +189,11 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     from .config import default_config
     from .encode import Encoder, load_mapping
     from .contrast import contrast
-    from .examples import pattern_examples
     from .load import load_events
     from .mine import mine, save_patternset
     from .outcomes import load_outcomes
     from .privacy import pseudonymize_frame, read_key
-    from .report import render_report
+    from .report import render_report, write_examples
     from .transitions import transitions
 
     if quiet:
@@ -341,13 +340,11 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
 
     # 7. examples and report
     if cfg["report"]["examples"]:
-        top = significant[significant["redundant_of"].fillna("") == ""] \
-            if "redundant_of" in significant else significant
-        top = top.head(int(cfg["report"]["top_patterns"]))
-        ex = pattern_examples(db, patternset, top["pattern"].tolist(),
-                              favours=dict(zip(top["pattern"], top["favours"])), seed=seed)
-        _write_json(out / "examples.json", ex)
-        files.append(out / "examples.json")
+        c = patternset.constraints
+        files.append(write_examples(
+            out, db, table, max_patterns=int(cfg["report"]["top_patterns"]), alpha=alpha,
+            max_gap=c.get("max_gap"), max_window=c.get("max_window"),
+            skip_pauses=bool(c.get("skip_pauses", False)), seed=seed))
     summary["seed"] = seed
     summary["configuration"] = cfg
     summary["versions"] = _versions()
