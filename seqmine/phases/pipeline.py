@@ -86,6 +86,13 @@ class PhaseResult:
     params: dict = field(default_factory=dict)
 
     @property
+    def at_top_of_range(self):
+        """True when the chosen state count is the largest one tried (and more than one
+        was tried): a wider range might fit better."""
+        counts = self.selection["n_states"]
+        return bool(len(counts) > 1 and self.n_states == counts.max())
+
+    @property
     def n_excluded(self):
         """Number of sequences left out for being too short."""
         return len(self.excluded)
@@ -96,6 +103,7 @@ class PhaseResult:
             "format": _FORMAT, "version": _VERSION,
             "n_states": int(self.n_states),
             "criterion": self.params.get("criterion"),
+            "n_states_at_top_of_range": self.at_top_of_range,
             "n_sequences_used": int(self.state_db.n_sequences),
             "n_tokens_used": int(self.state_db.n_tokens),
             "n_excluded": int(self.n_excluded),
