@@ -108,7 +108,8 @@ class PhaseResult:
             "n_tokens_used": int(self.state_db.n_tokens),
             "n_excluded": int(self.n_excluded),
             "excluded_reason": f"shorter than {self.params.get('min_length')} tokens",
-            "models": {k: _model_file(k) for k in self.models},
+            "models": {k: f"{_model_file(k)}.json" for k in self.models},
+            "graphs": {k: f"{_graph_file(k)}.graphml" for k in self.models},
             "log_likelihood": {k: m.log_likelihood for k, m in self.models.items()},
             "unseen_tokens": self.unseen_tokens,
             "params": self.params,
@@ -313,7 +314,7 @@ def load_phase_models(folder):
     if not summary_path.is_file():
         raise ParameterError(f"{folder}: no phases.json; run 'seqmine phases' first.")
     summary = json.loads(summary_path.read_text(encoding="utf-8"))
-    return {k: PhaseModel.load(folder / f"{v}.json") for k, v in summary["models"].items()}
+    return {k: PhaseModel.load(folder / v) for k, v in summary["models"].items()}
 
 
 # ----------------------------------------------------------------- helpers
