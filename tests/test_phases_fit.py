@@ -355,3 +355,14 @@ def test_no_groups_gives_pooled_model_only():
     res = fit_phases(db, n_states=1, n_restarts=1, n_folds=0)
     assert list(res.models) == ["pooled"]
     assert res.path_comparison.empty and res.distances.empty and res.alignment.empty
+
+
+def test_heldout_criterion_uses_heldout_column():
+    db = _sample_db(n=10, length=30)
+    res = fit_phases(db, n_states=[1, 2, 3], n_restarts=1, n_folds=2, criterion="heldout",
+                     n_permutations=0)
+    sel = res.selection
+    best = sel.loc[sel["heldout_loglik"].idxmax(), "n_states"]
+    assert res.n_states == best
+    assert sel.loc[sel["selected"], "n_states"].tolist() == [best]
+    assert np.all(np.isfinite(sel["heldout_loglik_per_token"]))
