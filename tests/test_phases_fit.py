@@ -366,3 +366,17 @@ def test_heldout_criterion_uses_heldout_column():
     assert res.n_states == best
     assert sel.loc[sel["selected"], "n_states"].tolist() == [best]
     assert np.all(np.isfinite(sel["heldout_loglik_per_token"]))
+
+
+@pytest.mark.slow
+def test_restarts_on_a_dask_cluster_equal_serial():
+    # scale-out: joblib routes the restarts to a Dask cluster (in-process here)
+    distributed = pytest.importorskip("distributed")
+    import joblib
+
+    db = _sample_db(n=10, length=30)
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=2, processes=False,
+                                  dashboard_address=None) as cluster:
+        with distributed.Client(cluster), joblib.parallel_config(backend="dask"):
+            on_dask = fit_phase_model(db, n_states=2, n_restarts=3, seed=2, n_jobs=2)
+    assert on_dask.equals(fit_phase_model(db, n_states=2, n_restarts=3, seed=2))
