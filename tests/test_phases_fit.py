@@ -311,6 +311,7 @@ def test_state_range_larger_than_data():
     ({"criterion": "heldout", "n_folds": 0}, r"criterion='heldout' needs n_folds >= 2"),
     ({"min_length": 1}, r"'min_length' parameter of fit_phases must be an int >= 2"),
     ({"n_folds": 20}, r"needs at least 20 learners .* has 10"),
+    ({"n_jobs": 0}, r"'n_jobs' parameter of fit_phases must be a positive int or -1"),
     ({"groups": ["middle"]}, r"Group 'middle' is not in the data \(groups: strong, weak\)"),
 ])
 def test_bad_parameters(kwargs, message):

@@ -18,7 +18,8 @@ from ..sequences import SequenceDB
 from . import _hmm
 from .compare import (align_states, compare_state_paths, compare_transitions,
                       model_distance, state_paths_db)
-from .fitting import DEFAULT_EMISSION_FLOOR, fit_phase_model, parse_state_range, select_n_states
+from .fitting import (DEFAULT_EMISSION_FLOOR, _check_jobs, fit_phase_model, parse_state_range,
+                      select_n_states)
 from .model import PhaseModel
 
 __all__ = ["fit_phases", "PhaseResult", "load_phase_models"]
@@ -217,7 +218,7 @@ def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, crit
         raise ParameterError(f"fit_phases needs a SequenceDB; got {type(db).__name__}.")
     counts = parse_state_range(n_states)
     n_restarts = check_int(n_restarts, "n_restarts", where, minimum=1)
-    n_jobs = check_int(n_jobs, "n_jobs", where)
+    n_jobs = _check_jobs(n_jobs, where)
     seed = check_int(seed, "seed", where, minimum=0)
     criterion = check_choice(criterion, "criterion", ("bic", "heldout"), where)
     n_folds = check_int(n_folds, "n_folds", where, minimum=0)
