@@ -376,8 +376,11 @@ def test_restarts_on_a_dask_cluster_equal_serial():
     import joblib
 
     db = _sample_db(n=10, length=30)
-    with distributed.LocalCluster(n_workers=1, threads_per_worker=2, processes=False,
-                                  dashboard_address=None) as cluster:
-        with distributed.Client(cluster), joblib.parallel_config(backend="dask"):
-            on_dask = fit_phase_model(db, n_states=2, n_restarts=3, seed=2, n_jobs=2)
+    try:
+        cluster = distributed.LocalCluster(n_workers=1, threads_per_worker=2, processes=False,
+                                           dashboard_address=None)
+    except Exception as exc:  # the cluster itself, not our code, failed to start
+        pytest.skip(f"could not start an in-process Dask cluster: {exc!r}")
+    with cluster, distributed.Client(cluster), joblib.parallel_config(backend="dask"):
+        on_dask = fit_phase_model(db, n_states=2, n_restarts=3, seed=2, n_jobs=2)
     assert on_dask.equals(fit_phase_model(db, n_states=2, n_restarts=3, seed=2))
