@@ -148,11 +148,14 @@ def test_pause_edges_and_groups_come_from_training_learners_only():
     assert n_differ > 0
 
 
-def test_parallel_folds_give_identical_results(planted, planted_result):
-    r2 = _run(*planted, n_jobs=2)
-    pd.testing.assert_frame_equal(planted_result.to_frame(), r2.to_frame())
-    pd.testing.assert_frame_equal(planted_result.predictions, r2.predictions)
-    assert planted_result.selected_patterns == r2.selected_patterns
+def test_parallel_folds_give_identical_results():
+    ev, oc = planted_data(30, seed=5)
+    kw = dict(fractions=[0.5, 1.0], n_bootstrap=50)
+    serial, parallel = _run(ev, oc, **kw), _run(ev, oc, n_jobs=2, **kw)
+    pd.testing.assert_frame_equal(serial.to_frame(), parallel.to_frame())
+    pd.testing.assert_frame_equal(serial.predictions, parallel.predictions)
+    assert serial.selected_patterns == parallel.selected_patterns
+    assert serial.encodings == parallel.encodings
 
 
 def test_same_seed_same_result_and_save(planted, planted_result, tmp_path):
@@ -260,6 +263,7 @@ def test_null_data_no_classifier_beats_the_baseline_beyond_chance():
     assert (pd.concat(gaps, axis=1).mean(axis=1) < 0.1).all()
 
 
+@pytest.mark.slow
 def test_folds_on_a_local_dask_cluster_give_identical_results():
     # real (importable) stages only, since the folds run in other processes
     pytest.importorskip("distributed")
