@@ -72,9 +72,7 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
     folds : int, default 5
         Number of stratified folds (ignored when ``loo``).
     loo : bool, default False
-        Leave one learner out instead of k folds. The majority baseline is
-        pessimistic under leave-one-out (removing a learner tips the training
-        majority towards the other group), so prefer k folds for the comparison.
+        Leave one learner out instead of k folds (see Notes on the baseline).
     fractions : sequence of float in (0, 1]
         Observed fractions of each held-out sequence (of its action events, see
         :meth:`SequenceDB.cut`).
@@ -120,6 +118,14 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
     rates per 100 tokens so their scale does not depend on sequence length. When
     a learner has several sequences, the predicted probabilities of its sequences
     are averaged and the learner is the unit of every metric.
+
+    Learners with events but no outcome, or whose outcome gives no group on all
+    learners (e.g. the middle of a ``fraction`` split), take no part; a held-out
+    learner that gets no group under the training thresholds is not scored.
+
+    With leave-one-out, fixed labels and balanced groups the majority baseline is
+    always wrong (the held-out learner's group is the training minority), which
+    flatters every classifier; prefer k folds for the comparison with the baseline.
     """
     where = "validate"
     fractions = _check_fractions(fractions)
@@ -205,6 +211,7 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
         "alpha": float(alpha), "seed": int(seed),
         "test": "one-sided exact McNemar (binomial test on discordant pairs) vs majority",
         "n_learners": int(len(learners)),
+        "n_learners_without_outcome_group": int(len(has_events - set(learners))),
     }
     return ValidationResult(
         metrics=metrics, predictions=predictions, folds=fold_table,

@@ -278,3 +278,27 @@ def test_folds_on_a_local_dask_cluster_give_identical_results():
     on_dask = validate(ev, oc, n_jobs=2, scheduler="local", **kw)
     pd.testing.assert_frame_equal(serial.to_frame(), on_dask.to_frame())
     pd.testing.assert_frame_equal(serial.predictions, on_dask.predictions)
+
+
+def test_leave_one_learner_out_and_its_baseline_artefact():
+    ev, oc = planted_data(12, seed=6)
+    r = _run(ev, oc, loo=True, fractions=[1.0], n_bootstrap=20,
+             classifiers=["frequency_pause"])
+    assert r.folds["fold"].nunique() == 12 and r.settings["loo"]
+    assert set(r.predictions["learner"]) == set(oc["learner"])
+    # fixed, balanced labels: the held-out learner is always the training minority, so
+    # the majority baseline is always wrong (documented in validate's Notes)
+    labelled = oc.assign(label=np.where(oc["score"] > 0.5, "strong", "weak"))
+    r = validate(ev, labelled, loo=True, fractions=[1.0], n_bootstrap=20,
+                 grouping=_FixedLabels(), encoder=QuantileEncoder(), featurizers=_feats(),
+                 classifiers=["frequency_pause"])
+    assert r.to_frame().query("classifier == 'majority'")["accuracy"].item() == 0.0
+
+
+class _FixedLabels:
+    def fit(self, outcomes):
+        self.group_names_ = ["strong", "weak"]
+        return self
+
+    def transform(self, outcomes):
+        return pd.Series(outcomes["label"].to_numpy(), index=outcomes["learner"].to_numpy())
