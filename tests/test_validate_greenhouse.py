@@ -136,3 +136,25 @@ def test_hmm_featurizer_uses_the_phase_models_when_available():
     ll = f.models_.log_likelihoods(db)
     np.testing.assert_allclose(f.transform(db)[:, 0],
                                (ll[:, 1] - ll[:, 0]) / np.maximum(db.lengths, 1))
+
+
+@pytest.mark.slow
+def test_greenhouse_with_shuffled_gains_gives_no_classifier_an_edge():
+    # Gains shuffled across learners -> no true signal. Tolerance (stated before
+    # looking): over 4 seeds x 4 classifiers x 2 fractions = 32 one-sided tests at
+    # alpha = 0.05, at most 3 rejections; mean accuracy gap to the baseline < 0.1.
+    rejections, gaps = 0, []
+    for seed in range(4):
+        ev, oc = _greenhouse(60, seed=200 + seed)
+        rng = np.random.default_rng(seed)
+        oc = oc.assign(gain=rng.permutation(oc["gain"].to_numpy()))
+        r = validate(ev, oc, folds=3, fractions=[0.5, 1.0], n_bootstrap=50, seed=seed,
+                     grouping=Grouping(), encoder=Encoder(),
+                     featurizers=default_featurizers(seed=seed, hmm_params=FAST_HMM))
+        t = r.to_frame()
+        models = t[t.classifier != "majority"]
+        rejections += int(models["beats_baseline"].sum())
+        gaps.append(models.groupby("classifier")["accuracy"].mean()
+                    - models.groupby("classifier")["baseline_accuracy"].mean())
+    assert rejections <= 3
+    assert (pd.concat(gaps, axis=1).mean(axis=1) < 0.1).all()
