@@ -17,7 +17,7 @@ import pandas as pd
 
 from . import _plots
 
-__all__ = ["esc", "lookup", "config_of", "counts_of", "phase_model", "group_names_of", "FigureIds", "PAGE_TITLE", "CSS"]
+__all__ = ["esc", "lookup", "config_of", "counts_of", "phase_model", "top_patterns", "group_names_of", "FigureIds", "PAGE_TITLE", "CSS"]
 
 PAGE_TITLE = "seqmine report: behaviour patterns and outcomes"
 _SEP = " > "
@@ -60,6 +60,8 @@ th { background: var(--soft); font-weight: 600; }
 td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; }
 .grid2 { display:grid; grid-template-columns: repeat(auto-fit, minmax(440px, 1fr));
   gap: 4px 24px; align-items: start; }
+.grid2 table { width: 100%; font-size: 13px; }
+.grid2 td:first-child { width: 34%; overflow-wrap: anywhere; }
 .fig { max-width: 100%; height: auto; display: block; margin: 6px 0 12px; }
 .tok { display:inline-block; border:1px solid #c9c9c9; background:#fff; border-radius:4px;
   padding:0 6px; margin:1px 0; font: 13px/1.6 ui-monospace, "DejaVu Sans Mono",
@@ -313,7 +315,7 @@ def section_patterns(d, figs, *, examples, max_patterns, max_examples):
         redundant = df["redundant_of"].astype(str).str.strip() != ""
         hidden = int(redundant.sum())
         df = df[~redundant]
-    top, note = _top_patterns(df, d["alpha"], max_patterns)
+    top, note = top_patterns(df, d["alpha"], max_patterns)
     if hidden:
         note += (f" {_plural(hidden, 'pattern')} that nearly duplicate a listed one (same "
                  "learners) left out here; see the redundant_of column of patterns.csv.")
@@ -387,8 +389,8 @@ def section_phases(d, figs):
     for m in models:
         states = m["states"]
         rows = [[esc(st["name"]), _fmt(st.get("dwell"), 1),
-                 ", ".join(f'<span class="tok">{esc(t)}</span> {_pct(p)}'
-                           for t, p in st["emissions"][:5])] for st in states]
+                 " · ".join(f"<code>{esc(t)}</code>&nbsp;{_pct(p)}"
+                            for t, p in st["emissions"][:5])] for st in states]
         cells.append(
             f"<div><h3>{_group_label(m['group'], d['groups'])} "
             f'<span class="note">({esc(m["file"])})</span></h3>\n'
@@ -710,24 +712,31 @@ def _pattern_card(rank, row, sup_cols, groups, alpha, excerpts, examples, max_ex
 
 def _excerpt(ex, groups):
     who = f"learner {esc(ex.get('learner', '?'))}"
-    if ex.get("group") is not None:
+    if ex.get("group"):
         who += f" · {_group_label(ex['group'], groups)}"
     events = [e for e in (ex.get("events") or []) if isinstance(e, dict)]
     t0 = next((_num(e.get("time")) for e in events if math.isfinite(_num(e.get("time")))), None)
     cells = []
     for e in events:
-        tok = e.get("token", e.get("action", "?"))
-        cls = "ev hit" if e.get("matched") is True else "ev"
+        if "elided" in e:
+            cells.append(f'<span class="gap">… {_plural(_num(e["elided"], 0), "token")} '
+                         "…</span>")
+            continue
+        tok = str(e.get("token", e.get("action", "?")))
+        hit = e.get("matched") is True
         t = _num(e.get("time"))
         when = _clock(t - t0) if t0 is not None and math.isfinite(t) else ""
-        mark = " ✓" if e.get("matched") is True else ""
-        cells.append(f'<span class="{cls}">{_chip(tok)}<small>{when}{mark}</small></span>')
         gap = _num(e.get("pause"))
-        if math.isfinite(gap):
+        if tok.startswith("pause:") and math.isfinite(gap):
+            when = _duration(gap)
+        mark = " ✓" if hit else ""
+        cells.append(f'<span class="ev{" hit" if hit else ""}">{_chip(tok)}'
+                     f"<small>{when}{mark}</small></span>")
+        if math.isfinite(gap) and not tok.startswith("pause:"):
             cells.append(f'<span class="gap">··· {_duration(gap)} ···</span>')
-    return (f'<div class="excerpt"><div class="who">Example: {who} (matched events in bold, '
-            f'time since the first event shown)</div><div class="flow">{"".join(cells)}</div>'
-            "</div>")
+    return (f'<div class="excerpt"><div class="who">Example: {who} (matched tokens in bold '
+            "with ✓; time since the first shown event; pauses with their length)</div>"
+            f'<div class="flow">{"".join(cells)}</div></div>')
 
 
 def _detector_card(i, det, groups):
@@ -1103,7 +1112,7 @@ def _significant(df, alpha):
     return df[df["q_value"] <= alpha]
 
 
-def _top_patterns(df, alpha, n):
+def top_patterns(df, alpha, n):
     keys = df.assign(
         _q=df["q_value"] if "q_value" in df.columns else np.nan,
         _p=df["p_value"] if "p_value" in df.columns else np.nan,

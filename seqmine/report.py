@@ -22,12 +22,15 @@ from pathlib import Path
 import pandas as pd
 
 from . import _report_sections as sec
+from ._report_examples import build_examples
 from ._report_sections import esc
 from .errors import DataFileError
 from ._version import __version__
 
 __all__ = [
     "render_report",
+    "build_examples",
+    "write_examples",
     "REPORT_FILE",
     "OUTPUT_FILES",
     "SUMMARY_KEYS",
@@ -271,6 +274,45 @@ def render_report(out_dir, *, examples=True, max_patterns=12, max_examples=2):
         fh.write(page)
     os.replace(tmp, target)
     return target
+
+
+def write_examples(out_dir, db, patterns, **kwargs):
+    """Write ``examples.json`` into an output folder (see :func:`build_examples`).
+
+    Parameters
+    ----------
+    out_dir : str or path-like
+    db : SequenceDB
+        The encoded sequences the patterns were mined from.
+    patterns : pandas.DataFrame or list of str
+        ``patterns.csv`` as a table (its top rows by q are used: significant,
+        non-redundant, at most ``max_patterns``) or a list of readable patterns.
+    **kwargs
+        ``max_patterns`` (default 12), ``alpha`` (default 0.05), and the options of
+        :func:`build_examples` (matching constraints, ``per_pattern``, ``context``,
+        ``seed``...).
+
+    Returns
+    -------
+    pathlib.Path
+    """
+    max_patterns = kwargs.pop("max_patterns", 12)
+    alpha = kwargs.pop("alpha", _DEFAULT_ALPHA)
+    if isinstance(patterns, pd.DataFrame):
+        df = patterns
+        if "redundant_of" in df.columns:
+            df = df[df["redundant_of"].fillna("").astype(str).str.strip() == ""]
+        top, _ = sec.top_patterns(df, alpha, max_patterns)
+        names = [str(p) for p in top["pattern"]]
+        favours = ([("" if pd.isna(f) else str(f)) for f in top["favours"]]
+                   if "favours" in top.columns else None)
+    else:
+        names, favours = [str(p) for p in patterns], kwargs.pop("favours", None)
+    data = build_examples(db, names, favours=favours, **kwargs)
+    path = Path(out_dir) / OUTPUT_FILES["examples"]
+    path.write_text(json.dumps(data, indent=1, ensure_ascii=False) + "\n",
+                    encoding="utf-8")
+    return path
 
 
 # --------------------------------------------------------------------------- reading

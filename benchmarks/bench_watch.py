@@ -1,0 +1,178 @@
+"""Live watcher throughput and per-event latency, side by side with a plain pass.
+
+Events: a generated greenhouse log (interleaved across learners, ISO 8601 times) as
+JSON lines. Detectors: 10, 100 and 1,000 patterns of length 1-4 drawn with a fixed
+seed from the log's action symbols and pause tokens, matched with max_gap=2 and
+skip_pauses (the miner's typical settings), over the default encoding fitted on the
+log (three quantile pause bins, shortest implicit).
+
+For each detector count, one process (one core) runs:
+
+* ``plain``: ``json.loads`` of every line plus reading learner, time and action;
+* ``watch``: ``json.loads`` of every line plus ``Watcher.process`` (the full
+  ``seqmine watch`` path minus output formatting);
+* ``process only``: ``Watcher.process`` on pre-parsed dicts;
+* latency: ``time.perf_counter_ns`` around each ``process`` call (parse + process),
+  p50 and p99 over all events.
+
+Prints a table and writes benchmarks/results/watch.json.
+
+    python benchmarks/bench_watch.py            # 300 learners (~30,000 events)
+    python benchmarks/bench_watch.py --learners 2000
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import platform
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+
+HERE = Path(__file__).resolve().parent
+sys.path.insert(0, str(HERE.parent))
+
+from seqmine.demo_data import generate_greenhouse  # noqa: E402
+from seqmine.encode import Encoder  # noqa: E402
+from seqmine.watch import Watcher  # noqa: E402
+
+
+def make_detectors(encoding, vocab, n, seed):
+    rng = np.random.default_rng(seed)
+    labels = encoding["pause"]["labels"]
+    implicit = set(encoding["pause"]["implicit"])
+    pauses = ["pause:" + lab for lab in labels if lab not in implicit]
+    actions = [v for v in vocab if not v.startswith("pause:")]
+    alphabet = actions + pauses
+    dets, seen = [], set()
+    while len(dets) < n:
+        k = int(rng.integers(1, 5))
+        # patterns start with an action (as mined detectors usually do)
+        toks = [actions[int(rng.integers(len(actions)))]]
+        toks += [alphabet[int(rng.integers(len(alphabet)))] for _ in range(k - 1)]
+        if tuple(toks) in seen:
+            continue
+        seen.add(tuple(toks))
+        dets.append({"id": f"D{len(dets) + 1:04d}", "tokens": toks,
+                     "direction": "discourage" if rng.random() < 0.6 else "encourage",
+                     "priority": int(rng.integers(1, 4)),
+                     "evidence": {"effects": {"cohens_h": float(rng.normal(0, 0.5))}},
+                     "hint": "benchmark"})
+    return {"format": "seqmine-detectors", "version": 1, "encoding": encoding,
+            "vocabulary": actions,
+            "matching": {"max_gap": 2, "max_window": None, "skip_pauses": True},
+            "detectors": dets}
+
+
+def plain_pass(lines):
+    loads = json.loads
+    n = 0
+    for line in lines:
+        e = loads(line)
+        if e["learner"] and e["time"] and e["action"]:
+            n += 1
+    return n
+
+
+def watch_pass(lines, doc, parse=True):
+    w = Watcher(doc, cooldown_seconds=60, idle_timeout=None)
+    loads = json.loads
+    process = w.process
+    n = 0
+    if parse:
+        for line in lines:
+            n += len(process(loads(line)))
+    else:
+        for e in lines:
+            n += len(process(e))
+    return n, w
+
+
+def latency_pass(lines, doc):
+    w = Watcher(doc, cooldown_seconds=60, idle_timeout=None)
+    loads = json.loads
+    process = w.process
+    clock = time.perf_counter_ns
+    out = np.empty(len(lines), dtype=np.int64)
+    for i, line in enumerate(lines):
+        t0 = clock()
+        process(loads(line))
+        out[i] = clock() - t0
+    return out
+
+
+def timed(fn, *args, repeat=3):
+    best = float("inf")
+    result = None
+    for _ in range(repeat):
+        c0 = time.process_time()
+        result = fn(*args)
+        best = min(best, time.process_time() - c0)
+    return best, result
+
+
+def main(argv=None):
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--learners", type=int, default=300)
+    ap.add_argument("--detectors", default="10,100,1000")
+    ap.add_argument("--repeat", type=int, default=3)
+    ap.add_argument("--seed", type=int, default=7)
+    ap.add_argument("--out", default=str(HERE / "results" / "watch.json"))
+    args = ap.parse_args(argv)
+
+    data = generate_greenhouse(n_learners=args.learners, seed=args.seed)
+    events = data.events.copy()
+    if str(events["time"].dtype).startswith("datetime"):
+        events["time"] = events["time"].dt.strftime("%Y-%m-%dT%H:%M:%SZ")
+    records = events.to_dict("records")
+    lines = [json.dumps(r) for r in records]
+    parsed = [json.loads(x) for x in lines]
+    from seqmine.load import parse_times
+    secs, _r, _k = parse_times(events["time"].to_numpy(object))
+    frame = events.assign(time=secs)
+    enc = Encoder().fit(frame)
+    doc_base = enc.encoding_
+    db = enc.transform(frame)
+    n = len(lines)
+    t_plain, _ = timed(plain_pass, lines, repeat=args.repeat)
+    rows = []
+    print(f"{n} events, {args.learners} learners, {db.n_tokens} tokens; one core "
+          f"(CPU time, best of {args.repeat})")
+    print(f"{'detectors':>9} {'nodes':>6} {'plain ev/s':>11} {'watch ev/s':>11} "
+          f"{'process ev/s':>12} {'ratio':>6} {'p50 us':>7} {'p99 us':>7} {'firings':>8}")
+    for k in [int(x) for x in args.detectors.split(",")]:
+        doc = make_detectors(doc_base, db.vocab, k, args.seed)
+        t_watch, (n_fire, w) = timed(watch_pass, lines, doc, repeat=args.repeat)
+        t_proc, _ = timed(watch_pass, parsed, doc, False, repeat=args.repeat)
+        lat = latency_pass(lines, doc)
+        row = {
+            "detectors": k, "trie_nodes": w.n_nodes_, "events": n,
+            "plain_events_per_s": round(n / t_plain),
+            "watch_events_per_s": round(n / t_watch),
+            "process_only_events_per_s": round(n / t_proc),
+            "watch_vs_plain_time_ratio": round(t_watch / t_plain, 2),
+            "latency_p50_us": round(float(np.percentile(lat, 50)) / 1000, 2),
+            "latency_p99_us": round(float(np.percentile(lat, 99)) / 1000, 2),
+            "firings": int(n_fire),
+        }
+        rows.append(row)
+        print(f"{k:>9} {row['trie_nodes']:>6} {row['plain_events_per_s']:>11,} "
+              f"{row['watch_events_per_s']:>11,} {row['process_only_events_per_s']:>12,} "
+              f"{row['watch_vs_plain_time_ratio']:>6} {row['latency_p50_us']:>7} "
+              f"{row['latency_p99_us']:>7} {row['firings']:>8,}")
+    result = {"benchmark": "watch", "python": platform.python_version(),
+              "machine": platform.machine(), "learners": args.learners, "events": n,
+              "matching": {"max_gap": 2, "max_window": None, "skip_pauses": True},
+              "timing": f"CPU time of one process, best of {args.repeat}", "rows": rows}
+    out = Path(args.out)
+    out.parent.mkdir(parents=True, exist_ok=True)
+    out.write_text(json.dumps(result, indent=2) + "\n", encoding="utf-8")
+    print(f"wrote {out}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

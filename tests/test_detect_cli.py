@@ -1,0 +1,102 @@
+"""``seqmine detectors`` on the command line."""
+
+from __future__ import annotations
+
+import json
+import re
+
+import pytest
+
+from seqmine.cli import main
+from seqmine.detect import export_detectors, load_detectors
+from seqmine.sequences import SequenceDB
+
+from test_detect import ENCODING, _table
+
+
+@pytest.fixture(autouse=True)
+def _restore_quiet():
+    # 'seqmine ... -q' switches progress output off process-wide; undo it after each test
+    from seqmine._progress import is_quiet, set_quiet
+
+    before = is_quiet()
+    yield
+    set_quiet(before)
+
+
+@pytest.fixture
+def run_dir(tmp_path):
+    db = SequenceDB.from_lists(
+        [["set_light", "set_water", "advance_week", "pause:long"], ["reset", "paint_pot"],
+         ["set_light", "advance_week", "measure_height", "pause:long"]],
+        groups=["weak", "weak", "strong"], group_names=["strong", "weak"],
+        pause_tokens=["pause:long"])
+    db.encoding = dict(ENCODING)
+    db.save(tmp_path / "sequences")
+    _table().to_csv(tmp_path / "patterns.csv", index=False)
+    (tmp_path / "patterns").mkdir()
+    (tmp_path / "patterns" / "patternset.json").write_text(json.dumps(
+        {"format": "seqmine-patternset", "version": 1,
+         "constraints": {"max_gap": 1, "max_window": 5, "skip_pauses": True, "min_support": 0.1}}),
+        encoding="utf-8")
+    return tmp_path
+
+
+def test_detectors_command_writes_a_valid_file(run_dir, capsys):
+    out = run_dir / "detectors.json"
+    assert main(["detectors", str(run_dir / "patterns.csv"), "--sequences",
+                 str(run_dir / "sequences"), "--out", str(out), "--absence-events", "25"]) == 0
+    assert "wrote 2 detectors (1 discourage, 1 encourage) from 7 patterns" in capsys.readouterr().out
+    doc = load_detectors(out)
+    # constraints found in patterns/patternset.json beside the table
+    assert doc["matching"] == {"max_gap": 1, "max_window": 5, "skip_pauses": True}
+    assert doc["selection"]["constraints_from"].endswith("patternset.json")
+    assert doc["groups"]["sizes"] == {"strong": 1, "weak": 2}
+    assert doc["encoding"] == json.loads(json.dumps(ENCODING))
+    assert doc["detectors"][1]["absence"] == {"after_events": 25, "after_seconds": None}
+    assert doc["vocabulary"] == sorted(["set_light", "set_water", "advance_week", "reset",
+                                        "paint_pot", "measure_height"])
+
+
+def test_detectors_command_options_override(run_dir, capsys):
+    out = run_dir / "d.json"
+    assert main(["detectors", str(run_dir / "patterns.csv"), "--seqdb", str(run_dir / "sequences"),
+                 "--out", str(out), "--max-gap", "none", "--max-window", "3", "--skip-pauses", "no",
+                 "--favours", "weak", "--min-length", "2", "--keep-redundant", "-q"]) == 0
+    doc = load_detectors(out)
+    assert doc["matching"] == {"max_gap": None, "max_window": 3, "skip_pauses": False}
+    assert [d["tokens"] for d in doc["detectors"]] == [
+        ["set_light", "set_water", "advance_week"], ["set_light", "set_water"]]
+    assert capsys.readouterr().out == ""
+
+
+@pytest.mark.parametrize("args, message", [
+    (["missing.csv"], "contrast table not found; create it with 'seqmine contrast'"),
+    (["patterns.csv", "--patterns", "sequences"], "no patternset.json there"),
+    (["patterns.csv", "--effect", "hedges_g"], r"lacks column\(s\) hedges_g"),
+    (["patterns.csv", "--max-q", "3"], r"'max_q' parameter of select_detectors must be in"),
+    (["patterns.csv", "--strong-group", "top"], "'strong' group 'top' of build_detectors"),
+    (["patterns.csv", "--max-gap", "-2"], "invalid _opt_int value"),
+])
+def test_detectors_command_errors_exit_2(run_dir, capsys, args, message):
+    argv = ["detectors"] + [str(run_dir / a) if a.endswith((".csv", "sequences")) else a
+                            for a in args]
+    argv += ["--sequences", str(run_dir / "sequences"), "--out", str(run_dir / "x.json")]
+    assert main(argv) == 2
+    err = capsys.readouterr().err
+    assert re.search(message, err), err
+    assert not (run_dir / "x.json").exists()
+
+
+def test_detectors_command_without_sequence_db(run_dir, capsys):
+    assert main(["detectors", str(run_dir / "patterns.csv"), "--sequences", str(run_dir / "nope"),
+                 "--out", str(run_dir / "x.json")]) == 2
+    assert "not a sequence database folder" in capsys.readouterr().err
+
+
+def test_export_detectors_matches_the_two_steps(run_dir):
+    db = SequenceDB.load(run_dir / "sequences")
+    doc = export_detectors(_table(), db, {"max_gap": 1}, absence_after_seconds=600)
+    assert [d["id"] for d in doc["detectors"]] == ["D001", "D002"]
+    assert doc["detectors"][1]["absence"] == {"after_events": None, "after_seconds": 600.0}
+    assert doc["selection"]["max_q"] == 0.05 and doc["selection"]["effect"] == "cohens_h"
