@@ -158,9 +158,7 @@ def test_parallel_folds_give_identical_results():
     assert serial.encodings == parallel.encodings
 
 
-def test_same_seed_same_result_and_save(planted, planted_result, tmp_path):
-    r2 = _run(*planted)
-    pd.testing.assert_frame_equal(planted_result.to_frame(), r2.to_frame())
+def test_save_and_summary(planted_result, tmp_path):
     out = planted_result.save(tmp_path / "v")
     t = pd.read_csv(out / "early_prediction.csv")
     assert list(t.columns) == list(planted_result.to_frame().columns)
@@ -243,27 +241,6 @@ class _TopTwo(MedianGrouping):
 
 
 @pytest.mark.slow
-def test_null_data_no_classifier_beats_the_baseline_beyond_chance():
-    # Labels shuffled -> every true rejection rate is at most alpha = 0.05 (one-sided
-    # exact McNemar). Tolerance (stated before looking): over 4 seeds x 4 classifiers x
-    # 2 fractions = 32 tests, at most 10 % (3) may reject, i.e. twice the nominal rate;
-    # and no classifier's mean accuracy over seeds exceeds the baseline's by > 0.1.
-    rejections, gaps = 0, []
-    for seed in range(4):
-        ev, oc = planted_data(36, seed=100 + seed)
-        rng = np.random.default_rng(seed)
-        oc = oc.assign(score=rng.permutation(oc["score"].to_numpy()))
-        r = _run(ev, oc, seed=seed, fractions=[0.5, 1.0], n_bootstrap=50)
-        t = r.to_frame()
-        models = t[t.classifier != "majority"]
-        rejections += int(models["beats_baseline"].sum())
-        gaps.append(models.groupby("classifier")["accuracy"].mean()
-                    - models.groupby("classifier")["baseline_accuracy"].mean())
-    assert rejections <= 3
-    assert (pd.concat(gaps, axis=1).mean(axis=1) < 0.1).all()
-
-
-@pytest.mark.slow
 def test_folds_on_a_local_dask_cluster_give_identical_results():
     # real (importable) stages only, since the folds run in other processes
     pytest.importorskip("distributed")
@@ -281,10 +258,10 @@ def test_folds_on_a_local_dask_cluster_give_identical_results():
 
 
 def test_leave_one_learner_out_and_its_baseline_artefact():
-    ev, oc = planted_data(12, seed=6)
+    ev, oc = planted_data(8, seed=6)
     r = _run(ev, oc, loo=True, fractions=[1.0], n_bootstrap=20,
              classifiers=["frequency_pause"])
-    assert r.folds["fold"].nunique() == 12 and r.settings["loo"]
+    assert r.folds["fold"].nunique() == 8 and r.settings["loo"]
     assert set(r.predictions["learner"]) == set(oc["learner"])
     # fixed, balanced labels: the held-out learner is always the training minority, so
     # the majority baseline is always wrong (documented in validate's Notes)
