@@ -158,6 +158,22 @@ def test_parallel_folds_give_identical_results():
     assert serial.encodings == parallel.encodings
 
 
+def test_matched_training_changes_only_the_cut_fractions(planted, planted_result):
+    matched = _run(*planted, train_on="matched", classifiers=["frequency_pause", "hmm"])
+    full = planted_result.predictions
+    cols = ["learner", "proba_weak"]
+    for name in ["frequency_pause", "hmm"]:
+        a = full.query("classifier == @name and fraction == 1.0")[cols].reset_index(drop=True)
+        b = matched.predictions.query("classifier == @name and fraction == 1.0")[cols]
+        pd.testing.assert_frame_equal(a, b.reset_index(drop=True))
+        a = full.query("classifier == @name and fraction == 0.25")["proba_weak"].to_numpy()
+        b = matched.predictions.query("classifier == @name and fraction == 0.25")["proba_weak"]
+        assert not np.allclose(a, b.to_numpy())
+    assert matched.settings["train_on"] == "matched"
+    with pytest.raises(ParameterError, match="'train_on' parameter of validate"):
+        _run(*planted, train_on="cut")
+
+
 def test_save_and_summary(planted_result, tmp_path):
     out = planted_result.save(tmp_path / "v")
     t = pd.read_csv(out / "early_prediction.csv")
