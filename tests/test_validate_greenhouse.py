@@ -156,3 +156,22 @@ def test_greenhouse_with_shuffled_gains_gives_no_classifier_an_edge():
                     - models.groupby("classifier")["baseline_accuracy"].mean())
     assert rejections <= 3
     assert (pd.concat(gaps, axis=1).mean(axis=1) < 0.1).all()
+
+
+def test_several_sessions_per_learner_stay_in_one_fold_and_are_pooled():
+    d = generate_greenhouse(45, seed=11, sessions=True)
+    ev = d.events.assign(time=parse_times(d.events["time"])[0])
+    oc = d.outcomes.assign(gain=normalized_gain(d.outcomes["pre"], d.outcomes["post"],
+                                                d.outcomes["max"]))
+    enc = Encoder(unit="session")
+    db = enc.fit(ev).transform(ev)
+    multi = pd.Series(db.learners).value_counts()
+    assert (multi > 1).any()  # some learners have two sessions
+    with pytest.warns(Warning, match="several sequences per learner|independent"):
+        r = validate(ev, oc, folds=3, fractions=[0.5, 1.0], n_bootstrap=50, grouping=Grouping(),
+                     encoder=enc, featurizers=default_featurizers(hmm_params=FAST_HMM))
+    p = r.predictions
+    # one prediction per learner (sessions pooled), every learner held out once
+    assert not p.duplicated(["classifier", "fraction", "learner"]).any()
+    assert r.folds["learner"].is_unique
+    assert set(p["learner"]) <= set(multi.index)
