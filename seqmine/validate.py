@@ -116,6 +116,16 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
 
     Notes
     -----
+    *Classifiers* (:data:`CLASSIFIERS`): ``pattern`` -- rates of the patterns
+    selected on the training fold (:class:`~seqmine.features.PatternFeaturizer`);
+    ``hmm`` -- per-token log-likelihood ratio between the group HMMs
+    (:class:`~seqmine.features.HMMLikelihoodFeaturizer`); ``frequency_pause`` --
+    relative action frequencies plus mean and sd of log pauses
+    (:class:`~seqmine.features.FrequencyPauseFeaturizer`); ``fusion`` -- the three
+    feature sets stacked into one model; each of these is standardised and fed to an
+    L2-regularised logistic regression. ``majority`` predicts the training fold's
+    most frequent group (:class:`~sklearn.dummy.DummyClassifier`).
+
     Held-out learners are labelled with the *training* fold's grouping thresholds
     and encoded with the training pause edges. The fold split is stratified by the
     grouping fitted on all learners; that only balances fold composition and does
