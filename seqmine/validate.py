@@ -363,9 +363,10 @@ class ValidationResult:
         ``validation_predictions.csv`` and ``validation_folds.json`` to ``folder``."""
         folder = Path(folder)
         folder.mkdir(parents=True, exist_ok=True)
-        self.metrics.to_csv(folder / "early_prediction.csv", index=False)
-        self.to_long().to_csv(folder / "early_prediction_long.csv", index=False)
-        self.predictions.to_csv(folder / "validation_predictions.csv", index=False)
+        csv = dict(index=False, lineterminator="\n", float_format="%.10g")
+        self.metrics.to_csv(folder / "early_prediction.csv", **csv)
+        self.to_long().to_csv(folder / "early_prediction_long.csv", **csv)
+        self.predictions.to_csv(folder / "validation_predictions.csv", **csv)
         digest = self.summary()
         info = {
             "settings": self.settings,
