@@ -15,7 +15,7 @@ DESCRIPTION = (
     "Split learners into folds (stratified k-fold or leave-one-learner-out). In each fold "
     "the grouping thresholds, pause bins, mined patterns, selected contrasting patterns "
     "and group HMMs are learned on the training learners only, then the held-out "
-    "learners' sequences are cut to their first 10%%, 20%%, ... of events and classified. "
+    "learners' sequences are cut to their first 10%, 20%, ... of events and classified. "
     "Writes OUT/early_prediction.csv (accuracy, balanced accuracy, per-group recall, ROC "
     "AUC with bootstrap intervals, the majority baseline and whether each classifier "
     "beats it), OUT/early_prediction_long.csv (plot-ready), "
