@@ -11,7 +11,10 @@ in at least one group: ``support_count[g] / group_size[g] >= min_support`` (or
 ``support_count[g] >= min_support`` for an integer count) for some group ``g``.
 A database without groups is treated as one group named ``"all"``.
 
-Output order: by length, then lexicographically by vocabulary id.
+Output order (deterministic): by length, then by last item, then by the item
+before it, and so on (vocabulary ids) -- the order in which the level-wise search
+numbers the patterns of a level (every new pattern is numbered by its last item
+first, then by its prefix's number), so no sort is needed.
 """
 
 from __future__ import annotations
@@ -46,7 +49,7 @@ _MAX_BULK_SUBSET_LENGTH = 12
 
 def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_window=None,
          skip_pauses=False, start_with_action=False, end_with_action=False, closed=False,
-         maximal=False, max_patterns=DEFAULT_MAX_PATTERNS):
+         maximal=False, max_patterns=DEFAULT_MAX_PATTERNS, instance_counts=True):
     """Mine ordered patterns that are frequent in at least one group.
 
     Parameters
@@ -73,11 +76,16 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
     max_patterns : int
         Stop with :class:`~seqmine.errors.PatternExplosionError` when more frequent
         patterns than this are found.
+    instance_counts : bool
+        Compute the sequences x patterns instance-count matrix (default). With
+        False only patterns and supports are mined (faster); the matrix is then
+        left empty and ``constraints["instance_counts"]`` is False.
 
     Returns
     -------
     PatternSet
-        Patterns ordered by length, then by vocabulary ids; per-group sequence
+        Patterns ordered by length, then by last item, item before it, ... (vocabulary
+        ids; see the module docstring); per-group sequence
         support; a sparse sequences x patterns matrix of instance counts
         (earliest-end greedy, non-overlapping spans).
 
@@ -103,6 +111,8 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
     ['a', 'b', 'c', 'a > c', 'b > c']
     >>> ps.support_counts[:, 0].tolist()
     [2, 2, 3, 2, 2]
+    >>> mine(db, min_support=1, min_length=2, max_length=2).names
+    ['a > b', 'a > c', 'b > c']
     """
     where = "mine"
     _check_db(db, where)
@@ -115,7 +125,7 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
     max_patterns = check_int(max_patterns, "max_patterns", where, minimum=1)
     for name, val in (("skip_pauses", skip_pauses), ("start_with_action", start_with_action),
                       ("end_with_action", end_with_action), ("closed", closed),
-                      ("maximal", maximal)):
+                      ("maximal", maximal), ("instance_counts", instance_counts)):
         if not isinstance(val, (bool, np.bool_)):
             raise ParameterError(f"The '{name}' parameter of mine must be True or False. "
                                  f"Got {val!r} instead.")
@@ -160,16 +170,15 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
         db, alphabet=alphabet, gidx=gidx, G=G, mode=mode, level1=level1,
         allowed_fn=allowed_fn, keep_fn=keep_fn, target_fn=target_fn,
         max_length=max_length, max_patterns=max_patterns,
-        cons=dict(max_gap=max_gap, max_window=max_window, skip_pauses=bool(skip_pauses)))
+        cons=dict(max_gap=max_gap, max_window=max_window, skip_pauses=bool(skip_pauses)),
+        with_counts=bool(instance_counts))
 
     # collect reported candidates in (length, lexicographic) order
     pats, support, nodes = [], [], []
     offsets = _node_offsets(levels)
     for k in range(1, len(levels)):
         lev = levels[k]
-        tgt = np.flatnonzero(lev["target"])
-        # nodes are numbered symbol-major; report them lexicographically
-        tgt = tgt[np.lexsort(lev["pats"][tgt].T[::-1])]
+        tgt = np.flatnonzero(lev["target"])   # in search order (see module docstring)
         nodes.append(tgt + offsets[k])
         rows = alphabet[lev["pats"][tgt]]
         pats.extend(tuple(r) for r in rows.tolist())
@@ -190,7 +199,8 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
         max_gap=max_gap, max_window=max_window, skip_pauses=bool(skip_pauses),
         start_with_action=bool(start_with_action), end_with_action=bool(end_with_action),
         closed=bool(closed), maximal=bool(maximal), max_patterns=max_patterns,
-        order="length, then vocabulary ids")
+        instance_counts=bool(instance_counts),
+        order="length, then last item, item before it, ... (vocabulary ids)")
     return PatternSet(
         patterns=[pats[i] for i in idx], vocab=list(db.vocab), is_pause=db.is_pause.copy(),
         group_names=names, group_sizes=sizes, support_counts=support[idx],
@@ -448,7 +458,7 @@ def _symbol_support(db, gidx, G):
 
 
 def _search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_fn,
-            max_length, max_patterns, cons):
+            max_length, max_patterns, cons, with_counts=True):
     """Level-wise bulk projection shared by :func:`mine` and :func:`match`.
 
     Returns ``levels`` (index 0 = the root) with per-level node arrays ``parent``,
@@ -486,18 +496,22 @@ def _search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_
             flat = np.flatnonzero(plan.allowed_t.ravel())   # keys sym * n_prev + parent
             if flat.size == 0:
                 break
-            cand_index = np.full(n_prev * n_sym, -1, dtype=np.int64)
-            cand_index[flat] = np.arange(len(flat))
-            counts = np.zeros((len(flat), slots), dtype=np.int64)
+            n_keys = n_prev * n_sym
+            counts = np.zeros((n_keys, slots), dtype=np.int64)
+            stored = mode == "gap" or (k == 0 and mode == "frontier")
             ext = []
             for b, block in enumerate(blocks):
-                if k == 0:
-                    e = K.root_extend(block, level1, mode)
+                if k == 0 and mode == "first":
+                    occ[b] = K.root_occurrences(block)
+                if stored:
+                    e = K.root_extend(block, level1, mode) if k == 0 else \
+                        K.extend(block, occ[b], plan, mode)
+                    counts += K.count_support(block, e, n_keys, slots)
+                    ext.append(e)
                 else:
-                    e = K.extend(block, occ[b], plan, mode)
-                    block.release()
-                counts += K.count_support(block, e, len(flat), slots, cand_index)
-                ext.append(e)
+                    K.nx_count(block, occ[b], plan, mode, counts.reshape(n_sym, n_prev, slots))
+                block.release()
+            counts = counts[flat]
             keep = keep_fn(k + 1, counts[:, :G], flat)
             new_flat = flat[keep]
             if new_flat.size == 0:
@@ -527,18 +541,29 @@ def _search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_
                     f"Mining stopped: more than {max_patterns} frequent patterns (reached at "
                     f"length {k + 1}). Raise 'max_patterns' (--max-patterns) if you need them "
                     f"all, or raise 'min_support', lower 'max_length' or set 'max_gap'.")
+            last = max_length is not None and k + 1 >= max_length
             for b, block in enumerate(blocks):
-                e = ext[b]
-                ext[b] = None
-                pid = new_id[e.pid]
-                ok = pid >= 0
-                e = e.take(ok)
-                e.pid = pid[ok].astype(np.int32)
-                occ[b] = e
-                if lev["target"].any():
-                    t = e.take(lev["target"][e.pid])
-                    node, seq, cnt = K.instance_counts(block, t, mode, lev["pats"])
-                    triples[b][1].append((k + 1, node, seq, cnt))
+                if stored:
+                    e = ext[b]
+                    ext[b] = None
+                    pid = new_id[e.pid]
+                    ok = pid >= 0
+                    e = e.take(ok)
+                    e.pid = pid[ok].astype(np.int32)
+                    occ[b] = e
+                    if with_counts and lev["target"].any():
+                        t = e.take(lev["target"][e.pid])
+                        trip = K.instance_counts(block, t, mode, lev["pats"])
+                        trip = (trip[0], block.original_seq(trip[1]), trip[2])
+                        triples[b][1].append((k + 1,) + tuple(trip))
+                elif not last or (with_counts and lev["target"].any()):
+                    target = lev["target"] if with_counts else np.zeros_like(lev["target"])
+                    occ[b], trip = K.nx_store(block, occ[b], plan, mode, new_id, target,
+                                              lev["pats"], store=not last)
+                    trip = (trip[0], block.original_seq(trip[1]), trip[2])
+                    triples[b][1].append((k + 1,) + tuple(trip))
+                else:
+                    occ[b] = None
                 block.release()
             k += 1
             bar.update(1)
@@ -562,20 +587,22 @@ def _assemble_counts(triples, offsets, select):
     """
     n_nodes = int(offsets[-1])
     select = np.asarray(select, dtype=np.int64)
+    identity = len(select) == n_nodes and np.array_equal(select, np.arange(n_nodes))
     parts = []
     for n_seq, trip in triples:
         if trip:
-            node = np.concatenate([nd.astype(np.int64) + offsets[k] for k, nd, _, _ in trip])
-            seq = np.concatenate([sq for _, _, sq, _ in trip]).astype(np.int32)
-            cnt = np.concatenate([c for _, _, _, c in trip]).astype(np.int32)
+            node = np.concatenate([nd + offsets[k] for k, nd, _, _ in trip])
+            seq = np.concatenate([sq for _, _, sq, _ in trip])
+            cnt = np.concatenate([c for _, _, _, c in trip])
         else:
             node = np.zeros(0, dtype=np.int64)
             seq = cnt = np.zeros(0, dtype=np.int32)
         indptr = np.zeros(n_nodes + 1, dtype=np.int64)
         np.cumsum(np.bincount(node, minlength=n_nodes), out=indptr[1:])
         by_node = sp.csr_matrix((cnt, seq, indptr), shape=(n_nodes, n_seq))
-        by_node.has_sorted_indices = True
-        parts.append(by_node[select].T.tocsr())
+        if not identity:
+            by_node = by_node[select]
+        parts.append(by_node.T.tocsr())
     return sp.vstack(parts, format="csr") if len(parts) > 1 else parts[0]
 
 
