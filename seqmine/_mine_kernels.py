@@ -36,7 +36,7 @@ _NX_BLOCK_TOKENS = 1 << 15
 #: Keep all next-occurrence tables between levels when they fit in this many bytes.
 _NX_CACHE_BYTES = 512 << 20
 #: Target number of tokens per block when no next-occurrence table is needed.
-_PLAIN_BLOCK_TOKENS = 1 << 18
+_PLAIN_BLOCK_TOKENS = 1 << 16
 #: Largest number of (occurrence, symbol) look-ups expanded at once.
 _EXPAND_CHUNK = 1 << 16
 
@@ -126,6 +126,7 @@ class Block:
             np.cumsum(nonpause, out=self.c[1:])
         self._nx = None
         self._masks = None
+        self._gap_hi = None
         self._by_sym = None
         self.keep_nx = True
 
@@ -199,13 +200,15 @@ class Block:
 
     def gap_limit(self, end):
         """Exclusive upper bound of the next item's position after ``end`` (gap rule)."""
-        end = end.astype(np.int64)
-        se = self.seq_end[self.seq_of_pos[end]]
-        if self.skip_pauses:
-            hi = np.searchsorted(self.c, self.c[end + 1] + self.max_gap, side="right")
-        else:
-            hi = end + self.max_gap + 2
-        return np.minimum(hi, se)
+        if self._gap_hi is None:
+            pos = np.arange(self.T, dtype=np.int64)
+            se = self.seq_end[self.seq_of_pos]
+            if self.skip_pauses:
+                hi = np.searchsorted(self.c, self.c[pos + 1] + self.max_gap, side="right")
+            else:
+                hi = pos + self.max_gap + 2
+            self._gap_hi = np.minimum(hi, se)
+        return self._gap_hi[end]
 
     def window_limit(self, start):
         """Exclusive upper bound of any later item's position given the first at ``start``."""
@@ -474,15 +477,24 @@ def _extend_gap(block, occ, plan):
     ok = plan.allowed[pid, sym]
     rep, j, sym, pid = rep[ok], j[ok], sym[ok], pid[ok]
     cand = sym.astype(np.int64) * n_pid + pid
-    key = cand * (block.T + 1) + j
-    order = np.argsort(key, kind="stable")
-    key = key[order]
-    start = occ.start[rep[order]]
-    heads = np.flatnonzero(run_heads(key))
-    if heads.size == 0:
+    T1 = block.T + 1
+    key = cand * T1 + j
+    if key.size == 0:
         return Occ.concat([], True)
-    start = np.maximum.reduceat(start, heads)
-    key = key[heads]
+    if int(key.max()) < np.iinfo(np.int64).max // T1:
+        # the latest start rides in the low digits: one value sort, keep each run's last
+        key2 = np.sort(key * T1 + occ.start[rep])
+        key = key2 // T1
+        last = np.ones(len(key), dtype=bool)
+        last[:-1] = key[1:] != key[:-1]
+        key, start = key[last], key2[last] % T1
+    else:
+        order = np.argsort(key)
+        key = key[order]
+        start = occ.start[rep[order]]
+        heads = np.flatnonzero(run_heads(key))
+        start = np.maximum.reduceat(start, heads)
+        key = key[heads]
     cand = key // (block.T + 1)
     j = (key % (block.T + 1)).astype(np.int32)
     return Occ(cand, block.seq_of_pos[j], j, start.astype(np.int32))

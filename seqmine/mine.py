@@ -43,6 +43,8 @@ DEFAULT_MAX_PATTERNS = 200_000
 
 _PS_FORMAT = "seqmine-patternset"
 _PS_VERSION = 1
+#: Work counters of the last search (read by benchmarks/bench_mine.py).
+_LAST_STATS = {}
 #: Pattern lengths up to which closed/maximal filtering enumerates sub-patterns in bulk.
 _MAX_BULK_SUBSET_LENGTH = 12
 
@@ -479,6 +481,8 @@ def _search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_
                 support=np.zeros((1, G), np.int64), child_in=None,
                 target=np.zeros(1, bool))
     levels = [root]
+    _LAST_STATS.clear()
+    _LAST_STATS.update(mode=mode, n_blocks=len(blocks), levels=[])
     triples = [(block.n_seq, []) for block in blocks]
     occ = [None] * len(blocks)
     total = 0
@@ -512,6 +516,10 @@ def _search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_
                     K.nx_count(block, occ[b], plan, mode, counts.reshape(n_sym, n_prev, slots))
                 block.release()
             counts = counts[flat]
+            n_in = sum(len(o) for o in occ if o is not None) if k else \
+                (db.n_tokens if stored else db.n_sequences)
+            _LAST_STATS["levels"].append(dict(length=k + 1, candidates=int(len(flat)),
+                                              occurrences_extended=int(n_in)))
             keep = keep_fn(k + 1, counts[:, :G], flat)
             new_flat = flat[keep]
             if new_flat.size == 0:
@@ -565,6 +573,11 @@ def _search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_
                 else:
                     occ[b] = None
                 block.release()
+            st = _LAST_STATS["levels"][-1]
+            st["frequent"] = int(len(new_flat))
+            st["occurrences_kept"] = int(sum(len(o) for o in occ if o is not None))
+            st["instance_counts"] = int(sum(len(t[-1][1]) for _, t in triples
+                                            if t and t[-1][0] == k + 1))
             k += 1
             bar.update(1)
     finally:
