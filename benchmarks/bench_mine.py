@@ -115,9 +115,10 @@ def _timed(fn):
 
 
 def _processed(stats):
+    """Prefix occurrences extended + new occurrences found + instance counts computed."""
     lv = stats.get("levels", [])
     return int(sum(x.get("occurrences_extended", 0) + x.get("occurrences_kept", 0)
-                   + x.get("instance_counts", 0) for x in lv))
+                   for x in lv) + stats.get("instance_counts", 0))
 
 
 def worker_reference(spec):
@@ -171,7 +172,7 @@ def worker_scaling(spec):
     floor_w = min(floor_w, _timed(lambda: np.bincount(db.tokens, minlength=len(db.vocab)))[1])
     kw = dict(spec["options"])
     ps, w, c = _timed(lambda: mine_mod.mine(db, max_length=4, max_patterns=10 ** 7, **kw))
-    stats = mine_mod._LAST_STATS
+    from seqmine._mine_search import LAST_STATS as stats
     processed = _processed(stats)
     return {
         "tokens": int(db.n_tokens), "sequences": int(db.n_sequences),
