@@ -94,6 +94,9 @@ def search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_f
                 break
             n_keys = n_prev * n_sym
             counts = np.zeros((n_keys, slots), dtype=np.int64)
+            # at the last level the gap mode counts first and re-projects only the kept
+            # candidates afterwards, instead of holding every candidate's occurrences
+            last = max_length is not None and k + 1 >= max_length and k > 0
             ext = []
             n_in = 0
             for b, block in enumerate(blocks):
@@ -106,7 +109,8 @@ def search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_f
                         n_in += len(occ[b])
                     counts += K.count_support(block, e, n_keys, slots)
                     if stored:
-                        ext.append(e)
+                        ext.append(None if last else e)
+                    del e
                 else:
                     o = replay(block, k)
                     n_in += len(o)
@@ -147,9 +151,19 @@ def search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_f
                     f"length {k + 1}). Raise 'max_patterns' (--max-patterns) if you need them "
                     f"all, or raise 'min_support', lower 'max_length' or set 'max_gap'.")
             if stored:
+                if last:
+                    kept = np.zeros((n_prev, n_sym), dtype=bool)
+                    kept[parent, sym] = True
+                    plan = K.LevelPlan(kept)
                 for b, block in enumerate(blocks):
-                    e = ext[b]
-                    ext[b] = None
+                    if last:
+                        if not (with_counts and lev["target"].any()):
+                            occ[b] = None
+                            continue
+                        e = K.extend(block, occ[b], plan, mode)
+                    else:
+                        e = ext[b]
+                        ext[b] = None
                     pid = new_id[e.pid]
                     ok = pid >= 0
                     e = e.take(ok)
@@ -159,6 +173,8 @@ def search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_f
                         t = e.take(lev["target"][e.pid])
                         node, seq, cnt = K.instance_counts(block, t, mode, lev["pats"])
                         triples[b][1].append((k + 1, node, block.original_seq(seq), cnt))
+                    if last:
+                        occ[b] = None
                     block.release()
             k += 1
             bar.update(1)
@@ -182,16 +198,33 @@ def assemble_counts(triples, offsets, select):
     """Sparse (n_sequences, len(select)) instance counts of the global nodes ``select``.
 
     Each block's triples arrive sorted by (level, node), so a block's nodes x
-    sequences CSR is built without sorting; rows are picked in output order,
-    transposed (linear time) and the blocks stacked.
+    sequences CSR is built without sorting; its rows are picked in output order and
+    transposed (linear time) straight into the preallocated result. ``triples`` is
+    emptied block by block as it is consumed, to bound memory.
     """
     import scipy.sparse as sp
 
     n_nodes = int(offsets[-1])
     select = np.asarray(select, dtype=np.int64)
     identity = len(select) == n_nodes and np.array_equal(select, np.arange(n_nodes))
-    parts = []
-    for n_seq, trip in triples:
+    chosen = np.zeros(n_nodes, dtype=bool)
+    chosen[select] = True
+    dup = len(np.unique(select)) != len(select)
+    n_total = sum(n for n, _ in triples)
+    nnz = 0
+    for _, trip in triples:
+        for k, nd, _, _ in trip:
+            nnz += int(np.count_nonzero(chosen[nd + offsets[k]])) if not dup else 0
+    if dup:  # a node picked twice (match with repeated patterns): size from the parts
+        nnz = None
+    itype = np.int32 if (nnz or 0) < 2 ** 31 and len(select) < 2 ** 31 else np.int64
+    indptr = np.zeros(n_total + 1, dtype=np.int64)
+    if nnz is not None:
+        indices = np.empty(nnz, dtype=itype)
+        data = np.empty(nnz, dtype=np.int32)
+    pieces = []
+    row0, pos = 0, 0
+    for b, (n_seq, trip) in enumerate(triples):
         if trip:
             node = np.concatenate([nd + offsets[k] for k, nd, _, _ in trip])
             seq = np.concatenate([sq for _, _, sq, _ in trip])
@@ -199,13 +232,30 @@ def assemble_counts(triples, offsets, select):
         else:
             node = np.zeros(0, dtype=np.int64)
             seq = cnt = np.zeros(0, dtype=np.int32)
-        indptr = np.zeros(n_nodes + 1, dtype=np.int64)
-        np.cumsum(np.bincount(node, minlength=n_nodes), out=indptr[1:])
-        by_node = sp.csr_matrix((cnt, seq, indptr), shape=(n_nodes, n_seq))
+        triples[b] = (n_seq, [])
+        bptr = np.zeros(n_nodes + 1, dtype=np.int64)
+        np.cumsum(np.bincount(node, minlength=n_nodes), out=bptr[1:])
+        by_node = sp.csr_matrix((cnt, seq, bptr), shape=(n_nodes, n_seq))
+        del node, seq, cnt
         if not identity:
             by_node = by_node[select]
-        parts.append(by_node.T.tocsr())
-    return sp.vstack(parts, format="csr") if len(parts) > 1 else parts[0]
+        part = by_node.T.tocsr()
+        del by_node
+        m = part.nnz
+        indptr[row0 + 1: row0 + n_seq + 1] = part.indptr[1:] + pos
+        if nnz is None:
+            pieces.append((part.indices, part.data))
+        else:
+            indices[pos:pos + m] = part.indices
+            data[pos:pos + m] = part.data
+        row0 += n_seq
+        pos += m
+    if nnz is None:
+        indices = np.concatenate([i for i, _ in pieces]) if pieces else np.zeros(0, itype)
+        data = np.concatenate([d for _, d in pieces]) if pieces else np.zeros(0, np.int32)
+    out = sp.csr_matrix((data, indices, indptr), shape=(n_total, len(select)))
+    out.has_sorted_indices = True
+    return out
 
 
 def build_trie(local, n_sym):

@@ -282,3 +282,10 @@ def test_supports_only_option():
     assert np.array_equal(lean.support_counts, full.support_counts)
     assert lean.counts.shape == full.counts.shape and lean.counts.nnz == 0
     assert lean.constraints["instance_counts"] is False
+
+
+def test_match_repeated_patterns():
+    db = SequenceDB.from_lists([["a", "b", "a", "b"], ["b"]], groups=["x", "y"])
+    ps = match(db, ["a > b", "b", "a > b"])
+    assert ps.counts.toarray().tolist() == [[2, 2, 2], [0, 1, 0]]
+    assert ps.support_counts.tolist() == [[1, 0], [1, 1], [1, 0]]
