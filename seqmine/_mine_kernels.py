@@ -423,8 +423,8 @@ def nx_count(block, occ, plan, mode, counts):
 def nx_store(block, occ, plan, mode, new_id, target, pats, store):
     """Pass 2: the kept extensions as the next level's occurrences, plus instance counts.
 
-    Returns ``(occ_next or None, (node, seq, count))`` with the triples sorted by
-    (node, sequence).
+    Returns ``(occ_next or None, [(node, seq, count), ...])``: instance-count triples
+    in parts, together sorted by (node, sequence).
     """
     n_pid = plan.n_pid
     parts, trip = [], []
@@ -453,11 +453,6 @@ def nx_store(block, occ, plan, mode, new_id, target, pats, store):
             trip.append(instance_counts(block, part.take(t) if not t.all() else part, mode,
                                         pats))
     nxt = Occ.concat(parts, mode != "first") if store else None
-    if trip:
-        trip = tuple(np.concatenate(x) for x in zip(*trip))
-    else:
-        z = np.zeros(0, dtype=np.int32)
-        trip = (z, z, z)
     return nxt, trip
 
 
@@ -576,31 +571,34 @@ def _jump_counts(block, pats, pid, seq, end):
     nxf = block.nx().ravel()
     T2 = block.T + 2
     dead = block.T + 1                                # NX[:, T + 1] = T: stays dead
+    itype = np.int32 if block.n_sym * T2 < 2 ** 31 else np.int64
+    rowoff = pats.astype(itype) * itype(T2)           # (n_pid, k) offsets into nxf
     n = len(pid)
     cnt = np.ones(n, dtype=np.int32)
-    itype = np.int32 if block.n_sym * T2 < 2 ** 31 else np.int64
     for c0 in range(0, n, _EXPAND_CHUNK):
         c1 = min(c0 + _EXPAND_CHUNK, n)
-        rows = pats[pid[c0:c1]]
-        cols = [rows[:, j].astype(itype) * itype(T2) for j in range(k)]
+        offs = np.ascontiguousarray(rowoff[pid[c0:c1]].T)   # (k, m)
         pos = end[c0:c1].astype(itype) + 1
         lim = block.seq_end[seq[c0:c1]].astype(itype)
         idx = np.arange(c0, c1)
+        tmp = np.empty_like(pos)
         while idx.size:
             p = pos
             for j in range(k):
-                p = nxf[cols[j] + p] + 1
+                np.add(offs[j], p, out=tmp)
+                np.take(nxf, tmp, out=p)
+                p += 1
             ok = p <= lim
             n_ok = int(np.count_nonzero(ok))
             if n_ok == 0:
                 break
-            if n_ok < 0.7 * len(idx):
+            if n_ok < 0.5 * len(idx):
                 # compact when many pairs are done
-                idx, p, lim = idx[ok], p[ok], lim[ok]
-                cols = [c[ok] for c in cols]
+                idx, pos, lim, offs = idx[ok], p[ok], lim[ok], offs[:, ok]
+                tmp = np.empty_like(pos)
                 cnt[idx] += 1
             else:
                 cnt[idx] += ok
-                p = np.where(ok, p, dead)
-            pos = p
+                p[~ok] = dead
+                pos = p
     return cnt

@@ -73,10 +73,11 @@ def search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_f
                     node, seq, cnt = K.instance_counts(block, t, mode, lev["pats"])
                     trip.append((j, node, block.original_seq(seq), cnt))
             else:
-                o, (node, seq, cnt) = K.nx_store(block, o, plan_j, mode, new_id_j, target,
-                                                 lev["pats"], store=j < upto or trip is None)
+                o, parts = K.nx_store(block, o, plan_j, mode, new_id_j, target,
+                                      lev["pats"], store=j < upto or trip is None)
                 if want:
-                    trip.append((j, node, block.original_seq(seq), cnt))
+                    trip.extend((j, node, block.original_seq(seq), cnt)
+                                for node, seq, cnt in parts)
         return o
 
     bar = progress(total=max_length, desc="mining levels", unit="level")
