@@ -42,6 +42,8 @@ DEFAULT_MAX_PATTERNS = 200_000
 
 _PS_FORMAT = "seqmine-patternset"
 _PS_VERSION = 1
+#: Windows up to this many tokens run in the gap mode with the implied gap.
+_IMPLIED_GAP_WINDOW = 16
 #: Pattern lengths up to which closed/maximal filtering enumerates sub-patterns in bulk.
 _MAX_BULK_SUBSET_LENGTH = 12
 
@@ -140,7 +142,7 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
     level1 = np.arange(len(alphabet))
     if start_with_action:
         level1 = level1[~is_pause_local]
-    mode = _mode(max_gap, max_window)
+    mode, engine_cons = _engine(max_gap, max_window, skip_pauses)
 
     def allowed_fn(levels, k):
         lev = levels[k]
@@ -152,7 +154,7 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
         allowed = np.ones((len(q), n_sym), dtype=bool)
         has = q >= 0
         allowed[has] = table[q[has]] >= 0
-        if mode != "gap":
+        if max_gap is None:  # without a gap limit p[:-1] + s is a sub-pattern too
             allowed &= table[lev["parent"]] >= 0
         return allowed
 
@@ -169,7 +171,7 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
         db, alphabet=alphabet, gidx=gidx, G=G, mode=mode, level1=level1,
         allowed_fn=allowed_fn, keep_fn=keep_fn, target_fn=target_fn,
         max_length=max_length, max_patterns=max_patterns,
-        cons=dict(max_gap=max_gap, max_window=max_window, skip_pauses=bool(skip_pauses)),
+        cons=engine_cons,
         with_counts=bool(instance_counts))
 
     # collect reported candidates in (length, lexicographic) order
@@ -252,7 +254,7 @@ def match(db, patterns, *, max_gap=None, max_window=None, skip_pauses=False):
     lut[alphabet] = np.arange(len(alphabet))
     local = [tuple(lut[list(p)].tolist()) for p in pats]
     trie = build_trie(local, len(alphabet))
-    mode = _mode(max_gap, max_window)
+    mode, engine_cons = _engine(max_gap, max_window, skip_pauses)
 
     def allowed_fn(levels, k):
         return trie[k + 1]["child_in"] >= 0 if k + 1 < len(trie) else \
@@ -267,7 +269,7 @@ def match(db, patterns, *, max_gap=None, max_window=None, skip_pauses=False):
     levels, triples = search(
         db, alphabet=alphabet, gidx=gidx, G=G, mode=mode, level1=trie[1]["sym"],
         allowed_fn=allowed_fn, keep_fn=keep_fn, target_fn=target_fn,
-        max_length=len(trie) - 1, max_patterns=None, cons=constraints)
+        max_length=len(trie) - 1, max_patterns=None, cons=engine_cons)
     offsets = node_offsets(levels)
     support = np.concatenate([levels[k]["support"] for k in range(1, len(levels))])
     # (a pattern's global node: offsets[length] + its number within the level)
@@ -409,10 +411,23 @@ def _check_constraints(max_gap, max_window, where, min_length):
     return max_gap, max_window
 
 
-def _mode(max_gap, max_window):
+def _engine(max_gap, max_window, skip_pauses):
+    """Projection mode and the constraints it runs with.
+
+    A short window alone runs in the gap mode with the gap the window implies (two
+    consecutive items inside a window of ``w`` tokens have at most ``w - 2`` tokens
+    between them, or ``w`` non-pause tokens when pauses are skipped), which prunes
+    the same occurrences as the window and is faster than tracking minimal windows.
+    """
+    cons = dict(max_gap=max_gap, max_window=max_window, skip_pauses=bool(skip_pauses))
     if max_gap is not None:
-        return "gap"
-    return "frontier" if max_window is not None else "first"
+        return "gap", cons
+    if max_window is None:
+        return "first", cons
+    if max_window <= _IMPLIED_GAP_WINDOW:
+        cons["max_gap"] = max_window if skip_pauses else max(max_window - 2, 0)
+        return "gap", cons
+    return "frontier", cons
 
 
 def _group_slots(db, allow_empty=False):

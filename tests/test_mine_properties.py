@@ -14,6 +14,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+import seqmine.mine as mine_module
 from seqmine.mine import match, mine
 from seqmine.sequences import SequenceDB
 
@@ -170,7 +171,14 @@ def test_mine_equals_brute_force(dbspec, cons, data):
         min_support = data.draw(st.integers(1, max(sizes)))
     else:
         min_support = data.draw(st.sampled_from([0.2, 0.25, 1 / 3, 0.5, 0.6, 2 / 3, 1.0]))
-    ps = mine(db, min_support=min_support, **cons)
+    # a window alone runs in the gap engine (implied gap) or tracks minimal windows
+    frontier = data.draw(st.booleans())
+    saved = mine_module._IMPLIED_GAP_WINDOW
+    mine_module._IMPLIED_GAP_WINDOW = 0 if frontier else saved
+    try:
+        ps = mine(db, min_support=min_support, **cons)
+    finally:
+        mine_module._IMPLIED_GAP_WINDOW = saved
     ref = brute_mine(seqs, eff_groups, n_groups, IS_PAUSE, min_support=min_support, **cons)
     got = _as_dict(ps)
     assert set(got) == set(ref)
@@ -191,7 +199,13 @@ def test_match_equals_brute_force(dbspec, data):
     max_gap = data.draw(st.one_of(st.none(), st.integers(0, 3)))
     max_window = data.draw(st.one_of(st.none(), st.integers(1, 6)))
     skip = data.draw(st.booleans())
-    ps = match(db, patterns, max_gap=max_gap, max_window=max_window, skip_pauses=skip)
+    frontier = data.draw(st.booleans())
+    saved = mine_module._IMPLIED_GAP_WINDOW
+    mine_module._IMPLIED_GAP_WINDOW = 0 if frontier else saved
+    try:
+        ps = match(db, patterns, max_gap=max_gap, max_window=max_window, skip_pauses=skip)
+    finally:
+        mine_module._IMPLIED_GAP_WINDOW = saved
     assert ps.patterns == patterns
     occ = [occurrences(s, IS_PAUSE, 4, max_gap, max_window, skip) for s in seqs]
     dense = ps.counts.toarray()
