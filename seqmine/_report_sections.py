@@ -60,8 +60,10 @@ th { background: var(--soft); font-weight: 600; }
 td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; }
 .grid2 { display:grid; grid-template-columns: repeat(auto-fit, minmax(440px, 1fr));
   gap: 4px 24px; align-items: start; }
-.grid2 table { width: 100%; font-size: 13px; }
-.grid2 td:first-child { width: 34%; overflow-wrap: anywhere; }
+.grid1 .fig { max-width: 760px; }
+.grid2 table, .grid1 table { width: 100%; max-width: 760px; font-size: 13px; }
+.grid2 td:first-child, .grid1 td:first-child { width: 34%; overflow-wrap: anywhere; }
+td .pair { white-space: nowrap; }
 .fig { max-width: 100%; height: auto; display: block; margin: 6px 0 12px; }
 .tok { display:inline-block; border:1px solid #c9c9c9; background:#fff; border-radius:4px;
   padding:0 6px; margin:1px 0; font: 13px/1.6 ui-monospace, "DejaVu Sans Mono",
@@ -225,8 +227,12 @@ def _key_findings(d):
                        if "favours" in sig.columns else [])
                 parts = [f"{_int(n)} favour {_group_label(g, groups)}"
                          for g, n in fav if str(g)]
+                distinct = ""
+                if "redundant_of" in sig.columns:
+                    n_distinct = int((sig["redundant_of"].astype(str).str.strip() == "").sum())
+                    distinct = f"; {_int(n_distinct)} without near-duplicates"
                 items.append(f"{_int(len(sig))} of {_int(len(pat))} patterns differ reliably "
-                             f"between groups (q ≤ {d['alpha']:g})"
+                             f"between groups (q ≤ {d['alpha']:g}{distinct})"
                              + (": " + ", ".join(parts) if parts else "") + ".")
             else:
                 items.append(f"None of the {_int(len(pat))} patterns differs reliably between "
@@ -386,6 +392,11 @@ def section_phases(d, figs):
     models = sorted(models, key=lambda m: (order.get(m["group"], len(order)), m["group"],
                                            m["file"]))
     cells = []
+    crowded = any(len(m["states"]) > 4 for m in models)
+    min_prob = 0.1 if crowded else 0.05
+    if models:
+        out.append(f"<p>Arrows with a probability below {min_prob:g} are left out; "
+                   "tokens produced less than 1% of the time in a phase are not listed.</p>")
     for m in models:
         states = m["states"]
         rows = [[esc(st["name"]), _fmt(st.get("dwell"), 1),
@@ -394,12 +405,13 @@ def section_phases(d, figs):
         cells.append(
             f"<div><h3>{_group_label(m['group'], d['groups'])} "
             f'<span class="note">({esc(m["file"])})</span></h3>\n'
-            + _plots.svg_state_diagram(states, m["transmat"],
+            + _plots.svg_state_diagram(states, m["transmat"], min_prob=min_prob,
                                        title=f"Phase model: {m['group']}", fig_id=figs())
             + _table(["phase", "stays (steps)", "most frequent tokens"], rows,
                      raw_cells=False, num_cols=(1,)) + "</div>")
     if cells:
-        out.append('<div class="grid2">' + "\n".join(cells) + "</div>")
+        out.append(f'<div class="{"grid1" if crowded else "grid2"}">' + "\n".join(cells)
+                   + "</div>")
     out.append(_state_selection(d["state_selection"], psum.get("n_states")))
     out.append(_occupancy(d["occupancy"], d["groups"], figs))
     if d["graphml"]:
@@ -440,7 +452,7 @@ def phase_model(data):
         name = labels[i] if not names or names[i] == labels[i] else f"{labels[i]} {names[i]}"
         states.append({"name": name, "dwell": dwell,
                        "emissions": [(vocab[j], float(emis[i, j])) for j in order
-                                     if math.isfinite(emis[i, j])]})
+                                     if math.isfinite(emis[i, j]) and emis[i, j] >= 0.01]})
     return {"states": states, "transmat": tm}
 
 
@@ -867,13 +879,14 @@ def _transition_table(sub, n=5):
     cols = [c for c in ("count", "probability", "expected", "adjusted_residual", "yules_q",
                         "q_difference") if c in sub.columns]
     rows = []
-    for label, part in (("more often than expected", hi), ("less often than expected", lo)):
+    for label, part in (("more often", hi), ("less often", lo)):
         for _, r in part.iterrows():
-            rows.append([esc(label), f"{_chip(r['from'])}<span class=\"arrow\">→</span>"
-                         f"{_chip(r['to'])}"] + [_transition_cell(c, r[c]) for c in cols])
+            rows.append([esc(label), f"<span class=\"pair\">{_chip(r['from'])}<span "
+                         f"class=\"arrow\">→</span>{_chip(r['to'])}</span>"]
+                        + [_transition_cell(c, r[c]) for c in cols])
     if not rows:
         return ""
-    heads = ["", "transition"] + [{"probability": "share of next steps",
+    heads = ["than expected", "transition"] + [{"probability": "share of next steps",
                                    "q_difference": "q (groups differ)",
                                    "yules_q": "Yule's Q"}.get(c, c.replace("_", " "))
                                   for c in cols]
