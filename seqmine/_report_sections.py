@@ -80,6 +80,7 @@ article.card h3 { margin-top: 4px; }
 .bar span { display:block; height:100%; }
 .stats { display:flex; flex-wrap:wrap; gap: 4px 18px; margin: 6px 0; font-size:14px; }
 .stats span b { font-weight: 600; }
+.stats.evidence { font-size: 13px; color: var(--muted); }
 .badge { display:inline-block; border-radius: 10px; padding: 0 9px; font-size: 13px;
   font-weight: 600; border:1px solid; }
 .badge.enc { color:#2f5f86; border-color:#2f5f86; background:#eef3f8; }
@@ -590,6 +591,12 @@ def section_detectors(d):
     if not dets:
         return _section("detectors", out + ['<p class="note">No detector was exported.</p>'])
     indexed = [(i, x) for i, x in enumerate(dets) if isinstance(x, dict)]
+    directions = [str(x.get("direction", "")).lower() for _, x in indexed]
+    off = sum(1 for _, x in indexed if x.get("enabled") is False)
+    out.append(f"<p>{_plural(len(indexed), 'detector')}: "
+               f"{_int(directions.count('encourage'))} encourage, "
+               f"{_int(directions.count('discourage'))} discourage"
+               + (f"; {_int(off)} switched off" if off else "") + ".</p>")
     indexed.sort(key=lambda t: (_num(t[1].get("priority"), math.inf), t[0]))
     for i, det in indexed:
         out.append(_detector_card(i, det, d["groups"]))
@@ -797,8 +804,10 @@ def _detector_card(i, det, groups):
         out.append(f"<p>Notes: {esc(det['notes'], max_chars=2000)}</p>")
     ev = det.get("evidence")
     if isinstance(ev, dict) and ev:
-        rows = [[esc(label), _evidence_value(key, v)] for label, key, v in _flatten(ev)]
-        out.append(_table(["evidence", "value"], rows, raw_cells=False, num_cols=(1,)))
+        items = [f"<span>{esc(label)} <b>{_evidence_value(key, v)}</b></span>"
+                 for label, key, v in _flatten(ev)]
+        out.append('<div class="stats evidence"><span class="note">evidence:</span>'
+                   + "".join(items) + "</div>")
     out.append("</article>")
     return "\n".join(out)
 
@@ -811,8 +820,11 @@ def _flatten(obj, prefix=(), depth=0):
         if isinstance(v, dict) and depth < 2:
             out += _flatten(v, path, depth + 1)
         else:
-            label = path[0].replace("_", " ") + (f" ({', '.join(path[1:])})" if len(path) > 1
-                                                 else "")
+            if path[0] == "effects" and len(path) == 2:
+                label = path[1].replace("_", " ")
+            else:
+                label = path[0].replace("_", " ") + (f" ({', '.join(path[1:])})"
+                                                     if len(path) > 1 else "")
             out.append((label, "/".join(path), v))
     return out
 

@@ -35,7 +35,7 @@ def _check_inert(markup, allowed):
         if "style" in attrs:
             assert _STYLE.fullmatch(attrs["style"]), attrs["style"]
         assert attrs.get("class", "") in {"", "card", "rank", "tok", "tok pause", "arrow",
-                                          "bars", "bar", "stats", "note", "excerpt", "who",
+                                          "bars", "bar", "stats", "stats evidence", "note", "excerpt", "who",
                                           "flow", "ev", "ev hit", "gap", "swatch", "num",
                                           "hint", "badge enc", "badge dis", "badge none"}, attrs
 
