@@ -380,7 +380,8 @@ def svg_prediction_curves(curves, *, fig_id, baseline=None, chance=None, ylabel,
             yv = np.asarray(c["value"], dtype=float)
             if c.get("low") is not None and c.get("high") is not None:
                 ax.fill_between(x, np.asarray(c["low"], float), np.asarray(c["high"], float),
-                                color=color, alpha=0.18, linewidth=0)
+                                color=color, alpha=0.18 if len(curves) <= 2 else 0.07,
+                                linewidth=0)
             ax.plot(x, yv, marker="o", markersize=3.5, color=color, lw=1.6,
                     label=clean_label(name, 32))
         if baseline is not None:

@@ -580,8 +580,11 @@ def section_detectors(d):
     matching = doc.get("matching")
     if isinstance(matching, dict):
         parts = []
-        if matching.get("max_gap") is not None:
-            parts.append(f"at most {esc(matching['max_gap'])} other tokens between two steps")
+        gap = matching.get("max_gap")
+        if _is_num(gap) and _num(gap) == 0:
+            parts.append("the steps of a pattern follow each other directly")
+        elif gap is not None:
+            parts.append(f"at most {esc(gap)} other tokens between two steps")
         if matching.get("max_window") is not None:
             parts.append(f"the whole pattern within {esc(matching['max_window'])} tokens")
         if matching.get("skip_pauses"):
