@@ -356,8 +356,7 @@ def _rejects(inp, counts):
     by_reason = counts.get("rejects_by_reason")
     if not inp.ok and isinstance(by_reason, dict) and by_reason:
         ranked = sorted(by_reason.items(), key=lambda kv: (-_num(kv[1], 0.0), str(kv[0])))
-        rows = [[esc(r), _int(n)] for r, n in ranked]
-        return head + _missing(inp.note) + _table(["reason", "rows"], rows, num_cols=(1,))
+        return head + _missing(inp.note) + _reason_table(ranked)
     if not inp.ok:
         return head + _missing(inp.note)
     df = inp.value
@@ -367,12 +366,23 @@ def _rejects(inp, counts):
         return head + _missing("rejects.csv has no 'reason' column")
     counts = df["reason"].value_counts(sort=False)
     ranked = sorted(counts.items(), key=lambda kv: (-kv[1], str(kv[0])))
-    rows = [[esc(r), _int(n)] for r, n in ranked[:10]]
     more = (f'<p class="note">{len(ranked) - 10} more reasons in rejects.csv.</p>'
             if len(ranked) > 10 else "")
     return (head + f"<p>{_int(len(df))} rows were set aside; each is listed with its row "
-            "number in <code>rejects.csv</code>.</p>"
-            + _table(["reason", "rows"], rows, raw_cells=False, num_cols=(1,)) + more)
+            "number in <code>rejects.csv</code>.</p>" + _reason_table(ranked[:10]) + more)
+
+
+def _reason_table(ranked):
+    """Reason code, its meaning (from the loader's list, when known) and the row count."""
+    try:
+        from .load import REJECT_REASONS as meanings
+    except ImportError:  # the loader is not part of this build
+        meanings = {}
+    if not isinstance(meanings, dict):
+        meanings = {}
+    rows = [[f"<code>{esc(r)}</code>", esc(meanings.get(str(r), "")), _int(n)]
+            for r, n in ranked]
+    return _table(["reason", "meaning", "rows"], rows, raw_cells=False, num_cols=(2,))
 
 
 def _pause_bins(summary):

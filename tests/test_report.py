@@ -338,3 +338,19 @@ def test_switched_off_detector_and_bad_models(tmp_path):
     # leaves phases/ is ignored.
     assert "phases/model_pooled.json" in text and "summary" not in text.split(
         'id="phases"')[1].split('id="early-prediction"')[0]
+
+
+def test_reject_reasons_get_their_meaning(tmp_path, monkeypatch):
+    import sys
+    import types
+
+    fake = types.ModuleType("seqmine.load")
+    fake.REJECT_REASONS = {"bad_time": "the time is <not> a time"}
+    monkeypatch.setitem(sys.modules, "seqmine.load", fake)
+    folder = tmp_path / "o"
+    folder.mkdir()
+    (folder / "rejects.csv").write_text("source_row,reason\n2,bad_time\n3,bad_time\n4,other\n")
+    text = render_report(folder).read_text(encoding="utf-8")
+    assert ("<td><code>bad_time</code></td><td>the time is &lt;not&gt; a time</td>"
+            "<td class=num>2</td>") in text
+    assert "<td><code>other</code></td><td></td><td class=num>1</td>" in text
