@@ -14,6 +14,8 @@ import numpy as np
 
 from . import _plots
 from ._report_html import (
+    _chips,
+    _split,
     _CORRECTIONS,
     esc,
     lookup,
@@ -97,9 +99,11 @@ def _key_findings(d):
                 items.append(f"{_int(len(sig))} of {_int(len(pat))} patterns differ reliably "
                              f"between groups (q ≤ {d['alpha']:g}{distinct})"
                              + (": " + ", ".join(parts) if parts else "") + ".")
+                items += _strongest(sig, groups)
             else:
                 items.append(f"None of the {_int(len(pat))} patterns differs reliably between "
                              f"groups (q ≤ {d['alpha']:g}).")
+    items += _earliest_glance(d["early_prediction"].value)
     det = (d["detectors"].value or {}).get("detectors")
     if isinstance(det, list):
         items.append(f"{_int(len(det))} detectors exported for review.")
@@ -108,6 +112,42 @@ def _key_findings(d):
     return ('<div class="keybox"><b>At a glance</b><ul>' + "".join(f"<li>{i}</li>" for i in items)
             + "</ul><p>These are associations in this data set, not causes; see "
             '<a href="#cautions">Cautions</a>.</p></div>')
+
+
+def _strongest(sig, groups):
+    """Per favoured group, the most reliable non-redundant pattern with its supports."""
+    if "favours" not in sig.columns:
+        return []
+    if "redundant_of" in sig.columns:
+        sig = sig[sig["redundant_of"].astype(str).str.strip() == ""]
+    top, _ = top_patterns(sig, 1.0, len(sig))
+    items = []
+    for g in groups:
+        rows = top[top["favours"].astype(str) == g]
+        if rows.empty:
+            continue
+        r = rows.iloc[0]
+        sup = [f"{esc(h)} {_pct(r[f'support_{h}'])}" for h in groups
+               if f"support_{h}" in r.index]
+        items.append(f"Most reliable pattern more common among {_group_label(g, groups)}: "
+                     f"{_chips(_split(r['pattern']))}"
+                     + (f" (in {', '.join(sup)} of sequences)" if sup else "") + ".")
+    return items
+
+
+def _earliest_glance(df):
+    """One line: the best balanced accuracy reached, and after how much of the sequence."""
+    if df is None or not {"fraction", "balanced_accuracy"} <= set(df.columns):
+        return []
+    sub = df[df["classifier"].astype(str) != "majority"] if "classifier" in df.columns else df
+    sub = sub[sub["balanced_accuracy"].notna()]
+    if sub.empty:
+        return []
+    early = sub[sub["fraction"] == sub["fraction"].min()]
+    best = early.sort_values("balanced_accuracy", ascending=False, kind="mergesort").iloc[0]
+    name = f" ({esc(best['classifier'])})" if "classifier" in sub.columns else ""
+    return [f"After {_pct(best['fraction'])} of a sequence, the best classifier{name} reaches "
+            f"a balanced accuracy of {_fmt(best['balanced_accuracy'], 2)} (chance 0.5)."]
 
 
 def section_overview(d, figs):

@@ -354,3 +354,13 @@ def test_reject_reasons_get_their_meaning(tmp_path, monkeypatch):
     assert ("<td><code>bad_time</code></td><td>the time is &lt;not&gt; a time</td>"
             "<td class=num>2</td>") in text
     assert "<td><code>other</code></td><td></td><td class=num>1</td>" in text
+
+
+def test_at_a_glance_names_the_strongest_patterns(folder):
+    text = render_report(folder).read_text(encoding="utf-8")
+    glance = text.split('class="keybox"')[1].split("</div>")[0]
+    assert "Most reliable pattern more common among" in glance
+    strong = glance.split("more common among")[1]
+    assert "measure_height" in strong and "strong 70%, weak 20%" in strong
+    assert "After 25% of a sequence, the best classifier (pattern) reaches a balanced " \
+           "accuracy of 0.53" in glance
