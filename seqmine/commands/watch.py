@@ -6,7 +6,7 @@ import json
 import sys
 from pathlib import Path
 
-from .._progress import is_quiet, set_quiet
+from .._progress import set_quiet
 from ..errors import DataFileError, ParameterError
 from ..watch import EventError, Watcher
 
@@ -110,7 +110,7 @@ def run(args):
         if stream is not sys.stdin:
             stream.close()
     out.flush()
-    if args.summary and not is_quiet():
+    if args.summary:
         s = watcher.stats
         print("seqmine watch: summary: " + ", ".join(f"{k}={v}" for k, v in s.items()), file=err)
     return 0
