@@ -221,12 +221,12 @@ class Watcher:
                                                    "out_of_order_tolerance", where, minimum=0)
         self.hint_on_encourage = bool(hint_on_encourage)
         self.reject_duplicates = bool(reject_duplicates)
+        self.notes = []
         self._compile(doc)
         self._learners = {}
         self._stream_time = _NEG_INF
         self._time_kind = None
         self._noted = set()
-        self.notes = []
         self.stats = {k: 0 for k in ("events", "dropped", "collapsed", "rejected", "out_of_order",
                                      "duplicates", "firings", "hints", "expired_learners")}
 

@@ -151,6 +151,14 @@ def test_unknown_symbols_are_noted_once_and_take_a_position():
     assert len(w.notes) == 1 and "'juggle' was not seen in the analysed data" in w.notes[0]
 
 
+def test_learner_quantile_pauses_are_noted():
+    enc = {"template": "{action}", "pause": {"strategy": "learner_quantile", "edges": [3.0],
+                                             "labels": ["short", "long"], "implicit": []}}
+    w = Watcher(_doc(dets=[{"id": "p", "tokens": ["pause:long"], "direction": "discourage"}],
+                     encoding=enc))
+    assert len(w.notes) == 1 and "each learner's own quantiles" in w.notes[0]
+
+
 def test_idle_learners_expire():
     w = Watcher(_doc(), idle_timeout=100)
     _feed(w, [ev("a", 0, "set_light"), ev("b", 50, "open_chart"), ev("b", 300, "open_chart")])
