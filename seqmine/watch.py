@@ -398,13 +398,20 @@ class Watcher:
         return out
 
     def flush(self):
-        """End of stream: fire absence rules due at the latest event time, drop all state.
+        """End of stream: drop every learner's state and return their occurrence counts.
+
+        No absence firings are produced here (a learner who has left needs no hint);
+        call :meth:`tick` first if time-based absence rules should be checked.
 
         Returns
         -------
-        list of Firing
+        dict
+            learner -> {detector id: number of occurrence firings}, for the learners
+            whose state was held (expired learners are not included).
         """
-        out = self.tick(self._stream_time) if self._learners and self._has_absence else []
+        ids = self._det_ids
+        out = {learner: {ids[d]: n for d, n in sorted(st.counts.items())}
+               for learner, st in self._learners.items()}
         self._learners.clear()
         return out
 

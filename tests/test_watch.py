@@ -164,9 +164,9 @@ def test_idle_learners_expire():
     _feed(w, [ev("a", 0, "set_light"), ev("b", 50, "open_chart"), ev("b", 300, "open_chart")])
     assert w.n_learners == 1 and w.stats["expired_learners"] == 1
     w = Watcher(_doc(), idle_timeout=None)
-    _feed(w, [ev("a", 0, "set_light"), ev("b", 10 ** 6, "open_chart")])
+    _feed(w, [ev("a", 0, "set_light"), ev("b", 10 ** 6, "reset"), ev("b", 10 ** 6 + 1, "reset")])
     assert w.n_learners == 2
-    w.flush()
+    assert w.flush() == {"a": {}, "b": {"reset": 2}}
     assert w.n_learners == 0
 
 

@@ -105,7 +105,7 @@ def run(args):
                 _write(out, firings, watcher, args.times, hints_only)
                 if interactive:
                     out.flush()
-        _write(out, watcher.flush(), watcher, args.times, hints_only)
+        watcher.flush()
     finally:
         if stream is not sys.stdin:
             stream.close()
