@@ -31,12 +31,14 @@ import numpy as np
 
 __all__ = []  # private module
 
-#: Upper bound on next-occurrence table entries held per block (int32 each).
-_NX_BLOCK_ENTRIES = 1 << 23
+#: Tokens per block when a next-occurrence table is used (one table row stays in cache).
+_NX_BLOCK_TOKENS = 1 << 17
 #: Keep all next-occurrence tables between levels when they fit in this many bytes.
-_NX_CACHE_BYTES = 256 << 20
+_NX_CACHE_BYTES = 512 << 20
 #: Target number of tokens per block when no next-occurrence table is needed.
-_PLAIN_BLOCK_TOKENS = 1 << 20
+_PLAIN_BLOCK_TOKENS = 1 << 18
+#: Largest number of (occurrence, symbol) look-ups expanded at once.
+_EXPAND_CHUNK = 1 << 16
 
 
 def ranges(starts, lengths):
@@ -127,22 +129,29 @@ class Block:
 
     # ------------------------------------------------------------ lookups
     def nx(self):
-        """Next-occurrence table, shape (n_sym, T + 1): first position >= i of symbol s.
+        """Next-occurrence table, shape (n_sym, T + 2): first position >= i of symbol s.
 
-        Entries past the block hold the sentinel ``T``; callers compare with the end
-        of the occurrence's own sequence.
+        Entries past the block hold the sentinel ``T`` (column ``T + 1`` too, so a
+        failed lookup can be looked up again); callers compare with the end of the
+        occurrence's own sequence.
         """
         if self._nx is not None:
             return self._nx
         T = self.T
-        table = np.full((self.n_sym, T + 1), T, dtype=np.int32)
+        table = np.full((self.n_sym, T + 2), T, dtype=np.int32)
         pos = np.flatnonzero(self.tok >= 0)
         table[self.tok[pos], pos] = pos
-        table = np.minimum.accumulate(table[:, ::-1], axis=1)[:, ::-1]
-        table = np.ascontiguousarray(table)
+        table[:, : T + 1] = np.minimum.accumulate(table[:, T::-1], axis=1)[:, ::-1]
         if self.keep_nx:
             self._nx = table
         return table
+
+    def symbol_counts(self):
+        """Occurrences of each symbol in each sequence, shape (n_seq, n_sym)."""
+        valid = self.tok >= 0
+        key = self.seq_of_pos[valid].astype(np.int64) * self.n_sym + self.tok[valid]
+        return np.bincount(key, minlength=self.n_seq * self.n_sym).reshape(
+            self.n_seq, self.n_sym)
 
     def positions_by_symbol(self):
         """(order, bounds): positions sorted by symbol; symbol s at order[bounds[s]:bounds[s+1]]."""
@@ -186,10 +195,7 @@ class Block:
 
 def make_blocks(tokens_local, lengths, gidx, *, n_sym, mode, nonpause=None, **cons):
     """Cut the database into blocks of whole sequences bounded in tokens."""
-    if mode == "gap":
-        budget = _PLAIN_BLOCK_TOKENS
-    else:
-        budget = max(1 << 14, _NX_BLOCK_ENTRIES // max(n_sym, 1))
+    budget = _PLAIN_BLOCK_TOKENS if mode == "gap" else _NX_BLOCK_TOKENS
     ends = np.cumsum(lengths)
     blocks = []
     s = 0
@@ -204,7 +210,7 @@ def make_blocks(tokens_local, lengths, gidx, *, n_sym, mode, nonpause=None, **co
             tokens_local[t0:t1], lengths[s:e], gidx[s:e], s, n_sym=n_sym,
             nonpause=None if nonpause is None else nonpause[t0:t1], **cons))
         s, t0 = e, t1
-    total = sum(b.T + 1 for b in blocks) * n_sym * 4
+    total = sum(b.T + 2 for b in blocks) * n_sym * 4
     keep = mode != "gap" and total <= _NX_CACHE_BYTES
     for b in blocks:
         b.keep_nx = keep
@@ -232,65 +238,96 @@ def root_extend(block, syms, mode):
     return Occ.concat(parts, True)
 
 
-def extend(block, occ, allowed, mode):
+class LevelPlan:
+    """Candidate extensions of one level, prepared once for all blocks.
+
+    Candidate keys are *symbol-major*: ``key = sym * n_pid + pid``. Occurrence lists
+    produced in that order stay sorted by (key, seq, end) without any sort, and new
+    node ids are assigned in key order.
+    """
+
+    def __init__(self, allowed):
+        self.allowed = allowed
+        self.n_pid, self.n_sym = allowed.shape
+        self.allowed_t = np.ascontiguousarray(allowed.T)
+        self.pids = [np.flatnonzero(row) for row in self.allowed_t]
+
+
+def extend(block, occ, plan, mode):
     """Extend every occurrence by every allowed symbol.
 
     Parameters
     ----------
     block : Block
     occ : Occ
-        Occurrences of the current level.
-    allowed : ndarray of bool, shape (n_pid, n_sym)
+        Occurrences of the current level, sorted by (pid, seq, end).
+    plan : LevelPlan
         Candidate extensions per prefix.
     mode : {"first", "frontier", "gap"}
 
     Returns
     -------
     Occ
-        New occurrences whose ``pid`` is the flat candidate id ``pid * n_sym + sym``
-        (int64), grouped by (candidate, sequence) with ends increasing.
+        New occurrences whose ``pid`` is the candidate key ``sym * n_pid + pid``
+        (int64), sorted by (key, sequence, end).
     """
-    if len(occ) == 0 or not allowed.any():
+    if len(occ) == 0:
         return Occ.concat([], mode != "first")
     if mode == "gap":
-        return _extend_gap(block, occ, allowed)
-    n_sym = block.n_sym
+        return _extend_gap(block, occ, plan)
+    return _extend_nx(block, occ, plan, mode)
+
+
+def _extend_nx(block, occ, plan, mode):
+    n_pid = plan.n_pid
     nx = block.nx()
-    allowed_t = np.ascontiguousarray(allowed.T)
     windowed = mode == "frontier" and block.max_window is not None
-    end1 = occ.end.astype(np.int64) + 1
-    se = block.seq_end[occ.seq]
+    n_p = np.bincount(occ.pid, minlength=n_pid)
+    first = np.zeros(n_pid + 1, dtype=np.int64)
+    np.cumsum(n_p, out=first[1:])
+    e1 = occ.end.astype(np.int64) + 1
+    lim = block.seq_end[occ.seq]
     parts = []
-    for s in np.flatnonzero(allowed_t.any(axis=1)):
-        idx = np.flatnonzero(allowed_t[s][occ.pid])
-        if idx.size == 0:
+    for s in range(plan.n_sym):
+        pids = plan.pids[s]
+        if pids.size == 0:
             continue
-        ne = nx[s][end1[idx]]
-        ok = ne < se[idx]
-        idx = idx[ok]
-        ne = ne[ok]
-        if windowed:
-            ok = block.span_ok(occ.start[idx], ne)
+        row = nx[s]
+        base = s * n_pid
+        if pids.size == n_pid:
+            sel = None
+            total = len(occ)
+        else:
+            sel = ranges(first[pids], n_p[pids])
+            total = len(sel)
+        for c0 in range(0, total, _EXPAND_CHUNK):
+            c1 = min(c0 + _EXPAND_CHUNK, total)
+            idx = np.arange(c0, c1) if sel is None else sel[c0:c1]
+            ne = row[e1[idx]]
+            ok = ne < lim[idx]
             idx = idx[ok]
             ne = ne[ok]
-        pid = occ.pid[idx]
-        seq = occ.seq[idx]
-        if mode == "frontier":
-            # same (pid, seq, new end): the later entry has the later start -> keep last
-            last = np.ones(len(idx), dtype=bool)
-            if len(idx) > 1:
-                last[:-1] = (pid[1:] != pid[:-1]) | (seq[1:] != seq[:-1]) | (ne[1:] != ne[:-1])
-            idx, ne, pid, seq = idx[last], ne[last], pid[last], seq[last]
-            start = occ.start[idx]
-        else:
-            start = None
-        cand = pid.astype(np.int64) * n_sym + s
-        parts.append(Occ(cand, seq, ne, start))
+            if windowed:
+                ok = block.span_ok(occ.start[idx], ne)
+                idx = idx[ok]
+                ne = ne[ok]
+            pid = occ.pid[idx]
+            seq = occ.seq[idx]
+            if mode == "frontier":
+                # same (pid, seq, new end): the later entry has the later start
+                last = np.ones(len(idx), dtype=bool)
+                if len(idx) > 1:
+                    last[:-1] = (pid[1:] != pid[:-1]) | (seq[1:] != seq[:-1]) | \
+                        (ne[1:] != ne[:-1])
+                idx, ne, pid, seq = idx[last], ne[last], pid[last], seq[last]
+                parts.append(Occ(pid.astype(np.int64) + base, seq, ne, occ.start[idx]))
+            else:
+                parts.append(Occ(pid.astype(np.int64) + base, seq, ne))
     return Occ.concat(parts, mode != "first")
 
 
-def _extend_gap(block, occ, allowed):
-    n_sym = block.n_sym
+def _extend_gap(block, occ, plan):
+    n_pid = plan.n_pid
     lo = occ.end.astype(np.int64) + 1
     hi = block.gap_limit(occ.end)
     if block.max_window is not None:
@@ -302,9 +339,9 @@ def _extend_gap(block, occ, allowed):
     ok = sym >= 0
     rep, j, sym = rep[ok], j[ok], sym[ok]
     pid = occ.pid[rep]
-    ok = allowed[pid, sym]
+    ok = plan.allowed[pid, sym]
     rep, j, sym, pid = rep[ok], j[ok], sym[ok], pid[ok]
-    cand = pid.astype(np.int64) * n_sym + sym
+    cand = sym.astype(np.int64) * n_pid + pid
     key = cand * (block.T + 1) + j
     order = np.argsort(key, kind="stable")
     key = key[order]
@@ -384,25 +421,33 @@ def _chain_counts(grp, start, end, M):
 
 
 def _jump_counts(block, pats, pid, seq, end):
-    """Greedy earliest-end instance count without constraints, from the first occurrence."""
-    nx = block.nx()
+    """Greedy earliest-end instance count without constraints, from the first occurrence.
+
+    Each round matches one more instance of every still-active (pattern, sequence)
+    pair with ``k`` next-occurrence look-ups; a pair drops out when its last item
+    falls past the end of its sequence (positions only grow, so one test per round
+    suffices; the sentinel columns keep failed look-ups in range).
+    """
     k = pats.shape[1]
+    if k == 1:
+        table = block.symbol_counts()
+        return table[seq, pats[pid, 0]].astype(np.int64)
+    nxf = block.nx().ravel()
+    T2 = block.T + 2
     n = len(pid)
     cnt = np.ones(n, dtype=np.int64)
-    act = np.arange(n)
-    pos = end.astype(np.int64) + 1
-    lim_all = block.seq_end[seq]
-    while act.size:
-        p = pos[act]
-        rows = pats[pid[act]]
-        lim = lim_all[act]
-        alive = np.arange(act.size)
-        for j in range(k):
-            ne = nx[rows[alive, j], p[alive]]
-            ok = ne < lim[alive]
-            alive = alive[ok]
-            p[alive] = ne[ok].astype(np.int64) + 1
-        act = act[alive]
-        cnt[act] += 1
-        pos[act] = p[alive]
+    for c0 in range(0, n, _EXPAND_CHUNK):
+        c1 = min(c0 + _EXPAND_CHUNK, n)
+        a_idx = np.arange(c0, c1)
+        a_cols = pats[pid[c0:c1]].astype(np.int64) * T2   # (n, k) row offsets into nxf
+        a_pos = end[c0:c1].astype(np.int64) + 1
+        a_lim = block.seq_end[seq[c0:c1]]
+        while a_idx.size:
+            p = a_pos
+            for j in range(k):
+                p = nxf[a_cols[:, j] + p] + 1
+            ok = p <= a_lim
+            a_idx = a_idx[ok]
+            cnt[a_idx] += 1
+            a_pos, a_lim, a_cols = p[ok], a_lim[ok], a_cols[ok]
     return cnt

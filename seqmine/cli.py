@@ -14,6 +14,7 @@ import sys
 import warnings
 
 from . import commands
+from ._progress import is_quiet, set_quiet
 from ._version import __version__
 from .errors import SeqmineError, SeqmineInputError
 
@@ -54,6 +55,10 @@ def build_parser():
     return parser
 
 
+def _show_warning(message, category, filename, lineno, file=None, line=None):
+    print(f"seqmine: warning: {_one_line(message)}", file=sys.stderr)
+
+
 def _one_line(msg):
     return " ".join(str(msg).split())
 
@@ -69,10 +74,14 @@ def main(argv=None):
         parser.print_help()
         return 2
     debug = getattr(args, "debug", False)
+    was_quiet = is_quiet()
+    set_quiet(bool(getattr(args, "quiet", False)))  # per invocation, restored below
     try:
         with warnings.catch_warnings():
+            # every warning is shown, as one line, whatever ran before in this process
+            warnings.simplefilter("always")
             if not debug:
-                warnings.simplefilter("default")
+                warnings.showwarning = _show_warning
             return int(args._run(args) or 0)
     except SeqmineInputError as exc:
         if debug:
@@ -93,6 +102,8 @@ def main(argv=None):
         print(f"seqmine: internal error: {type(exc).__name__}: {_one_line(exc)} "
               f"(re-run with --debug for the traceback and report it)", file=sys.stderr)
         return 1
+    finally:
+        set_quiet(was_quiet)
 
 
 if __name__ == "__main__":  # pragma: no cover

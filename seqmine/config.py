@@ -42,8 +42,8 @@ DEFAULT_CONFIG = {
         "implicit_pauses": ["short"], "unit": "learner", "session_gap": None,
     },
     "mine": {
-        "min_support": 0.2, "min_length": 2, "max_length": 4, "max_gap": 1,
-        "max_window": None, "skip_pauses": False, "start_with_action": True,
+        "min_support": 0.2, "min_length": 2, "max_length": 4, "max_gap": 0,
+        "max_window": None, "skip_pauses": True, "start_with_action": True,
         "end_with_action": False, "closed": False, "maximal": False,
         "max_patterns": 200_000,
     },

@@ -18,7 +18,7 @@ from ._effects import (
     mannwhitney_sparse,
     odds_ratio_haldane,
 )
-from ._permutation import bootstrap_significance, westfall_young_minp
+from ._permutation import bootstrap_significance, westfall_young_minp, westfall_young_rates
 from ._redundancy import prune_redundant
 from ._validation import check_choice, check_fraction, check_int
 from .errors import ParameterError, SeqmineWarning
@@ -49,7 +49,7 @@ _ORDERS = ("significance", "length")
 def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", alpha=0.05,
              n_permutations=1000, seed=0, stability_resamples=100, redundancy=0.9,
              redundancy_order="significance", drop_redundant=False, rate_unit=None,
-             batch_size=None):
+             unit="sequence", batch_size=None):
     """Score every pattern for how it separates outcome groups.
 
     Parameters
@@ -68,7 +68,7 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
     correction : {"bh", "holm", "westfall-young"}
         Multiple-comparison control of ``q_value``: Benjamini-Hochberg FDR, Holm
         FWER, or the Westfall-Young step-down min-P permutation FWER (labels permuted
-        across sequences; see :func:`seqmine._permutation.westfall_young_minp`).
+        across sequences; see :func:`seqmine.multitest.westfall_young_minp`).
     alpha : float
         Level: ``favours`` is filled when ``q_value <= alpha``; also the nominal
         level of the stability resamples.
@@ -91,6 +91,11 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
         Rates are instance counts per 100 tokens of the sequence (pauses included),
         per 100 action tokens (needs ``db``), or raw instance counts per sequence.
         Default: ``"tokens"`` when lengths are known, else ``"count"``.
+    unit : {"sequence", "learner"}
+        Unit of analysis. ``"learner"`` (needs ``db``) first merges each learner's
+        sequences (sessions): instance counts and lengths are summed, a pattern is
+        present when it occurs in any of them; supports are then shares of learners
+        and permutations and resamples move whole learners.
     batch_size : int, optional
         Permutations/resamples per sparse product (memory bound).
 
@@ -110,9 +115,9 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
         cell (Haldane-Anscombe); ``log_odds_ratio``; ``growth_rate`` support A /
         support B (inf when B is 0); ``cohens_h``; ``cliffs_delta`` on rates,
         P(rate A > rate B) - P(rate A < rate B); ``p_rate`` two-sided Mann-Whitney
-        U on rates; ``q_rate`` ``p_rate`` adjusted by BH when ``correction``
-        is "bh", by Holm otherwise (the permutation adjustment covers the presence
-        test only); ``stability``; ``redundant_of``
+        U on rates; ``q_rate`` ``p_rate`` adjusted by ``correction`` (for
+        "westfall-young" the same permutations applied to the rank test, with the
+        normal-approximation p-value as statistic); ``stability``; ``redundant_of``
         the kept pattern whose supporting sequences nearly coincide (``""`` if none).
 
         For more than two groups the effect-size columns are replaced by ``chi2``
@@ -140,8 +145,9 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
 
     *Units.* Sequences are the units of analysis (one per learner when encoding by
     learner); permutations and resamples move whole sequences. When ``db`` shows
-    several sequences per learner a SeqmineWarning says that they are treated as
-    independent. Findings are correlational.
+    several sequences per learner and ``unit="sequence"``, a SeqmineWarning says that
+    they are treated as independent; ``unit="learner"`` merges them first. Findings
+    are correlational.
 
     References
     ----------
@@ -168,7 +174,8 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
     >>> float(table["p_value"].iloc[0].round(6))  # Fisher [[6, 0], [0, 6]]
     0.002165
     """
-    prep = _prepare(patterns, db, lengths, groups, rate_unit, "contrast")
+    prep = _prepare_unit(patterns, db, lengths, groups, rate_unit, unit, "contrast")
+    patterns = prep["patterns"]
     correction = check_choice(correction, "correction", CONTRAST_CORRECTIONS, "contrast")
     alpha = check_fraction(alpha, "alpha", "contrast")
     n_permutations = check_int(n_permutations, "n_permutations", "contrast", minimum=1)
@@ -207,7 +214,11 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
                                    batch_size=batch_size)
     else:
         q = adjust_pvalues(p, correction)
-    q_rate = adjust_pvalues(stats["p_rate"], "bh" if correction == "bh" else "holm")
+    if correction == "westfall-young":
+        _, q_rate = westfall_young_rates(rates, labels, n_permutations=n_permutations,
+                                         seed=seed, batch_size=batch_size)
+    else:
+        q_rate = adjust_pvalues(stats["p_rate"], correction)
 
     if len(names) == 2:
         sup = np.stack([stats["support_a"], stats["support_b"]])
@@ -259,12 +270,12 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
 
 
 def pairwise_contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh",
-                      alpha=0.05, rate_unit=None):
+                      alpha=0.05, rate_unit=None, unit="sequence"):
     """Two-group comparisons of every pair of groups, as one long table.
 
     Parameters
     ----------
-    patterns, db, lengths, groups, alpha, rate_unit
+    patterns, db, lengths, groups, alpha, rate_unit, unit
         As in :func:`contrast`.
     correction : {"bh", "holm"}
         Applied over all (pair, pattern) tests together.
@@ -278,7 +289,8 @@ def pairwise_contrast(patterns, db=None, *, lengths=None, groups=None, correctio
         ``cohens_h``, ``cliffs_delta``, ``p_rate``, ``q_rate`` (same definitions as
         :func:`contrast`, with A = ``group_a``). Pairs follow the group order.
     """
-    prep = _prepare(patterns, db, lengths, groups, rate_unit, "pairwise_contrast")
+    prep = _prepare_unit(patterns, db, lengths, groups, rate_unit, unit, "pairwise_contrast")
+    patterns = prep["patterns"]
     correction = check_choice(correction, "correction", ("bh", "holm"), "pairwise_contrast")
     alpha = check_fraction(alpha, "alpha", "pairwise_contrast")
     names, labels = prep["names"], prep["labels"]
@@ -346,6 +358,67 @@ def sequence_rates(patterns, lengths=None, *, per=100.0):
 
 
 # --------------------------------------------------------------------- helpers
+def _prepare_unit(patterns, db, lengths, groups, rate_unit, unit, where):
+    """:func:`_prepare` after merging sequences into learners when ``unit='learner'``."""
+    check_choice(unit, "unit", ("sequence", "learner"), where)
+    if unit == "sequence":
+        prep = _prepare(patterns, db, lengths, groups, rate_unit, where)
+        prep["patterns"] = patterns
+        return prep
+    if db is None:
+        raise ParameterError(f"unit='learner' of {where} needs db= (to know which sequences "
+                             f"belong to which learner).")
+    if not isinstance(patterns, PatternSet):
+        return _prepare(patterns, db, lengths, groups, rate_unit, where)
+    if db.n_sequences != patterns.counts.shape[0]:
+        return _prepare(patterns, db, lengths, groups, rate_unit, where)
+    if rate_unit is None:
+        rate_unit = "tokens"
+    rate_unit = check_choice(rate_unit, "rate_unit", _RATE_UNITS, where)
+    if rate_unit == "tokens":
+        seq_len = np.asarray(lengths if lengths is not None else db.lengths)
+    elif rate_unit == "actions":
+        seq_len = np.bincount(db.seq_index[db.action_mask], minlength=db.n_sequences)
+    else:
+        seq_len = None
+    names, first, inverse = np.unique(db.learners, return_index=True, return_inverse=True)
+    rank = np.empty(len(names), dtype=np.int64)
+    rank[np.argsort(first, kind="stable")] = np.arange(len(names))
+    learner_of = rank[inverse.ravel()]
+    n_learners = len(names)
+    agg = sp.csr_matrix((np.ones(db.n_sequences), (learner_of, np.arange(db.n_sequences))),
+                        shape=(n_learners, db.n_sequences))
+    seq_groups = patterns.seq_groups
+    lg_min = np.full(n_learners, np.iinfo(np.int64).max)
+    lg_max = np.full(n_learners, -2)
+    np.minimum.at(lg_min, learner_of, seq_groups)
+    np.maximum.at(lg_max, learner_of, seq_groups)
+    if np.any(lg_min != lg_max):
+        bad = str(db.learners[np.flatnonzero((lg_min != lg_max)[learner_of])[0]])
+        raise ParameterError(
+            f"Learner {bad!r} has sequences in different groups; unit='learner' of {where} "
+            f"needs one group per learner (check the outcomes or use unit='sequence').")
+    counts = sp.csr_matrix(agg @ sp.csr_matrix(patterns.counts, dtype=np.float64))
+    counts.data = np.rint(counts.data)
+    counts = counts.astype(np.int64)
+    groups_l = lg_min
+    n_groups = len(patterns.group_names)
+    sup = np.stack([np.asarray((counts[groups_l == g] > 0).sum(axis=0)).ravel()
+                    for g in range(n_groups)], axis=1) if n_groups else np.zeros((0, 0))
+    merged = PatternSet(
+        patterns=patterns.patterns, vocab=patterns.vocab, is_pause=patterns.is_pause,
+        group_names=patterns.group_names,
+        group_sizes=np.bincount(groups_l[groups_l >= 0], minlength=n_groups),
+        support_counts=sup.reshape(patterns.n_patterns, n_groups), counts=counts,
+        seq_groups=groups_l, constraints=dict(patterns.constraints))
+    len_l = None if seq_len is None else np.asarray(agg @ seq_len.astype(np.float64))
+    prep = _prepare(merged, None, len_l, groups, "count" if len_l is None else "tokens", where)
+    prep["rate_unit"] = rate_unit
+    prep["patterns"] = merged
+    prep["unit"] = "learner"
+    return prep
+
+
 def _prepare(patterns, db, lengths, groups, rate_unit, where):
     """Validate inputs; restrict to the compared groups; compute presence and rates."""
     if not isinstance(patterns, PatternSet):
@@ -424,8 +497,9 @@ def _prepare(patterns, db, lengths, groups, rate_unit, where):
         if len(np.unique(learners)) < len(learners):
             warnings.warn(
                 f"Some learners have several sequences (sessions); {where} treats sequences "
-                f"as independent units, which overstates the evidence. Encode one sequence "
-                f"per learner for learner-level tests.", SeqmineWarning, stacklevel=3)
+                f"as independent units, which overstates the evidence. Use unit='learner' "
+                f"(or encode one sequence per learner) for learner-level tests.",
+                SeqmineWarning, stacklevel=3)
     rates_all = sequence_rates(patterns, lengths)
     presence_all = patterns.presence()
     everything = len(keep) == n_seq
@@ -508,4 +582,4 @@ def _attrs(prep, correction, alpha, n_permutations, seed, stability_resamples, r
             "n_permutations": n_permutations if correction == "westfall-young" else 0,
             "seed": seed, "stability_resamples": stability_resamples,
             "redundancy": redundancy, "rate_unit": prep["rate_unit"],
-            "n_sequences": int(len(prep["labels"]))}
+            "n_sequences": int(len(prep["labels"])), "unit": prep.get("unit", "sequence")}

@@ -11,6 +11,7 @@ seed) is returned beside the data and written next to the files.
 
 from __future__ import annotations
 
+import copy
 import json
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -134,16 +135,19 @@ class GreenhouseData:
     Attributes
     ----------
     events : pandas.DataFrame
-        Columns ``learner``, ``time`` (ISO 8601 text with zone ``Z``), ``action``,
-        ``target``; interleaved across learners and sorted by time, as a real log.
+        Columns ``learner``, ``time`` (``datetime64[s, UTC]``; the files hold it as
+        ISO 8601 text with zone ``Z``), ``action``, ``target`` (and ``session`` with
+        ``sessions=True``); interleaved across learners and sorted by time, as a real
+        log.
     outcomes : pandas.DataFrame
         Columns ``learner``, ``pre``, ``post``, ``max`` (integers).
     ground_truth : dict
         Planted behaviours, their token patterns after default encoding, rates per
         outcome group, the generator parameters and the seed (JSON-ready).
     learners : pandas.DataFrame
-        Per learner: ``learner``, ``tendency``, ``n_events``, ``gain`` and the number
-        of planted episodes of each behaviour (``n_<behaviour>``). Not written to disk.
+        Per learner: ``learner``, ``tendency``, ``n_events``, ``gain`` (normalized;
+        NaN where ``pre == max``), the number of planted episodes of each behaviour
+        (``n_<behaviour>``) and, with sessions, ``n_sessions``. Not written to disk.
     """
 
     events: pd.DataFrame
@@ -319,7 +323,12 @@ def write_greenhouse(folder, n_learners=300, *, seed=20261202, events_per_learne
     data = generate_greenhouse(n_learners, seed=seed, events_per_learner=events_per_learner,
                                start=start, sessions=sessions)
     folder = Path(folder)
-    folder.mkdir(parents=True, exist_ok=True)
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise DataFileError(
+            f"{folder}: cannot create the output folder ({exc.strerror or exc}); choose "
+            "another folder.") from None
     ev_path = folder / f"events.{events_format}"
     _write_events(data.events, ev_path, events_format)
     out_path = folder / OUTCOMES_FILE
@@ -734,7 +743,7 @@ def _ground_truth(*, n, seed, lo, hi, start, sessions, learners, ep, gap_cls, ga
             "events_per_learner": [lo, hi],
             "start": start,
             "sessions": sessions,
-            "parameters": p,
+            "parameters": copy.deepcopy(p),
         },
         "encoding_assumed": {
             "template": "{action}",

@@ -163,17 +163,18 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
         cons=dict(max_gap=max_gap, max_window=max_window, skip_pauses=bool(skip_pauses)))
 
     # collect reported candidates in (length, lexicographic) order
-    pats, support, col_of = [], [], {}
+    pats, support, nodes = [], [], []
+    offsets = _node_offsets(levels)
     for k in range(1, len(levels)):
         lev = levels[k]
         tgt = np.flatnonzero(lev["target"])
-        col_of[k] = np.full(len(lev["sym"]), -1, dtype=np.int64)
-        col_of[k][tgt] = np.arange(len(pats), len(pats) + len(tgt))
+        # nodes are numbered symbol-major; report them lexicographically
+        tgt = tgt[np.lexsort(lev["pats"][tgt].T[::-1])]
+        nodes.append(tgt + offsets[k])
         rows = alphabet[lev["pats"][tgt]]
         pats.extend(tuple(r) for r in rows.tolist())
         support.append(lev["support"][tgt])
     support = np.concatenate(support) if support else np.zeros((0, G), dtype=np.int64)
-    counts = _assemble_counts(triples, col_of, db.n_sequences, len(pats))
     keep = np.ones(len(pats), dtype=bool)
     if closed or maximal:
         not_closed, not_maximal = _superpattern_flags(pats, support, len(db.vocab))
@@ -182,6 +183,8 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
         if maximal:
             keep &= ~not_maximal
     idx = np.flatnonzero(keep)
+    nodes = np.concatenate(nodes) if nodes else np.zeros(0, dtype=np.int64)
+    counts = _assemble_counts(triples, offsets, nodes[idx])
     constraints = dict(
         min_support=min_support, min_length=min_length, max_length=max_length,
         max_gap=max_gap, max_window=max_window, skip_pauses=bool(skip_pauses),
@@ -191,7 +194,7 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
     return PatternSet(
         patterns=[pats[i] for i in idx], vocab=list(db.vocab), is_pause=db.is_pause.copy(),
         group_names=names, group_sizes=sizes, support_counts=support[idx],
-        counts=counts[:, idx], seq_groups=seq_groups, constraints=constraints)
+        counts=counts, seq_groups=seq_groups, constraints=constraints)
 
 
 def match(db, patterns, *, max_gap=None, max_window=None, skip_pauses=False):
@@ -256,21 +259,15 @@ def match(db, patterns, *, max_gap=None, max_window=None, skip_pauses=False):
         db, alphabet=alphabet, gidx=gidx, G=G, mode=mode, level1=trie[1]["sym"],
         allowed_fn=allowed_fn, keep_fn=keep_fn, target_fn=target_fn,
         max_length=len(trie) - 1, max_patterns=None, cons=constraints)
-    # node (level, id) -> column of the unique target list
-    col_of, n_cols, support = {}, 0, []
-    for k in range(1, len(levels)):
-        tgt = np.flatnonzero(levels[k]["target"])
-        col_of[k] = np.full(len(levels[k]["sym"]), -1, dtype=np.int64)
-        col_of[k][tgt] = np.arange(n_cols, n_cols + len(tgt))
-        n_cols += len(tgt)
-        support.append(levels[k]["support"][tgt])
-    support = np.concatenate(support)
-    counts = _assemble_counts(triples, col_of, db.n_sequences, n_cols)
-    cols = np.array([col_of[len(p)][trie[len(p)]["index"][p]] for p in local], dtype=np.int64)
+    offsets = _node_offsets(levels)
+    support = np.concatenate([levels[k]["support"] for k in range(1, len(levels))])
+    # (a pattern's global node: offsets[length] + its number within the level)
+    nodes = np.array([offsets[len(p)] + trie[len(p)]["index"][p] for p in local], dtype=np.int64)
+    counts = _assemble_counts(triples, offsets, nodes)
     return PatternSet(
         patterns=[tuple(int(t) for t in p) for p in pats], vocab=list(db.vocab),
         is_pause=db.is_pause.copy(), group_names=names, group_sizes=sizes,
-        support_counts=support[cols], counts=counts[:, cols], seq_groups=seq_groups,
+        support_counts=support[nodes], counts=counts, seq_groups=seq_groups,
         constraints=constraints)
 
 
@@ -457,7 +454,7 @@ def _search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_
     Returns ``levels`` (index 0 = the root) with per-level node arrays ``parent``,
     ``sym``, ``suffix``, ``pats`` (local symbols), ``support`` (n, G), ``child_in``
     (table of level k-1 ids x symbols -> level k ids), ``target``; and the instance
-    count triples ``{level: (node, global seq, count)}``.
+    count triples per block ``(n_seq, [(level, node, local seq, count), ...])``.
     """
     n_sym = len(alphabet)
     lut = np.full(len(db.vocab), -1, dtype=np.int32)
@@ -472,7 +469,7 @@ def _search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_
                 support=np.zeros((1, G), np.int64), child_in=None,
                 target=np.zeros(1, bool))
     levels = [root]
-    triples = {}
+    triples = [(block.n_seq, []) for block in blocks]
     occ = [None] * len(blocks)
     total = 0
     k = 0
@@ -485,7 +482,8 @@ def _search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_
                 allowed[0, level1] = True
             else:
                 allowed = allowed_fn(levels, k)
-            flat = np.flatnonzero(allowed.ravel())
+            plan = K.LevelPlan(allowed)
+            flat = np.flatnonzero(plan.allowed_t.ravel())   # keys sym * n_prev + parent
             if flat.size == 0:
                 break
             cand_index = np.full(n_prev * n_sym, -1, dtype=np.int64)
@@ -496,7 +494,7 @@ def _search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_
                 if k == 0:
                     e = K.root_extend(block, level1, mode)
                 else:
-                    e = K.extend(block, occ[b], allowed, mode)
+                    e = K.extend(block, occ[b], plan, mode)
                     block.release()
                 counts += K.count_support(block, e, len(flat), slots, cand_index)
                 ext.append(e)
@@ -506,8 +504,8 @@ def _search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_
                 break
             new_id = np.full(n_prev * n_sym, -1, dtype=np.int64)
             new_id[new_flat] = np.arange(len(new_flat))
-            parent = new_flat // n_sym
-            sym = new_flat % n_sym
+            parent = new_flat % n_prev
+            sym = new_flat // n_prev
             prev = levels[k]
             if k == 0:
                 suffix = np.zeros(len(new_flat), dtype=np.int64)
@@ -519,7 +517,8 @@ def _search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_
                 suffix[has] = table[q[has], sym[has]]
             lev = dict(parent=parent, sym=sym, suffix=suffix,
                        pats=np.concatenate([prev["pats"][parent], sym[:, None]], axis=1),
-                       support=counts[keep, :G], child_in=new_id.reshape(n_prev, n_sym))
+                       support=counts[keep, :G],
+                       child_in=np.ascontiguousarray(new_id.reshape(n_sym, n_prev).T))
             lev["target"] = target_fn(k + 1, lev)
             levels.append(lev)
             total += len(new_flat)
@@ -528,7 +527,6 @@ def _search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_
                     f"Mining stopped: more than {max_patterns} frequent patterns (reached at "
                     f"length {k + 1}). Raise 'max_patterns' (--max-patterns) if you need them "
                     f"all, or raise 'min_support', lower 'max_length' or set 'max_gap'.")
-            trip = []
             for b, block in enumerate(blocks):
                 e = ext[b]
                 ext[b] = None
@@ -540,11 +538,8 @@ def _search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_
                 if lev["target"].any():
                     t = e.take(lev["target"][e.pid])
                     node, seq, cnt = K.instance_counts(block, t, mode, lev["pats"])
-                    trip.append((node.astype(np.int64), seq.astype(np.int64) + block.seq0,
-                                 cnt.astype(np.int64)))
+                    triples[b][1].append((k + 1, node, seq, cnt))
                 block.release()
-            if trip:
-                triples[k + 1] = tuple(np.concatenate(x) for x in zip(*trip))
             k += 1
             bar.update(1)
     finally:
@@ -552,30 +547,52 @@ def _search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_
     return levels, triples
 
 
-def _assemble_counts(triples, col_of, n_seq, n_cols):
-    rows, cols, vals = [], [], []
-    for k, (node, seq, cnt) in triples.items():
-        c = col_of[k][node]
-        ok = c >= 0
-        rows.append(seq[ok])
-        cols.append(c[ok])
-        vals.append(cnt[ok])
-    if not rows:
-        return sp.csr_matrix((n_seq, n_cols), dtype=np.int64)
-    m = sp.coo_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
-                      shape=(n_seq, n_cols), dtype=np.int64)
-    return m.tocsr()
+def _node_offsets(levels):
+    """Global node number of the first node of each level (the root is not counted)."""
+    sizes = [0, 0] + [len(levels[k]["sym"]) for k in range(1, len(levels))]
+    return np.cumsum(sizes)   # offsets[k] = first node of level k; offsets[-1] = total
+
+
+def _assemble_counts(triples, offsets, select):
+    """Sparse (n_sequences, len(select)) instance counts of the global nodes ``select``.
+
+    Each block's triples arrive sorted by (level, node, sequence), so a block's
+    nodes x sequences CSR is built without sorting; rows are picked in output order,
+    transposed (linear time) and the blocks stacked.
+    """
+    n_nodes = int(offsets[-1])
+    select = np.asarray(select, dtype=np.int64)
+    parts = []
+    for n_seq, trip in triples:
+        if trip:
+            node = np.concatenate([nd.astype(np.int64) + offsets[k] for k, nd, _, _ in trip])
+            seq = np.concatenate([sq for _, _, sq, _ in trip]).astype(np.int32)
+            cnt = np.concatenate([c for _, _, _, c in trip]).astype(np.int32)
+        else:
+            node = np.zeros(0, dtype=np.int64)
+            seq = cnt = np.zeros(0, dtype=np.int32)
+        indptr = np.zeros(n_nodes + 1, dtype=np.int64)
+        np.cumsum(np.bincount(node, minlength=n_nodes), out=indptr[1:])
+        by_node = sp.csr_matrix((cnt, seq, indptr), shape=(n_nodes, n_seq))
+        by_node.has_sorted_indices = True
+        parts.append(by_node[select].T.tocsr())
+    return sp.vstack(parts, format="csr") if len(parts) > 1 else parts[0]
 
 
 def _build_trie(local, n_sym):
-    """Prefix tree of the (local-symbol) patterns, one dict per level (index 0 = root)."""
+    """Prefix tree of the (local-symbol) patterns, one dict per level (index 0 = root).
+
+    Nodes of a level are numbered like the search numbers them: by last symbol,
+    then by the parent's number.
+    """
     max_len = max(len(p) for p in local)
     pattern_set = set(local)
     trie = [dict(index={(): 0})]
     for k in range(1, max_len + 1):
-        nodes = sorted({p[:k] for p in local if len(p) >= k})
-        index = {t: i for i, t in enumerate(nodes)}
         prev_index = trie[k - 1]["index"]
+        nodes = sorted({p[:k] for p in local if len(p) >= k},
+                       key=lambda t: (t[-1], prev_index[t[:-1]]))
+        index = {t: i for i, t in enumerate(nodes)}
         child_in = np.full((len(prev_index), n_sym), -1, dtype=np.int64)
         for t, i in index.items():
             child_in[prev_index[t[:-1]], t[-1]] = i

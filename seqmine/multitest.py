@@ -4,11 +4,11 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._permutation import westfall_young_minp
+from ._permutation import westfall_young_minp, westfall_young_rates
 from ._validation import check_choice
 from .errors import ParameterError
 
-__all__ = ["adjust_pvalues", "westfall_young_minp", "CORRECTIONS"]
+__all__ = ["adjust_pvalues", "westfall_young_minp", "westfall_young_rates", "CORRECTIONS"]
 
 #: Corrections :func:`adjust_pvalues` knows (Westfall-Young needs the data, not only
 #: the p-values: see :func:`westfall_young_minp`).

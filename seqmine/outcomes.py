@@ -280,14 +280,16 @@ class Grouping:
         return self
 
     def transform(self, outcomes):
-        """Group name of each learner (a Series aligned with ``outcomes``; NaN = none)."""
+        """Group name of each learner: a Series indexed by learner, in the row order of
+        ``outcomes`` (NaN = no group), so it can be passed as ``groups`` to the encoder."""
         if not hasattr(self, "group_names_"):
             from .errors import NotFittedError
             raise NotFittedError("This Grouping is not fitted yet; call fit first.")
         if self.rule == "label":
             lab = outcomes["label"].astype(object)
             return pd.Series(np.where(lab.isin(self.group_names_), lab, np.nan),
-                             index=outcomes.index, dtype=object, name="group")
+                             index=pd.Index(outcomes["learner"].to_numpy(), name="learner"),
+                             dtype=object, name="group")
         vals = self._values(outcomes)
         lo, hi = self.thresholds_["low"], self.thresholds_["high"]
         better, worse = self.group_names_
@@ -301,7 +303,8 @@ class Grouping:
         else:
             out[vals >= hi] = better
             out[vals < lo] = worse
-        return pd.Series(out, index=outcomes.index, dtype=object, name="group")
+        return pd.Series(out, index=pd.Index(outcomes["learner"].to_numpy(), name="learner"),
+                         dtype=object, name="group")
 
     def fit_transform(self, outcomes):
         """``fit`` then ``transform``."""

@@ -188,9 +188,14 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     from ._progress import set_quiet
     from .config import default_config
     from .encode import Encoder, load_mapping
+    from .contrast import contrast
+    from .examples import pattern_examples
     from .load import load_events
+    from .mine import mine, save_patternset
     from .outcomes import load_outcomes
     from .privacy import pseudonymize_frame, read_key
+    from .report import render_report
+    from .transitions import transitions
 
     if quiet:
         set_quiet(True)
@@ -234,11 +239,121 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     loaded.rejects.to_csv(out / "rejects.csv", index=False)
     files.append(out / "rejects.csv")
 
+    db.save(out / "sequences")
     summary = dict(prepared.summary)
-    summary["seed"] = int(cfg["seed"])
+    seed = int(cfg["seed"])
+    jobs = int(cfg["jobs"])
+    stages = _Stages(quiet=quiet)
+
+    # 3. mine and score
+    mine_cfg, con_cfg = cfg["mine"], cfg["contrast"]
+    with stages("mining patterns"):
+        patternset = mine(db, min_support=mine_cfg["min_support"],
+                          min_length=mine_cfg["min_length"], max_length=mine_cfg["max_length"],
+                          max_gap=mine_cfg["max_gap"], max_window=mine_cfg["max_window"],
+                          skip_pauses=mine_cfg["skip_pauses"],
+                          start_with_action=mine_cfg["start_with_action"],
+                          end_with_action=mine_cfg["end_with_action"], closed=mine_cfg["closed"],
+                          maximal=mine_cfg["maximal"], max_patterns=mine_cfg["max_patterns"])
+        save_patternset(patternset, out / "patternset")
+    with stages("scoring patterns"):
+        table = contrast(patternset, db, correction=con_cfg["correction"], alpha=con_cfg["alpha"],
+                         n_permutations=con_cfg["n_permutations"], seed=seed,
+                         stability_resamples=con_cfg["stability_resamples"],
+                         redundancy=con_cfg["redundancy_jaccard"])
+        table = _order_patterns(table)
+        table.to_csv(out / "patterns.csv", index=False, lineterminator="\n", float_format="%.10g")
+        files.append(out / "patterns.csv")
+    with stages("transitions"):
+        trans = transitions(db, exclude_pauses=not cfg["transitions"]["include_pauses"])
+        trans.to_csv(out / "transitions.csv", index=False, lineterminator="\n",
+                     float_format="%.10g")
+        files.append(out / "transitions.csv")
+    alpha = float(con_cfg["alpha"])
+    significant = table[table["q_value"] <= alpha]
+    summary.update({
+        "patterns_mined": int(patternset.n_patterns),
+        "patterns_significant": int(len(significant)),
+        "patterns_significant_distinct": int((significant["redundant_of"].fillna("") == "").sum())
+        if "redundant_of" in significant else int(len(significant)),
+        "method": {
+            "presence_test": "Fisher's exact test (two-sided) on presence per sequence",
+            "rate_test": "Mann-Whitney U on occurrences per 100 tokens",
+            "correction": con_cfg["correction"], "alpha": alpha,
+            "n_permutations": int(con_cfg["n_permutations"]),
+            "stability_resamples": int(con_cfg["stability_resamples"]),
+            "min_support": mine_cfg["min_support"], "max_length": mine_cfg["max_length"],
+            "max_gap": mine_cfg["max_gap"], "folds": cfg["validate"]["folds"],
+        },
+        "sequence_lengths": {name: _describe(db.lengths[db.groups == g].astype(float))
+                             for g, name in enumerate(db.group_names)},
+    })
+
+    # 4. phases of work
+    ph_cfg = cfg["phases"]
+    if ph_cfg["enabled"]:
+        from .phases import fit_phases
+        with stages("phase models"):
+            phases = fit_phases(db, n_states=range(ph_cfg["min_states"], ph_cfg["max_states"] + 1),
+                                n_restarts=ph_cfg["restarts"], seed=seed, n_jobs=jobs,
+                                n_iter=ph_cfg["max_iter"])
+            phases.save(out / "phases")
+            files.append(out / "phases")
+            summary["phases"] = {"n_states": int(phases.n_states)}
+
+    # 5. examples and report
+    if cfg["report"]["examples"]:
+        top = significant[significant["redundant_of"].fillna("") == ""] \
+            if "redundant_of" in significant else significant
+        top = top.head(int(cfg["report"]["top_patterns"]))
+        ex = pattern_examples(db, patternset, top["pattern"].tolist(),
+                              favours=dict(zip(top["pattern"], top["favours"])), seed=seed)
+        _write_json(out / "examples.json", ex)
+        files.append(out / "examples.json")
+    summary["seed"] = seed
     summary["configuration"] = cfg
     summary["versions"] = _versions()
     summary["pseudonymized"] = bool(key_path)
-    _write_json(out / "summary.json", summary)
+    summary["stage_seconds"] = stages.seconds
+    _write_json(out / "summary.json", _without_timings(summary))
     files.append(out / "summary.json")
+    with stages("report"):
+        report = render_report(out, examples=bool(cfg["report"]["examples"]),
+                               max_patterns=int(cfg["report"]["top_patterns"]))
+        files.append(report)
     return AnalysisResult(out_dir=out, summary=summary, files=files)
+
+
+def _without_timings(summary):
+    """summary.json stays byte-identical across runs: wall-clock times are left out."""
+    return {k: v for k, v in summary.items() if k != "stage_seconds"}
+
+
+def _order_patterns(table):
+    """Most useful first: significant before not, then by q value, then by pattern."""
+    order = table.assign(_sig=table["q_value"].isna()).sort_values(
+        ["_sig", "q_value", "p_value", "length", "pattern"], kind="mergesort")
+    return order.drop(columns="_sig").reset_index(drop=True)
+
+
+class _Stages:
+    """Times each stage and shows which one runs (to stderr, unless quiet)."""
+
+    def __init__(self, quiet=False):
+        self.quiet = quiet
+        self.seconds = {}
+
+    def __call__(self, name):
+        import contextlib
+        import sys
+        import time
+
+        @contextlib.contextmanager
+        def stage():
+            from ._progress import is_quiet
+            if not (self.quiet or is_quiet()):
+                print(f"seqmine: {name} ...", file=sys.stderr, flush=True)
+            t0 = time.perf_counter()
+            yield
+            self.seconds[name] = round(time.perf_counter() - t0, 3)
+        return stage()

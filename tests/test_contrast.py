@@ -6,6 +6,8 @@ import numpy as np
 import pandas as pd
 import pytest
 import scipy.sparse as sp
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy import stats
 
 from seqmine._permutation import bootstrap_significance, westfall_young_minp
@@ -39,7 +41,8 @@ def brute_patternset(db, patterns):
     """PatternSet of the given token-name patterns counted by brute force on db."""
     ids = [tuple(db.vocab.index(t) for t in p) for p in patterns]
     counts = np.array([[_instances(db.sequence(i).tolist(), p) for p in ids]
-                       for i in range(db.n_sequences)], dtype=np.int64).reshape(db.n_sequences, len(ids))
+                       for i in range(db.n_sequences)], dtype=np.int64)
+    counts = counts.reshape(db.n_sequences, len(ids))
     sup = np.stack([(counts[db.groups == g] > 0).sum(axis=0) for g in range(db.n_groups)], axis=1)
     return PatternSet(patterns=ids, vocab=db.vocab, is_pause=db.is_pause,
                       group_names=db.group_names, group_sizes=db.group_sizes(),
@@ -434,3 +437,118 @@ def test_ungrouped_sequences_are_left_out():
     sub = db.subset(np.arange(6, 40))
     df = contrast(brute_patternset(sub, PATTERNS), sub, stability_resamples=0, redundancy=None)
     pd.testing.assert_frame_equal(df, df2, check_like=False)
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.integers(0, 10_000), st.sampled_from([0.5, 0.75, 0.9, 1.0]))
+def test_prune_matches_brute_force_greedy(seed, threshold):
+    # Brute force: visit patterns in priority order; redundant when some earlier kept
+    # pattern has Jaccard >= threshold; point to the earliest such pattern.
+    rng = np.random.default_rng(seed)
+    base = rng.random((15, 5)) < 0.5
+    flips = rng.random((15, 12)) < 0.08
+    pres = base[:, rng.integers(0, 5, 12)] ^ flips
+    order = rng.permutation(12)
+    got = prune_redundant(sp.csr_matrix(pres.astype(int)), order, threshold)
+    kept, ref = [], np.full(12, -1)
+    for j in order:
+        for i in kept:
+            union = (pres[:, i] | pres[:, j]).sum()
+            if union and (pres[:, i] & pres[:, j]).sum() / union >= threshold:
+                ref[j] = i
+                break
+        else:
+            kept.append(j)
+    np.testing.assert_array_equal(got, ref)
+
+
+# ------------------------------------------------------------ learner as unit
+def _session_db():
+    rng = np.random.default_rng(21)
+    seqs, groups, learners = [], [], []
+    for k in range(24):
+        g = ["strong", "weak"][k % 2]
+        for _ in range(int(rng.integers(1, 4))):
+            p = np.ones(len(ACTIONS))
+            p[3] += 2.0 if g == "strong" else 0.0
+            seqs.append(list(rng.choice(ACTIONS, size=int(rng.integers(3, 9)), p=p / p.sum())))
+            groups.append(g)
+            learners.append(f"learner{k:02d}")
+    return SequenceDB.from_lists(seqs, groups=groups, group_names=["strong", "weak"],
+                                 learners=learners, pause_tokens=["pause:long"], vocab=ACTIONS)
+
+
+def test_learner_unit_merges_sessions():
+    db = _session_db()
+    ps = brute_patternset(db, PATTERNS)
+    with pytest.warns(SeqmineWarning, match="Some learners have several sequences"):
+        contrast(ps, db, stability_resamples=0)
+    got = contrast(ps, db, unit="learner", stability_resamples=20, correction="westfall-young",
+                   n_permutations=50)
+    # reference: merge by hand, loop over learners
+    names = list(dict.fromkeys(db.learners))
+    counts = ps.counts.toarray()
+    merged = np.array([counts[db.learners == n].sum(axis=0) for n in names])
+    lengths = np.array([db.lengths[db.learners == n].sum() for n in names])
+    lgroups = np.array([db.groups[db.learners == n][0] for n in names])
+    sup = np.stack([(merged[lgroups == g] > 0).sum(axis=0) for g in range(2)], axis=1)
+    ref_ps = PatternSet(patterns=ps.patterns, vocab=ps.vocab, is_pause=ps.is_pause,
+                        group_names=ps.group_names, group_sizes=np.bincount(lgroups),
+                        support_counts=sup, counts=sp.csr_matrix(merged), seq_groups=lgroups)
+    ref = contrast(ref_ps, lengths=lengths, stability_resamples=20,
+                   correction="westfall-young", n_permutations=50)
+    ref.attrs, got.attrs = {}, {}
+    pd.testing.assert_frame_equal(got, ref)
+    assert ((got["support_strong"] * 12) % 1 == 0).all()  # shares of 12 learners
+
+
+def test_learner_unit_errors():
+    db = _session_db()
+    ps = brute_patternset(db, PATTERNS[:2])
+    with pytest.raises(ParameterError, match="unit='learner' of contrast needs db="):
+        contrast(ps, unit="learner")
+    groups = db.groups.copy()
+    groups[1] = 1 - groups[1]  # one session of a learner moves to the other group
+    db2 = db.with_groups(groups, db.group_names)
+    ps2 = brute_patternset(db2, PATTERNS[:2])
+    bad = db2.learners[1]
+    with pytest.raises(ParameterError, match=f"Learner '{bad}' has sequences in different"):
+        contrast(ps2, db2, unit="learner")
+    with pytest.raises(ParameterError, match="'unit' parameter of contrast must be one of"):
+        contrast(ps, db, unit="session")
+
+
+@pytest.mark.parametrize("n_groups", [2, 3])
+def test_westfall_young_rates_equals_brute_force_loop(n_groups):
+    # Direct loops with scipy.stats.mannwhitneyu(method="asymptotic") / scipy.stats.kruskal
+    # per pattern and permutation, replaying the documented permutation stream.
+    from seqmine._permutation import westfall_young_rates
+
+    ps = random_patternset(n_seq=30, n_pat=6, seed=5, effect={0: 0.5}, n_groups=n_groups)
+    rates = sequence_rates(ps, np.arange(30) % 7 + 3)
+    dense = rates.toarray()
+    labels = ps.seq_groups
+    raw, adj = westfall_young_rates(rates, labels, n_permutations=40, seed=8, batch_size=9)
+
+    def pvals(lab):
+        if n_groups == 2:
+            return np.array([stats.mannwhitneyu(dense[lab == 0, j], dense[lab == 1, j],
+                                                method="asymptotic").pvalue for j in range(6)])
+        return np.array([stats.kruskal(*[dense[lab == g, j] for g in range(3)]).pvalue
+                         for j in range(6)])
+
+    ref_raw = pvals(labels)
+    order = np.argsort(ref_raw, kind="stable")
+    rng = np.random.default_rng(8)
+    exceed = np.zeros(6)
+    for _ in range(40):
+        q = np.minimum.accumulate(pvals(rng.permutation(labels))[order][::-1])[::-1]
+        exceed += q <= ref_raw[order] * (1 + 1e-7)
+    ref_adj = np.empty(6)
+    ref_adj[order] = np.maximum.accumulate((exceed + 1) / 41)
+    np.testing.assert_allclose(raw, ref_raw, rtol=1e-10)
+    np.testing.assert_allclose(adj, ref_adj, atol=1e-12)
+    table = contrast(ps, lengths=np.arange(30) % 7 + 3, correction="westfall-young",
+                     n_permutations=40, seed=8, stability_resamples=0, redundancy=None)
+    np.testing.assert_allclose(table.set_index("pattern").loc[[f"t{j}" for j in range(6)],
+                                                              "q_rate"], ref_adj, atol=1e-12)

@@ -68,3 +68,21 @@ def test_benjamini_hochberg_false_discovery_proportion_under_mixture():
     assert fdp.mean() <= ALPHA + 3 * fdp.std(ddof=1) / np.sqrt(n_sets)
     # Holm controls the family-wise rate over the null patterns
     assert holm_any_false <= _upper(n_sets)
+
+
+@pytest.mark.slow
+def test_westfall_young_rates_controls_familywise_rate_under_null():
+    # Same design as above for the rank test on rates (counts of overlapping patterns
+    # per 100 tokens); tolerance: binomial 99.9% upper bound for S data sets.
+    from seqmine._permutation import westfall_young_rates
+
+    n_sets, hits = 300, 0
+    for s in range(n_sets):
+        rng = np.random.default_rng(9000 + s)
+        pres = _overlapping_presence(rng, 50)
+        counts = pres * rng.integers(1, 5, size=pres.shape)
+        rates = sp.csr_matrix(counts / rng.integers(20, 60, size=(50, 1)) * 100)
+        labels = rng.permutation(np.repeat([0, 1], 25))
+        _, adj = westfall_young_rates(rates, labels, n_permutations=199, seed=s)
+        hits += bool(np.any(adj <= ALPHA))
+    assert hits <= _upper(n_sets)

@@ -39,7 +39,8 @@ def brute_patternset(db, patterns):
     """PatternSet of the given token-name patterns counted by brute force on db."""
     ids = [tuple(db.vocab.index(t) for t in p) for p in patterns]
     counts = np.array([[_instances(db.sequence(i).tolist(), p) for p in ids]
-                       for i in range(db.n_sequences)], dtype=np.int64).reshape(db.n_sequences, len(ids))
+                       for i in range(db.n_sequences)], dtype=np.int64)
+    counts = counts.reshape(db.n_sequences, len(ids))
     sup = np.stack([(counts[db.groups == g] > 0).sum(axis=0) for g in range(db.n_groups)], axis=1)
     return PatternSet(patterns=ids, vocab=db.vocab, is_pause=db.is_pause,
                       group_names=db.group_names, group_sizes=db.group_sizes(),
@@ -166,3 +167,23 @@ def test_three_groups_pairwise_file(tmp_path):
     assert rc == 0
     assert "chi2" in pd.read_csv(tmp_path / "p.csv").columns
     assert len(pd.read_csv(tmp_path / "pw.csv")) == 3 * len(PATTERNS)
+
+
+def test_permutation_benchmark_runs_in_tiny_mode(tmp_path):
+    # Smoke test so the benchmark script does not rot (timings are not checked).
+    import importlib.util
+    from pathlib import Path
+
+    path = Path(__file__).resolve().parents[1] / "benchmarks" / "bench_permutation.py"
+    spec = importlib.util.spec_from_file_location("bench_permutation", path)
+    bench = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(bench)
+    out = tmp_path / "perm.json"
+    was_quiet = is_quiet()
+    try:
+        assert bench.main(["--learners", "120", "--patterns", "50", "--permutations", "20",
+                           "--out", str(out)]) == 0
+    finally:
+        set_quiet(was_quiet)
+    result = json.loads(out.read_text())
+    assert result["patterns"] == 50 and result["speedup_vs_naive"] > 0

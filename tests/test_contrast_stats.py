@@ -154,3 +154,19 @@ def test_chi2_presence_equals_scipy_contingency():
         assert p[j] == pytest.approx(ref.pvalue, rel=1e-10)
     chi, p = chi2_presence(np.array([[20], [31], [17]]), sizes)
     assert p[0] == 1.0 and chi[0] == 0.0
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.integers(4, 20), st.integers(1, 6), st.integers(0, 10_000))
+def test_mannwhitney_property_matches_scipy(n_rows, n_cols, seed):
+    # Brute-force reference: scipy.stats.mannwhitneyu on each dense column.
+    rng = np.random.default_rng(seed)
+    dense = rng.integers(0, 4, size=(n_rows, n_cols)).astype(float)
+    first = np.zeros(n_rows, bool)
+    first[: rng.integers(1, n_rows)] = True
+    rng.shuffle(first)
+    u, p = mannwhitney_sparse(sp.csc_matrix(dense), first)
+    for j in range(n_cols):
+        ref = stats.mannwhitneyu(dense[first, j], dense[~first, j])
+        assert u[j] == ref.statistic
+        assert p[j] == pytest.approx(ref.pvalue, rel=1e-12, abs=1e-300)

@@ -472,3 +472,20 @@ def test_pause_contexts_follow_configured_lognormals(small):
               & (act[1:-2] == "advance_week") & np.char.startswith(act[2:-1].astype(str),
                                                                    "measure_"))
     assert 50 <= np.median(gap[cc]) <= 70
+
+
+def test_ground_truth_is_a_private_copy():
+    a = generate_greenhouse(5, seed=1)
+    a.ground_truth["generator"]["parameters"]["score_max"] = 999
+    a.ground_truth["generator"]["parameters"]["gain_coefficients"]["decorating"] = 9.0
+    b = generate_greenhouse(5, seed=1)
+    assert b.ground_truth["generator"]["parameters"]["score_max"] == 20
+    assert b.ground_truth["generator"]["parameters"]["gain_coefficients"]["decorating"] < 0
+    assert (b.outcomes["max"] == 20).all()
+
+
+def test_output_folder_that_is_a_file(tmp_path):
+    blocker = tmp_path / "taken"
+    blocker.write_text("x", encoding="utf-8")
+    with pytest.raises(DataFileError, match=r"taken: cannot create the output folder"):
+        write_greenhouse(blocker, 3)

@@ -58,5 +58,6 @@ def test_nan_passes_through_and_is_not_counted():
 def test_bad_input_messages():
     with pytest.raises(ParameterError, match=r"p-values must lie in \[0, 1\]; got 1.5"):
         adjust_pvalues([0.2, 1.5])
-    with pytest.raises(ParameterError, match="'correction' parameter of adjust_pvalues must be one of"):
+    with pytest.raises(ParameterError,
+                       match="'correction' parameter of adjust_pvalues must be one of"):
         adjust_pvalues([0.2], "bonferroni-ish")

@@ -116,3 +116,15 @@ def test_match_learners_reports_both_directions():
     assert rep["events_without_outcome"] == ["x"]
     assert rep["outcomes_without_events"] == ["y", "z"]
     assert rep["outcome_undefined"] == ["z"]
+
+
+def test_groups_indexed_by_learner_feed_the_encoder():
+    # regression: transform returned a position-indexed Series, so encoding with
+    # groups=... found no learner and every group came out empty
+    from seqmine.encode import encode
+    out = pd.DataFrame({"learner": ["b", "a"], "gain": [0.9, 0.1]})
+    groups = Grouping().fit_transform(out)
+    assert groups.to_dict() == {"b": "strong", "a": "weak"}
+    ev = pd.DataFrame({"learner": ["a", "b"], "time": [0.0, 0.0], "action": ["x", "y"]})
+    db = encode(ev, groups=groups, group_names=["strong", "weak"], pause_strategy="none")
+    assert db.groups.tolist() == [1, 0]

@@ -87,9 +87,11 @@ def test_recovery_of_two_generators():
     assert len(rates) == 6
     assert (rates["q_value"] < 0.05).all()
     assert set(rates["favours"]) == {"strong", "weak"}
-    # 5. model distance exceeds every permutation distance
+    # 5. the model distance is clearly positive and its test statistic exceeds every
+    # permutation value, so the p-value is the smallest possible, 1 / (1 + 4)
     d = res.distances.iloc[0]
-    assert d["symmetric"] > d["permutation_max"]
+    assert d["symmetric"] > 0.1 and d["test_statistic"] > 0.1
+    assert d["test_statistic"] > d["permutation_max"]
     assert d["p_value"] == pytest.approx(1 / 5)
 
 
@@ -138,13 +140,7 @@ def test_em_improves_on_its_start():
     db = _sample_db(n=10, length=30)
     X, lengths = db.tokens.astype(np.int64), db.lengths
     seed = 11
-    rng = np.random.default_rng(seed)  # same draws as fit_restart's start
-    freq = np.bincount(X, minlength=6) + 1e-3
-    freq = freq / freq.sum()
-    start = rng.dirichlet(np.ones(3))
-    trans = rng.dirichlet(np.ones(3), size=3)
-    emis = 0.5 * rng.dirichlet(np.ones(6), size=3) + 0.5 * freq
-    emis /= emis.sum(axis=1, keepdims=True)
+    start, trans, emis = _hmm.start_point(X, 3, 6, seed)  # fit_restart's start
     ll0 = _hmm.forward_loglik(start, trans, emis, X, lengths).sum()
     fit = _hmm.fit_restart(X, lengths, 3, 6, seed, emission_floor=0.0)
     assert fit["loglik"] >= ll0
@@ -333,6 +329,25 @@ def test_group_named_pooled_is_refused():
     db = SequenceDB.from_lists([["a", "b"]] * 4, groups=["pooled", "weak"] * 2)
     with pytest.raises(ParameterError, match="A group is named 'pooled'"):
         fit_phases(db, n_states=1, n_permutations=0, n_folds=0)
+
+
+def test_permutation_reference_under_the_null():
+    # both groups drawn from one generator: the observed statistic is of the size of
+    # the permutation values and p-values are not piled at the minimum 0.1 (with 9
+    # permutations a valid test gives p = 0.1 one time in ten)
+    gen, _ = _generators()
+    p_values = []
+    for k in range(3):
+        X, _ = gen.sample([40] * 40, seed=100 + k)
+        seqs = [[VOCAB[t] for t in X[i * 40:(i + 1) * 40]] for i in range(40)]
+        db = SequenceDB.from_lists(seqs, groups=["strong", "weak"] * 20, vocab=VOCAB)
+        res = fit_phases(db, n_states=3, n_restarts=2, n_folds=0, n_permutations=9, seed=1,
+                         distance_tokens=4000)
+        d = res.distances.iloc[0]
+        assert d["test_statistic"] < 3 * d["permutation_mean"]
+        assert d["symmetric"] < 0.1
+        p_values.append(d["p_value"])
+    assert np.mean(p_values) > 0.2
 
 
 def test_no_groups_gives_pooled_model_only():

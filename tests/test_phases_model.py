@@ -258,3 +258,26 @@ def test_model_parameter_errors():
     db = SequenceDB.from_lists([["x", "y"]])
     with pytest.raises(ParameterError, match="vocabulary .* differs"):
         m.score(db)
+
+
+def test_lean_estep_equals_stock_hmmlearn():
+    # our E-step shortcut must give the same Baum-Welch fit as hmmlearn itself
+    gen = PhaseModel.from_parameters([0.5, 0.3, 0.2], [[0.8, 0.1, 0.1], [0.2, 0.7, 0.1],
+                                                       [0.1, 0.3, 0.6]],
+                                     [[0.6, 0.2, 0.1, 0.1], [0.1, 0.6, 0.2, 0.1],
+                                      [0.1, 0.1, 0.2, 0.6]])
+    lengths = np.array([1, 7, 30, 12, 2, 25] * 5)
+    X, _ = gen.sample(lengths, seed=5)
+    start = _hmm.start_point(X, 3, 4, seed=2)
+    fits = []
+    for cls in (CategoricalHMM, _hmm._LeanCategoricalHMM):
+        h = cls(n_components=3, n_features=4, init_params="", params="ste", n_iter=25,
+                tol=-np.inf, implementation="scaling")
+        h.startprob_, h.transmat_, h.emissionprob_ = (a.copy() for a in start)
+        h.fit(X.reshape(-1, 1), lengths)
+        fits.append(h)
+    stock, lean = fits
+    for name in ("startprob_", "transmat_", "emissionprob_"):
+        np.testing.assert_allclose(getattr(lean, name), getattr(stock, name), rtol=1e-9,
+                                   atol=1e-12)
+    np.testing.assert_allclose(lean.monitor_.history, stock.monitor_.history, rtol=1e-12)

@@ -51,7 +51,7 @@ _FLAG_TO_CONFIG = [
     ("max_length", "mine", "max_length", None),
     ("max_gap", "mine", "max_gap", lambda v: None if v < 0 else v),
     ("max_window", "mine", "max_window", None),
-    ("skip_pauses", "mine", "skip_pauses", None),
+    ("count_pauses", "mine", "skip_pauses", lambda v: not v),
     ("max_patterns", "mine", "max_patterns", None),
     ("correction", "contrast", "correction", None),
     ("permutations", "contrast", "n_permutations", None),
@@ -80,10 +80,13 @@ def add_arguments(p):
                    help="minimum share of a group's sequences (default: 0.2)")
     g.add_argument("--min-length", type=int, default=2, help="shortest pattern (default: 2)")
     g.add_argument("--max-length", type=int, default=4, help="longest pattern (default: 4)")
-    g.add_argument("--max-gap", type=int, default=1,
-                   help="tokens allowed between pattern items; -1 = unlimited (default: 1)")
+    g.add_argument("--max-gap", type=int, default=0,
+                   help="tokens allowed between pattern items; -1 = unlimited (default: 0, "
+                        "i.e. consecutive)")
     g.add_argument("--max-window", type=int, default=None, help="longest span in tokens")
-    g.add_argument("--skip-pauses", action="store_true", help="pause tokens do not count in gaps")
+    g.add_argument("--count-pauses", action="store_true",
+                   help="pause tokens count in gaps (default: they do not, so 'a > b' also "
+                        "matches a, pause, b)")
     g.add_argument("--max-patterns", type=int, default=200_000,
                    help="stop when more patterns would be mined (default: 200000)")
     g.add_argument("--correction", choices=["bh", "holm", "westfall-young"], default="bh",

@@ -64,6 +64,9 @@ def add_arguments(parser):
     parser.add_argument("--rate-unit", choices=("tokens", "actions", "count"), default=None,
                         help="rates per 100 tokens, per 100 actions or raw counts (default: "
                              "tokens with --seqdb, else count)")
+    parser.add_argument("--unit", choices=("sequence", "learner"), default="sequence",
+                        help="unit of analysis; 'learner' merges each learner's sessions "
+                             "first (needs --seqdb; default sequence)")
     parser.add_argument("--exclude-pauses", action="store_true",
                         help="transitions skip pause tokens")
 
@@ -90,7 +93,8 @@ def _run(args):
                      n_permutations=args.permutations, seed=args.seed,
                      stability_resamples=args.stability_resamples, redundancy=redundancy,
                      redundancy_order=args.redundancy_order,
-                     drop_redundant=args.drop_redundant, rate_unit=args.rate_unit)
+                     drop_redundant=args.drop_redundant, rate_unit=args.rate_unit,
+                     unit=args.unit)
     out = _writable(args.out, "--out")
     table.to_csv(out, index=False, lineterminator="\n")
     messages = [f"wrote {len(table)} patterns to {out} "
@@ -102,7 +106,7 @@ def _run(args):
                                  "table already holds the pairwise comparison.")
         pw = pairwise_contrast(ps, db, groups=groups,
                                correction="bh" if args.correction == "bh" else "holm",
-                               alpha=args.alpha, rate_unit=args.rate_unit)
+                               alpha=args.alpha, rate_unit=args.rate_unit, unit=args.unit)
         path = _writable(args.pairwise, "--pairwise")
         pw.to_csv(path, index=False, lineterminator="\n")
         messages.append(f"wrote {len(pw)} pairwise rows to {path}")

@@ -10,6 +10,7 @@ enumeration of all state paths); Viterbi decoding calls hmmlearn.
 from __future__ import annotations
 
 import numpy as np
+from hmmlearn import _hmmc
 from hmmlearn.hmm import CategoricalHMM
 
 __all__ = [
@@ -20,6 +21,7 @@ __all__ = [
     "posterior_occupancy",
     "sample_sequences",
     "fit_restart",
+    "start_point",
     "derive_seed",
 ]
 
@@ -205,14 +207,36 @@ def derive_seed(*parts):
     return int(np.random.SeedSequence([int(p) for p in parts]).generate_state(1)[0])
 
 
+def start_point(X, n_states, n_symbols, seed):
+    """Random start of Baum--Welch, drawn with ``numpy.random.default_rng(seed)``.
+
+    Start probabilities: flat Dirichlet. Transition rows: ``0.5 I + 0.5 Dir(1)``
+    (phases tend to persist). Emission rows: ``0.8 Dir(1) + 0.2 f`` with ``f`` the
+    overall token frequencies. Compared with flat draws for everything, this start
+    stalls less often in near-symmetric saddles (fewer EM iterations, more restarts
+    reaching the best optimum on our benchmark data).
+
+    Returns
+    -------
+    startprob, transmat, emissionprob : ndarray
+    """
+    rng = np.random.default_rng(seed)
+    freq = np.bincount(np.asarray(X, dtype=np.int64), minlength=n_symbols).astype(np.float64)
+    freq = (freq + 1e-3) / (freq.sum() + 1e-3 * n_symbols)
+    start = rng.dirichlet(np.ones(n_states))
+    trans = 0.5 * np.eye(n_states) + 0.5 * rng.dirichlet(np.ones(n_states), size=n_states)
+    emis = 0.8 * rng.dirichlet(np.ones(n_symbols), size=n_states) + 0.2 * freq[None, :]
+    emis /= emis.sum(axis=1, keepdims=True)
+    return start, trans, emis
+
+
 def fit_restart(X, lengths, n_states, n_symbols, seed, *, n_iter=200, tol=1e-4,
-                emission_floor=1e-4):
+                emission_floor=1e-4, start=None):
     """One Baum--Welch run from a random start; returns fitted parameters.
 
-    The start point is drawn with ``numpy.random.default_rng(seed)``: start and
-    transition rows from a flat Dirichlet, emission rows as an even mix of a flat
-    Dirichlet draw and the overall token frequencies. ``tol`` is per token: EM stops
-    when the log-likelihood gains less than ``tol * n_tokens``.
+    The start point comes from :func:`start_point` unless ``start`` gives
+    ``(startprob, transmat, emissionprob)`` (then ``seed`` is unused). ``tol`` is per
+    token: EM stops when the log-likelihood gains less than ``tol * n_tokens``.
 
     Returns
     -------
@@ -223,17 +247,14 @@ def fit_restart(X, lengths, n_states, n_symbols, seed, *, n_iter=200, tol=1e-4,
     """
     X = np.asarray(X, dtype=np.int64)
     lengths = np.asarray(lengths, dtype=np.int64)
-    rng = np.random.default_rng(seed)
-    freq = np.bincount(X, minlength=n_symbols).astype(np.float64) + 1e-3
-    freq /= freq.sum()
-    start = rng.dirichlet(np.ones(n_states))
-    trans = rng.dirichlet(np.ones(n_states), size=n_states)
-    emis = 0.5 * rng.dirichlet(np.ones(n_symbols), size=n_states) + 0.5 * freq[None, :]
-    emis /= emis.sum(axis=1, keepdims=True)
+    if start is None:
+        start, trans, emis = start_point(X, n_states, n_symbols, seed)
+    else:
+        start, trans, emis = (np.asarray(a, dtype=np.float64) for a in start)
     # the scaled forward-backward is ~10x faster than hmmlearn's log version; if it
     # underflows (hmmlearn raises ValueError) the same start is refitted in log space
     for implementation in ("scaling", "log"):
-        hmm = CategoricalHMM(n_components=n_states, n_features=n_symbols, init_params="",
+        hmm = _LeanCategoricalHMM(n_components=n_states, n_features=n_symbols, init_params="",
                              params="ste", n_iter=n_iter, tol=tol * max(len(X), 1),
                              random_state=0, implementation=implementation)
         hmm.startprob_ = start.copy()
@@ -253,6 +274,51 @@ def fit_restart(X, lengths, n_states, n_symbols, seed, *, n_iter=200, tol=1e-4,
 
 
 # ----------------------------------------------------------------- helpers
+class _LeanCategoricalHMM(CategoricalHMM):
+    """hmmlearn's CategoricalHMM with a leaner E-step for many short sequences.
+
+    Same computation as hmmlearn's scaled E-step (its own compiled forward, backward
+    and xi routines, the same posterior normalisation), minus the per-sequence
+    Python overhead: emission counts are accumulated once for all sequences with
+    ``np.bincount`` instead of ``np.add.at`` per sequence. The tests check that a
+    fit from the same start equals stock hmmlearn's. The log implementation and
+    partial ``params`` fall back to hmmlearn unchanged.
+    """
+
+    def _do_estep(self, X, lengths):
+        if self.implementation != "scaling" or self.params != "ste":
+            return super()._do_estep(X, lengths)
+        x = np.asarray(X)[:, 0]
+        if lengths is None:
+            lengths = [len(x)]
+        n = self.n_components
+        Bt = np.ascontiguousarray(self.emissionprob_.T)
+        stats = self._initialize_sufficient_statistics()
+        posteriors = np.empty((len(x), n))
+        logprob = 0.0
+        start = 0
+        for length in lengths:
+            end = start + int(length)
+            frame = Bt[x[start:end]]
+            lp, fwd, scaling = _hmmc.forward_scaling(self.startprob_, self.transmat_, frame)
+            bwd = _hmmc.backward_scaling(self.startprob_, self.transmat_, frame, scaling)
+            post = fwd * bwd
+            total = post.sum(axis=1, keepdims=True)
+            total[total == 0] = 1.0
+            post /= total
+            posteriors[start:end] = post
+            stats["start"] += post[0]
+            if end - start > 1:
+                stats["trans"] += _hmmc.compute_scaling_xi_sum(fwd, self.transmat_, bwd, frame)
+            logprob += lp
+            start = end
+        stats["nobs"] = len(lengths)
+        for k in range(n):
+            stats["obs"][k] = np.bincount(x, weights=posteriors[:, k],
+                                          minlength=self.n_features)
+        return stats, logprob
+
+
 def _renormalise(p):
     p = np.asarray(p, dtype=np.float64)
     s = p.sum(axis=-1, keepdims=True)

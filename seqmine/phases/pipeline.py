@@ -53,9 +53,14 @@ class PhaseResult:
         ``group_a`` and ``group_b`` columns first.
     distances : DataFrame
         Per pair of groups: ``group_a``, ``group_b``, ``d_ab``, ``d_ba``,
-        ``symmetric`` (Juang--Rabiner), ``n_tokens``, ``n_permutations``,
-        ``permutation_mean``, ``permutation_max``, ``p_value``
-        (``(1 + #{perm >= observed}) / (1 + n_permutations)``; NaN without permutations).
+        ``symmetric`` (Juang--Rabiner distances between the two group models),
+        ``n_tokens`` (sampled per direction), ``test_statistic``, ``n_permutations``,
+        ``permutation_mean``, ``permutation_max``, ``p_value``. The permutation test
+        uses one procedure for the observed and the permuted labellings: each side's
+        model is refitted by one Baum--Welch run started at the pooled model, and
+        ``test_statistic`` is the symmetric distance between the two refits;
+        ``p_value = (1 + #{permuted >= observed}) / (1 + n_permutations)`` (NaN
+        without permutations).
     excluded : DataFrame
         Sequences left out for being too short: ``sequence``, ``learner``, ``session``,
         ``length``.
@@ -152,8 +157,9 @@ def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, crit
     4. Comparisons: groups on the pooled model's Viterbi paths (Mann--Whitney, BH);
        aligned states and transition matrices of each pair of group models; the
        Juang--Rabiner distance with a permutation reference (group labels
-       permuted among the pair's sequences, models refitted, ``n_permutations``
-       times); the paths as a SequenceDB of state tokens.
+       permuted among the pair's sequences, ``n_permutations`` times; both sides
+       refitted from the pooled model, see ``PhaseResult.distances``); the paths
+       as a SequenceDB of state tokens.
 
     Parameters
     ----------
@@ -304,7 +310,8 @@ def load_phase_models(folder):
 
 # ----------------------------------------------------------------- helpers
 _DIST_COLUMNS = ["group_a", "group_b", "d_ab", "d_ba", "symmetric", "n_tokens",
-                 "n_permutations", "permutation_mean", "permutation_max", "p_value"]
+                 "test_statistic", "n_permutations", "permutation_mean", "permutation_max",
+                 "p_value"]
 
 
 def _groups_to_model(data, groups):
@@ -334,33 +341,41 @@ def _distance_with_reference(data, models, ga, gb, pair_no, n_states, n_restarts
     dseed = _hmm.derive_seed(seed, 4242, pair_no)
     d = model_distance(models[ga], models[gb], lengths=lengths, n_tokens=distance_tokens,
                        seed=dseed)
-    row = {"group_a": ga, "group_b": gb, **d, "n_permutations": n_permutations,
-           "permutation_mean": np.nan, "permutation_max": np.nan, "p_value": np.nan}
+    row = {"group_a": ga, "group_b": gb, **d, "test_statistic": np.nan,
+           "n_permutations": n_permutations, "permutation_mean": np.nan,
+           "permutation_max": np.nan, "p_value": np.nan}
     if n_permutations:
+        pooled = models["pooled"]
+        start = (pooled.startprob, pooled.transmat, pooled.emissionprob)
         is_a = data.groups[members] == ia
-        calls = [delayed(_permuted_distance)(data, members, is_a, p, pair_no, n_states,
-                                             n_restarts, seed, dseed, distance_tokens, fit_kw)
-                 for p in range(n_permutations)]
+        labelings = [is_a]
+        for p in range(n_permutations):
+            rng = np.random.default_rng(_hmm.derive_seed(seed, 31337, pair_no, p))
+            labelings.append(rng.permutation(is_a))
+        calls = [delayed(_warm_distance)(data, members, mask, start, dseed, distance_tokens,
+                                         fit_kw) for mask in labelings]
         if n_jobs == 1:
-            ref = [c[0](*c[1], **c[2]) for c in calls]
+            stats = [c[0](*c[1], **c[2]) for c in calls]
         else:
-            ref = Parallel(n_jobs=n_jobs)(calls)
-        ref = np.asarray(ref)
-        row.update(permutation_mean=float(ref.mean()), permutation_max=float(ref.max()),
-                   p_value=float((1 + np.sum(ref >= d["symmetric"])) / (1 + n_permutations)))
+            stats = Parallel(n_jobs=n_jobs)(calls)
+        observed, ref = stats[0], np.asarray(stats[1:])
+        row.update(test_statistic=float(observed), permutation_mean=float(ref.mean()),
+                   permutation_max=float(ref.max()),
+                   p_value=float((1 + np.sum(ref >= observed)) / (1 + n_permutations)))
     return row
 
 
-def _permuted_distance(data, members, is_a, p, pair_no, n_states, n_restarts, seed, dseed,
-                       distance_tokens, fit_kw):
-    rng = np.random.default_rng(_hmm.derive_seed(seed, 31337, pair_no, p))
-    perm = rng.permutation(is_a)
+def _warm_distance(data, members, is_a, start, dseed, distance_tokens, fit_kw):
+    """Symmetric distance between the two sides of a labelling, each side's model
+    fitted by one Baum--Welch run started at the pooled model."""
     fitted = []
-    for k, mask in enumerate((perm, ~perm)):
+    for mask in (is_a, ~is_a):
         sub = data.subset(members[mask])
-        fitted.append(fit_phase_model(sub, n_states=n_states, n_restarts=n_restarts, seed=seed,
-                                      n_jobs=1, label=f"perm{k}",
-                                      _purpose=10_000 + 2 * p + k, **fit_kw))
+        X, lengths = sub.tokens.astype(np.int64), sub.lengths
+        fit = _hmm.fit_restart(X, lengths, len(start[0]), len(data.vocab), 0, start=start,
+                               **fit_kw)
+        fitted.append(PhaseModel(fit["startprob"], fit["transmat"], fit["emissionprob"],
+                                 list(data.vocab)))
     d = model_distance(fitted[0], fitted[1], lengths=data.lengths[members],
                        n_tokens=distance_tokens, seed=dseed)
     return d["symmetric"]

@@ -1,0 +1,71 @@
+"""Time the learner-level cross-validation on the shipped greenhouse demo data.
+
+Run from the repository root::
+
+    python benchmarks/bench_validate.py [--folds K] [--jobs N]
+
+Prints the run time (serial and with --jobs) and the early-prediction curve of each
+classifier at 25 %, 50 % and 100 % of the session, and writes them to
+``benchmarks/results/validate.json``.
+"""
+
+import argparse
+import json
+import time
+from pathlib import Path
+
+import numpy as np
+
+from seqmine.load import load_events
+from seqmine.outcomes import load_outcomes
+from seqmine.validate import validate
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def main():
+    p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    p.add_argument("--folds", type=int, default=5)
+    p.add_argument("--jobs", type=int, default=2)
+    p.add_argument("--fractions", default="0.1,0.25,0.5,0.75,1")
+    args = p.parse_args()
+    data = ROOT / "datasets" / "greenhouse"
+    events = load_events(data / "events.csv").events
+    outcomes = load_outcomes(data / "outcomes.csv")
+    fractions = [float(x) for x in args.fractions.split(",")]
+    timings = {}
+    results = {}
+    for jobs in sorted({1, args.jobs}):
+        t0 = time.perf_counter()
+        results[jobs] = validate(events, outcomes, folds=args.folds, fractions=fractions,
+                                 n_jobs=jobs, seed=0)
+        timings[jobs] = time.perf_counter() - t0
+    r = results[1]
+    same = all(results[j].to_frame().equals(r.to_frame()) for j in results)
+    table = r.to_frame()
+    curve = {}
+    for name, part in table.groupby("classifier", sort=False):
+        curve[name] = {f"{row.fraction:g}": {
+            "accuracy": round(row.accuracy, 3),
+            "accuracy_ci": [round(row.accuracy_low, 3), round(row.accuracy_high, 3)],
+            "balanced_accuracy": round(row.balanced_accuracy, 3),
+            "roc_auc": round(row.roc_auc, 3),
+            "beats_baseline": bool(row.beats_baseline)}
+            for row in part.itertuples() if row.fraction in (0.25, 0.5, 1.0)}
+    out = {
+        "learners": int(r.settings["n_learners"]), "events": int(len(events)),
+        "folds": args.folds, "fractions": fractions,
+        "seconds": {f"jobs={j}": round(t, 2) for j, t in timings.items()},
+        "parallel_identical_to_serial": bool(same),
+        "earliest_fraction": {k: (None if np.isnan(v) else v)
+                              for k, v in r.earliest_fraction().items()},
+        "curve": curve,
+    }
+    print(json.dumps(out, indent=1))
+    dest = ROOT / "benchmarks" / "results"
+    dest.mkdir(parents=True, exist_ok=True)
+    (dest / "validate.json").write_text(json.dumps(out, indent=1) + "\n", encoding="utf-8")
+
+
+if __name__ == "__main__":
+    main()

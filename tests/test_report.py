@@ -1,0 +1,296 @@
+"""Tests of the HTML report: sections, tolerance, escaping, determinism, command line."""
+
+import html.parser
+import json
+import re
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from report_fixture import HOSTILE, write_output_folder
+from seqmine import _plots
+from seqmine.cli import main
+from seqmine.errors import DataFileError
+from seqmine.report import OUTPUT_FILES, REPORT_FILE, _read_csv, render_report
+
+SECTION_IDS = ["overview", "patterns", "transitions", "phases", "early-prediction",
+               "detectors", "method", "cautions"]
+
+
+class _Collector(html.parser.HTMLParser):
+    """Every start tag with its attributes, plus the page title."""
+
+    def __init__(self):
+        super().__init__(convert_charrefs=True)
+        self.tags, self.title, self._in_title = [], "", False
+
+    def handle_starttag(self, tag, attrs):
+        self.tags.append((tag, dict(attrs)))
+        self._in_title = tag == "title"
+
+    def handle_endtag(self, tag):
+        self._in_title = False
+
+    def handle_data(self, data):
+        if self._in_title:
+            self.title += data
+
+
+def _parse(text):
+    c = _Collector()
+    c.feed(text)
+    return c
+
+
+@pytest.fixture
+def folder(tmp_path):
+    return write_output_folder(tmp_path / "out")
+
+
+def test_renders_every_section(folder):
+    path = render_report(folder)
+    assert path == folder / REPORT_FILE
+    text = path.read_text(encoding="utf-8")
+    ids = [a.get("id") for _, a in _parse(text).tags]
+    for sid in SECTION_IDS:
+        assert sid in ids
+    assert "Not produced in this run" not in text
+    # Numbers come through from the files.
+    assert "1,210" in text and "10 (1%)" in text
+    assert "Row accounting reconciles" in text
+    assert "4 of 7 patterns differ reliably" in text
+    assert "1 pattern that nearly duplicate" in text
+    assert "Benjamini–Hochberg" in text
+    # Figures are inline SVG, one per chart (2 boxes, 1 supports, 2 heatmaps,
+    # 3 state diagrams, 1 occupancy, 2 prediction curves).
+    assert text.count("<svg ") == 11
+    assert "Try measuring before you reset." in text
+
+
+def test_cautions_are_always_there(tmp_path):
+    folder = tmp_path / "o"
+    folder.mkdir()
+    (folder / "patterns.csv").write_text("pattern,q_value\na > b,0.01\n")
+    text = render_report(folder).read_text(encoding="utf-8")
+    for phrase in ("not show that a way of working causes", "pilot them before they drive hints",
+                   "data-protection law", "ethics review", "--pseudonymize"):
+        assert phrase in text
+
+
+@pytest.mark.parametrize("keep", [("summary.json",), ("patterns.csv", "transitions.csv")])
+def test_missing_files_give_notes(tmp_path, keep):
+    names = sorted(set(OUTPUT_FILES.values()) - {"phases"})
+    folder = write_output_folder(tmp_path / "out", drop=[n for n in names if n not in keep])
+    text = render_report(folder).read_text(encoding="utf-8")
+    for name in names:
+        if name in keep:
+            assert f"({name} not found" not in text
+        elif name == "examples.json":
+            if "patterns.csv" in keep:
+                assert "example excerpts: examples.json not found" in text
+        elif name == "phases/phases.json":
+            continue  # optional: model files are then found by their names
+        else:
+            assert f"Not produced in this run ({name} not found" in text, name
+    # Sections are all there even when their files are not.
+    ids = [a.get("id") for _, a in _parse(text).tags]
+    assert all(sid in ids for sid in SECTION_IDS)
+
+
+def test_only_summary(tmp_path):
+    folder = tmp_path / "o"
+    folder.mkdir()
+    (folder / "summary.json").write_text(json.dumps({"groups": ["a", "b"]}))
+    text = render_report(folder).read_text(encoding="utf-8")
+    for name in ("patterns.csv", "transitions.csv", "early_prediction.csv", "detectors.json",
+                 "phases/ not found"):
+        assert f"Not produced in this run ({name}" in text
+
+
+def test_missing_columns_and_corrupt_files(tmp_path):
+    folder = tmp_path / "o"
+    folder.mkdir()
+    (folder / "patterns.csv").write_text("tokens,q\nx,1\n")
+    (folder / "transitions.csv").write_text("group,from\ns,a\n")
+    (folder / "early_prediction.csv").write_text("classifier,fraction\nc,0.5\n")
+    (folder / "detectors.json").write_text("{not json")
+    (folder / "summary.json").write_text("[1, 2]")
+    text = render_report(folder).read_text(encoding="utf-8")
+    assert "patterns.csv has no &#x27;pattern&#x27; column" in text
+    assert "transitions.csv lacks column(s) to, adjusted_residual" in text
+    assert "early_prediction.csv needs" in text
+    assert "detectors.json could not be read (JSONDecodeError)" in text
+    assert "summary.json does not hold a JSON object" in text
+
+
+def test_flat_summary_layout_is_read(tmp_path):
+    # Counts at the top level, group_names, pause edges as flat keys.
+    folder = tmp_path / "o"
+    folder.mkdir()
+    (folder / "summary.json").write_text(json.dumps({
+        "rows_in": 5, "rows_kept": 4, "rows_rejected": 1, "group_names": ["hi", "lo"],
+        "learners_per_group": {"hi": 2, "lo": 1}, "sequences_per_group": {"hi": 2, "lo": 1},
+        "rejects_by_reason": {"empty action": 1}, "pause_edges_seconds": [5.0, 30.0],
+        "pause_labels": ["short", "medium", "long"], "grouping": {"rule": "median",
+                                                                  "cut": 0.4}}))
+    text = render_report(folder).read_text(encoding="utf-8")
+    assert "Row accounting reconciles" in text
+    assert "empty action" in text
+    assert "30 s or more" in text and "pause:medium" in text
+    assert "rule: median" in text
+
+
+def test_no_significant_pattern(tmp_path):
+    folder = tmp_path / "o"
+    folder.mkdir()
+    pd.DataFrame({"pattern": ["a > b", "b"], "support_s": [0.5, 0.4], "support_w": [0.4, 0.4],
+                  "p_value": [0.2, 0.9], "q_value": [0.4, 0.9], "favours": ["", ""]}
+                 ).to_csv(folder / "patterns.csv", index=False)
+    text = render_report(folder).read_text(encoding="utf-8")
+    assert "No pattern reached q ≤ 0.05" in text
+    assert "None of the 2 patterns differs reliably" in text
+
+
+def test_top_pattern_order_and_limit(tmp_path):
+    folder = tmp_path / "o"
+    folder.mkdir()
+    q = [0.04, 0.001, 0.02, 0.5, 0.001]
+    pd.DataFrame({"pattern": ["p0", "p1", "p2", "p3", "p4"], "q_value": q, "p_value": q,
+                  "risk_difference": [0.1, 0.2, 0.1, 0.1, 0.4]}).to_csv(
+        folder / "patterns.csv", index=False)
+    text = render_report(folder, max_patterns=3).read_text(encoding="utf-8")
+    shown = re.findall(r'class="rank">\d+\.</span><span class="tok">(p\d)<', text)
+    # Smallest q first; ties broken by the larger absolute risk difference.
+    assert shown == ["p4", "p1", "p2"]
+
+
+def test_text_tokens_stay_text(tmp_path):
+    (tmp_path / "patterns.csv").write_text("pattern,q_value,favours\nNA > null,0.01,\n"
+                                           "None > nan,,\n")
+    df = _read_csv(tmp_path, "patterns.csv", numeric=("q_value",)).value
+    assert df["pattern"].tolist() == ["NA > null", "None > nan"]
+    assert df["favours"].tolist() == ["", ""]
+    assert df["q_value"].iloc[0] == 0.01 and np.isnan(df["q_value"].iloc[1])
+
+
+def test_examples_switch_and_excerpts(folder):
+    text = render_report(folder).read_text(encoding="utf-8")
+    assert "learner L007" in text and 'class="ev hit"' in text
+    assert "··· 42 s ···" in text and "+0:13" in text
+    text = render_report(folder, examples=False).read_text(encoding="utf-8")
+    assert "L007" not in text and "L012" not in text and 'class="ev' not in text
+    assert "Example excerpts were switched off" in text
+
+
+def test_byte_identical_and_path_independent(tmp_path):
+    a = render_report(write_output_folder(tmp_path / "a")).read_bytes()
+    b = render_report(write_output_folder(tmp_path / "b")).read_bytes()
+    again = render_report(tmp_path / "a").read_bytes()
+    assert a == b == again
+
+
+def test_self_contained_no_urls(folder):
+    text = render_report(folder).read_text(encoding="utf-8")
+    assert not re.search(r"https?://", text)
+    assert "<script" not in text.lower() and "<link" not in text.lower()
+    assert "@import" not in text and "url(" not in text.replace("url(#fig", "")
+    for tag, attrs in _parse(text).tags:
+        assert tag not in ("script", "img", "iframe", "object", "embed", "link", "base")
+        for k, v in attrs.items():
+            assert not k.startswith("on")
+            if k in ("href", "xlink:href", "src"):
+                assert v.startswith("#"), (tag, k, v)
+    assert "default-src 'none'" in text  # Content-Security-Policy forbids scripts/loads
+
+
+def test_hostile_strings_are_escaped(tmp_path):
+    folder = write_output_folder(tmp_path / "evil", hostile=True)
+    text = render_report(folder).read_text(encoding="utf-8")
+    low = text.lower()
+    assert "<script" not in low
+    assert "<img" not in low and "</svg></section>" not in low
+    for raw in HOSTILE.values():
+        if any(c in raw for c in "<>\"'&"):
+            assert raw not in text
+    assert "&lt;script&gt;document.title=&#x27;pwned&#x27;&lt;/script&gt;" in text
+    parsed = _parse(text)
+    assert parsed.title.startswith("seqmine report")
+    for tag, attrs in parsed.tags:
+        assert tag not in ("script", "img", "iframe", "object", "embed")
+        for k, v in attrs.items():
+            assert not k.startswith("on"), (tag, k)
+            assert not (v or "").strip().lower().startswith("javascript:"), (tag, k)
+    # Every section still renders, and the group name with markup stays text.
+    ids = [a.get("id") for _, a in parsed.tags]
+    for sid in SECTION_IDS:
+        assert sid in ids
+    assert "weak &lt;b&gt;bold&lt;/b&gt;" in text
+    # Mathtext is off: dollars are shown as typed inside the figures.
+    assert "$x^2$ &amp; $$ paint_pot" in text
+
+
+def test_svg_text_escaped_by_matplotlib():
+    svg = _plots.svg_support_bars(["<script>x</script> > a\"b", "$\\alpha$ & </svg>"],
+                                  {"g<1>": [0.5, 0.2]}, fig_id="t")
+    assert "<script" not in svg and "&lt;script&gt;" in svg
+    assert "$\\alpha$ &amp; &lt;/svg&gt;" in svg
+    assert "g&lt;1&gt;" in svg
+    assert svg.count("<svg") == 1 and svg.rstrip().endswith("</svg>")
+    assert 'id="t-' in svg and "http" not in svg
+
+
+def test_figure_ids_are_prefixed():
+    a = _plots.svg_boxes({"x": {"min": 0, "q1": 1, "median": 2, "q3": 3, "max": 4}},
+                         title="t", xlabel="x", fig_id="fig7")
+    ids = re.findall(r'\bid="([^"]*)"', a)
+    assert ids and all(i.startswith("fig7-") for i in ids)
+    refs = re.findall(r"url\(#([^)]*)\)", a)
+    assert all(r.startswith("fig7-") and r in ids for r in refs)
+
+
+def test_state_diagram_handles_one_state_and_bad_matrix():
+    svg = _plots.svg_state_diagram([{"name": "only", "emissions": [("a", 1.0)], "dwell": None}],
+                                   np.array([[1.0]]), title="one", fig_id="s")
+    assert "only" in svg
+    svg = _plots.svg_state_diagram([{"name": "a"}, {"name": "b"}], None, title="t", fig_id="s")
+    assert ">a<" in svg and ">b<" in svg
+
+
+def test_bad_folder_errors(tmp_path):
+    with pytest.raises(DataFileError, match="does not exist or is not a folder"):
+        render_report(tmp_path / "nope")
+    with pytest.raises(DataFileError, match="holds none of the files the report reads"):
+        render_report(tmp_path)
+
+
+def test_cli_report(folder, tmp_path, capsys):
+    (folder / REPORT_FILE).unlink(missing_ok=True)
+    assert main(["report", str(folder)]) == 0
+    assert "Report written to" in capsys.readouterr().out
+    assert (folder / REPORT_FILE).is_file()
+    assert main(["report", str(folder), "--no-examples", "-q"]) == 0
+    assert "L007" not in (folder / REPORT_FILE).read_text(encoding="utf-8")
+    assert capsys.readouterr().out == ""
+    assert main(["report", str(tmp_path / "missing")]) == 2
+    err = capsys.readouterr().err
+    assert "does not exist or is not a folder" in err and len(err.strip().splitlines()) == 1
+    assert main(["report", str(folder), "--max-patterns", "0"]) == 2
+    assert "--max-patterns must be" in capsys.readouterr().err
+
+
+def test_outputs_doc_lists_every_key_the_report_reads():
+    from pathlib import Path
+
+    from seqmine import report as rep
+
+    doc = (Path(__file__).resolve().parents[1] / "docs" / "outputs.md").read_text("utf-8")
+    tables = [rep.SUMMARY_KEYS, rep.REJECT_COLUMNS, rep.PATTERN_COLUMNS, rep.TRANSITION_COLUMNS,
+              rep.PHASE_MODEL_KEYS, rep.STATE_SELECTION_COLUMNS, rep.OCCUPANCY_COLUMNS,
+              rep.PREDICTION_COLUMNS, rep.DETECTOR_KEYS, rep.EXAMPLE_KEYS]
+    for table in tables:
+        for key in table:
+            last = re.split(r"\.|\[\]\.", key)[-1]
+            assert f"`{key}`" in doc or f"`{last}`" in doc, key
+    for name in rep.OUTPUT_FILES.values():
+        assert f"`{name}" in doc, name

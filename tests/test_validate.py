@@ -1,0 +1,276 @@
+"""Cross-validation of the whole pipeline: no leakage, determinism, early prediction."""
+
+import json
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from _validate_toys import (
+    MedianGrouping,
+    QuantileEncoder,
+    fisher_scorer,
+    ngram_match,
+    ngram_mine,
+    planted_data,
+)
+from seqmine.errors import ParameterError
+from seqmine.validate import (
+    CLASSIFIERS,
+    _FoldRunner,
+    default_featurizers,
+    learner_splits,
+    make_classifier,
+    validate,
+)
+
+TOY = dict(miner=ngram_mine, matcher=ngram_match, scorer=fisher_scorer, max_gap=0)
+
+
+def _feats(seed=0, **pattern):
+    return default_featurizers(seed=seed, pattern_params={**TOY, **pattern},
+                               hmm_params=dict(n_states=2, n_restarts=1, n_iter=10))
+
+
+def _run(ev, oc, **kw):
+    kw.setdefault("folds", 3)
+    kw.setdefault("fractions", [0.25, 0.5, 1.0])
+    kw.setdefault("n_bootstrap", 200)
+    feats = kw.pop("featurizers", None) or _feats(kw.get("seed", 0))
+    return validate(ev, oc, grouping=MedianGrouping(), encoder=QuantileEncoder(),
+                    featurizers=feats, **kw)
+
+
+@pytest.fixture(scope="module")
+def planted():
+    return planted_data(60, seed=1)
+
+
+@pytest.fixture(scope="module")
+def planted_result(planted):
+    return _run(*planted)
+
+
+def test_result_table_shape_and_columns(planted_result):
+    r = planted_result
+    t = r.to_frame()
+    assert len(t) == len(CLASSIFIERS) * 3
+    for col in ["classifier", "fraction", "accuracy", "accuracy_low", "accuracy_high",
+                "balanced_accuracy", "balanced_accuracy_low", "balanced_accuracy_high",
+                "recall_strong", "recall_weak", "roc_auc", "roc_auc_low", "roc_auc_high",
+                "baseline_accuracy", "n_learners", "beats_baseline"]:
+        assert col in t.columns
+    assert (t["n_learners"] == 60).all()
+    long = r.to_long()
+    assert set(long["metric"]) == {"accuracy", "balanced_accuracy", "roc_auc", "recall_strong",
+                                   "recall_weak"}
+    assert len(long) == len(t) * 5
+    # every learner held out exactly once
+    assert r.folds["learner"].is_unique and len(r.folds) == 60
+    p = r.predictions
+    assert len(p) == 60 * 3 * len(CLASSIFIERS)
+
+
+def test_ordering_signal_is_recognised_before_the_session_ends(planted_result):
+    # the planted data differ only in the order of three actions (frequencies match)
+    earliest = planted_result.earliest_fraction()
+    assert earliest["pattern"] < 1.0
+    t = planted_result.to_frame().set_index(["classifier", "fraction"])
+    assert t.loc[("pattern", 0.5), "accuracy"] > t.loc[("majority", 0.5), "accuracy"]
+    assert np.isnan(earliest.get("majority", np.nan))
+    sustained = planted_result.earliest_fraction(sustained=True)
+    both = earliest.notna() & sustained.notna()
+    assert (sustained[both] >= earliest[both]).all()
+    assert not (sustained.notna() & earliest.isna()).any()
+
+
+def test_earliest_fraction_rules():
+    from seqmine.validate import ValidationResult
+
+    m = pd.DataFrame({"classifier": ["a"] * 3 + ["majority"] * 3, "fraction": [0.2, 0.5, 1.0] * 2,
+                      "beats_baseline": [True, False, True, False, False, False]})
+    r = ValidationResult(metrics=m, predictions=None, folds=None, selected_patterns={},
+                         encodings={}, group_names=["strong", "weak"])
+    assert r.earliest_fraction().to_dict() == {"a": 0.2}
+    assert r.earliest_fraction(sustained=True).to_dict() == {"a": 1.0}
+
+
+def _real_miner():
+    mine = pytest.importorskip("seqmine.mine")
+    return dict(TOY, miner=mine.mine, matcher=mine.match)
+
+
+@pytest.mark.parametrize("steps", [lambda: TOY, _real_miner], ids=["brute-force", "miner"])
+def test_planted_pattern_in_held_out_learners_only_is_never_selected(steps):
+    ev, oc = planted_data(60, seed=2)
+    grouping = MedianGrouping().fit(oc)
+    lab = grouping.transform(oc)
+    learners = np.array(sorted(oc["learner"]))
+    split = learner_splits(learners, lab[learners].to_numpy(), folds=3, seed=0)
+    held0 = learners[split[0][1]]
+    target = [lr for lr in held0 if lab[lr] == "weak"]
+    # plant 'open_guide open_guide' at the end of the fold-0 held-out weak learners only
+    extra = []
+    for lr in target:
+        t_end = ev.loc[ev.learner == lr, "time"].max()
+        extra += [(lr, t_end + 1.0, "open_guide"), (lr, t_end + 2.0, "open_guide")]
+    ev2 = pd.concat([ev, pd.DataFrame(extra, columns=ev.columns)], ignore_index=True)
+    feats = default_featurizers(pattern_params={**steps(), "top_k": 500},
+                                hmm_params=dict(n_states=2, n_restarts=1, n_iter=10))
+    r = _run(ev2, oc, featurizers=feats, fractions=[1.0], n_bootstrap=10)
+    sel = {k: [p for p in v if "open_guide" in p] for k, v in r.selected_patterns.items()}
+    assert sel[0] == []
+    # the same pattern is selected where it is in the training data (the check can fail)
+    assert sel[1] and sel[2]
+    assert r.folds.set_index("learner").loc[target, "fold"].eq(0).all()
+
+
+def test_pause_edges_and_groups_come_from_training_learners_only():
+    ev, oc = planted_data(45, seed=3)
+    rng = np.random.default_rng(0)
+    oc = oc.assign(score=rng.permutation(np.linspace(0, 1, len(oc))))
+    r = _run(ev, oc, fractions=[1.0], n_bootstrap=10, classifiers=["frequency_pause"])
+    all_edges = QuantileEncoder().fit(ev).encoding_["pause"]["edges"]
+    n_differ = 0
+    for k, part in r.folds.groupby("fold"):
+        train = sorted(set(ev.learner) - set(part.learner))
+        edges = QuantileEncoder().fit(ev[ev.learner.isin(train)]).encoding_["pause"]["edges"]
+        assert r.encodings[k]["pause"]["edges"] == edges
+        assert edges != all_edges
+        g = MedianGrouping().fit(oc[oc.learner.isin(train)])
+        held = oc[oc.learner.isin(part.learner)]
+        expected = g.transform(held)
+        got = r.predictions[r.predictions.fold == k].drop_duplicates("learner")
+        assert got.set_index("learner")["group"].to_dict() == expected.to_dict()
+        full = MedianGrouping().fit(oc).transform(held)
+        n_differ += int((full != expected).sum())
+    # held-out labels follow the training threshold, which differs from the all-data one
+    assert n_differ > 0
+
+
+def test_parallel_folds_give_identical_results(planted, planted_result):
+    r2 = _run(*planted, n_jobs=2)
+    pd.testing.assert_frame_equal(planted_result.to_frame(), r2.to_frame())
+    pd.testing.assert_frame_equal(planted_result.predictions, r2.predictions)
+    assert planted_result.selected_patterns == r2.selected_patterns
+
+
+def test_same_seed_same_result_and_save(planted, planted_result, tmp_path):
+    r2 = _run(*planted)
+    pd.testing.assert_frame_equal(planted_result.to_frame(), r2.to_frame())
+    out = planted_result.save(tmp_path / "v")
+    t = pd.read_csv(out / "early_prediction.csv")
+    assert list(t.columns) == list(planted_result.to_frame().columns)
+    assert len(pd.read_csv(out / "early_prediction_long.csv")) == len(planted_result.to_long())
+    info = json.loads((out / "validation_folds.json").read_text())
+    assert len(info["folds"]) == 3 and info["settings"]["seed"] == 0
+    assert info["earliest_fraction"]["pattern"] == planted_result.earliest_fraction()["pattern"]
+    digest = json.loads(json.dumps(planted_result.summary()))
+    assert digest["accuracy"]["pattern"]["0.5"] == pytest.approx(
+        planted_result.to_frame().query("classifier == 'pattern' and fraction == 0.5")
+        ["accuracy"].item())
+    assert set(digest["baseline_accuracy"]) == {"0.25", "0.5", "1"}
+
+
+def test_pipeline_classifier_matches_the_fold_runner(planted):
+    # make_classifier's scikit-learn Pipeline and the shared-featurizer fold runner agree
+    ev, oc = planted
+    tr = sorted(oc.learner)[:40]
+    te = sorted(oc.learner)[40:]
+    runner = _FoldRunner(grouping=MedianGrouping(), encoder=QuantileEncoder(),
+                         featurizers=_feats(), classifiers=["fusion", "majority"],
+                         fractions=[1.0], C=1.0)
+    out = runner((0, ev[ev.learner.isin(tr)], ev[ev.learner.isin(te)],
+                  oc[oc.learner.isin(tr)], oc[oc.learner.isin(te)]))
+    g = MedianGrouping().fit(oc[oc.learner.isin(tr)])
+    enc = QuantileEncoder().fit(ev[ev.learner.isin(tr)])
+    db_tr, db_te = enc.transform(ev[ev.learner.isin(tr)]), enc.transform(ev[ev.learner.isin(te)])
+    y_tr = g.transform(oc[oc.learner.isin(tr)])[db_tr.learners].to_numpy()
+    pipe = make_classifier("fusion", featurizers=_feats()).fit(db_tr, y_tr)
+    got = out["predictions"].query("classifier == 'fusion'").set_index("learner")
+    proba = pipe.predict_proba(db_te)
+    np.testing.assert_allclose(got.loc[db_te.learners, "proba_weak"].to_numpy(), proba[:, 1],
+                               rtol=1e-9, atol=1e-12)
+
+
+def test_fold_runner_rejects_a_training_fold_with_one_group(planted):
+    ev, oc = planted
+    strong = oc[oc.score > 0.5]
+    runner = _FoldRunner(grouping=_AllStrong(), encoder=QuantileEncoder(), featurizers=_feats(),
+                         classifiers=["pattern", "majority"], fractions=[1.0], C=1.0)
+    with pytest.raises(ParameterError, match=r"Fold 2: the training learners hold only "
+                                             r"group\(s\) 'strong'"):
+        runner((2, ev[ev.learner.isin(strong.learner)], ev, strong, oc))
+
+
+class _AllStrong(MedianGrouping):
+    def transform(self, outcomes):
+        return pd.Series("strong", index=outcomes["learner"].astype(str).to_numpy())
+
+
+@pytest.mark.parametrize("kw, msg", [
+    ({"fractions": [0.5, 1.5]}, r"Cut fraction 1\.5 is outside \(0, 1\]"),
+    ({"fractions": [0]}, r"Cut fraction 0 is outside \(0, 1\]"),
+    ({"fractions": []}, r"fractions is empty"),
+    ({"folds": 61}, r"There are 60 learners but 61 folds"),
+    ({"classifiers": ["svm"]}, r"Unknown classifier 'svm'"),
+    ({"n_jobs": 0}, r"'n_jobs' parameter of validate"),
+])
+def test_validate_bad_input(planted, kw, msg):
+    with pytest.raises(ParameterError, match=msg):
+        _run(*planted, **kw)
+
+
+def test_validate_group_smaller_than_folds(planted):
+    ev, oc = planted
+    oc = oc.copy()
+    # two learners far above everyone: median split still gives two groups, so use
+    # a threshold grouping where 'strong' is rare
+    with pytest.raises(ParameterError, match=r"Group 'strong' has 2 learners, fewer than the "
+                                             r"3 folds, so some fold would hold one group only"):
+        validate(ev, oc, grouping=_TopTwo(), encoder=QuantileEncoder(), featurizers=_feats(),
+                 folds=3)
+
+
+class _TopTwo(MedianGrouping):
+    def fit(self, outcomes):
+        super().fit(outcomes)
+        self.threshold_ = float(np.sort(outcomes["score"])[-3])
+        return self
+
+
+@pytest.mark.slow
+def test_null_data_no_classifier_beats_the_baseline_beyond_chance():
+    # Labels shuffled -> every true rejection rate is at most alpha = 0.05 (one-sided
+    # exact McNemar). Tolerance (stated before looking): over 4 seeds x 4 classifiers x
+    # 2 fractions = 32 tests, at most 10 % (3) may reject, i.e. twice the nominal rate;
+    # and no classifier's mean accuracy over seeds exceeds the baseline's by > 0.1.
+    rejections, gaps = 0, []
+    for seed in range(4):
+        ev, oc = planted_data(36, seed=100 + seed)
+        rng = np.random.default_rng(seed)
+        oc = oc.assign(score=rng.permutation(oc["score"].to_numpy()))
+        r = _run(ev, oc, seed=seed, fractions=[0.5, 1.0], n_bootstrap=50)
+        t = r.to_frame()
+        models = t[t.classifier != "majority"]
+        rejections += int(models["beats_baseline"].sum())
+        gaps.append(models.groupby("classifier")["accuracy"].mean()
+                    - models.groupby("classifier")["baseline_accuracy"].mean())
+    assert rejections <= 3
+    assert (pd.concat(gaps, axis=1).mean(axis=1) < 0.1).all()
+
+
+def test_folds_on_a_local_dask_cluster_give_identical_results():
+    # real (importable) stages only, since the folds run in other processes
+    pytest.importorskip("distributed")
+    from seqmine.encode import Encoder
+    from seqmine.outcomes import Grouping
+
+    ev, oc = planted_data(30, seed=4)
+    kw = dict(folds=3, fractions=[0.5, 1.0], n_bootstrap=50, grouping=Grouping(),
+              encoder=Encoder(), classifiers=["frequency_pause"],
+              featurizers={"frequency_pause": default_featurizers()["frequency_pause"]})
+    serial = validate(ev, oc, **kw)
+    on_dask = validate(ev, oc, n_jobs=2, scheduler="local", **kw)
+    pd.testing.assert_frame_equal(serial.to_frame(), on_dask.to_frame())
+    pd.testing.assert_frame_equal(serial.predictions, on_dask.predictions)

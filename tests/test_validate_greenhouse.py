@@ -1,0 +1,138 @@
+"""Validation with the real stages on greenhouse demo data, and the command line."""
+
+import re
+
+import numpy as np
+import pandas as pd
+import pytest
+
+pytest.importorskip("seqmine.mine")
+pytest.importorskip("seqmine.contrast")
+
+from seqmine.cli import main  # noqa: E402
+from seqmine.demo_data import generate_greenhouse, write_greenhouse  # noqa: E402
+from seqmine.encode import Encoder  # noqa: E402
+from seqmine.load import parse_times  # noqa: E402
+from seqmine.outcomes import Grouping, normalized_gain  # noqa: E402
+from seqmine.validate import default_featurizers, validate  # noqa: E402
+
+FAST_HMM = dict(n_states=2, n_restarts=1, n_iter=20)
+
+
+@pytest.fixture(autouse=True)
+def _restore_quiet():
+    # the command line's --quiet switches progress output off process-wide
+    from seqmine._progress import is_quiet, set_quiet
+    before = is_quiet()
+    yield
+    set_quiet(before)
+
+
+def _greenhouse(n, seed):
+    d = generate_greenhouse(n, seed=seed)
+    ev = d.events.assign(time=parse_times(d.events["time"])[0])
+    oc = d.outcomes.assign(gain=normalized_gain(d.outcomes["pre"], d.outcomes["post"],
+                                                d.outcomes["max"]))
+    return ev, oc
+
+
+@pytest.fixture(scope="module")
+def greenhouse_data():
+    return _greenhouse(90, seed=7)
+
+
+@pytest.fixture(scope="module")
+def greenhouse_result(greenhouse_data):
+    ev, oc = greenhouse_data
+    return validate(ev, oc, folds=3, fractions=[0.25, 0.5, 1.0], n_bootstrap=300,
+                    grouping=Grouping(), encoder=Encoder(),
+                    featurizers=default_featurizers(seed=0, hmm_params=FAST_HMM))
+
+
+def test_pattern_classifier_beats_majority_before_the_session_ends(greenhouse_result):
+    earliest = greenhouse_result.earliest_fraction()
+    assert earliest["pattern"] < 1.0
+    t = greenhouse_result.to_frame().set_index(["classifier", "fraction"])
+    assert t.loc[("pattern", 0.5), "accuracy_low"] > 0.5
+
+
+def test_selected_patterns_include_planted_behaviours(greenhouse_result):
+    # the generator's key patterns (ground truth) should be among the selections
+    selected = set().union(*greenhouse_result.selected_patterns.values())
+    planted = {"set_temperature > advance_week > reset", "paint_pot > paint_pot > paint_pot",
+               "advance_week > measure_height > pause:long"}
+    assert selected & planted
+
+
+def test_pause_edges_are_learned_on_training_events_only(greenhouse_data, greenhouse_result):
+    ev, _ = greenhouse_data
+    r = greenhouse_result
+    all_edges = Encoder().fit(ev).encoding_["pause"]["edges"]
+    differ = 0
+    for k, part in r.folds.groupby("fold"):
+        train = ev[~ev["learner"].isin(set(part["learner"]))]
+        edges = Encoder().fit(train).encoding_["pause"]["edges"]
+        assert r.encodings[k]["pause"]["edges"] == edges
+        differ += edges != all_edges
+    assert differ > 0
+
+
+@pytest.fixture(scope="module")
+def small_files(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("gh")
+    return write_greenhouse(folder, 30, seed=3)
+
+
+def _cli(paths, out, *extra):
+    return main(["validate", str(paths["events"]), "--outcomes", str(paths["outcomes"]),
+                 "--out", str(out), "--quiet", "--folds", "3", "--fractions", "0.5,1",
+                 "--bootstrap", "50", "--hmm-states", "2", *extra])
+
+
+def test_cli_writes_the_tables_and_parallel_equals_serial(small_files, tmp_path):
+    assert _cli(small_files, tmp_path / "a") == 0
+    assert _cli(small_files, tmp_path / "b", "--jobs", "2") == 0
+    a = (tmp_path / "a" / "early_prediction.csv").read_bytes()
+    assert a == (tmp_path / "b" / "early_prediction.csv").read_bytes()
+    t = pd.read_csv(tmp_path / "a" / "early_prediction.csv")
+    assert set(t["classifier"]) == {"pattern", "hmm", "frequency_pause", "fusion", "majority"}
+    assert sorted(set(t["fraction"])) == [0.5, 1.0]
+    assert (t["n_learners"] == 30).all()
+    for name in ["early_prediction_long.csv", "validation_predictions.csv",
+                 "validation_folds.json"]:
+        assert (tmp_path / "a" / name).is_file()
+
+
+@pytest.mark.parametrize("extra, msg", [
+    (("--fractions", "0.5,1.2"), r"Cut fraction 1\.2 is outside \(0, 1\]"),
+    (("--fractions", "a,b"), r"--fractions takes comma-separated numbers"),
+    (("--folds", "40"), r"There are 30 learners but 40 folds"),
+    (("--classifiers", "pattern,svm"), r"--classifiers: unknown name 'svm'"),
+])
+def test_cli_bad_options_exit_2_with_one_line(small_files, tmp_path, capsys, extra, msg):
+    code = _cli(small_files, tmp_path / "x", *extra)
+    err = capsys.readouterr().err
+    assert code == 2
+    assert err.count("\n") == 1 and "Traceback" not in err
+    assert re.search(msg, err), err
+
+
+def test_cli_folds_and_loo_are_exclusive(small_files, tmp_path, capsys):
+    assert _cli(small_files, tmp_path / "x", "--loo") == 2
+    assert "not allowed with argument" in capsys.readouterr().err
+
+
+def test_hmm_featurizer_uses_the_phase_models_when_available():
+    phases = pytest.importorskip("seqmine.phases")
+    from seqmine.features import HMMLikelihoodFeaturizer
+    ev, oc = _greenhouse(30, seed=2)
+    g = Grouping().fit(oc)
+    enc = Encoder().fit(ev)
+    labels = pd.Series(g.transform(oc).to_numpy(), index=oc["learner"])
+    db = enc.transform(ev, groups=labels.to_dict(), group_names=g.group_names_)
+    f = HMMLikelihoodFeaturizer(n_states=2, n_restarts=1, n_iter=10).fit(db, None)
+    assert f.backend_ == "phases"
+    assert isinstance(f.models_, phases.GroupHMMClassifier)
+    ll = f.models_.log_likelihoods(db)
+    np.testing.assert_allclose(f.transform(db)[:, 0],
+                               (ll[:, 1] - ll[:, 0]) / np.maximum(db.lengths, 1))
