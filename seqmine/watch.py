@@ -447,6 +447,8 @@ class Watcher:
         self._det_dir = [d["direction"] for d in dets]
         self._det_priority = [int(d.get("priority", 1)) for d in dets]
         self._det_hint = [d.get("hint", "") for d in dets]
+        self._det_hintable = [d["direction"] == "discourage" or self.hint_on_encourage
+                              for d in dets]
         self._det_effect = []
         for d in dets:
             v = ((d.get("evidence") or {}).get("effects") or {}).get(eff_name)
@@ -571,42 +573,57 @@ class Watcher:
                 fired.append((k, None))
 
     def _deliver(self, st, learner, t, fired):
-        """Build Firing objects; rank them and apply the learner's cool-down."""
+        """Build Firing objects; rank the hint candidates and apply the cool-down.
+
+        Only the best-ranked candidate of an event can be delivered (unless the
+        cool-down is 0, when all are); while the learner is cooling down all
+        candidates are suppressed, so ranking is only needed outside the cool-down.
+        """
         out = []
+        cands = []
         counts = st.counts
         label = st.label
+        ids, dirs, prios, hints = self._det_ids, self._det_dir, self._det_priority, self._det_hint
+        hintable = self._det_hintable
         for d, times in fired:
             if times is None:
-                kind, occ, times = "absence", 0, ()
+                f = Firing(learner, ids[d], "absence", t, (), label, 0, dirs[d], prios[d],
+                           hints[d], False, None, d)
+                cands.append(f)
             else:
-                kind = "occurrence"
                 occ = counts.get(d, 0) + 1
                 counts[d] = occ
-            out.append(Firing(learner, self._det_ids[d], kind, t, times, label, occ,
-                              self._det_dir[d], self._det_priority[d], self._det_hint[d],
-                              False, None, d))
+                if hintable[d]:
+                    f = Firing(learner, ids[d], "occurrence", t, times, label, occ, dirs[d],
+                               prios[d], hints[d], False, None, d)
+                    cands.append(f)
+                else:
+                    f = Firing(learner, ids[d], "occurrence", t, times, label, occ, dirs[d],
+                               prios[d], hints[d], True, "no_hint", d)
+            out.append(f)
         self.stats["firings"] += len(out)
-        candidates = []
-        for f in out:
-            if f.kind == "occurrence" and f.direction == "encourage" and not self.hint_on_encourage:
-                f.suppressed, f.reason = True, "no_hint"
-            else:
-                candidates.append(f)
-        if len(candidates) > 1:
+        if not cands:
+            return out
+        cooldown = self.cooldown_seconds
+        if st.last_hint is not None and t - st.last_hint < cooldown:
+            for f in cands:
+                f.suppressed = True
+                f.reason = "cooldown"
+            return out
+        if cooldown > 0 and len(cands) > 1:
+            effect = self._det_effect
             hint_times = st.hint_times
-            candidates.sort(key=lambda f: (f.priority, -self._det_effect[f._index],
-                                           hint_times.get(f._index, _NEG_INF), f._index))
-        delivered_now = False
-        for f in candidates:
-            if st.last_hint is not None and t - st.last_hint < self.cooldown_seconds:
-                f.suppressed, f.reason = True, ("outranked" if delivered_now else "cooldown")
-            elif delivered_now and self.cooldown_seconds > 0:
-                f.suppressed, f.reason = True, "outranked"
-            else:
-                st.last_hint = t
-                st.hint_times[f._index] = t
-                delivered_now = True
-                self.stats["hints"] += 1
+            best = min(cands, key=lambda f: (f.priority, -effect[f._index],
+                                             hint_times.get(f._index, _NEG_INF), f._index))
+            for f in cands:
+                if f is not best:
+                    f.suppressed = True
+                    f.reason = "outranked"
+            cands = (best,)
+        for f in cands:
+            st.last_hint = t
+            st.hint_times[f._index] = t
+        self.stats["hints"] += len(cands)
         return out
 
     def _expire(self, now, keep):
