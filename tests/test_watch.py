@@ -306,3 +306,20 @@ def test_cli_watch_exit_2_only_for_unusable_detectors(tmp_path, capsys):
     assert "events file not found" in capsys.readouterr().err
     assert main(["watch", det, str(events), "--idle-timeout", "soon"]) == 2
     assert "--idle-timeout takes seconds or 'none'" in capsys.readouterr().err
+
+
+def test_cli_watch_pseudonymizes_learners(tmp_path, capsys):
+    from seqmine.privacy import pseudonymize
+
+    det = _write_doc(tmp_path)
+    key = tmp_path / "key.txt"
+    key.write_text("0123456789abcdef0123", encoding="utf-8")
+    events = tmp_path / "e.jsonl"
+    events.write_text("\n".join(json.dumps(e) for e in [
+        ev(" ana ", 0, "reset"), ev("ana", 5, "set_light"), ev("ana", 3, "reset")]) + "\n",
+        encoding="utf-8")
+    assert main(["watch", det, str(events), "--pseudonymize", str(key), "--tolerance", "0"]) == 0
+    cap = capsys.readouterr()
+    expected = pseudonymize(["ana"], b"0123456789abcdef0123")[0]
+    assert [json.loads(x)["learner"] for x in cap.out.splitlines()] == [expected]
+    assert "ana" not in cap.out and "ana" not in cap.err and expected in cap.err

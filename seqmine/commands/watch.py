@@ -52,6 +52,9 @@ def add_arguments(parser):
                         help="process exact duplicate events instead of rejecting them")
     parser.add_argument("--times", choices=("auto", "seconds", "iso"), default="auto",
                         help="time format of the output (default: as the input)")
+    parser.add_argument("--pseudonymize", metavar="KEY_FILE", default=None,
+                        help="replace learner identifiers by keyed-hash pseudonyms (the same "
+                             "key as 'seqmine analyze --pseudonymize' gives the same pseudonyms)")
     parser.add_argument("--summary", action="store_true",
                         help="print counters (events, rejected, firings, hints) to standard "
                              "error at the end")
@@ -66,6 +69,7 @@ def run(args):
                       out_of_order_tolerance=args.tolerance,
                       hint_on_encourage=args.encourage_hints,
                       reject_duplicates=not args.keep_duplicates)
+    pseudo = _pseudonymizer(args.pseudonymize) if args.pseudonymize else None
     err = sys.stderr
     out = sys.stdout
     for note in watcher.notes:
@@ -92,6 +96,8 @@ def run(args):
                 watcher.stats["events"] += 1
                 watcher.stats["rejected"] += 1
                 continue
+            if pseudo is not None and isinstance(event, dict) and "learner" in event:
+                event["learner"] = pseudo(event["learner"])
             try:
                 firings = watcher.process(event)
             except EventError as exc:
@@ -122,6 +128,28 @@ def _write(out, firings, watcher, times, hints_only):
         if hints_only and f.suppressed:
             continue
         out.write(json.dumps(f.to_dict(iso_times=iso), ensure_ascii=False) + "\n")
+
+
+def _pseudonymizer(key_file):
+    """learner -> pseudonym, cached; non-string or empty learners pass through unchanged."""
+    from ..privacy import pseudonymize, read_key
+
+    key = read_key(key_file)
+    cache = {}
+
+    def pseudo(learner):
+        if isinstance(learner, bool) or not isinstance(learner, (str, int, float)):
+            return learner
+        text = str(learner).strip()
+        if not text:
+            return learner
+        p = cache.get(text)
+        if p is None:
+            if len(cache) > 1_000_000:
+                cache.clear()
+            p = cache[text] = str(pseudonymize([text], key)[0])
+        return p
+    return pseudo
 
 
 def _idle(text):
