@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import os
 import sys
 from pathlib import Path
 
@@ -24,8 +25,8 @@ DESCRIPTION = (
     "'suppressed' marks hints held back by the cool-down or outranked by another firing "
     "of the same event. A bad event (malformed JSON, missing field, bad time, out of "
     "order beyond the tolerance, duplicate) gets one error line on standard error and "
-    "is skipped; processing continues. Exit status 2 only when the detectors file is "
-    "unusable."
+    "is skipped; processing continues. Exit status 2 only for an unusable detectors file, a missing events file "
+    "or a bad option."
 )
 
 
@@ -85,41 +86,52 @@ def run(args):
         name, interactive = str(path), False
     hints_only = args.hints_only
     try:
-        for lineno, line in enumerate(stream, 1):
-            if not line.strip():
-                continue
-            try:
-                event = json.loads(line)
-            except json.JSONDecodeError as exc:
-                print(f"seqmine watch: {name}:{lineno}: malformed JSON ({exc.msg} at column "
-                      f"{exc.colno}); event skipped", file=err)
-                watcher.stats["events"] += 1
-                watcher.stats["rejected"] += 1
-                continue
-            if pseudo is not None and isinstance(event, dict) and "learner" in event:
-                event["learner"] = pseudo(event["learner"])
-            try:
-                firings = watcher.process(event)
-            except EventError as exc:
-                print(f"seqmine watch: {name}:{lineno}: {exc}; event skipped", file=err)
-                continue
-            if watcher.notes:
-                for note in watcher.notes:
-                    print(f"seqmine watch: {name}:{lineno}: note: {note}", file=err)
-                watcher.notes.clear()
-            if firings:
-                _write(out, firings, watcher, args.times, hints_only)
-                if interactive:
-                    out.flush()
-        watcher.flush()
+        _loop(stream, name, interactive, watcher, out, err, args, hints_only, pseudo)
+    except BrokenPipeError:  # the reader went away (e.g. '| head'): stop quietly
+        try:
+            sys.stdout = open(os.devnull, "w")  # noqa: SIM115 - avoid a second error at exit
+        except OSError:  # pragma: no cover
+            pass
+        return 0
     finally:
         if stream is not sys.stdin:
             stream.close()
-    out.flush()
     if args.summary:
         s = watcher.stats
         print("seqmine watch: summary: " + ", ".join(f"{k}={v}" for k, v in s.items()), file=err)
     return 0
+
+
+def _loop(stream, name, interactive, watcher, out, err, args, hints_only, pseudo):
+    """Read, process and write every line; bad events get one line on ``err``."""
+    for lineno, line in enumerate(stream, 1):
+        if not line.strip():
+            continue
+        try:
+            event = json.loads(line)
+        except json.JSONDecodeError as exc:
+            print(f"seqmine watch: {name}:{lineno}: malformed JSON ({exc.msg} at column "
+                  f"{exc.colno}); event skipped", file=err)
+            watcher.stats["events"] += 1
+            watcher.stats["rejected"] += 1
+            continue
+        if pseudo is not None and isinstance(event, dict) and "learner" in event:
+            event["learner"] = pseudo(event["learner"])
+        try:
+            firings = watcher.process(event)
+        except EventError as exc:
+            print(f"seqmine watch: {name}:{lineno}: {exc}; event skipped", file=err)
+            continue
+        if watcher.notes:
+            for note in watcher.notes:
+                print(f"seqmine watch: {name}:{lineno}: note: {note}", file=err)
+            watcher.notes.clear()
+        if firings:
+            _write(out, firings, watcher, args.times, hints_only)
+            if interactive:
+                out.flush()
+    watcher.flush()
+    out.flush()
 
 
 def _write(out, firings, watcher, times, hints_only):
