@@ -14,6 +14,17 @@ event, or an encourage pattern that was just shown) carry ``suppressed=True`` an
 reason. Encourage detectors can also fire on *absence*: the pattern has not been shown
 after a number of events or seconds of a sequence.
 
+Exactness
+---------
+Per-learner occurrence counts equal the offline instance counts when (1) each
+learner's events arrive in time order (ties in file order), (2) no learner's state
+expires inside a sequence (``idle_timeout=None`` or longer than any gap inside a
+sequence), and (3) pauses are not binned per learner (``learner_quantile`` needs the
+whole sequence; the watcher then uses the global edges and says so in ``notes``).
+The watcher rejects the rows the loader rejects (empty or non-text fields, control
+characters, over-long actions, bad or out-of-range times, a time form other than the
+stream's, exact duplicates), so the same events reach both.
+
 How it works
 ------------
 All detectors share one prefix tree (trie) over their tokens; tokens index the trie
