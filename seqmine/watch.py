@@ -596,30 +596,27 @@ class Watcher:
         label = st.label
         ids, dirs, prios, hints = self._det_ids, self._det_dir, self._det_priority, self._det_hint
         hintable = self._det_hintable
+        cooldown = self.cooldown_seconds
+        cooling = st.last_hint is not None and t - st.last_hint < cooldown
+        held = (True, "cooldown") if cooling else (False, None)
         for d, times in fired:
             if times is None:
                 f = Firing(learner, ids[d], "absence", t, (), label, 0, dirs[d], prios[d],
-                           hints[d], False, None, d)
+                           hints[d], held[0], held[1], d)
                 cands.append(f)
             else:
                 occ = counts.get(d, 0) + 1
                 counts[d] = occ
                 if hintable[d]:
                     f = Firing(learner, ids[d], "occurrence", t, times, label, occ, dirs[d],
-                               prios[d], hints[d], False, None, d)
+                               prios[d], hints[d], held[0], held[1], d)
                     cands.append(f)
                 else:
                     f = Firing(learner, ids[d], "occurrence", t, times, label, occ, dirs[d],
                                prios[d], hints[d], True, "no_hint", d)
             out.append(f)
         self.stats["firings"] += len(out)
-        if not cands:
-            return out
-        cooldown = self.cooldown_seconds
-        if st.last_hint is not None and t - st.last_hint < cooldown:
-            for f in cands:
-                f.suppressed = True
-                f.reason = "cooldown"
+        if cooling or not cands:
             return out
         if cooldown > 0 and len(cands) > 1:
             effect = self._det_effect
