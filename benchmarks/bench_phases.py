@@ -7,7 +7,8 @@ Run from the repository root::
 
 Writes ``benchmarks/results/phases.json``. Data are sampled from invented greenhouse
 HMMs (two outcome groups with different transition structure), so every figure is
-reproducible with the seed.
+reproducible with the seed. Timings are wall-clock on whatever else the machine is
+running; the load average at start and end is recorded beside them.
 """
 
 from __future__ import annotations
@@ -81,7 +82,8 @@ def main(argv=None):
     args = ap.parse_args(argv)
     set_quiet(True)
     results = {"python": platform.python_version(), "machine": platform.machine(),
-               "cpu_count": os.cpu_count(), "quick": args.quick, "runs": {}}
+               "cpu_count": os.cpu_count(), "quick": args.quick,
+               "load_average_at_start": list(os.getloadavg()), "runs": {}}
     runs = results["runs"]
 
     # ---- demo-like: a few hundred learners, ~100 tokens each
@@ -146,6 +148,7 @@ def main(argv=None):
     print(f"  classifier fit {t:.1f} s; predict on first 30% of {big.n_sequences} sequences "
           f"{tp * 1000:.0f} ms, accuracy {acc:.3f}")
 
+    results["load_average_at_end"] = list(os.getloadavg())
     out = Path(args.out)
     out.parent.mkdir(parents=True, exist_ok=True)
     out.write_text(json.dumps(results, indent=1, sort_keys=True), encoding="utf-8")

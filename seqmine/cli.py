@@ -88,6 +88,12 @@ def main(argv=None):
             raise
         print(f"seqmine: error: {_one_line(exc)}", file=sys.stderr)
         return 2
+    except BrokenPipeError:
+        # the reader went away (e.g. 'seqmine watch ... | head'): stop quietly
+        import os
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 0
     except KeyboardInterrupt:
         print("seqmine: interrupted", file=sys.stderr)
         return 130

@@ -56,7 +56,7 @@ DEFAULT_CONFIG = {
                "max_iter": 100},
     "validate": {"enabled": True, "folds": 5,
                  "fractions": [0.1, 0.25, 0.5, 0.75, 1.0], "bootstrap": 500,
-                 "top_patterns": 30},
+                 "top_patterns": 30, "hmm": {}},
     "detectors": {"max_q": 0.05, "min_stability": 0.5, "max_detectors": 20},
     "report": {"examples": True, "top_patterns": 15},
     "privacy": {"pseudonymize_key": None},

@@ -27,6 +27,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+from sklearn.base import BaseEstimator
 
 from ._validation import check_choice, check_int, check_number
 from .errors import DataFileError, NotFittedError, ParameterError
@@ -95,7 +96,7 @@ def load_mapping(path):
     return dict(zip(actions, symbols))
 
 
-class Encoder:
+class Encoder(BaseEstimator):
     """Turn an event table into a :class:`SequenceDB` with pause tokens.
 
     Parameters

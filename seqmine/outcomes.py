@@ -18,6 +18,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+from sklearn.base import BaseEstimator
 
 from ._validation import check_choice, check_columns, check_fraction
 from .errors import DataFileError, ParameterError
@@ -195,7 +196,7 @@ def _numeric(series, name, path, rows):
     return vals
 
 
-class Grouping:
+class Grouping(BaseEstimator):
     """Form outcome groups from gains, scores or labels.
 
     Parameters

@@ -189,12 +189,11 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     from .config import default_config
     from .encode import Encoder, load_mapping
     from .contrast import contrast
-    from .examples import pattern_examples
     from .load import load_events
     from .mine import mine, save_patternset
     from .outcomes import load_outcomes
     from .privacy import pseudonymize_frame, read_key
-    from .report import render_report
+    from .report import render_report, write_examples
     from .transitions import transitions
 
     if quiet:
@@ -301,15 +300,51 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
             files.append(out / "phases")
             summary["phases"] = {"n_states": int(phases.n_states)}
 
-    # 5. examples and report
+    # 5. early prediction: the whole discovery pipeline re-run inside learner folds
+    va_cfg = cfg["validate"]
+    if va_cfg["enabled"]:
+        from sklearn.base import clone
+
+        from .validate import default_featurizers, validate
+        pattern_params = {k: mine_cfg[k] for k in (
+            "min_support", "min_length", "max_length", "max_gap", "max_window", "skip_pauses",
+            "start_with_action", "end_with_action", "max_patterns")}
+        pattern_params.update(correction="bh" if con_cfg["correction"] == "westfall-young"
+                              else con_cfg["correction"], alpha=alpha,
+                              top_k=int(va_cfg["top_patterns"]))
+        with stages("early prediction"):
+            feats = default_featurizers(seed=seed, pattern_params=pattern_params,
+                                        hmm_params=dict(va_cfg.get("hmm") or {}))
+            validation = validate(
+                prepared.events, prepared.outcomes, folds=int(va_cfg["folds"]),
+                fractions=va_cfg["fractions"], grouping=clone(grouping),
+                encoder=clone(encoder), featurizers=feats, n_bootstrap=int(va_cfg["bootstrap"]),
+                alpha=alpha, seed=seed, n_jobs=jobs)
+            validation.metrics.to_csv(out / "early_prediction.csv", index=False,
+                                      lineterminator="\n", float_format="%.10g")
+            files.append(out / "early_prediction.csv")
+            digest = validation.summary()
+            summary["early_prediction"] = {k: digest[k] for k in (
+                "earliest_fraction", "earliest_fraction_sustained") if k in digest}
+
+    # 6. detectors
+    de_cfg = cfg["detectors"]
+    with stages("detectors"):
+        from .detect import export_detectors, save_detectors
+        doc = export_detectors(table, db, patternset.constraints, max_q=float(de_cfg["max_q"]),
+                               min_stability=float(de_cfg["min_stability"]),
+                               max_detectors=int(de_cfg["max_detectors"]))
+        save_detectors(doc, out / "detectors.json")
+        files.append(out / "detectors.json")
+        summary["detectors"] = len(doc.get("detectors", []))
+
+    # 7. examples and report
     if cfg["report"]["examples"]:
-        top = significant[significant["redundant_of"].fillna("") == ""] \
-            if "redundant_of" in significant else significant
-        top = top.head(int(cfg["report"]["top_patterns"]))
-        ex = pattern_examples(db, patternset, top["pattern"].tolist(),
-                              favours=dict(zip(top["pattern"], top["favours"])), seed=seed)
-        _write_json(out / "examples.json", ex)
-        files.append(out / "examples.json")
+        c = patternset.constraints
+        files.append(write_examples(
+            out, db, table, max_patterns=int(cfg["report"]["top_patterns"]), alpha=alpha,
+            max_gap=c.get("max_gap"), max_window=c.get("max_window"),
+            skip_pauses=bool(c.get("skip_pauses", False)), seed=seed))
     summary["seed"] = seed
     summary["configuration"] = cfg
     summary["versions"] = _versions()

@@ -101,3 +101,17 @@ def test_classifier_errors():
     other = SequenceDB.from_lists([["x", "y"]])
     with pytest.raises(ParameterError, match="vocabulary differs"):
         clf.predict(other)
+
+
+def test_state_count_chosen_per_group_by_bic():
+    db = _db(n=15, length=40)
+    clf = GroupHMMClassifier(n_states="1-3", n_restarts=2, seed=0).fit(db)
+    assert clf.n_states_ == [m.n_states for m in clf.models_]
+    for k, m in enumerate(clf.models_):
+        # the chosen model has the lowest BIC of the counts tried on its group's data
+        sub = db.subset(np.flatnonzero(db.groups == k))
+        bics = []
+        for n in (1, 2, 3):
+            single = GroupHMMClassifier(n_states=n, n_restarts=2, seed=0).fit(db).models_[k]
+            bics.append(single.bic(sub))
+        assert m.n_states == 1 + int(np.argmin(bics))

@@ -59,3 +59,14 @@ def test_cli_user_errors(tmp_path, capsys):
     assert len(err.strip().splitlines()) == 1
     rc = main(["phases", str(tmp_path / "db"), "--out", str(tmp_path / "o"), "--states", "a"])
     assert rc == 2 and "must look like" in capsys.readouterr().err
+
+
+def test_cli_hints_at_top_of_range(tmp_path, capsys):
+    _write_db(tmp_path / "db")
+    rc = main(["phases", str(tmp_path / "db"), "--out", str(tmp_path / "out"), "--states", "1-2",
+               "--restarts", "1", "--folds", "0", "--permutations", "0"])
+    assert rc == 0
+    summary = json.loads((tmp_path / "out" / "phases" / "phases.json").read_text())
+    err = capsys.readouterr().err
+    assert summary["n_states_at_top_of_range"] == (summary["n_states"] == 2)
+    assert ("consider a wider --states range" in err) == (summary["n_states"] == 2)

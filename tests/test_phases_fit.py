@@ -311,6 +311,7 @@ def test_state_range_larger_than_data():
     ({"criterion": "heldout", "n_folds": 0}, r"criterion='heldout' needs n_folds >= 2"),
     ({"min_length": 1}, r"'min_length' parameter of fit_phases must be an int >= 2"),
     ({"n_folds": 20}, r"needs at least 20 learners .* has 10"),
+    ({"n_jobs": 0}, r"'n_jobs' parameter of fit_phases must be a positive int or -1"),
     ({"groups": ["middle"]}, r"Group 'middle' is not in the data \(groups: strong, weak\)"),
 ])
 def test_bad_parameters(kwargs, message):
@@ -355,3 +356,31 @@ def test_no_groups_gives_pooled_model_only():
     res = fit_phases(db, n_states=1, n_restarts=1, n_folds=0)
     assert list(res.models) == ["pooled"]
     assert res.path_comparison.empty and res.distances.empty and res.alignment.empty
+
+
+def test_heldout_criterion_uses_heldout_column():
+    db = _sample_db(n=10, length=30)
+    res = fit_phases(db, n_states=[1, 2, 3], n_restarts=1, n_folds=2, criterion="heldout",
+                     n_permutations=0)
+    sel = res.selection
+    best = sel.loc[sel["heldout_loglik"].idxmax(), "n_states"]
+    assert res.n_states == best
+    assert sel.loc[sel["selected"], "n_states"].tolist() == [best]
+    assert np.all(np.isfinite(sel["heldout_loglik_per_token"]))
+
+
+@pytest.mark.slow
+def test_restarts_on_a_dask_cluster_equal_serial():
+    # scale-out: joblib routes the restarts to a Dask cluster (in-process here)
+    distributed = pytest.importorskip("distributed")
+    import joblib
+
+    db = _sample_db(n=10, length=30)
+    try:
+        cluster = distributed.LocalCluster(n_workers=1, threads_per_worker=2, processes=False,
+                                           dashboard_address=None)
+    except Exception as exc:  # the cluster itself, not our code, failed to start
+        pytest.skip(f"could not start an in-process Dask cluster: {exc!r}")
+    with cluster, distributed.Client(cluster), joblib.parallel_config(backend="dask"):
+        on_dask = fit_phase_model(db, n_states=2, n_restarts=3, seed=2, n_jobs=2)
+    assert on_dask.equals(fit_phase_model(db, n_states=2, n_restarts=3, seed=2))

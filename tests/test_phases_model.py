@@ -281,3 +281,23 @@ def test_lean_estep_equals_stock_hmmlearn():
         np.testing.assert_allclose(getattr(lean, name), getattr(stock, name), rtol=1e-9,
                                    atol=1e-12)
     np.testing.assert_allclose(lean.monitor_.history, stock.monitor_.history, rtol=1e-12)
+
+
+def test_plot_phase_model_draws_states_and_edges(tmp_path):
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from seqmine.phases import plot_phase_model
+
+    db = SequenceDB.from_lists([["set_light", "advance_week", "measure_height"],
+                                ["paint_pot", "reset", "paint_pot"]] * 6)
+    m = fit_phase_model(db, n_states=2, n_restarts=1, seed=0, label="pooled")
+    fig = plot_phase_model(m, threshold=0.01)
+    texts = [t.get_text() for t in fig.axes[0].texts]
+    assert any(t.startswith("S1\n" + m.state_names[0]) for t in texts)
+    assert fig.axes[0].get_title() == "phase model: pooled"
+    fig.savefig(tmp_path / "g.png")
+    assert (tmp_path / "g.png").stat().st_size > 1000
+    plt.close(fig)

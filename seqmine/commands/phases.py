@@ -43,10 +43,18 @@ def add_arguments(parser):
 
 def run(args):
     """Run the command; returns the exit status."""
-    from ..phases import fit_phases
-
+    previous = is_quiet()
     if args.quiet:
         set_quiet(True)
+    try:
+        return _run(args)
+    finally:
+        set_quiet(previous)
+
+
+def _run(args):
+    from ..phases import fit_phases
+
     db = SequenceDB.load(args.seqdb)
     result = fit_phases(db, n_states=args.states, n_restarts=args.restarts, seed=args.seed,
                         n_jobs=args.jobs, criterion=args.criterion, n_folds=args.folds,
@@ -55,6 +63,8 @@ def run(args):
     if not is_quiet():
         msg = [f"phases: {result.n_states} states ({result.params['criterion']}), "
                f"{result.state_db.n_sequences} sequences modelled"]
+        if result.at_top_of_range:
+            msg.append("the chosen count is the largest tried; consider a wider --states range")
         if result.n_excluded:
             msg.append(f"{result.n_excluded} sequences shorter than "
                        f"{result.params['min_length']} tokens left out (see excluded.csv)")

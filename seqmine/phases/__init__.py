@@ -9,6 +9,7 @@ Public API
 - :func:`compare_state_paths`, :func:`align_states`, :func:`compare_transitions`,
   :func:`model_distance`, :func:`state_paths_db`
 - :class:`GroupHMMClassifier` (log-likelihood-ratio classifier, scikit-learn contract)
+- :func:`plot_phase_model` (state diagram with matplotlib, for the report)
 """
 
 from .classify import GroupHMMClassifier
@@ -17,6 +18,7 @@ from .compare import (align_states, bh_adjust, compare_state_paths, compare_tran
 from .fitting import fit_phase_model, learner_folds, parse_state_range, select_n_states
 from .model import PhaseModel, name_state
 from .pipeline import PhaseResult, fit_phases, load_phase_models
+from .plot import plot_phase_model
 
 __all__ = [
     "fit_phases",
@@ -36,4 +38,5 @@ __all__ = [
     "state_paths_db",
     "bh_adjust",
     "GroupHMMClassifier",
+    "plot_phase_model",
 ]

@@ -9,6 +9,9 @@ enumeration of all state paths); Viterbi decoding calls hmmlearn.
 
 from __future__ import annotations
 
+import contextlib
+import logging
+
 import numpy as np
 from hmmlearn import _hmmc
 from hmmlearn.hmm import CategoricalHMM
@@ -261,7 +264,8 @@ def fit_restart(X, lengths, n_states, n_symbols, seed, *, n_iter=200, tol=1e-4,
         hmm.transmat_ = trans.copy()
         hmm.emissionprob_ = emis.copy()
         try:
-            hmm.fit(X.reshape(-1, 1), lengths)
+            with _quiet_hmmlearn():
+                hmm.fit(X.reshape(-1, 1), lengths)
             break
         except ValueError:
             if implementation == "log":
@@ -274,6 +278,23 @@ def fit_restart(X, lengths, n_states, n_symbols, seed, *, n_iter=200, tol=1e-4,
 
 
 # ----------------------------------------------------------------- helpers
+@contextlib.contextmanager
+def _quiet_hmmlearn():
+    """Mute hmmlearn's logging during a fit.
+
+    hmmlearn logs "Model is not converging" when EM's log-likelihood drops by
+    rounding noise near convergence; with no logging configured Python prints it to
+    stderr, which would clutter the command line. The level is restored afterwards.
+    """
+    logger = logging.getLogger("hmmlearn")
+    old = logger.level
+    logger.setLevel(logging.ERROR)
+    try:
+        yield
+    finally:
+        logger.setLevel(old)
+
+
 class _LeanCategoricalHMM(CategoricalHMM):
     """hmmlearn's CategoricalHMM with a leaner E-step for many short sequences.
 

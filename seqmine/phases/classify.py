@@ -10,7 +10,7 @@ from .._validation import check_choice, check_int, check_number
 from ..errors import NotFittedError, ParameterError
 from ..sequences import SequenceDB
 from . import _hmm
-from .fitting import DEFAULT_EMISSION_FLOOR, fit_phase_model
+from .fitting import DEFAULT_EMISSION_FLOOR, fit_phase_model, parse_state_range, select_n_states
 
 __all__ = ["GroupHMMClassifier"]
 
@@ -26,8 +26,9 @@ class GroupHMMClassifier(ClassifierMixin, BaseEstimator):
 
     Parameters
     ----------
-    n_states : int
-        Hidden states of every group model.
+    n_states : int, or several counts (range, list, ``"2-5"``)
+        Hidden states of every group model. With several counts, each group's
+        count is chosen by BIC on its own training sequences.
     n_restarts : int
         Baum--Welch restarts per model.
     seed : int
@@ -46,6 +47,8 @@ class GroupHMMClassifier(ClassifierMixin, BaseEstimator):
     classes_ : ndarray of str
     models_ : list of PhaseModel
         One model per class, in ``classes_`` order.
+    n_states_ : list of int
+        State count of each class model.
     log_prior_ : ndarray
     vocab_ : list of str
 
@@ -82,7 +85,7 @@ class GroupHMMClassifier(ClassifierMixin, BaseEstimator):
     def fit(self, X, y=None):
         """Fit one phase model per class; returns ``self``."""
         where = "GroupHMMClassifier"
-        n_states = check_int(self.n_states, "n_states", where, minimum=1)
+        state_counts = parse_state_range(self.n_states)
         n_restarts = check_int(self.n_restarts, "n_restarts", where, minimum=1)
         check_number(self.emission_floor, "emission_floor", where, minimum=0)
         check_choice(self.prior, "prior", ("empirical", "uniform"), where)
@@ -96,11 +99,16 @@ class GroupHMMClassifier(ClassifierMixin, BaseEstimator):
         for k, c in enumerate(classes):
             members = [s for s, lab in zip(seqs, labels) if lab == c]
             counts.append(len(members))
-            models.append(fit_phase_model(members, n_states=n_states, n_restarts=n_restarts,
-                                          seed=self.seed, n_jobs=self.n_jobs,
-                                          n_iter=self.n_iter, tol=self.tol,
-                                          emission_floor=self.emission_floor, vocab=vocab,
-                                          label=str(c), _purpose=100 + k))
+            kw = dict(n_restarts=n_restarts, seed=self.seed, n_jobs=self.n_jobs,
+                      n_iter=self.n_iter, tol=self.tol, emission_floor=self.emission_floor,
+                      vocab=vocab, label=str(c), _purpose=100 + k)
+            if len(state_counts) == 1:
+                models.append(fit_phase_model(members, n_states=state_counts[0], **kw))
+            else:
+                table, by_count = select_n_states(members, n_states=state_counts, n_folds=0,
+                                                  **kw)
+                best = int(table.loc[table["best_bic"], "n_states"].iloc[0])
+                models.append(by_count[best])
         counts = np.asarray(counts, dtype=np.float64)
         if self.prior == "uniform":
             self.log_prior_ = np.full(len(classes), -np.log(len(classes)))
@@ -108,6 +116,7 @@ class GroupHMMClassifier(ClassifierMixin, BaseEstimator):
             self.log_prior_ = np.log(counts / counts.sum())
         self.classes_ = classes
         self.models_ = models
+        self.n_states_ = [m.n_states for m in models]
         self.vocab_ = vocab
         return self
 

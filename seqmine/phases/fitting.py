@@ -65,6 +65,7 @@ def fit_phase_model(sequences, *, n_states=3, n_restarts=5, seed=0, n_jobs=1, n_
     X, lengths, vocab = _arrays(sequences, vocab)
     n_states = check_int(n_states, "n_states", "fit_phase_model", minimum=1)
     n_restarts = check_int(n_restarts, "n_restarts", "fit_phase_model", minimum=1)
+    n_jobs = _check_jobs(n_jobs, "fit_phase_model")
     emission_floor = check_number(emission_floor, "emission_floor", "fit_phase_model",
                                   minimum=0)
     _check_supported(n_states, len(vocab), len(X), label)
@@ -96,6 +97,8 @@ def select_n_states(sequences, *, n_states=range(2, 7), n_restarts=5, n_folds=3,
     """
     X, lengths, vocab = _arrays(sequences, vocab)
     counts = parse_state_range(n_states)
+    n_restarts = check_int(n_restarts, "n_restarts", "select_n_states", minimum=1)
+    n_jobs = _check_jobs(n_jobs, "select_n_states")
     n_folds = check_int(n_folds, "n_folds", "select_n_states", minimum=0)
     if n_folds == 1:
         raise ParameterError("The 'n_folds' parameter of select_n_states must be 0 (no "
@@ -247,6 +250,14 @@ def _arrays(sequences, vocab=None):
             f"Token ids must lie in 0..{len(vocab) - 1} (the vocabulary); got "
             f"{int(X.min())}..{int(X.max())}.")
     return X, lengths, list(vocab)
+
+
+def _check_jobs(n_jobs, where):
+    n_jobs = check_int(n_jobs, "n_jobs", where)
+    if n_jobs == 0:
+        raise ParameterError(f"The 'n_jobs' parameter of {where} must be a positive int or "
+                             f"-1 (all cores). Got 0 instead.")
+    return n_jobs
 
 
 def _check_supported(n_states, n_symbols, n_tokens, label):

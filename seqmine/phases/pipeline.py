@@ -18,7 +18,8 @@ from ..sequences import SequenceDB
 from . import _hmm
 from .compare import (align_states, compare_state_paths, compare_transitions,
                       model_distance, state_paths_db)
-from .fitting import DEFAULT_EMISSION_FLOOR, fit_phase_model, parse_state_range, select_n_states
+from .fitting import (DEFAULT_EMISSION_FLOOR, _check_jobs, fit_phase_model, parse_state_range,
+                      select_n_states)
 from .model import PhaseModel
 
 __all__ = ["fit_phases", "PhaseResult", "load_phase_models"]
@@ -86,6 +87,13 @@ class PhaseResult:
     params: dict = field(default_factory=dict)
 
     @property
+    def at_top_of_range(self):
+        """True when the chosen state count is the largest one tried (and more than one
+        was tried): a wider range might fit better."""
+        counts = self.selection["n_states"]
+        return bool(len(counts) > 1 and self.n_states == counts.max())
+
+    @property
     def n_excluded(self):
         """Number of sequences left out for being too short."""
         return len(self.excluded)
@@ -96,11 +104,13 @@ class PhaseResult:
             "format": _FORMAT, "version": _VERSION,
             "n_states": int(self.n_states),
             "criterion": self.params.get("criterion"),
+            "n_states_at_top_of_range": self.at_top_of_range,
             "n_sequences_used": int(self.state_db.n_sequences),
             "n_tokens_used": int(self.state_db.n_tokens),
             "n_excluded": int(self.n_excluded),
             "excluded_reason": f"shorter than {self.params.get('min_length')} tokens",
-            "models": {k: _model_file(k) for k in self.models},
+            "models": {k: f"{_model_file(k)}.json" for k in self.models},
+            "graphs": {k: f"{_graph_file(k)}.graphml" for k in self.models},
             "log_likelihood": {k: m.log_likelihood for k, m in self.models.items()},
             "unseen_tokens": self.unseen_tokens,
             "params": self.params,
@@ -208,7 +218,7 @@ def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, crit
         raise ParameterError(f"fit_phases needs a SequenceDB; got {type(db).__name__}.")
     counts = parse_state_range(n_states)
     n_restarts = check_int(n_restarts, "n_restarts", where, minimum=1)
-    n_jobs = check_int(n_jobs, "n_jobs", where)
+    n_jobs = _check_jobs(n_jobs, where)
     seed = check_int(seed, "seed", where, minimum=0)
     criterion = check_choice(criterion, "criterion", ("bic", "heldout"), where)
     n_folds = check_int(n_folds, "n_folds", where, minimum=0)
@@ -305,7 +315,7 @@ def load_phase_models(folder):
     if not summary_path.is_file():
         raise ParameterError(f"{folder}: no phases.json; run 'seqmine phases' first.")
     summary = json.loads(summary_path.read_text(encoding="utf-8"))
-    return {k: PhaseModel.load(folder / f"{v}.json") for k, v in summary["models"].items()}
+    return {k: PhaseModel.load(folder / v) for k, v in summary["models"].items()}
 
 
 # ----------------------------------------------------------------- helpers
