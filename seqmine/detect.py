@@ -490,9 +490,14 @@ def _validate_encoding(enc, fail):
     if not isinstance(tpl, str):
         fail("encoding.template", f"{tpl!r} must be a string such as '{{action}}'.")
     try:
-        fields = [f for _l, f, _s, _c in string.Formatter().parse(tpl) if f is not None]
+        parts = [(f, spec, conv) for _l, f, spec, conv in string.Formatter().parse(tpl)
+                 if f is not None]
     except ValueError:
         fail("encoding.template", f"{tpl!r} is malformed; use fields like '{{action}}:{{target}}'.")
+    fields = [f for f, _s, _c in parts]
+    if any(spec or conv for _f, spec, conv in parts):
+        fail("encoding.template", f"{tpl!r} uses a format spec or conversion; write plain "
+                                  f"fields such as '{{action}}:{{target}}'.")
     bad = [f for f in fields if f not in _TEMPLATE_FIELDS]
     if bad or "action" not in fields:
         fail("encoding.template", f"{tpl!r} must use {{action}} and only the fields "

@@ -14,6 +14,17 @@ event, or an encourage pattern that was just shown) carry ``suppressed=True`` an
 reason. Encourage detectors can also fire on *absence*: the pattern has not been shown
 after a number of events or seconds of a sequence.
 
+Exactness
+---------
+Per-learner occurrence counts equal the offline instance counts when (1) each
+learner's events arrive in time order (ties in file order), (2) no learner's state
+expires inside a sequence (``idle_timeout=None`` or longer than any gap inside a
+sequence), and (3) pauses are not binned per learner (``learner_quantile`` needs the
+whole sequence; the watcher then uses the global edges and says so in ``notes``).
+The watcher rejects the rows the loader rejects (empty or non-text fields, control
+characters, over-long actions, bad or out-of-range times, a time form other than the
+stream's, exact duplicates), so the same events reach both.
+
 How it works
 ------------
 All detectors share one prefix tree (trie) over their tokens; tokens index the trie
@@ -221,12 +232,12 @@ class Watcher:
                                                    "out_of_order_tolerance", where, minimum=0)
         self.hint_on_encourage = bool(hint_on_encourage)
         self.reject_duplicates = bool(reject_duplicates)
+        self.notes = []
         self._compile(doc)
         self._learners = {}
         self._stream_time = _NEG_INF
         self._time_kind = None
         self._noted = set()
-        self.notes = []
         self.stats = {k: 0 for k in ("events", "dropped", "collapsed", "rejected", "out_of_order",
                                      "duplicates", "firings", "hints", "expired_learners")}
 
@@ -398,13 +409,20 @@ class Watcher:
         return out
 
     def flush(self):
-        """End of stream: fire absence rules due at the latest event time, drop all state.
+        """End of stream: drop every learner's state and return their occurrence counts.
+
+        No absence firings are produced here (a learner who has left needs no hint);
+        call :meth:`tick` first if time-based absence rules should be checked.
 
         Returns
         -------
-        list of Firing
+        dict
+            learner -> {detector id: number of occurrence firings}, for the learners
+            whose state was held (expired learners are not included).
         """
-        out = self.tick(self._stream_time) if self._learners and self._has_absence else []
+        ids = self._det_ids
+        out = {learner: {ids[d]: n for d, n in sorted(st.counts.items())}
+               for learner, st in self._learners.items()}
         self._learners.clear()
         return out
 
@@ -440,6 +458,8 @@ class Watcher:
         self._det_dir = [d["direction"] for d in dets]
         self._det_priority = [int(d.get("priority", 1)) for d in dets]
         self._det_hint = [d.get("hint", "") for d in dets]
+        self._det_hintable = [d["direction"] == "discourage" or self.hint_on_encourage
+                              for d in dets]
         self._det_effect = []
         for d in dets:
             v = ((d.get("evidence") or {}).get("effects") or {}).get(eff_name)
@@ -564,42 +584,54 @@ class Watcher:
                 fired.append((k, None))
 
     def _deliver(self, st, learner, t, fired):
-        """Build Firing objects; rank them and apply the learner's cool-down."""
+        """Build Firing objects; rank the hint candidates and apply the cool-down.
+
+        Only the best-ranked candidate of an event can be delivered (unless the
+        cool-down is 0, when all are); while the learner is cooling down all
+        candidates are suppressed, so ranking is only needed outside the cool-down.
+        """
         out = []
+        cands = []
         counts = st.counts
         label = st.label
+        ids, dirs, prios, hints = self._det_ids, self._det_dir, self._det_priority, self._det_hint
+        hintable = self._det_hintable
+        cooldown = self.cooldown_seconds
+        cooling = st.last_hint is not None and t - st.last_hint < cooldown
+        held = (True, "cooldown") if cooling else (False, None)
         for d, times in fired:
             if times is None:
-                kind, occ, times = "absence", 0, ()
+                f = Firing(learner, ids[d], "absence", t, (), label, 0, dirs[d], prios[d],
+                           hints[d], held[0], held[1], d)
+                cands.append(f)
             else:
-                kind = "occurrence"
                 occ = counts.get(d, 0) + 1
                 counts[d] = occ
-            out.append(Firing(learner, self._det_ids[d], kind, t, times, label, occ,
-                              self._det_dir[d], self._det_priority[d], self._det_hint[d],
-                              False, None, d))
+                if hintable[d]:
+                    f = Firing(learner, ids[d], "occurrence", t, times, label, occ, dirs[d],
+                               prios[d], hints[d], held[0], held[1], d)
+                    cands.append(f)
+                else:
+                    f = Firing(learner, ids[d], "occurrence", t, times, label, occ, dirs[d],
+                               prios[d], hints[d], True, "no_hint", d)
+            out.append(f)
         self.stats["firings"] += len(out)
-        candidates = []
-        for f in out:
-            if f.kind == "occurrence" and f.direction == "encourage" and not self.hint_on_encourage:
-                f.suppressed, f.reason = True, "no_hint"
-            else:
-                candidates.append(f)
-        if len(candidates) > 1:
+        if cooling or not cands:
+            return out
+        if cooldown > 0 and len(cands) > 1:
+            effect = self._det_effect
             hint_times = st.hint_times
-            candidates.sort(key=lambda f: (f.priority, -self._det_effect[f._index],
-                                           hint_times.get(f._index, _NEG_INF), f._index))
-        delivered_now = False
-        for f in candidates:
-            if st.last_hint is not None and t - st.last_hint < self.cooldown_seconds:
-                f.suppressed, f.reason = True, ("outranked" if delivered_now else "cooldown")
-            elif delivered_now and self.cooldown_seconds > 0:
-                f.suppressed, f.reason = True, "outranked"
-            else:
-                st.last_hint = t
-                st.hint_times[f._index] = t
-                delivered_now = True
-                self.stats["hints"] += 1
+            best = min(cands, key=lambda f: (f.priority, -effect[f._index],
+                                             hint_times.get(f._index, _NEG_INF), f._index))
+            for f in cands:
+                if f is not best:
+                    f.suppressed = True
+                    f.reason = "outranked"
+            cands = (best,)
+        for f in cands:
+            st.last_hint = t
+            st.hint_times[f._index] = t
+        self.stats["hints"] += len(cands)
         return out
 
     def _expire(self, now, keep):

@@ -210,6 +210,7 @@ INVALID = [
     (_set(["encoding", "template"], 5), r"encoding.template: 5 must be a string"),
     (_set(["encoding", "template"], "{actor}"), r"encoding.template: '\{actor\}' must use \{action\}"),
     (_set(["encoding", "template"], "{action"), r"encoding.template: '\{action' is malformed"),
+    (_set(["encoding", "template"], "{action!r}"), r"encoding.template: .* uses a format spec or conversion"),
     (_set(["encoding", "mapping"], {"a": 1}), r"encoding.mapping: must be an object mapping"),
     (_set(["encoding", "collapse_repeats"], "yes"), r"encoding.collapse_repeats: 'yes' must be true or false"),
     (_set(["encoding", "unit"], "day"), r"encoding.unit: 'day' must be 'learner' or 'session'"),

@@ -151,14 +151,22 @@ def test_unknown_symbols_are_noted_once_and_take_a_position():
     assert len(w.notes) == 1 and "'juggle' was not seen in the analysed data" in w.notes[0]
 
 
+def test_learner_quantile_pauses_are_noted():
+    enc = {"template": "{action}", "pause": {"strategy": "learner_quantile", "edges": [3.0],
+                                             "labels": ["short", "long"], "implicit": []}}
+    w = Watcher(_doc(dets=[{"id": "p", "tokens": ["pause:long"], "direction": "discourage"}],
+                     encoding=enc))
+    assert len(w.notes) == 1 and "each learner's own quantiles" in w.notes[0]
+
+
 def test_idle_learners_expire():
     w = Watcher(_doc(), idle_timeout=100)
     _feed(w, [ev("a", 0, "set_light"), ev("b", 50, "open_chart"), ev("b", 300, "open_chart")])
     assert w.n_learners == 1 and w.stats["expired_learners"] == 1
     w = Watcher(_doc(), idle_timeout=None)
-    _feed(w, [ev("a", 0, "set_light"), ev("b", 10 ** 6, "open_chart")])
+    _feed(w, [ev("a", 0, "set_light"), ev("b", 10 ** 6, "reset"), ev("b", 10 ** 6 + 1, "reset")])
     assert w.n_learners == 2
-    w.flush()
+    assert w.flush() == {"a": {}, "b": {"reset": 2}}
     assert w.n_learners == 0
 
 
@@ -298,3 +306,20 @@ def test_cli_watch_exit_2_only_for_unusable_detectors(tmp_path, capsys):
     assert "events file not found" in capsys.readouterr().err
     assert main(["watch", det, str(events), "--idle-timeout", "soon"]) == 2
     assert "--idle-timeout takes seconds or 'none'" in capsys.readouterr().err
+
+
+def test_cli_watch_pseudonymizes_learners(tmp_path, capsys):
+    from seqmine.privacy import pseudonymize
+
+    det = _write_doc(tmp_path)
+    key = tmp_path / "key.txt"
+    key.write_text("0123456789abcdef0123", encoding="utf-8")
+    events = tmp_path / "e.jsonl"
+    events.write_text("\n".join(json.dumps(e) for e in [
+        ev(" ana ", 0, "reset"), ev("ana", 5, "set_light"), ev("ana", 3, "reset")]) + "\n",
+        encoding="utf-8")
+    assert main(["watch", det, str(events), "--pseudonymize", str(key), "--tolerance", "0"]) == 0
+    cap = capsys.readouterr()
+    expected = pseudonymize(["ana"], b"0123456789abcdef0123")[0]
+    assert [json.loads(x)["learner"] for x in cap.out.splitlines()] == [expected]
+    assert "ana" not in cap.out and "ana" not in cap.err and expected in cap.err

@@ -3,10 +3,11 @@
 from __future__ import annotations
 
 import json
+import os
 import sys
 from pathlib import Path
 
-from .._progress import is_quiet, set_quiet
+from .._progress import set_quiet
 from ..errors import DataFileError, ParameterError
 from ..watch import EventError, Watcher
 
@@ -24,8 +25,8 @@ DESCRIPTION = (
     "'suppressed' marks hints held back by the cool-down or outranked by another firing "
     "of the same event. A bad event (malformed JSON, missing field, bad time, out of "
     "order beyond the tolerance, duplicate) gets one error line on standard error and "
-    "is skipped; processing continues. Exit status 2 only when the detectors file is "
-    "unusable."
+    "is skipped; processing continues. Exit status 2 only for an unusable detectors file, a missing events file "
+    "or a bad option."
 )
 
 
@@ -52,6 +53,9 @@ def add_arguments(parser):
                         help="process exact duplicate events instead of rejecting them")
     parser.add_argument("--times", choices=("auto", "seconds", "iso"), default="auto",
                         help="time format of the output (default: as the input)")
+    parser.add_argument("--pseudonymize", metavar="KEY_FILE", default=None,
+                        help="replace learner identifiers by keyed-hash pseudonyms (the same "
+                             "key as 'seqmine analyze --pseudonymize' gives the same pseudonyms)")
     parser.add_argument("--summary", action="store_true",
                         help="print counters (events, rejected, firings, hints) to standard "
                              "error at the end")
@@ -66,6 +70,7 @@ def run(args):
                       out_of_order_tolerance=args.tolerance,
                       hint_on_encourage=args.encourage_hints,
                       reject_duplicates=not args.keep_duplicates)
+    pseudo = _pseudonymizer(args.pseudonymize) if args.pseudonymize else None
     err = sys.stderr
     out = sys.stdout
     for note in watcher.notes:
@@ -81,39 +86,52 @@ def run(args):
         name, interactive = str(path), False
     hints_only = args.hints_only
     try:
-        for lineno, line in enumerate(stream, 1):
-            if not line.strip():
-                continue
-            try:
-                event = json.loads(line)
-            except json.JSONDecodeError as exc:
-                print(f"seqmine watch: {name}:{lineno}: malformed JSON ({exc.msg} at column "
-                      f"{exc.colno}); event skipped", file=err)
-                watcher.stats["events"] += 1
-                watcher.stats["rejected"] += 1
-                continue
-            try:
-                firings = watcher.process(event)
-            except EventError as exc:
-                print(f"seqmine watch: {name}:{lineno}: {exc}; event skipped", file=err)
-                continue
-            if watcher.notes:
-                for note in watcher.notes:
-                    print(f"seqmine watch: {name}:{lineno}: note: {note}", file=err)
-                watcher.notes.clear()
-            if firings:
-                _write(out, firings, watcher, args.times, hints_only)
-                if interactive:
-                    out.flush()
-        _write(out, watcher.flush(), watcher, args.times, hints_only)
+        _loop(stream, name, interactive, watcher, out, err, args, hints_only, pseudo)
+    except BrokenPipeError:  # the reader went away (e.g. '| head'): stop quietly
+        try:
+            sys.stdout = open(os.devnull, "w")  # noqa: SIM115 - avoid a second error at exit
+        except OSError:  # pragma: no cover
+            pass
+        return 0
     finally:
         if stream is not sys.stdin:
             stream.close()
-    out.flush()
-    if args.summary and not is_quiet():
+    if args.summary:
         s = watcher.stats
         print("seqmine watch: summary: " + ", ".join(f"{k}={v}" for k, v in s.items()), file=err)
     return 0
+
+
+def _loop(stream, name, interactive, watcher, out, err, args, hints_only, pseudo):
+    """Read, process and write every line; bad events get one line on ``err``."""
+    for lineno, line in enumerate(stream, 1):
+        if not line.strip():
+            continue
+        try:
+            event = json.loads(line)
+        except json.JSONDecodeError as exc:
+            print(f"seqmine watch: {name}:{lineno}: malformed JSON ({exc.msg} at column "
+                  f"{exc.colno}); event skipped", file=err)
+            watcher.stats["events"] += 1
+            watcher.stats["rejected"] += 1
+            continue
+        if pseudo is not None and isinstance(event, dict) and "learner" in event:
+            event["learner"] = pseudo(event["learner"])
+        try:
+            firings = watcher.process(event)
+        except EventError as exc:
+            print(f"seqmine watch: {name}:{lineno}: {exc}; event skipped", file=err)
+            continue
+        if watcher.notes:
+            for note in watcher.notes:
+                print(f"seqmine watch: {name}:{lineno}: note: {note}", file=err)
+            watcher.notes.clear()
+        if firings:
+            _write(out, firings, watcher, args.times, hints_only)
+            if interactive:
+                out.flush()
+    watcher.flush()
+    out.flush()
 
 
 def _write(out, firings, watcher, times, hints_only):
@@ -122,6 +140,28 @@ def _write(out, firings, watcher, times, hints_only):
         if hints_only and f.suppressed:
             continue
         out.write(json.dumps(f.to_dict(iso_times=iso), ensure_ascii=False) + "\n")
+
+
+def _pseudonymizer(key_file):
+    """learner -> pseudonym, cached; non-string or empty learners pass through unchanged."""
+    from ..privacy import pseudonymize, read_key
+
+    key = read_key(key_file)
+    cache = {}
+
+    def pseudo(learner):
+        if isinstance(learner, bool) or not isinstance(learner, (str, int, float)):
+            return learner
+        text = str(learner).strip()
+        if not text:
+            return learner
+        p = cache.get(text)
+        if p is None:
+            if len(cache) > 1_000_000:
+                cache.clear()
+            p = cache[text] = str(pseudonymize([text], key)[0])
+        return p
+    return pseudo
 
 
 def _idle(text):
