@@ -418,7 +418,11 @@ def load_detectors(path):
         raise DataFileError(f"{path}: not valid JSON (line {exc.lineno}, column {exc.colno}: "
                             f"{exc.msg}); fix the file or export it again.") from None
     except ValueError as exc:
-        raise DataFileError(f"{path}: {exc}; write null (or a number) instead.") from None
+        raise DataFileError(f"{path}: {' '.join(str(exc).split())}; write null (or a "
+                            f"number) instead.") from None
+    except RecursionError:
+        raise DataFileError(f"{path}: the JSON is nested too deeply to be a detectors file; "
+                            f"export it again with 'seqmine detectors'.") from None
     validate_detectors(doc, source=str(path))
     return doc
 
