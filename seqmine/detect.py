@@ -525,7 +525,9 @@ def _validate_encoding(enc, fail):
     implicit = pause.get("implicit", [])
     if not isinstance(edges, list) or not all(_is_num(e) for e in edges):
         fail("encoding.pause.edges", "must be a list of finite numbers of seconds.")
-    if any(b <= a for a, b in zip(edges, edges[1:])):
+    # quantile edges of tied gaps can be equal (the bin between them stays empty);
+    # hand-set (fixed) edges must be strictly ascending, as the Encoder requires
+    if any(b < a or (b == a and strategy == "fixed") for a, b in zip(edges, edges[1:])):
         fail("encoding.pause.edges", f"{edges} must be strictly ascending.")
     if not isinstance(labels, list) or not all(isinstance(x, str) and x for x in labels):
         fail("encoding.pause.labels", "must be a list of non-empty bin names.")
