@@ -157,6 +157,12 @@ def load_events(path, *, columns=None, format=None, delimiter=None, encoding="ut
     [[4, 'missing_learner']]
     """
     check_choice(duplicates, "duplicates", ("reject", "keep"), "load_events")
+    if delimiter in ("\\t", "tab", "TAB"):  # a tab typed on a command line
+        delimiter = "\t"
+    if delimiter is not None and (not isinstance(delimiter, str) or len(delimiter) != 1
+                                  or delimiter in "\"\r\n"):
+        raise ParameterError(f"The delimiter must be one character such as ',' ';' or a tab; "
+                             f"got {delimiter!r}.")
     path = Path(path)
     cols = _resolve_columns(columns)
     if not path.exists():
