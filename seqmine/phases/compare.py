@@ -11,6 +11,7 @@ from scipy.stats import mannwhitneyu
 from .._validation import check_fraction, check_int
 from ..errors import ParameterError
 from ..sequences import SequenceDB
+from .model import PhaseModel  # noqa: F401  (used by the doctests)
 
 __all__ = [
     "path_measures",
