@@ -119,3 +119,33 @@ def test_documented_messages_exist(cls, fragment):
         f"{cls} is not an exception class of seqmine"
     assert fragment in _normalized_source(), \
         f"troubleshooting.md quotes {fragment!r}, which no longer appears in seqmine/"
+
+
+def _anchor(heading):
+    """GitHub-style anchor of a Markdown heading."""
+    text = re.sub(r"[`*_]", "", heading.strip().lower())
+    text = re.sub(r"[^\w\- ]", "", text)
+    return text.replace(" ", "-")
+
+
+#: Pages written in parallel by others; a link to them may precede the page.
+_PENDING = {"reliability.md", "scaling.md"}
+
+
+def test_links_between_docs_resolve():
+    anchors = {p.name: {_anchor(h) for h in re.findall(r"^#+ (.*)$", p.read_text(encoding="utf-8"), re.M)}
+               for p in DOCS.glob("*.md")}
+    broken = []
+    for path in sorted(DOCS.glob("*.md")):
+        for target in re.findall(r"\]\(([^)\s]+)\)", path.read_text(encoding="utf-8")):
+            if target.startswith(("http://", "https://", "mailto:")):
+                continue
+            name, _, frag = target.partition("#")
+            name = name or path.name
+            if name not in anchors:
+                if name not in _PENDING:
+                    broken.append(f"{path.name}: {target}")
+                continue
+            if frag and frag not in anchors[name]:
+                broken.append(f"{path.name}: {target}")
+    assert not broken, f"broken links: {broken}"
