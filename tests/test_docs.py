@@ -149,3 +149,17 @@ def test_links_between_docs_resolve():
             if frag and frag not in anchors[name]:
                 broken.append(f"{path.name}: {target}")
     assert not broken, f"broken links: {broken}"
+
+
+def test_every_reject_reason_is_documented():
+    from seqmine.load import REJECT_REASONS
+    text = (DOCS / "input-formats.md").read_text(encoding="utf-8")
+    missing = [r for r in REJECT_REASONS if f"`{r}`" not in text]
+    assert not missing, f"input-formats.md does not explain reject reasons {missing}"
+
+
+def test_quickstart_covers_every_command():
+    text = (DOCS / "quickstart.md").read_text(encoding="utf-8")
+    sub = next(a for a in build_parser()._actions if a.dest == "command")
+    missing = [name for name in sub.choices if f"seqmine {name}" not in text]
+    assert not missing, f"quickstart.md shows no command line for {missing}"
