@@ -50,7 +50,11 @@ def early_prediction_table(predictions, group_names, *, n_bootstrap=1000, confid
     -----
     ``roc_auc`` scores the probability of ``group_names[1]`` for two groups
     (one-vs-rest macro average for more), as :func:`sklearn.metrics.roc_auc_score`.
-    ``balanced_accuracy`` is the mean recall over the groups present.
+    ``balanced_accuracy`` is the mean recall over the groups present. Intervals
+    are bootstrap percentile intervals over held-out learners pooled across folds
+    (the fold models are held fixed); a resample in which a metric is undefined
+    (e.g. one group absent, for its recall or the AUC) is left out of that metric's
+    interval.
 
     The classifier *beats the baseline* at a fraction when the one-sided exact
     McNemar test on paired correctness rejects at ``alpha``: with ``b`` learners

@@ -32,11 +32,11 @@ import numpy as np
 __all__ = []  # private module
 
 #: Tokens per block when a next-occurrence table is used (one table row stays in cache).
-_NX_BLOCK_TOKENS = 1 << 17
+_NX_BLOCK_TOKENS = 1 << 15
 #: Keep all next-occurrence tables between levels when they fit in this many bytes.
 _NX_CACHE_BYTES = 512 << 20
 #: Target number of tokens per block when no next-occurrence table is needed.
-_PLAIN_BLOCK_TOKENS = 1 << 18
+_PLAIN_BLOCK_TOKENS = 1 << 16
 #: Largest number of (occurrence, symbol) look-ups expanded at once.
 _EXPAND_CHUNK = 1 << 16
 
@@ -104,7 +104,8 @@ class Block:
     """A run of whole sequences with block-local positions and lookup tables."""
 
     def __init__(self, tok, seq_lengths, gidx, seq0, *, n_sym, nonpause=None,
-                 max_gap=None, max_window=None, skip_pauses=False):
+                 max_gap=None, max_window=None, skip_pauses=False, perm=None):
+        self.perm = perm                    # local order -> original local index (or None)
         self.tok = tok                      # local symbol ids, -1 = not in alphabet
         self.T = len(tok)
         self.n_seq = len(seq_lengths)
@@ -124,6 +125,8 @@ class Block:
             self.c = np.zeros(self.T + 1, dtype=np.int64)
             np.cumsum(nonpause, out=self.c[1:])
         self._nx = None
+        self._masks = None
+        self._gap_hi = None
         self._by_sym = None
         self.keep_nx = True
 
@@ -145,6 +148,31 @@ class Block:
         if self.keep_nx:
             self._nx = table
         return table
+
+    def suffix_masks(self):
+        """Bit ``s`` of entry ``i``: symbol ``s`` occurs in ``[i, end of i's sequence)``.
+
+        uint64, length ``T + 1`` (needs ``n_sym <= 64``). Entry ``i`` describes the
+        sequence containing position ``i``; callers zero the entry of an occurrence
+        that ends its sequence.
+        """
+        if self._masks is not None:
+            return self._masks
+        T = self.T
+        nx = self.nx()
+        lim = np.empty(T + 1, dtype=np.int64)
+        lim[:T] = self.seq_end[self.seq_of_pos]
+        lim[T] = T
+        masks = np.zeros(T + 1, dtype=np.uint64)
+        for sym in range(self.n_sym):
+            masks |= (nx[sym, : T + 1] < lim).astype(np.uint64) << np.uint64(sym)
+        if self.keep_nx:
+            self._masks = masks
+        return masks
+
+    def original_seq(self, seq):
+        """Map block-local sequence indices (group order) to the original local order."""
+        return seq if self.perm is None else self.perm[seq]
 
     def symbol_counts(self):
         """Occurrences of each symbol in each sequence, shape (n_seq, n_sym)."""
@@ -172,13 +200,15 @@ class Block:
 
     def gap_limit(self, end):
         """Exclusive upper bound of the next item's position after ``end`` (gap rule)."""
-        end = end.astype(np.int64)
-        se = self.seq_end[self.seq_of_pos[end]]
-        if self.skip_pauses:
-            hi = np.searchsorted(self.c, self.c[end + 1] + self.max_gap, side="right")
-        else:
-            hi = end + self.max_gap + 2
-        return np.minimum(hi, se)
+        if self._gap_hi is None:
+            pos = np.arange(self.T, dtype=np.int64)
+            se = self.seq_end[self.seq_of_pos]
+            if self.skip_pauses:
+                hi = np.searchsorted(self.c, self.c[pos + 1] + self.max_gap, side="right")
+            else:
+                hi = pos + self.max_gap + 2
+            self._gap_hi = np.minimum(hi, se)
+        return self._gap_hi[end]
 
     def window_limit(self, start):
         """Exclusive upper bound of any later item's position given the first at ``start``."""
@@ -191,6 +221,7 @@ class Block:
         """Drop cached tables (when they do not all fit in memory at once)."""
         if not self.keep_nx:
             self._nx = None
+            self._masks = None
 
 
 def make_blocks(tokens_local, lengths, gidx, *, n_sym, mode, nonpause=None, **cons):
@@ -206,11 +237,22 @@ def make_blocks(tokens_local, lengths, gidx, *, n_sym, mode, nonpause=None, **co
         e = int(np.searchsorted(ends, t0 + budget, side="right"))
         e = max(e, s + 1)
         t1 = int(ends[e - 1])
-        blocks.append(Block(
-            tokens_local[t0:t1], lengths[s:e], gidx[s:e], s, n_sym=n_sym,
-            nonpause=None if nonpause is None else nonpause[t0:t1], **cons))
+        tok = tokens_local[t0:t1]
+        lens = lengths[s:e]
+        g = gidx[s:e]
+        npause = None if nonpause is None else nonpause[t0:t1]
+        perm = None
+        if len(g) > 1 and np.any(g[1:] < g[:-1]):
+            # sequences of one group side by side: (prefix, group) runs are contiguous
+            perm = np.argsort(g, kind="stable")
+            off = np.zeros(len(lens) + 1, dtype=np.int64)
+            np.cumsum(lens, out=off[1:])
+            take = ranges(off[:-1][perm], lens[perm])
+            tok, lens, g = tok[take], lens[perm], g[perm]
+            npause = None if npause is None else npause[take]
+        blocks.append(Block(tok, lens, g, s, n_sym=n_sym, nonpause=npause, perm=perm, **cons))
         s, t0 = e, t1
-    total = sum(b.T + 2 for b in blocks) * n_sym * 4
+    total = sum(b.T + 2 for b in blocks) * (n_sym * 4 + 8)
     keep = mode != "gap" and total <= _NX_CACHE_BYTES
     for b in blocks:
         b.keep_nx = keep
@@ -273,12 +315,27 @@ def extend(block, occ, plan, mode):
     """
     if len(occ) == 0:
         return Occ.concat([], mode != "first")
-    if mode == "gap":
-        return _extend_gap(block, occ, plan)
-    return _extend_nx(block, occ, plan, mode)
+    if mode != "gap":
+        raise ValueError("extend() serves the gap mode; use nx_count/nx_store otherwise")
+    return _extend_gap(block, occ, plan)
 
 
-def _extend_nx(block, occ, plan, mode):
+def root_occurrences(block):
+    """One empty occurrence per sequence (ending just before it), for ``first`` mode."""
+    z = np.zeros(block.n_seq, dtype=np.int32)
+    return Occ(z, np.arange(block.n_seq, dtype=np.int32),
+               (block.seq_start - 1).astype(np.int32))
+
+
+def _nx_chunks(block, occ, plan, mode):
+    """Valid one-symbol extensions, chunk by chunk (next-occurrence modes).
+
+    Yields ``(s, pa, pb, sl, ok, ne)``: symbol ``s``; the prefixes of the chunk lie in
+    ``[pa, pb)`` and are whole (a (prefix, sequence) run never straddles chunks);
+    ``sl`` selects the chunk's occurrences (a slice or an index array, sorted);
+    ``ok`` marks those with a next occurrence inside the sequence (and window);
+    ``ne`` holds the new ends of the valid ones.
+    """
     n_pid = plan.n_pid
     nx = block.nx()
     windowed = mode == "frontier" and block.max_window is not None
@@ -287,43 +344,116 @@ def _extend_nx(block, occ, plan, mode):
     np.cumsum(n_p, out=first[1:])
     e1 = occ.end.astype(np.int64) + 1
     lim = block.seq_end[occ.seq]
-    parts = []
     for s in range(plan.n_sym):
         pids = plan.pids[s]
+        pids = pids[n_p[pids] > 0]
         if pids.size == 0:
             continue
         row = nx[s]
-        base = s * n_pid
-        if pids.size == n_pid:
-            sel = None
-            total = len(occ)
-        else:
-            sel = ranges(first[pids], n_p[pids])
-            total = len(sel)
-        for c0 in range(0, total, _EXPAND_CHUNK):
-            c1 = min(c0 + _EXPAND_CHUNK, total)
-            idx = np.arange(c0, c1) if sel is None else sel[c0:c1]
-            ne = row[e1[idx]]
-            ok = ne < lim[idx]
-            idx = idx[ok]
+        cum = np.cumsum(n_p[pids])
+        i = 0
+        while i < len(pids):
+            done = cum[i - 1] if i else 0
+            j = int(np.searchsorted(cum, done + _EXPAND_CHUNK, side="right"))
+            j = max(j, i + 1)
+            g = pids[i:j]
+            if g[-1] - g[0] == len(g) - 1:
+                sl = slice(int(first[g[0]]), int(first[g[-1] + 1]))
+            else:
+                sl = ranges(first[g], n_p[g])
+            ne = row[e1[sl]]
+            ok = ne < lim[sl]
             ne = ne[ok]
             if windowed:
-                ok = block.span_ok(occ.start[idx], ne)
-                idx = idx[ok]
-                ne = ne[ok]
-            pid = occ.pid[idx]
-            seq = occ.seq[idx]
-            if mode == "frontier":
-                # same (pid, seq, new end): the later entry has the later start
-                last = np.ones(len(idx), dtype=bool)
-                if len(idx) > 1:
-                    last[:-1] = (pid[1:] != pid[:-1]) | (seq[1:] != seq[:-1]) | \
-                        (ne[1:] != ne[:-1])
-                idx, ne, pid, seq = idx[last], ne[last], pid[last], seq[last]
-                parts.append(Occ(pid.astype(np.int64) + base, seq, ne, occ.start[idx]))
-            else:
-                parts.append(Occ(pid.astype(np.int64) + base, seq, ne))
-    return Occ.concat(parts, mode != "first")
+                okw = block.span_ok(occ.start[sl][ok], ne)
+                ok[ok] = okw
+                ne = ne[okw]
+            yield s, int(g[0]), int(g[-1]) + 1, sl, ok, ne
+            i = j
+
+
+def nx_count(block, occ, plan, mode, counts):
+    """Pass 1: add distinct sequences per (symbol, prefix, group slot) to ``counts``.
+
+    ``counts`` has shape (n_sym, n_pid, n_slots). In ``first`` mode (and at most 64
+    symbols) every extension of an occurrence is counted at once from the bit mask
+    of the symbols left in its sequence; ``occ`` is sorted by prefix, then sequence,
+    and the block keeps each group's sequences together, so (prefix, group) runs
+    are contiguous and summed with ``reduceat``.
+    """
+    if len(occ) == 0:
+        return
+    slots = counts.shape[2]
+    if mode == "first" and plan.n_sym <= 64:
+        masks = block.suffix_masks()
+        e1 = occ.end.astype(np.int64) + 1
+        lim = block.seq_end[occ.seq]
+        g = block.gidx[occ.seq]
+        heads = np.flatnonzero(run_heads(occ.pid, g))
+        pid_h, g_h = occ.pid[heads], g[heads]
+        bounds = np.append(heads, len(occ))
+        step = max(1, _EXPAND_CHUNK // 8)
+        i = 0
+        n_h = len(heads)
+        while i < n_h:
+            # whole runs, about `step` occurrences at a time
+            j = int(np.searchsorted(bounds, bounds[i] + step, side="right")) - 1
+            j = min(max(j, i + 1), n_h)
+            a, b = int(bounds[i]), int(bounds[j])
+            m = masks[e1[a:b]]
+            m[e1[a:b] >= lim[a:b]] = 0
+            bits = np.unpackbits(m.view(np.uint8).reshape(-1, 8), axis=1,
+                                 bitorder="little")[:, : plan.n_sym]
+            sums = np.add.reduceat(bits, bounds[i:j] - a, axis=0, dtype=np.int64)
+            counts[:, pid_h[i:j], g_h[i:j]] += sums.T
+            i = j
+        return
+    pg = occ.pid.astype(np.int64) * slots + block.gidx[occ.seq]
+    for s, pa, pb, sl, ok, ne in _nx_chunks(block, occ, plan, mode):
+        key = pg[sl][ok]
+        if mode == "frontier" and len(key) > 1:
+            # several minimal windows of one (prefix, sequence) count once
+            pid = occ.pid[sl][ok]
+            seq = occ.seq[sl][ok]
+            key = key[run_heads(pid, seq)]
+        c = np.bincount(key - pa * slots, minlength=(pb - pa) * slots)
+        counts[s, pa:pb] += c.reshape(pb - pa, slots)
+
+
+def nx_store(block, occ, plan, mode, new_id, target, pats, store):
+    """Pass 2: the kept extensions as the next level's occurrences, plus instance counts.
+
+    Returns ``(occ_next or None, [(node, seq, count), ...])``: instance-count triples
+    in parts, together sorted by (node, sequence).
+    """
+    n_pid = plan.n_pid
+    parts, trip = [], []
+    for s, pa, pb, sl, ok, ne in _nx_chunks(block, occ, plan, mode):
+        pid = occ.pid[sl][ok]
+        nid = new_id[s * n_pid + pid]
+        keep = nid >= 0
+        if not keep.any():
+            continue
+        nid = nid[keep]
+        seq = occ.seq[sl][ok][keep]
+        ne = ne[keep]
+        start = None
+        if mode == "frontier":
+            start = occ.start[sl][ok][keep]
+            # same (prefix, seq, new end): the later entry has the later start
+            last = np.ones(len(nid), dtype=bool)
+            if len(nid) > 1:
+                last[:-1] = (nid[1:] != nid[:-1]) | (seq[1:] != seq[:-1]) | (ne[1:] != ne[:-1])
+            nid, seq, ne, start = nid[last], seq[last], ne[last], start[last]
+        part = Occ(nid.astype(np.int32), seq, ne, start)
+        if store:
+            parts.append(part)
+        t = target[part.pid]
+        if t.any():
+            trip.append(instance_counts(block, part.take(t) if not t.all() else part, mode,
+                                        pats))
+    nxt = Occ.concat(parts, mode != "first") if store else None
+    return nxt, trip
 
 
 def _extend_gap(block, occ, plan):
@@ -342,30 +472,36 @@ def _extend_gap(block, occ, plan):
     ok = plan.allowed[pid, sym]
     rep, j, sym, pid = rep[ok], j[ok], sym[ok], pid[ok]
     cand = sym.astype(np.int64) * n_pid + pid
-    key = cand * (block.T + 1) + j
-    order = np.argsort(key, kind="stable")
-    key = key[order]
-    start = occ.start[rep[order]]
-    heads = np.flatnonzero(run_heads(key))
-    if heads.size == 0:
+    T1 = block.T + 1
+    key = cand * T1 + j
+    if key.size == 0:
         return Occ.concat([], True)
-    start = np.maximum.reduceat(start, heads)
-    key = key[heads]
+    if int(key.max()) < np.iinfo(np.int64).max // T1:
+        # the latest start rides in the low digits: one value sort, keep each run's last
+        key2 = np.sort(key * T1 + occ.start[rep])
+        key = key2 // T1
+        last = np.ones(len(key), dtype=bool)
+        last[:-1] = key[1:] != key[:-1]
+        key, start = key[last], key2[last] % T1
+    else:
+        order = np.argsort(key)
+        key = key[order]
+        start = occ.start[rep[order]]
+        heads = np.flatnonzero(run_heads(key))
+        start = np.maximum.reduceat(start, heads)
+        key = key[heads]
     cand = key // (block.T + 1)
     j = (key % (block.T + 1)).astype(np.int32)
     return Occ(cand, block.seq_of_pos[j], j, start.astype(np.int32))
 
 
-def count_support(block, occ, n_cand, n_slots, cand_index=None):
-    """Distinct sequences per (candidate, group slot), shape (n_cand, n_slots)."""
+def count_support(block, occ, n_keys, n_slots):
+    """Distinct sequences per (candidate key, group slot), shape (n_keys, n_slots)."""
     if len(occ) == 0:
-        return np.zeros((n_cand, n_slots), dtype=np.int64)
+        return np.zeros((n_keys, n_slots), dtype=np.int64)
     head = run_heads(occ.pid, occ.seq)
-    cand = occ.pid[head]
-    if cand_index is not None:
-        cand = cand_index[cand]
-    key = cand.astype(np.int64) * n_slots + block.gidx[occ.seq[head]]
-    return np.bincount(key, minlength=n_cand * n_slots).reshape(n_cand, n_slots)
+    key = occ.pid[head].astype(np.int64) * n_slots + block.gidx[occ.seq[head]]
+    return np.bincount(key, minlength=n_keys * n_slots).reshape(n_keys, n_slots)
 
 
 # ------------------------------------------------------------ instance counts
@@ -377,11 +513,11 @@ def instance_counts(block, occ, mode, pats=None):
     continues from the first occurrence with the next-occurrence table.
     """
     if len(occ) == 0:
-        z = np.zeros(0, dtype=np.int64)
+        z = np.zeros(0, dtype=np.int32)
         return z, z.copy(), z.copy()
     if mode == "first":
         cnt = _jump_counts(block, pats, occ.pid, occ.seq, occ.end)
-        return occ.pid, occ.seq, cnt
+        return occ.pid.astype(np.int32), occ.seq.astype(np.int32), cnt.astype(np.int32)
     start = occ.start.astype(np.int64)
     end = occ.end.astype(np.int64)
     head = run_heads(occ.pid, occ.seq)
@@ -397,7 +533,7 @@ def instance_counts(block, occ, mode, pats=None):
     cnt = _chain_counts(grp, start, end, M)
     h = np.flatnonzero(head)
     sel = np.flatnonzero(run_heads(occ.pid, occ.seq))
-    return occ.pid[sel], occ.seq[sel], cnt[h]
+    return occ.pid[sel].astype(np.int32), occ.seq[sel].astype(np.int32), cnt[h].astype(np.int32)
 
 
 def _chain_counts(grp, start, end, M):
@@ -434,20 +570,35 @@ def _jump_counts(block, pats, pid, seq, end):
         return table[seq, pats[pid, 0]].astype(np.int64)
     nxf = block.nx().ravel()
     T2 = block.T + 2
+    dead = block.T + 1                                # NX[:, T + 1] = T: stays dead
+    itype = np.int32 if block.n_sym * T2 < 2 ** 31 else np.int64
+    rowoff = pats.astype(itype) * itype(T2)           # (n_pid, k) offsets into nxf
     n = len(pid)
-    cnt = np.ones(n, dtype=np.int64)
+    cnt = np.ones(n, dtype=np.int32)
     for c0 in range(0, n, _EXPAND_CHUNK):
         c1 = min(c0 + _EXPAND_CHUNK, n)
-        a_idx = np.arange(c0, c1)
-        a_cols = pats[pid[c0:c1]].astype(np.int64) * T2   # (n, k) row offsets into nxf
-        a_pos = end[c0:c1].astype(np.int64) + 1
-        a_lim = block.seq_end[seq[c0:c1]]
-        while a_idx.size:
-            p = a_pos
+        offs = np.ascontiguousarray(rowoff[pid[c0:c1]].T)   # (k, m)
+        pos = end[c0:c1].astype(itype) + 1
+        lim = block.seq_end[seq[c0:c1]].astype(itype)
+        idx = np.arange(c0, c1)
+        tmp = np.empty_like(pos)
+        while idx.size:
+            p = pos
             for j in range(k):
-                p = nxf[a_cols[:, j] + p] + 1
-            ok = p <= a_lim
-            a_idx = a_idx[ok]
-            cnt[a_idx] += 1
-            a_pos, a_lim, a_cols = p[ok], a_lim[ok], a_cols[ok]
+                np.add(offs[j], p, out=tmp)
+                np.take(nxf, tmp, out=p)
+                p += 1
+            ok = p <= lim
+            n_ok = int(np.count_nonzero(ok))
+            if n_ok == 0:
+                break
+            if n_ok < 0.5 * len(idx):
+                # compact when many pairs are done
+                idx, pos, lim, offs = idx[ok], p[ok], lim[ok], offs[:, ok]
+                tmp = np.empty_like(pos)
+                cnt[idx] += 1
+            else:
+                cnt[idx] += ok
+                p[~ok] = dead
+                pos = p
     return cnt

@@ -56,7 +56,7 @@ def _dask_map(func, items, scheduler, jobs):
     if scheduler == "local":
         n = jobs if isinstance(jobs, int) and jobs > 0 else 2
         with LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
-                          dashboard_address=None) as cluster, Client(cluster) as client:
+                          dashboard_address=":0") as cluster, Client(cluster) as client:
             return client.gather(client.map(func, items, pure=False))
     try:
         client = Client(scheduler, timeout="20s")

@@ -273,13 +273,15 @@ def svg_state_diagram(states, transmat, *, title, fig_id, min_prob=0.05):
                 graph.add_edge(i, j, p=float(a[i, j]))
     # Fixed circular layout (deterministic; first state at the top, clockwise).
     ang = [math.pi / 2 - 2 * math.pi * k / max(n, 1) for k in range(n)]
-    radius = 1.0 if n > 1 else 0.0
-    pos = {k: (radius * math.cos(t), radius * math.sin(t)) for k, t in enumerate(ang)}
+    rx, ry = (1.0, 1.0) if n <= 4 else (1.35, 1.0)  # wider than tall: boxes are wide
+    if n <= 1:
+        rx = ry = 0.0
+    pos = {k: (rx * math.cos(t), ry * math.sin(t)) for k, t in enumerate(ang)}
     with _style():
         ys = [xy[1] for xy in pos.values()] or [0.0]
         y_lo, y_hi = min(ys) - 0.5, max(ys) + 0.5
-        width = 4.8 if n <= 4 else 6.4
-        fig = Figure(figsize=(width, max(2.2, 0.5 + width * (y_hi - y_lo) / 3.4)))
+        width = 4.8 if n <= 4 else 7.2
+        fig = Figure(figsize=(width, max(2.2, 0.5 + width * (y_hi - y_lo) / (2 * rx + 1.4))))
         FigureCanvasAgg(fig)  # a renderer to measure the node boxes
         ax = fig.subplots()
         nodes = []
@@ -295,7 +297,7 @@ def svg_state_diagram(states, transmat, *, title, fig_id, min_prob=0.05):
                                  va="center", fontsize=8, linespacing=1.35, zorder=3,
                                  bbox={"boxstyle": "round,pad=0.5", "fc": color + "26",
                                        "ec": color, "lw": 1.2}))
-        ax.set_xlim(-1.7, 1.7)
+        ax.set_xlim(-rx - 0.7, rx + 0.7)
         ax.set_ylim(y_lo, y_hi)
         ax.set_axis_off()
         _title(fig, title)
@@ -316,8 +318,14 @@ def svg_state_diagram(states, transmat, *, title, fig_id, min_prob=0.05):
                                     "lw": 0.6 + 4.0 * p, "shrinkA": shrink[0],
                                     "shrinkB": shrink[1], "mutation_scale": 12,
                                     "connectionstyle": "arc3,rad=0.18"})
-            mx = (pos[i][0] + pos[j][0]) / 2 + 0.2 * (pos[j][1] - pos[i][1])
-            my = (pos[i][1] + pos[j][1]) / 2 - 0.2 * (pos[j][0] - pos[i][0])
+            # Label on the arc, a third of the way from the source (so that the two
+            # directions between a pair of states get separate labels).
+            (x0, y0), (x1, y1) = pos[i], pos[j]
+            cx = (x0 + x1) / 2 + 0.18 * (y1 - y0)
+            cy = (y0 + y1) / 2 - 0.18 * (x1 - x0)
+            t = 0.36
+            mx = (1 - t) ** 2 * x0 + 2 * (1 - t) * t * cx + t * t * x1
+            my = (1 - t) ** 2 * y0 + 2 * (1 - t) * t * cy + t * t * y1
             ax.text(mx, my, f"{p:.2f}", fontsize=7.5, ha="center", va="center",
                     color="#444444", zorder=4,
                     bbox={"boxstyle": "round,pad=0.15", "fc": "#ffffff", "ec": "none"})
@@ -372,7 +380,8 @@ def svg_prediction_curves(curves, *, fig_id, baseline=None, chance=None, ylabel,
             yv = np.asarray(c["value"], dtype=float)
             if c.get("low") is not None and c.get("high") is not None:
                 ax.fill_between(x, np.asarray(c["low"], float), np.asarray(c["high"], float),
-                                color=color, alpha=0.18, linewidth=0)
+                                color=color, alpha=0.18 if len(curves) <= 2 else 0.07,
+                                linewidth=0)
             ax.plot(x, yv, marker="o", markersize=3.5, color=color, lw=1.6,
                     label=clean_label(name, 32))
         if baseline is not None:

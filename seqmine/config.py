@@ -53,7 +53,8 @@ DEFAULT_CONFIG = {
     },
     "transitions": {"include_pauses": True},
     "phases": {"enabled": True, "min_states": 2, "max_states": 5, "restarts": 3,
-               "max_iter": 100},
+               "max_iter": 100, "criterion": "bic", "heldout_folds": 3,
+               "permutations": 19},
     "validate": {"enabled": True, "folds": 5,
                  "fractions": [0.1, 0.25, 0.5, 0.75, 1.0], "bootstrap": 500,
                  "top_patterns": 30, "hmm": {}},
@@ -77,7 +78,7 @@ def load_config(path):
     if not path.is_file():
         raise DataFileError(f"{path}: configuration file not found; check the path.")
     try:
-        data = tomllib.loads(path.read_text(encoding="utf-8"))
+        data = tomllib.loads(path.read_text(encoding="utf-8-sig"))
     except UnicodeDecodeError:
         raise DataFileError(f"{path}: not valid UTF-8 text; re-save the configuration as UTF-8.") from None
     except tomllib.TOMLDecodeError as exc:
@@ -98,10 +99,32 @@ def merge_config(base, overrides, source="configuration"):
                 if sub not in out[key]:
                     raise ParameterError(_unknown(source, f"{key}.{sub}",
                                                   [f"{key}.{k}" for k in out[key]]))
+                _check_type(source, f"{key}.{sub}", DEFAULT_CONFIG[key].get(sub), v)
                 out[key][sub] = v
         else:
+            _check_type(source, key, DEFAULT_CONFIG.get(key), value)
             out[key] = value
     return out
+
+
+def _check_type(source, key, default, value):
+    """The value must have the kind of its default (options defaulting to None take any)."""
+    if default is None or value is None:
+        return
+    if isinstance(default, bool):
+        ok, kind = isinstance(value, bool), "true or false"
+    elif isinstance(default, int):
+        ok, kind = isinstance(value, int) and not isinstance(value, bool), "a whole number"
+    elif isinstance(default, float):
+        ok, kind = isinstance(value, (int, float)) and not isinstance(value, bool), "a number"
+    elif isinstance(default, str):
+        ok, kind = isinstance(value, str), "a string in quotes"
+    elif isinstance(default, list):
+        ok, kind = isinstance(value, list), "a list, e.g. [...]"
+    else:
+        return
+    if not ok:
+        raise ParameterError(f"{source}: option '{key}' must be {kind}; got {value!r}.")
 
 
 def _unknown(source, key, valid):

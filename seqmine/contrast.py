@@ -509,8 +509,8 @@ def _prepare(patterns, db, lengths, groups, rate_unit, where):
         k = np.asarray(presence.sum(axis=0)).ravel()
         if np.all((k == 0) | (k == presence.shape[0])):
             warnings.warn(
-                f"No pattern's presence varies across the compared sequences (each is in "
-                f"all of them or none); every presence p-value is 1.", SeqmineWarning,
+                "No pattern's presence varies across the compared sequences (each is in "
+                "all of them or none); every presence p-value is 1.", SeqmineWarning,
                 stacklevel=3)
     return {"names": [all_names[g] for g in chosen], "labels": labels, "keep": keep,
             "presence": presence, "rates": rates, "rates_all": rates_all,

@@ -418,7 +418,11 @@ def load_detectors(path):
         raise DataFileError(f"{path}: not valid JSON (line {exc.lineno}, column {exc.colno}: "
                             f"{exc.msg}); fix the file or export it again.") from None
     except ValueError as exc:
-        raise DataFileError(f"{path}: {exc}; write null (or a number) instead.") from None
+        raise DataFileError(f"{path}: {' '.join(str(exc).split())}; write null (or a "
+                            f"number) instead.") from None
+    except RecursionError:
+        raise DataFileError(f"{path}: the JSON is nested too deeply to be a detectors file; "
+                            f"export it again with 'seqmine detectors'.") from None
     validate_detectors(doc, source=str(path))
     return doc
 
@@ -526,7 +530,9 @@ def _validate_encoding(enc, fail):
     implicit = pause.get("implicit", [])
     if not isinstance(edges, list) or not all(_is_num(e) for e in edges):
         fail("encoding.pause.edges", "must be a list of finite numbers of seconds.")
-    if any(b <= a for a, b in zip(edges, edges[1:])):
+    # quantile edges of tied gaps can be equal (the bin between them stays empty);
+    # hand-set (fixed) edges must be strictly ascending, as the Encoder requires
+    if any(b < a or (b == a and strategy == "fixed") for a, b in zip(edges, edges[1:])):
         fail("encoding.pause.edges", f"{edges} must be strictly ascending.")
     if not isinstance(labels, list) or not all(isinstance(x, str) and x for x in labels):
         fail("encoding.pause.labels", "must be a list of non-empty bin names.")

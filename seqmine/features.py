@@ -101,6 +101,16 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
     When no pattern passes the selection, the output is a single all-zero column
     ``"no_pattern"`` so that a downstream classifier still fits (and predicts the
     training prior).
+
+    Examples
+    --------
+    >>> db = SequenceDB.from_lists([["a", "b", "c"]] * 6 + [["c", "b", "a"]] * 6,
+    ...                            groups=["x"] * 6 + ["y"] * 6)
+    >>> f = PatternFeaturizer(min_length=2, top_k=2).fit(db)
+    >>> f.patterns_
+    [('a', 'b'), ('a', 'b', 'c')]
+    >>> f.transform(db)[[0, 6]].round(1).tolist()
+    [[33.3, 33.3], [0.0, 0.0]]
     """
 
     def __init__(self, *, min_support=0.1, min_length=1, max_length=3, max_gap=0,
@@ -319,6 +329,15 @@ class HMMLikelihoodFeaturizer(TransformerMixin, BaseEstimator):
     models_ : object
         The fitted group models (a GroupHMMClassifier or a list of hmmlearn models).
     group_names_ : list of str
+
+    Examples
+    --------
+    >>> db = SequenceDB.from_lists([["a", "a", "b"]] * 6 + [["b", "b", "a"]] * 6,
+    ...                            groups=["x"] * 6 + ["y"] * 6)
+    >>> f = HMMLikelihoodFeaturizer(n_states=2, n_restarts=1).fit(db)
+    >>> X = f.transform(db)
+    >>> X.shape, bool(X[6:].mean() > X[:6].mean())
+    ((12, 1), True)
     """
 
     def __init__(self, *, n_states=3, n_restarts=2, n_iter=50, smoothing=1e-3, seed=0,

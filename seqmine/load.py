@@ -157,6 +157,12 @@ def load_events(path, *, columns=None, format=None, delimiter=None, encoding="ut
     [[4, 'missing_learner']]
     """
     check_choice(duplicates, "duplicates", ("reject", "keep"), "load_events")
+    if delimiter in ("\\t", "tab", "TAB"):  # a tab typed on a command line
+        delimiter = "\t"
+    if delimiter is not None and (not isinstance(delimiter, str) or len(delimiter) != 1
+                                  or delimiter in "\"\r\n"):
+        raise ParameterError(f"The delimiter must be one character such as ',' ';' or a tab; "
+                             f"got {delimiter!r}.")
     path = Path(path)
     cols = _resolve_columns(columns)
     if not path.exists():
@@ -297,10 +303,8 @@ def _read_delimited(path, fmt, delimiter, encoding):
     try:
         with open(path, encoding=enc, newline="") as fh:
             header = fh.readline()
-    except UnicodeDecodeError as exc:
-        raise DataFileError(
-            f"{path}: not valid {encoding} text (byte {exc.start} of the header); re-save "
-            f"the file as UTF-8 or pass --encoding (e.g. latin-1).") from None
+    except UnicodeDecodeError:
+        raise DataFileError(_decode_message(path, encoding)) from None
     except LookupError:
         raise ParameterError(f"Unknown text encoding {encoding!r}; use e.g. utf-8 or latin-1.") from None
     if not header.strip():
@@ -313,10 +317,8 @@ def _read_delimited(path, fmt, delimiter, encoding):
     try:
         df = pd.read_csv(path, sep=sep, dtype=str, keep_default_na=False, na_values=[],
                          encoding=enc, skip_blank_lines=True, engine="c")
-    except UnicodeDecodeError as exc:
-        raise DataFileError(
-            f"{path}: not valid {encoding} text (byte offset {exc.start} in a chunk); re-save "
-            f"the file as UTF-8 or pass --encoding (e.g. latin-1).") from None
+    except UnicodeDecodeError:
+        raise DataFileError(_decode_message(path, encoding)) from None
     except pd.errors.EmptyDataError:
         raise DataFileError(f"{path}: no columns found; is the file empty?") from None
     except pd.errors.ParserError as exc:
@@ -364,10 +366,8 @@ def _iter_lines(path, encoding):
         with open(path, encoding=enc) as fh:
             for line in fh:
                 yield line
-    except UnicodeDecodeError as exc:
-        raise DataFileError(
-            f"{path}: not valid {encoding} text (byte {exc.start}); re-save as UTF-8 or "
-            f"pass --encoding.") from None
+    except UnicodeDecodeError:
+        raise DataFileError(_decode_message(path, encoding)) from None
 
 
 def _read_jsonl(path, encoding):
@@ -377,19 +377,49 @@ def _read_jsonl(path, encoding):
         if not line.strip():
             continue
         row += 1
-        try:
-            obj = json.loads(line)
-        except json.JSONDecodeError:
-            obj = None
+        obj = _json_or_none(line)
         if not isinstance(obj, dict):
             bad.append(row)
             records.append({})
         else:
             records.append({str(k): ("" if v is None else str(v)) for k, v in obj.items()
                             if not isinstance(v, (dict, list))})
-    df = pd.DataFrame.from_records(records).fillna("") if records else pd.DataFrame()
+    df = _frame(records)
     df.attrs["bad_rows"] = {r: "bad_json" for r in bad}
     return df
+
+
+def _json_or_none(line):
+    """The parsed line, or None when it is not JSON Python can hold (also integers
+    past the 4300-digit conversion limit and nesting past the recursion limit)."""
+    try:
+        return json.loads(line)
+    except (ValueError, RecursionError):
+        return None
+
+
+def _frame(records):
+    """One row per record, even when every record is empty (unreadable lines)."""
+    if not records:
+        return pd.DataFrame()
+    return pd.DataFrame(records, index=pd.RangeIndex(len(records))).fillna("")
+
+
+def _decode_message(path, encoding):
+    """One-line message naming the first line of ``path`` that is not ``encoding`` text."""
+    where = ""
+    try:
+        with open(path, "rb") as fh:
+            for lineno, raw in enumerate(fh, 1):
+                try:
+                    raw.decode(encoding)
+                except UnicodeDecodeError as exc:
+                    where = f" (line {lineno}, byte {exc.start + 1} of that line)"
+                    break
+    except (OSError, LookupError):  # pragma: no cover - the first read already worked
+        pass
+    return (f"{path}: not valid {encoding} text{where}; re-save the file as UTF-8 or pass "
+            f"--encoding (e.g. latin-1).")
 
 
 def _xapi_text(value):
@@ -433,14 +463,8 @@ def _read_xapi(path, encoding):
         statements = doc.get("statements", []) if isinstance(doc, dict) else doc
         if isinstance(doc, dict) and "statements" not in doc:
             statements = [doc]
-    except json.JSONDecodeError:
-        statements = []
-        for line in text.splitlines():
-            if line.strip():
-                try:
-                    statements.append(json.loads(line))
-                except json.JSONDecodeError:
-                    statements.append(None)
+    except (ValueError, RecursionError):  # not one JSON document: try one per line
+        statements = [_json_or_none(line) for line in text.splitlines() if line.strip()]
     if not isinstance(statements, list):
         raise DataFileError(f"{path}: expected a JSON array of xAPI statements.")
     records, bad = [], {}
@@ -466,7 +490,7 @@ def _read_xapi(path, encoding):
         if not (rec["learner"] and rec["action"] and rec["time"]):
             bad[i] = "bad_statement"
         records.append(rec)
-    df = pd.DataFrame.from_records(records).fillna("") if records else pd.DataFrame()
+    df = _frame(records)
     df.attrs["bad_rows"] = bad
     return df
 

@@ -11,7 +11,10 @@ in at least one group: ``support_count[g] / group_size[g] >= min_support`` (or
 ``support_count[g] >= min_support`` for an integer count) for some group ``g``.
 A database without groups is treated as one group named ``"all"``.
 
-Output order: by length, then lexicographically by vocabulary id.
+Output order (deterministic): by length, then by last item, then by the item
+before it, and so on (vocabulary ids) -- the order in which the level-wise search
+numbers the patterns of a level (every new pattern is numbered by its last item
+first, then by its prefix's number), so no sort is needed.
 """
 
 from __future__ import annotations
@@ -25,10 +28,9 @@ import numpy as np
 import pandas as pd
 import scipy.sparse as sp
 
-from . import _mine_kernels as K
-from ._progress import progress
+from ._mine_search import assemble_counts, build_trie, node_offsets, search
 from ._validation import check_int
-from .errors import DataFileError, ParameterError, PatternExplosionError
+from .errors import DataFileError, ParameterError
 from .patterns import PatternSet, parse_pattern
 from .sequences import SequenceDB
 
@@ -40,13 +42,15 @@ DEFAULT_MAX_PATTERNS = 200_000
 
 _PS_FORMAT = "seqmine-patternset"
 _PS_VERSION = 1
+#: Windows up to this many tokens run in the gap mode with the implied gap.
+_IMPLIED_GAP_WINDOW = 16
 #: Pattern lengths up to which closed/maximal filtering enumerates sub-patterns in bulk.
 _MAX_BULK_SUBSET_LENGTH = 12
 
 
 def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_window=None,
          skip_pauses=False, start_with_action=False, end_with_action=False, closed=False,
-         maximal=False, max_patterns=DEFAULT_MAX_PATTERNS):
+         maximal=False, max_patterns=DEFAULT_MAX_PATTERNS, instance_counts=True):
     """Mine ordered patterns that are frequent in at least one group.
 
     Parameters
@@ -73,11 +77,16 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
     max_patterns : int
         Stop with :class:`~seqmine.errors.PatternExplosionError` when more frequent
         patterns than this are found.
+    instance_counts : bool
+        Compute the sequences x patterns instance-count matrix (default). With
+        False only patterns and supports are mined (faster); the matrix is then
+        left empty and ``constraints["instance_counts"]`` is False.
 
     Returns
     -------
     PatternSet
-        Patterns ordered by length, then by vocabulary ids; per-group sequence
+        Patterns ordered by length, then by last item, item before it, ... (vocabulary
+        ids; see the module docstring); per-group sequence
         support; a sparse sequences x patterns matrix of instance counts
         (earliest-end greedy, non-overlapping spans).
 
@@ -103,6 +112,8 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
     ['a', 'b', 'c', 'a > c', 'b > c']
     >>> ps.support_counts[:, 0].tolist()
     [2, 2, 3, 2, 2]
+    >>> mine(db, min_support=1, min_length=2, max_length=2).names
+    ['a > b', 'a > c', 'b > c']
     """
     where = "mine"
     _check_db(db, where)
@@ -115,7 +126,7 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
     max_patterns = check_int(max_patterns, "max_patterns", where, minimum=1)
     for name, val in (("skip_pauses", skip_pauses), ("start_with_action", start_with_action),
                       ("end_with_action", end_with_action), ("closed", closed),
-                      ("maximal", maximal)):
+                      ("maximal", maximal), ("instance_counts", instance_counts)):
         if not isinstance(val, (bool, np.bool_)):
             raise ParameterError(f"The '{name}' parameter of mine must be True or False. "
                                  f"Got {val!r} instead.")
@@ -131,7 +142,7 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
     level1 = np.arange(len(alphabet))
     if start_with_action:
         level1 = level1[~is_pause_local]
-    mode = _mode(max_gap, max_window)
+    mode, engine_cons = _engine(max_gap, max_window, skip_pauses)
 
     def allowed_fn(levels, k):
         lev = levels[k]
@@ -143,7 +154,7 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
         allowed = np.ones((len(q), n_sym), dtype=bool)
         has = q >= 0
         allowed[has] = table[q[has]] >= 0
-        if mode != "gap":
+        if max_gap is None:  # without a gap limit p[:-1] + s is a sub-pattern too
             allowed &= table[lev["parent"]] >= 0
         return allowed
 
@@ -156,20 +167,19 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
             ok &= ~is_pause_local[lev["sym"]]
         return ok
 
-    levels, triples = _search(
+    levels, triples = search(
         db, alphabet=alphabet, gidx=gidx, G=G, mode=mode, level1=level1,
         allowed_fn=allowed_fn, keep_fn=keep_fn, target_fn=target_fn,
         max_length=max_length, max_patterns=max_patterns,
-        cons=dict(max_gap=max_gap, max_window=max_window, skip_pauses=bool(skip_pauses)))
+        cons=engine_cons,
+        with_counts=bool(instance_counts))
 
     # collect reported candidates in (length, lexicographic) order
     pats, support, nodes = [], [], []
-    offsets = _node_offsets(levels)
+    offsets = node_offsets(levels)
     for k in range(1, len(levels)):
         lev = levels[k]
-        tgt = np.flatnonzero(lev["target"])
-        # nodes are numbered symbol-major; report them lexicographically
-        tgt = tgt[np.lexsort(lev["pats"][tgt].T[::-1])]
+        tgt = np.flatnonzero(lev["target"])   # in search order (see module docstring)
         nodes.append(tgt + offsets[k])
         rows = alphabet[lev["pats"][tgt]]
         pats.extend(tuple(r) for r in rows.tolist())
@@ -184,13 +194,14 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
             keep &= ~not_maximal
     idx = np.flatnonzero(keep)
     nodes = np.concatenate(nodes) if nodes else np.zeros(0, dtype=np.int64)
-    counts = _assemble_counts(triples, offsets, nodes[idx])
+    counts = assemble_counts(triples, offsets, nodes[idx])
     constraints = dict(
         min_support=min_support, min_length=min_length, max_length=max_length,
         max_gap=max_gap, max_window=max_window, skip_pauses=bool(skip_pauses),
         start_with_action=bool(start_with_action), end_with_action=bool(end_with_action),
         closed=bool(closed), maximal=bool(maximal), max_patterns=max_patterns,
-        order="length, then vocabulary ids")
+        instance_counts=bool(instance_counts),
+        order="length, then last item, item before it, ... (vocabulary ids)")
     return PatternSet(
         patterns=[pats[i] for i in idx], vocab=list(db.vocab), is_pause=db.is_pause.copy(),
         group_names=names, group_sizes=sizes, support_counts=support[idx],
@@ -242,8 +253,8 @@ def match(db, patterns, *, max_gap=None, max_window=None, skip_pauses=False):
     lut = np.full(len(db.vocab), -1, dtype=np.int64)
     lut[alphabet] = np.arange(len(alphabet))
     local = [tuple(lut[list(p)].tolist()) for p in pats]
-    trie = _build_trie(local, len(alphabet))
-    mode = _mode(max_gap, max_window)
+    trie = build_trie(local, len(alphabet))
+    mode, engine_cons = _engine(max_gap, max_window, skip_pauses)
 
     def allowed_fn(levels, k):
         return trie[k + 1]["child_in"] >= 0 if k + 1 < len(trie) else \
@@ -255,15 +266,15 @@ def match(db, patterns, *, max_gap=None, max_window=None, skip_pauses=False):
     def target_fn(k, lev):
         return trie[k]["is_pattern"]
 
-    levels, triples = _search(
+    levels, triples = search(
         db, alphabet=alphabet, gidx=gidx, G=G, mode=mode, level1=trie[1]["sym"],
         allowed_fn=allowed_fn, keep_fn=keep_fn, target_fn=target_fn,
-        max_length=len(trie) - 1, max_patterns=None, cons=constraints)
-    offsets = _node_offsets(levels)
+        max_length=len(trie) - 1, max_patterns=None, cons=engine_cons)
+    offsets = node_offsets(levels)
     support = np.concatenate([levels[k]["support"] for k in range(1, len(levels))])
     # (a pattern's global node: offsets[length] + its number within the level)
     nodes = np.array([offsets[len(p)] + trie[len(p)]["index"][p] for p in local], dtype=np.int64)
-    counts = _assemble_counts(triples, offsets, nodes)
+    counts = assemble_counts(triples, offsets, nodes)
     return PatternSet(
         patterns=[tuple(int(t) for t in p) for p in pats], vocab=list(db.vocab),
         is_pause=db.is_pause.copy(), group_names=names, group_sizes=sizes,
@@ -306,6 +317,17 @@ def save_patternset(ps, folder, *, table_name="patterns.csv"):
     -------
     pathlib.Path
         The folder.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> db = SequenceDB.from_lists([["a", "b"], ["b", "a", "b"]])
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     folder = save_patternset(mine(db, min_support=2), tmp)
+    ...     sorted(p.name for p in folder.iterdir())
+    ...     load_patternset(folder).names
+    ['counts.npz', 'patterns.csv', 'patternset.json']
+    ['a', 'b', 'a > b']
     """
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
@@ -330,7 +352,17 @@ def save_patternset(ps, folder, *, table_name="patterns.csv"):
 
 
 def load_patternset(folder):
-    """Read a PatternSet written by :func:`save_patternset` (folder or its CSV path)."""
+    """Read a PatternSet written by :func:`save_patternset` (folder or its CSV path).
+
+    Parameters
+    ----------
+    folder : str or pathlib.Path
+        The folder, or the path of the pattern table inside it.
+
+    Returns
+    -------
+    PatternSet
+    """
     folder = Path(folder)
     if folder.suffix.lower() == ".csv":
         folder = folder.parent
@@ -379,10 +411,23 @@ def _check_constraints(max_gap, max_window, where, min_length):
     return max_gap, max_window
 
 
-def _mode(max_gap, max_window):
+def _engine(max_gap, max_window, skip_pauses):
+    """Projection mode and the constraints it runs with.
+
+    A short window alone runs in the gap mode with the gap the window implies (two
+    consecutive items inside a window of ``w`` tokens have at most ``w - 2`` tokens
+    between them, or ``w`` non-pause tokens when pauses are skipped), which prunes
+    the same occurrences as the window and is faster than tracking minimal windows.
+    """
+    cons = dict(max_gap=max_gap, max_window=max_window, skip_pauses=bool(skip_pauses))
     if max_gap is not None:
-        return "gap"
-    return "frontier" if max_window is not None else "first"
+        return "gap", cons
+    if max_window is None:
+        return "first", cons
+    if max_window <= _IMPLIED_GAP_WINDOW:
+        cons["max_gap"] = max_window if skip_pauses else max(max_window - 2, 0)
+        return "gap", cons
+    return "frontier", cons
 
 
 def _group_slots(db, allow_empty=False):
@@ -445,162 +490,6 @@ def _symbol_support(db, gidx, G):
         r, c = np.nonzero(pres)
         out += np.bincount(c * (G + 1) + gidx[s0:s1][r], minlength=V * (G + 1)).reshape(V, G + 1)
     return out[:, :G]
-
-
-def _search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_fn,
-            max_length, max_patterns, cons):
-    """Level-wise bulk projection shared by :func:`mine` and :func:`match`.
-
-    Returns ``levels`` (index 0 = the root) with per-level node arrays ``parent``,
-    ``sym``, ``suffix``, ``pats`` (local symbols), ``support`` (n, G), ``child_in``
-    (table of level k-1 ids x symbols -> level k ids), ``target``; and the instance
-    count triples per block ``(n_seq, [(level, node, local seq, count), ...])``.
-    """
-    n_sym = len(alphabet)
-    lut = np.full(len(db.vocab), -1, dtype=np.int32)
-    lut[alphabet] = np.arange(n_sym, dtype=np.int32)
-    tok_local = lut[db.tokens]
-    nonpause = (~db.is_pause[db.tokens]).astype(np.int64) if cons["skip_pauses"] else None
-    blocks = K.make_blocks(tok_local, db.lengths, gidx, n_sym=n_sym, mode=mode,
-                           nonpause=nonpause, **cons)
-    slots = G + 1
-    root = dict(parent=np.zeros(1, np.int64), sym=np.zeros(1, np.int64),
-                suffix=np.full(1, -1, np.int64), pats=np.zeros((1, 0), np.int64),
-                support=np.zeros((1, G), np.int64), child_in=None,
-                target=np.zeros(1, bool))
-    levels = [root]
-    triples = [(block.n_seq, []) for block in blocks]
-    occ = [None] * len(blocks)
-    total = 0
-    k = 0
-    bar = progress(total=max_length, desc="mining levels", unit="level")
-    try:
-        while max_length is None or k < max_length:
-            n_prev = len(levels[k]["sym"])
-            if k == 0:
-                allowed = np.zeros((1, n_sym), dtype=bool)
-                allowed[0, level1] = True
-            else:
-                allowed = allowed_fn(levels, k)
-            plan = K.LevelPlan(allowed)
-            flat = np.flatnonzero(plan.allowed_t.ravel())   # keys sym * n_prev + parent
-            if flat.size == 0:
-                break
-            cand_index = np.full(n_prev * n_sym, -1, dtype=np.int64)
-            cand_index[flat] = np.arange(len(flat))
-            counts = np.zeros((len(flat), slots), dtype=np.int64)
-            ext = []
-            for b, block in enumerate(blocks):
-                if k == 0:
-                    e = K.root_extend(block, level1, mode)
-                else:
-                    e = K.extend(block, occ[b], plan, mode)
-                    block.release()
-                counts += K.count_support(block, e, len(flat), slots, cand_index)
-                ext.append(e)
-            keep = keep_fn(k + 1, counts[:, :G], flat)
-            new_flat = flat[keep]
-            if new_flat.size == 0:
-                break
-            new_id = np.full(n_prev * n_sym, -1, dtype=np.int64)
-            new_id[new_flat] = np.arange(len(new_flat))
-            parent = new_flat % n_prev
-            sym = new_flat // n_prev
-            prev = levels[k]
-            if k == 0:
-                suffix = np.zeros(len(new_flat), dtype=np.int64)
-            else:
-                q = prev["suffix"][parent]
-                table = prev["child_in"]
-                suffix = np.full(len(new_flat), -1, dtype=np.int64)
-                has = q >= 0
-                suffix[has] = table[q[has], sym[has]]
-            lev = dict(parent=parent, sym=sym, suffix=suffix,
-                       pats=np.concatenate([prev["pats"][parent], sym[:, None]], axis=1),
-                       support=counts[keep, :G],
-                       child_in=np.ascontiguousarray(new_id.reshape(n_sym, n_prev).T))
-            lev["target"] = target_fn(k + 1, lev)
-            levels.append(lev)
-            total += len(new_flat)
-            if max_patterns is not None and total > max_patterns:
-                raise PatternExplosionError(
-                    f"Mining stopped: more than {max_patterns} frequent patterns (reached at "
-                    f"length {k + 1}). Raise 'max_patterns' (--max-patterns) if you need them "
-                    f"all, or raise 'min_support', lower 'max_length' or set 'max_gap'.")
-            for b, block in enumerate(blocks):
-                e = ext[b]
-                ext[b] = None
-                pid = new_id[e.pid]
-                ok = pid >= 0
-                e = e.take(ok)
-                e.pid = pid[ok].astype(np.int32)
-                occ[b] = e
-                if lev["target"].any():
-                    t = e.take(lev["target"][e.pid])
-                    node, seq, cnt = K.instance_counts(block, t, mode, lev["pats"])
-                    triples[b][1].append((k + 1, node, seq, cnt))
-                block.release()
-            k += 1
-            bar.update(1)
-    finally:
-        bar.close()
-    return levels, triples
-
-
-def _node_offsets(levels):
-    """Global node number of the first node of each level (the root is not counted)."""
-    sizes = [0, 0] + [len(levels[k]["sym"]) for k in range(1, len(levels))]
-    return np.cumsum(sizes)   # offsets[k] = first node of level k; offsets[-1] = total
-
-
-def _assemble_counts(triples, offsets, select):
-    """Sparse (n_sequences, len(select)) instance counts of the global nodes ``select``.
-
-    Each block's triples arrive sorted by (level, node, sequence), so a block's
-    nodes x sequences CSR is built without sorting; rows are picked in output order,
-    transposed (linear time) and the blocks stacked.
-    """
-    n_nodes = int(offsets[-1])
-    select = np.asarray(select, dtype=np.int64)
-    parts = []
-    for n_seq, trip in triples:
-        if trip:
-            node = np.concatenate([nd.astype(np.int64) + offsets[k] for k, nd, _, _ in trip])
-            seq = np.concatenate([sq for _, _, sq, _ in trip]).astype(np.int32)
-            cnt = np.concatenate([c for _, _, _, c in trip]).astype(np.int32)
-        else:
-            node = np.zeros(0, dtype=np.int64)
-            seq = cnt = np.zeros(0, dtype=np.int32)
-        indptr = np.zeros(n_nodes + 1, dtype=np.int64)
-        np.cumsum(np.bincount(node, minlength=n_nodes), out=indptr[1:])
-        by_node = sp.csr_matrix((cnt, seq, indptr), shape=(n_nodes, n_seq))
-        by_node.has_sorted_indices = True
-        parts.append(by_node[select].T.tocsr())
-    return sp.vstack(parts, format="csr") if len(parts) > 1 else parts[0]
-
-
-def _build_trie(local, n_sym):
-    """Prefix tree of the (local-symbol) patterns, one dict per level (index 0 = root).
-
-    Nodes of a level are numbered like the search numbers them: by last symbol,
-    then by the parent's number.
-    """
-    max_len = max(len(p) for p in local)
-    pattern_set = set(local)
-    trie = [dict(index={(): 0})]
-    for k in range(1, max_len + 1):
-        prev_index = trie[k - 1]["index"]
-        nodes = sorted({p[:k] for p in local if len(p) >= k},
-                       key=lambda t: (t[-1], prev_index[t[:-1]]))
-        index = {t: i for i, t in enumerate(nodes)}
-        child_in = np.full((len(prev_index), n_sym), -1, dtype=np.int64)
-        for t, i in index.items():
-            child_in[prev_index[t[:-1]], t[-1]] = i
-        trie.append(dict(index=index, child_in=child_in,
-                         sym=np.array(sorted({t[-1] for t in nodes}) if k == 1 else [],
-                                      dtype=np.int64),
-                         is_pattern=np.array([t in pattern_set for t in nodes], dtype=bool)))
-    return trie
 
 
 def _normalize_patterns(patterns, db):

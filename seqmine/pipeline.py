@@ -295,7 +295,9 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
         with stages("phase models"):
             phases = fit_phases(db, n_states=range(ph_cfg["min_states"], ph_cfg["max_states"] + 1),
                                 n_restarts=ph_cfg["restarts"], seed=seed, n_jobs=jobs,
-                                n_iter=ph_cfg["max_iter"])
+                                n_iter=ph_cfg["max_iter"], criterion=ph_cfg["criterion"],
+                                n_folds=ph_cfg["heldout_folds"],
+                                n_permutations=ph_cfg["permutations"])
             phases.save(out / "phases")
             files.append(out / "phases")
             summary["phases"] = {"n_states": int(phases.n_states)}

@@ -21,9 +21,10 @@ from pathlib import Path
 
 import pandas as pd
 
+from . import _report_html as hx
 from . import _report_sections as sec
 from ._report_examples import build_examples
-from ._report_sections import esc
+from ._report_html import esc
 from .errors import DataFileError
 from ._version import __version__
 
@@ -302,7 +303,7 @@ def write_examples(out_dir, db, patterns, **kwargs):
         df = patterns
         if "redundant_of" in df.columns:
             df = df[df["redundant_of"].fillna("").astype(str).str.strip() == ""]
-        top, _ = sec.top_patterns(df, alpha, max_patterns)
+        top, _ = hx.top_patterns(df, alpha, max_patterns)
         names = [str(p) for p in top["pattern"]]
         favours = ([("" if pd.isna(f) else str(f)) for f in top["favours"]]
                    if "favours" in top.columns else None)
@@ -423,7 +424,7 @@ def _read_models(folder, phases_summary):
 
 
 def _group_names(summary, d):
-    groups = sec.group_names_of(summary)
+    groups = hx.group_names_of(summary)
     if groups:
         return groups
     pat = d["patterns"].value
@@ -431,7 +432,7 @@ def _group_names(summary, d):
         found = [c[len("support_"):] for c in pat.columns if c.startswith("support_")]
         if found:
             return found
-    counts = sec.counts_of(summary)
+    counts = hx.counts_of(summary)
     per = counts.get("sequences_per_group") or counts.get("learners_per_group")
     if isinstance(per, dict):
         return [str(g) for g in per]
@@ -439,7 +440,7 @@ def _group_names(summary, d):
 
 
 def _alpha(summary):
-    value = sec.lookup(summary, "alpha")
+    value = hx.lookup(summary, "alpha")
     try:
         value = float(value)
     except (TypeError, ValueError):
@@ -451,7 +452,7 @@ def _alpha(summary):
 
 
 def _page(d, *, examples, max_patterns, max_examples):
-    figs = sec.FigureIds()
+    figs = hx.FigureIds()
     parts = [
         sec.section_intro(d),
         sec.section_overview(d, figs),
@@ -474,6 +475,6 @@ def _page(d, *, examples, max_patterns, max_examples):
         "style-src 'unsafe-inline'; base-uri 'none'; form-action 'none'\">\n"
         "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n"
         "<meta name=\"referrer\" content=\"no-referrer\">\n"
-        f"<title>{sec.PAGE_TITLE}</title>\n<style>\n{sec.CSS}</style>\n</head>\n<body>\n"
+        f"<title>{hx.PAGE_TITLE}</title>\n<style>\n{hx.CSS}</style>\n</head>\n<body>\n"
         f"<main>\n{body}\n</main>\n<footer>{footer}</footer>\n</body>\n</html>\n"
     )

@@ -18,7 +18,12 @@ __all__ = [
     "quasi_independence_expected",
     "yules_q",
     "TRANSITION_COLUMNS",
+    "MAX_TRANSITION_CELLS",
 ]
+
+#: Largest number of cells (groups x vocabulary x vocabulary) of the dense transition
+#: tables; about 2 GB of working memory. Larger vocabularies stop with a message.
+MAX_TRANSITION_CELLS = 2**25
 
 #: Columns of the table returned by :func:`transitions` (``transitions.csv``).
 TRANSITION_COLUMNS = [
@@ -93,6 +98,7 @@ def transitions(db, *, exclude_pauses=False, structural_zeros="auto", correction
     1  strong    a  b      6          1.0
     2  strong    b  a      3          1.0
     """
+    _check_size(db)
     structural = _structural_mask(db, structural_zeros)
     correction = check_choice(correction, "correction", ("bh", "holm"), "transitions")
     counts, names = transition_counts(db, exclude_pauses=exclude_pauses)
@@ -160,6 +166,7 @@ def transition_counts(db, *, exclude_pauses=False):
     >>> names, counts[0].tolist()
     (['all'], [[0, 1], [1, 1]])
     """
+    _check_size(db)
     tokens = np.asarray(db.tokens, dtype=np.int64)
     seq = db.seq_index
     if exclude_pauses:
@@ -269,6 +276,15 @@ def yules_q(a, b, c, d):
 
 
 # --------------------------------------------------------------------- helpers
+def _check_size(db):
+    v, g = len(db.vocab), max(db.n_groups, 1)
+    if g * v * v > MAX_TRANSITION_CELLS:
+        raise ParameterError(
+            f"The vocabulary has {v} distinct tokens; the transition tables would need "
+            f"{g} x {v} x {v} cells (limit {MAX_TRANSITION_CELLS}). Merge rare actions with "
+            f"--mapping or use a coarser --template.")
+
+
 def _structural_mask(db, structural_zeros):
     v = len(db.vocab)
     if isinstance(structural_zeros, str):

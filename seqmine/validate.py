@@ -28,7 +28,7 @@ from sklearn.preprocessing import StandardScaler
 from ._classification_metrics import early_prediction_table
 from ._parallel import parallel_map
 from ._progress import progress
-from ._validation import check_fraction, check_int, check_number
+from ._validation import check_choice, check_fraction, check_int, check_number
 from .errors import ParameterError
 from .features import FrequencyPauseFeaturizer, HMMLikelihoodFeaturizer, PatternFeaturizer
 
@@ -58,8 +58,8 @@ CLASSIFIERS = {
 
 def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTIONS,
              grouping=None, encoder=None, featurizers=None, classifiers=None, C=1.0,
-             n_bootstrap=1000, confidence=0.95, alpha=0.05, seed=0, n_jobs=1,
-             scheduler=None):
+             train_on="full", n_bootstrap=1000, confidence=0.95, alpha=0.05, seed=0,
+             n_jobs=1, scheduler=None):
     """Cross-validate the discovery pipeline by learner and measure early prediction.
 
     Parameters
@@ -72,9 +72,7 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
     folds : int, default 5
         Number of stratified folds (ignored when ``loo``).
     loo : bool, default False
-        Leave one learner out instead of k folds. The majority baseline is
-        pessimistic under leave-one-out (removing a learner tips the training
-        majority towards the other group), so prefer k folds for the comparison.
+        Leave one learner out instead of k folds (see Notes on the baseline).
     fractions : sequence of float in (0, 1]
         Observed fractions of each held-out sequence (of its action events, see
         :meth:`SequenceDB.cut`).
@@ -91,6 +89,12 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
         Names from :data:`CLASSIFIERS` to compare (default: all five).
     C : float, default 1.0
         Inverse L2 regularisation strength of the logistic regression.
+    train_on : {"full", "matched"}, default "full"
+        ``"full"``: the classifiers are trained on the full training sequences and
+        applied to every cut of the held-out ones. ``"matched"``: for each
+        fraction the classifiers (not the discovery steps) are re-trained on the
+        training sequences cut to the same fraction, so training and test see
+        equally long beginnings.
     n_bootstrap : int, default 1000
         Bootstrap resamples of the held-out learners for the confidence intervals.
     confidence : float, default 0.95
@@ -112,14 +116,33 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
 
     Notes
     -----
+    *Classifiers* (:data:`CLASSIFIERS`): ``pattern`` -- rates of the patterns
+    selected on the training fold (:class:`~seqmine.features.PatternFeaturizer`);
+    ``hmm`` -- per-token log-likelihood ratio between the group HMMs
+    (:class:`~seqmine.features.HMMLikelihoodFeaturizer`); ``frequency_pause`` --
+    relative action frequencies plus mean and sd of log pauses
+    (:class:`~seqmine.features.FrequencyPauseFeaturizer`); ``fusion`` -- the three
+    feature sets stacked into one model; each of these is standardised and fed to an
+    L2-regularised logistic regression. ``majority`` predicts the training fold's
+    most frequent group (:class:`~sklearn.dummy.DummyClassifier`).
+
     Held-out learners are labelled with the *training* fold's grouping thresholds
     and encoded with the training pause edges. The fold split is stratified by the
     grouping fitted on all learners; that only balances fold composition and does
-    not enter any fitted model. Classifiers are trained on the full training
-    sequences and applied to the cut held-out sequences; pattern features are
-    rates per 100 tokens so their scale does not depend on sequence length. When
+    not enter any fitted model. By default classifiers are trained on the full
+    training sequences and applied to the cut held-out sequences (see
+    ``train_on``); pattern features are rates per 100 tokens so their scale does
+    not depend on sequence length. When
     a learner has several sequences, the predicted probabilities of its sequences
     are averaged and the learner is the unit of every metric.
+
+    Learners with events but no outcome, or whose outcome gives no group on all
+    learners (e.g. the middle of a ``fraction`` split), take no part; a held-out
+    learner that gets no group under the training thresholds is not scored.
+
+    With leave-one-out, fixed labels and balanced groups the majority baseline is
+    always wrong (the held-out learner's group is the training minority), which
+    flatters every classifier; prefer k folds for the comparison with the baseline.
     """
     where = "validate"
     fractions = _check_fractions(fractions)
@@ -127,6 +150,7 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
     check_fraction(confidence, "confidence", where, high_inclusive=False)
     check_fraction(alpha, "alpha", where, high_inclusive=False)
     check_number(C, "C", where, minimum=0, strict=True)
+    check_choice(train_on, "train_on", ("full", "matched"), where)
     check_int(n_jobs, "n_jobs", where, minimum=-1)
     if n_jobs == 0:
         raise ParameterError("The 'n_jobs' parameter of validate must be >= 1 or -1. Got 0 "
@@ -176,7 +200,7 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
         oc_te = outcomes[outcomes["learner"].isin(set(te_l))]
         jobs.append((k, ev_tr, ev_te, oc_tr, oc_te))
     run = _FoldRunner(grouping=grouping, encoder=encoder, featurizers=featurizers,
-                      classifiers=names, fractions=fractions, C=C)
+                      classifiers=names, fractions=fractions, C=C, train_on=train_on)
     if n_jobs == 1 and not scheduler:
         outs = [run(job) for job in progress(jobs, desc="folds", unit="fold")]
     else:
@@ -201,10 +225,12 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
     settings = {
         "folds": None if loo else int(folds), "loo": bool(loo),
         "fractions": list(fractions), "classifiers": names, "C": float(C),
+        "train_on": train_on,
         "n_bootstrap": int(n_bootstrap), "confidence": float(confidence),
         "alpha": float(alpha), "seed": int(seed),
         "test": "one-sided exact McNemar (binomial test on discordant pairs) vs majority",
         "n_learners": int(len(learners)),
+        "n_learners_without_outcome_group": int(len(has_events - set(learners))),
     }
     return ValidationResult(
         metrics=metrics, predictions=predictions, folds=fold_table,
@@ -337,9 +363,10 @@ class ValidationResult:
         ``validation_predictions.csv`` and ``validation_folds.json`` to ``folder``."""
         folder = Path(folder)
         folder.mkdir(parents=True, exist_ok=True)
-        self.metrics.to_csv(folder / "early_prediction.csv", index=False)
-        self.to_long().to_csv(folder / "early_prediction_long.csv", index=False)
-        self.predictions.to_csv(folder / "validation_predictions.csv", index=False)
+        csv = dict(index=False, lineterminator="\n", float_format="%.10g")
+        self.metrics.to_csv(folder / "early_prediction.csv", **csv)
+        self.to_long().to_csv(folder / "early_prediction_long.csv", **csv)
+        self.predictions.to_csv(folder / "validation_predictions.csv", **csv)
         digest = self.summary()
         info = {
             "settings": self.settings,
@@ -479,13 +506,15 @@ def make_classifier(name, *, featurizers=None, C=1.0, seed=0):
 class _FoldRunner:
     """Runs one fold: fit every learned step on training learners, predict held-out."""
 
-    def __init__(self, *, grouping, encoder, featurizers, classifiers, fractions, C):
+    def __init__(self, *, grouping, encoder, featurizers, classifiers, fractions, C,
+                 train_on="full"):
         self.grouping = grouping
         self.encoder = encoder
         self.featurizers = featurizers
         self.classifiers = classifiers
         self.fractions = fractions
         self.C = C
+        self.train_on = train_on
 
     def __call__(self, job):
         fold, ev_tr, ev_te, oc_tr, oc_te = job
@@ -511,14 +540,7 @@ class _FoldRunner:
         for fname, feat in self.featurizers.items():
             fitted[fname] = clone(feat).fit(db_tr, y_tr)
             blocks[fname] = np.asarray(fitted[fname].transform(db_tr), dtype=float)
-        models = {}
-        for cname in self.classifiers:
-            if cname == "majority":
-                models[cname] = DummyClassifier(strategy="most_frequent").fit(
-                    np.zeros((len(y_tr), 1)), y_tr)
-            else:
-                X = np.hstack([blocks[f] for f in CLASSIFIERS[cname]])
-                models[cname] = make_pipeline(StandardScaler(), _logistic(self.C)).fit(X, y_tr)
+        full_models = models = self._fit_models(blocks, y_tr)
         rows = []
         learners_te = db_te.learners
         uniq, inv = np.unique(learners_te, return_inverse=True)
@@ -528,6 +550,12 @@ class _FoldRunner:
         for frac in self.fractions:
             cut = db_te if frac >= 1 else db_te.cut(frac)
             te_blocks = {f: np.asarray(m.transform(cut), dtype=float) for f, m in fitted.items()}
+            models = full_models
+            if self.train_on == "matched" and frac < 1:
+                cut_tr = db_tr.cut(frac)
+                models = self._fit_models(
+                    {f: np.asarray(m.transform(cut_tr), dtype=float)
+                     for f, m in fitted.items()}, y_tr)
             for cname in self.classifiers:
                 if cname == "majority":
                     X = np.zeros((cut.n_sequences, 1))
@@ -553,6 +581,18 @@ class _FoldRunner:
             "selected_patterns": selected,
             "encoding": copy.deepcopy(getattr(encoder, "encoding_", {})),
         }
+
+
+    def _fit_models(self, blocks, y_tr):
+        models = {}
+        for cname in self.classifiers:
+            if cname == "majority":
+                models[cname] = DummyClassifier(strategy="most_frequent").fit(
+                    np.zeros((len(y_tr), 1)), y_tr)
+            else:
+                X = np.hstack([blocks[f] for f in CLASSIFIERS[cname]])
+                models[cname] = make_pipeline(StandardScaler(), _logistic(self.C)).fit(X, y_tr)
+        return models
 
 
 def _full_proba(model, X, k):

@@ -138,7 +138,10 @@ def parse_event_time(value):
     """
     tv = type(value)
     if tv is float or tv is int:
-        f = float(value)
+        try:
+            f = float(value)
+        except OverflowError:  # an integer beyond the float range
+            raise EventError("time is not a finite number of seconds before 2100") from None
         kind = "numeric"
     elif tv is str:
         s = value.strip()

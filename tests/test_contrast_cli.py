@@ -5,84 +5,20 @@ import json
 import numpy as np
 import pandas as pd
 import pytest
-import scipy.sparse as sp
 
 from seqmine._progress import is_quiet, set_quiet
 from seqmine.cli import main
 from seqmine.commands.contrast import read_patternset
 from seqmine.contrast import contrast
+from seqmine.mine import save_patternset
 from seqmine.transitions import TRANSITION_COLUMNS
-from seqmine.patterns import PatternSet
-from seqmine.sequences import SequenceDB
 
-# helpers copied from test_contrast.py (kept self-contained so the module imports alone)
-ACTIONS = ["set_light", "set_water", "advance_week", "measure_height", "reset", "paint_pot",
-           "pause:long"]
-
-
-def _instances(seq, pat):
-    """Brute-force instance count (unlimited gap): earliest-end greedy, disjoint spans."""
-    count, start = 0, 0
-    while True:
-        pos, k = start, 0
-        while pos < len(seq) and k < len(pat):
-            if seq[pos] == pat[k]:
-                k += 1
-            pos += 1
-        if k < len(pat):
-            return count
-        count += 1
-        start = pos
-
-
-def brute_patternset(db, patterns):
-    """PatternSet of the given token-name patterns counted by brute force on db."""
-    ids = [tuple(db.vocab.index(t) for t in p) for p in patterns]
-    counts = np.array([[_instances(db.sequence(i).tolist(), p) for p in ids]
-                       for i in range(db.n_sequences)], dtype=np.int64)
-    counts = counts.reshape(db.n_sequences, len(ids))
-    sup = np.stack([(counts[db.groups == g] > 0).sum(axis=0) for g in range(db.n_groups)], axis=1)
-    return PatternSet(patterns=ids, vocab=db.vocab, is_pause=db.is_pause,
-                      group_names=db.group_names, group_sizes=db.group_sizes(),
-                      support_counts=sup, counts=sp.csr_matrix(counts), seq_groups=db.groups)
-
-
-def random_db(n=40, seed=0, n_groups=2, planted=True):
-    """Random greenhouse-like sequences; 'strong' learners more often measure after advancing."""
-    rng = np.random.default_rng(seed)
-    names = ["strong", "weak", "middle"][:n_groups]
-    groups = [names[i % n_groups] for i in range(n)]
-    seqs = []
-    for g in groups:
-        length = int(rng.integers(4, 14))
-        p = np.ones(len(ACTIONS))
-        if planted and g == "strong":
-            p[3] = 4.0
-        if planted and g == "weak":
-            p[4] = 3.0
-        seqs.append(list(rng.choice(ACTIONS, size=length, p=p / p.sum())))
-    return SequenceDB.from_lists(seqs, groups=groups, group_names=names,
-                                 pause_tokens=["pause:long"], vocab=ACTIONS)
-
-
-PATTERNS = [("measure_height",), ("reset",), ("advance_week", "measure_height"),
-            ("set_light", "advance_week"), ("reset", "reset"), ("paint_pot",),
-            ("set_water", "pause:long"), ("set_light", "advance_week", "measure_height")]
+from _contrast_helpers import PATTERNS, brute_patternset, random_db  # noqa: E402
 
 
 def _write_patternset(ps, folder):
-    """The pattern set folder format of 'seqmine mine' (patternset.json + counts.npz)."""
-    folder.mkdir(parents=True, exist_ok=True)
-    sp.save_npz(folder / "counts.npz", sp.csr_matrix(ps.counts, dtype=np.int64))
-    meta = {"format": "seqmine-patternset", "version": 1,
-            "patterns": [list(p) for p in ps.patterns], "names": ps.names,
-            "vocab": list(ps.vocab), "is_pause": [bool(x) for x in ps.is_pause],
-            "group_names": list(ps.group_names), "group_sizes": [int(x) for x in ps.group_sizes],
-            "support_counts": ps.support_counts.tolist(),
-            "seq_groups": [int(x) for x in ps.seq_groups], "constraints": {}}
-    (folder / "patternset.json").write_text(json.dumps(meta), encoding="utf-8")
-    ps.to_frame().to_csv(folder / "patterns.csv", index=False)
-    return folder
+    """The pattern set folder format of 'seqmine mine'."""
+    return save_patternset(ps, folder)
 
 
 @pytest.fixture

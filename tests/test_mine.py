@@ -8,6 +8,7 @@ import pandas as pd
 import pytest
 from prefixspan import PrefixSpan
 
+import seqmine.mine as mine_module
 from seqmine.cli import main
 from seqmine.errors import DataFileError, ParameterError, PatternExplosionError
 from seqmine.mine import load_patternset, match, mine, pattern_table, save_patternset
@@ -243,3 +244,51 @@ def test_cli_missing_database_exit_2(tmp_path, capsys):
     code = main(["mine", str(tmp_path / "nothing"), "--out", str(tmp_path / "o")])
     assert code == 2
     assert "not a sequence database folder" in capsys.readouterr().err
+
+
+# ------------------------------------------------------- blocks, chunks, options
+@pytest.mark.parametrize("cons", [
+    {}, {"max_gap": 1}, {"max_window": 4}, {"max_gap": 2, "max_window": 5, "skip_pauses": True},
+    {"max_window": 3, "skip_pauses": True}, {"closed": True}, {"maximal": True, "max_gap": 0},
+])
+def test_blocks_and_chunks_do_not_change_results(monkeypatch, cons):
+    import seqmine._mine_kernels as kernels
+
+    rng = np.random.default_rng(7)
+    vocab = ["a", "b", "c", "d", "pause:long"]
+    seqs = [[vocab[t] for t in rng.integers(0, 5, rng.integers(0, 25))] for _ in range(60)]
+    groups = rng.choice(["strong", "weak"], 60).tolist()
+    db = SequenceDB.from_lists(seqs, groups=groups, pause_tokens=["pause:long"], vocab=vocab)
+    ref = mine(db, min_support=0.2, **cons)
+    monkeypatch.setattr(kernels, "_NX_BLOCK_TOKENS", 16)
+    monkeypatch.setattr(kernels, "_PLAIN_BLOCK_TOKENS", 16)
+    monkeypatch.setattr(kernels, "_EXPAND_CHUNK", 8)
+    monkeypatch.setattr(kernels, "_NX_CACHE_BYTES", 0)
+    if cons.get("max_window") == 4:  # track minimal windows instead of an implied gap
+        monkeypatch.setattr(mine_module, "_IMPLIED_GAP_WINDOW", 0)
+    small = mine(db, min_support=0.2, **cons)
+    assert small.patterns == ref.patterns
+    assert np.array_equal(small.support_counts, ref.support_counts)
+    assert (small.counts != ref.counts).nnz == 0
+    kw = {k: v for k, v in cons.items() if k in ("max_gap", "max_window", "skip_pauses")}
+    again = match(db, ref.patterns[::-1], **kw)
+    assert np.array_equal(again.support_counts, ref.support_counts[::-1])
+    assert (again.counts != ref.counts[:, ::-1]).nnz == 0
+
+
+def test_supports_only_option():
+    rng = np.random.default_rng(3)
+    db = SequenceDB.from_lists([[str(t) for t in rng.integers(0, 4, 12)] for _ in range(30)])
+    full = mine(db, min_support=0.3)
+    lean = mine(db, min_support=0.3, instance_counts=False)
+    assert lean.patterns == full.patterns
+    assert np.array_equal(lean.support_counts, full.support_counts)
+    assert lean.counts.shape == full.counts.shape and lean.counts.nnz == 0
+    assert lean.constraints["instance_counts"] is False
+
+
+def test_match_repeated_patterns():
+    db = SequenceDB.from_lists([["a", "b", "a", "b"], ["b"]], groups=["x", "y"])
+    ps = match(db, ["a > b", "b", "a > b"])
+    assert ps.counts.toarray().tolist() == [[2, 2, 2], [0, 1, 0]]
+    assert ps.support_counts.tolist() == [[1, 0], [1, 1], [1, 0]]

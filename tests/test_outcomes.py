@@ -4,7 +4,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from seqmine.errors import DataFileError, NotFittedError, ParameterError, SeqmineInputError
+from seqmine.errors import NotFittedError, ParameterError, SeqmineInputError
 from seqmine.outcomes import Grouping, load_outcomes, match_learners, normalized_gain
 
 

@@ -378,7 +378,7 @@ def test_restarts_on_a_dask_cluster_equal_serial():
     db = _sample_db(n=10, length=30)
     try:
         cluster = distributed.LocalCluster(n_workers=1, threads_per_worker=2, processes=False,
-                                           dashboard_address=None)
+                                           dashboard_address=":0")
     except Exception as exc:  # the cluster itself, not our code, failed to start
         pytest.skip(f"could not start an in-process Dask cluster: {exc!r}")
     with cluster, distributed.Client(cluster), joblib.parallel_config(backend="dask"):

@@ -294,3 +294,73 @@ def test_outputs_doc_lists_every_key_the_report_reads():
             assert f"`{key}`" in doc or f"`{last}`" in doc, key
     for name in rep.OUTPUT_FILES.values():
         assert f"`{name}" in doc, name
+
+
+def test_stage_formats_are_read(folder):
+    text = render_report(folder).read_text(encoding="utf-8")
+    # Phases: phases.json names the files; state selection marks; occupancy by group.
+    assert "phases/model_group-strong.json" in text and "Every model has 3 phases" in text
+    assert "lowest BIC" in text and "best held-out" in text
+    assert re.search(r"<td>S2 advance_week/measure_height</td><td class=num>55%</td>"
+                     r"<td class=num>30%</td>", text)
+    # Early prediction: the majority classifier is the baseline, not a curve;
+    # earliest share at which each classifier beats it.
+    assert "pattern: from 50% of the sequence." in text
+    assert "frequency_pause: from 75% of the sequence." in text
+    assert "majority: from" not in text
+    # Detectors: priority 1 first, absence rule, notice, nested evidence, counts.
+    assert text.index("D001") < text.index("D002")
+    assert "also fires when the pattern has not occurred after 30 events" in text
+    assert "Detectors come from correlational findings; pilot them first." in text
+    assert "support (strong) <b>70%</b>" in text and "odds ratio <b>9.330</b>" in text
+    assert "2 detectors: 1 encourage, 1 discourage." in text
+    assert "the steps of a pattern follow each other directly" not in text
+    assert "at most 1 other tokens between two steps" in text
+    # Summary: configuration sections are searched for method values.
+    assert "Benjamini–Hochberg" in text and "Bootstrap resamples behind stability" in text
+    assert "Permutations" not in text  # only shown for Westfall-Young
+
+
+def test_switched_off_detector_and_bad_models(tmp_path):
+    folder = tmp_path / "o"
+    (folder / "phases").mkdir(parents=True)
+    (folder / "detectors.json").write_text(json.dumps({"detectors": [
+        {"id": "X", "pattern": "a > b", "direction": "encourage", "enabled": False},
+        "not an object"]}))
+    (folder / "phases" / "phases.json").write_text(json.dumps(
+        {"models": {"pooled": "model_pooled", "evil": "../../summary"}}))
+    (folder / "phases" / "model_pooled.json").write_text(json.dumps(
+        {"vocab": ["a"], "emissionprob": [[1.0], [1.0]], "transmat": "oops"}))
+    text = render_report(folder).read_text(encoding="utf-8")
+    assert "switched off" in text and "No hint text yet." in text
+    assert "1 detector: 1 encourage, 0 discourage; 1 switched off." in text
+    # The model without a transition matrix still shows its states; the path that
+    # leaves phases/ is ignored.
+    assert "phases/model_pooled.json" in text and "summary" not in text.split(
+        'id="phases"')[1].split('id="early-prediction"')[0]
+
+
+def test_reject_reasons_get_their_meaning(tmp_path, monkeypatch):
+    import sys
+    import types
+
+    fake = types.ModuleType("seqmine.load")
+    fake.REJECT_REASONS = {"bad_time": "the time is <not> a time"}
+    monkeypatch.setitem(sys.modules, "seqmine.load", fake)
+    folder = tmp_path / "o"
+    folder.mkdir()
+    (folder / "rejects.csv").write_text("source_row,reason\n2,bad_time\n3,bad_time\n4,other\n")
+    text = render_report(folder).read_text(encoding="utf-8")
+    assert ("<td><code>bad_time</code></td><td>the time is &lt;not&gt; a time</td>"
+            "<td class=num>2</td>") in text
+    assert "<td><code>other</code></td><td></td><td class=num>1</td>" in text
+
+
+def test_at_a_glance_names_the_strongest_patterns(folder):
+    text = render_report(folder).read_text(encoding="utf-8")
+    glance = text.split('class="keybox"')[1].split("</div>")[0]
+    assert "Most reliable pattern more common among" in glance
+    strong = glance.split("more common among")[1]
+    assert "measure_height" in strong and "strong 70%, weak 20%" in strong
+    assert "After 25% of a sequence, the best classifier (pattern) reaches a balanced " \
+           "accuracy of 0.53" in glance

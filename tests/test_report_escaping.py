@@ -10,7 +10,8 @@ from hypothesis import strategies as st
 
 from browser_helper import start_tags
 from seqmine import _plots
-from seqmine import _report_sections as sec
+from seqmine import _report_html as hx
+from seqmine import _report_pieces as sec
 
 # Text with the characters that matter for markup, plus anything else.
 _MARKUP = st.sampled_from(["<", ">", "&", '"', "'", "/", "=", "$", "\\", "\x00", "\x1b",
@@ -35,7 +36,7 @@ def _check_inert(markup, allowed):
         if "style" in attrs:
             assert _STYLE.fullmatch(attrs["style"]), attrs["style"]
         assert attrs.get("class", "") in {"", "card", "rank", "tok", "tok pause", "arrow",
-                                          "bars", "bar", "stats", "note", "excerpt", "who",
+                                          "bars", "bar", "stats", "stats evidence", "note", "excerpt", "who",
                                           "flow", "ev", "ev hit", "gap", "swatch", "num",
                                           "hint", "badge enc", "badge dis", "badge none"}, attrs
 
@@ -58,7 +59,7 @@ def test_html_pieces_keep_text_as_text(tokens, group, learner, hint):
         _check_inert(markup, _ALLOWED_TAGS)
     # The visible text of a chip is exactly the (cleaned) token.
     for t in tokens:
-        cleaned = sec._CONTROL.sub("\ufffd", t)[:119]
+        cleaned = hx._CONTROL.sub("\ufffd", t)[:119]
         assert html.escape(cleaned, quote=True) in card
 
 

@@ -2,16 +2,13 @@
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
-import numpy as np
-import scipy.sparse as sp
 
 from .._progress import is_quiet, set_quiet
 from ..contrast import CONTRAST_CORRECTIONS, contrast, pairwise_contrast
 from ..errors import DataFileError, ParameterError
-from ..patterns import PatternSet
+from ..mine import load_patternset
 from ..sequences import SequenceDB
 from ..transitions import transitions
 
@@ -121,17 +118,7 @@ def _run(args):
 
 
 def read_patternset(path):
-    """Read a pattern set folder written by ``seqmine mine`` (or the path of its CSV).
-
-    Uses :func:`seqmine.mine.load_patternset` when available; otherwise reads the
-    same files directly: ``patternset.json`` (format ``seqmine-patternset``, version
-    1: patterns, vocab, is_pause, group_names, group_sizes, support_counts,
-    seq_groups, constraints) and ``counts.npz`` (scipy sparse instance counts).
-    """
-    try:
-        from ..mine import load_patternset
-    except ImportError:
-        load_patternset = _load_patternset
+    """Read a pattern set folder written by ``seqmine mine`` (or the path of its CSV)."""
     folder = Path(path)
     if folder.suffix.lower() == ".csv":
         folder = folder.parent
@@ -139,34 +126,6 @@ def read_patternset(path):
         raise DataFileError(f"{folder}: no such pattern set folder; create it with "
                             f"'seqmine mine SEQDB_DIR --out {folder}'.")
     return load_patternset(folder)
-
-
-def _load_patternset(folder):
-    folder = Path(folder)
-    if folder.suffix.lower() == ".csv":
-        folder = folder.parent
-    meta_path, npz_path = folder / "patternset.json", folder / "counts.npz"
-    if not meta_path.is_file() or not npz_path.is_file():
-        raise DataFileError(f"{folder}: not a pattern set folder (needs patternset.json and "
-                            f"counts.npz); create one with 'seqmine mine'.")
-    try:
-        meta = json.loads(meta_path.read_text(encoding="utf-8"))
-    except (json.JSONDecodeError, UnicodeDecodeError) as exc:
-        raise DataFileError(f"{meta_path}: unreadable JSON ({exc}); re-run 'seqmine mine'.") \
-            from None
-    if meta.get("format") != "seqmine-patternset" or meta.get("version") != 1:
-        raise DataFileError(f"{meta_path}: unsupported pattern set version "
-                            f"{meta.get('version')!r} (this seqmine reads 1); re-run "
-                            f"'seqmine mine'.")
-    n_groups = len(meta["group_names"])
-    return PatternSet(
-        patterns=[tuple(p) for p in meta["patterns"]], vocab=meta["vocab"],
-        is_pause=np.array(meta["is_pause"], dtype=bool), group_names=meta["group_names"],
-        group_sizes=np.array(meta["group_sizes"], dtype=np.int64),
-        support_counts=np.array(meta["support_counts"], dtype=np.int64).reshape(-1, n_groups),
-        counts=sp.load_npz(npz_path).tocsr(),
-        seq_groups=np.array(meta["seq_groups"], dtype=np.int64),
-        constraints=meta.get("constraints", {}))
 
 
 def _redundancy(text):

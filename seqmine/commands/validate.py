@@ -15,7 +15,7 @@ DESCRIPTION = (
     "Split learners into folds (stratified k-fold or leave-one-learner-out). In each fold "
     "the grouping thresholds, pause bins, mined patterns, selected contrasting patterns "
     "and group HMMs are learned on the training learners only, then the held-out "
-    "learners' sequences are cut to their first 10%%, 20%%, ... of events and classified. "
+    "learners' sequences are cut to their first 10%, 20%, ... of events and classified. "
     "Writes OUT/early_prediction.csv (accuracy, balanced accuracy, per-group recall, ROC "
     "AUC with bootstrap intervals, the majority baseline and whether each classifier "
     "beats it), OUT/early_prediction_long.csv (plot-ready), "
@@ -36,6 +36,9 @@ def add_arguments(p):
                         "(default: %(default)s)")
     p.add_argument("--classifiers", default=",".join(CLASSIFIERS), metavar="NAMES",
                    help="classifiers to compare (default: %(default)s)")
+    p.add_argument("--train-on", choices=["full", "matched"], default="full",
+                   help="train the classifiers on full training sequences (default) or, for "
+                        "each fraction, on training sequences cut to the same fraction")
     p.add_argument("--jobs", type=int, default=1, metavar="N",
                    help="folds run in parallel on N processes (-1: all cores); same results")
     p.add_argument("--scheduler", default=None, metavar="ADDRESS",
@@ -83,7 +86,8 @@ def run(args):
         loaded.events, outcomes, folds=args.folds, loo=args.loo, fractions=fractions,
         grouping=_options.grouping_from_args(args, outcomes),
         encoder=_options.encoder_from_args(args), featurizers=featurizers,
-        classifiers=classifiers, n_bootstrap=args.bootstrap, alpha=args.alpha,
+        classifiers=classifiers, train_on=args.train_on, n_bootstrap=args.bootstrap,
+        alpha=args.alpha,
         seed=args.seed, n_jobs=args.jobs, scheduler=args.scheduler)
     out = result.save(Path(args.out))
     if not args.quiet:

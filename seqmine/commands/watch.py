@@ -109,9 +109,12 @@ def _loop(stream, name, interactive, watcher, out, err, args, hints_only, pseudo
             continue
         try:
             event = json.loads(line)
-        except json.JSONDecodeError as exc:
-            print(f"seqmine watch: {name}:{lineno}: malformed JSON ({exc.msg} at column "
-                  f"{exc.colno}); event skipped", file=err)
+        except (ValueError, RecursionError) as exc:
+            why = (f"{exc.msg} at column {exc.colno}" if isinstance(exc, json.JSONDecodeError)
+                   else "a number with too many digits" if isinstance(exc, ValueError)
+                   else "nested too deeply")
+            print(f"seqmine watch: {name}:{lineno}: malformed JSON ({why}); event skipped",
+                  file=err)
             watcher.stats["events"] += 1
             watcher.stats["rejected"] += 1
             continue

@@ -11,7 +11,6 @@ from scipy.stats import mannwhitneyu
 from .._validation import check_fraction, check_int
 from ..errors import ParameterError
 from ..sequences import SequenceDB
-from .model import PhaseModel
 
 __all__ = [
     "path_measures",
