@@ -203,6 +203,7 @@ INVALID = [
     (_set(["version"], 0), r"version: 0 is not a detectors file version"),
     (_set(["version"], 2), r"version 2 is newer than this seqmine reads \(version 1\); upgrade"),
     (_set(["detectrs"], []), r"detectrs: unknown field; did you mean 'detectors'\?"),
+    (_set(["zzz"], 1), r"zzz: unknown field; allowed: created_by, detectors, encoding"),
     (_del(["matching"]), r"matching: is missing; export the detectors again"),
     (_del(["encoding"]), r"encoding: is missing"),
     (_del(["detectors"]), r"detectors: is missing"),

@@ -6,6 +6,8 @@ import io
 import json
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from seqmine.cli import main
 from seqmine.detect import save_detectors
@@ -323,3 +325,44 @@ def test_cli_watch_pseudonymizes_learners(tmp_path, capsys):
     expected = pseudonymize(["ana"], b"0123456789abcdef0123")[0]
     assert [json.loads(x)["learner"] for x in cap.out.splitlines()] == [expected]
     assert "ana" not in cap.out and "ana" not in cap.err and expected in cap.err
+
+
+_values = st.one_of(st.none(), st.booleans(), st.integers(-10 ** 12, 10 ** 12),
+                    st.floats(allow_nan=True, allow_infinity=True), st.text(max_size=30),
+                    st.sampled_from(["2026-03-01T10:00:00Z", "12.5", "set_light", "reset", " "]),
+                    st.lists(st.integers(), max_size=2), st.dictionaries(st.text(max_size=3),
+                                                                         st.integers(), max_size=2))
+
+
+_plausible = st.fixed_dictionaries(
+    {"learner": st.sampled_from(["a", "b", 7]), "time": st.one_of(
+        st.integers(0, 60), st.floats(0, 60), st.sampled_from(["2026-03-01T10:00:00Z", "30"])),
+     "action": st.sampled_from(["reset", "set_light", "paint_pot"])},
+    optional={"session": st.sampled_from(["s1", "s2", None, 3]),
+              "target": st.sampled_from(["", "p1", None])})
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(st.one_of(_values, _plausible, _plausible, st.fixed_dictionaries(
+    {}, optional={"learner": _values, "time": _values, "action": _values, "session": _values,
+                  "target": _values, "channel": _values})), max_size=25))
+def test_watcher_never_fails_on_arbitrary_events(events):
+    enc = {"template": "{action}:{target}", "unit": "session", "session_gap": 30.0,
+           "collapse_repeats": True,
+           "pause": {"strategy": "fixed", "edges": [2.0], "labels": ["short", "long"],
+                     "implicit": []}}
+    dets = [{"id": "a", "tokens": ["reset:", "pause:long"], "direction": "discourage"},
+            {"id": "b", "tokens": ["set_light:"], "direction": "encourage",
+             "absence": {"after_events": 2, "after_seconds": 5.0}}]
+    w = Watcher(_doc(dets=dets, encoding=enc), idle_timeout=10.0, cooldown_seconds=1)
+    for e in events:
+        try:
+            out = w.process(e)
+        except EventError as exc:
+            assert "\n" not in str(exc)
+            continue
+        assert all(isinstance(f, Firing) for f in out)
+        for f in out:
+            json.dumps(f.to_dict(iso_times=w.time_kind == "iso"), allow_nan=False)
+    w.tick(100.0)
+    w.flush()
