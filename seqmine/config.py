@@ -39,7 +39,7 @@ DEFAULT_CONFIG = {
     "encode": {
         "template": "{action}", "mapping": None, "collapse_repeats": False,
         "pause_strategy": "quantile", "pause_bins": 3, "pause_thresholds": None,
-        "implicit_pauses": ["short"], "unit": "learner", "session_gap": None,
+        "implicit_pauses": ["shortest"], "unit": "learner", "session_gap": None,
     },
     "mine": {
         "min_support": 0.2, "min_length": 2, "max_length": 4, "max_gap": 0,

@@ -117,7 +117,8 @@ class Encoder(BaseEstimator):
     pause_thresholds : sequence of float, optional
         Ascending edges in seconds for ``fixed`` (n edges -> n + 1 bins).
     implicit_pauses : sequence of str
-        Bin labels that emit no token (the shortest by default).
+        Bin labels that emit no token. ``"shortest"`` names the first bin whatever
+        its label (the default), so the quickest gaps stay implicit for any bin count.
     unit : {"learner", "session"}
         What one sequence is.
     session_gap : float, optional
@@ -145,7 +146,7 @@ class Encoder(BaseEstimator):
 
     def __init__(self, template="{action}", *, mapping=None, collapse_repeats=False,
                  pause_strategy="quantile", pause_bins=3, pause_thresholds=None,
-                 implicit_pauses=("short",), unit="learner", session_gap=None):
+                 implicit_pauses=("shortest",), unit="learner", session_gap=None):
         self.template = template
         self.mapping = mapping
         self.collapse_repeats = collapse_repeats
@@ -198,7 +199,8 @@ class Encoder(BaseEstimator):
             edges = np.quantile(gaps, qs) if len(gaps) else np.zeros(len(qs))
         self.edges_ = np.asarray(edges, dtype=float)
         self.labels_ = pause_labels(len(self.edges_) + 1) if self.pause_strategy != "none" else []
-        implicit = list(self.implicit_pauses or ())
+        implicit = [self.labels_[0] if p == "shortest" and self.labels_ else p
+                    for p in (self.implicit_pauses or ())]
         unknown = [p for p in implicit if p not in self.labels_]
         if unknown and self.pause_strategy != "none":
             raise ParameterError(

@@ -54,7 +54,7 @@ REJECT_REASONS = {
 MAX_ACTION_LENGTH = 200
 
 #: Largest input file read without ``max_bytes`` raised (bytes).
-DEFAULT_MAX_BYTES = 20 * 1024**3
+DEFAULT_MAX_BYTES = 20_000_000_000
 
 _EPOCH = pd.Timestamp("1970-01-01", tz="UTC")
 _T_MIN = 0.0
@@ -174,7 +174,7 @@ def load_events(path, *, columns=None, format=None, delimiter=None, encoding="ut
         raise DataFileError(f"{path}: the file is empty; export the event log again.")
     if size > max_bytes:
         raise DataFileError(
-            f"{path}: {size / 1e9:.1f} GB is above the {max_bytes / 1e9:.1f} GB limit; "
+            f"{path}: {size:,} bytes is above the {int(max_bytes):,}-byte limit; "
             f"split the log by learners or raise the limit with --max-bytes.")
     fmt = format or _guess_format(path)
     check_choice(fmt, "format", _FORMATS, "load_events")
@@ -352,8 +352,10 @@ def _stringify(df):
     for c in df.columns:
         col = df[c]
         if pd.api.types.is_datetime64_any_dtype(col):
-            vals = col.dt.strftime("%Y-%m-%dT%H:%M:%S.%f") + (
-                "Z" if getattr(col.dt, "tz", None) is not None else "")
+            aware = getattr(col.dt, "tz", None) is not None
+            # zone-aware times are written in UTC ("Z"); naive ones stay naive (= UTC)
+            vals = (col.dt.tz_convert("UTC") if aware else col).dt.strftime(
+                "%Y-%m-%dT%H:%M:%S.%f") + ("Z" if aware else "")
             out[str(c)] = vals.fillna("")
         else:
             out[str(c)] = col.astype("string").fillna("").astype(str)
@@ -529,7 +531,8 @@ def _validate(raw, cols, path, duplicates, max_action_length):
     source_row = np.arange(1, n + 1, dtype=np.int64)
     seconds, reason, kind = parse_times(col("time"), source=cols["time"])
     detail = np.full(n, "", dtype=object)
-    # earlier checks win: the first reason found is the one reported
+    # one reason per row: unreadable records first, then the time problems found by
+    # parse_times, then the learner/action checks below in their listed order
     for r, code in bad_rows.items():
         reason[r - 1] = code
     checks = [
@@ -539,12 +542,8 @@ def _validate(raw, cols, path, duplicates, max_action_length):
                                 | aser.str.contains(_CONTROL, regex=True)).to_numpy(dtype=bool)),
         ("action_too_long", (aser.str.len() > max_action_length).to_numpy(dtype=bool)),
     ]
-    prior = reason.copy()
     for code, mask in checks:
         reason[mask & pd.isna(reason)] = code
-    # keep the time reason when nothing else was wrong
-    unset = pd.isna(reason)
-    reason[unset] = prior[unset]
     for code in ("action_too_long",):
         m = reason == code
         detail[m] = [f"{len(a)} characters > {max_action_length}" for a in action[m]]

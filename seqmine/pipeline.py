@@ -7,10 +7,11 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from .errors import DataFileError
+from .errors import DataFileError, ParameterError
 from .outcomes import Grouping, match_learners
 
-__all__ = ["Prepared", "prepare_sequences", "analyze", "AnalysisResult", "MIN_GROUP_LEARNERS"]
+__all__ = ["Prepared", "prepare_sequences", "pseudonymize_inputs", "analyze", "AnalysisResult",
+           "MIN_GROUP_LEARNERS"]
 
 #: Fewest learners a group may have before the run stops with a message.
 MIN_GROUP_LEARNERS = 2
@@ -82,6 +83,7 @@ def prepare_sequences(load_result, outcomes, *, encoder, grouping=None, grouping
         "group_names": names,
         "sequences_per_group": {n: int(c) for n, c in zip(names, db.group_sizes())},
         "sequences_without_group": int((db.groups < 0).sum()),
+        "learners_without_group": int(len(np.unique(db.learners[db.groups < 0]))),
         "learners_per_group": per,
         "grouping": {"rule": grouping.rule, **{k: float(v) for k, v in
                                                getattr(grouping, "thresholds_", {}).items()}},
@@ -100,6 +102,20 @@ def prepare_sequences(load_result, outcomes, *, encoder, grouping=None, grouping
     return Prepared(db=db, events=load_result.events, outcomes=outcomes, groups=groups,
                     rejects=load_result.rejects, summary=summary, encoder=encoder,
                     grouping=grouping)
+
+
+def pseudonymize_inputs(loaded, outcomes, key):
+    """Replace learner identifiers in the loaded events and outcomes by keyed hashes.
+
+    Done right after loading, so no later stage or output ever sees a raw identifier.
+    """
+    from .privacy import pseudonymize_frame
+    loaded.events = pseudonymize_frame(loaded.events, key).sort_values(
+        ["learner", "time"], kind="mergesort").reset_index(drop=True)
+    kind = outcomes.attrs.get("outcome_kind")
+    outcomes = pseudonymize_frame(outcomes, key)
+    outcomes.attrs["outcome_kind"] = kind
+    return loaded, outcomes
 
 
 def _describe(values):
@@ -192,7 +208,7 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     from .load import load_events
     from .mine import mine, save_patternset
     from .outcomes import load_outcomes
-    from .privacy import pseudonymize_frame, read_key
+    from .privacy import read_key
     from .report import render_report, write_examples
     from .transitions import transitions
 
@@ -215,12 +231,7 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
         max_score=oc_cfg["max_score"])
     key_path = cfg["privacy"]["pseudonymize_key"]
     if key_path:
-        key = read_key(key_path)
-        loaded.events = pseudonymize_frame(loaded.events, key).sort_values(
-            ["learner", "time"], kind="mergesort").reset_index(drop=True)
-        kind = outcomes.attrs.get("outcome_kind")
-        outcomes = pseudonymize_frame(outcomes, key)
-        outcomes.attrs["outcome_kind"] = kind
+        loaded, outcomes = pseudonymize_inputs(loaded, outcomes, read_key(key_path))
 
     # 2. group and encode
     rule = oc_cfg["grouping"] or ("label" if outcomes.attrs.get("outcome_kind") == "label"
@@ -246,6 +257,8 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
 
     # 3. mine and score
     mine_cfg, con_cfg = cfg["mine"], cfg["contrast"]
+    if mine_cfg["max_gap"] is not None and mine_cfg["max_gap"] < 0:  # -1 = no limit
+        mine_cfg = dict(mine_cfg, max_gap=None)
     with stages("mining patterns"):
         patternset = mine(db, min_support=mine_cfg["min_support"],
                           min_length=mine_cfg["min_length"], max_length=mine_cfg["max_length"],
@@ -307,7 +320,14 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     if va_cfg["enabled"]:
         from sklearn.base import clone
 
+        from .features import HMMLikelihoodFeaturizer
         from .validate import default_featurizers, validate
+        allowed = set(HMMLikelihoodFeaturizer().get_params()) - {"seed"}
+        unknown = sorted(set(va_cfg.get("hmm") or {}) - allowed)
+        if unknown:
+            raise ParameterError(
+                f"configuration: unknown option 'validate.hmm.{unknown[0]}'; the options are "
+                f"{', '.join(sorted(allowed))}.")
         pattern_params = {k: mine_cfg[k] for k in (
             "min_support", "min_length", "max_length", "max_gap", "max_window", "skip_pauses",
             "start_with_action", "end_with_action", "max_patterns")}

@@ -112,3 +112,24 @@ def test_flags_override_config(tmp_path, capsys):
     assert cfg["mine"]["min_support"] == 0.3      # from the file
     assert cfg["mine"]["max_length"] == 5         # the flag wins
     assert cfg["mine"]["max_gap"] == 0            # default
+
+
+def test_a_flag_equal_to_its_default_still_overrides_the_file(tmp_path):
+    # regression: a flag was ignored when its value equalled the parser default
+    from seqmine.cli import build_parser
+    from seqmine.commands.analyze import config_from_args
+    p = tmp_path / "c.toml"
+    p.write_text("[mine]\nmin_support = 0.3\n", encoding="utf-8")
+    args = build_parser().parse_args(["analyze", "e.csv", "--outcomes", "o.csv", "--out", "x",
+                                      "--config", str(p), "--min-support", "0.2"])
+    assert config_from_args(args, args._defaults)["mine"]["min_support"] == 0.2
+
+
+def test_unknown_hmm_option_is_a_user_error(tmp_path, capsys):
+    paths = write_greenhouse(tmp_path / "d", 30, seed=2)
+    cfg = tmp_path / "c.toml"
+    cfg.write_text("[phases]\nenabled = false\n[validate.hmm]\nn_statez = 3\n", encoding="utf-8")
+    code = main(["analyze", str(paths["events"]), "--outcomes", str(paths["outcomes"]),
+                 "--out", str(tmp_path / "o"), "--config", str(cfg), "--quiet"])
+    err = capsys.readouterr().err
+    assert code == 2 and "unknown option 'validate.hmm.n_statez'" in err

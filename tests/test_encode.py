@@ -203,3 +203,12 @@ def test_subset_keeps_vocab_and_order():
     assert [sub.decode(i) for i in range(2)] == [["c"], ["b", "a"]]
     assert sub.vocab == db.vocab and sub.groups.tolist() == [0, 1]
     assert db.subset(np.array([True, False, True])).n_sequences == 2
+
+
+@pytest.mark.parametrize("bins,first", [(1, "any"), (3, "short"), (5, "very_short"), (6, "p1")])
+def test_shortest_names_the_first_bin_for_any_count(bins, first):
+    # regression: the default implicit bin was the label 'short', which does not exist
+    # for 1 or 6+ bins and is the second bin when there are 5
+    ev = _events([("a", t, "x" if t % 2 else "y") for t in range(12)])
+    enc = Encoder(pause_bins=bins).fit(ev)
+    assert enc.implicit_ == [first]

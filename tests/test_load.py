@@ -226,3 +226,13 @@ def test_accounting_and_shuffle_invariance(tmp_path_factory, rows, rnd):
         assert np.all(np.diff(t) >= 0)
         same = np.diff(t) == 0
         assert np.all(np.diff(part["source_row"].to_numpy())[same] > 0)
+
+
+def test_parquet_zone_aware_times_are_converted_to_utc(tmp_path):
+    # regression: local times were written with a "Z" suffix, shifting them by the offset
+    pytest.importorskip("pyarrow")
+    t = pd.to_datetime(["2026-03-02T10:00:00+01:00"]).tz_convert("Europe/Paris")
+    df = pd.DataFrame({"learner": ["a"], "time": t, "action": ["x"]})
+    p = tmp_path / "e.parquet"
+    df.to_parquet(p)
+    assert load_events(p).events["time"].item() == 1772442000.0  # 09:00 UTC

@@ -40,3 +40,20 @@ def test_key_file_checks(tmp_path):
         read_key(p)
     p.write_text("a" * 40 + "\n")
     assert read_key(p) == b"a" * 40
+
+
+def test_encode_command_pseudonymizes_every_output(tmp_path, capsys):
+    from seqmine.cli import main
+    ev = tmp_path / "e.csv"
+    ev.write_text("learner,time,action\n" + "".join(
+        f"ana{i},{t},x{t % 2}\n" for i in range(4) for t in range(3)), encoding="utf-8")
+    oc = tmp_path / "o.csv"
+    oc.write_text("learner,pre,post,max\n" + "".join(f"ana{i},1,{2 + i},10\n" for i in range(4)),
+                  encoding="utf-8")
+    key = tmp_path / "key.txt"
+    key.write_text("k" * 32)
+    assert main(["encode", str(ev), "--outcomes", str(oc), "--out", str(tmp_path / "out"),
+                 "--pseudonymize", str(key), "-q"]) == 0
+    for f in (tmp_path / "out").rglob("*"):
+        if f.is_file() and f.suffix in (".json", ".csv"):
+            assert "ana" not in f.read_text(), f

@@ -70,8 +70,9 @@ def add_encoding_options(p):
     g.add_argument("--pause-bins", type=int, default=3, help="number of pause bins (default: 3)")
     g.add_argument("--pause-thresholds", default=None, metavar="S1,S2",
                    help="bin edges in seconds for --pause-strategy fixed")
-    g.add_argument("--implicit-pauses", default="short", metavar="LABELS",
-                   help="pause bins that emit no token (default: short; '' for none)")
+    g.add_argument("--implicit-pauses", default="shortest", metavar="LABELS",
+                   help="pause bins that emit no token: labels such as short,medium, or "
+                        "'shortest' for the first bin (default: shortest; '' for none)")
     g.add_argument("--unit", choices=["learner", "session"], default="learner",
                    help="one sequence per learner or per session (default: learner)")
     g.add_argument("--session-gap", type=float, default=None,

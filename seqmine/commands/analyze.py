@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import argparse
+
 from .._progress import set_quiet
 from ..config import default_config, load_config, merge_config
 from ..load import EVENT_ROLES
@@ -99,16 +101,21 @@ def add_arguments(p):
     g.add_argument("--no-validate", action="store_true", help="skip the early-prediction check")
     g.add_argument("--no-examples", action="store_true",
                    help="no log excerpts in the report")
+    # A flag overrides the configuration only when it is given: no parser defaults.
+    keep = {"help", "events", "out", "outcomes", "config", "debug", "quiet"}
+    for action in p._actions:
+        if action.dest not in keep:
+            action.default = argparse.SUPPRESS
 
 
 def config_from_args(args, parser_defaults):
-    """Defaults < --config file < flags that differ from their defaults."""
+    """Defaults < --config file < flags given on the command line."""
     cfg = load_config(args.config) if getattr(args, "config", None) else default_config()
     over = {}
     for dest, section, key, conv in _FLAG_TO_CONFIG:
-        value = getattr(args, dest, None)
-        if value is None or value == parser_defaults.get(dest):
+        if not hasattr(args, dest):  # not given on the command line
             continue
+        value = getattr(args, dest)
         over.setdefault(section, {})[key] = conv(value) if conv else value
     for key in ("seed", "jobs"):
         if getattr(args, key, None) is not None:
