@@ -129,6 +129,7 @@ class Block:
         self._gap_hi = None
         self._by_sym = None
         self.keep_nx = True
+        self.keep_masks = True
 
     # ------------------------------------------------------------ lookups
     def nx(self):
@@ -166,7 +167,7 @@ class Block:
         masks = np.zeros(T + 1, dtype=np.uint64)
         for sym in range(self.n_sym):
             masks |= (nx[sym, : T + 1] < lim).astype(np.uint64) << np.uint64(sym)
-        if self.keep_nx:
+        if self.keep_masks:
             self._masks = masks
         return masks
 
@@ -221,6 +222,7 @@ class Block:
         """Drop cached tables (when they do not all fit in memory at once)."""
         if not self.keep_nx:
             self._nx = None
+        if not self.keep_masks:
             self._masks = None
 
 
@@ -252,10 +254,12 @@ def make_blocks(tokens_local, lengths, gidx, *, n_sym, mode, nonpause=None, **co
             npause = None if npause is None else npause[take]
         blocks.append(Block(tok, lens, g, s, n_sym=n_sym, nonpause=npause, perm=perm, **cons))
         s, t0 = e, t1
-    total = sum(b.T + 2 for b in blocks) * (n_sym * 4 + 8)
-    keep = mode != "gap" and total <= _NX_CACHE_BYTES
+    n_tok = sum(b.T + 2 for b in blocks)
+    keep = mode != "gap" and n_tok * n_sym * 4 <= _NX_CACHE_BYTES
+    keep_masks = mode == "first" and n_tok * 8 <= _NX_CACHE_BYTES // 2
     for b in blocks:
         b.keep_nx = keep
+        b.keep_masks = keep_masks
     return blocks
 
 
