@@ -13,9 +13,11 @@ grouped so that the entries of one ``(pid, seq)`` pair are contiguous and sorted
 
 ``first``
     no gap and no window: only the earliest end per ``(pid, seq)`` (the classic
-    PrefixSpan projection), extended with a next-occurrence table.
+    PrefixSpan projection), extended with a next-occurrence table; all one-symbol
+    extensions of an occurrence are counted at once from a bit mask of the symbols
+    left in its sequence.
 ``frontier``
-    a window but no gap: the Pareto frontier of ``(start, end)`` pairs per
+    a (long) window but no gap: the Pareto frontier of ``(start, end)`` pairs per
     ``(pid, seq)`` -- the *minimal windows*; an occurrence with a later start and an
     earlier end dominates, and extending a dominating occurrence with the next
     occurrence of a symbol always dominates again.
@@ -265,17 +267,15 @@ def make_blocks(tokens_local, lengths, gidx, *, n_sym, mode, nonpause=None, **co
 
 # ---------------------------------------------------------------- projection
 def root_extend(block, syms, mode):
-    """Level-1 occurrences of the local symbols ``syms``; ``pid`` holds the symbol."""
-    parts = []
+    """Level-1 occurrences (every position) of the local symbols ``syms``.
+
+    For the ``frontier`` and ``gap`` modes, where each single item is its own
+    occurrence; ``pid`` holds the symbol. (The ``first`` mode starts from
+    :func:`root_occurrences` instead.)
+    """
     if mode == "first":
-        nx = block.nx()
-        seqs = np.arange(block.n_seq, dtype=np.int32)
-        for s in syms:
-            ne = nx[s, block.seq_start]
-            ok = ne < block.seq_end
-            e = ne[ok]
-            parts.append(Occ(np.full(len(e), s, dtype=np.int32), seqs[ok], e))
-        return Occ.concat(parts, False)
+        raise ValueError("root_extend serves the frontier and gap modes")
+    parts = []
     order, bounds = block.positions_by_symbol()
     for s in syms:
         pos = order[bounds[s]:bounds[s + 1]]

@@ -174,7 +174,7 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
         cons=engine_cons,
         with_counts=bool(instance_counts))
 
-    # collect reported candidates in (length, lexicographic) order
+    # reported candidates in search order: length, then last item, item before it, ...
     pats, support, nodes = [], [], []
     offsets = node_offsets(levels)
     for k in range(1, len(levels)):
