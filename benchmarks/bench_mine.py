@@ -236,8 +236,10 @@ def main(argv=None):
             print(f"{n:>9} error: {r['error']}")
             continue
         print(f"{r['tokens']:>9} {r['sequences']:>6} {r['patterns']:>8} {r['reference_s']:>11.2f} "
-              f"{r['ours_supports_s']:>8.3f} {r['speedup_supports']:>4.0f}x [{r['speedup_supports_cpu']:>3.0f}x] "
-              f"{r['ours_full_s']:>11.3f} {r['speedup_full']:>4.1f}x [{r['speedup_full_cpu']:>3.1f}x] "
+              f"{r['ours_supports_s']:>8.3f} {r['speedup_supports']:>4.0f}x "
+              f"[{r['speedup_supports_cpu']:>3.0f}x] "
+              f"{r['ours_full_s']:>11.3f} {r['speedup_full']:>4.1f}x "
+              f"[{r['speedup_full_cpu']:>3.1f}x] "
               f"{str(r['identical_output']):>5} {r['peak_rss_mb']:>8.0f}")
     for name, (opts, sizes) in configs.items():
         print(f"\n== scaling: {name}, max_length 4, two groups ==")

@@ -25,7 +25,6 @@ import numbers
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 import scipy.sparse as sp
 
 from ._mine_search import assemble_counts, build_trie, node_offsets, search
