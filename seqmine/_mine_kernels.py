@@ -13,9 +13,11 @@ grouped so that the entries of one ``(pid, seq)`` pair are contiguous and sorted
 
 ``first``
     no gap and no window: only the earliest end per ``(pid, seq)`` (the classic
-    PrefixSpan projection), extended with a next-occurrence table.
+    PrefixSpan projection), extended with a next-occurrence table; all one-symbol
+    extensions of an occurrence are counted at once from a bit mask of the symbols
+    left in its sequence.
 ``frontier``
-    a window but no gap: the Pareto frontier of ``(start, end)`` pairs per
+    a (long) window but no gap: the Pareto frontier of ``(start, end)`` pairs per
     ``(pid, seq)`` -- the *minimal windows*; an occurrence with a later start and an
     earlier end dominates, and extending a dominating occurrence with the next
     occurrence of a symbol always dominates again.
@@ -129,6 +131,7 @@ class Block:
         self._gap_hi = None
         self._by_sym = None
         self.keep_nx = True
+        self.keep_masks = True
 
     # ------------------------------------------------------------ lookups
     def nx(self):
@@ -166,7 +169,7 @@ class Block:
         masks = np.zeros(T + 1, dtype=np.uint64)
         for sym in range(self.n_sym):
             masks |= (nx[sym, : T + 1] < lim).astype(np.uint64) << np.uint64(sym)
-        if self.keep_nx:
+        if self.keep_masks:
             self._masks = masks
         return masks
 
@@ -221,6 +224,7 @@ class Block:
         """Drop cached tables (when they do not all fit in memory at once)."""
         if not self.keep_nx:
             self._nx = None
+        if not self.keep_masks:
             self._masks = None
 
 
@@ -252,26 +256,26 @@ def make_blocks(tokens_local, lengths, gidx, *, n_sym, mode, nonpause=None, **co
             npause = None if npause is None else npause[take]
         blocks.append(Block(tok, lens, g, s, n_sym=n_sym, nonpause=npause, perm=perm, **cons))
         s, t0 = e, t1
-    total = sum(b.T + 2 for b in blocks) * (n_sym * 4 + 8)
-    keep = mode != "gap" and total <= _NX_CACHE_BYTES
+    n_tok = sum(b.T + 2 for b in blocks)
+    keep = mode != "gap" and n_tok * n_sym * 4 <= _NX_CACHE_BYTES
+    keep_masks = mode == "first" and n_tok * 8 <= _NX_CACHE_BYTES // 2
     for b in blocks:
         b.keep_nx = keep
+        b.keep_masks = keep_masks
     return blocks
 
 
 # ---------------------------------------------------------------- projection
 def root_extend(block, syms, mode):
-    """Level-1 occurrences of the local symbols ``syms``; ``pid`` holds the symbol."""
-    parts = []
+    """Level-1 occurrences (every position) of the local symbols ``syms``.
+
+    For the ``frontier`` and ``gap`` modes, where each single item is its own
+    occurrence; ``pid`` holds the symbol. (The ``first`` mode starts from
+    :func:`root_occurrences` instead.)
+    """
     if mode == "first":
-        nx = block.nx()
-        seqs = np.arange(block.n_seq, dtype=np.int32)
-        for s in syms:
-            ne = nx[s, block.seq_start]
-            ok = ne < block.seq_end
-            e = ne[ok]
-            parts.append(Occ(np.full(len(e), s, dtype=np.int32), seqs[ok], e))
-        return Occ.concat(parts, False)
+        raise ValueError("root_extend serves the frontier and gap modes")
+    parts = []
     order, bounds = block.positions_by_symbol()
     for s in syms:
         pos = order[bounds[s]:bounds[s + 1]]

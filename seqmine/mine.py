@@ -25,7 +25,6 @@ import numbers
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 import scipy.sparse as sp
 
 from ._mine_search import assemble_counts, build_trie, node_offsets, search
@@ -174,7 +173,7 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
         cons=engine_cons,
         with_counts=bool(instance_counts))
 
-    # collect reported candidates in (length, lexicographic) order
+    # reported candidates in search order: length, then last item, item before it, ...
     pats, support, nodes = [], [], []
     offsets = node_offsets(levels)
     for k in range(1, len(levels)):

@@ -292,3 +292,19 @@ def test_match_repeated_patterns():
     ps = match(db, ["a > b", "b", "a > b"])
     assert ps.counts.toarray().tolist() == [[2, 2, 2], [0, 1, 0]]
     assert ps.support_counts.tolist() == [[1, 0], [1, 1], [1, 0]]
+
+
+def test_more_than_64_symbols_uses_the_lookup_path():
+    # the bit-mask counting holds 64 symbols; larger alphabets take the look-up path
+    # (checked against the prefixspan package, a reference only)
+    rng = random.Random(11)
+    seqs = [[rng.randrange(80) for _ in range(rng.randint(20, 60))] for _ in range(40)]
+    ref = PrefixSpan(seqs)
+    ref.maxlen = 3
+    expected = {tuple(p): sup for sup, p in ref.frequent(6)}
+    db = _ints_db(seqs)
+    ps = mine(db, min_support=6, max_length=3)
+    assert len(set(t for p in ps.patterns for t in p)) > 64
+    assert _int_patterns(ps) == expected
+    again = match(db, ps.patterns)
+    assert (again.counts != ps.counts).nnz == 0

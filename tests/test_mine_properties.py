@@ -155,6 +155,7 @@ def _as_dict(ps):
             for i, p in enumerate(ps.patterns)}
 
 
+@pytest.mark.slow
 @SETTINGS
 @given(databases(), constraint_settings(), st.data())
 def test_mine_equals_brute_force(dbspec, cons, data):
@@ -188,6 +189,7 @@ def test_mine_equals_brute_force(dbspec, cons, data):
     assert ps.patterns == sorted(ps.patterns, key=lambda p: (len(p), p[::-1]))
 
 
+@pytest.mark.slow
 @SETTINGS
 @given(databases(), st.data())
 def test_match_equals_brute_force(dbspec, data):
