@@ -50,7 +50,7 @@ def _csv(columns, rows):
     return buf.getvalue()
 
 
-@settings(max_examples=int(os.environ.get("SEQMINE_FUZZ_EXAMPLES", "25")), deadline=None, suppress_health_check=[HealthCheck.too_slow,
+@settings(max_examples=int(os.environ.get("SEQMINE_FUZZ_EXAMPLES", "15")), deadline=None, suppress_health_check=[HealthCheck.too_slow,
                                                                    HealthCheck.function_scoped_fixture])
 @given(summary=OBJ, detectors=OBJ, examples=OBJ, phases=OBJ, model=OBJ,
        rows=st.lists(st.lists(CELL, min_size=3, max_size=8), max_size=5),
