@@ -6,6 +6,7 @@ A longer run for maintainers: ``SEQMINE_FUZZ_EXAMPLES=2000 pytest tests/test_rep
 import json
 import os
 
+import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -50,6 +51,7 @@ def _csv(columns, rows):
     return buf.getvalue()
 
 
+@pytest.mark.slow
 @settings(max_examples=int(os.environ.get("SEQMINE_FUZZ_EXAMPLES", "15")), deadline=None, suppress_health_check=[HealthCheck.too_slow,
                                                                    HealthCheck.function_scoped_fixture])
 @given(summary=OBJ, detectors=OBJ, examples=OBJ, phases=OBJ, model=OBJ,
