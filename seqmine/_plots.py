@@ -170,8 +170,9 @@ def svg_support_bars(patterns, supports, *, fig_id, title="Share of sequences co
         for k, name in enumerate(groups):
             vals = np.asarray(supports[name], dtype=float)
             off = (k - (g - 1) / 2) * height
-            ax.barh(y - off, np.nan_to_num(vals, nan=0.0), height=height * 0.92,
-                    color=PALETTE[k % len(PALETTE)], label=clean_label(name, 28))
+            vals = np.where(np.isfinite(vals), np.clip(vals, 0.0, 1.0), 0.0)
+            ax.barh(y - off, vals, height=height * 0.92,
+                    color=PALETTE[k % len(PALETTE)], label=_legend_label(name))
         ax.set_yticks(y, [clean_label(p, 60) for p in patterns])
         ax.set_xlim(0, 1)
         ax.xaxis.set_major_formatter(matplotlib.ticker.PercentFormatter(1.0, decimals=0))
@@ -212,7 +213,8 @@ def svg_residual_heatmap(matrix, rows, cols, *, title, fig_id, counts=None):
         ax = fig.subplots()
         # Vector cells (no embedded raster image); row 0 at the top.
         ax.pcolormesh(np.arange(n_c + 1) - 0.5, np.arange(n_r + 1) - 0.5,
-                      np.ma.masked_invalid(m), cmap=_DIVERGING, vmin=-lim, vmax=lim,
+                      np.ma.masked_invalid(np.clip(m, -lim, lim)), cmap=_DIVERGING,
+                      vmin=-lim, vmax=lim,
                       edgecolors="#ffffff", linewidth=0.5)
         ax.set_xlim(-0.5, n_c - 0.5)
         ax.set_ylim(n_r - 0.5, -0.5)
@@ -222,7 +224,7 @@ def svg_residual_heatmap(matrix, rows, cols, *, title, fig_id, counts=None):
                 v = m[i, j]
                 if not math.isfinite(v):
                     continue
-                txt = f"{v:+.1f}"
+                txt = f"{v:+.1f}" if abs(v) < 1000 else f"{v:+.0e}"
                 if counts is not None and math.isfinite(counts[i, j]):
                     txt += f"\n{int(counts[i, j])}"
                 ax.text(j, i, txt, ha="center", va="center", fontsize=6.5,
@@ -376,17 +378,17 @@ def svg_prediction_curves(curves, *, fig_id, baseline=None, chance=None, ylabel,
         ax = fig.subplots()
         for k, (name, c) in enumerate(curves.items()):
             color = PALETTE[k % len(PALETTE)]
-            x = np.asarray(c["fraction"], dtype=float)
-            yv = np.asarray(c["value"], dtype=float)
+            x = _unit(c["fraction"])
+            yv = _unit(c["value"])
             if c.get("low") is not None and c.get("high") is not None:
-                ax.fill_between(x, np.asarray(c["low"], float), np.asarray(c["high"], float),
+                ax.fill_between(x, _unit(c["low"]), _unit(c["high"]),
                                 color=color, alpha=0.18 if len(curves) <= 2 else 0.07,
                                 linewidth=0)
             ax.plot(x, yv, marker="o", markersize=3.5, color=color, lw=1.6,
-                    label=clean_label(name, 32))
+                    label=_legend_label(name))
         if baseline is not None:
-            ax.plot(np.asarray(baseline["fraction"], float), np.asarray(baseline["value"], float),
-                    ls="--", color=_BASELINE, lw=1.4, label=clean_label(baseline["label"], 40))
+            ax.plot(_unit(baseline["fraction"]), _unit(baseline["value"]),
+                    ls="--", color=_BASELINE, lw=1.4, label=_legend_label(baseline["label"]))
         if chance is not None:
             ax.axhline(chance, ls=":", color=_BASELINE, lw=1.0, label=f"chance ({chance:g})")
         ax.set_xlim(0, 1.02)
@@ -415,6 +417,9 @@ def _style():
     with matplotlib.rc_context(_RC), warnings.catch_warnings():
         warnings.filterwarnings("ignore", message=r"Glyph \d+ .*missing from",
                                 category=UserWarning)
+        # Very long labels: the figure is drawn without the layout adjustment.
+        warnings.filterwarnings("ignore", message="Tight layout not applied",
+                                category=UserWarning)
         yield
 
 
@@ -423,8 +428,22 @@ def _title(fig, text):
     fig.suptitle(clean_label(text, 80), x=0.01, ha="left", fontsize=10, fontweight="bold")
 
 
+def _legend_label(name):
+    """Legend text: matplotlib hides labels starting with '_' and empty ones."""
+    text = clean_label(name, 32) or "(unnamed)"
+    return "\u200b" + text if text.startswith("_") else text
+
+
+def _unit(values):
+    """Floats clipped to [0, 1]; infinities become NaN (drawn as gaps)."""
+    v = np.asarray(values, dtype=float)
+    return np.where(np.isfinite(v), np.clip(v, 0.0, 1.0), np.nan)
+
+
 def _legend_above(ax, ncol):
     """Legend in a row between the title and the axes, so it never hides data."""
+    if not ax.get_legend_handles_labels()[0]:
+        return
     ax.legend(loc="lower left", bbox_to_anchor=(0.0, 1.01), ncol=max(1, min(ncol, 4)),
               fontsize=8, borderaxespad=0.2, handlelength=1.6, columnspacing=1.2)
 

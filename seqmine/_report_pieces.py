@@ -372,6 +372,10 @@ def _rejects(inp, counts):
             "number in <code>rejects.csv</code>.</p>" + _reason_table(ranked[:10]) + more)
 
 
+def _list(value):
+    return value if isinstance(value, list) else []
+
+
 def _reason_table(ranked):
     """Reason code, its meaning (from the loader's list, when known) and the row count."""
     try:
@@ -402,9 +406,11 @@ def _pause_bins(summary):
     head = "<h3>Pause bins</h3>"
     if not pause:
         return head + _missing("pause bins not recorded in summary.json")
-    edges = [_num(e) for e in (pause.get("edges") or [])]
-    labels = [str(x) for x in (pause.get("labels") or [])]
-    implicit = {str(x) for x in (pause.get("implicit") or [])}
+    edges = [_num(e) for e in _list(pause.get("edges"))]
+    labels = [str(x) for x in _list(pause.get("labels"))]
+    implicit = {str(x) for x in _list(pause.get("implicit"))}
+    if not all(math.isfinite(e) for e in edges) or edges != sorted(edges):
+        return head + _missing("pause bin edges in summary.json are not ascending numbers")
     if not edges and not labels:
         return head + f"<p>No pause tokens (strategy: {esc(pause.get('strategy', 'none'))}).</p>"
     if len(labels) != len(edges) + 1:

@@ -140,7 +140,7 @@ def _earliest_glance(df):
     if df is None or not {"fraction", "balanced_accuracy"} <= set(df.columns):
         return []
     sub = df[df["classifier"].astype(str) != "majority"] if "classifier" in df.columns else df
-    sub = sub[sub["balanced_accuracy"].notna()]
+    sub = sub[np.isfinite(sub["balanced_accuracy"]) & np.isfinite(sub["fraction"])]
     if sub.empty:
         return []
     early = sub[sub["fraction"] == sub["fraction"].min()]
@@ -183,7 +183,8 @@ def section_overview(d, figs):
                        "used + rows rejected. Check the run's log.</p>")
     out.append(_group_table(counts, d["groups"]))
     out.append(_rejects(d["rejects"], counts))
-    unit = (summary.get("encoding") or {}).get("unit")
+    encoding = summary.get("encoding")
+    unit = encoding.get("unit") if isinstance(encoding, dict) else None
     for key, title, xlabel in [
             ("gain_by_group", "Outcome (normalized gain) by group", "normalized gain"),
             ("sequence_lengths", "Sequence length by group",
@@ -502,7 +503,7 @@ def section_detectors(d):
                f"{_int(directions.count('encourage'))} encourage, "
                f"{_int(directions.count('discourage'))} discourage"
                + (f"; {_int(off)} switched off" if off else "") + ".</p>")
-    indexed.sort(key=lambda t: (_num(t[1].get("priority"), math.inf), t[0]))
+    indexed.sort(key=lambda t: (_priority(t[1].get("priority")), t[0]))
     for i, det in indexed:
         out.append(_detector_card(i, det, d["groups"]))
     return _section("detectors", out)
@@ -590,3 +591,9 @@ def section_cautions(d):
     ]
     return _section("cautions", [_h2("cautions"), '<ul class="cautions">'
                                  + "".join(f"<li>{i}</li>" for i in items) + "</ul>"])
+
+
+def _priority(value):
+    """Sort key of a detector priority: its number, or last when not a finite number."""
+    x = _num(value, math.inf)
+    return x if math.isfinite(x) else math.inf
