@@ -47,7 +47,7 @@ def parse_pattern(text, vocab):
     """Token ids of a readable pattern name; raises ParameterError for unknown tokens."""
     index = {v: i for i, v in enumerate(vocab)}
     out = []
-    for part in str(text).split(PATTERN_SEPARATOR.strip()):
+    for part in str(text).split(PATTERN_SEPARATOR):
         name = part.strip()
         if name not in index:
             raise ParameterError(

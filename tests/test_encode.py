@@ -212,3 +212,10 @@ def test_shortest_names_the_first_bin_for_any_count(bins, first):
     ev = _events([("a", t, "x" if t % 2 else "y") for t in range(12)])
     enc = Encoder(pause_bins=bins).fit(ev)
     assert enc.implicit_ == [first]
+
+
+def test_pattern_names_round_trip_with_angle_brackets():
+    # regression: names were split on '>' alone, so a token such as 'a>b' broke apart
+    from seqmine.patterns import format_pattern, parse_pattern
+    vocab = ["a>b", "<script>", "c"]
+    assert parse_pattern(format_pattern((0, 1, 2), vocab), vocab) == (0, 1, 2)
