@@ -32,7 +32,7 @@ def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--learners", type=int, nargs="+", default=[1000, 10000])
     ap.add_argument("--formats", nargs="+", default=["csv"])
-    ap.add_argument("--out", default="benchmarks/results_demo_data.json")
+    ap.add_argument("--out", default="benchmarks/results/demo_data.json")
     args = ap.parse_args(argv)
     rows = []
     with tempfile.TemporaryDirectory() as tmp:
