@@ -309,7 +309,7 @@ def save_patternset(ps, folder, *, table_name="patterns.csv"):
     """Write a PatternSet to ``folder``: the table, ``counts.npz`` and ``patternset.json``.
 
     The JSON file holds the patterns, vocabulary, groups, supports and constraints;
-    ``counts.npz`` the sparse instance-count matrix (scipy format, no pickle). The
+    ``counts.npz`` the sparse instance-count matrix (scipy format, plain arrays only). The
     CSV table (:func:`pattern_table`) is for people and is not read back.
 
     Returns

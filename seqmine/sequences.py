@@ -322,7 +322,7 @@ class SequenceDB:
     def save(self, folder):
         """Write the database to ``folder`` (created if needed).
 
-        Arrays go to ``arrays.npz`` (no pickle); names and parameters to
+        Arrays go to ``arrays.npz`` (plain arrays, loaded with allow_pickle=False); names and parameters to
         ``sequences.json``. :meth:`load` restores an equal object.
         """
         folder = Path(folder)

@@ -296,7 +296,7 @@ class PhaseModel:
                    emission_floor=float(data.get("emission_floor", 0.0)), info=info)
 
     def save(self, path):
-        """Write the model as JSON (no pickle)."""
+        """Write the model as plain JSON (no executable object serialisation)."""
         path = Path(path)
         path.write_text(json.dumps(self.to_dict(), indent=1, sort_keys=True), encoding="utf-8")
         return path
