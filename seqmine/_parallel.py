@@ -8,6 +8,9 @@ back in task order, so the output does not depend on where the tasks ran.
 
 from __future__ import annotations
 
+import functools
+
+from ._progress import is_quiet, set_quiet
 from .errors import ParameterError
 
 __all__ = ["parallel_map"]
@@ -36,14 +39,22 @@ def parallel_map(func, items, *, jobs=1, scheduler=None):
     [2, 3, 1]
     """
     items = list(items)
+    if jobs is None or jobs == 1 or len(items) <= 1:
+        if not scheduler:
+            return [func(x) for x in items]
+    # worker processes start with default settings: carry the quiet switch over
+    func = functools.partial(_call_with_quiet, func, is_quiet())
     if scheduler:
         return _dask_map(func, items, scheduler, jobs)
-    if jobs is None or jobs == 1 or len(items) <= 1:
-        return [func(x) for x in items]
     if not isinstance(jobs, int) or jobs == 0 or jobs < -1:
         raise ParameterError(f"The 'jobs' parameter must be a positive int or -1. Got {jobs!r} instead.")
     from joblib import Parallel, delayed
     return list(Parallel(n_jobs=jobs)(delayed(func)(x) for x in items))
+
+
+def _call_with_quiet(func, quiet, item):
+    set_quiet(quiet)
+    return func(item)
 
 
 def _dask_map(func, items, scheduler, jobs):

@@ -13,6 +13,9 @@ from .outcomes import Grouping, match_learners
 __all__ = ["Prepared", "prepare_sequences", "pseudonymize_inputs", "analyze", "AnalysisResult",
            "MIN_GROUP_LEARNERS"]
 
+#: Configuration keys that only say where work runs (left out of summary.json).
+_EXECUTION_KEYS = ("jobs", "scheduler")
+
 #: Fewest learners a group may have before the run stops with a message.
 MIN_GROUP_LEARNERS = 2
 
@@ -368,7 +371,9 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
             max_gap=c.get("max_gap"), max_window=c.get("max_window"),
             skip_pauses=bool(c.get("skip_pauses", False)), seed=seed))
     summary["seed"] = seed
-    summary["configuration"] = cfg
+    # execution settings change where the work runs, never the results: they are left
+    # out so that summary.json is identical whatever --jobs / --scheduler was used
+    summary["configuration"] = {k: v for k, v in cfg.items() if k not in _EXECUTION_KEYS}
     summary["versions"] = _versions()
     summary["pseudonymized"] = bool(key_path)
     summary["stage_seconds"] = stages.seconds
