@@ -33,7 +33,7 @@ from .patterns import PatternSet, parse_pattern
 from .sequences import SequenceDB
 
 __all__ = ["mine", "match", "pattern_table", "save_patternset", "load_patternset",
-           "DEFAULT_MAX_PATTERNS"]
+           "DEFAULT_MAX_PATTERNS", "MAX_CANDIDATE_CELLS"]
 
 #: Default limit on the number of frequent patterns before mining stops.
 DEFAULT_MAX_PATTERNS = 200_000
@@ -447,6 +447,11 @@ def _symbol_support(db, gidx, G):
     return out[:, :G]
 
 
+#: Largest (patterns of one length) x (frequent tokens) table a mining level may build;
+#: each cell costs about 25 bytes, so the limit keeps a level near 1.6 GB.
+MAX_CANDIDATE_CELLS = 2**26
+
+
 def _search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_fn,
             max_length, max_patterns, cons):
     """Level-wise bulk projection shared by :func:`mine` and :func:`match`.
@@ -477,6 +482,12 @@ def _search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_
     try:
         while max_length is None or k < max_length:
             n_prev = len(levels[k]["sym"])
+            if n_prev * n_sym > MAX_CANDIDATE_CELLS:  # dense level tables: bound memory
+                raise PatternExplosionError(
+                    f"Mining stopped: {n_prev} frequent patterns of length {k} times {n_sym} "
+                    f"frequent tokens is too many candidate extensions for memory (limit "
+                    f"{MAX_CANDIDATE_CELLS}). Raise 'min_support' (--min-support), lower "
+                    f"'max_length', or merge rare actions with --mapping.")
             if k == 0:
                 allowed = np.zeros((1, n_sym), dtype=bool)
                 allowed[0, level1] = True
