@@ -475,3 +475,137 @@ def test_encode_many_distinct_actions(tmp_path, capsys):
     t0 = time.perf_counter()
     summary, _ = accounting(*encode(tmp_path, capsys, "\n".join(rows) + "\n"))
     assert summary["vocabulary"] >= n and time.perf_counter() - t0 < 60
+
+
+# =================================================================== detectors
+DETECTORS = {
+    "format": "seqmine-detectors", "version": 1,
+    "encoding": {"template": "{action}", "pause": {
+        "strategy": "fixed", "edges": [30.0], "labels": ["short", "long"],
+        "implicit": ["short"]}},
+    "matching": {"max_gap": 0, "max_window": None, "skip_pauses": True},
+    "detectors": [{"id": "D1", "tokens": ["set_light", "advance_week"],
+                   "direction": "discourage", "hint": "Change one setting at a time."}],
+}
+
+
+def _detectors(**changes):
+    doc = json.loads(json.dumps(DETECTORS))
+    for dotted, value in changes.items():
+        *path, last = dotted.split("__")
+        obj = doc
+        for key in path:
+            obj = obj[int(key)] if isinstance(obj, list) else obj[key]
+        if value is _DELETE:
+            del obj[last]
+        else:
+            obj[last] = value
+    return json.dumps(doc)
+
+
+_DELETE = object()
+GOOD_LINES = [json.dumps({"learner": "L1", "time": t, "action": a})
+              for t, a in ((0, "set_light"), (5, "advance_week"), (9, "set_light"),
+                           (12, "advance_week"))]
+
+
+@pytest.mark.parametrize("content, needles", [
+    pytest.param(None, ["det.json", "not found", "seqmine detectors"], id="missing"),
+    pytest.param("", ["det.json", "not valid JSON", "line 1"], id="empty"),
+    pytest.param(_detectors()[:-20], ["det.json", "not valid JSON", "line"], id="truncated"),
+    pytest.param(_detectors().replace('"max_gap": 0', '"max_gap": NaN'),
+                 ["det.json", "NaN", "null"], id="nan-constant"),
+    pytest.param("[" * 100_000, ["det.json", "nested too deeply"], id="deep-nesting"),
+    pytest.param(b"\xff\xfe{}", ["det.json", "not UTF-8"], id="not-utf-8"),
+    pytest.param("[]", ["det.json", "JSON object"], id="array"),
+    pytest.param(_detectors(format="other"), ["format", "not a seqmine detectors file"],
+                 id="wrong-format"),
+    pytest.param(_detectors(version=7), ["version 7 is newer"], id="newer-version"),
+    pytest.param(_detectors(detectors__0__tokens=_DELETE), ["detectors[0].tokens", "missing"],
+                 id="detector-without-tokens"),
+    pytest.param(_detectors(detectors__0__tokens=[]), ["detectors[0].tokens", "non-empty"],
+                 id="empty-tokens"),
+    pytest.param(_detectors(detectors__0__colour="red"), ["detectors[0].colour", "unknown field"],
+                 id="unknown-field"),
+    pytest.param(_detectors(detectors__0__direction="maybe"), ["detectors[0].direction"],
+                 id="bad-direction"),
+    pytest.param(_detectors(detectors__0__tokens=["set_light", "pause:short"]),
+                 ["detectors[0].tokens[1]", "implicit pause"], id="implicit-pause-token"),
+    pytest.param(_detectors(encoding__pause__edges=[30.0, 30.0]),
+                 ["encoding.pause.edges", "strictly ascending"], id="fixed-edges-tied"),
+    pytest.param(_detectors(encoding__template="{action.__class__}"), ["encoding.template"],
+                 id="template-attribute"),
+    pytest.param(_detectors(matching__max_gap=-1), ["matching.max_gap"], id="negative-gap"),
+])
+def test_detectors_file_fatal(tmp_path, capsys, content, needles):
+    det = tmp_path / "det.json"
+    if content is not None:
+        _write(det, content)
+    ev = _write(tmp_path / "ev.jsonl", "\n".join(GOOD_LINES) + "\n")
+    rc, out, err = _run(capsys, ["watch", det, ev])
+    assert_one_error(rc, err, *needles)
+    assert out == ""
+
+
+def test_detectors_file_with_bom_and_tied_quantile_edges(tmp_path, capsys):
+    # tied quantile edges are what the encoder learns from regular timings
+    det = _write(tmp_path / "det.json", "\ufeff" + _detectors(
+        encoding__pause__strategy="quantile", encoding__pause__edges=[10.0, 10.0],
+        encoding__pause__labels=["short", "medium", "long"]))
+    ev = _write(tmp_path / "ev.jsonl", "\n".join(GOOD_LINES) + "\n")
+    rc, out, err = _run(capsys, ["watch", det, ev])
+    assert rc == 0, err
+    assert [json.loads(x)["detector"] for x in out.splitlines()] == ["D1", "D1"]
+
+
+# ============================================================ live JSON lines
+BAD_LINES = [  # (words of the stderr line, the line)
+    ("malformed JSON", '{"learner": "L1", "time": 1'),
+    ("not a JSON object", '[1, 2, 3]'),
+    ("too many digits", '{"learner": "L1", "time": ' + "1" * 5000 + ', "action": "x"}'),
+    ("nested too deeply", "[" * 100_000),
+    ("missing field 'action'", '{"learner": "L1", "time": 2}'),
+    ("neither ISO 8601 nor numeric", '{"learner": "L1", "time": "noon", "action": "x"}'),
+    ("before 1970 or after 2100", '{"learner": "L1", "time": "2999-01-01T00:00:00Z", "action": "x"}'),
+    ("not a finite number", '{"learner": "L1", "time": 1e999, "action": "x"}'),
+    ("not a finite number", '{"learner": "L1", "time": ' + "9" * 400 + ', "action": "x"}'),
+    ("control characters", '{"learner": "L1", "time": 3, "action": "set\\u0007light"}'),
+    ("characters long", json.dumps({"learner": "L1", "time": 3, "action": "x" * 500})),
+    ("'action' is empty", '{"learner": "L1", "time": 3, "action": "  "}'),
+    ("must be a string", '{"learner": ["L1"], "time": 3, "action": "x"}'),
+    ("use one time format", '{"learner": "L1", "time": "2026-03-02T09:00:00Z", "action": "x"}'),
+]
+
+
+def test_watch_skips_each_bad_line_and_keeps_going(tmp_path, capsys):
+    # good events interleaved with every kind of bad line: each bad one gets exactly
+    # one stderr line naming file:line and is skipped; the firings are unchanged
+    lines = [GOOD_LINES[0]] + [line for _, line in BAD_LINES] + GOOD_LINES[1:]
+    ev = _write(tmp_path / "ev.jsonl", "\n".join(lines) + "\n")
+    det = _write(tmp_path / "det.json", _detectors())
+    rc, out, err = _run(capsys, ["watch", det, ev, "--summary"])
+    assert rc == 0, err
+    assert [json.loads(x)["time"] for x in out.splitlines()] == [5, 12]
+    err_lines = [ln for ln in err.splitlines() if "event skipped" in ln]
+    assert len(err_lines) == len(BAD_LINES)
+    for k, ((needle, _), ln) in enumerate(zip(BAD_LINES, err_lines)):
+        assert ln.startswith(f"seqmine watch: {ev}:{k + 2}: ")
+        assert needle in ln, ln
+    assert f"rejected={len(BAD_LINES)}" in err
+
+
+def test_watch_backwards_duplicates_bom_and_bad_bytes(tmp_path, capsys):
+    lines = [GOOD_LINES[0], GOOD_LINES[0],  # duplicate
+             json.dumps({"learner": "L1", "time": -50, "action": "set_light"}),  # backwards
+             *GOOD_LINES[1:]]
+    raw = ("\ufeff" + "\n".join(lines) + "\n").encode("utf-8")
+    raw += b'{"learner": "L\xff\xfe", "time": 20, "action": "open_chart"}\n'  # not UTF-8
+    ev = _write(tmp_path / "ev.jsonl", raw)
+    det = _write(tmp_path / "det.json", _detectors())
+    rc, out, err = _run(capsys, ["watch", det, ev])
+    assert rc == 0, err
+    assert [json.loads(x)["time"] for x in out.splitlines()] == [5, 12]
+    skipped = [ln for ln in err.splitlines() if "event skipped" in ln]
+    assert len(skipped) == 2
+    assert ":2:" in skipped[0] and "duplicate" in skipped[0]
+    assert ":3:" in skipped[1] and "before the learner's latest event" in skipped[1]
