@@ -52,6 +52,10 @@ def add_arguments(parser):
                         help="process exact duplicate events instead of rejecting them")
     parser.add_argument("--times", choices=("auto", "seconds", "iso"), default="auto",
                         help="time format of the output (default: as the input)")
+    parser.add_argument("--pseudonymize", metavar="KEY_FILE", default=None,
+                        help="replace learner identifiers by the keyed hash 'seqmine analyze "
+                             "--pseudonymize' uses (same key, same pseudonyms) before anything "
+                             "is processed or printed")
     parser.add_argument("--summary", action="store_true",
                         help="print counters (events, rejected, firings, hints) to standard "
                              "error at the end")
@@ -66,6 +70,7 @@ def run(args):
                       out_of_order_tolerance=args.tolerance,
                       hint_on_encourage=args.encourage_hints,
                       reject_duplicates=not args.keep_duplicates)
+    pseudonym = _pseudonymizer(args.pseudonymize) if getattr(args, "pseudonymize", None) else None
     err = sys.stderr
     out = sys.stdout
     for note in watcher.notes:
@@ -95,6 +100,8 @@ def run(args):
                 watcher.stats["events"] += 1
                 watcher.stats["rejected"] += 1
                 continue
+            if pseudonym is not None and isinstance(event, dict) and "learner" in event:
+                event["learner"] = pseudonym(event.get("learner"))
             try:
                 firings = watcher.process(event)
             except EventError as exc:
@@ -125,6 +132,30 @@ def _write(out, firings, watcher, times, hints_only):
         if hints_only and f.suppressed:
             continue
         out.write(json.dumps(f.to_dict(iso_times=iso), ensure_ascii=False) + "\n")
+
+
+def _pseudonymizer(key_path):
+    """learner -> pseudonym (as in the offline analysis); other values pass unchanged,
+    so the watcher rejects them exactly as it would without the option."""
+    from ..privacy import pseudonymize, read_key
+    from ..watch import _CONTROL
+
+    key = read_key(key_path)
+    cache = {}
+
+    def convert(value):
+        if type(value) is not str:
+            return value
+        s = value.strip()
+        if not s or _CONTROL.search(s):
+            return value
+        p = cache.get(s)
+        if p is None:
+            if len(cache) > 1_000_000:  # bound memory on endless streams
+                cache.clear()
+            p = cache[s] = str(pseudonymize([s], key)[0])
+        return p
+    return convert
 
 
 def _idle(text):
