@@ -43,10 +43,24 @@ def parallel_map(func, items, *, jobs=1, scheduler=None):
     if not isinstance(jobs, int) or jobs == 0 or jobs < -1:
         raise ParameterError(f"The 'jobs' parameter must be a positive int or -1. Got {jobs!r} instead.")
     from joblib import Parallel, delayed
-    return list(Parallel(n_jobs=jobs)(delayed(func)(x) for x in items))
+
+    from ._progress import is_quiet
+    quiet = is_quiet()  # worker processes start with their own switch: pass it on
+    return list(Parallel(n_jobs=jobs)(delayed(_call_quietly)(func, x, quiet) for x in items))
+
+
+def _call_quietly(func, item, quiet):
+    from ._progress import is_quiet, set_quiet
+    before = is_quiet()
+    set_quiet(quiet)
+    try:
+        return func(item)
+    finally:
+        set_quiet(before)
 
 
 def _dask_map(func, items, scheduler, jobs):
+    from ._progress import is_quiet
     try:
         from distributed import Client, LocalCluster
     except ImportError:
@@ -57,7 +71,8 @@ def _dask_map(func, items, scheduler, jobs):
         n = jobs if isinstance(jobs, int) and jobs > 0 else 2
         with LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
                           dashboard_address=None) as cluster, Client(cluster) as client:
-            return client.gather(client.map(func, items, pure=False))
+            return client.gather(client.map(_call_quietly, [func] * len(items), items,
+                                            [is_quiet()] * len(items), pure=False))
     try:
         client = Client(scheduler, timeout="20s")
     except OSError as exc:
@@ -65,4 +80,5 @@ def _dask_map(func, items, scheduler, jobs):
             f"Cannot reach the Dask scheduler at {scheduler!r} ({exc}); check the address "
             f"or drop --scheduler to run locally.") from None
     with client:
-        return client.gather(client.map(func, items, pure=False))
+        return client.gather(client.map(_call_quietly, [func] * len(items), items,
+                                        [is_quiet()] * len(items), pure=False))
