@@ -182,7 +182,8 @@ def test_load_outcomes_arbitrary(tmp_path_factory, cols, rows, max_score):
 def event_table(draw):
     n = draw(st.integers(1, 30))
     learners = draw(st.lists(st.sampled_from(["a", "b", "c", "d"]), min_size=n, max_size=n))
-    times = draw(st.lists(st.floats(0, 1e5) | st.integers(0, 50).map(float),
+    times = draw(st.lists(st.floats(0, 1e5) | st.integers(0, 50).map(float)
+                          | st.sampled_from([float("nan"), float("inf")]),
                           min_size=n, max_size=n))
     actions = draw(st.lists(st.sampled_from(ACTIONS[:4]) | nasty_text.filter(bool),
                             min_size=n, max_size=n))
