@@ -406,6 +406,7 @@ CONFIG_CASES = {
     "template-unclosed": ('[encode]\ntemplate = "{action"\n', ["malformed"]),
     "bad-delimiter": ('[events]\ndelimiter = ";;"\n', ["one character"]),
     "bad-encoding": ('[events]\nencoding = "klingon"\n', ["'klingon'"]),
+    "zero-jobs": ("jobs = 0\n", ["option 'jobs'", "-1 (all cores)"]),
     "missing-key-file": ('[privacy]\npseudonymize_key = "nokey.txt"\n', ["nokey.txt", "not found"]),
 }
 
@@ -420,6 +421,15 @@ def test_config_fatal(tmp_path, capsys, case):
                                "--no-phases", "--no-validate", "--config", cfg])
     assert_one_error(rc, err, *needles)
     assert not (tmp_path / "o" / "report.html").exists()
+
+
+def test_jobs_flag_checked_before_any_work(tmp_path, capsys):
+    ev = _write(tmp_path / "events.csv", BASE)
+    oc = _write(tmp_path / "outcomes.csv", OUTCOMES)
+    rc, _, err = _run(capsys, ["analyze", ev, "--outcomes", oc, "--out", tmp_path / "o", "-q",
+                               "--jobs", "0"])
+    assert_one_error(rc, err, "command line", "option 'jobs'")
+    assert not (tmp_path / "o").exists()
 
 
 def test_config_missing_file(tmp_path, capsys):
