@@ -224,5 +224,7 @@ def test_no_examples_means_no_log_excerpts(data, runs, tmp_path, capsys):
     with_examples = json.loads((runs["a"] / "examples.json").read_text())
     learners = set(re.findall(r"p_[0-9a-f]{16}", json.dumps(with_examples)))
     assert learners, "the run with examples should show excerpts"
+    shown = (runs["a"] / "report.html").read_text(encoding="utf-8")
+    assert set(re.findall(r"p_[0-9a-f]{16}", shown)) & learners  # excerpts name learners
     assert not re.search(r"p_[0-9a-f]{16}", html)
     assert "examples.json" not in html
