@@ -17,6 +17,10 @@ from . import _mine_kernels as K
 from ._progress import progress
 from .errors import PatternExplosionError
 
+#: Largest (patterns of one length) x (frequent tokens) table a mining level may build;
+#: each cell costs about 25 bytes, so the limit keeps a level near 1.6 GB.
+MAX_CANDIDATE_CELLS = 2**26
+
 __all__ = []  # private module
 
 #: Work counters of the last search (read by benchmarks/bench_mine.py).
@@ -84,6 +88,12 @@ def search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_f
     try:
         while max_length is None or k < max_length:
             n_prev = len(levels[k]["sym"])
+            if n_prev * n_sym > MAX_CANDIDATE_CELLS:  # dense level tables: bound memory
+                raise PatternExplosionError(
+                    f"Mining stopped: {n_prev} frequent patterns of length {k} times {n_sym} "
+                    f"frequent tokens is too many candidate extensions for memory (limit "
+                    f"{MAX_CANDIDATE_CELLS}). Raise 'min_support' (--min-support), lower "
+                    f"'max_length', or merge rare actions with --mapping.")
             if k == 0:
                 allowed = np.zeros((1, n_sym), dtype=bool)
                 allowed[0, level1] = True

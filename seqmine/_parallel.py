@@ -53,8 +53,12 @@ def parallel_map(func, items, *, jobs=1, scheduler=None):
 
 
 def _call_with_quiet(func, quiet, item):
+    before = is_quiet()
     set_quiet(quiet)
-    return func(item)
+    try:
+        return func(item)
+    finally:
+        set_quiet(before)
 
 
 def _dask_map(func, items, scheduler, jobs):

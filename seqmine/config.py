@@ -103,6 +103,9 @@ def merge_config(base, overrides, source="configuration"):
                 out[key][sub] = v
         else:
             _check_type(source, key, DEFAULT_CONFIG.get(key), value)
+            if key == "jobs" and not (value >= 1 or value == -1):
+                raise ParameterError(f"{source}: option 'jobs' must be a positive whole number "
+                                     f"or -1 (all cores); got {value!r}.")
             out[key] = value
     return out
 

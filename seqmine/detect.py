@@ -269,9 +269,11 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
     enc.setdefault("unit", "learner")
     enc.setdefault("session_gap", None)
     enc.setdefault("pause", {"strategy": "none", "edges": [], "labels": [], "implicit": []})
+    pause = enc.get("pause") or {}
+    known = set(vocabulary or []) | {PAUSE_PREFIX + lab for lab in pause.get("labels", [])}
     detectors = []
     for k, row in enumerate(selected_rows.to_dict("records")):
-        tokens = _split_pattern(row["pattern"])
+        tokens = _split_pattern(row["pattern"], known)
         fav = "" if _missing(row.get("favours")) else str(row["favours"]).strip()
         if fav == weak:
             direction = "discourage"
@@ -612,14 +614,39 @@ def _unknown_keys(obj, allowed, at, fail):
             fail(f"{at}.{key}" if at else str(key), f"unknown field; {hint}")
 
 
-def _split_pattern(text):
+def _split_pattern(text, known=None):
+    """Tokens of a pattern written as ``"a > b"``.
+
+    Token names may themselves contain ``>`` (e.g. ``menu>open``); the separator is
+    ``" > "`` with its spaces. When ``known`` token names are given, a name that
+    contains the separator itself is recognised too.
+    """
     if isinstance(text, (list, tuple)):
         return [str(t) for t in text]
-    parts = [p.strip() for p in str(text).split(PATTERN_SEPARATOR.strip())]
+    pieces = str(text).split(PATTERN_SEPARATOR)
+    if known:
+        seg = _segment(pieces, known)
+        if seg is not None:
+            return seg
+    parts = [p.strip() for p in pieces]
     if not parts or any(p == "" for p in parts):
         raise ParameterError(f"Pattern {text!r} has an empty token; patterns are token names "
                              f"joined by {PATTERN_SEPARATOR!r}.")
     return parts
+
+
+def _segment(pieces, known):
+    """Split ``pieces`` (the text cut at every separator) into known tokens, or None."""
+    n = len(pieces)
+    best = [None] * (n + 1)  # best[i]: a segmentation of pieces[i:]
+    best[n] = []
+    for i in range(n - 1, -1, -1):
+        for j in range(i + 1, n + 1):
+            tok = PATTERN_SEPARATOR.join(pieces[i:j])
+            if tok in known and best[j] is not None:
+                best[i] = [tok] + best[j]
+                break
+    return best[0]
 
 
 def _is_subsequence(short, long):

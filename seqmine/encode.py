@@ -447,6 +447,12 @@ def _prepare(events, fields):
                  else np.full(n, "", dtype=object))
     ev["source_row"] = (events["source_row"].to_numpy(np.int64) if "source_row" in events.columns
                         else np.arange(1, n + 1, dtype=np.int64))
+    bad = ~np.isfinite(ev["time"].to_numpy(float))
+    if bad.any():
+        raise ParameterError(
+            f"The events table has {int(bad.sum())} missing or infinite time(s) (first at source "
+            f"row {int(ev['source_row'].to_numpy()[bad][0])}); load the log with load_events, "
+            f"which rejects such rows.")
     return ev.sort_values(["learner", "time"], kind="mergesort").reset_index(drop=True)
 
 

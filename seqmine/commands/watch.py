@@ -145,26 +145,28 @@ def _write(out, firings, watcher, times, hints_only):
         out.write(json.dumps(f.to_dict(iso_times=iso), ensure_ascii=False) + "\n")
 
 
-def _pseudonymizer(key_file):
-    """learner -> pseudonym, cached; non-string or empty learners pass through unchanged."""
+def _pseudonymizer(key_path):
+    """learner -> pseudonym (as in the offline analysis); other values pass unchanged,
+    so the watcher rejects them exactly as it would without the option."""
     from ..privacy import pseudonymize, read_key
+    from ..watch import _CONTROL
 
-    key = read_key(key_file)
+    key = read_key(key_path)
     cache = {}
 
-    def pseudo(learner):
-        if isinstance(learner, bool) or not isinstance(learner, (str, int, float)):
-            return learner
-        text = str(learner).strip()
-        if not text:
-            return learner
-        p = cache.get(text)
+    def convert(value):
+        if type(value) is not str:
+            return value
+        s = value.strip()
+        if not s or _CONTROL.search(s):
+            return value
+        p = cache.get(s)
         if p is None:
-            if len(cache) > 1_000_000:
+            if len(cache) > 1_000_000:  # bound memory on endless streams
                 cache.clear()
-            p = cache[text] = str(pseudonymize([text], key)[0])
+            p = cache[s] = str(pseudonymize([s], key)[0])
         return p
-    return pseudo
+    return convert
 
 
 def _idle(text):

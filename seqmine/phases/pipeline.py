@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import hashlib
 import json
 import re
 from dataclasses import dataclass, field
@@ -315,7 +316,13 @@ def load_phase_models(folder):
     if not summary_path.is_file():
         raise ParameterError(f"{folder}: no phases.json; run 'seqmine phases' first.")
     summary = json.loads(summary_path.read_text(encoding="utf-8"))
-    return {k: PhaseModel.load(folder / v) for k, v in summary["models"].items()}
+    models = summary.get("models") if isinstance(summary, dict) else None
+    if not isinstance(models, dict) or not all(
+            isinstance(v, str) and re.fullmatch(r"[A-Za-z0-9_][A-Za-z0-9_.-]*", v)
+            for v in models.values()):
+        raise ParameterError(f"{summary_path}: 'models' must map names to model file names "
+                             f"in this folder; run 'seqmine phases' again.")
+    return {k: PhaseModel.load(folder / v) for k, v in models.items()}
 
 
 # ----------------------------------------------------------------- helpers
@@ -398,7 +405,13 @@ def _concat(frames, columns):
 
 
 def _safe(name):
-    return re.sub(r"[^A-Za-z0-9_.-]", "_", str(name))
+    """A file-name part for a group label: no separators; labels that had to be changed
+    get a short hash so that two labels never share a file (``a/b`` vs ``a?b``)."""
+    name = str(name)
+    safe = re.sub(r"[^A-Za-z0-9_.-]", "_", name).lstrip(".") or "_"
+    if safe != name:
+        safe = f"{safe[:60]}-{hashlib.sha256(name.encode('utf-8')).hexdigest()[:8]}"
+    return safe
 
 
 def _model_file(key):
