@@ -1,0 +1,91 @@
+"""Partitioned mining and batched permutations equal the serial run (in-process and local processes)."""
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from seqmine._mine_parallel import _partition_first_items, mine_parallel
+from seqmine.errors import ParameterError, PatternExplosionError
+from seqmine.mine import mine
+from seqmine.sequences import SequenceDB
+
+
+def assert_same_patternset(a, b):
+    """Every field of two PatternSets is equal (patterns, order, supports, counts, constraints)."""
+    assert a.patterns == b.patterns
+    assert a.vocab == b.vocab
+    np.testing.assert_array_equal(a.support_counts, b.support_counts)
+    np.testing.assert_array_equal(a.group_sizes, b.group_sizes)
+    np.testing.assert_array_equal(a.seq_groups, b.seq_groups)
+    assert a.group_names == b.group_names
+    assert a.constraints == b.constraints
+    assert a.counts.shape == b.counts.shape
+    assert a.counts.dtype == b.counts.dtype
+    assert (a.counts != b.counts).nnz == 0
+
+
+def _random_db(rng, n_seq=30, n_sym=5, pauses=True):
+    vocab = [chr(97 + i) for i in range(n_sym)] + (["pause:long"] if pauses else [])
+    seqs = [list(rng.choice(vocab, size=int(rng.integers(1, 12)))) for _ in range(n_seq)]
+    groups = ["x" if i % 2 else "y" for i in range(n_seq)]
+    return SequenceDB.from_lists(seqs, groups=groups,
+                                 pause_tokens=["pause:long"] if pauses else [])
+
+
+def test_first_items_restricts_the_first_item_only():
+    db = SequenceDB.from_lists([["a", "b", "c"], ["a", "c"], ["b", "c"]])
+    full = mine(db, min_support=2, max_length=3)
+    only_b = mine(db, min_support=2, max_length=3, first_items=["b"])
+    # hand-derived: the frequent patterns starting with b are 'b' and 'b > c'
+    assert only_b.names == ["b", "b > c"]
+    assert set(only_b.names) == {n for n in full.names if n.split(" > ")[0] == "b"}
+    b_id = db.vocab.index("b")
+    assert mine(db, min_support=2, max_length=3, first_items=[b_id]).names == only_b.names
+    with pytest.raises(ParameterError, match="'first_items'.*'z'.*not in the vocabulary"):
+        mine(db, min_support=2, first_items=["z"])
+
+
+def test_partitions_cover_each_present_token_once():
+    db = _random_db(np.random.default_rng(3), n_sym=7)
+    parts = _partition_first_items(db, 3)
+    flat = sorted(t for p in parts for t in p)
+    assert flat == sorted(np.unique(db.tokens).tolist())
+    assert len(parts) == 3
+
+
+@settings(max_examples=40, deadline=None)
+@given(seed=st.integers(0, 10_000), parts=st.integers(2, 6),
+       min_support=st.sampled_from([0.2, 0.4, 2]), min_length=st.integers(1, 3),
+       max_gap=st.sampled_from([None, 0, 1]), max_window=st.sampled_from([None, 4]),
+       flags=st.tuples(st.booleans(), st.booleans(), st.booleans(), st.booleans(),
+                       st.booleans()))
+def test_partitioned_mining_equals_serial(seed, parts, min_support, min_length, max_gap,
+                                          max_window, flags):
+    skip, start, end, closed, maximal = flags
+    db = _random_db(np.random.default_rng(seed))
+    kw = dict(min_support=min_support, min_length=min_length, max_length=4, max_gap=max_gap,
+              max_window=max_window, skip_pauses=skip, start_with_action=start,
+              end_with_action=end, closed=closed, maximal=maximal)
+    assert_same_patternset(mine_parallel(db, partitions=parts, **kw), mine(db, **kw))
+
+
+def test_pattern_limit_counts_every_frequent_pattern_like_the_serial_miner():
+    db = _random_db(np.random.default_rng(5))
+    n_all = mine(db, min_support=0.2, max_length=3).n_patterns
+    # the serial miner counts short patterns toward the limit even when not reported
+    with pytest.raises(PatternExplosionError, match="max_patterns"):
+        mine(db, min_support=0.2, min_length=3, max_length=3, max_patterns=n_all - 1)
+    with pytest.raises(PatternExplosionError, match="max_patterns"):
+        mine_parallel(db, min_support=0.2, min_length=3, max_length=3,
+                      max_patterns=n_all - 1, partitions=3)
+    ok = mine_parallel(db, min_support=0.2, min_length=3, max_length=3, max_patterns=n_all,
+                       partitions=3)
+    assert_same_patternset(ok, mine(db, min_support=0.2, min_length=3, max_length=3,
+                                    max_patterns=n_all))
+
+
+def test_local_processes_equal_serial():
+    db = _random_db(np.random.default_rng(11), n_seq=200, n_sym=6)
+    kw = dict(min_support=0.1, max_length=4, skip_pauses=True, closed=True)
+    assert_same_patternset(mine_parallel(db, jobs=2, **kw), mine(db, **kw))
