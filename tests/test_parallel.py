@@ -89,3 +89,39 @@ def test_local_processes_equal_serial():
     db = _random_db(np.random.default_rng(11), n_seq=200, n_sym=6)
     kw = dict(min_support=0.1, max_length=4, skip_pauses=True, closed=True)
     assert_same_patternset(mine_parallel(db, jobs=2, **kw), mine(db, **kw))
+
+
+# ------------------------------------------------------------ permutation batches
+def _presence_problem(seed, n=60, m=25):
+    import scipy.sparse as sp
+    rng = np.random.default_rng(seed)
+    labels = rng.integers(0, 2, size=n)
+    labels[:2] = [0, 1]
+    x = sp.csr_matrix(rng.poisson(0.6, size=(n, m)).astype(float))
+    return x, labels
+
+
+@pytest.mark.parametrize("jobs", [2, 3])
+def test_permutation_chunks_equal_the_serial_stream_in_process(monkeypatch, jobs):
+    # the chunked path with an in-process map: the union of the chunks is the serial stream
+    import seqmine._parallel as par
+    from seqmine._permutation import westfall_young_minp, westfall_young_rates
+    monkeypatch.setattr(par, "parallel_map",
+                        lambda f, items, jobs=1, scheduler=None: [f(x) for x in items])
+    x, labels = _presence_problem(4)
+    for fn in (westfall_young_minp, westfall_young_rates):
+        raw_s, adj_s = fn(x, labels, n_permutations=97, seed=7, batch_size=10)
+        raw_p, adj_p = fn(x, labels, n_permutations=97, seed=7, batch_size=13, jobs=jobs)
+        np.testing.assert_array_equal(raw_s, raw_p)
+        np.testing.assert_array_equal(adj_s, adj_p)
+
+
+def test_contrast_westfall_young_in_local_processes_equals_serial():
+    from seqmine.contrast import contrast
+    db = _random_db(np.random.default_rng(8), n_seq=80, n_sym=5)
+    ps = mine(db, min_support=0.1, max_length=3)
+    kw = dict(correction="westfall-young", n_permutations=120, seed=3, stability_resamples=5)
+    serial = contrast(ps, db, **kw)
+    parallel = contrast(ps, db, jobs=2, **kw)
+    assert serial.equals(parallel)
+    assert serial["q_value"].notna().all()
