@@ -14,6 +14,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from ._parallel import parallel_map
+from ._progress import is_quiet, set_quiet
 from ._validation import check_int
 from .errors import ParameterError, PatternExplosionError
 from .mine import DEFAULT_MAX_PATTERNS, _superpattern_flags, mine
@@ -134,7 +135,12 @@ def _mine_partition(task):
                     learners=np.full(n_seq, "", dtype=object),
                     sessions=np.full(n_seq, "", dtype=object),
                     groups=groups, group_names=group_names)
-    return mine(db, first_items=part, **kwargs)
+    quiet = is_quiet()
+    set_quiet(True)      # one bar per partition would interleave
+    try:
+        return mine(db, first_items=part, **kwargs)
+    finally:
+        set_quiet(quiet)
 
 
 def _serial_key(ps):

@@ -8,9 +8,14 @@ back in task order, so the output does not depend on where the tasks ran.
 
 from __future__ import annotations
 
+import contextlib
+
 from .errors import ParameterError
 
-__all__ = ["parallel_map"]
+__all__ = ["parallel_map", "using_scheduler"]
+
+#: Clients opened by :func:`using_scheduler`, innermost last: (scheduler, client).
+_ACTIVE = []
 
 
 def parallel_map(func, items, *, jobs=1, scheduler=None):
@@ -46,7 +51,49 @@ def parallel_map(func, items, *, jobs=1, scheduler=None):
     return list(Parallel(n_jobs=jobs)(delayed(func)(x) for x in items))
 
 
-def _dask_map(func, items, scheduler, jobs):
+@contextlib.contextmanager
+def using_scheduler(scheduler, jobs=1):
+    """Connect to a Dask cluster once for a block of work.
+
+    Inside the block, :func:`parallel_map` calls with the same ``scheduler`` reuse the
+    connection (a ``"local"`` cluster is started once, not per call) and joblib's
+    ``Parallel`` (hidden Markov model restarts) runs on the cluster too. With
+    ``scheduler=None`` nothing happens.
+
+    Parameters
+    ----------
+    scheduler : str or None
+        Dask scheduler address or ``"local"``.
+    jobs : int
+        Workers of a ``"local"`` cluster.
+
+    Yields
+    ------
+    distributed.Client or None
+
+    Examples
+    --------
+    >>> with using_scheduler(None) as client:
+    ...     parallel_map(abs, [-1, 2])
+    [1, 2]
+    """
+    if not scheduler:
+        yield None
+        return
+    import joblib
+    stack = contextlib.ExitStack()
+    with stack:
+        client = _connect(scheduler, jobs, stack)
+        _ACTIVE.append((scheduler, client))
+        try:
+            with joblib.parallel_config(backend="dask"):
+                yield client
+        finally:
+            _ACTIVE.pop()
+
+
+def _connect(scheduler, jobs, stack):
+    """A Client for ``scheduler`` whose shutdown is registered on ``stack``."""
     try:
         from distributed import Client, LocalCluster
     except ImportError:
@@ -55,14 +102,22 @@ def _dask_map(func, items, scheduler, jobs):
             "pip install \"seqmine[distributed]\".") from None
     if scheduler == "local":
         n = jobs if isinstance(jobs, int) and jobs > 0 else 2
-        with LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
-                          dashboard_address=None) as cluster, Client(cluster) as client:
-            return client.gather(client.map(func, items, pure=False))
+        cluster = stack.enter_context(LocalCluster(
+            n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None))
+        return stack.enter_context(Client(cluster))
     try:
         client = Client(scheduler, timeout="20s")
     except OSError as exc:
         raise ParameterError(
             f"Cannot reach the Dask scheduler at {scheduler!r} ({exc}); check the address "
             f"or drop --scheduler to run locally.") from None
-    with client:
+    return stack.enter_context(client)
+
+
+def _dask_map(func, items, scheduler, jobs):
+    for active, client in reversed(_ACTIVE):
+        if active == scheduler:
+            return client.gather(client.map(func, items, pure=False))
+    with contextlib.ExitStack() as stack:
+        client = _connect(scheduler, jobs, stack)
         return client.gather(client.map(func, items, pure=False))

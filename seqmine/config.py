@@ -25,6 +25,7 @@ __all__ = ["DEFAULT_CONFIG", "load_config", "merge_config", "default_config"]
 DEFAULT_CONFIG = {
     "seed": 20261202,
     "jobs": 1,
+    "scheduler": None,
     "events": {
         "learner_column": "learner", "time_column": "time", "action_column": "action",
         "session_column": "session", "target_column": "target", "channel_column": "channel",
