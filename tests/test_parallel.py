@@ -10,27 +10,7 @@ from seqmine.errors import ParameterError, PatternExplosionError
 from seqmine.mine import mine
 from seqmine.sequences import SequenceDB
 
-
-def assert_same_patternset(a, b):
-    """Every field of two PatternSets is equal (patterns, order, supports, counts, constraints)."""
-    assert a.patterns == b.patterns
-    assert a.vocab == b.vocab
-    np.testing.assert_array_equal(a.support_counts, b.support_counts)
-    np.testing.assert_array_equal(a.group_sizes, b.group_sizes)
-    np.testing.assert_array_equal(a.seq_groups, b.seq_groups)
-    assert a.group_names == b.group_names
-    assert a.constraints == b.constraints
-    assert a.counts.shape == b.counts.shape
-    assert a.counts.dtype == b.counts.dtype
-    assert (a.counts != b.counts).nnz == 0
-
-
-def _random_db(rng, n_seq=30, n_sym=5, pauses=True):
-    vocab = [chr(97 + i) for i in range(n_sym)] + (["pause:long"] if pauses else [])
-    seqs = [list(rng.choice(vocab, size=int(rng.integers(1, 12)))) for _ in range(n_seq)]
-    groups = ["x" if i % 2 else "y" for i in range(n_seq)]
-    return SequenceDB.from_lists(seqs, groups=groups,
-                                 pause_tokens=["pause:long"] if pauses else [])
+from _parallel_helpers import _random_db, assert_same_patternset  # noqa: F401
 
 
 def test_first_items_restricts_the_first_item_only():
@@ -125,3 +105,14 @@ def test_contrast_westfall_young_in_local_processes_equals_serial():
     parallel = contrast(ps, db, jobs=2, **kw)
     assert serial.equals(parallel)
     assert serial["q_value"].notna().all()
+
+
+def test_scheduler_flag_reaches_the_configuration():
+    from seqmine.cli import build_parser
+    from seqmine.commands.analyze import config_from_args
+    args = build_parser().parse_args(["analyze", "ev.csv", "--outcomes", "oc.csv", "--out", "o",
+                                      "--jobs", "2", "--scheduler", "tcp://10.0.0.5:8786"])
+    cfg = config_from_args(args, args._defaults)
+    assert cfg["scheduler"] == "tcp://10.0.0.5:8786" and cfg["jobs"] == 2
+    args = build_parser().parse_args(["analyze", "ev.csv", "--outcomes", "oc.csv", "--out", "o"])
+    assert config_from_args(args, args._defaults)["scheduler"] is None
