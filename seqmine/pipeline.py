@@ -314,13 +314,16 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     if ph_cfg["enabled"]:
         from .phases import fit_phases
         with stages("phase models"):
-            phases = fit_phases(db, n_states=range(ph_cfg["min_states"], ph_cfg["max_states"] + 1),
+            phase_db = _sample_sequences(db, ph_cfg.get("max_sequences"), seed)
+            phases = fit_phases(phase_db,
+                                n_states=range(ph_cfg["min_states"], ph_cfg["max_states"] + 1),
                                 n_restarts=ph_cfg["restarts"], seed=seed,
                                 n_jobs=-1 if scheduler else jobs,
                                 n_iter=ph_cfg["max_iter"])
             phases.save(out / "phases")
             files.append(out / "phases")
-            summary["phases"] = {"n_states": int(phases.n_states)}
+            summary["phases"] = {"n_states": int(phases.n_states),
+                                 "sequences_sampled": int(phase_db.n_sequences)}
 
     # 5. early prediction: the whole discovery pipeline re-run inside learner folds
     va_cfg = cfg["validate"]
@@ -337,8 +340,10 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
         with stages("early prediction"):
             feats = default_featurizers(seed=seed, pattern_params=pattern_params,
                                         hmm_params=dict(va_cfg.get("hmm") or {}))
+            va_events, va_outcomes = _sample_learners(prepared.events, prepared.outcomes,
+                                                      va_cfg.get("max_learners"), seed)
             validation = validate(
-                prepared.events, prepared.outcomes, folds=int(va_cfg["folds"]),
+                va_events, va_outcomes, folds=int(va_cfg["folds"]),
                 fractions=va_cfg["fractions"], grouping=clone(grouping),
                 encoder=clone(encoder), featurizers=feats, n_bootstrap=int(va_cfg["bootstrap"]),
                 alpha=alpha, seed=seed, n_jobs=jobs, scheduler=scheduler)
@@ -348,6 +353,7 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
             digest = validation.summary()
             summary["early_prediction"] = {k: digest[k] for k in (
                 "earliest_fraction", "earliest_fraction_sustained") if k in digest}
+            summary["early_prediction"]["learners_sampled"] = int(va_events["learner"].nunique())
 
     # 6. detectors
     de_cfg = cfg["detectors"]
@@ -379,6 +385,26 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
                                max_patterns=int(cfg["report"]["top_patterns"]))
         files.append(report)
     return AnalysisResult(out_dir=out, summary=summary, files=files)
+
+
+def _sample_sequences(db, limit, seed):
+    """``db``, or a seeded random subset of ``limit`` sequences (kept in their order)."""
+    if limit is None or db.n_sequences <= int(limit):
+        return db
+    rng = np.random.default_rng([seed, 11])
+    return db.subset(np.sort(rng.choice(db.n_sequences, int(limit), replace=False)))
+
+
+def _sample_learners(events, outcomes, limit, seed):
+    """Events and outcomes of at most ``limit`` learners drawn at random (seeded)."""
+    learners = pd.unique(events["learner"])
+    if limit is None or len(learners) <= int(limit):
+        return events, outcomes
+    rng = np.random.default_rng([seed, 12])
+    keep = set(np.sort(rng.choice(np.asarray(learners, dtype=object), int(limit),
+                                  replace=False)).tolist())
+    return (events[events["learner"].isin(keep)].reset_index(drop=True),
+            outcomes[outcomes["learner"].isin(keep)].reset_index(drop=True))
 
 
 def _without_timings(summary):
