@@ -46,6 +46,21 @@ LARGE_CONFIG = {
     "validate": {"folds": 2, "fractions": [0.5, 1.0], "bootstrap": 100, "max_learners": 5000},
 }
 
+#: Memory model of ``analyze`` (large-data configuration, jobs=1): peak resident memory
+#: of each stage ~= fixed MB + bytes per event x events. Fitted on the 1e6 and 1e7 runs
+#: of 2026-12-02 (see docs/scaling.md); every run prints measured / model per stage, so
+#: a code change that breaks the model (ratio well above 1) shows up here.
+MEMORY_MODEL = {
+    "loading and encoding": (344, 675),
+    "mining patterns": (333, 301),
+    "scoring patterns": (291, 511),
+    "transitions": (282, 334),
+    "phase models": (376, 275),
+    "early prediction": (525, 272),
+    "detectors": (431, 272),
+    "report": (431, 272),
+}
+
 CHILD = r'''
 import json, os, resource, sys, threading, time
 sys.path.insert(0, {root!r})
@@ -131,7 +146,20 @@ def run_size(n_events, config_name, jobs=1, scheduler=None, fmt=None, out_root=N
                load_avg_end=round(os.getloadavg()[0], 2),
                events_per_s=rec["events"] / rec["wall_s"],
                peak_bytes_per_event=rec["peak_mb"] * 2**20 / rec["events"])
+    rec["memory_model"] = check_memory_model(rec)
     return rec
+
+
+def check_memory_model(rec):
+    """Model peak MB per stage and measured / model, from :data:`MEMORY_MODEL`."""
+    out = {}
+    for stage, (fixed, per_event) in MEMORY_MODEL.items():
+        model = fixed + per_event * rec["events"] / 2**20
+        measured = rec["stage_peak_mb"].get(stage)
+        out[stage] = {"model_mb": round(model, 1),
+                      "measured_over_model": None if measured is None else
+                      round(measured / model, 3)}
+    return out
 
 
 def print_table(records, file=sys.stdout):
@@ -139,10 +167,15 @@ def print_table(records, file=sys.stdout):
         print(f"\n{r['events']:,} events, {r['tokens']:,} tokens, {r['sequences']:,} sequences "
               f"({r['config']} config, {r['input_format']}, jobs={r['jobs']}); "
               f"load average {r['load_avg_start']} -> {r['load_avg_end']}", file=file)
-        print(f"  {'stage':<22} {'seconds':>9} {'peak MB':>9}", file=file)
+        print(f"  {'stage':<22} {'seconds':>9} {'peak MB':>9} {'model MB':>9} "
+              f"{'peak/model':>10}", file=file)
+        model = r.get("memory_model", {})
         for stage, sec in r["stage_seconds"].items():
-            print(f"  {stage:<22} {sec:>9.2f} {r['stage_peak_mb'].get(stage, float('nan')):>9.0f}",
-                  file=file)
+            m = model.get(stage, {})
+            ratio = m.get("measured_over_model")
+            print(f"  {stage:<22} {sec:>9.2f} {r['stage_peak_mb'].get(stage, float('nan')):>9.0f} "
+                  f"{m.get('model_mb', float('nan')):>9.0f} "
+                  f"{'' if ratio is None else format(ratio, '.2f'):>10}", file=file)
         print(f"  {'total':<22} {r['wall_s']:>9.2f} {r['peak_mb']:>9.0f}   "
               f"({r['events_per_s']:,.0f} events/s, {r['peak_bytes_per_event']:,.0f} "
               f"peak bytes/event)", file=file)
@@ -174,6 +207,8 @@ def main(argv=None):
     old = json.loads(out.read_text()) if out.is_file() else []
     keep = [r for r in old if (r["target_events"], r["config"], r.get("jobs", 1)) not in
             {(r2["target_events"], r2["config"], r2["jobs"]) for r2 in records}]
+    for r in keep:
+        r["memory_model"] = check_memory_model(r)
     out.write_text(json.dumps(sorted(keep + records, key=lambda r: (r["target_events"],
                                                                     r["config"])), indent=1)
                    + "\n")
