@@ -116,3 +116,23 @@ def test_scheduler_flag_reaches_the_configuration():
     assert cfg["scheduler"] == "tcp://10.0.0.5:8786" and cfg["jobs"] == 2
     args = build_parser().parse_args(["analyze", "ev.csv", "--outcomes", "oc.csv", "--out", "o"])
     assert config_from_args(args, args._defaults)["scheduler"] is None
+
+
+def test_large_data_samples_are_seeded_ordered_and_optional():
+    import pandas as pd
+    from seqmine.pipeline import _sample_learners, _sample_sequences
+    db = _random_db(np.random.default_rng(1), n_seq=50)
+    assert _sample_sequences(db, None, 3) is db and _sample_sequences(db, 50, 3) is db
+    a, b = _sample_sequences(db, 20, 3), _sample_sequences(db, 20, 3)
+    assert a.n_sequences == 20 and a.decode(0) == b.decode(0)
+    idx = [int(s[1:]) for s in a.learners]     # learners are named L0, L1, ...
+    assert idx == sorted(idx) and len(set(idx)) == 20
+    ev = pd.DataFrame({"learner": np.repeat([f"L{i:02d}" for i in range(30)], 3),
+                       "time": np.tile([1.0, 2.0, 3.0], 30)})
+    oc = pd.DataFrame({"learner": [f"L{i:02d}" for i in range(30)], "score": np.arange(30.0)})
+    e1, o1 = _sample_learners(ev, oc, 10, 5)
+    e2, _ = _sample_learners(ev, oc, 10, 5)
+    assert e1["learner"].nunique() == 10 and len(e1) == 30
+    assert set(o1["learner"]) == set(e1["learner"]) and e1.equals(e2)
+    assert e1["learner"].is_monotonic_increasing   # original order kept
+    assert _sample_learners(ev, oc, None, 5)[0] is ev
