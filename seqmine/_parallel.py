@@ -80,6 +80,9 @@ def using_scheduler(scheduler, jobs=1):
     if not scheduler:
         yield None
         return
+    if not isinstance(scheduler, str):
+        raise ParameterError(f"The 'scheduler' option must be a Dask address such as "
+                             f"'tcp://host:8786' or 'local'. Got {scheduler!r} instead.")
     import joblib
     stack = contextlib.ExitStack()
     with stack:

@@ -136,3 +136,10 @@ def test_large_data_samples_are_seeded_ordered_and_optional():
     assert set(o1["learner"]) == set(e1["learner"]) and e1.equals(e2)
     assert e1["learner"].is_monotonic_increasing   # original order kept
     assert _sample_learners(ev, oc, None, 5)[0] is ev
+
+
+def test_scheduler_must_be_an_address():
+    from seqmine._parallel import using_scheduler
+    with pytest.raises(ParameterError, match="'scheduler' option must be a Dask address"):
+        with using_scheduler(8786):
+            pass
