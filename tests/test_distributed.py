@@ -96,3 +96,35 @@ def test_one_connection_serves_every_call_inside_using_scheduler(scheduler, monk
         assert parallel_map(abs, [-1, -2], scheduler=scheduler) == [1, 2]
         assert parallel_map(abs, [-3], scheduler=scheduler) == [3]
     assert len(opened) == 1
+
+
+@pytest.mark.slow
+def test_analyze_on_the_cluster_writes_the_serial_outputs(scheduler, tmp_path):
+    import json
+
+    from seqmine.config import default_config, merge_config
+    from seqmine.demo_data import write_greenhouse
+    from seqmine.pipeline import analyze
+
+    write_greenhouse(tmp_path / "data", 60, seed=3)
+    base = {"contrast": {"correction": "westfall-young", "n_permutations": 60,
+                         "stability_resamples": 10},
+            "phases": {"min_states": 2, "max_states": 2, "restarts": 2, "max_iter": 10},
+            "validate": {"folds": 2, "fractions": [1.0], "bootstrap": 20}}
+    ev, oc = tmp_path / "data" / "events.csv", tmp_path / "data" / "outcomes.csv"
+    analyze(ev, oc, tmp_path / "serial", merge_config(default_config(), base), quiet=True)
+    analyze(ev, oc, tmp_path / "dask", merge_config(default_config(), dict(
+        base, jobs=2, scheduler=scheduler)), quiet=True)
+    for name in ("patterns.csv", "transitions.csv", "early_prediction.csv", "detectors.json",
+                 "examples.json"):
+        assert (tmp_path / "serial" / name).read_bytes() == (tmp_path / "dask" / name).read_bytes()
+    phase_files = sorted(p.name for p in (tmp_path / "serial" / "phases").iterdir())
+    assert phase_files
+    for name in phase_files:
+        assert ((tmp_path / "serial" / "phases" / name).read_bytes()
+                == (tmp_path / "dask" / "phases" / name).read_bytes()), name
+    a, b = (json.loads((tmp_path / d / "summary.json").read_text()) for d in ("serial", "dask"))
+    assert b["configuration"].pop("scheduler") == scheduler
+    assert b["configuration"].pop("jobs") == 2
+    a["configuration"].pop("scheduler"), a["configuration"].pop("jobs")
+    assert a == b
