@@ -9,8 +9,9 @@ peak is ``ru_maxrss``. Prints a table and writes ``benchmarks/results/pipeline.j
     python benchmarks/bench_pipeline.py --quick         # 1e4 and 1e5 events
     python benchmarks/bench_pipeline.py --sizes 1e7     # the large run (large-data config)
 
-Configurations (``--config default|large``; default: ``default`` below 5e6 events,
-``large`` from 5e6 on):
+Configurations (``--config default|large``; default: ``default`` below 1e6 events,
+``large`` from 1e6 on -- with the shipped defaults the phase models alone would take
+most of an hour at 1e6 events on 2 cores):
 
 * ``default`` -- the shipped defaults of ``seqmine analyze`` (BH correction, phase
   models 2-5 states x 3 restarts, 5-fold early-prediction check with 500 bootstraps).
@@ -198,7 +199,7 @@ def main(argv=None):
         sizes = [10_000, 100_000] if args.quick else [100_000, 1_000_000]
     records = []
     for n in sizes:
-        name = args.config or ("large" if n >= 5_000_000 else "default")
+        name = args.config or ("large" if n >= 1_000_000 else "default")
         print(f"analyze at ~{n:,} events ({name} config) ...", file=sys.stderr, flush=True)
         records.append(run_size(n, name, jobs=args.jobs, scheduler=args.scheduler))
         print_table(records[-1:])
