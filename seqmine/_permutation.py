@@ -25,7 +25,8 @@ __all__ = ["westfall_young_minp", "westfall_young_rates", "bootstrap_significanc
 _BATCH_ENTRIES = 2_000_000
 
 
-def westfall_young_minp(presence, labels, *, n_permutations=1000, seed=0, batch_size=None):
+def westfall_young_minp(presence, labels, *, n_permutations=1000, seed=0, batch_size=None,
+                        jobs=1, scheduler=None):
     """Westfall-Young step-down min-P adjusted p-values for all patterns at once.
 
     Parameters
@@ -43,6 +44,11 @@ def westfall_young_minp(presence, labels, *, n_permutations=1000, seed=0, batch_
     batch_size : int, optional
         Permutations handled per sparse product; default keeps
         ``n_patterns * batch_size`` near two million entries.
+    jobs, scheduler
+        Run contiguous chunks of the permutation stream in ``jobs`` local processes
+        or on a Dask cluster (see :func:`seqmine._parallel.parallel_map`). Each chunk
+        starts from the generator state the serial run has there, so the
+        permutations, and the result, are identical to the serial run.
 
     Returns
     -------
@@ -88,11 +94,13 @@ def westfall_young_minp(presence, labels, *, n_permutations=1000, seed=0, batch_
     pfunc = _pvalue_function(pt, sizes)
     raw = pfunc(_group_counts(pt, labels[:, None], n_groups))[:, 0]
     adjusted = _step_down_minp(raw, lambda perm: pfunc(_group_counts(pt, perm, n_groups)),
-                               labels, n_permutations, seed, _batch_size(batch_size, m))
+                               labels, n_permutations, seed, _batch_size(batch_size, m),
+                               jobs=jobs, scheduler=scheduler)
     return raw, adjusted
 
 
-def westfall_young_rates(rates, labels, *, n_permutations=1000, seed=0, batch_size=None):
+def westfall_young_rates(rates, labels, *, n_permutations=1000, seed=0, batch_size=None,
+                         jobs=1, scheduler=None):
     """Westfall-Young step-down min-P adjustment of the rank test on rates.
 
     Parameters
@@ -101,7 +109,7 @@ def westfall_young_rates(rates, labels, *, n_permutations=1000, seed=0, batch_si
         Non-negative per-sequence rates (absent entries are 0).
     labels : array_like of int, shape (n_sequences,)
         Group index ``0 .. k-1`` of each sequence (``k >= 2``).
-    n_permutations, seed, batch_size
+    n_permutations, seed, batch_size, jobs, scheduler
         As in :func:`westfall_young_minp` (the same seed draws the same permutations).
 
     Returns
@@ -181,7 +189,7 @@ def westfall_young_rates(rates, labels, *, n_permutations=1000, seed=0, batch_si
 
     raw = pfunc(labels[:, None])[:, 0]
     adjusted = _step_down_minp(raw, pfunc, labels, n_permutations, seed,
-                               _batch_size(batch_size, m))
+                               _batch_size(batch_size, m), jobs=jobs, scheduler=scheduler)
     return raw, adjusted
 
 
@@ -265,28 +273,60 @@ def bootstrap_significance(presence, labels, direction, *, n_resamples=100, alph
 
 
 # --------------------------------------------------------------------- helpers
-def _step_down_minp(raw, pfunc, labels, n_permutations, seed, batch):
+def _step_down_minp(raw, pfunc, labels, n_permutations, seed, batch, jobs=1, scheduler=None):
     """Westfall-Young algorithm 2.8 given ``pfunc(permuted labels (n, nb)) -> (m, nb)``."""
     m = len(raw)
     order = np.argsort(raw, kind="stable")
     threshold = raw[order][:, None] * (1.0 + FISHER_RTOL)
-    exceed = np.zeros(m, dtype=np.int64)
     rng = np.random.default_rng(seed)
+    if (jobs is None or jobs == 1) and not scheduler:
+        exceed = _exceed_counts((pfunc, labels, rng.bit_generator.state, n_permutations, batch,
+                                 order, threshold, True))
+    else:
+        from ._parallel import parallel_map
+        tasks = []
+        for start, stop in _chunks(n_permutations, jobs):
+            tasks.append((pfunc, labels, rng.bit_generator.state, stop - start, batch, order,
+                          threshold, False))
+            for _ in range(stop - start):   # advance exactly as the chunk will
+                rng.permutation(labels)
+        exceed = np.sum(parallel_map(_exceed_counts, tasks, jobs=jobs, scheduler=scheduler),
+                        axis=0)
+    adj_sorted = np.maximum.accumulate((exceed + 1.0) / (n_permutations + 1.0))
+    adjusted = np.empty(m)
+    adjusted[order] = np.minimum(adj_sorted, 1.0)
+    return adjusted
+
+
+def _exceed_counts(task):
+    """Per sorted pattern, how many of ``count`` permutations have ``q*(j) <= p(j)``."""
+    pfunc, labels, state, count, batch, order, threshold, show = task
+    rng = np.random.default_rng()
+    rng.bit_generator.state = state
+    exceed = np.zeros(len(order), dtype=np.int64)
     done = 0
-    bar = progress(total=n_permutations, desc="permutations", unit="perm")
-    while done < n_permutations:
-        nb = min(batch, n_permutations - done)
+    bar = progress(total=count, desc="permutations", unit="perm") if show else None
+    while done < count:
+        nb = min(batch, count - done)
         perm = np.stack([rng.permutation(labels) for _ in range(nb)], axis=1)
         p_b = pfunc(perm)[order]
         q_b = np.minimum.accumulate(p_b[::-1], axis=0)[::-1]
         exceed += (q_b <= threshold).sum(axis=1)
         done += nb
-        bar.update(nb)
-    bar.close()
-    adj_sorted = np.maximum.accumulate((exceed + 1.0) / (n_permutations + 1.0))
-    adjusted = np.empty(m)
-    adjusted[order] = np.minimum(adj_sorted, 1.0)
-    return adjusted
+        if bar is not None:
+            bar.update(nb)
+    if bar is not None:
+        bar.close()
+    return exceed
+
+
+def _chunks(n, jobs):
+    """Contiguous ranges covering ``0 .. n-1``: two per worker (for balance)."""
+    import os
+    workers = (os.cpu_count() or 1) if jobs in (None, -1) else max(int(jobs), 1)
+    k = max(1, min(n, 2 * workers))
+    edges = np.linspace(0, n, k + 1).round().astype(np.int64)
+    return [(int(a), int(b)) for a, b in zip(edges[:-1], edges[1:]) if b > a]
 
 
 def _prepare(presence, labels):

@@ -25,6 +25,7 @@ __all__ = ["DEFAULT_CONFIG", "load_config", "merge_config", "default_config"]
 DEFAULT_CONFIG = {
     "seed": 20261202,
     "jobs": 1,
+    "scheduler": None,
     "events": {
         "learner_column": "learner", "time_column": "time", "action_column": "action",
         "session_column": "session", "target_column": "target", "channel_column": "channel",
@@ -54,10 +55,10 @@ DEFAULT_CONFIG = {
     "transitions": {"include_pauses": True},
     "phases": {"enabled": True, "min_states": 2, "max_states": 5, "restarts": 3,
                "max_iter": 100, "criterion": "bic", "heldout_folds": 3,
-               "permutations": 19},
+               "permutations": 19, "max_sequences": None},
     "validate": {"enabled": True, "folds": 5,
                  "fractions": [0.1, 0.25, 0.5, 0.75, 1.0], "bootstrap": 500,
-                 "top_patterns": 30, "hmm": {}},
+                 "top_patterns": 30, "hmm": {}, "max_learners": None},
     "detectors": {"max_q": 0.05, "min_stability": 0.5, "max_detectors": 20},
     "report": {"examples": True, "top_patterns": 15},
     "privacy": {"pseudonymize_key": None},

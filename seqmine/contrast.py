@@ -49,7 +49,7 @@ _ORDERS = ("significance", "length")
 def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", alpha=0.05,
              n_permutations=1000, seed=0, stability_resamples=100, redundancy=0.9,
              redundancy_order="significance", drop_redundant=False, rate_unit=None,
-             unit="sequence", batch_size=None):
+             unit="sequence", batch_size=None, jobs=1, scheduler=None):
     """Score every pattern for how it separates outcome groups.
 
     Parameters
@@ -98,6 +98,9 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
         and permutations and resamples move whole learners.
     batch_size : int, optional
         Permutations/resamples per sparse product (memory bound).
+    jobs, scheduler
+        Westfall-Young permutations in ``jobs`` local processes or on a Dask cluster
+        (``"local"`` or an address); the table is identical to the serial run.
 
     Returns
     -------
@@ -211,12 +214,13 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
 
     if correction == "westfall-young":
         _, q = westfall_young_minp(pres, labels, n_permutations=n_permutations, seed=seed,
-                                   batch_size=batch_size)
+                                   batch_size=batch_size, jobs=jobs, scheduler=scheduler)
     else:
         q = adjust_pvalues(p, correction)
     if correction == "westfall-young":
         _, q_rate = westfall_young_rates(rates, labels, n_permutations=n_permutations,
-                                         seed=seed, batch_size=batch_size)
+                                         seed=seed, batch_size=batch_size, jobs=jobs,
+                                         scheduler=scheduler)
     else:
         q_rate = adjust_pvalues(stats["p_rate"], correction)
 

@@ -49,7 +49,8 @@ _MAX_BULK_SUBSET_LENGTH = 12
 
 def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_window=None,
          skip_pauses=False, start_with_action=False, end_with_action=False, closed=False,
-         maximal=False, max_patterns=DEFAULT_MAX_PATTERNS, instance_counts=True):
+         maximal=False, max_patterns=DEFAULT_MAX_PATTERNS, instance_counts=True,
+         first_items=None):
     """Mine ordered patterns that are frequent in at least one group.
 
     Parameters
@@ -73,6 +74,11 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
         subsequence) has the identical per-group support vector.
     maximal : bool
         Drop a pattern when any reported pattern contains it as a subsequence.
+    first_items : sequence of int or str, optional
+        Only patterns whose first item is one of these (token ids or names) are
+        searched; used to split mining into independent partitions (see
+        :func:`seqmine._mine_parallel.mine_parallel`). Closed/maximal filtering then
+        only sees the partition's patterns.
     max_patterns : int
         Stop with :class:`~seqmine.errors.PatternExplosionError` when more frequent
         patterns than this are found.
@@ -141,6 +147,8 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
     level1 = np.arange(len(alphabet))
     if start_with_action:
         level1 = level1[~is_pause_local]
+    if first_items is not None:
+        level1 = level1[np.isin(alphabet[level1], _first_item_ids(first_items, db))]
     mode, engine_cons = _engine(max_gap, max_window, skip_pauses)
 
     def allowed_fn(levels, k):
@@ -588,6 +596,20 @@ def _superpattern_flags_slow(pats, support):
 def _is_subsequence(p, q):
     it = iter(q)
     return all(any(x == y for y in it) for x in p)
+
+
+def _first_item_ids(first_items, db):
+    """Vocabulary ids of ``first_items`` (ids or token names)."""
+    ids = []
+    for item in first_items:
+        if isinstance(item, str):
+            if item not in db.vocab:
+                raise ParameterError(f"The 'first_items' parameter of mine names {item!r}, "
+                                     f"which is not in the vocabulary.")
+            ids.append(db.vocab.index(item))
+        else:
+            ids.append(check_int(item, "first_items", "mine", minimum=0))
+    return np.asarray(ids, dtype=np.int64)
 
 
 def _jsonable(d):

@@ -188,6 +188,11 @@ def _versions():
 def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     """Run the whole pipeline and write the output folder.
 
+    With ``config["jobs"] > 1`` mining partitions, Westfall-Young permutation
+    batches, phase-model fits and validation folds run in local processes; with
+    ``config["scheduler"]`` (a Dask address or ``"local"``) on a Dask cluster,
+    connected once for the whole run. The outputs are identical to a serial run.
+
     Parameters
     ----------
     events_path, outcomes_path : str or Path
@@ -202,6 +207,16 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     -------
     AnalysisResult
     """
+    from ._parallel import using_scheduler
+    from .config import default_config
+
+    cfg = config or default_config()
+    with using_scheduler(cfg.get("scheduler"), int(cfg["jobs"])):
+        return _analyze(events_path, outcomes_path, out_dir, cfg, quiet=quiet)
+
+
+def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
+    import time
     from pathlib import Path
 
     from ._progress import set_quiet
@@ -209,7 +224,8 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     from .encode import Encoder, load_mapping
     from .contrast import contrast
     from .load import load_events
-    from .mine import mine, save_patternset
+    from ._mine_parallel import mine_parallel
+    from .mine import save_patternset
     from .outcomes import load_outcomes
     from .privacy import read_key
     from .report import render_report, write_examples
@@ -224,6 +240,7 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     ev_cfg, oc_cfg, en_cfg = cfg["events"], cfg["outcomes"], cfg["encode"]
 
     # 1. load and validate
+    t_load = time.perf_counter()
     columns = {role: ev_cfg[f"{role}_column"] for role in
                ("learner", "time", "action", "session", "target", "channel")}
     loaded = load_events(events_path, columns=columns, format=ev_cfg["format"],
@@ -256,14 +273,17 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     summary = dict(prepared.summary)
     seed = int(cfg["seed"])
     jobs = int(cfg["jobs"])
+    scheduler = cfg.get("scheduler") or None
     stages = _Stages(quiet=quiet)
+    stages.seconds["loading and encoding"] = round(time.perf_counter() - t_load, 3)
 
     # 3. mine and score
     mine_cfg, con_cfg = cfg["mine"], cfg["contrast"]
     if mine_cfg["max_gap"] is not None and mine_cfg["max_gap"] < 0:  # -1 = no limit
         mine_cfg = dict(mine_cfg, max_gap=None)
     with stages("mining patterns"):
-        patternset = mine(db, min_support=mine_cfg["min_support"],
+        patternset = mine_parallel(db, jobs=jobs, scheduler=scheduler,
+                          min_support=mine_cfg["min_support"],
                           min_length=mine_cfg["min_length"], max_length=mine_cfg["max_length"],
                           max_gap=mine_cfg["max_gap"], max_window=mine_cfg["max_window"],
                           skip_pauses=mine_cfg["skip_pauses"],
@@ -275,7 +295,8 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
         table = contrast(patternset, db, correction=con_cfg["correction"], alpha=con_cfg["alpha"],
                          n_permutations=con_cfg["n_permutations"], seed=seed,
                          stability_resamples=con_cfg["stability_resamples"],
-                         redundancy=con_cfg["redundancy_jaccard"])
+                         redundancy=con_cfg["redundancy_jaccard"], jobs=jobs,
+                         scheduler=scheduler)
         table = _order_patterns(table)
         table.to_csv(out / "patterns.csv", index=False, lineterminator="\n", float_format="%.10g")
         files.append(out / "patterns.csv")
@@ -309,14 +330,18 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     if ph_cfg["enabled"]:
         from .phases import fit_phases
         with stages("phase models"):
-            phases = fit_phases(db, n_states=range(ph_cfg["min_states"], ph_cfg["max_states"] + 1),
-                                n_restarts=ph_cfg["restarts"], seed=seed, n_jobs=jobs,
+            phase_db = _sample_sequences(db, ph_cfg.get("max_sequences"), seed)
+            phases = fit_phases(phase_db,
+                                n_states=range(ph_cfg["min_states"], ph_cfg["max_states"] + 1),
+                                n_restarts=ph_cfg["restarts"], seed=seed,
+                                n_jobs=-1 if scheduler else jobs,
                                 n_iter=ph_cfg["max_iter"], criterion=ph_cfg["criterion"],
                                 n_folds=ph_cfg["heldout_folds"],
                                 n_permutations=ph_cfg["permutations"])
             phases.save(out / "phases")
             files.append(out / "phases")
-            summary["phases"] = {"n_states": int(phases.n_states)}
+            summary["phases"] = {"n_states": int(phases.n_states),
+                                 "sequences_sampled": int(phase_db.n_sequences)}
 
     # 5. early prediction: the whole discovery pipeline re-run inside learner folds
     va_cfg = cfg["validate"]
@@ -340,17 +365,20 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
         with stages("early prediction"):
             feats = default_featurizers(seed=seed, pattern_params=pattern_params,
                                         hmm_params=dict(va_cfg.get("hmm") or {}))
+            va_events, va_outcomes = _sample_learners(prepared.events, prepared.outcomes,
+                                                      va_cfg.get("max_learners"), seed)
             validation = validate(
-                prepared.events, prepared.outcomes, folds=int(va_cfg["folds"]),
+                va_events, va_outcomes, folds=int(va_cfg["folds"]),
                 fractions=va_cfg["fractions"], grouping=clone(grouping),
                 encoder=clone(encoder), featurizers=feats, n_bootstrap=int(va_cfg["bootstrap"]),
-                alpha=alpha, seed=seed, n_jobs=jobs)
+                alpha=alpha, seed=seed, n_jobs=jobs, scheduler=scheduler)
             validation.metrics.to_csv(out / "early_prediction.csv", index=False,
                                       lineterminator="\n", float_format="%.10g")
             files.append(out / "early_prediction.csv")
             digest = validation.summary()
             summary["early_prediction"] = {k: digest[k] for k in (
                 "earliest_fraction", "earliest_fraction_sustained") if k in digest}
+            summary["early_prediction"]["learners_sampled"] = int(va_events["learner"].nunique())
 
     # 6. detectors
     de_cfg = cfg["detectors"]
@@ -384,6 +412,26 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
                                max_patterns=int(cfg["report"]["top_patterns"]))
         files.append(report)
     return AnalysisResult(out_dir=out, summary=summary, files=files)
+
+
+def _sample_sequences(db, limit, seed):
+    """``db``, or a seeded random subset of ``limit`` sequences (kept in their order)."""
+    if limit is None or db.n_sequences <= int(limit):
+        return db
+    rng = np.random.default_rng([seed, 11])
+    return db.subset(np.sort(rng.choice(db.n_sequences, int(limit), replace=False)))
+
+
+def _sample_learners(events, outcomes, limit, seed):
+    """Events and outcomes of at most ``limit`` learners drawn at random (seeded)."""
+    learners = pd.unique(events["learner"])
+    if limit is None or len(learners) <= int(limit):
+        return events, outcomes
+    rng = np.random.default_rng([seed, 12])
+    keep = set(np.sort(rng.choice(np.asarray(learners, dtype=object), int(limit),
+                                  replace=False)).tolist())
+    return (events[events["learner"].isin(keep)].reset_index(drop=True),
+            outcomes[outcomes["learner"].isin(keep)].reset_index(drop=True))
 
 
 def _without_timings(summary):

@@ -72,6 +72,10 @@ def add_arguments(p):
     p.add_argument("--config", metavar="FILE", default=None, help="TOML file with options")
     p.add_argument("--seed", type=int, default=None, help="random seed (default: 20261202)")
     p.add_argument("--jobs", type=int, default=None, help="parallel processes (default: 1)")
+    p.add_argument("--scheduler", metavar="ADDRESS", default=None,
+                   help="run the parallel parts on a Dask cluster: tcp://host:8786, or 'local' "
+                        "for a local cluster with --jobs workers (needs "
+                        "pip install \"seqmine[distributed]\")")
     p.add_argument("--pseudonymize", metavar="KEY_FILE", default=None,
                    help="replace learner identifiers in every output by a keyed hash")
     _options.add_event_options(p)
@@ -117,7 +121,7 @@ def config_from_args(args, parser_defaults):
             continue
         value = getattr(args, dest)
         over.setdefault(section, {})[key] = conv(value) if conv else value
-    for key in ("seed", "jobs"):
+    for key in ("seed", "jobs", "scheduler"):
         if getattr(args, key, None) is not None:
             over[key] = getattr(args, key)
     return merge_config(cfg, over, source="command line")
