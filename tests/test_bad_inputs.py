@@ -168,6 +168,10 @@ def test_missing_and_folder(tmp_path, capsys):
     pytest.param("e.json", '{"statements": 5}', ["e.json", "JSON array"], id="xapi-wrong-shape"),
     pytest.param("e.jsonl", "[1, 2]\n\"text\"\n", ["e.jsonl", "none of the 2 records"],
                  id="jsonl-no-objects"),
+    pytest.param("e.parquet", b"PAR1 this is not parquet PAR1", ["e.parquet", "not a readable Parquet"],
+                 id="parquet-garbage"),
+    pytest.param("e.parquet", BASE.encode(), ["e.parquet", "not a readable Parquet"],
+                 id="csv-named-parquet"),
 ])
 def test_json_fatal(tmp_path, capsys, name, content, needles):
     rc, err, _ = encode(tmp_path, capsys, content, name=name)

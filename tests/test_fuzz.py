@@ -140,6 +140,54 @@ def test_load_events_csv_like_text(tmp_path_factory, text):
     _check_load_result(res)
 
 
+@st.composite
+def xapi_statement(draw):
+    """Statements shaped like xAPI, with any part missing or of the wrong kind."""
+    name = st.sampled_from(["L1", "L2", "mailto:a@b.example", ""]) | nasty_text
+    parts = {
+        "actor": st.fixed_dictionaries({}, optional={
+            "account": st.fixed_dictionaries({}, optional={"name": name}) | json_values,
+            "mbox": name, "name": name}) | json_values,
+        "verb": st.fixed_dictionaries({}, optional={
+            "id": st.sampled_from(ACTIONS).map(lambda a: f"http://x.example/verbs/{a}") | name,
+            "display": st.dictionaries(st.sampled_from(["en-US", "en", "und", "de"]), name,
+                                       max_size=2) | json_values}) | json_values,
+        "object": st.fixed_dictionaries({}, optional={
+            "id": name, "definition": st.fixed_dictionaries({}, optional={
+                "name": st.dictionaries(st.sampled_from(["en-US", "und"]), name, max_size=1)})}),
+        "timestamp": st.integers(0, 500) | field,
+        "context": st.fixed_dictionaries({}, optional={"registration": name}) | json_values,
+    }
+    good = {
+        "actor": st.sampled_from(["L1", "L2", "L3"]).map(lambda n: {"account": {"name": n}}),
+        "verb": st.sampled_from(ACTIONS).map(lambda a: {"id": f"http://x.example/verbs/{a}"}),
+        "object": st.just({"id": "http://x.example/pot1"}),
+        "timestamp": st.integers(0, 500).map(lambda t: iso_time(t)),
+        "context": st.just({}),
+    }
+    return {k: draw(good[k] if draw(st.integers(0, 3)) else v) for k, v in parts.items()
+            if draw(st.integers(0, 7))}
+
+
+def iso_time(t):
+    return f"2026-03-02T09:{t // 60:02d}:{t % 60:02d}Z"
+
+
+@FUZZ
+@given(statements=st.lists(xapi_statement(), max_size=8), wrapped=st.booleans())
+def test_load_events_xapi_statements(tmp_path_factory, statements, wrapped):
+    p = tmp_path_factory.mktemp("fz") / "ev.json"
+    p.write_text(json.dumps({"statements": statements} if wrapped else statements),
+                 encoding="utf-8")
+    try:
+        res = load_events(p)
+    except SeqmineError as exc:
+        event(f"error: {type(exc).__name__}")
+        return
+    event("loaded")
+    _check_load_result(res)
+
+
 @FUZZ
 @given(lines=st.lists(st.one_of(event_object().map(json.dumps), json_values.map(json.dumps),
                                 nasty_text), max_size=10),
