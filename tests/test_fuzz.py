@@ -204,12 +204,35 @@ def test_load_events_json_lines_and_statements(tmp_path_factory, lines, ext):
     _check_load_result(res)
 
 
+OUTCOME_VALUES = {"learner": st.sampled_from([f"L{i}" for i in range(12)]),
+                  "pre": st.integers(0, 10).map(str), "post": st.integers(0, 12).map(str),
+                  "max": st.integers(0, 12).map(str), "score": st.integers(0, 100).map(str),
+                  "label": st.sampled_from(["strong", "weak", "mid"])}
+
+
+@st.composite
+def outcome_rows(draw, cols):
+    """Mostly plausible values per column, sometimes anything, sometimes ragged."""
+    rows = []
+    for k in range(draw(st.integers(0, 8))):
+        if draw(st.integers(0, 4)):
+            values = {**OUTCOME_VALUES, "learner": st.just(f"L{k}"),
+                      "max": st.just("12"), "pre": st.integers(0, 12).map(str)}
+            rows.append([draw(values.get(c, field) if draw(st.integers(0, 9))
+                              else field) for c in cols])
+        else:
+            rows.append(draw(st.lists(field, max_size=6)))
+    return rows
+
+
 @FUZZ
-@given(cols=st.lists(st.sampled_from(["learner", "pre", "post", "max", "score", "label", "x"]),
-                     min_size=1, max_size=5),
-       rows=st.lists(st.lists(field, min_size=0, max_size=6), max_size=8),
-       max_score=st.none() | st.floats(-5, 50))
-def test_load_outcomes_arbitrary(tmp_path_factory, cols, rows, max_score):
+@given(cols=st.one_of(st.sampled_from([["learner", "pre", "post", "max"], ["learner", "score"],
+                                       ["learner", "label"], ["learner", "pre", "post"]]),
+                      st.lists(st.sampled_from(["learner", "pre", "post", "max", "score",
+                                                "label", "x"]), min_size=1, max_size=5)),
+       data=st.data(), max_score=st.none() | st.floats(-5, 50))
+def test_load_outcomes_arbitrary(tmp_path_factory, cols, data, max_score):
+    rows = data.draw(outcome_rows(cols))
     p = tmp_path_factory.mktemp("fz") / "oc.csv"
     p.write_text("\n".join([",".join(cols)] + [",".join(r) for r in rows]) + "\n",
                  encoding="utf-8")
@@ -230,9 +253,10 @@ def test_load_outcomes_arbitrary(tmp_path_factory, cols, rows, max_score):
 def event_table(draw):
     n = draw(st.integers(1, 30))
     learners = draw(st.lists(st.sampled_from(["a", "b", "c", "d"]), min_size=n, max_size=n))
-    times = draw(st.lists(st.floats(0, 1e5) | st.integers(0, 50).map(float)
-                          | st.sampled_from([float("nan"), float("inf")]),
+    times = draw(st.lists(st.floats(0, 1e5) | st.integers(0, 50).map(float),
                           min_size=n, max_size=n))
+    if draw(st.integers(0, 9)) == 0:  # now and then a missing or infinite time
+        times[draw(st.integers(0, n - 1))] = draw(st.sampled_from([float("nan"), float("inf")]))
     actions = draw(st.lists(st.sampled_from(ACTIONS[:4]) | nasty_text.filter(bool),
                             min_size=n, max_size=n))
     sessions = draw(st.lists(st.sampled_from(["", "s1", "s2"]), min_size=n, max_size=n))
