@@ -9,7 +9,8 @@ from ..outcomes import Grouping, load_outcomes
 
 __all__ = ["add_event_options", "add_outcome_options", "add_encoding_options",
            "events_from_args", "outcomes_from_args", "grouping_from_args",
-           "encoder_from_args", "parse_float_list"]
+           "encoder_from_args", "parse_float_list", "add_privacy_option",
+           "pseudonymize_inputs"]
 
 
 def parse_float_list(text, option):
@@ -107,3 +108,27 @@ def encoder_from_args(args):
         pause_bins=args.pause_bins,
         pause_thresholds=parse_float_list(args.pause_thresholds, "--pause-thresholds"),
         implicit_pauses=implicit, unit=args.unit, session_gap=args.session_gap)
+
+
+def add_privacy_option(p):
+    p.add_argument("--pseudonymize", metavar="KEY_FILE", default=None,
+                   help="replace learner identifiers in every output by a keyed hash "
+                        "(HMAC-SHA256; the same key gives the same pseudonyms as analyze)")
+
+
+def pseudonymize_inputs(args, loaded, outcomes):
+    """Events and outcomes with learner identifiers replaced, when --pseudonymize is given.
+
+    Done right after loading (as ``seqmine analyze`` does), so no output sees a raw id.
+    """
+    key_path = getattr(args, "pseudonymize", None)
+    if not key_path:
+        return loaded, outcomes
+    from ..privacy import pseudonymize_frame, read_key
+    key = read_key(key_path)
+    loaded.events = pseudonymize_frame(loaded.events, key).sort_values(
+        ["learner", "time"], kind="mergesort").reset_index(drop=True)
+    kind = outcomes.attrs.get("outcome_kind")
+    outcomes = pseudonymize_frame(outcomes, key)
+    outcomes.attrs["outcome_kind"] = kind
+    return loaded, outcomes

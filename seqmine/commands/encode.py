@@ -23,13 +23,16 @@ def add_arguments(p):
     _options.add_event_options(p)
     _options.add_outcome_options(p)
     _options.add_encoding_options(p)
+    _options.add_privacy_option(p)
 
 
 def run(args):
     set_quiet(args.quiet)
     out = Path(args.out)
+    loaded, outcomes = _options.pseudonymize_inputs(
+        args, _options.events_from_args(args, args.events), _options.outcomes_from_args(args))
     prepared = prepare_sequences(
-        _options.events_from_args(args, args.events), _options.outcomes_from_args(args),
+        loaded, outcomes,
         grouping_factory=lambda o: _options.grouping_from_args(args, o),
         encoder=_options.encoder_from_args(args))
     out.mkdir(parents=True, exist_ok=True)
