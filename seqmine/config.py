@@ -100,10 +100,9 @@ def merge_config(base, overrides, source="configuration"):
                 if sub not in out[key]:
                     raise ParameterError(_unknown(source, f"{key}.{sub}",
                                                   [f"{key}.{k}" for k in out[key]]))
-                _check_type(source, f"{key}.{sub}", DEFAULT_CONFIG[key].get(sub), v)
-                out[key][sub] = v
+                out[key][sub] = _check_type(source, f"{key}.{sub}", DEFAULT_CONFIG[key].get(sub), v)
         else:
-            _check_type(source, key, DEFAULT_CONFIG.get(key), value)
+            value = _check_type(source, key, DEFAULT_CONFIG.get(key), value)
             if key == "jobs" and not (value >= 1 or value == -1):
                 raise ParameterError(f"{source}: option 'jobs' must be a positive whole number "
                                      f"or -1 (all cores); got {value!r}.")
@@ -112,9 +111,13 @@ def merge_config(base, overrides, source="configuration"):
 
 
 def _check_type(source, key, default, value):
-    """The value must have the kind of its default (options defaulting to None take any)."""
+    """The value, checked to have the kind of its default (options defaulting to None
+    take any); a whole number written as a float (``max_bytes = 2e10``) becomes an int."""
     if default is None or value is None:
-        return
+        return value
+    if (isinstance(default, int) and not isinstance(default, bool) and isinstance(value, float)
+            and value.is_integer()):
+        value = int(value)
     if isinstance(default, bool):
         ok, kind = isinstance(value, bool), "true or false"
     elif isinstance(default, int):
@@ -126,9 +129,10 @@ def _check_type(source, key, default, value):
     elif isinstance(default, list):
         ok, kind = isinstance(value, list), "a list, e.g. [...]"
     else:
-        return
+        return value
     if not ok:
         raise ParameterError(f"{source}: option '{key}' must be {kind}; got {value!r}.")
+    return value
 
 
 def _unknown(source, key, valid):

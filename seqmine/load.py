@@ -29,6 +29,7 @@ __all__ = [
     "EVENT_ROLES",
     "REJECT_REASONS",
     "MAX_ACTION_LENGTH",
+    "MEMORY_PER_INPUT_BYTE",
 ]
 
 #: Column roles of an event table and whether they are required.
@@ -55,6 +56,12 @@ MAX_ACTION_LENGTH = 200
 
 #: Largest input file read without ``max_bytes`` raised (bytes).
 DEFAULT_MAX_BYTES = 20_000_000_000
+
+#: Working memory per byte of input while loading and encoding (measured 25-40x on
+#: CSV logs; see docs/reliability.md). With the default ``max_bytes``, a file that
+#: would need more than the machine's memory stops before it is read.
+MEMORY_PER_INPUT_BYTE = 40
+_DEFAULT_LIMITS = (DEFAULT_MAX_BYTES, 20_000_000_000)  # the API's and the command line's
 
 _EPOCH = pd.Timestamp("1970-01-01", tz="UTC")
 _T_MIN = 0.0
@@ -176,6 +183,8 @@ def load_events(path, *, columns=None, format=None, delimiter=None, encoding="ut
         raise DataFileError(
             f"{path}: {size:,} bytes is above the {int(max_bytes):,}-byte limit; "
             f"split the log by learners or raise the limit with --max-bytes.")
+    if max_bytes in _DEFAULT_LIMITS:
+        _check_memory(path, size)
     fmt = format or _guess_format(path)
     check_choice(fmt, "format", _FORMATS, "load_events")
     if fmt in ("csv", "tsv"):
@@ -389,6 +398,33 @@ def _read_jsonl(path, encoding):
     df = _frame(records)
     df.attrs["bad_rows"] = {r: "bad_json" for r in bad}
     return df
+
+
+def _physical_memory():
+    """Bytes of memory this process may use (machine or container limit), or None."""
+    total = None
+    try:
+        total = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+    except (AttributeError, ValueError, OSError):  # not POSIX
+        pass
+    for limit_file in ("/sys/fs/cgroup/memory.max", "/sys/fs/cgroup/memory/memory.limit_in_bytes"):
+        try:
+            text = Path(limit_file).read_text().strip()
+        except OSError:
+            continue
+        if text.isdigit() and int(text) > 0:
+            total = min(total, int(text)) if total else int(text)
+    return total or None
+
+
+def _check_memory(path, size):
+    total = _physical_memory()
+    need = size * MEMORY_PER_INPUT_BYTE
+    if total is not None and need > total:
+        raise DataFileError(
+            f"{path}: loading {size / 1e6:,.0f} MB needs about {need / 1e9:,.1f} GB of memory "
+            f"(about {MEMORY_PER_INPUT_BYTE}x the file size) but {total / 1e9:,.1f} GB are "
+            f"available; split the log by learners, or pass --max-bytes to load it anyway.")
 
 
 def _json_or_none(line):

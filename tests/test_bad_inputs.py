@@ -151,6 +151,17 @@ def test_file_over_max_bytes(tmp_path, capsys):
     assert_one_error(rc, err, "events.csv", "limit", "--max-bytes")
 
 
+def test_file_too_large_for_memory(tmp_path, capsys, monkeypatch):
+    # with the default size limit, a file that would need more memory than the
+    # machine has stops before it is read; an explicit --max-bytes loads it anyway
+    import seqmine.load
+    monkeypatch.setattr(seqmine.load, "_physical_memory", lambda: 20_000)
+    rc, err, _ = encode(tmp_path, capsys, BASE)
+    assert_one_error(rc, err, "events.csv", "GB of memory", "split the log", "--max-bytes")
+    rc, err, out = encode(tmp_path, capsys, BASE, extra=["--max-bytes", "1e9"])
+    accounting(rc, err, out)
+
+
 def test_missing_and_folder(tmp_path, capsys):
     oc = _write(tmp_path / "outcomes.csv", OUTCOMES)
     rc, _, err = _run(capsys, ["encode", tmp_path / "nope.csv", "--outcomes", oc,
@@ -168,6 +179,10 @@ def test_missing_and_folder(tmp_path, capsys):
     pytest.param("e.json", '{"statements": 5}', ["e.json", "JSON array"], id="xapi-wrong-shape"),
     pytest.param("e.jsonl", "[1, 2]\n\"text\"\n", ["e.jsonl", "none of the 2 records"],
                  id="jsonl-no-objects"),
+    pytest.param("e.parquet", b"PAR1 this is not parquet PAR1", ["e.parquet", "not a readable Parquet"],
+                 id="parquet-garbage"),
+    pytest.param("e.parquet", BASE.encode(), ["e.parquet", "not a readable Parquet"],
+                 id="csv-named-parquet"),
 ])
 def test_json_fatal(tmp_path, capsys, name, content, needles):
     rc, err, _ = encode(tmp_path, capsys, content, name=name)

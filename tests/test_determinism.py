@@ -79,7 +79,7 @@ def test_jobs_do_not_change_outputs(runs):
     assert b'"jobs"' not in j["summary.json"]
 
 
-def test_quiet_is_quiet_with_worker_processes(tmp_path, capsys):
+def test_quiet_is_quiet_with_worker_processes():
     # -q silences progress bars in worker processes too (they start with their own
     # switch); checked through the parallel helper the early-prediction folds use
     from seqmine._parallel import parallel_map

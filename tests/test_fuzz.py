@@ -140,6 +140,54 @@ def test_load_events_csv_like_text(tmp_path_factory, text):
     _check_load_result(res)
 
 
+@st.composite
+def xapi_statement(draw):
+    """Statements shaped like xAPI, with any part missing or of the wrong kind."""
+    name = st.sampled_from(["L1", "L2", "mailto:a@b.example", ""]) | nasty_text
+    parts = {
+        "actor": st.fixed_dictionaries({}, optional={
+            "account": st.fixed_dictionaries({}, optional={"name": name}) | json_values,
+            "mbox": name, "name": name}) | json_values,
+        "verb": st.fixed_dictionaries({}, optional={
+            "id": st.sampled_from(ACTIONS).map(lambda a: f"http://x.example/verbs/{a}") | name,
+            "display": st.dictionaries(st.sampled_from(["en-US", "en", "und", "de"]), name,
+                                       max_size=2) | json_values}) | json_values,
+        "object": st.fixed_dictionaries({}, optional={
+            "id": name, "definition": st.fixed_dictionaries({}, optional={
+                "name": st.dictionaries(st.sampled_from(["en-US", "und"]), name, max_size=1)})}),
+        "timestamp": st.integers(0, 500) | field,
+        "context": st.fixed_dictionaries({}, optional={"registration": name}) | json_values,
+    }
+    good = {
+        "actor": st.sampled_from(["L1", "L2", "L3"]).map(lambda n: {"account": {"name": n}}),
+        "verb": st.sampled_from(ACTIONS).map(lambda a: {"id": f"http://x.example/verbs/{a}"}),
+        "object": st.just({"id": "http://x.example/pot1"}),
+        "timestamp": st.integers(0, 500).map(lambda t: iso_time(t)),
+        "context": st.just({}),
+    }
+    return {k: draw(good[k] if draw(st.integers(0, 3)) else v) for k, v in parts.items()
+            if draw(st.integers(0, 7))}
+
+
+def iso_time(t):
+    return f"2026-03-02T09:{t // 60:02d}:{t % 60:02d}Z"
+
+
+@FUZZ
+@given(statements=st.lists(xapi_statement(), max_size=8), wrapped=st.booleans())
+def test_load_events_xapi_statements(tmp_path_factory, statements, wrapped):
+    p = tmp_path_factory.mktemp("fz") / "ev.json"
+    p.write_text(json.dumps({"statements": statements} if wrapped else statements),
+                 encoding="utf-8")
+    try:
+        res = load_events(p)
+    except SeqmineError as exc:
+        event(f"error: {type(exc).__name__}")
+        return
+    event("loaded")
+    _check_load_result(res)
+
+
 @FUZZ
 @given(lines=st.lists(st.one_of(event_object().map(json.dumps), json_values.map(json.dumps),
                                 nasty_text), max_size=10),
@@ -156,12 +204,35 @@ def test_load_events_json_lines_and_statements(tmp_path_factory, lines, ext):
     _check_load_result(res)
 
 
+OUTCOME_VALUES = {"learner": st.sampled_from([f"L{i}" for i in range(12)]),
+                  "pre": st.integers(0, 10).map(str), "post": st.integers(0, 12).map(str),
+                  "max": st.integers(0, 12).map(str), "score": st.integers(0, 100).map(str),
+                  "label": st.sampled_from(["strong", "weak", "mid"])}
+
+
+@st.composite
+def outcome_rows(draw, cols):
+    """Mostly plausible values per column, sometimes anything, sometimes ragged."""
+    rows = []
+    for k in range(draw(st.integers(0, 8))):
+        if draw(st.integers(0, 4)):
+            values = {**OUTCOME_VALUES, "learner": st.just(f"L{k}"),
+                      "max": st.just("12"), "pre": st.integers(0, 12).map(str)}
+            rows.append([draw(values.get(c, field) if draw(st.integers(0, 9))
+                              else field) for c in cols])
+        else:
+            rows.append(draw(st.lists(field, max_size=6)))
+    return rows
+
+
 @FUZZ
-@given(cols=st.lists(st.sampled_from(["learner", "pre", "post", "max", "score", "label", "x"]),
-                     min_size=1, max_size=5),
-       rows=st.lists(st.lists(field, min_size=0, max_size=6), max_size=8),
-       max_score=st.none() | st.floats(-5, 50))
-def test_load_outcomes_arbitrary(tmp_path_factory, cols, rows, max_score):
+@given(cols=st.one_of(st.sampled_from([["learner", "pre", "post", "max"], ["learner", "score"],
+                                       ["learner", "label"], ["learner", "pre", "post"]]),
+                      st.lists(st.sampled_from(["learner", "pre", "post", "max", "score",
+                                                "label", "x"]), min_size=1, max_size=5)),
+       data=st.data(), max_score=st.none() | st.floats(-5, 50))
+def test_load_outcomes_arbitrary(tmp_path_factory, cols, data, max_score):
+    rows = data.draw(outcome_rows(cols))
     p = tmp_path_factory.mktemp("fz") / "oc.csv"
     p.write_text("\n".join([",".join(cols)] + [",".join(r) for r in rows]) + "\n",
                  encoding="utf-8")
@@ -182,9 +253,10 @@ def test_load_outcomes_arbitrary(tmp_path_factory, cols, rows, max_score):
 def event_table(draw):
     n = draw(st.integers(1, 30))
     learners = draw(st.lists(st.sampled_from(["a", "b", "c", "d"]), min_size=n, max_size=n))
-    times = draw(st.lists(st.floats(0, 1e5) | st.integers(0, 50).map(float)
-                          | st.sampled_from([float("nan"), float("inf")]),
+    times = draw(st.lists(st.floats(0, 1e5) | st.integers(0, 50).map(float),
                           min_size=n, max_size=n))
+    if draw(st.integers(0, 9)) == 0:  # now and then a missing or infinite time
+        times[draw(st.integers(0, n - 1))] = draw(st.sampled_from([float("nan"), float("inf")]))
     actions = draw(st.lists(st.sampled_from(ACTIONS[:4]) | nasty_text.filter(bool),
                             min_size=n, max_size=n))
     sessions = draw(st.lists(st.sampled_from(["", "s1", "s2"]), min_size=n, max_size=n))

@@ -228,3 +228,26 @@ def test_no_examples_means_no_log_excerpts(data, runs, tmp_path, capsys):
     assert set(re.findall(r"p_[0-9a-f]{16}", shown)) & learners  # excerpts name learners
     assert not re.search(r"p_[0-9a-f]{16}", html)
     assert "examples.json" not in html
+
+
+@pytest.mark.parametrize("command, extra", [
+    ("encode", []),
+    ("validate", ["--folds", "2", "--fractions", "1", "--bootstrap", "10",
+                  "--classifiers", "pattern", "--hmm-states", "2"]),
+])
+def test_encode_and_validate_pseudonymize_too(data, runs, tmp_path, capsys, command, extra):
+    d, ids = data
+    out = tmp_path / command
+    rc = main([command, str(d / "events.csv"), "--outcomes", str(d / "outcomes.csv"),
+               "--out", str(out), "-q", "--pseudonymize", str(d / "a.key"), *extra])
+    _, err = capsys.readouterr()
+    assert rc == 0, err
+    hits, _ = scan(out, ids + [DOMAIN])
+    assert hits == []
+    found = set()
+    for p in out.rglob("*"):
+        if p.is_file():
+            found |= {m for t in texts_of(p) for m in re.findall(r"p_[0-9a-f]{16}", t)}
+    assert found and found <= {pseudo(i, KEY_A) for i in ids}
+    if command == "encode":
+        assert found == _learners(runs["a"])  # the same pseudonyms as analyze

@@ -133,7 +133,7 @@ def test_detectors_file_is_plain_json_without_code(hostile_run):
     assert doc["format"] == "seqmine-detectors"
 
 
-def test_phase_files_of_colliding_labels_stay_apart(tmp_path, capsys):
+def test_phase_files_of_colliding_labels_stay_apart():
     # two labels that differ only in characters a file name cannot hold must not
     # overwrite each other's model file
     from seqmine.phases.pipeline import _graph_file, _model_file

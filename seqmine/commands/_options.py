@@ -9,7 +9,8 @@ from ..outcomes import Grouping, load_outcomes
 
 __all__ = ["add_event_options", "add_outcome_options", "add_encoding_options",
            "events_from_args", "outcomes_from_args", "grouping_from_args",
-           "encoder_from_args", "parse_float_list"]
+           "encoder_from_args", "parse_float_list", "add_privacy_option",
+           "pseudonymize_inputs"]
 
 
 def parse_float_list(text, option):
@@ -108,3 +109,22 @@ def encoder_from_args(args):
         pause_bins=args.pause_bins,
         pause_thresholds=parse_float_list(args.pause_thresholds, "--pause-thresholds"),
         implicit_pauses=implicit, unit=args.unit, session_gap=args.session_gap)
+
+
+def add_privacy_option(p):
+    p.add_argument("--pseudonymize", metavar="KEY_FILE", default=None,
+                   help="replace learner identifiers in every output by a keyed hash "
+                        "(HMAC-SHA256; the same key gives the same pseudonyms as analyze)")
+
+
+def pseudonymize_inputs(args, loaded, outcomes):
+    """Events and outcomes with learner identifiers replaced, when --pseudonymize is given.
+
+    Done right after loading (as ``seqmine analyze`` does), so no output sees a raw id.
+    """
+    key_path = getattr(args, "pseudonymize", None)
+    if not key_path:
+        return loaded, outcomes
+    from ..pipeline import pseudonymize_inputs as replace
+    from ..privacy import read_key
+    return replace(loaded, outcomes, read_key(key_path))

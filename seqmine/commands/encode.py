@@ -6,8 +6,7 @@ import json
 from pathlib import Path
 
 from .._progress import set_quiet
-from ..pipeline import prepare_sequences, pseudonymize_inputs
-from ..privacy import read_key
+from ..pipeline import prepare_sequences
 from . import _options
 
 NAME = "encode"
@@ -21,20 +20,17 @@ DESCRIPTION = ("Load the event log and outcomes, reject unusable rows (written t
 def add_arguments(p):
     p.add_argument("events", metavar="EVENTS", help="event log (CSV, TSV, Parquet, JSONL or xAPI JSON)")
     p.add_argument("--out", required=True, metavar="DIR", help="output folder")
-    p.add_argument("--pseudonymize", metavar="KEY_FILE", default=None,
-                   help="replace learner identifiers in every output by a keyed hash")
     _options.add_event_options(p)
     _options.add_outcome_options(p)
     _options.add_encoding_options(p)
+    _options.add_privacy_option(p)
 
 
 def run(args):
     set_quiet(args.quiet)
     out = Path(args.out)
-    loaded = _options.events_from_args(args, args.events)
-    outcomes = _options.outcomes_from_args(args)
-    if args.pseudonymize:
-        loaded, outcomes = pseudonymize_inputs(loaded, outcomes, read_key(args.pseudonymize))
+    loaded, outcomes = _options.pseudonymize_inputs(
+        args, _options.events_from_args(args, args.events), _options.outcomes_from_args(args))
     prepared = prepare_sequences(
         loaded, outcomes,
         grouping_factory=lambda o: _options.grouping_from_args(args, o),

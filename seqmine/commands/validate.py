@@ -62,6 +62,7 @@ def add_arguments(p):
     _options.add_event_options(p)
     _options.add_outcome_options(p)
     _options.add_encoding_options(p)
+    _options.add_privacy_option(p)
 
 
 def run(args):
@@ -74,8 +75,8 @@ def run(args):
         if c not in CLASSIFIERS:
             raise ParameterError(
                 f"--classifiers: unknown name {c!r}; choose from {', '.join(CLASSIFIERS)}.")
-    loaded = _options.events_from_args(args, args.events)
-    outcomes = _options.outcomes_from_args(args)
+    loaded, outcomes = _options.pseudonymize_inputs(
+        args, _options.events_from_args(args, args.events), _options.outcomes_from_args(args))
     featurizers = default_featurizers(
         seed=args.seed,
         pattern_params=dict(min_support=args.min_support, max_length=args.max_length,
