@@ -123,8 +123,9 @@ def test_analyze_on_the_cluster_writes_the_serial_outputs(scheduler, tmp_path):
     assert len(phase_files) > 3
     for name in phase_files:
         assert (tmp_path / "serial" / name).read_bytes() == (tmp_path / "dask" / name).read_bytes()
+    # where the work ran (jobs, scheduler) may be recorded; nothing else may differ
     a, b = (json.loads((tmp_path / d / "summary.json").read_text()) for d in ("serial", "dask"))
-    assert b["configuration"].pop("scheduler") == scheduler
-    assert b["configuration"].pop("jobs") == 2
-    a["configuration"].pop("scheduler"), a["configuration"].pop("jobs")
+    for summary in (a, b):
+        summary["configuration"].pop("jobs", None)
+        summary["configuration"].pop("scheduler", None)
     assert a == b
