@@ -108,7 +108,8 @@ def main(argv=None):
         data = json.loads(path.read_text())
         for row in ADAPTERS[name](data):
             row.setdefault("benchmark", name)
-            row["load_avg"] = runs.get(name, {}).get("load_avg", "")
+            if not row.get("load_avg"):
+                row["load_avg"] = runs.get(name, {}).get("load_avg", "")
             rows.append(row)
     _add_floor(rows)
     table = format_table(rows)
@@ -267,13 +268,20 @@ def _watch(data):
 def _pipeline(data):
     rows = []
     for r in data:
-        tag = f"{r['config']} config, jobs={r.get('jobs', 1)}, load {r.get('load_avg_start')}"
+        tag = f"{r['config']} config, jobs={r.get('jobs', 1)}"
+        load = f"{r.get('load_avg_start', 0):.1f}-{r.get('load_avg_end', 0):.1f}"
+        model = r.get("memory_model", {})
         for stage, sec in r["stage_seconds"].items():
+            ratio = model.get(stage, {}).get("measured_over_model")
             rows.append(_row(f"analyze: {stage}", events=r["events"], seconds=sec,
-                             peak_mb=r["stage_peak_mb"].get(stage), note=tag))
+                             peak_mb=r["stage_peak_mb"].get(stage),
+                             note=tag + ("" if ratio is None else
+                                         f"; peak/memory model {ratio:.2f}")))
+            rows[-1]["load_avg"] = load
         rows.append(_row("analyze: TOTAL", events=r["events"], seconds=r["wall_s"],
                          peak_mb=r["peak_mb"], note=f"{tag}; {r['tokens']} tokens, "
                          f"{r['peak_bytes_per_event']:.0f} peak bytes/event"))
+        rows[-1]["load_avg"] = load
     return rows
 
 

@@ -178,12 +178,9 @@ def _merge(db, pieces, *, min_length, end_with_action, closed, maximal, max_patt
         if maximal:
             ok &= ~not_maximal
         order = order[ok]
-    mats = [ps.counts for ps in pieces]
-    if all(m.shape[1] == ps.n_patterns for m, ps in zip(mats, pieces)):
-        counts = sp.hstack(mats, format="csc")[:, order].tocsr().astype(first.counts.dtype)
-        counts.sort_indices()
-    else:   # pragma: no cover - instance counts not computed (an empty matrix)
-        counts = first.counts
+    counts = sp.hstack([ps.counts for ps in pieces], format="csc")[:, order].tocsr()
+    counts = counts.astype(first.counts.dtype)
+    counts.sort_indices()
     constraints = dict(first.constraints)
     constraints.update(min_length=min_length, end_with_action=end_with_action,
                        closed=closed, maximal=maximal)
