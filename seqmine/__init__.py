@@ -33,6 +33,7 @@ _LAZY = {
     "SequenceDB": "sequences", "PatternSet": "patterns",
     # mine
     "mine": "mine", "match": "mine", "save_patternset": "mine", "load_patternset": "mine",
+    "mine_parallel": "_mine_parallel",
     # contrast
     "contrast": "contrast", "pairwise_contrast": "contrast", "sequence_rates": "contrast",
     "transitions": "transitions", "adjusted_residuals": "transitions", "yules_q": "transitions",
@@ -46,8 +47,8 @@ _LAZY = {
     "FrequencyPauseFeaturizer": "features", "HMMLikelihoodFeaturizer": "features",
     # detect and watch
     "export_detectors": "detect", "select_detectors": "detect", "build_detectors": "detect",
-    "save_detectors": "detect", "load_detectors": "detect", "Watcher": "watch",
-    "Firing": "watch",
+    "save_detectors": "detect", "load_detectors": "detect", "validate_detectors": "detect",
+    "Watcher": "watch", "Firing": "watch", "EventError": "watch",
     # report, pipeline, data, privacy, configuration
     "render_report": "report", "analyze": "pipeline", "load_config": "config",
     "generate_greenhouse": "demo_data", "write_greenhouse": "demo_data",
