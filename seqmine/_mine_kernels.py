@@ -43,20 +43,8 @@ _PLAIN_BLOCK_TOKENS = 1 << 16
 _EXPAND_CHUNK = 1 << 16
 
 
-def ranges(starts, lengths):
-    """Concatenate ``arange(s, s + l)`` for each start/length pair, vectorised."""
-    lengths = np.asarray(lengths, dtype=np.int64)
-    total = int(lengths.sum())
-    if total == 0:
-        return np.zeros(0, dtype=np.int64)
-    starts = np.asarray(starts, dtype=np.int64)
-    nz = lengths > 0
-    starts, lengths = starts[nz], lengths[nz]
-    out = np.ones(total, dtype=np.int64)
-    pos = np.cumsum(lengths)[:-1]
-    out[0] = starts[0]
-    out[pos] = starts[1:] - (starts[:-1] + lengths[:-1] - 1)
-    return np.cumsum(out)
+# one implementation of the vectorised concatenated-ranges helper, shared with SequenceDB
+from .sequences import _ranges as ranges  # noqa: E402
 
 
 def run_heads(*keys):

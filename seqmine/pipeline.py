@@ -162,12 +162,13 @@ def _write_json(path, data):
 
 
 def _json_default(obj):
-    if isinstance(obj, (np.integer,)):
-        return int(obj)
-    if isinstance(obj, (np.floating,)):
-        return float(obj)
+    """JSON for numpy scalars and arrays (and ranges) in summaries and model files."""
+    if isinstance(obj, np.generic):
+        return obj.item()
     if isinstance(obj, np.ndarray):
         return obj.tolist()
+    if isinstance(obj, range):
+        return list(obj)
     raise TypeError(f"not JSON serialisable: {type(obj).__name__}")
 
 

@@ -30,6 +30,7 @@ from ._parallel import parallel_map
 from ._progress import progress
 from ._validation import check_choice, check_fraction, check_int, check_number
 from .errors import ParameterError
+from .pipeline import _json_default
 from .features import FrequencyPauseFeaturizer, HMMLikelihoodFeaturizer, PatternFeaturizer
 
 __all__ = [
@@ -664,11 +665,3 @@ def _default_encoder():
     from .encode import Encoder  # noqa: PLC0415
 
     return Encoder()
-
-
-def _json_default(o):
-    if isinstance(o, np.ndarray):
-        return o.tolist()
-    if isinstance(o, np.generic):
-        return o.item()
-    raise TypeError(f"not JSON serialisable: {type(o).__name__}")

@@ -15,6 +15,7 @@ from joblib import Parallel, delayed
 from .._progress import progress
 from .._validation import check_choice, check_fraction, check_int, check_number
 from ..errors import ParameterError
+from ..pipeline import _json_default
 from ..sequences import SequenceDB
 from . import _hmm
 from .compare import (align_states, compare_state_paths, compare_transitions,
@@ -420,15 +421,3 @@ def _model_file(key):
 
 def _graph_file(key):
     return "graph_pooled" if key == "pooled" else f"graph_group-{_safe(key)}"
-
-
-def _json_default(obj):
-    if isinstance(obj, (np.integer,)):
-        return int(obj)
-    if isinstance(obj, (np.floating,)):
-        return float(obj)
-    if isinstance(obj, np.ndarray):
-        return obj.tolist()
-    if isinstance(obj, range):
-        return list(obj)
-    raise TypeError(f"not JSON serialisable: {type(obj).__name__}")
