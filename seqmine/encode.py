@@ -33,7 +33,8 @@ from ._validation import check_choice, check_int, check_number
 from .errors import DataFileError, NotFittedError, ParameterError
 from .sequences import PAUSE_PREFIX, SequenceDB, smallest_int_dtype
 
-__all__ = ["Encoder", "encode", "load_mapping", "pause_labels", "TEMPLATE_FIELDS"]
+__all__ = ["Encoder", "encode", "encoder_from_settings", "load_mapping", "pause_labels",
+           "TEMPLATE_FIELDS"]
 
 #: Event columns a symbol template may use.
 TEMPLATE_FIELDS = ("action", "target", "channel", "session")
@@ -408,6 +409,16 @@ class Encoder(BaseEstimator):
             e = np.quantile(g, qs)
             bins[idx[part.index.to_numpy()]] = np.searchsorted(e, g, side="right")
         return bins
+
+
+def encoder_from_settings(settings):
+    """An unfitted :class:`Encoder` from plain settings (the ``[encode]`` configuration
+    section): ``mapping`` is a mapping-file path, ``implicit_pauses`` a list."""
+    params = dict(settings)
+    mapping = params.pop("mapping", None)
+    implicit = tuple(params.pop("implicit_pauses", None) or ())
+    return Encoder(mapping=load_mapping(mapping) if mapping else None,
+                   implicit_pauses=implicit, **params)
 
 
 def encode(events, groups=None, group_names=None, **params):

@@ -580,9 +580,8 @@ def _validate(raw, cols, path, duplicates, max_action_length):
     ]
     for code, mask in checks:
         reason[mask & pd.isna(reason)] = code
-    for code in ("action_too_long",):
-        m = reason == code
-        detail[m] = [f"{len(a)} characters > {max_action_length}" for a in action[m]]
+    m = reason == "action_too_long"
+    detail[m] = [f"{len(a)} characters > {max_action_length}" for a in action[m]]
     ok = pd.isna(reason)
     if duplicates == "reject" and ok.any():
         idx = np.flatnonzero(ok)
@@ -597,9 +596,8 @@ def _validate(raw, cols, path, duplicates, max_action_length):
             detail[didx] = [f"same as row {r}" for r in first_row[dup]]
             ok[didx] = False
     bad = ~ok
-    for code, _ in (("mixed_time_format", 0),):
-        m = reason == code
-        detail[m] = f"the column is mostly {'ISO 8601' if kind == 'iso' else 'numeric seconds'}"
+    detail[reason == "mixed_time_format"] = (
+        f"the column is mostly {'ISO 8601' if kind == 'iso' else 'numeric seconds'}")
     events = pd.DataFrame({
         "learner": pd.array(learner[ok], dtype=object),
         "time": seconds[ok],

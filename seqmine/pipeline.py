@@ -2,11 +2,15 @@
 
 from __future__ import annotations
 
+import contextlib
+import sys
+import time
 from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
 
+from ._progress import is_quiet
 from .errors import DataFileError, ParameterError
 from .outcomes import Grouping, match_learners
 
@@ -217,12 +221,11 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
 
 
 def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
-    import time
     from pathlib import Path
 
     from ._progress import set_quiet
     from .config import default_config
-    from .encode import Encoder, load_mapping
+    from .encode import encoder_from_settings
     from .contrast import contrast
     from .load import load_events
     from ._mine_parallel import mine_parallel
@@ -258,13 +261,7 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     rule = oc_cfg["grouping"] or ("label" if outcomes.attrs.get("outcome_kind") == "label"
                                   else "median")
     grouping = Grouping(rule, fraction=oc_cfg["fraction"], low=oc_cfg["low"], high=oc_cfg["high"])
-    encoder = Encoder(
-        template=en_cfg["template"],
-        mapping=load_mapping(en_cfg["mapping"]) if en_cfg["mapping"] else None,
-        collapse_repeats=en_cfg["collapse_repeats"], pause_strategy=en_cfg["pause_strategy"],
-        pause_bins=en_cfg["pause_bins"], pause_thresholds=en_cfg["pause_thresholds"],
-        implicit_pauses=tuple(en_cfg["implicit_pauses"] or ()), unit=en_cfg["unit"],
-        session_gap=en_cfg["session_gap"])
+    encoder = encoder_from_settings(en_cfg)
     prepared = prepare_sequences(loaded, outcomes, encoder=encoder, grouping=grouping)
     db = prepared.db
     loaded.rejects.to_csv(out / "rejects.csv", index=False)
@@ -454,17 +451,10 @@ class _Stages:
         self.quiet = quiet
         self.seconds = {}
 
+    @contextlib.contextmanager
     def __call__(self, name):
-        import contextlib
-        import sys
-        import time
-
-        @contextlib.contextmanager
-        def stage():
-            from ._progress import is_quiet
-            if not (self.quiet or is_quiet()):
-                print(f"seqmine: {name} ...", file=sys.stderr, flush=True)
-            t0 = time.perf_counter()
-            yield
-            self.seconds[name] = round(time.perf_counter() - t0, 3)
-        return stage()
+        if not (self.quiet or is_quiet()):
+            print(f"seqmine: {name} ...", file=sys.stderr, flush=True)
+        t0 = time.perf_counter()
+        yield
+        self.seconds[name] = round(time.perf_counter() - t0, 3)

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from ..encode import Encoder, load_mapping
+from ..encode import encoder_from_settings
 from ..errors import ParameterError
 from ..load import EVENT_ROLES, load_events
 from ..outcomes import Grouping, load_outcomes
@@ -101,14 +101,14 @@ def grouping_from_args(args, outcomes):
 
 
 def encoder_from_args(args):
-    implicit = tuple(x.strip() for x in (args.implicit_pauses or "").split(",") if x.strip())
-    return Encoder(
-        template=args.template,
-        mapping=load_mapping(args.mapping) if args.mapping else None,
-        collapse_repeats=args.collapse_repeats, pause_strategy=args.pause_strategy,
-        pause_bins=args.pause_bins,
-        pause_thresholds=parse_float_list(args.pause_thresholds, "--pause-thresholds"),
-        implicit_pauses=implicit, unit=args.unit, session_gap=args.session_gap)
+    return encoder_from_settings({
+        "template": args.template, "mapping": args.mapping,
+        "collapse_repeats": args.collapse_repeats, "pause_strategy": args.pause_strategy,
+        "pause_bins": args.pause_bins,
+        "pause_thresholds": parse_float_list(args.pause_thresholds, "--pause-thresholds"),
+        "implicit_pauses": [x.strip() for x in (args.implicit_pauses or "").split(",")
+                            if x.strip()],
+        "unit": args.unit, "session_gap": args.session_gap})
 
 
 def add_privacy_option(p):

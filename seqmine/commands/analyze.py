@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import argparse
 
-from .._progress import set_quiet
 from ..config import default_config, load_config, merge_config
 from ..load import EVENT_ROLES
 from ..pipeline import analyze
@@ -128,7 +127,6 @@ def config_from_args(args, parser_defaults):
 
 
 def run(args):
-    set_quiet(args.quiet)
     cfg = config_from_args(args, args._defaults)
     result = analyze(args.events, args.outcomes, args.out, cfg, quiet=args.quiet)
     if not args.quiet:

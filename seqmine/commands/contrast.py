@@ -5,7 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 
-from .._progress import is_quiet, set_quiet
+from .._progress import is_quiet
 from ..contrast import CONTRAST_CORRECTIONS, contrast, pairwise_contrast
 from ..errors import DataFileError, ParameterError
 from ..mine import load_patternset
@@ -69,17 +69,7 @@ def add_arguments(parser):
 
 
 def run(args):
-    """Run ``seqmine contrast``."""
-    was_quiet = is_quiet()
-    if args.quiet:
-        set_quiet(True)
-    try:
-        return _run(args)
-    finally:
-        set_quiet(was_quiet)
-
-
-def _run(args):
+    """Run ``seqmine contrast`` (quiet mode is set by the command line per call)."""
     ps = read_patternset(args.patterns)
     db = SequenceDB.load(args.seqdb) if args.seqdb else None
     if args.transitions and db is None:

@@ -5,7 +5,6 @@ from __future__ import annotations
 import tempfile
 from pathlib import Path
 
-from .._progress import set_quiet
 from ..config import default_config
 from ..demo_data import EVENTS_FILE, OUTCOMES_FILE, write_greenhouse
 from ..pipeline import analyze
@@ -29,7 +28,6 @@ def add_arguments(p):
 
 
 def run(args):
-    set_quiet(args.quiet)
     cfg = default_config()
     cfg["jobs"] = args.jobs
     if (SHIPPED / EVENTS_FILE).is_file() and (SHIPPED / OUTCOMES_FILE).is_file():

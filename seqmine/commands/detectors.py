@@ -8,7 +8,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from .._progress import is_quiet, set_quiet
+from .._progress import is_quiet
 from ..detect import export_detectors, save_detectors
 from ..errors import DataFileError, ParameterError
 from ..sequences import SequenceDB
@@ -79,8 +79,6 @@ def add_arguments(parser):
 
 def run(args):
     """Run ``seqmine detectors``."""
-    if args.quiet:
-        set_quiet(True)
     table_path = Path(args.table)
     if not table_path.is_file():
         raise DataFileError(f"{table_path}: contrast table not found; create it with "

@@ -5,7 +5,6 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
-from .._progress import set_quiet
 from ..pipeline import prepare_sequences
 from . import _options
 
@@ -27,7 +26,6 @@ def add_arguments(p):
 
 
 def run(args):
-    set_quiet(args.quiet)
     out = Path(args.out)
     loaded, outcomes = _options.pseudonymize_inputs(
         args, _options.events_from_args(args, args.events), _options.outcomes_from_args(args))

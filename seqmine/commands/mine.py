@@ -5,7 +5,7 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from .._progress import is_quiet, set_quiet
+from .._progress import is_quiet
 from ..errors import ParameterError
 from ..sequences import SequenceDB
 
@@ -84,9 +84,6 @@ def add_arguments(parser):
 def run(args):
     """Run the command; returns the exit status."""
     from ..mine import DEFAULT_MAX_PATTERNS, mine, save_patternset
-
-    if args.quiet:
-        set_quiet(True)
     db = SequenceDB.load(args.seqdb)
     ps = mine(db, min_support=_support(args.min_support), min_length=args.min_length,
               max_length=args.max_length, max_gap=args.max_gap, max_window=args.max_window,

@@ -5,7 +5,7 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from .._progress import is_quiet, set_quiet
+from .._progress import is_quiet
 from ..sequences import SequenceDB
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
@@ -42,17 +42,7 @@ def add_arguments(parser):
 
 
 def run(args):
-    """Run the command; returns the exit status."""
-    previous = is_quiet()
-    if args.quiet:
-        set_quiet(True)
-    try:
-        return _run(args)
-    finally:
-        set_quiet(previous)
-
-
-def _run(args):
+    """Run ``seqmine phases``; quiet mode is set per call by the command line."""
     from ..phases import fit_phases
 
     db = SequenceDB.load(args.seqdb)

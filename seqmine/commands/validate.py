@@ -4,7 +4,6 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from .._progress import set_quiet
 from ..errors import ParameterError
 from ..validate import CLASSIFIERS, DEFAULT_FRACTIONS, default_featurizers, validate
 from . import _options
@@ -66,7 +65,6 @@ def add_arguments(p):
 
 
 def run(args):
-    set_quiet(args.quiet)
     fractions = _options.parse_float_list(args.fractions, "--fractions")
     if not fractions:
         raise ParameterError("--fractions needs at least one number in (0, 1], e.g. 0.25,0.5,1.")

@@ -7,7 +7,6 @@ import os
 import sys
 from pathlib import Path
 
-from .._progress import set_quiet
 from ..errors import DataFileError, ParameterError
 from ..watch import EventError, Watcher
 
@@ -63,8 +62,6 @@ def add_arguments(parser):
 
 def run(args):
     """Run ``seqmine watch``."""
-    if args.quiet:
-        set_quiet(True)
     idle = _idle(args.idle_timeout)
     watcher = Watcher(args.detectors, cooldown_seconds=args.cooldown, idle_timeout=idle,
                       out_of_order_tolerance=args.tolerance,
