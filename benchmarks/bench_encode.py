@@ -24,8 +24,8 @@ STAGE = r'''
 import json, resource, sys, time
 sys.path.insert(0, {root!r})
 import pandas as pd
-from seqmine.load import load_events
-from seqmine.encode import Encoder
+from seqmine.inputs.load import load_events
+from seqmine.encoding.encoder import Encoder
 path, stage = sys.argv[1], sys.argv[2]
 t0 = time.perf_counter()
 if stage == "read_csv":

@@ -92,7 +92,7 @@ def generate(n_tokens, seed=SEED):
 
 
 def make_db(tokens, lengths, groups, grouped):
-    from seqmine.sequences import SequenceDB
+    from seqmine.encoding.sequences import SequenceDB
 
     vocab = ACTIONS + PAUSES
     n = len(lengths)
@@ -125,8 +125,8 @@ def _processed(stats):
 def worker_reference(spec):
     from prefixspan import PrefixSpan
 
-    from seqmine import mine as mine_mod
-    from seqmine._progress import set_quiet
+    from seqmine._util.progress import set_quiet
+    from seqmine.mining import miner as mine_mod
 
     set_quiet(True)
     tokens, lengths, groups = generate(spec["tokens"])
@@ -164,8 +164,8 @@ def worker_reference(spec):
 
 
 def worker_scaling(spec):
-    from seqmine import mine as mine_mod
-    from seqmine._progress import set_quiet
+    from seqmine._util.progress import set_quiet
+    from seqmine.mining import miner as mine_mod
 
     set_quiet(True)
     tokens, lengths, groups = generate(spec["tokens"])
@@ -175,7 +175,7 @@ def worker_scaling(spec):
     floor_w = min(floor_w, _timed(lambda: np.bincount(db.tokens, minlength=len(db.vocab)))[1])
     kw = dict(spec["options"])
     ps, w, c = _timed(lambda: mine_mod.mine(db, max_length=4, max_patterns=10 ** 7, **kw))
-    from seqmine._mine_search import LAST_STATS as stats
+    from seqmine.mining._search import LAST_STATS as stats
     processed = _processed(stats)
     return {
         "tokens": int(db.n_tokens), "sequences": int(db.n_sequences),

@@ -32,10 +32,10 @@ from scipy import stats
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from seqmine._progress import set_quiet  # noqa: E402
-from seqmine._permutation import westfall_young_minp, westfall_young_rates  # noqa: E402
-from seqmine.contrast import contrast  # noqa: E402
-from seqmine.patterns import PatternSet  # noqa: E402
+from seqmine._util.progress import set_quiet  # noqa: E402
+from seqmine.mining.patterns import PatternSet  # noqa: E402
+from seqmine.scoring.contrast import contrast  # noqa: E402
+from seqmine.scoring.permutation import westfall_young_minp, westfall_young_rates  # noqa: E402
 
 
 def synthetic_presence(n_learners, n_patterns, seed):

@@ -25,11 +25,15 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from seqmine._progress import set_quiet  # noqa: E402
-from seqmine.phases import (GroupHMMClassifier, PhaseModel, fit_phase_model,  # noqa: E402
-                            fit_phases)
-from seqmine.phases import _hmm  # noqa: E402
-from seqmine.sequences import SequenceDB  # noqa: E402
+from seqmine._util.progress import set_quiet  # noqa: E402
+from seqmine.encoding.sequences import SequenceDB  # noqa: E402
+from seqmine.phases import (  # noqa: E402
+    GroupHMMClassifier,
+    PhaseModel,
+    _hmm,  # noqa: E402
+    fit_phase_model,
+    fit_phases,
+)
 
 ACTIONS = ["add_seedling", "set_light", "set_water", "set_temperature", "advance_week",
            "measure_height", "measure_leaves", "open_chart", "paint_pot", "reset",

@@ -16,9 +16,9 @@ from pathlib import Path
 
 import numpy as np
 
-from seqmine.load import load_events
-from seqmine.outcomes import load_outcomes
-from seqmine.validate import validate
+from seqmine.inputs.load import load_events
+from seqmine.inputs.outcomes import load_outcomes
+from seqmine.validation.crossval import validate
 
 ROOT = Path(__file__).resolve().parents[1]
 

@@ -41,9 +41,9 @@ HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
 
 from seqmine.demo_data import generate_greenhouse  # noqa: E402
-from seqmine.encode import Encoder  # noqa: E402
-from seqmine.mine import mine  # noqa: E402
-from seqmine.watch import Watcher  # noqa: E402
+from seqmine.detection.watcher import Watcher  # noqa: E402
+from seqmine.encoding.encoder import Encoder  # noqa: E402
+from seqmine.mining.miner import mine  # noqa: E402
 
 
 def make_detectors(encoding, vocab, n, seed):
@@ -158,7 +158,7 @@ def main(argv=None):
     records = events.to_dict("records")
     lines = [json.dumps(r) for r in records]
     parsed = [json.loads(x) for x in lines]
-    from seqmine.load import parse_times
+    from seqmine.inputs.load import parse_times
     secs, _r, _k = parse_times(events["time"].to_numpy(object))
     frame = events.assign(time=secs)
     enc = Encoder().fit(frame)

@@ -26,33 +26,33 @@ from .errors import (
 #: public name -> module that defines it (pipeline order)
 _LAZY = {
     # load and outcomes
-    "load_events": "load", "LoadResult": "load", "parse_times": "load",
-    "load_outcomes": "outcomes", "normalized_gain": "outcomes", "Grouping": "outcomes",
+    "load_events": "inputs.load", "LoadResult": "inputs.load", "parse_times": "inputs.load",
+    "load_outcomes": "inputs.outcomes", "normalized_gain": "inputs.outcomes", "Grouping": "inputs.outcomes",
     # encode
-    "Encoder": "encode", "encode": "encode", "load_mapping": "encode",
-    "SequenceDB": "sequences", "PatternSet": "patterns",
+    "Encoder": "encoding.encoder", "encode": "encoding.encoder", "load_mapping": "encoding.encoder",
+    "SequenceDB": "encoding.sequences", "PatternSet": "mining.patterns",
     # mine
-    "mine": "mine", "match": "mine", "save_patternset": "mine", "load_patternset": "mine",
-    "mine_parallel": "_mine_parallel",
+    "mine": "mining.miner", "match": "mining.miner", "save_patternset": "mining.miner", "load_patternset": "mining.miner",
+    "mine_parallel": "mining.partitions",
     # contrast
-    "contrast": "contrast", "pairwise_contrast": "contrast", "sequence_rates": "contrast",
-    "transitions": "transitions", "adjusted_residuals": "transitions", "yules_q": "transitions",
-    "adjust_pvalues": "multitest", "westfall_young_minp": "multitest",
+    "contrast": "scoring.contrast", "pairwise_contrast": "scoring.contrast", "sequence_rates": "scoring.contrast",
+    "transitions": "scoring.transitions", "adjusted_residuals": "scoring.transitions", "yules_q": "scoring.transitions",
+    "adjust_pvalues": "scoring.multitest", "westfall_young_minp": "scoring.multitest",
     # phases
     "fit_phases": "phases", "PhaseResult": "phases", "PhaseModel": "phases",
     "load_phase_models": "phases", "GroupHMMClassifier": "phases",
     # validate
-    "validate": "validate", "ValidationResult": "validate", "learner_splits": "validate",
-    "make_classifier": "validate", "PatternFeaturizer": "features",
-    "FrequencyPauseFeaturizer": "features", "HMMLikelihoodFeaturizer": "features",
+    "validate": "validation.crossval", "ValidationResult": "validation.crossval", "learner_splits": "validation.crossval",
+    "make_classifier": "validation.crossval", "PatternFeaturizer": "validation.features",
+    "FrequencyPauseFeaturizer": "validation.features", "HMMLikelihoodFeaturizer": "validation.features",
     # detect and watch
-    "export_detectors": "detect", "select_detectors": "detect", "build_detectors": "detect",
-    "save_detectors": "detect", "load_detectors": "detect", "validate_detectors": "detect",
-    "Watcher": "watch", "Firing": "watch", "EventError": "watch",
+    "export_detectors": "detection.detectors", "select_detectors": "detection.detectors", "build_detectors": "detection.detectors",
+    "save_detectors": "detection.detectors", "load_detectors": "detection.detectors", "validate_detectors": "detection.detectors",
+    "Watcher": "detection.watcher", "Firing": "detection.watcher", "EventError": "detection.watcher",
     # report, pipeline, data, privacy, configuration
-    "render_report": "report", "analyze": "pipeline", "load_config": "config",
+    "render_report": "reporting.render", "analyze": "pipeline", "load_config": "config",
     "generate_greenhouse": "demo_data", "write_greenhouse": "demo_data",
-    "planted_patterns": "demo_data", "pseudonymize": "privacy",
+    "planted_patterns": "demo_data", "pseudonymize": "inputs.privacy",
 }
 
 __all__ = [

@@ -1,6 +1,6 @@
 """``python -m seqmine`` runs the command line."""
 import sys
 
-from .cli import main
+from .cli.main import main
 
 sys.exit(main())

@@ -19,9 +19,9 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from ._validation import check_int
+from ._util.checks import check_int
 from .errors import DataFileError, ParameterError
-from .patterns import PATTERN_SEPARATOR
+from .mining.patterns import PATTERN_SEPARATOR
 
 __all__ = [
     "ACTIONS",

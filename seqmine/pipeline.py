@@ -10,9 +10,10 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ._progress import is_quiet
+from ._util.jsonio import write_json
+from ._util.progress import is_quiet
 from .errors import DataFileError, ParameterError
-from .outcomes import Grouping, match_learners
+from .inputs.outcomes import Grouping, match_learners
 
 __all__ = ["Prepared", "prepare_sequences", "pseudonymize_inputs", "analyze", "AnalysisResult",
            "MIN_GROUP_LEARNERS"]
@@ -116,7 +117,7 @@ def pseudonymize_inputs(loaded, outcomes, key):
 
     Done right after loading, so no later stage or output ever sees a raw identifier.
     """
-    from .privacy import pseudonymize_frame
+    from .inputs.privacy import pseudonymize_frame
     loaded.events = pseudonymize_frame(loaded.events, key).sort_values(
         ["learner", "time"], kind="mergesort").reset_index(drop=True)
     kind = outcomes.attrs.get("outcome_kind")
@@ -159,23 +160,6 @@ class AnalysisResult:
         return "\n".join(lines)
 
 
-def _write_json(path, data):
-    import json
-    path.write_text(json.dumps(data, indent=2, sort_keys=True, ensure_ascii=False,
-                               default=_json_default) + "\n", encoding="utf-8")
-
-
-def _json_default(obj):
-    """JSON for numpy scalars and arrays (and ranges) in summaries and model files."""
-    if isinstance(obj, np.generic):
-        return obj.item()
-    if isinstance(obj, np.ndarray):
-        return obj.tolist()
-    if isinstance(obj, range):
-        return list(obj)
-    raise TypeError(f"not JSON serialisable: {type(obj).__name__}")
-
-
 def _versions():
     import importlib.metadata as md
     import platform
@@ -212,7 +196,7 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     -------
     AnalysisResult
     """
-    from ._parallel import using_scheduler
+    from ._util.parallel import using_scheduler
     from .config import default_config
 
     cfg = config or default_config()
@@ -223,17 +207,17 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
 def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     from pathlib import Path
 
-    from ._progress import set_quiet
+    from ._util.progress import set_quiet
     from .config import default_config
-    from .encode import encoder_from_settings
-    from .contrast import contrast
-    from .load import load_events
-    from ._mine_parallel import mine_parallel
-    from .mine import save_patternset
-    from .outcomes import load_outcomes
-    from .privacy import read_key
-    from .report import render_report, write_examples
-    from .transitions import transitions
+    from .encoding.encoder import encoder_from_settings
+    from .inputs.load import load_events
+    from .inputs.outcomes import load_outcomes
+    from .inputs.privacy import read_key
+    from .mining.miner import save_patternset
+    from .mining.partitions import mine_parallel
+    from .reporting.render import render_report, write_examples
+    from .scoring.contrast import contrast
+    from .scoring.transitions import transitions
 
     if quiet:
         set_quiet(True)
@@ -346,8 +330,8 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     if va_cfg["enabled"]:
         from sklearn.base import clone
 
-        from .features import HMMLikelihoodFeaturizer
-        from .validate import default_featurizers, validate
+        from .validation.crossval import default_featurizers, validate
+        from .validation.features import HMMLikelihoodFeaturizer
         allowed = set(HMMLikelihoodFeaturizer().get_params()) - {"seed"}
         unknown = sorted(set(va_cfg.get("hmm") or {}) - allowed)
         if unknown:
@@ -381,7 +365,7 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     # 6. detectors
     de_cfg = cfg["detectors"]
     with stages("detectors"):
-        from .detect import export_detectors, save_detectors
+        from .detection.detectors import export_detectors, save_detectors
         doc = export_detectors(table, db, patternset.constraints, max_q=float(de_cfg["max_q"]),
                                min_stability=float(de_cfg["min_stability"]),
                                max_detectors=int(de_cfg["max_detectors"]))
@@ -403,7 +387,7 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     summary["versions"] = _versions()
     summary["pseudonymized"] = bool(key_path)
     summary["stage_seconds"] = stages.seconds
-    _write_json(out / "summary.json", _without_timings(summary))
+    write_json(out / "summary.json", _without_timings(summary))
     files.append(out / "summary.json")
     with stages("report"):
         report = render_report(out, examples=bool(cfg["report"]["examples"]),

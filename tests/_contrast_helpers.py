@@ -3,8 +3,8 @@
 import numpy as np
 import scipy.sparse as sp
 
-from seqmine.patterns import PatternSet
-from seqmine.sequences import SequenceDB
+from seqmine.encoding.sequences import SequenceDB
+from seqmine.mining.patterns import PatternSet
 
 ACTIONS = ["set_light", "set_water", "advance_week", "measure_height", "reset", "paint_pot",
            "pause:long"]

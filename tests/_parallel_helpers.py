@@ -2,7 +2,7 @@
 
 import numpy as np
 
-from seqmine.sequences import SequenceDB
+from seqmine.encoding.sequences import SequenceDB
 
 
 def assert_same_patternset(a, b):

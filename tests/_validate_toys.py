@@ -9,8 +9,8 @@ import pandas as pd
 import scipy.sparse as sp
 from scipy.stats import false_discovery_control, fisher_exact
 
-from seqmine.patterns import PatternSet, format_pattern
-from seqmine.sequences import SequenceDB
+from seqmine.encoding.sequences import SequenceDB
+from seqmine.mining.patterns import PatternSet, format_pattern
 
 ACTIONS = ["set_light", "set_water", "advance_week", "measure_height", "open_chart",
            "paint_pot", "reset"]

@@ -1,4 +1,4 @@
-"""Brute-force offline reference for the watcher tests (independent of seqmine.watch).
+"""Brute-force offline reference for the watcher tests (independent of seqmine.detection.watcher).
 
 ``reference_tokens`` follows the token-stream rule written in seqmine/encode.py's
 module docstring step by step with plain loops; ``brute_instance_count`` enumerates

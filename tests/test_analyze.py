@@ -4,8 +4,8 @@ import json
 
 import pandas as pd
 import pytest
+from seqmine.cli.main import main
 
-from seqmine.cli import main
 from seqmine.config import load_config
 from seqmine.demo_data import planted_patterns, write_greenhouse
 from seqmine.errors import ParameterError
@@ -102,8 +102,8 @@ def test_config_rejects_unknown_keys(tmp_path):
 
 
 def test_flags_override_config(tmp_path, capsys):
-    from seqmine.cli import build_parser
-    from seqmine.commands.analyze import config_from_args
+    from seqmine.cli.commands.analyze import config_from_args
+    from seqmine.cli.main import build_parser
     p = tmp_path / "c.toml"
     p.write_text("[mine]\nmin_support = 0.3\nmax_length = 3\n", encoding="utf-8")
     args = build_parser().parse_args(["analyze", "e.csv", "--outcomes", "o.csv", "--out", "x",
@@ -116,8 +116,8 @@ def test_flags_override_config(tmp_path, capsys):
 
 def test_a_flag_equal_to_its_default_still_overrides_the_file(tmp_path):
     # regression: a flag was ignored when its value equalled the parser default
-    from seqmine.cli import build_parser
-    from seqmine.commands.analyze import config_from_args
+    from seqmine.cli.commands.analyze import config_from_args
+    from seqmine.cli.main import build_parser
     p = tmp_path / "c.toml"
     p.write_text("[mine]\nmin_support = 0.3\n", encoding="utf-8")
     args = build_parser().parse_args(["analyze", "e.csv", "--outcomes", "o.csv", "--out", "x",

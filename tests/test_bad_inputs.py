@@ -17,10 +17,10 @@ import time
 import numpy as np
 import pandas as pd
 import pytest
+from seqmine.cli.main import main
 
-from seqmine.cli import main
-from seqmine.load import load_events
-from seqmine.sequences import SequenceDB
+from seqmine.encoding.sequences import SequenceDB
+from seqmine.inputs.load import load_events
 
 ACTIONS = ["add_seedling", "set_light", "set_water", "advance_week", "measure_height",
            "open_chart"]
@@ -154,8 +154,8 @@ def test_file_over_max_bytes(tmp_path, capsys):
 def test_file_too_large_for_memory(tmp_path, capsys, monkeypatch):
     # with the default size limit, a file that would need more memory than the
     # machine has stops before it is read; an explicit --max-bytes loads it anyway
-    import seqmine.load
-    monkeypatch.setattr(seqmine.load, "_physical_memory", lambda: 20_000)
+    import seqmine.inputs.load
+    monkeypatch.setattr(seqmine.inputs.load, "_physical_memory", lambda: 20_000)
     rc, err, _ = encode(tmp_path, capsys, BASE)
     assert_one_error(rc, err, "events.csv", "GB of memory", "split the log", "--max-bytes")
     rc, err, out = encode(tmp_path, capsys, BASE, extra=["--max-bytes", "1e9"])

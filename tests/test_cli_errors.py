@@ -3,8 +3,7 @@
 import json
 
 import pytest
-
-from seqmine.cli import main
+from seqmine.cli.main import main
 
 GOOD_EVENTS = "learner,time,action\n" + "".join(
     f"L{i},{t},{a}\n" for i in range(6) for t, a in enumerate(["set_light", "advance_week",

@@ -1,4 +1,4 @@
-"""Tests of seqmine.contrast on PatternSets built by brute force or from random matrices."""
+"""Tests of seqmine.scoring.contrast on PatternSets built by brute force or from random matrices."""
 
 import itertools
 
@@ -6,19 +6,18 @@ import numpy as np
 import pandas as pd
 import pytest
 import scipy.sparse as sp
+from _contrast_helpers import ACTIONS, PATTERNS, _instances, brute_patternset, random_db  # noqa: F401
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import stats
 
-from seqmine._permutation import bootstrap_significance, westfall_young_minp
-from seqmine._redundancy import jaccard_pairs, prune_redundant
-from seqmine.contrast import contrast, pairwise_contrast, sequence_rates
+from seqmine.encoding.sequences import SequenceDB
 from seqmine.errors import ParameterError, SeqmineWarning
-from seqmine.multitest import adjust_pvalues
-from seqmine.patterns import PatternSet
-from seqmine.sequences import SequenceDB
-
-from _contrast_helpers import ACTIONS, PATTERNS, _instances, brute_patternset, random_db  # noqa: F401
+from seqmine.mining.patterns import PatternSet
+from seqmine.scoring.contrast import contrast, pairwise_contrast, sequence_rates
+from seqmine.scoring.multitest import adjust_pvalues
+from seqmine.scoring.permutation import bootstrap_significance, westfall_young_minp
+from seqmine.scoring.redundancy import jaccard_pairs, prune_redundant
 
 
 def random_patternset(n_seq=60, n_pat=30, seed=0, effect=None, n_groups=2, density=0.3):
@@ -471,7 +470,7 @@ def test_learner_unit_errors():
 def test_westfall_young_rates_equals_brute_force_loop(n_groups):
     # Direct loops with scipy.stats.mannwhitneyu(method="asymptotic") / scipy.stats.kruskal
     # per pattern and permutation, replaying the documented permutation stream.
-    from seqmine._permutation import westfall_young_rates
+    from seqmine.scoring.permutation import westfall_young_rates
 
     ps = random_patternset(n_seq=30, n_pat=6, seed=5, effect={0: 0.5}, n_groups=n_groups)
     rates = sequence_rates(ps, np.arange(30) % 7 + 3)

@@ -5,8 +5,8 @@ import pytest
 import scipy.sparse as sp
 from scipy import stats
 
-from seqmine._permutation import presence_pvalues, westfall_young_minp
-from seqmine.multitest import adjust_pvalues
+from seqmine.scoring.multitest import adjust_pvalues
+from seqmine.scoring.permutation import presence_pvalues, westfall_young_minp
 
 ALPHA = 0.05
 
@@ -74,7 +74,7 @@ def test_benjamini_hochberg_false_discovery_proportion_under_mixture():
 def test_westfall_young_rates_controls_familywise_rate_under_null():
     # Same design as above for the rank test on rates (counts of overlapping patterns
     # per 100 tokens); tolerance: binomial 99.9% upper bound for S data sets.
-    from seqmine._permutation import westfall_young_rates
+    from seqmine.scoring.permutation import westfall_young_rates
 
     n_sets, hits = 300, 0
     for s in range(n_sets):

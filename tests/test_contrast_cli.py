@@ -5,15 +5,14 @@ import json
 import numpy as np
 import pandas as pd
 import pytest
-
-from seqmine._progress import is_quiet, set_quiet
-from seqmine.cli import main
-from seqmine.commands.contrast import read_patternset
-from seqmine.contrast import contrast
-from seqmine.mine import save_patternset
-from seqmine.transitions import TRANSITION_COLUMNS
-
 from _contrast_helpers import PATTERNS, brute_patternset, random_db  # noqa: E402
+from seqmine.cli.commands.contrast import read_patternset
+from seqmine.cli.main import main
+
+from seqmine._util.progress import is_quiet, set_quiet
+from seqmine.mining.miner import save_patternset
+from seqmine.scoring.contrast import contrast
+from seqmine.scoring.transitions import TRANSITION_COLUMNS
 
 
 def _write_patternset(ps, folder):

@@ -10,9 +10,9 @@ import numpy as np
 import pytest
 import scipy.sparse as sp
 
-from seqmine.contrast import contrast
-from seqmine.patterns import PatternSet
-from seqmine.transitions import transitions
+from seqmine.mining.patterns import PatternSet
+from seqmine.scoring.contrast import contrast
+from seqmine.scoring.transitions import transitions
 
 DATA = Path(__file__).resolve().parents[1] / "datasets" / "greenhouse"
 pytestmark = pytest.mark.skipif(not (DATA / "ground_truth.json").is_file(),
@@ -38,9 +38,9 @@ def _contiguous_counts(db, pattern_ids):
 @pytest.fixture(scope="module")
 def greenhouse():
     pipeline = pytest.importorskip("seqmine.pipeline")
-    from seqmine.encode import Encoder
-    from seqmine.load import load_events
-    from seqmine.outcomes import load_outcomes
+    from seqmine.encoding.encoder import Encoder
+    from seqmine.inputs.load import load_events
+    from seqmine.inputs.outcomes import load_outcomes
 
     truth = json.loads((DATA / "ground_truth.json").read_text(encoding="utf-8"))
     prepared = pipeline.prepare_sequences(load_events(DATA / "events.csv"),

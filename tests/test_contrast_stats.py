@@ -7,7 +7,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import stats
 
-from seqmine._effects import (
+from seqmine.scoring.effects import (
     chi2_presence,
     cohens_h,
     fisher_exact_many,

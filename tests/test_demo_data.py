@@ -12,10 +12,10 @@ from hypothesis import strategies as st
 from scipy.stats import fisher_exact
 
 from seqmine.demo_data import (
-    _within_cumsum,
     ACTIONS,
     BEHAVIOURS,
     GreenhouseData,
+    _within_cumsum,
     generate_greenhouse,
     planted_patterns,
     write_greenhouse,
@@ -29,7 +29,7 @@ ISO_Z = re.compile(r"^\d{4}-\d\d-\d\dT\d\d:\d\d:\d\dZ$")
 
 
 # ---------------------------------------------------------------------------------
-# a tokenisation written here, independent of the generator and of seqmine.encode:
+# a tokenisation written here, independent of the generator and of seqmine.encoding.encoder:
 # action symbols, global tertile pause bins (np.quantile, searchsorted side="right"),
 # short pauses left implicit
 

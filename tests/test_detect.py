@@ -9,7 +9,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from seqmine.detect import (
+from seqmine.detection.detectors import (
     DETECTORS_VERSION,
     build_detectors,
     default_hint,

@@ -6,18 +6,17 @@ import json
 import re
 
 import pytest
-
-from seqmine.cli import main
-from seqmine.detect import export_detectors, load_detectors
-from seqmine.sequences import SequenceDB
-
+from seqmine.cli.main import main
 from test_detect import ENCODING, _table
+
+from seqmine.detection.detectors import export_detectors, load_detectors
+from seqmine.encoding.sequences import SequenceDB
 
 
 @pytest.fixture(autouse=True)
 def _restore_quiet():
     # 'seqmine ... -q' switches progress output off process-wide; undo it after each test
-    from seqmine._progress import is_quiet, set_quiet
+    from seqmine._util.progress import is_quiet, set_quiet
 
     before = is_quiet()
     yield

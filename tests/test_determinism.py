@@ -8,8 +8,8 @@ configuration shown in the report).
 """
 
 import pytest
+from seqmine.cli.main import main
 
-from seqmine.cli import main
 from seqmine.demo_data import write_greenhouse
 
 FAST_TOML = """
@@ -82,8 +82,8 @@ def test_jobs_do_not_change_outputs(runs):
 def test_quiet_is_quiet_with_worker_processes():
     # -q silences progress bars in worker processes too (they start with their own
     # switch); checked through the parallel helper the early-prediction folds use
-    from seqmine._parallel import parallel_map
-    from seqmine._progress import set_quiet
+    from seqmine._util.parallel import parallel_map
+    from seqmine._util.progress import set_quiet
     set_quiet(True)
     try:
         assert parallel_map(_bar_in_worker, [1, 2], jobs=2) == [True, True]
@@ -93,5 +93,5 @@ def test_quiet_is_quiet_with_worker_processes():
 
 
 def _bar_in_worker(_):
-    from seqmine._progress import is_quiet
+    from seqmine._util.progress import is_quiet
     return is_quiet()

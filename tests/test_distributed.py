@@ -12,13 +12,13 @@ distributed = pytest.importorskip(
     "distributed", reason="the Dask tests need the optional 'distributed' package "
                           "(pip install \"seqmine[distributed]\")")
 
-from _validate_toys import planted_data  # noqa: E402
 from _parallel_helpers import _random_db, assert_same_patternset  # noqa: E402
+from _validate_toys import planted_data  # noqa: E402
 
-from seqmine._mine_parallel import mine_parallel  # noqa: E402
-from seqmine._parallel import parallel_map, using_scheduler  # noqa: E402
-from seqmine.contrast import contrast  # noqa: E402
-from seqmine.mine import mine  # noqa: E402
+from seqmine._util.parallel import parallel_map, using_scheduler  # noqa: E402
+from seqmine.mining.miner import mine  # noqa: E402
+from seqmine.mining.partitions import mine_parallel  # noqa: E402
+from seqmine.scoring.contrast import contrast  # noqa: E402
 
 
 @pytest.fixture(scope="module")
@@ -63,9 +63,9 @@ def test_westfall_young_on_the_cluster_equals_serial(scheduler):
 
 
 def test_validation_folds_on_the_cluster_equal_serial(scheduler):
-    from seqmine.encode import Encoder
-    from seqmine.outcomes import Grouping
-    from seqmine.validate import default_featurizers, validate
+    from seqmine.encoding.encoder import Encoder
+    from seqmine.inputs.outcomes import Grouping
+    from seqmine.validation.crossval import default_featurizers, validate
 
     ev, oc = planted_data(30, seed=4)
     kw = dict(folds=3, fractions=[0.5, 1.0], n_bootstrap=50, grouping=Grouping(),
@@ -88,7 +88,7 @@ def test_phase_restarts_on_the_cluster_equal_serial(scheduler):
 
 
 def test_one_connection_serves_every_call_inside_using_scheduler(scheduler, monkeypatch):
-    import seqmine._parallel as par
+    import seqmine._util.parallel as par
     opened = []
     real = par._connect
     monkeypatch.setattr(par, "_connect", lambda *a: opened.append(1) or real(*a))

@@ -7,10 +7,10 @@ import shlex
 from pathlib import Path
 
 import pytest
+from seqmine.cli.main import build_parser
 
+import seqmine.detection.watcher
 import seqmine.errors
-import seqmine.watch
-from seqmine.cli import build_parser
 from seqmine.config import DEFAULT_CONFIG, load_config
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -115,7 +115,7 @@ def test_troubleshooting_has_checks():
 
 @pytest.mark.parametrize(("cls", "fragment"), _checks())
 def test_documented_messages_exist(cls, fragment):
-    assert hasattr(seqmine.errors, cls) or hasattr(seqmine.watch, cls), \
+    assert hasattr(seqmine.errors, cls) or hasattr(seqmine.detection.watcher, cls), \
         f"{cls} is not an exception class of seqmine"
     assert fragment in _normalized_source(), \
         f"troubleshooting.md quotes {fragment!r}, which no longer appears in seqmine/"
@@ -152,7 +152,7 @@ def test_links_between_docs_resolve():
 
 
 def test_every_reject_reason_is_documented():
-    from seqmine.load import REJECT_REASONS
+    from seqmine.inputs.load import REJECT_REASONS
     text = (DOCS / "input-formats.md").read_text(encoding="utf-8")
     missing = [r for r in REJECT_REASONS if f"`{r}`" not in text]
     assert not missing, f"input-formats.md does not explain reject reasons {missing}"

@@ -6,9 +6,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from seqmine.encode import Encoder, encode, load_mapping
+from seqmine.encoding.encoder import Encoder, encode, load_mapping
+from seqmine.encoding.sequences import SequenceDB
 from seqmine.errors import DataFileError, ParameterError
-from seqmine.sequences import SequenceDB
 
 
 def _events(spec):
@@ -216,6 +216,6 @@ def test_shortest_names_the_first_bin_for_any_count(bins, first):
 
 def test_pattern_names_round_trip_with_angle_brackets():
     # regression: names were split on '>' alone, so a token such as 'a>b' broke apart
-    from seqmine.patterns import format_pattern, parse_pattern
+    from seqmine.mining.patterns import format_pattern, parse_pattern
     vocab = ["a>b", "<script>", "c"]
     assert parse_pattern(format_pattern((0, 1, 2), vocab), vocab) == (0, 1, 2)

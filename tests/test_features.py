@@ -3,21 +3,21 @@
 import numpy as np
 import pandas as pd
 import pytest
+from _validate_toys import count_contiguous, fisher_scorer, ngram_match, ngram_mine
 from hmmlearn.hmm import CategoricalHMM
 from sklearn.base import clone
 from sklearn.linear_model import LogisticRegression
 from sklearn.pipeline import make_pipeline
 
-from _validate_toys import count_contiguous, fisher_scorer, ngram_match, ngram_mine
+from seqmine.encoding.sequences import SequenceDB
 from seqmine.errors import NotFittedError, ParameterError
-from seqmine.features import (
+from seqmine.validation.features import (
     FrequencyPauseFeaturizer,
     HMMLikelihoodFeaturizer,
     PatternFeaturizer,
     group_codes,
     select_patterns,
 )
-from seqmine.sequences import SequenceDB
 
 TOY = dict(miner=ngram_mine, matcher=ngram_match, scorer=fisher_scorer, max_gap=0)
 
@@ -186,7 +186,7 @@ def test_hmm_featurizer_is_deterministic_and_checks_params():
 
 
 def test_pattern_featurizer_with_the_real_stages_and_their_options():
-    pytest.importorskip("seqmine.contrast")
+    pytest.importorskip("seqmine.scoring.contrast")
     db, y = _db()
     f = PatternFeaturizer(max_length=3, min_length=2, start_with_action=True,
                           correction="westfall-young", n_permutations=200, top_k=50).fit(db, y)

@@ -21,14 +21,14 @@ import pandas as pd
 import pytest
 from hypothesis import HealthCheck, event, given, settings
 from hypothesis import strategies as st
+from seqmine.cli.main import main
 
-from seqmine.cli import main
-from seqmine.detect import load_detectors, validate_detectors
-from seqmine.encode import Encoder
+from seqmine.detection.detectors import load_detectors, validate_detectors
+from seqmine.detection.watcher import EventError, Watcher
+from seqmine.encoding.encoder import Encoder
 from seqmine.errors import SeqmineError
-from seqmine.load import load_events
-from seqmine.outcomes import load_outcomes
-from seqmine.watch import EventError, Watcher
+from seqmine.inputs.load import load_events
+from seqmine.inputs.outcomes import load_outcomes
 
 N_EXAMPLES = int(os.environ.get("SEQMINE_FUZZ_EXAMPLES", "40"))
 FUZZ = settings(max_examples=N_EXAMPLES, deadline=timedelta(seconds=10),

@@ -9,7 +9,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from seqmine.errors import ColumnError, DataFileError
-from seqmine.load import REJECT_REASONS, load_events, parse_times
+from seqmine.inputs.load import REJECT_REASONS, load_events, parse_times
 
 ROWS = [
     ("b", "2026-03-02T09:00:05Z", "set_light", "pot1"),

@@ -7,12 +7,18 @@ import numpy as np
 import pandas as pd
 import pytest
 from prefixspan import PrefixSpan
+from seqmine.cli.main import main
 
-import seqmine.mine as mine_module
-from seqmine.cli import main
+import seqmine.mining.miner as mine_module
+from seqmine.encoding.sequences import SequenceDB
 from seqmine.errors import DataFileError, ParameterError, PatternExplosionError
-from seqmine.mine import load_patternset, match, mine, pattern_table, save_patternset
-from seqmine.sequences import SequenceDB
+from seqmine.mining.miner import (
+    load_patternset,
+    match,
+    mine,
+    pattern_table,
+    save_patternset,
+)
 
 
 def _ints_db(seqs, **kw):
@@ -252,7 +258,7 @@ def test_cli_missing_database_exit_2(tmp_path, capsys):
     {"max_window": 3, "skip_pauses": True}, {"closed": True}, {"maximal": True, "max_gap": 0},
 ])
 def test_blocks_and_chunks_do_not_change_results(monkeypatch, cons):
-    import seqmine._mine_kernels as kernels
+    import seqmine.mining._kernels as kernels
 
     rng = np.random.default_rng(7)
     vocab = ["a", "b", "c", "d", "pause:long"]

@@ -14,9 +14,9 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-import seqmine.mine as mine_module
-from seqmine.mine import match, mine
-from seqmine.sequences import SequenceDB
+import seqmine.mining.miner as mine_module
+from seqmine.encoding.sequences import SequenceDB
+from seqmine.mining.miner import match, mine
 
 
 # ------------------------------------------------------------ brute force

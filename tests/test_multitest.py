@@ -7,7 +7,7 @@ from hypothesis import strategies as st
 from statsmodels.stats.multitest import multipletests
 
 from seqmine.errors import ParameterError
-from seqmine.multitest import adjust_pvalues
+from seqmine.scoring.multitest import adjust_pvalues
 
 # The 15 p-values of Benjamini & Hochberg (1995), JRSS B 57(1), section 4.
 BH1995 = [0.0001, 0.0004, 0.0019, 0.0095, 0.0201, 0.0278, 0.0298, 0.0344, 0.0459,

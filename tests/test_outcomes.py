@@ -5,7 +5,12 @@ import pandas as pd
 import pytest
 
 from seqmine.errors import NotFittedError, ParameterError, SeqmineInputError
-from seqmine.outcomes import Grouping, load_outcomes, match_learners, normalized_gain
+from seqmine.inputs.outcomes import (
+    Grouping,
+    load_outcomes,
+    match_learners,
+    normalized_gain,
+)
 
 
 def test_gain_worked_values():
@@ -121,7 +126,7 @@ def test_match_learners_reports_both_directions():
 def test_groups_indexed_by_learner_feed_the_encoder():
     # regression: transform returned a position-indexed Series, so encoding with
     # groups=... found no learner and every group came out empty
-    from seqmine.encode import encode
+    from seqmine.encoding.encoder import encode
     out = pd.DataFrame({"learner": ["b", "a"], "gain": [0.9, 0.1]})
     groups = Grouping().fit_transform(out)
     assert groups.to_dict() == {"b": "strong", "a": "weak"}

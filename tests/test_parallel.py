@@ -2,15 +2,14 @@
 
 import numpy as np
 import pytest
+from _parallel_helpers import _random_db, assert_same_patternset  # noqa: F401
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from seqmine._mine_parallel import _partition_first_items, mine_parallel
+from seqmine.encoding.sequences import SequenceDB
 from seqmine.errors import ParameterError, PatternExplosionError
-from seqmine.mine import mine
-from seqmine.sequences import SequenceDB
-
-from _parallel_helpers import _random_db, assert_same_patternset  # noqa: F401
+from seqmine.mining.miner import mine
+from seqmine.mining.partitions import _partition_first_items, mine_parallel
 
 
 def test_first_items_restricts_the_first_item_only():
@@ -84,8 +83,8 @@ def _presence_problem(seed, n=60, m=25):
 @pytest.mark.parametrize("jobs", [2, 3])
 def test_permutation_chunks_equal_the_serial_stream_in_process(monkeypatch, jobs):
     # the chunked path with an in-process map: the union of the chunks is the serial stream
-    import seqmine._parallel as par
-    from seqmine._permutation import westfall_young_minp, westfall_young_rates
+    import seqmine._util.parallel as par
+    from seqmine.scoring.permutation import westfall_young_minp, westfall_young_rates
     monkeypatch.setattr(par, "parallel_map",
                         lambda f, items, jobs=1, scheduler=None: [f(x) for x in items])
     x, labels = _presence_problem(4)
@@ -97,7 +96,7 @@ def test_permutation_chunks_equal_the_serial_stream_in_process(monkeypatch, jobs
 
 
 def test_contrast_westfall_young_in_local_processes_equals_serial():
-    from seqmine.contrast import contrast
+    from seqmine.scoring.contrast import contrast
     db = _random_db(np.random.default_rng(8), n_seq=80, n_sym=5)
     ps = mine(db, min_support=0.1, max_length=3)
     kw = dict(correction="westfall-young", n_permutations=120, seed=3, stability_resamples=5)
@@ -108,8 +107,8 @@ def test_contrast_westfall_young_in_local_processes_equals_serial():
 
 
 def test_scheduler_flag_reaches_the_configuration():
-    from seqmine.cli import build_parser
-    from seqmine.commands.analyze import config_from_args
+    from seqmine.cli.commands.analyze import config_from_args
+    from seqmine.cli.main import build_parser
     args = build_parser().parse_args(["analyze", "ev.csv", "--outcomes", "oc.csv", "--out", "o",
                                       "--jobs", "2", "--scheduler", "tcp://10.0.0.5:8786"])
     cfg = config_from_args(args, args._defaults)
@@ -120,6 +119,7 @@ def test_scheduler_flag_reaches_the_configuration():
 
 def test_large_data_samples_are_seeded_ordered_and_optional():
     import pandas as pd
+
     from seqmine.pipeline import _sample_learners, _sample_sequences
     db = _random_db(np.random.default_rng(1), n_seq=50)
     assert _sample_sequences(db, None, 3) is db and _sample_sequences(db, 50, 3) is db
@@ -139,7 +139,7 @@ def test_large_data_samples_are_seeded_ordered_and_optional():
 
 
 def test_scheduler_must_be_an_address():
-    from seqmine._parallel import using_scheduler
+    from seqmine._util.parallel import using_scheduler
     with pytest.raises(ParameterError, match="'scheduler' option must be a Dask address"):
         with using_scheduler(8786):
             pass

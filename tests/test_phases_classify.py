@@ -5,9 +5,9 @@ import pytest
 from sklearn.base import clone
 from sklearn.model_selection import cross_val_score
 
+from seqmine.encoding.sequences import SequenceDB
 from seqmine.errors import NotFittedError, ParameterError
 from seqmine.phases import GroupHMMClassifier, PhaseModel
-from seqmine.sequences import SequenceDB
 
 VOCAB = ["set_light", "set_water", "advance_week", "measure_height", "paint_pot", "reset"]
 

@@ -2,8 +2,9 @@
 
 import json
 
-from seqmine.cli import main
-from seqmine.sequences import SequenceDB
+from seqmine.cli.main import main
+
+from seqmine.encoding.sequences import SequenceDB
 
 
 def _write_db(path):

@@ -8,12 +8,22 @@ import pandas as pd
 import pytest
 from scipy.stats import entropy, mannwhitneyu
 
+from seqmine.encoding.sequences import SequenceDB
 from seqmine.errors import ParameterError, SeqmineWarning
-from seqmine.phases import (PhaseModel, align_states, bh_adjust, compare_state_paths,
-                            fit_phase_model, fit_phases, learner_folds, load_phase_models,
-                            model_distance, path_measures, select_n_states)
-from seqmine.phases import _hmm
-from seqmine.sequences import SequenceDB
+from seqmine.phases import (
+    PhaseModel,
+    _hmm,
+    align_states,
+    bh_adjust,
+    compare_state_paths,
+    fit_phase_model,
+    fit_phases,
+    learner_folds,
+    load_phase_models,
+    model_distance,
+    path_measures,
+    select_n_states,
+)
 
 VOCAB = ["set_light", "set_water", "advance_week", "measure_height", "paint_pot", "reset"]
 

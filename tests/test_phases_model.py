@@ -11,10 +11,9 @@ from hmmlearn.hmm import CategoricalHMM
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from seqmine.encoding.sequences import SequenceDB
 from seqmine.errors import DataFileError, ParameterError
-from seqmine.phases import PhaseModel, fit_phase_model, name_state
-from seqmine.phases import _hmm
-from seqmine.sequences import SequenceDB
+from seqmine.phases import PhaseModel, _hmm, fit_phase_model, name_state
 
 # --------------------------------------------------------------------------------------
 # Ice-cream example, Jurafsky & Martin, Speech and Language Processing, 3rd ed. draft,

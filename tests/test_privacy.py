@@ -7,7 +7,7 @@ import pandas as pd
 import pytest
 
 from seqmine.errors import DataFileError
-from seqmine.privacy import pseudonymize, pseudonymize_frame, read_key
+from seqmine.inputs.privacy import pseudonymize, pseudonymize_frame, read_key
 
 KEY = b"k" * 32
 
@@ -43,7 +43,7 @@ def test_key_file_checks(tmp_path):
 
 
 def test_encode_command_pseudonymizes_every_output(tmp_path, capsys):
-    from seqmine.cli import main
+    from seqmine.cli.main import main
     ev = tmp_path / "e.csv"
     ev.write_text("learner,time,action\n" + "".join(
         f"ana{i},{t},x{t % 2}\n" for i in range(4) for t in range(3)), encoding="utf-8")

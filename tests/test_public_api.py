@@ -15,7 +15,7 @@ def test_user_errors_are_value_errors():
 
 
 def test_help_lists_every_stage(capsys):
-    from seqmine.cli import main
+    from seqmine.cli.main import main
     assert main(["--help"]) == 0
     out = capsys.readouterr().out
     for cmd in ["demo", "analyze", "encode", "mine", "contrast", "phases", "validate",

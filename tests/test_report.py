@@ -7,12 +7,12 @@ import re
 import numpy as np
 import pandas as pd
 import pytest
-
 from report_fixture import HOSTILE, write_output_folder
-from seqmine import _plots
-from seqmine.cli import main
+from seqmine.cli.main import main
+
 from seqmine.errors import DataFileError
-from seqmine.report import OUTPUT_FILES, REPORT_FILE, _read_csv, render_report
+from seqmine.reporting import plots as _plots
+from seqmine.reporting.render import OUTPUT_FILES, REPORT_FILE, _read_csv, render_report
 
 SECTION_IDS = ["overview", "patterns", "transitions", "phases", "early-prediction",
                "detectors", "method", "cautions"]
@@ -282,7 +282,7 @@ def test_cli_report(folder, tmp_path, capsys):
 def test_outputs_doc_lists_every_key_the_report_reads():
     from pathlib import Path
 
-    from seqmine import report as rep
+    from seqmine.reporting import render as rep
 
     doc = (Path(__file__).resolve().parents[1] / "docs" / "outputs.md").read_text("utf-8")
     tables = [rep.SUMMARY_KEYS, rep.REJECT_COLUMNS, rep.PATTERN_COLUMNS, rep.TRANSITION_COLUMNS,
@@ -344,9 +344,9 @@ def test_reject_reasons_get_their_meaning(tmp_path, monkeypatch):
     import sys
     import types
 
-    fake = types.ModuleType("seqmine.load")
+    fake = types.ModuleType("seqmine.inputs.load")
     fake.REJECT_REASONS = {"bad_time": "the time is <not> a time"}
-    monkeypatch.setitem(sys.modules, "seqmine.load", fake)
+    monkeypatch.setitem(sys.modules, "seqmine.inputs.load", fake)
     folder = tmp_path / "o"
     folder.mkdir()
     (folder / "rejects.csv").write_text("source_row,reason\n2,bad_time\n3,bad_time\n4,other\n")

@@ -3,10 +3,10 @@
 import re
 
 import pytest
-
 from browser_helper import CHROMIUM, SKIP_REASON, load_page, screenshot_ink, start_tags
 from report_fixture import write_output_folder
-from seqmine.report import render_report
+
+from seqmine.reporting.render import render_report
 
 pytestmark = [pytest.mark.browser, pytest.mark.skipif(CHROMIUM is None, reason=SKIP_REASON)]
 

@@ -5,13 +5,13 @@ import re
 
 import numpy as np
 import pandas as pd
+from browser_helper import start_tags
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from browser_helper import start_tags
-from seqmine import _plots
-from seqmine import _report_html as hx
-from seqmine import _report_pieces as sec
+from seqmine.reporting import html as hx
+from seqmine.reporting import pieces as sec
+from seqmine.reporting import plots as _plots
 
 # Text with the characters that matter for markup, plus anything else.
 _MARKUP = st.sampled_from(["<", ">", "&", '"', "'", "/", "=", "$", "\\", "\x00", "\x1b",

@@ -9,17 +9,17 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from seqmine._report_examples import build_examples, find_occurrence
+from seqmine.encoding.sequences import SequenceDB
 from seqmine.errors import ParameterError
-from seqmine.report import render_report, write_examples
-from seqmine.sequences import SequenceDB
+from seqmine.reporting.examples import build_examples, find_occurrence
+from seqmine.reporting.render import render_report, write_examples
 
 VOCAB = ["a", "b", "c", "pause:long"]
 IS_PAUSE = np.array([False, False, False, True])
 
 
 def _brute(seq, pattern, max_gap, max_window, skip_pauses):
-    """All occurrences by enumeration, with the semantics of seqmine.patterns."""
+    """All occurrences by enumeration, with the semantics of seqmine.mining.patterns."""
     counted = [not (skip_pauses and IS_PAUSE[t]) for t in seq]
     found = []
     for pos in itertools.combinations(range(len(seq)), len(pattern)):

@@ -7,11 +7,11 @@ import json
 import os
 
 import pytest
+from browser_helper import start_tags
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from browser_helper import start_tags
-from seqmine.report import render_report
+from seqmine.reporting.render import render_report
 
 JSON = st.recursive(
     st.none() | st.booleans() | st.integers(-10**6, 10**6)

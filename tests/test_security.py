@@ -13,9 +13,9 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
-
 from browser_helper import CHROMIUM, load_page, start_tags
-from seqmine.cli import main
+from seqmine.cli.main import main
+
 from seqmine.demo_data import write_greenhouse
 
 HOSTILE = {
@@ -136,7 +136,7 @@ def test_detectors_file_is_plain_json_without_code(hostile_run):
 def test_phase_files_of_colliding_labels_stay_apart():
     # two labels that differ only in characters a file name cannot hold must not
     # overwrite each other's model file
-    from seqmine.phases.pipeline import _graph_file, _model_file
+    from seqmine.phases.run import _graph_file, _model_file
     a, b = "a/b", "a?b"
     assert _model_file(a) != _model_file(b) and _graph_file(a) != _graph_file(b)
     for label in (a, b, "../..", "..", "C:\\x", "~"):

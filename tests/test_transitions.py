@@ -6,9 +6,9 @@ import statsmodels.api as sm
 from scipy import stats
 from statsmodels.stats.contingency_tables import Table
 
+from seqmine.encoding.sequences import SequenceDB
 from seqmine.errors import ParameterError
-from seqmine.sequences import SequenceDB
-from seqmine.transitions import (
+from seqmine.scoring.transitions import (
     TRANSITION_COLUMNS,
     adjusted_residuals,
     quasi_independence_expected,

@@ -5,7 +5,6 @@ import json
 import numpy as np
 import pandas as pd
 import pytest
-
 from _validate_toys import (
     MedianGrouping,
     QuantileEncoder,
@@ -14,8 +13,9 @@ from _validate_toys import (
     ngram_mine,
     planted_data,
 )
+
 from seqmine.errors import ParameterError
-from seqmine.validate import (
+from seqmine.validation.crossval import (
     CLASSIFIERS,
     _FoldRunner,
     default_featurizers,
@@ -85,7 +85,7 @@ def test_ordering_signal_is_recognised_before_the_session_ends(planted_result):
 
 
 def test_earliest_fraction_rules():
-    from seqmine.validate import ValidationResult
+    from seqmine.validation.crossval import ValidationResult
 
     m = pd.DataFrame({"classifier": ["a"] * 3 + ["majority"] * 3, "fraction": [0.2, 0.5, 1.0] * 2,
                       "beats_baseline": [True, False, True, False, False, False]})
@@ -96,7 +96,7 @@ def test_earliest_fraction_rules():
 
 
 def _real_miner():
-    mine = pytest.importorskip("seqmine.mine")
+    mine = pytest.importorskip("seqmine.mining.miner")
     return dict(TOY, miner=mine.mine, matcher=mine.match)
 
 
@@ -260,8 +260,8 @@ class _TopTwo(MedianGrouping):
 def test_folds_on_a_local_dask_cluster_give_identical_results():
     # real (importable) stages only, since the folds run in other processes
     pytest.importorskip("distributed")
-    from seqmine.encode import Encoder
-    from seqmine.outcomes import Grouping
+    from seqmine.encoding.encoder import Encoder
+    from seqmine.inputs.outcomes import Grouping
 
     ev, oc = planted_data(30, seed=4)
     kw = dict(folds=3, fractions=[0.5, 1.0], n_bootstrap=50, grouping=Grouping(),

@@ -6,15 +6,16 @@ import numpy as np
 import pandas as pd
 import pytest
 
-pytest.importorskip("seqmine.mine")
-pytest.importorskip("seqmine.contrast")
+pytest.importorskip("seqmine.mining.miner")
+pytest.importorskip("seqmine.scoring.contrast")
 
-from seqmine.cli import main  # noqa: E402
+from seqmine.cli.main import main  # noqa: E402
+
 from seqmine.demo_data import generate_greenhouse, write_greenhouse  # noqa: E402
-from seqmine.encode import Encoder  # noqa: E402
-from seqmine.load import parse_times  # noqa: E402
-from seqmine.outcomes import Grouping, normalized_gain  # noqa: E402
-from seqmine.validate import default_featurizers, validate  # noqa: E402
+from seqmine.encoding.encoder import Encoder  # noqa: E402
+from seqmine.inputs.load import parse_times  # noqa: E402
+from seqmine.inputs.outcomes import Grouping, normalized_gain  # noqa: E402
+from seqmine.validation.crossval import default_featurizers, validate  # noqa: E402
 
 FAST_HMM = dict(n_states=2, n_restarts=1, n_iter=20)
 
@@ -22,7 +23,7 @@ FAST_HMM = dict(n_states=2, n_restarts=1, n_iter=20)
 @pytest.fixture(autouse=True)
 def _restore_quiet():
     # the command line's --quiet switches progress output off process-wide
-    from seqmine._progress import is_quiet, set_quiet
+    from seqmine._util.progress import is_quiet, set_quiet
     before = is_quiet()
     yield
     set_quiet(before)
@@ -122,7 +123,7 @@ def test_cli_folds_and_loo_are_exclusive(small_files, tmp_path, capsys):
 
 def test_hmm_featurizer_uses_the_phase_models_when_available():
     phases = pytest.importorskip("seqmine.phases")
-    from seqmine.features import HMMLikelihoodFeaturizer
+    from seqmine.validation.features import HMMLikelihoodFeaturizer
     ev, oc = _greenhouse(30, seed=2)
     g = Grouping().fit(oc)
     enc = Encoder().fit(ev)

@@ -14,8 +14,8 @@ from sklearn.metrics import (
 from statsmodels.stats.contingency_tables import mcnemar
 
 from seqmine.errors import ParameterError
-from seqmine._classification_metrics import _bootstrap_weights, _metrics, _weighted_auc
-from seqmine.validate import early_prediction_table, learner_splits
+from seqmine.validation.crossval import early_prediction_table, learner_splits
+from seqmine.validation.metrics import _bootstrap_weights, _metrics, _weighted_auc
 
 GROUPS = ["strong", "weak"]
 

@@ -8,17 +8,17 @@ import json
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from seqmine.cli.main import main
 
-from seqmine.cli import main
-from seqmine.detect import save_detectors
+from seqmine.detection.detectors import save_detectors
+from seqmine.detection.watcher import EventError, Firing, Watcher, parse_event_time
 from seqmine.errors import DataFileError, ParameterError
-from seqmine.watch import EventError, Firing, Watcher, parse_event_time
 
 
 @pytest.fixture(autouse=True)
 def _restore_quiet():
     # 'seqmine ... -q' switches progress output off process-wide; undo it after each test
-    from seqmine._progress import is_quiet, set_quiet
+    from seqmine._util.progress import is_quiet, set_quiet
 
     before = is_quiet()
     yield
@@ -217,7 +217,7 @@ def test_out_of_order_duplicates_and_mixed_times():
 
 
 def test_parse_event_time_matches_the_loader():
-    from seqmine.load import parse_times
+    from seqmine.inputs.load import parse_times
 
     values = ["2026-03-01T10:00:00Z", "2026-03-01T11:00:00+01:00", "2026-03-01 10:00:05",
               "2026-03-01T10:00:05.250", "12.5", " 7 "]
@@ -311,7 +311,7 @@ def test_cli_watch_exit_2_only_for_unusable_detectors(tmp_path, capsys):
 
 
 def test_cli_watch_pseudonymizes_learners(tmp_path, capsys):
-    from seqmine.privacy import pseudonymize
+    from seqmine.inputs.privacy import pseudonymize
 
     det = _write_doc(tmp_path)
     key = tmp_path / "key.txt"

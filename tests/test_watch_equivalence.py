@@ -5,12 +5,16 @@ from __future__ import annotations
 from collections import Counter
 
 import pytest
+from _watch_reference import (
+    brute_instance_count,
+    max_disjoint,
+    occurrences,
+    reference_tokens,
+)
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from seqmine.watch import EventError, Watcher
-
-from _watch_reference import brute_instance_count, max_disjoint, occurrences, reference_tokens
+from seqmine.detection.watcher import EventError, Watcher
 
 ACTIONS = ["set", "run", "measure", "paint", "reset"]
 LABELS = ["short", "medium", "long"]
@@ -179,7 +183,7 @@ def _encoder_counts(events, doc):
     """Offline counts from the project's Encoder (rebuilt from the file's encoding)."""
     import pandas as pd
 
-    from seqmine.encode import Encoder
+    from seqmine.encoding.encoder import Encoder
 
     if not events:
         return Counter(), None
@@ -220,7 +224,7 @@ def test_watcher_counts_equal_counts_on_the_encoders_token_stream(case):
 
 def _match_counts(db, doc):
     """Offline counts from the miner's matcher on the Encoder's SequenceDB."""
-    mine = pytest.importorskip("seqmine.mine", reason="seqmine.mine (the miner) is not merged yet")
+    mine = pytest.importorskip("seqmine.mining.miner", reason="seqmine.mining.miner (the miner) is not merged yet")
     m = doc["matching"]
     index = {v: i for i, v in enumerate(db.vocab)}
     usable = [d for d in doc["detectors"] if all(t in index for t in d["tokens"])]

@@ -8,14 +8,19 @@ from collections import Counter
 from pathlib import Path
 
 import pytest
+from seqmine.cli.main import main
 
-from seqmine.cli import main
-from seqmine.detect import build_detectors, load_detectors, save_detectors, select_detectors
-from seqmine.encode import Encoder
-from seqmine.load import load_events
-from seqmine.outcomes import load_outcomes
+from seqmine.detection.detectors import (
+    build_detectors,
+    load_detectors,
+    save_detectors,
+    select_detectors,
+)
+from seqmine.detection.watcher import EventError, Watcher
+from seqmine.encoding.encoder import Encoder
+from seqmine.inputs.load import load_events
+from seqmine.inputs.outcomes import load_outcomes
 from seqmine.pipeline import prepare_sequences
-from seqmine.watch import EventError, Watcher
 
 DEMO = Path(__file__).resolve().parents[1] / "datasets" / "greenhouse"
 
@@ -26,7 +31,7 @@ pytestmark = pytest.mark.skipif(not (DEMO / "events.csv").is_file(),
 @pytest.fixture(autouse=True)
 def _restore_quiet():
     # 'seqmine ... -q' switches progress output off process-wide; undo it after each test
-    from seqmine._progress import is_quiet, set_quiet
+    from seqmine._util.progress import is_quiet, set_quiet
 
     before = is_quiet()
     yield
@@ -34,7 +39,7 @@ def _restore_quiet():
 
 
 def _offline_counts(db, doc):
-    from seqmine.mine import match
+    from seqmine.mining.miner import match
 
     index = {v: i for i, v in enumerate(db.vocab)}
     dets = doc["detectors"]
@@ -67,8 +72,8 @@ def _replay(path, events_csv):
 
 @pytest.mark.slow
 def test_demo_round_trip_counts_equal_offline(tmp_path):
-    from seqmine.contrast import contrast
-    from seqmine.mine import mine
+    from seqmine.mining.miner import mine
+    from seqmine.scoring.contrast import contrast
 
     loaded = load_events(DEMO / "events.csv")
     outcomes = load_outcomes(DEMO / "outcomes.csv")
@@ -123,7 +128,7 @@ def test_demo_round_trip_through_the_command_line(tmp_path, capsys):
         rec = json.loads(line)
         if rec["kind"] == "occurrence":
             live[(rec["learner"], rec["detector"])] += 1
-    from seqmine.sequences import SequenceDB
+    from seqmine.encoding.sequences import SequenceDB
 
     db = SequenceDB.load(out / "sequences")
     offline = _offline_counts(db, doc)

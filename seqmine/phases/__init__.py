@@ -13,12 +13,19 @@ Public API
 """
 
 from .classify import GroupHMMClassifier
-from .compare import (align_states, bh_adjust, compare_state_paths, compare_transitions,
-                      model_distance, path_measures, state_paths_db)
+from .compare import (
+                      align_states,
+                      bh_adjust,
+                      compare_state_paths,
+                      compare_transitions,
+                      model_distance,
+                      path_measures,
+                      state_paths_db,
+)
 from .fitting import fit_phase_model, learner_folds, parse_state_range, select_n_states
 from .model import PhaseModel, name_state
-from .pipeline import PhaseResult, fit_phases, load_phase_models
 from .plot import plot_phase_model
+from .run import PhaseResult, fit_phases, load_phase_models
 
 __all__ = [
     "fit_phases",

@@ -6,11 +6,16 @@ import numpy as np
 from scipy.special import logsumexp
 from sklearn.base import BaseEstimator, ClassifierMixin
 
-from .._validation import check_choice, check_int, check_number
+from .._util.checks import check_choice, check_int, check_number
+from ..encoding.sequences import SequenceDB
 from ..errors import NotFittedError, ParameterError
-from ..sequences import SequenceDB
 from . import _hmm
-from .fitting import DEFAULT_EMISSION_FLOOR, fit_phase_model, parse_state_range, select_n_states
+from .fitting import (
+    DEFAULT_EMISSION_FLOOR,
+    fit_phase_model,
+    parse_state_range,
+    select_n_states,
+)
 
 __all__ = ["GroupHMMClassifier"]
 
@@ -54,7 +59,7 @@ class GroupHMMClassifier(ClassifierMixin, BaseEstimator):
 
     Notes
     -----
-    ``X`` is a :class:`~seqmine.sequences.SequenceDB` (``y`` defaults to its group
+    ``X`` is a :class:`~seqmine.encoding.sequences.SequenceDB` (``y`` defaults to its group
     names; sequences without a group are left out of ``fit``) or a list of int
     token arrays (then ``y`` is required and the vocabulary is ``0..max id``).
     Sequences of any length, including empty ones, can be scored; an empty

@@ -8,9 +8,9 @@ from scipy.optimize import linear_sum_assignment
 from scipy.spatial.distance import jensenshannon
 from scipy.stats import mannwhitneyu
 
-from .._validation import check_fraction, check_int
+from .._util.checks import check_fraction, check_int
+from ..encoding.sequences import SequenceDB
 from ..errors import ParameterError
-from ..sequences import SequenceDB
 from .model import PhaseModel  # noqa: F401  (used by the doctests)
 
 __all__ = [

@@ -9,9 +9,9 @@ import numpy as np
 import pandas as pd
 from joblib import Parallel, delayed
 
-from .._validation import check_int, check_number
+from .._util.checks import check_int, check_number
+from ..encoding.sequences import SequenceDB
 from ..errors import ParameterError, SeqmineWarning
-from ..sequences import SequenceDB
 from . import _hmm
 from .model import PhaseModel
 

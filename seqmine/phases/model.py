@@ -11,8 +11,8 @@ import networkx as nx
 import numpy as np
 import pandas as pd
 
+from ..encoding.sequences import SequenceDB
 from ..errors import DataFileError, ParameterError
-from ..sequences import SequenceDB
 from . import _hmm
 
 __all__ = ["PhaseModel", "name_state"]

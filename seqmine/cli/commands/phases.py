@@ -1,0 +1,63 @@
+"""``seqmine phases``: hidden Markov models of phases of work, per outcome group."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+from ..._util.progress import is_quiet
+from ...encoding.sequences import SequenceDB
+
+__all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
+
+NAME = "phases"
+HELP = "fit hidden Markov models of phases of work per outcome group and compare them"
+DESCRIPTION = (
+    "Fit categorical hidden Markov models to the encoded sequences, pooled and per outcome "
+    "group; choose the number of states by BIC (or held-out log-likelihood); compare the "
+    "groups' decoded state paths, aligned transition matrices and model distance. Writes "
+    "OUT/phases/ (models as JSON, GraphML graphs, CSV tables, state sequences)."
+)
+
+
+def add_arguments(parser):
+    """Options of ``seqmine phases``."""
+    parser.add_argument("seqdb", metavar="SEQDB_DIR",
+                        help="sequence database folder written by 'seqmine encode'")
+    parser.add_argument("--out", required=True, metavar="DIR",
+                        help="output folder; results go to DIR/phases/")
+    parser.add_argument("--states", default="2-6", metavar="RANGE",
+                        help="state counts to try: '3', '2-6' or '2,3,5' (default 2-6)")
+    parser.add_argument("--restarts", type=int, default=5, metavar="N",
+                        help="Baum-Welch restarts per fit (default 5)")
+    parser.add_argument("--seed", type=int, default=0, metavar="S", help="random seed (default 0)")
+    parser.add_argument("--jobs", type=int, default=1, metavar="N",
+                        help="parallel workers; results equal the serial run (default 1)")
+    parser.add_argument("--criterion", choices=("bic", "heldout"), default="bic",
+                        help="how the state count is chosen (default bic)")
+    parser.add_argument("--folds", type=int, default=3, metavar="K",
+                        help="learner folds for the held-out log-likelihood; 0 = off (default 3)")
+    parser.add_argument("--permutations", type=int, default=19, metavar="N",
+                        help="label permutations for the model-distance reference (default 19)")
+
+
+def run(args):
+    """Run ``seqmine phases``; quiet mode is set per call by the command line."""
+    from ...phases import fit_phases
+
+    db = SequenceDB.load(args.seqdb)
+    result = fit_phases(db, n_states=args.states, n_restarts=args.restarts, seed=args.seed,
+                        n_jobs=args.jobs, criterion=args.criterion, n_folds=args.folds,
+                        n_permutations=args.permutations)
+    folder = result.save(Path(args.out) / "phases")
+    if not is_quiet():
+        msg = [f"phases: {result.n_states} states ({result.params['criterion']}), "
+               f"{result.state_db.n_sequences} sequences modelled"]
+        if result.at_top_of_range:
+            msg.append("the chosen count is the largest tried; consider a wider --states range")
+        if result.n_excluded:
+            msg.append(f"{result.n_excluded} sequences shorter than "
+                       f"{result.params['min_length']} tokens left out (see excluded.csv)")
+        print("; ".join(msg), file=sys.stderr)
+    print(f"phase models written to {folder}")
+    return 0

@@ -1,0 +1,37 @@
+"""``seqmine report OUT_DIR``: re-render report.html from the files in an output folder."""
+
+from __future__ import annotations
+
+from ...errors import ParameterError
+from ...reporting.render import render_report
+
+__all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
+
+NAME = "report"
+HELP = "re-render report.html from the files in an output folder"
+DESCRIPTION = (
+    "Write OUT_DIR/report.html from the files a previous 'seqmine analyze' run left in "
+    "OUT_DIR (summary.json, patterns.csv, transitions.csv, phases/, early_prediction.csv, "
+    "detectors.json, examples.json). Sections whose file is missing say so. The page is "
+    "self-contained: it opens offline and loads nothing from the network."
+)
+
+
+def add_arguments(parser):
+    """Options of ``seqmine report``."""
+    parser.add_argument("out_dir", metavar="OUT_DIR", help="output folder of 'seqmine analyze'")
+    parser.add_argument("--no-examples", dest="examples", action="store_false",
+                        help="leave example excerpts from the log out of the report")
+    parser.add_argument("--max-patterns", type=int, default=12, metavar="N",
+                        help="differential patterns shown in detail (default: 12)")
+
+
+def run(args):
+    """Render the report and print where it is."""
+    if args.max_patterns < 1:
+        raise ParameterError(
+            f"--max-patterns must be a whole number of at least 1. Got {args.max_patterns}.")
+    path = render_report(args.out_dir, examples=args.examples, max_patterns=args.max_patterns)
+    if not args.quiet:
+        print(f"Report written to {path}")
+    return 0

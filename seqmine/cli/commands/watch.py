@@ -1,0 +1,179 @@
+"""``seqmine watch``: run detectors on a JSON-lines event stream, print firings."""
+
+from __future__ import annotations
+
+import json
+import os
+import sys
+from pathlib import Path
+
+from ...detection.watcher import EventError, Watcher
+from ...errors import DataFileError, ParameterError
+
+__all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
+
+NAME = "watch"
+HELP = "run detectors on live JSON-lines events and print firings as JSON lines"
+DESCRIPTION = (
+    "Read events as JSON lines (one object per line with learner, time (ISO 8601 or "
+    "seconds) and action, optionally session, target and channel) from EVENTS or standard "
+    "input, tokenise them exactly as the offline analysis did, and write one JSON line per "
+    "detector firing to standard output: type, learner, detector, kind (occurrence or "
+    "absence), direction, time, event_times, sequence, occurrence, priority, suppressed, "
+    "reason and hint. Occurrence firings count exactly like the offline instance counts; "
+    "'suppressed' marks hints held back by the cool-down or outranked by another firing "
+    "of the same event. A bad event (malformed JSON, missing field, bad time, out of "
+    "order beyond the tolerance, duplicate) gets one error line on standard error and "
+    "is skipped; processing continues. Exit status 2 only for an unusable detectors file, a missing events file "
+    "or a bad option."
+)
+
+
+def add_arguments(parser):
+    """Options of ``seqmine watch``."""
+    parser.add_argument("detectors", metavar="DETECTORS_JSON",
+                        help="detectors file written by 'seqmine detectors'")
+    parser.add_argument("events", metavar="EVENTS_JSONL", nargs="?", default=None,
+                        help="JSON-lines events (default: standard input)")
+    parser.add_argument("--cooldown", type=float, default=60.0, metavar="S",
+                        help="seconds after a delivered hint during which further hints to "
+                             "that learner are suppressed (default 60)")
+    parser.add_argument("--idle-timeout", default="86400", metavar="S",
+                        help="drop a learner's state after S seconds without events, or "
+                             "'none' (default 86400)")
+    parser.add_argument("--tolerance", type=float, default=1.0, metavar="S",
+                        help="events older than the learner's latest by more than S seconds "
+                             "are rejected (default 1)")
+    parser.add_argument("--hints-only", action="store_true",
+                        help="print only firings whose hint is delivered (not suppressed)")
+    parser.add_argument("--encourage-hints", action="store_true",
+                        help="deliver completed encourage patterns as hints too (e.g. praise)")
+    parser.add_argument("--keep-duplicates", action="store_true",
+                        help="process exact duplicate events instead of rejecting them")
+    parser.add_argument("--times", choices=("auto", "seconds", "iso"), default="auto",
+                        help="time format of the output (default: as the input)")
+    parser.add_argument("--pseudonymize", metavar="KEY_FILE", default=None,
+                        help="replace learner identifiers by keyed-hash pseudonyms (the same "
+                             "key as 'seqmine analyze --pseudonymize' gives the same pseudonyms)")
+    parser.add_argument("--summary", action="store_true",
+                        help="print counters (events, rejected, firings, hints) to standard "
+                             "error at the end")
+
+
+def run(args):
+    """Run ``seqmine watch``."""
+    idle = _idle(args.idle_timeout)
+    watcher = Watcher(args.detectors, cooldown_seconds=args.cooldown, idle_timeout=idle,
+                      out_of_order_tolerance=args.tolerance,
+                      hint_on_encourage=args.encourage_hints,
+                      reject_duplicates=not args.keep_duplicates)
+    pseudo = _pseudonymizer(args.pseudonymize) if args.pseudonymize else None
+    err = sys.stderr
+    out = sys.stdout
+    for note in watcher.notes:
+        print(f"seqmine watch: note: {note}", file=err)
+    watcher.notes.clear()
+    if args.events is None:
+        stream, name, interactive = sys.stdin, "<stdin>", True
+    else:
+        path = Path(args.events)
+        if not path.is_file():
+            raise DataFileError(f"{path}: events file not found; check the path.")
+        stream = path.open("r", encoding="utf-8-sig", errors="replace", newline=None)
+        name, interactive = str(path), False
+    hints_only = args.hints_only
+    try:
+        _loop(stream, name, interactive, watcher, out, err, args, hints_only, pseudo)
+    except BrokenPipeError:  # the reader went away (e.g. '| head'): stop quietly
+        try:
+            sys.stdout = open(os.devnull, "w")  # noqa: SIM115 - avoid a second error at exit
+        except OSError:  # pragma: no cover
+            pass
+        return 0
+    finally:
+        if stream is not sys.stdin:
+            stream.close()
+    if args.summary:
+        s = watcher.stats
+        print("seqmine watch: summary: " + ", ".join(f"{k}={v}" for k, v in s.items()), file=err)
+    return 0
+
+
+def _loop(stream, name, interactive, watcher, out, err, args, hints_only, pseudo):
+    """Read, process and write every line; bad events get one line on ``err``."""
+    for lineno, line in enumerate(stream, 1):
+        if not line.strip():
+            continue
+        try:
+            event = json.loads(line)
+        except (ValueError, RecursionError) as exc:
+            why = (f"{exc.msg} at column {exc.colno}" if isinstance(exc, json.JSONDecodeError)
+                   else "a number with too many digits" if isinstance(exc, ValueError)
+                   else "nested too deeply")
+            print(f"seqmine watch: {name}:{lineno}: malformed JSON ({why}); event skipped",
+                  file=err)
+            watcher.stats["events"] += 1
+            watcher.stats["rejected"] += 1
+            continue
+        if pseudo is not None and isinstance(event, dict) and "learner" in event:
+            event["learner"] = pseudo(event["learner"])
+        try:
+            firings = watcher.process(event)
+        except EventError as exc:
+            print(f"seqmine watch: {name}:{lineno}: {exc}; event skipped", file=err)
+            continue
+        if watcher.notes:
+            for note in watcher.notes:
+                print(f"seqmine watch: {name}:{lineno}: note: {note}", file=err)
+            watcher.notes.clear()
+        if firings:
+            _write(out, firings, watcher, args.times, hints_only)
+            if interactive:
+                out.flush()
+    watcher.flush()
+    out.flush()
+
+
+def _write(out, firings, watcher, times, hints_only):
+    iso = watcher.time_kind == "iso" if times == "auto" else times == "iso"
+    for f in firings:
+        if hints_only and f.suppressed:
+            continue
+        out.write(json.dumps(f.to_dict(iso_times=iso), ensure_ascii=False) + "\n")
+
+
+def _pseudonymizer(key_path):
+    """learner -> pseudonym (as in the offline analysis); other values pass unchanged,
+    so the watcher rejects them exactly as it would without the option."""
+    from ...detection.watcher import _CONTROL
+    from ...inputs.privacy import pseudonymize, read_key
+
+    key = read_key(key_path)
+    cache = {}
+
+    def convert(value):
+        if type(value) is not str:
+            return value
+        s = value.strip()
+        if not s or _CONTROL.search(s):
+            return value
+        p = cache.get(s)
+        if p is None:
+            if len(cache) > 1_000_000:  # bound memory on endless streams
+                cache.clear()
+            p = cache[s] = str(pseudonymize([s], key)[0])
+        return p
+    return convert
+
+
+def _idle(text):
+    t = str(text).strip().lower()
+    if t in ("none", "off"):
+        return None
+    try:
+        v = float(t)
+    except ValueError:
+        raise ParameterError(f"--idle-timeout takes seconds or 'none'. Got {text!r} instead.") from None
+    if not v > 0:
+        raise ParameterError(f"--idle-timeout must be > 0 seconds or 'none'. Got {text!r} instead.")
+    return v

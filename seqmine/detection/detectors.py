@@ -1,0 +1,729 @@
+"""Detectors: select validated patterns and write them as a versioned JSON file.
+
+A detectors file holds everything the live watcher needs to turn raw events into
+the same token stream the offline analysis used (the encoding parameters), the
+matching constraints, and one entry per detector: its tokens, its direction
+(``discourage``: more common among weak learners; ``encourage``: more common among
+strong learners), the evidence behind it, and an editable hint text and priority.
+
+Findings behind detectors are correlational. Hint texts written by
+:func:`build_detectors` are neutral placeholders: educators must review and rewrite
+them, and detectors should be piloted before they drive hints for real learners.
+
+File layout (version 1)::
+
+    {"format": "seqmine-detectors", "version": 1,
+     "notice": "...",
+     "encoding": {template, mapping, collapse_repeats, unit, session_gap,
+                  pause: {strategy, edges, labels, implicit, ...}},
+     "vocabulary": [action symbols seen offline],
+     "matching": {"max_gap": int|null, "max_window": int|null, "skip_pauses": bool},
+     "groups": {"names": [...], "strong": str, "weak": str, "sizes": {name: int}},
+     "selection": {the filters used},
+     "detectors": [{"id", "tokens", "direction", "favours", "evidence", "hint",
+                    "priority", "absence": {"after_events", "after_seconds"} | null,
+                    "enabled", "notes"}]}
+
+Priority: a smaller number is delivered first (1 = most important).
+"""
+
+from __future__ import annotations
+
+import copy
+import difflib
+import json
+import math
+import numbers
+import string
+import warnings
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .._util.checks import check_int, check_number
+from ..encoding.sequences import PAUSE_PREFIX
+from ..errors import ColumnError, DataFileError, ParameterError, SeqmineWarning
+from ..mining.patterns import PATTERN_SEPARATOR
+
+__all__ = [
+    "DETECTORS_FORMAT",
+    "DETECTORS_VERSION",
+    "DETECTOR_NOTICE",
+    "select_detectors",
+    "build_detectors",
+    "export_detectors",
+    "save_detectors",
+    "load_detectors",
+    "validate_detectors",
+    "default_hint",
+]
+
+#: Value of the ``format`` field of every detectors file.
+DETECTORS_FORMAT = "seqmine-detectors"
+#: Newest detectors file version this seqmine reads and writes.
+DETECTORS_VERSION = 1
+#: Caution copied into every detectors file.
+DETECTOR_NOTICE = (
+    "Detectors come from correlational findings. Educators must review and rewrite "
+    "every hint, and detectors should be piloted before they drive hints for real "
+    "learners; follow local data-protection law and your institution's ethics review."
+)
+
+_EFFECT_COLUMNS = ("risk_difference", "odds_ratio", "cohens_h", "cliffs_delta")
+_TEMPLATE_FIELDS = ("action", "target", "channel", "session")
+_PAUSE_STRATEGIES = ("quantile", "fixed", "learner_quantile", "none")
+_TOP_KEYS = {"format", "version", "notice", "encoding", "vocabulary", "matching", "groups",
+             "selection", "detectors", "created_by"}
+_DETECTOR_KEYS = {"id", "tokens", "direction", "favours", "evidence", "hint", "priority",
+                  "absence", "enabled", "notes"}
+_MATCHING_KEYS = {"max_gap", "max_window", "skip_pauses"}
+
+
+# ====================================================================== selection
+def select_detectors(contrast_table, *, max_q=0.05, min_effect=0.2, effect="cohens_h",
+                     min_stability=0.5, lengths=None, groups=None, max_detectors=50,
+                     drop_redundant=True):
+    """Choose the contrast-table rows worth exporting as detectors.
+
+    A row is kept when it favours a group, its ``q_value <= max_q``, the absolute
+    value of its ``effect`` column is at least ``min_effect``, its ``stability`` is at
+    least ``min_stability``, its length is allowed and its favoured group is in
+    ``groups``. Kept rows are ranked by absolute effect (largest first), then q value,
+    then pattern name; with ``drop_redundant`` a row is dropped when the contrast
+    table marks it redundant (a non-empty ``redundant_of``), or when its pattern
+    contains, or is contained in, an already kept pattern favouring the same group
+    (as a subsequence), so one behaviour yields one detector.
+
+    Parameters
+    ----------
+    contrast_table : DataFrame
+        Output of ``contrast()`` (or ``patterns.csv``): columns ``pattern``,
+        ``q_value``, ``favours``, the ``effect`` column and, when ``min_stability > 0``,
+        ``stability``.
+    max_q : float in (0, 1]
+    min_effect : float >= 0
+        Threshold on ``|effect|``. The default 0.2 is Cohen's "small" effect for h
+        (common practice, Cohen 1988).
+    effect : str
+        Effect-size column used for filtering and ranking.
+    min_stability : float in [0, 1]
+        ``0`` disables the check (and the need for a ``stability`` column).
+    lengths : int, (min, max) tuple or list of int, optional
+        Allowed pattern lengths.
+    groups : str or list of str, optional
+        Only patterns favouring these groups.
+    max_detectors : int >= 1, optional
+    drop_redundant : bool
+
+    Returns
+    -------
+    DataFrame
+        The kept rows in rank order, with a fresh index.
+
+    Examples
+    --------
+    >>> t = pd.DataFrame({"pattern": ["a > b", "a > b > c", "d"], "length": [2, 3, 1],
+    ...                   "q_value": [0.01, 0.01, 0.2], "favours": ["weak", "weak", "strong"],
+    ...                   "cohens_h": [0.5, 0.6, 0.9], "stability": [0.9, 0.8, 0.9]})
+    >>> select_detectors(t)["pattern"].tolist()
+    ['a > b > c']
+    """
+    where = "select_detectors"
+    if not isinstance(contrast_table, pd.DataFrame):
+        raise ParameterError(f"{where} needs the contrast table as a pandas DataFrame; got "
+                             f"{type(contrast_table).__name__}.")
+    max_q = check_number(max_q, "max_q", where, minimum=0, strict=True)
+    if max_q > 1:
+        raise ParameterError(f"The 'max_q' parameter of {where} must be in (0, 1]. Got {max_q!r} instead.")
+    min_effect = check_number(min_effect, "min_effect", where, minimum=0)
+    min_stability = check_number(min_stability, "min_stability", where, minimum=0)
+    if min_stability > 1:
+        raise ParameterError(f"The 'min_stability' parameter of {where} must be in [0, 1]. "
+                             f"Got {min_stability!r} instead.")
+    max_detectors = check_int(max_detectors, "max_detectors", where, minimum=1, allow_none=True)
+    needed = ["pattern", "q_value", "favours", effect]
+    if min_stability > 0:
+        needed.append("stability")
+    missing = [c for c in needed if c not in contrast_table.columns]
+    if missing:
+        fix = (" Pass min_stability=0 (--min-stability 0) to skip the stability check."
+               if missing == ["stability"] else
+               f" Choose another effect column with effect=/--effect (one of "
+               f"{', '.join(c for c in _EFFECT_COLUMNS if c in contrast_table.columns) or 'none present'})."
+               if missing == [effect] else "")
+        raise ColumnError(f"The contrast table lacks column(s) {', '.join(missing)}.{fix}")
+    t = contrast_table.reset_index(drop=True)
+    pats = [_split_pattern(p) for p in t["pattern"]]
+    lens = np.array([len(p) for p in pats], dtype=np.int64)
+    favours = t["favours"].astype(object).where(t["favours"].notna(), "").astype(str).str.strip()
+    q = pd.to_numeric(t["q_value"], errors="coerce").to_numpy(float)
+    eff = np.abs(pd.to_numeric(t[effect], errors="coerce").to_numpy(float))
+    keep = (favours != "").to_numpy() & (q <= max_q) & (eff >= min_effect)
+    if min_stability > 0:
+        stab = pd.to_numeric(t["stability"], errors="coerce").to_numpy(float)
+        if len(stab) and np.isnan(stab).all():
+            warnings.warn("The contrast table has no stability values (resampling was "
+                          "skipped), so no pattern passes min_stability; pass "
+                          "min_stability=0 (--min-stability 0) or compute stability.",
+                          SeqmineWarning, stacklevel=2)
+        keep &= stab >= min_stability
+    if drop_redundant and "redundant_of" in t.columns:
+        red = t["redundant_of"].astype(object).where(t["redundant_of"].notna(), "")
+        keep &= (red.astype(str).str.strip() == "").to_numpy()
+    if lengths is not None:
+        keep &= _length_mask(lens, lengths)
+    if groups is not None:
+        allowed = [groups] if isinstance(groups, str) else [str(g) for g in groups]
+        keep &= favours.isin(allowed).to_numpy()
+    idx = np.flatnonzero(keep)
+    names = t["pattern"].astype(str).to_numpy()
+    order = sorted(idx.tolist(), key=lambda i: (-eff[i], q[i], names[i]))
+    chosen = []
+    for i in order:
+        if drop_redundant and any(favours.iloc[j] == favours.iloc[i]
+                                  and (_is_subsequence(pats[j], pats[i])
+                                       or _is_subsequence(pats[i], pats[j]))
+                                  for j in chosen):
+            continue
+        chosen.append(i)
+        if max_detectors is not None and len(chosen) >= max_detectors:
+            break
+    return t.iloc[chosen].reset_index(drop=True)
+
+
+# ======================================================================= building
+def build_detectors(selected_rows, encoding, constraints=None, *, group_names, strong=None,
+                    weak=None, group_sizes=None, vocabulary=None, effect="cohens_h",
+                    absence_after_events=None, absence_after_seconds=None, selection=None):
+    """Turn selected contrast rows into a detectors document (a plain dict).
+
+    Parameters
+    ----------
+    selected_rows : DataFrame
+        Rows from :func:`select_detectors` (columns ``pattern``, ``favours``,
+        ``q_value`` and any of ``p_value``, ``support_<group>``, effect sizes,
+        ``stability``).
+    encoding : dict
+        ``SequenceDB.encoding`` of the analysed data (template, mapping, pause edges...).
+    constraints : dict, optional
+        Matching constraints the patterns were mined and counted with (``max_gap``,
+        ``max_window``, ``skip_pauses``; e.g. ``PatternSet.constraints``).
+    group_names : list of str
+    strong, weak : str, optional
+        Names of the strong and weak group; default ``"strong"``/``"weak"`` when
+        present, else the first and second group.
+    group_sizes : dict or sequence of int, optional
+        Number of sequences per group (stored as evidence).
+    vocabulary : list of str, optional
+        Action symbols seen offline; the watcher notes live symbols outside it.
+    effect : str
+        Effect-size column the watcher ranks simultaneous firings by.
+    absence_after_events, absence_after_seconds : optional
+        Default absence rule for encourage detectors (fire when the pattern has not
+        been shown after this many events / seconds of a sequence); ``None`` = off.
+    selection : dict, optional
+        The filters used (recorded for provenance).
+
+    Returns
+    -------
+    dict
+        A detectors document; :func:`validate_detectors` accepts it.
+
+    Examples
+    --------
+    >>> rows = pd.DataFrame({"pattern": ["set_light > set_water"], "favours": ["weak"],
+    ...                      "q_value": [0.01], "cohens_h": [0.4]})
+    >>> doc = build_detectors(rows, {"template": "{action}"}, {"max_gap": 0},
+    ...                       group_names=["strong", "weak"])
+    >>> d = doc["detectors"][0]
+    >>> d["id"], d["tokens"], d["direction"]
+    ('D001', ['set_light', 'set_water'], 'discourage')
+    """
+    where = "build_detectors"
+    group_names = [str(g) for g in group_names]
+    if len(group_names) < 2:
+        raise ParameterError(f"{where} needs at least two group names; got {group_names}.")
+    strong = strong if strong is not None else ("strong" if "strong" in group_names else group_names[0])
+    weak = weak if weak is not None else ("weak" if "weak" in group_names else group_names[1])
+    for role, name in (("strong", strong), ("weak", weak)):
+        if name not in group_names:
+            raise ParameterError(f"The '{role}' group {name!r} of {where} is not one of the "
+                                 f"groups {group_names}.")
+    if strong == weak:
+        raise ParameterError(f"{where}: the strong and weak group must differ (both {strong!r}).")
+    if "pattern" not in selected_rows.columns or "favours" not in selected_rows.columns:
+        raise ColumnError(f"{where}: the selected rows need columns 'pattern' and 'favours'.")
+    constraints = dict(constraints or {})
+    matching = {
+        "max_gap": _opt_int(constraints.get("max_gap")),
+        "max_window": _opt_int(constraints.get("max_window")),
+        "skip_pauses": bool(constraints.get("skip_pauses", False)),
+    }
+    if group_sizes is not None and not isinstance(group_sizes, dict):
+        group_sizes = {g: int(n) for g, n in zip(group_names, group_sizes)}
+    enc = _plain(copy.deepcopy(dict(encoding)))
+    enc.setdefault("template", "{action}")
+    enc.setdefault("mapping", {})
+    enc.setdefault("collapse_repeats", False)
+    enc.setdefault("unit", "learner")
+    enc.setdefault("session_gap", None)
+    enc.setdefault("pause", {"strategy": "none", "edges": [], "labels": [], "implicit": []})
+    pause = enc.get("pause") or {}
+    known = set(vocabulary or []) | {PAUSE_PREFIX + lab for lab in pause.get("labels", [])}
+    detectors = []
+    for k, row in enumerate(selected_rows.to_dict("records")):
+        tokens = _split_pattern(row["pattern"], known)
+        fav = "" if _missing(row.get("favours")) else str(row["favours"]).strip()
+        if fav == weak:
+            direction = "discourage"
+        elif fav == strong:
+            direction = "encourage"
+        else:
+            raise ParameterError(
+                f"{where}: row {k} ({row['pattern']!r}) favours {fav or 'no group'!r}, neither "
+                f"the strong ({strong!r}) nor the weak ({weak!r}) group; filter it out first.")
+        evidence = {
+            "support": {g: _num(row.get(f"support_{g}")) for g in group_names
+                        if f"support_{g}" in row},
+            "n": dict(group_sizes) if group_sizes else {},
+            "p_value": _num(row.get("p_value")),
+            "q_value": _num(row.get("q_value")),
+            "effects": {c: _num(row.get(c)) for c in _EFFECT_COLUMNS if c in row},
+            "stability": _num(row.get("stability")),
+        }
+        absence = None
+        if direction == "encourage":
+            absence = {"after_events": _opt_int(absence_after_events),
+                       "after_seconds": _num(absence_after_seconds)}
+        detectors.append({
+            "id": f"D{k + 1:03d}",
+            "tokens": tokens,
+            "direction": direction,
+            "favours": fav,
+            "evidence": evidence,
+            "hint": default_hint(tokens, direction),
+            "priority": 1,
+            "absence": absence,
+            "enabled": True,
+        })
+    sizes = {str(g): int(n) for g, n in (group_sizes or {}).items()}
+    doc = {
+        "format": DETECTORS_FORMAT,
+        "version": DETECTORS_VERSION,
+        "notice": DETECTOR_NOTICE,
+        "encoding": enc,
+        "vocabulary": sorted({str(v) for v in (vocabulary or []) if not str(v).startswith(PAUSE_PREFIX)}),
+        "matching": matching,
+        "groups": {"names": group_names, "strong": strong, "weak": weak, "sizes": sizes},
+        "selection": _plain(dict(selection or {}, effect=effect)),
+        "detectors": detectors,
+    }
+    validate_detectors(doc, source=where)
+    return doc
+
+
+def export_detectors(contrast_table, db, constraints=None, *, max_q=0.05, min_effect=0.2,
+                     effect="cohens_h", min_stability=0.5, lengths=None, groups=None,
+                     max_detectors=50, drop_redundant=True, strong=None, weak=None,
+                     absence_after_events=None, absence_after_seconds=None):
+    """Select rows of a contrast table and build the detectors document in one step.
+
+    Parameters
+    ----------
+    contrast_table : DataFrame
+        Output of ``contrast()``.
+    db : SequenceDB
+        The database the patterns were mined on (gives the encoding, group names and
+        sizes, and the offline vocabulary).
+    constraints : dict, optional
+        ``PatternSet.constraints`` of the mined patterns.
+    max_q, min_effect, effect, min_stability, lengths, groups, max_detectors, drop_redundant
+        See :func:`select_detectors`.
+    strong, weak, absence_after_events, absence_after_seconds
+        See :func:`build_detectors`.
+
+    Returns
+    -------
+    dict
+        A valid detectors document (write it with :func:`save_detectors`).
+    """
+    selection = {"max_q": max_q, "min_effect": min_effect, "min_stability": min_stability,
+                 "lengths": list(lengths) if isinstance(lengths, (tuple, list)) else lengths,
+                 "groups": groups, "max_detectors": max_detectors,
+                 "drop_redundant": drop_redundant}
+    rows = select_detectors(contrast_table, effect=effect, **dict(selection, lengths=lengths))
+    return build_detectors(
+        rows, db.encoding, constraints, group_names=db.group_names, strong=strong, weak=weak,
+        group_sizes=db.group_sizes().tolist(),
+        vocabulary=[v for v, p in zip(db.vocab, db.is_pause) if not p], effect=effect,
+        absence_after_events=absence_after_events, absence_after_seconds=absence_after_seconds,
+        selection=selection)
+
+
+def default_hint(tokens, direction):
+    """Neutral placeholder hint text for a detector (to be rewritten by educators).
+
+    Examples
+    --------
+    >>> default_hint(["set_light", "pause:long", "reset"], "discourage")
+    "Suggest (review before use): the sequence 'set_light, long pause, reset' was more common among weak learners; consider prompting a different next step."
+    """
+    words = ", ".join(_readable(t) for t in tokens)
+    if direction == "discourage":
+        return (f"Suggest (review before use): the sequence '{words}' was more common among "
+                f"weak learners; consider prompting a different next step.")
+    return (f"Suggest (review before use): the sequence '{words}' was more common among "
+            f"strong learners; consider prompting the learner to try it.")
+
+
+# ======================================================================= storage
+def save_detectors(detectors, path):
+    """Validate ``detectors`` and write them to ``path`` as plain, sorted JSON.
+
+    Returns
+    -------
+    pathlib.Path
+    """
+    path = Path(path)
+    validate_detectors(detectors, source=str(path))
+    text = json.dumps(_plain(detectors), indent=2, ensure_ascii=False, allow_nan=False)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_text(text + "\n", encoding="utf-8")
+    return path
+
+
+def load_detectors(path):
+    """Read and validate a detectors file.
+
+    Raises
+    ------
+    DataFileError
+        With a one-line message naming the file, the field (and detector index) and
+        the fix, when the file is missing, not JSON, of another format or a newer
+        version, or edited into an invalid state.
+
+    Returns
+    -------
+    dict
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise DataFileError(f"{path}: detectors file not found; create one with 'seqmine detectors'.")
+    try:
+        text = path.read_text(encoding="utf-8-sig")
+    except UnicodeDecodeError:
+        raise DataFileError(f"{path}: not UTF-8 text; save the detectors file as UTF-8 JSON.") from None
+    try:
+        doc = json.loads(text, parse_constant=_reject_constant)
+    except json.JSONDecodeError as exc:
+        raise DataFileError(f"{path}: not valid JSON (line {exc.lineno}, column {exc.colno}: "
+                            f"{exc.msg}); fix the file or export it again.") from None
+    except ValueError as exc:
+        raise DataFileError(f"{path}: {' '.join(str(exc).split())}; write null (or a "
+                            f"number) instead.") from None
+    except RecursionError:
+        raise DataFileError(f"{path}: the JSON is nested too deeply to be a detectors file; "
+                            f"export it again with 'seqmine detectors'.") from None
+    validate_detectors(doc, source=str(path))
+    return doc
+
+
+def validate_detectors(doc, *, source="detectors"):
+    """Check a detectors document against the schema; raise DataFileError if invalid.
+
+    Every message is one line naming ``source``, the field (with the detector index)
+    and the fix.
+
+    Examples
+    --------
+    >>> validate_detectors({"format": "seqmine-detectors", "version": 9})
+    Traceback (most recent call last):
+    ...
+    seqmine.errors.DataFileError: detectors: version 9 is newer than this seqmine reads (version 1); upgrade seqmine or export the detectors again.
+    """
+    def fail(field, msg):
+        raise DataFileError(f"{source}: {field}: {msg}" if field else f"{source}: {msg}")
+
+    if not isinstance(doc, dict):
+        fail("", "the file must hold a JSON object; export it again with 'seqmine detectors'.")
+    if doc.get("format") != DETECTORS_FORMAT:
+        fail("format", f"is {doc.get('format')!r}, expected {DETECTORS_FORMAT!r}; this is not "
+                       f"a seqmine detectors file.")
+    version = doc.get("version")
+    if not _is_int(version) or version < 1:
+        fail("version", f"{version!r} is not a detectors file version; expected "
+                        f"{DETECTORS_VERSION}.")
+    if version > DETECTORS_VERSION:
+        fail("", f"version {version} is newer than this seqmine reads (version "
+                 f"{DETECTORS_VERSION}); upgrade seqmine or export the detectors again.")
+    _unknown_keys(doc, _TOP_KEYS, "", fail)
+    for key in ("encoding", "matching", "detectors"):
+        if key not in doc:
+            fail(key, "is missing; export the detectors again with 'seqmine detectors'.")
+    labels, implicit = _validate_encoding(doc["encoding"], fail)
+    m = doc["matching"]
+    if not isinstance(m, dict):
+        fail("matching", "must be an object with max_gap, max_window and skip_pauses.")
+    _unknown_keys(m, _MATCHING_KEYS, "matching", fail)
+    if m.get("max_gap") is not None and (not _is_int(m["max_gap"]) or m["max_gap"] < 0):
+        fail("matching.max_gap", f"{m['max_gap']!r} must be an integer >= 0 or null (no limit).")
+    if m.get("max_window") is not None and (not _is_int(m["max_window"]) or m["max_window"] < 1):
+        fail("matching.max_window", f"{m['max_window']!r} must be an integer >= 1 or null (no limit).")
+    if not isinstance(m.get("skip_pauses", False), bool):
+        fail("matching.skip_pauses", f"{m['skip_pauses']!r} must be true or false.")
+    if "vocabulary" in doc and (not isinstance(doc["vocabulary"], list)
+                                or not all(isinstance(v, str) for v in doc["vocabulary"])):
+        fail("vocabulary", "must be a list of action symbols (strings).")
+    for key in ("groups", "selection"):
+        if key in doc and not isinstance(doc[key], dict):
+            fail(key, "must be an object.")
+    dets = doc["detectors"]
+    if not isinstance(dets, list):
+        fail("detectors", "must be a list of detector objects.")
+    pause_ok = {PAUSE_PREFIX + lab for lab in labels if lab not in implicit}
+    seen = {}
+    for k, d in enumerate(dets):
+        _validate_detector(d, k, pause_ok, labels, seen, fail)
+    return doc
+
+
+# ====================================================================== internals
+def _validate_encoding(enc, fail):
+    if not isinstance(enc, dict):
+        fail("encoding", "must be an object (the encoding of the analysed sequences).")
+    tpl = enc.get("template", "{action}")
+    if not isinstance(tpl, str):
+        fail("encoding.template", f"{tpl!r} must be a string such as '{{action}}'.")
+    try:
+        parts = [(f, spec, conv) for _l, f, spec, conv in string.Formatter().parse(tpl)
+                 if f is not None]
+    except ValueError:
+        fail("encoding.template", f"{tpl!r} is malformed; use fields like '{{action}}:{{target}}'.")
+    fields = [f for f, _s, _c in parts]
+    if any(spec or conv for _f, spec, conv in parts):
+        fail("encoding.template", f"{tpl!r} uses a format spec or conversion; write plain "
+                                  f"fields such as '{{action}}:{{target}}'.")
+    bad = [f for f in fields if f not in _TEMPLATE_FIELDS]
+    if bad or "action" not in fields:
+        fail("encoding.template", f"{tpl!r} must use {{action}} and only the fields "
+                                  f"{', '.join('{' + f + '}' for f in _TEMPLATE_FIELDS)}.")
+    mapping = enc.get("mapping") or {}
+    if not isinstance(mapping, dict) or not all(
+            isinstance(k, str) and isinstance(v, str) for k, v in mapping.items()):
+        fail("encoding.mapping", "must be an object mapping action names to symbols "
+                                 "(\"\" drops the action).")
+    if not isinstance(enc.get("collapse_repeats", False), bool):
+        fail("encoding.collapse_repeats", f"{enc['collapse_repeats']!r} must be true or false.")
+    unit = enc.get("unit", "learner")
+    if unit not in ("learner", "session"):
+        fail("encoding.unit", f"{unit!r} must be 'learner' or 'session'.")
+    gap = enc.get("session_gap")
+    if gap is not None and not (_is_num(gap) and gap > 0):
+        fail("encoding.session_gap", f"{gap!r} must be a number of seconds > 0 or null.")
+    pause = enc.get("pause", {"strategy": "none"})
+    if not isinstance(pause, dict):
+        fail("encoding.pause", "must be an object with strategy, edges, labels and implicit.")
+    strategy = pause.get("strategy", "none")
+    if strategy not in _PAUSE_STRATEGIES:
+        fail("encoding.pause.strategy", f"{strategy!r} must be one of {', '.join(_PAUSE_STRATEGIES)}.")
+    edges = pause.get("edges", [])
+    labels = pause.get("labels", [])
+    implicit = pause.get("implicit", [])
+    if not isinstance(edges, list) or not all(_is_num(e) for e in edges):
+        fail("encoding.pause.edges", "must be a list of finite numbers of seconds.")
+    # quantile edges of tied gaps can be equal (the bin between them stays empty);
+    # hand-set (fixed) edges must be strictly ascending, as the Encoder requires
+    if any(b < a or (b == a and strategy == "fixed") for a, b in zip(edges, edges[1:])):
+        fail("encoding.pause.edges", f"{edges} must be strictly ascending.")
+    if not isinstance(labels, list) or not all(isinstance(x, str) and x for x in labels):
+        fail("encoding.pause.labels", "must be a list of non-empty bin names.")
+    if len(set(labels)) != len(labels):
+        fail("encoding.pause.labels", f"{labels} has a repeated name; bin names must differ.")
+    if strategy == "none":
+        if labels:
+            fail("encoding.pause.labels", "must be empty when the pause strategy is 'none'.")
+    elif len(labels) != len(edges) + 1:
+        fail("encoding.pause.labels", f"has {len(labels)} names for {len(edges)} edges; "
+                                      f"n edges need n + 1 bin names.")
+    if not isinstance(implicit, list) or any(x not in labels for x in implicit):
+        fail("encoding.pause.implicit", f"{implicit!r} must list bin names from labels {labels}.")
+    return labels, implicit
+
+
+def _validate_detector(d, k, pause_ok, labels, seen, fail):
+    at = f"detectors[{k}]"
+    if not isinstance(d, dict):
+        fail(at, "must be an object with id, tokens, direction, hint and priority.")
+    _unknown_keys(d, _DETECTOR_KEYS, at, fail)
+    for key in ("id", "tokens", "direction"):
+        if key not in d:
+            fail(f"{at}.{key}", "is missing; every detector needs id, tokens and direction.")
+    did = d["id"]
+    if not isinstance(did, str) or not did.strip():
+        fail(f"{at}.id", f"{did!r} must be a non-empty string.")
+    if did in seen:
+        fail(f"{at}.id", f"{did!r} is also the id of detectors[{seen[did]}]; ids must be unique.")
+    seen[did] = k
+    toks = d["tokens"]
+    if not isinstance(toks, list) or not toks:
+        fail(f"{at}.tokens", "must be a non-empty list of token names.")
+    for j, t in enumerate(toks):
+        if not isinstance(t, str) or not t:
+            fail(f"{at}.tokens[{j}]", f"{t!r} must be a non-empty string.")
+        if t.startswith(PAUSE_PREFIX) and t not in pause_ok:
+            lab = t[len(PAUSE_PREFIX):]
+            why = ("is an implicit pause bin (never emitted as a token)" if lab in labels
+                   else f"is not a pause bin of this encoding (bins: {', '.join(labels) or 'none'})")
+            fail(f"{at}.tokens[{j}]", f"{t!r} {why}; remove it or fix encoding.pause.")
+    direction = d["direction"]
+    if direction not in ("discourage", "encourage"):
+        fail(f"{at}.direction", f"{direction!r} must be 'discourage' or 'encourage'.")
+    if "hint" in d and not isinstance(d["hint"], str):
+        fail(f"{at}.hint", "must be a string (the hint text shown to learners).")
+    if "notes" in d and not isinstance(d["notes"], str):
+        fail(f"{at}.notes", "must be a string.")
+    if "favours" in d and d["favours"] is not None and not isinstance(d["favours"], str):
+        fail(f"{at}.favours", "must be a group name or null.")
+    pr = d.get("priority", 1)
+    if not _is_int(pr) or pr < 0:
+        fail(f"{at}.priority", f"{pr!r} must be an integer >= 0 (smaller = delivered first).")
+    if not isinstance(d.get("enabled", True), bool):
+        fail(f"{at}.enabled", f"{d['enabled']!r} must be true or false.")
+    if "evidence" in d and d["evidence"] is not None and not isinstance(d["evidence"], dict):
+        fail(f"{at}.evidence", "must be an object.")
+    ab = d.get("absence")
+    if ab is not None:
+        if not isinstance(ab, dict) or set(ab) - {"after_events", "after_seconds"}:
+            fail(f"{at}.absence", "must be null or an object with after_events and after_seconds.")
+        ev, sec = ab.get("after_events"), ab.get("after_seconds")
+        if ev is not None and (not _is_int(ev) or ev < 1):
+            fail(f"{at}.absence.after_events", f"{ev!r} must be an integer >= 1 or null.")
+        if sec is not None and not (_is_num(sec) and sec > 0):
+            fail(f"{at}.absence.after_seconds", f"{sec!r} must be a number > 0 or null.")
+        if direction == "discourage" and (ev is not None or sec is not None):
+            fail(f"{at}.absence", "absence rules apply to encourage detectors only; set it "
+                                  "to null or change the direction.")
+
+
+def _unknown_keys(obj, allowed, at, fail):
+    for key in obj:
+        if key not in allowed:
+            close = difflib.get_close_matches(str(key), sorted(allowed), n=1, cutoff=0.6)
+            hint = f"did you mean {close[0]!r}?" if close else f"allowed: {', '.join(sorted(allowed))}."
+            fail(f"{at}.{key}" if at else str(key), f"unknown field; {hint}")
+
+
+def _split_pattern(text, known=None):
+    """Tokens of a pattern written as ``"a > b"``.
+
+    Token names may themselves contain ``>`` (e.g. ``menu>open``); the separator is
+    ``" > "`` with its spaces. When ``known`` token names are given, a name that
+    contains the separator itself is recognised too.
+    """
+    if isinstance(text, (list, tuple)):
+        return [str(t) for t in text]
+    pieces = str(text).split(PATTERN_SEPARATOR)
+    if known:
+        seg = _segment(pieces, known)
+        if seg is not None:
+            return seg
+    parts = [p.strip() for p in pieces]
+    if not parts or any(p == "" for p in parts):
+        raise ParameterError(f"Pattern {text!r} has an empty token; patterns are token names "
+                             f"joined by {PATTERN_SEPARATOR!r}.")
+    return parts
+
+
+def _segment(pieces, known):
+    """Split ``pieces`` (the text cut at every separator) into known tokens, or None."""
+    n = len(pieces)
+    best = [None] * (n + 1)  # best[i]: a segmentation of pieces[i:]
+    best[n] = []
+    for i in range(n - 1, -1, -1):
+        for j in range(i + 1, n + 1):
+            tok = PATTERN_SEPARATOR.join(pieces[i:j])
+            if tok in known and best[j] is not None:
+                best[i] = [tok] + best[j]
+                break
+    return best[0]
+
+
+def _is_subsequence(short, long):
+    if len(short) > len(long):
+        return False
+    it = iter(long)
+    return all(any(x == y for y in it) for x in short)
+
+
+def _length_mask(lens, lengths):
+    if isinstance(lengths, numbers.Integral):
+        return lens == int(lengths)
+    if isinstance(lengths, tuple) and len(lengths) == 2:
+        lo, hi = lengths
+        lo = 1 if lo is None else lo
+        hi = np.inf if hi is None else hi
+        return (lens >= lo) & (lens <= hi)
+    try:
+        allowed = {int(x) for x in lengths}
+    except (TypeError, ValueError):
+        raise ParameterError(f"The 'lengths' parameter of select_detectors must be an int, a "
+                             f"(min, max) tuple or a list of ints. Got {lengths!r} instead.") from None
+    return np.isin(lens, sorted(allowed))
+
+
+def _readable(token):
+    if token.startswith(PAUSE_PREFIX):
+        return f"{token[len(PAUSE_PREFIX):].replace('_', ' ')} pause"
+    return token
+
+
+def _missing(v):
+    return v is None or (isinstance(v, float) and math.isnan(v))
+
+
+def _num(v):
+    """A finite float or None (JSON has no NaN/inf)."""
+    if v is None or isinstance(v, bool):
+        return None
+    try:
+        f = float(v)
+    except (TypeError, ValueError):
+        return None
+    return f if math.isfinite(f) else None
+
+
+def _opt_int(v):
+    if v is None or (isinstance(v, float) and math.isnan(v)):
+        return None
+    return int(v)
+
+
+def _is_int(v):
+    return isinstance(v, numbers.Integral) and not isinstance(v, bool)
+
+
+def _is_num(v):
+    return (isinstance(v, numbers.Real) and not isinstance(v, bool)
+            and math.isfinite(float(v)))
+
+
+def _plain(obj):
+    """Convert numpy scalars/arrays inside ``obj`` to plain JSON types."""
+    if isinstance(obj, dict):
+        return {str(k): _plain(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_plain(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return [_plain(v) for v in obj.tolist()]
+    if isinstance(obj, np.bool_):
+        return bool(obj)
+    if isinstance(obj, np.integer):
+        return int(obj)
+    if isinstance(obj, (float, np.floating)):
+        return _num(obj)
+    return obj
+
+
+def _reject_constant(name):
+    raise ValueError(f"the JSON holds {name}, which is not plain JSON")

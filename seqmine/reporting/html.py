@@ -1,0 +1,402 @@
+"""HTML building blocks of the report (private; see :mod:`seqmine.reporting.render`).
+
+Page constants and style, escaping, summary look-ups, tables, token chips and number
+formatting. Every value that comes from the data passes through :func:`esc`
+(``html.escape`` with ``quote=True`` after removing control characters); numbers are
+formatted here, never taken as text from the files.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from html import escape
+
+import numpy as np
+
+from . import plots as _plots
+
+__all__ = ["esc", "lookup", "config_of", "counts_of", "group_names_of", "top_patterns",
+           "FigureIds", "PAGE_TITLE", "CSS", "CONFIG_SECTIONS"]
+
+PAGE_TITLE = "seqmine report: behaviour patterns and outcomes"
+_SEP = " > "
+_CONTROL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f]")
+_CORRECTIONS = {
+    "bh": "Benjamini–Hochberg false discovery rate",
+    "fdr_bh": "Benjamini–Hochberg false discovery rate",
+    "holm": "Holm step-down family-wise error control",
+    "westfall-young": "Westfall–Young permutation (min-P) family-wise error control",
+    "westfall_young": "Westfall–Young permutation (min-P) family-wise error control",
+}
+
+CSS = """\
+:root { --ink:#262626; --muted:#5f5f5f; --line:#dedede; --soft:#f5f5f3; --accent:#3f6e8c;
+  --warm:#8c5a2b; }
+* { box-sizing: border-box; }
+body { margin:0; background:#fbfbfa; color:var(--ink);
+  font: 15px/1.55 system-ui, -apple-system, "Segoe UI", Roboto, "Noto Sans", "Liberation Sans",
+  "DejaVu Sans", Arial, sans-serif; }
+main { max-width: 1080px; margin: 0 auto; padding: 24px 28px 8px; }
+footer { max-width:1080px; margin:0 auto; padding: 12px 28px 32px; color:var(--muted);
+  font-size:13px; }
+h1 { font-size: 26px; margin: 8px 0 4px; font-weight: 650; }
+h2 { font-size: 20px; margin: 40px 0 8px; padding-top: 12px; border-top: 2px solid var(--line);
+  font-weight: 620; }
+h3 { font-size: 16px; margin: 18px 0 6px; font-weight: 620; }
+p { margin: 6px 0 10px; max-width: 78ch; }
+.lead { color: var(--muted); font-size: 16px; }
+nav.toc { background: var(--soft); border:1px solid var(--line); border-radius:6px;
+  padding:8px 14px; margin:14px 0; }
+nav.toc ol { margin:4px 0; padding-left: 20px; columns: 2; }
+nav.toc a { color: var(--accent); text-decoration: none; }
+.note { color: var(--muted); font-style: italic; }
+.warn { border-left: 4px solid var(--warm); background:#fbf4ec; padding:6px 10px; }
+.keybox { border:1px solid var(--line); background:#fff; border-radius:6px; padding:8px 14px; }
+table { border-collapse: collapse; margin: 8px 0 14px; font-size: 14px; background:#fff; }
+th, td { border-bottom: 1px solid var(--line); padding: 4px 10px; text-align: left;
+  vertical-align: top; }
+th { background: var(--soft); font-weight: 600; }
+td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; }
+.grid2 { display:grid; grid-template-columns: repeat(auto-fit, minmax(440px, 1fr));
+  gap: 4px 24px; align-items: start; }
+.grid1 .fig { max-width: 760px; }
+.grid2 table, .grid1 table { width: 100%; max-width: 760px; font-size: 13px; }
+.grid2 td:first-child, .grid1 td:first-child { width: 34%; overflow-wrap: anywhere; }
+td .pair { white-space: nowrap; }
+.fig { max-width: 100%; height: auto; display: block; margin: 6px 0 12px; }
+.tok { display:inline-block; border:1px solid #c9c9c9; background:#fff; border-radius:4px;
+  padding:0 6px; margin:1px 0; font: 13px/1.6 ui-monospace, "DejaVu Sans Mono",
+  "Liberation Mono", monospace; overflow-wrap:anywhere; }
+.tok.pause { border-style: dashed; color: var(--muted); background: var(--soft); }
+.arrow { color: var(--muted); padding: 0 4px; }
+article.card { background:#fff; border:1px solid var(--line); border-radius:6px;
+  padding: 10px 16px 12px; margin: 14px 0; }
+article.card h3 { margin-top: 4px; }
+.rank { color: var(--muted); font-weight: 500; margin-right: 6px; }
+.bars { display:grid; grid-template-columns: minmax(90px, max-content) 1fr 4.5em; gap:3px 10px;
+  align-items:center; max-width: 620px; margin: 6px 0; font-size: 14px; }
+.bar { background: var(--soft); height: 12px; border-radius: 2px; overflow: hidden; }
+.bar span { display:block; height:100%; }
+.stats { display:flex; flex-wrap:wrap; gap: 4px 18px; margin: 6px 0; font-size:14px; }
+.stats span b { font-weight: 600; }
+.stats.evidence { font-size: 13px; color: var(--muted); }
+.badge { display:inline-block; border-radius: 10px; padding: 0 9px; font-size: 13px;
+  font-weight: 600; border:1px solid; }
+.badge.enc { color:#2f5f86; border-color:#2f5f86; background:#eef3f8; }
+.badge.dis { color:#8c5a2b; border-color:#8c5a2b; background:#f9f1e8; }
+.badge.none { color:var(--muted); border-color:#bdbdbd; background:var(--soft); }
+.excerpt { border-top: 1px dashed var(--line); padding-top: 6px; margin-top: 8px; }
+.excerpt .who { font-size: 13px; color: var(--muted); }
+.flow { display:flex; flex-wrap: wrap; gap: 4px 2px; align-items: flex-start; margin: 4px 0; }
+.ev { display:flex; flex-direction: column; align-items:center; }
+.ev small { color: var(--muted); font-size: 11px; }
+.ev.hit .tok { background:#dfe9f2; border:2px solid #2f5f86; font-weight: 700; }
+.gap { color: var(--muted); font-size: 12px; padding: 2px 3px; }
+blockquote.hint { margin: 6px 0; padding: 6px 12px; border-left: 4px solid var(--accent);
+  background: var(--soft); max-width: 78ch; }
+details { margin: 8px 0; }
+pre { background: var(--soft); border:1px solid var(--line); padding: 8px 10px;
+  overflow-x: auto; font-size: 12.5px; max-height: 420px; }
+.swatch { display:inline-block; width: 11px; height: 11px; border-radius: 2px;
+  margin-right: 6px; vertical-align: -1px; }
+ul.cautions li { margin-bottom: 6px; max-width: 78ch; }
+@media print { h2 { break-before: auto; } article.card { break-inside: avoid; } }
+"""
+
+
+def esc(value, max_chars=400):
+    """HTML-escaped text of any value, control characters removed, length bounded.
+
+    Examples
+    --------
+    >>> esc('<script>alert("x")</script>')
+    '&lt;script&gt;alert(&quot;x&quot;)&lt;/script&gt;'
+    """
+    s = _CONTROL.sub("\ufffd", str(value))
+    if len(s) > max_chars:
+        s = s[: max_chars - 1] + "…"
+    return escape(s, quote=True)
+
+
+#: Sections of the configuration searched (in order) by :func:`lookup`.
+CONFIG_SECTIONS = ("contrast", "mine", "validate", "phases", "encode", "grouping", "privacy",
+                   "report")
+
+
+def lookup(summary, key):
+    """Value of ``key`` in the summary: ``method``, the top level, then the configuration.
+
+    The configuration is searched at its top level, then in the sections named in
+    :data:`CONFIG_SECTIONS`, in that order; ``None`` when absent.
+
+    Examples
+    --------
+    >>> lookup({"config": {"contrast": {"alpha": 0.1}}}, "alpha")
+    0.1
+    >>> lookup({"method": {"alpha": 0.01}, "config": {"alpha": 0.1}}, "alpha")
+    0.01
+    """
+    config = config_of(summary)
+    places = [summary.get("method"), summary, config]
+    if isinstance(config, dict):
+        places += [config.get(name) for name in CONFIG_SECTIONS]
+    for place in places:
+        if isinstance(place, dict) and key in place:
+            return place[key]
+    return None
+
+
+_COUNT_KEYS = ("rows_in", "rows_kept", "rows_rejected", "learners", "learners_per_group",
+               "learners_without_group", "sequences", "sequences_per_group",
+               "patterns_mined", "patterns_significant", "rejects_by_reason")
+
+
+def config_of(summary):
+    """The effective configuration of a summary (``configuration`` or ``config``)."""
+    for key in ("configuration", "config"):
+        if isinstance(summary.get(key), dict):
+            return summary[key]
+    return None
+
+
+def counts_of(summary):
+    """Counts of a summary: the ``counts`` object, or the same keys at the top level."""
+    flat = {k: summary[k] for k in _COUNT_KEYS if k in summary}
+    nested = summary.get("counts")
+    return {**flat, **(nested if isinstance(nested, dict) else {})}
+
+
+def group_names_of(summary):
+    """Group names listed in a summary (``groups`` or ``group_names``), else []."""
+    for key in ("groups", "group_names"):
+        v = summary.get(key)
+        if isinstance(v, list) and v:
+            return [str(g) for g in v]
+    return []
+
+
+class FigureIds:
+    """Deterministic unique ids for the figures of one page."""
+
+    def __init__(self):
+        self.n = 0
+
+    def __call__(self):
+        self.n += 1
+        return f"fig{self.n}"
+
+
+_SECTIONS = [("overview", "Data overview"), ("patterns", "Patterns that differ between groups"),
+             ("transitions", "Which action follows which"), ("phases", "Phases of work"),
+             ("early-prediction", "How early can outcomes be recognised?"),
+             ("detectors", "Detectors for hints"), ("method", "Method"),
+             ("cautions", "Cautions")]
+
+
+# --------------------------------------------------------------------------- helpers
+
+
+def _h2(sid):
+    return f'<h2 id="{sid}">{dict(_SECTIONS)[sid]}</h2>'
+
+
+def _section(sid, parts):
+    return f'<section class="sec-{sid}">\n' + "\n".join(p for p in parts if p) + "\n</section>"
+
+
+def _missing(reason):
+    return f'<p class="note">Not produced in this run ({esc(reason)}).</p>'
+
+
+def _table(heads, rows, *, raw_cells=False, num_cols=()):
+    """HTML table. Cells are HTML already (callers escape); with raw_cells they
+    include their own <td>."""
+    th = "".join(f'<th{" class=num" if i in num_cols else ""}>{esc(h)}</th>'
+                 for i, h in enumerate(heads))
+    body = []
+    for r in rows:
+        if raw_cells:
+            cells = "".join(c if c.startswith("<td") else f"<td>{c}</td>" for c in r)
+        else:
+            cells = "".join(f'<td{" class=num" if i in num_cols else ""}>{c}</td>'
+                            for i, c in enumerate(r))
+        body.append(f"<tr>{cells}</tr>")
+    return f"<table><thead><tr>{th}</tr></thead><tbody>{''.join(body)}</tbody></table>"
+
+
+def _chip(tok):
+    tok = str(tok)
+    cls = "tok pause" if tok.startswith("pause:") else "tok"
+    return f'<span class="{cls}">{esc(tok, max_chars=120)}</span>'
+
+
+def _chips(tokens):
+    return '<span class="arrow">→</span>'.join(_chip(t) for t in tokens)
+
+
+def _split(pattern):
+    return [t.strip() for t in str(pattern).split(_SEP)]
+
+
+def _pattern_label(pattern):
+    return " → ".join(_split(pattern))
+
+
+def _group_label(g, groups):
+    g = str(g)
+    if g in groups:
+        color = _plots.PALETTE[groups.index(g) % len(_plots.PALETTE)]
+        return f'<span class="swatch" style="background:{color}"></span><b>{esc(g)}</b>'
+    return f"<b>{esc(g)}</b>"
+
+
+def _ordered(values, groups):
+    vals = [str(v) for v in values]
+    first = [g for g in ["pooled", "all", *groups] if g in vals]
+    return first + sorted(v for v in dict.fromkeys(vals) if v not in first)
+
+
+def _significant(df, alpha):
+    if "q_value" not in df.columns:
+        return None
+    return df[df["q_value"] <= alpha]
+
+
+def top_patterns(df, alpha, n):
+    keys = df.assign(
+        _q=df["q_value"] if "q_value" in df.columns else np.nan,
+        _p=df["p_value"] if "p_value" in df.columns else np.nan,
+        _e=-df["risk_difference"].abs() if "risk_difference" in df.columns else 0.0,
+        _name=df["pattern"].astype(str))
+    keys = keys.sort_values(["_q", "_p", "_e", "_name"], kind="mergesort", na_position="last")
+    if "q_value" in df.columns:
+        sig = keys[keys["_q"] <= alpha]
+        if len(sig):
+            shown = sig.head(n)
+            return shown, (f"{len(sig)} patterns have q ≤ {alpha:g}; the {len(shown)} with "
+                           "the smallest q are shown, most reliable first.")
+        return keys.head(n), (f"No pattern reached q ≤ {alpha:g}. The {min(n, len(keys))} "
+                              "with the smallest q are shown for orientation only.")
+    return keys.head(n), ("patterns.csv has no q_value column; patterns are ordered by p "
+                          "value without correction for multiple testing.")
+
+
+def _matrix(tm, n):
+    try:
+        a = np.asarray(tm, dtype=float)
+    except (TypeError, ValueError):
+        return None
+    return a if a.shape == (n, n) else None
+
+
+def _five_numbers(obj):
+    if not isinstance(obj, dict) or not obj:
+        return {}
+    out = {}
+    for g, v in obj.items():
+        if isinstance(v, dict) and all(_is_num(v.get(k)) for k in ("min", "q1", "median", "q3",
+                                                                     "max")):
+            out[str(g)] = {k: float(v[k]) for k in ("min", "q1", "median", "q3", "max")}
+            if _is_num(v.get("n")):
+                out[str(g)]["n"] = v["n"]
+        elif isinstance(v, list):
+            x = np.asarray([_num(t) for t in v], dtype=float)
+            x = x[np.isfinite(x)]
+            if x.size:
+                q = np.quantile(x, [0, 0.25, 0.5, 0.75, 1])
+                out[str(g)] = dict(zip(("min", "q1", "median", "q3", "max"), map(float, q)),
+                                   n=int(x.size))
+    return out
+
+
+def _describe_grouping(v):
+    if isinstance(v, dict):
+        rule = v.get("rule")
+        rest = [f"{esc(k)} {_fmt(x, 3) if _is_num(x) else esc(x)}"
+                for k, x in v.items() if k != "rule"]
+        text = f"rule: {esc(rule)}" if rule is not None else ""
+        return "; ".join([t for t in [text, ", ".join(rest)] if t]) or "–"
+    return esc(v)
+
+
+def _metric_head(c):
+    if c.startswith("recall_"):
+        return f"recall {c[len('recall_'):]}"
+    return {"roc_auc": "ROC AUC", "balanced_accuracy": "balanced accuracy"}.get(c, c)
+
+
+def _plural(n, word):
+    return f"{_int(n)} {word}" + ("" if n == 1 else "s")
+
+
+def _true(v):
+    return v is True or str(v).strip().lower() in ("true", "1", "yes")
+
+
+def _str_list(v, n):
+    if isinstance(v, list) and len(v) == n:
+        return [str(x) for x in v]
+    return None
+
+
+def _is_num(v):
+    if isinstance(v, bool):
+        return False
+    try:
+        return math.isfinite(float(v))
+    except (TypeError, ValueError):
+        return False
+
+
+def _num(v, default=math.nan):
+    if isinstance(v, bool):
+        return default
+    try:
+        return float(v)
+    except (TypeError, ValueError):
+        return default
+
+
+def _int(v):
+    x = _num(v)
+    return f"{int(round(x)):,}" if math.isfinite(x) else "–"
+
+
+def _fmt(v, digits):
+    x = _num(v)
+    if not math.isfinite(x):
+        return "–" if not (isinstance(x, float) and math.isinf(x)) else ("∞" if x > 0 else "−∞")
+    return f"{x:,.{digits}f}"
+
+
+def _fmt_p(v):
+    x = _num(v)
+    if not math.isfinite(x):
+        return "–"
+    if x < 0.001:
+        return "&lt; 0.001"
+    return f"{x:.3f}"
+
+
+def _pct(v):
+    x = _num(v)
+    return f"{100 * x:.0f}%" if math.isfinite(x) else "–"
+
+
+def _duration(seconds):
+    s = _num(seconds)
+    if not math.isfinite(s):
+        return "–"
+    if s < 60:
+        return f"{s:.0f} s" if s >= 10 or s == int(s) else f"{s:.1f} s"
+    if s < 3600:
+        return f"{s / 60:.1f} min"
+    return f"{s / 3600:.1f} h"
+
+
+def _clock(seconds):
+    s = max(0, int(round(seconds)))
+    h, rem = divmod(s, 3600)
+    m, sec = divmod(rem, 60)
+    return f"+{h}:{m:02d}:{sec:02d}" if h else f"+{m}:{sec:02d}"

@@ -1,0 +1,326 @@
+"""Lag sequential analysis: lag-1 transitions per group, adjusted residuals, Yule's Q."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+from .._util.checks import check_choice
+from ..errors import ParameterError
+from .effects import fisher_exact_many
+from .multitest import adjust_pvalues
+
+__all__ = [
+    "transitions",
+    "transition_counts",
+    "adjusted_residuals",
+    "quasi_independence_expected",
+    "yules_q",
+    "TRANSITION_COLUMNS",
+    "MAX_TRANSITION_CELLS",
+]
+
+#: Largest number of cells (groups x vocabulary x vocabulary) of the dense transition
+#: tables; about 2 GB of working memory. Larger vocabularies stop with a message.
+MAX_TRANSITION_CELLS = 2**25
+
+#: Columns of the table returned by :func:`transitions` (``transitions.csv``).
+TRANSITION_COLUMNS = [
+    "group", "from", "to", "count", "from_total", "to_total", "total", "expected",
+    "probability", "adjusted_residual", "yules_q", "p_difference", "q_difference",
+]
+
+
+def transitions(db, *, exclude_pauses=False, structural_zeros="auto", correction="bh"):
+    """Lag-1 transition table per group with adjusted residuals and a group test.
+
+    Parameters
+    ----------
+    db : SequenceDB
+    exclude_pauses : bool
+        Drop pause tokens first, so the action before a pause is followed by the
+        action after it. Default: count over the full token stream, pauses included.
+    structural_zeros : {"auto", "none"} or array_like of bool, shape (n_vocab, n_vocab)
+        Cells that cannot occur by construction. ``"auto"``: a pause never follows a
+        pause (pauses only sit between events), and when the encoding collapsed
+        repeats (``db.encoding["collapse_repeats"]``) an action never follows itself;
+        a cell actually observed is never treated as structural. Expected counts then
+        come from iterative proportional fitting (quasi-independence) instead of
+        ``row * column / total``. ``"none"``: no structural zeros.
+    correction : {"bh", "holm"}
+        Correction of ``p_difference`` over all listed transitions.
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per (group, from, to) for every transition observed in at least one
+        group, groups in ``db.group_names`` order (sequences without a group are left
+        out; a database without groups gives one group named ``"all"``). Columns
+        (:data:`TRANSITION_COLUMNS`):
+
+        ``count`` x, transitions a -> b in the group; ``from_total`` r, transitions
+        leaving a; ``to_total`` c, transitions entering b; ``total`` N, all lag-1
+        transitions of the group; ``expected`` e = r c / N (or the
+        quasi-independence fit); ``probability`` x / r, the transition probability;
+        ``adjusted_residual`` z = (x - e) / sqrt(e (1 - r/N) (1 - c/N)) (Allison &
+        Liker 1982; Bakeman & Gottman 1997), |z| > 1.96 marks a transition more
+        (or less) frequent than chance at about the 5% level, uncorrected;
+        ``yules_q`` (AD - BC) / (AD + BC) from the 2x2 collapse A = x, B = r - x,
+        C = c - x, D = N - r - c + x; ``p_difference`` test that the share of a's
+        transitions going to b is the same in every group (Fisher exact on the
+        groups x (to b, to other) table for two groups, Pearson chi-square
+        otherwise; NaN with one group); ``q_difference`` its adjustment; both are
+        repeated on each group's row of the transition.
+
+    Notes
+    -----
+    With structural zeros the adjusted-residual formula above is kept with the
+    fitted expected counts; it is then an approximation (common practice).
+    Transitions are within sequences only; the last token of a sequence starts none.
+
+    References
+    ----------
+    Allison, P. D. & Liker, J. K. (1982). Analyzing sequential categorical data on
+    dyadic interaction. Psychological Bulletin 91(2), 393-403. Bakeman, R. &
+    Gottman, J. M. (1997). Observing Interaction, 2nd ed. Haberman, S. J. (1973),
+    The analysis of residuals in cross-classified tables. Biometrics 29, 205-220.
+
+    Examples
+    --------
+    >>> from seqmine.encoding.sequences import SequenceDB
+    >>> db = SequenceDB.from_lists([["a", "b", "a", "b"], ["b", "a", "a"]] * 3,
+    ...                            groups=["strong", "weak"] * 3)
+    >>> t = transitions(db)
+    >>> t[["group", "from", "to", "count", "probability"]].head(3)
+        group from to  count  probability
+    0  strong    a  a      0          0.0
+    1  strong    a  b      6          1.0
+    2  strong    b  a      3          1.0
+    """
+    _check_size(db)
+    structural = _structural_mask(db, structural_zeros)
+    correction = check_choice(correction, "correction", ("bh", "holm"), "transitions")
+    counts, names = transition_counts(db, exclude_pauses=exclude_pauses)
+    n_groups, v, _ = counts.shape
+    observed = counts.sum(axis=0) > 0
+    allowed = ~structural | observed
+    pairs = np.argwhere(observed)
+    # rows: by vocabulary id of 'from', then of 'to'
+    frames = []
+    x_all = counts[:, pairs[:, 0], pairs[:, 1]] if len(pairs) else np.zeros((n_groups, 0))
+    r_all = counts.sum(axis=2)
+    p_diff = _group_difference(x_all, r_all[:, pairs[:, 0]] if len(pairs) else x_all)
+    q_diff = adjust_pvalues(p_diff, correction)
+    vocab = np.array(db.vocab, dtype=object)
+    for g in range(n_groups):
+        table = counts[g].astype(np.float64)
+        r = table.sum(axis=1)
+        c = table.sum(axis=0)
+        n = table.sum()
+        if np.all(allowed):
+            expected = np.outer(r, c) / n if n > 0 else np.zeros_like(table)
+        else:
+            expected = quasi_independence_expected(table, allowed)
+        z = adjusted_residuals(table, expected)
+        a_, b_ = pairs[:, 0], pairs[:, 1]
+        x = table[a_, b_]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            prob = np.where(r[a_] > 0, x / r[a_], np.nan)
+        frames.append(pd.DataFrame({
+            "group": names[g], "from": vocab[a_], "to": vocab[b_],
+            "count": x.astype(np.int64), "from_total": r[a_].astype(np.int64),
+            "to_total": c[b_].astype(np.int64), "total": np.full(len(a_), int(n)),
+            "expected": expected[a_, b_], "probability": prob,
+            "adjusted_residual": z[a_, b_],
+            "yules_q": yules_q(x, r[a_] - x, c[b_] - x, n - r[a_] - c[b_] + x),
+            "p_difference": p_diff, "q_difference": q_diff,
+        }))
+    if not frames:
+        return pd.DataFrame({c: [] for c in TRANSITION_COLUMNS})
+    return pd.concat(frames, ignore_index=True)[TRANSITION_COLUMNS]
+
+
+def transition_counts(db, *, exclude_pauses=False):
+    """Lag-1 transition counts per group.
+
+    Parameters
+    ----------
+    db : SequenceDB
+    exclude_pauses : bool
+        Remove pause tokens before counting.
+
+    Returns
+    -------
+    counts : ndarray of int64, shape (n_groups, n_vocab, n_vocab)
+        ``counts[g, a, b]`` = number of times token ``b`` directly follows token
+        ``a`` within a sequence of group ``g``.
+    names : list of str
+        Group names (``["all"]`` when the database has no groups).
+
+    Examples
+    --------
+    >>> from seqmine.encoding.sequences import SequenceDB
+    >>> db = SequenceDB.from_lists([["a", "b", "a"], ["b", "b"]])
+    >>> counts, names = transition_counts(db)
+    >>> names, counts[0].tolist()
+    (['all'], [[0, 1], [1, 1]])
+    """
+    _check_size(db)
+    tokens = np.asarray(db.tokens, dtype=np.int64)
+    seq = db.seq_index
+    if exclude_pauses:
+        keep = ~db.is_pause[tokens]
+        tokens, seq = tokens[keep], seq[keep]
+    v = len(db.vocab)
+    if db.n_groups == 0 or np.all(db.groups < 0):
+        seq_group = np.zeros(db.n_sequences, dtype=np.int64)
+        names = ["all"]
+    else:
+        seq_group = db.groups
+        names = list(db.group_names)
+    same = seq[1:] == seq[:-1]
+    frm, to = tokens[:-1][same], tokens[1:][same]
+    grp = seq_group[seq[:-1][same]] if len(seq) else np.zeros(0, dtype=np.int64)
+    ok = grp >= 0
+    flat = (grp[ok] * v + frm[ok]) * v + to[ok]
+    counts = np.bincount(flat, minlength=len(names) * v * v).reshape(len(names), v, v)
+    return counts.astype(np.int64), names
+
+
+def adjusted_residuals(table, expected=None):
+    """Adjusted (standardised) residuals of a two-way table.
+
+    ``z = (x - e) / sqrt(e (1 - r/N) (1 - c/N))`` with ``e = r c / N`` unless
+    ``expected`` is given; NaN where ``e`` is 0.
+
+    Examples
+    --------
+    Agresti (2007), party identification by gender (residuals equal statsmodels):
+
+    >>> adjusted_residuals([[279, 73, 225], [165, 47, 191]])[0].round(4).tolist()
+    [2.2932, 0.4648, -2.6178]
+    """
+    x = np.asarray(table, dtype=np.float64)
+    r = x.sum(axis=1, keepdims=True)
+    c = x.sum(axis=0, keepdims=True)
+    n = x.sum()
+    if expected is None:
+        expected = r * c / n if n > 0 else np.zeros_like(x)
+    expected = np.asarray(expected, dtype=np.float64)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        var = expected * (1 - r / n) * (1 - c / n)
+        z = np.where(var > 0, (x - expected) / np.sqrt(np.where(var > 0, var, 1.0)), np.nan)
+    return z
+
+
+def quasi_independence_expected(table, allowed, *, tol=1e-10, max_iter=10_000):
+    """Expected counts under quasi-independence by iterative proportional fitting.
+
+    Fits ``e[i, j] = alpha[i] * beta[j]`` on the allowed cells (0 on structural
+    zeros) so that row and column sums equal those of ``table`` (Deming & Stephan
+    1940; Bishop, Fienberg & Holland 1975, ch. 5).
+
+    Parameters
+    ----------
+    table : array_like, shape (n_rows, n_cols)
+    allowed : array_like of bool, same shape
+        False on structural zeros.
+
+    Returns
+    -------
+    ndarray of float
+
+    Examples
+    --------
+    >>> e = quasi_independence_expected([[0, 4, 2], [3, 0, 5], [1, 6, 0]],
+    ...                                 ~np.eye(3, dtype=bool))
+    >>> e.sum(axis=1).round(6).tolist(), e.diagonal().tolist()
+    ([6.0, 8.0, 7.0], [0.0, 0.0, 0.0])
+    """
+    x = np.asarray(table, dtype=np.float64)
+    allowed = np.asarray(allowed, dtype=bool)
+    if allowed.shape != x.shape:
+        raise ParameterError(
+            f"The structural-zero mask has shape {allowed.shape}; the table has {x.shape}.")
+    r = x.sum(axis=1)
+    c = x.sum(axis=0)
+    e = allowed.astype(np.float64)
+    e[r == 0, :] = 0.0
+    e[:, c == 0] = 0.0
+    for _ in range(max_iter):
+        rs = e.sum(axis=1)
+        e *= np.where(rs > 0, r / np.where(rs > 0, rs, 1.0), 0.0)[:, None]
+        cs = e.sum(axis=0)
+        e *= np.where(cs > 0, c / np.where(cs > 0, cs, 1.0), 0.0)[None, :]
+        if np.max(np.abs(e.sum(axis=1) - r), initial=0.0) < tol:
+            break
+    return e
+
+
+def yules_q(a, b, c, d):
+    """Yule's Q of 2x2 tables ``[[a, b], [c, d]]``: ``(ad - bc) / (ad + bc)``.
+
+    Equal to ``(OR - 1) / (OR + 1)``; NaN when ``ad + bc`` is 0.
+
+    Examples
+    --------
+    >>> float(yules_q(3, 1, 1, 3))
+    0.8
+    """
+    a, b, c, d = (np.asarray(v, dtype=np.float64) for v in (a, b, c, d))
+    num = a * d - b * c
+    den = a * d + b * c
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(den > 0, num / np.where(den > 0, den, 1.0), np.nan)
+
+
+# --------------------------------------------------------------------- helpers
+def _check_size(db):
+    v, g = len(db.vocab), max(db.n_groups, 1)
+    if g * v * v > MAX_TRANSITION_CELLS:
+        raise ParameterError(
+            f"The vocabulary has {v} distinct tokens; the transition tables would need "
+            f"{g} x {v} x {v} cells (limit {MAX_TRANSITION_CELLS}). Merge rare actions with "
+            f"--mapping or use a coarser --template.")
+
+
+def _structural_mask(db, structural_zeros):
+    v = len(db.vocab)
+    if isinstance(structural_zeros, str):
+        check_choice(structural_zeros, "structural_zeros", ("auto", "none"), "transitions")
+        mask = np.zeros((v, v), dtype=bool)
+        if structural_zeros == "auto":
+            pause = np.asarray(db.is_pause, dtype=bool)
+            mask |= pause[:, None] & pause[None, :]
+            if (db.encoding or {}).get("collapse_repeats"):
+                mask |= np.diag(~pause)
+        return mask
+    mask = np.asarray(structural_zeros, dtype=bool)
+    if mask.shape != (v, v):
+        raise ParameterError(
+            f"The 'structural_zeros' mask of transitions must have shape ({v}, {v}) (one row and "
+            f"column per vocabulary token); got {mask.shape}.")
+    return mask
+
+
+def _group_difference(x, r):
+    """p-value per transition that x_g / r_g is equal across groups (columns)."""
+    n_groups, m = x.shape
+    if n_groups < 2 or m == 0:
+        return np.full(m, np.nan)
+    if n_groups == 2:
+        return fisher_exact_many(x[0], r[0] - x[0], x[1], r[1] - x[1])
+    x = x.astype(np.float64)
+    r = r.astype(np.float64)
+    k = x.sum(axis=0)
+    n = r.sum(axis=0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        e1 = r * k / n
+        e0 = r * (n - k) / n
+        t1 = np.where(e1 > 0, (x - e1) ** 2 / np.where(e1 > 0, e1, 1.0), 0.0)
+        t0 = np.where(e0 > 0, ((r - x) - e0) ** 2 / np.where(e0 > 0, e0, 1.0), 0.0)
+    chi = (t1 + t0).sum(axis=0)
+    df = (r > 0).sum(axis=0) - 1
+    degenerate = (k == 0) | (k == n) | (df < 1)
+    return np.where(degenerate, 1.0, stats.chi2.sf(chi, np.maximum(df, 1)))

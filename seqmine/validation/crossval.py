@@ -1,0 +1,669 @@
+"""Learner-level cross-validation of the whole discovery pipeline and early prediction.
+
+Every step that learns from data -- the outcome grouping thresholds, the pause-bin
+edges, pattern mining, differential selection and the group HMMs -- is fitted on the
+training learners of a fold only, then applied unchanged to the held-out learners,
+whose sequences are cut to their first 10 %, 20 %, ... of events and classified.
+Findings are correlational; a detector built on them should be piloted and reviewed
+by educators before it drives hints for real learners.
+"""
+
+from __future__ import annotations
+
+import copy
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from sklearn.base import clone
+from sklearn.dummy import DummyClassifier
+from sklearn.linear_model import LogisticRegression
+from sklearn.model_selection import StratifiedKFold
+from sklearn.pipeline import FeatureUnion, make_pipeline
+from sklearn.preprocessing import StandardScaler
+
+from .._util.checks import check_choice, check_fraction, check_int, check_number
+from .._util.jsonio import write_json
+from .._util.parallel import parallel_map
+from .._util.progress import progress
+from ..errors import ParameterError
+from .features import (
+    FrequencyPauseFeaturizer,
+    HMMLikelihoodFeaturizer,
+    PatternFeaturizer,
+)
+from .metrics import early_prediction_table
+
+__all__ = [
+    "validate",
+    "ValidationResult",
+    "learner_splits",
+    "early_prediction_table",
+    "default_featurizers",
+    "make_classifier",
+    "CLASSIFIERS",
+    "DEFAULT_FRACTIONS",
+]
+
+#: Observed fractions of each held-out sequence used by default.
+DEFAULT_FRACTIONS = (0.1, 0.2, 0.25, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0)
+
+#: Classifier name -> featurizers whose columns it uses (``()`` = majority class).
+CLASSIFIERS = {
+    "pattern": ("pattern",),
+    "hmm": ("hmm",),
+    "frequency_pause": ("frequency_pause",),
+    "fusion": ("pattern", "hmm", "frequency_pause"),
+    "majority": (),
+}
+
+
+def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTIONS,
+             grouping=None, encoder=None, featurizers=None, classifiers=None, C=1.0,
+             train_on="full", n_bootstrap=1000, confidence=0.95, alpha=0.05, seed=0,
+             n_jobs=1, scheduler=None):
+    """Cross-validate the discovery pipeline by learner and measure early prediction.
+
+    Parameters
+    ----------
+    events : pandas.DataFrame or LoadResult
+        Event table (``learner``, ``time`` in seconds, ``action``, ...), as in
+        ``load_events(...).events`` (a LoadResult is accepted too).
+    outcomes : pandas.DataFrame
+        Outcome table with a ``learner`` column, as from ``load_outcomes``.
+    folds : int, default 5
+        Number of stratified folds (ignored when ``loo``).
+    loo : bool, default False
+        Leave one learner out instead of k folds (see Notes on the baseline).
+    fractions : sequence of float in (0, 1]
+        Observed fractions of each held-out sequence (of its action events, see
+        :meth:`SequenceDB.cut`).
+    grouping : estimator, optional
+        Unfitted outcome grouping with ``fit(outcomes)``, ``transform(outcomes)``
+        (learner -> group name, NaN = none) and ``group_names_``. Default
+        ``seqmine.inputs.outcomes.Grouping()`` (median split on normalized gain).
+    encoder : estimator, optional
+        Unfitted encoder with ``fit(events)``, ``transform(events) -> SequenceDB``
+        and ``encoding_``. Default ``seqmine.encoding.encoder.Encoder()``.
+    featurizers : dict, optional
+        Name -> unfitted featurizer; default :func:`default_featurizers`.
+    classifiers : sequence of str, optional
+        Names from :data:`CLASSIFIERS` to compare (default: all five).
+    C : float, default 1.0
+        Inverse L2 regularisation strength of the logistic regression.
+    train_on : {"full", "matched"}, default "full"
+        ``"full"``: the classifiers are trained on the full training sequences and
+        applied to every cut of the held-out ones. ``"matched"``: for each
+        fraction the classifiers (not the discovery steps) are re-trained on the
+        training sequences cut to the same fraction, so training and test see
+        equally long beginnings.
+    n_bootstrap : int, default 1000
+        Bootstrap resamples of the held-out learners for the confidence intervals.
+    confidence : float, default 0.95
+    alpha : float, default 0.05
+        Level of the one-sided test against the majority baseline.
+    seed : int, default 0
+        Seeds the fold split, the featurizers and the bootstrap.
+    n_jobs : int, default 1
+        Folds run in this many local processes (joblib; -1 = all cores); results are
+        identical to the serial run.
+    scheduler : str, optional
+        Run the folds on a Dask cluster: a scheduler address (``"tcp://host:8786"``)
+        or ``"local"`` for a local cluster with ``n_jobs`` workers. Results are
+        identical to the serial run.
+
+    Returns
+    -------
+    ValidationResult
+
+    Notes
+    -----
+    *Classifiers* (:data:`CLASSIFIERS`): ``pattern`` -- rates of the patterns
+    selected on the training fold (:class:`~seqmine.validation.features.PatternFeaturizer`);
+    ``hmm`` -- per-token log-likelihood ratio between the group HMMs
+    (:class:`~seqmine.validation.features.HMMLikelihoodFeaturizer`); ``frequency_pause`` --
+    relative action frequencies plus mean and sd of log pauses
+    (:class:`~seqmine.validation.features.FrequencyPauseFeaturizer`); ``fusion`` -- the three
+    feature sets stacked into one model; each of these is standardised and fed to an
+    L2-regularised logistic regression. ``majority`` predicts the training fold's
+    most frequent group (:class:`~sklearn.dummy.DummyClassifier`).
+
+    Held-out learners are labelled with the *training* fold's grouping thresholds
+    and encoded with the training pause edges. The fold split is stratified by the
+    grouping fitted on all learners; that only balances fold composition and does
+    not enter any fitted model. By default classifiers are trained on the full
+    training sequences and applied to the cut held-out sequences (see
+    ``train_on``); pattern features are rates per 100 tokens so their scale does
+    not depend on sequence length. When
+    a learner has several sequences, the predicted probabilities of its sequences
+    are averaged and the learner is the unit of every metric.
+
+    Learners with events but no outcome, or whose outcome gives no group on all
+    learners (e.g. the middle of a ``fraction`` split), take no part; a held-out
+    learner that gets no group under the training thresholds is not scored.
+
+    With leave-one-out, fixed labels and balanced groups the majority baseline is
+    always wrong (the held-out learner's group is the training minority), which
+    flatters every classifier; prefer k folds for the comparison with the baseline.
+    """
+    where = "validate"
+    fractions = _check_fractions(fractions)
+    check_int(n_bootstrap, "n_bootstrap", where, minimum=1)
+    check_fraction(confidence, "confidence", where, high_inclusive=False)
+    check_fraction(alpha, "alpha", where, high_inclusive=False)
+    check_number(C, "C", where, minimum=0, strict=True)
+    check_choice(train_on, "train_on", ("full", "matched"), where)
+    check_int(n_jobs, "n_jobs", where, minimum=-1)
+    if n_jobs == 0:
+        raise ParameterError("The 'n_jobs' parameter of validate must be >= 1 or -1. Got 0 "
+                             "instead.")
+    names = list(CLASSIFIERS) if classifiers is None else list(classifiers)
+    for n in names:
+        if n not in CLASSIFIERS:
+            raise ParameterError(
+                f"Unknown classifier {n!r}; choose from {', '.join(CLASSIFIERS)}.")
+    if "majority" not in names:
+        names.append("majority")
+    grouping = grouping if grouping is not None else _default_grouping()
+    encoder = encoder if encoder is not None else _default_encoder()
+    featurizers = featurizers if featurizers is not None else default_featurizers(seed=seed)
+    needed = sorted({f for n in names for f in CLASSIFIERS[n]})
+    missing = [f for f in needed if f not in featurizers]
+    if missing:
+        raise ParameterError(f"featurizers lacks {missing}; give one for each of {needed}.")
+    featurizers = {f: featurizers[f] for f in needed}
+
+    started = time.perf_counter()
+    if not isinstance(events, pd.DataFrame) and hasattr(events, "events"):
+        events = events.events
+    events = pd.DataFrame(events)
+    outcomes = pd.DataFrame(outcomes)
+    for table, label in ((events, "events"), (outcomes, "outcomes")):
+        if "learner" not in table.columns:
+            raise ParameterError(f"The {label} table needs a 'learner' column.")
+    events = events.assign(learner=events["learner"].astype(str))
+    outcomes = outcomes.assign(learner=outcomes["learner"].astype(str))
+    # stratification labels only (fold composition), from all learners
+    strat_grouping = _fresh(grouping).fit(outcomes)
+    strat = _group_series(strat_grouping.transform(outcomes), outcomes)
+    has_events = set(events["learner"].unique())
+    learners = np.array(sorted(lr for lr, g in strat.items()
+                               if lr in has_events and not pd.isna(g)), dtype=object)
+    labels = np.array([str(strat[lr]) for lr in learners], dtype=object)
+    split = learner_splits(learners, labels, folds=folds, loo=loo, seed=seed)
+
+    ev_by = {lr: idx for lr, idx in events.groupby("learner", sort=False).indices.items()}
+    jobs = []
+    for k, (tr, te) in enumerate(split):
+        tr_l, te_l = learners[tr], learners[te]
+        ev_tr = events.iloc[np.sort(np.concatenate([ev_by[lr] for lr in tr_l]))]
+        ev_te = events.iloc[np.sort(np.concatenate([ev_by[lr] for lr in te_l]))]
+        oc_tr = outcomes[outcomes["learner"].isin(set(tr_l))]
+        oc_te = outcomes[outcomes["learner"].isin(set(te_l))]
+        jobs.append((k, ev_tr, ev_te, oc_tr, oc_te))
+    run = _FoldRunner(grouping=grouping, encoder=encoder, featurizers=featurizers,
+                      classifiers=names, fractions=fractions, C=C, train_on=train_on)
+    if n_jobs == 1 and not scheduler:
+        outs = [run(job) for job in progress(jobs, desc="folds", unit="fold")]
+    else:
+        outs = parallel_map(run, jobs, jobs=n_jobs, scheduler=scheduler)
+    group_names = outs[0]["group_names"]
+    for o in outs:
+        if o["group_names"] != group_names:
+            raise ParameterError(
+                f"Fold {o['fold']} produced groups {o['group_names']} but fold 0 produced "
+                f"{group_names}; the grouping must give the same group names in every fold.")
+    predictions = pd.concat([o["predictions"] for o in outs], ignore_index=True)
+    order = {n: i for i, n in enumerate(names)}
+    predictions = predictions.sort_values(
+        ["classifier", "fraction", "learner"], key=lambda s: s.map(order) if s.name ==
+        "classifier" else s, kind="mergesort", ignore_index=True)
+    metrics = early_prediction_table(predictions, group_names, n_bootstrap=n_bootstrap,
+                                     confidence=confidence, alpha=alpha, seed=seed)
+    fold_table = pd.DataFrame({
+        "learner": np.concatenate([learners[te] for _, te in split]),
+        "fold": np.concatenate([np.full(len(te), k) for k, (_, te) in enumerate(split)]),
+    }).sort_values("learner", kind="mergesort", ignore_index=True)
+    settings = {
+        "folds": None if loo else int(folds), "loo": bool(loo),
+        "fractions": list(fractions), "classifiers": names, "C": float(C),
+        "train_on": train_on,
+        "n_bootstrap": int(n_bootstrap), "confidence": float(confidence),
+        "alpha": float(alpha), "seed": int(seed),
+        "test": "one-sided exact McNemar (binomial test on discordant pairs) vs majority",
+        "n_learners": int(len(learners)),
+        "n_learners_without_outcome_group": int(len(has_events - set(learners))),
+    }
+    return ValidationResult(
+        metrics=metrics, predictions=predictions, folds=fold_table,
+        selected_patterns={o["fold"]: o["selected_patterns"] for o in outs},
+        encodings={o["fold"]: o["encoding"] for o in outs},
+        group_names=list(group_names), settings=settings,
+        runtime_seconds=time.perf_counter() - started,
+    )
+
+
+@dataclass
+class ValidationResult:
+    """Outcome of :func:`validate`.
+
+    Attributes
+    ----------
+    metrics : pandas.DataFrame
+        The early-prediction table (see :func:`early_prediction_table`).
+    predictions : pandas.DataFrame
+        One row per held-out learner x classifier x fraction: ``fold``,
+        ``learner``, ``group`` (true, from the training thresholds),
+        ``classifier``, ``fraction``, ``predicted``, ``proba_<group>``.
+    folds : pandas.DataFrame
+        ``learner``, ``fold`` (the fold in which the learner was held out).
+    selected_patterns : dict
+        Fold -> readable names of the patterns selected on that fold's training
+        learners.
+    encodings : dict
+        Fold -> the encoder's ``encoding_`` fitted on that fold's training events.
+    group_names : list of str
+    settings : dict
+    runtime_seconds : float
+        Wall time of the run (not part of any table, so reruns compare equal).
+    """
+
+    metrics: pd.DataFrame
+    predictions: pd.DataFrame
+    folds: pd.DataFrame
+    selected_patterns: dict
+    encodings: dict
+    group_names: list
+    settings: dict = field(default_factory=dict)
+    runtime_seconds: float = float("nan")
+
+    def to_frame(self):
+        """The early-prediction table (one row per classifier x fraction)."""
+        return self.metrics.copy()
+
+    def to_long(self):
+        """Plot-ready long table: ``classifier``, ``fraction``, ``metric``, ``value``,
+        ``low``, ``high``, ``n_learners``."""
+        m = self.metrics
+        metric_names = ["accuracy", "balanced_accuracy", "roc_auc"] + [
+            f"recall_{g}" for g in self.group_names]
+        rows = []
+        for name in metric_names:
+            part = m[["classifier", "fraction", "n_learners"]].copy()
+            part["metric"] = name
+            part["value"] = m[name].to_numpy()
+            part["low"] = m[f"{name}_low"].to_numpy()
+            part["high"] = m[f"{name}_high"].to_numpy()
+            rows.append(part)
+        out = pd.concat(rows, ignore_index=True)
+        return out[["classifier", "fraction", "metric", "value", "low", "high", "n_learners"]]
+
+    def earliest_fraction(self, *, sustained=False):
+        """Smallest fraction at which each classifier beats the majority baseline.
+
+        "Beats" means the one-sided exact McNemar test rejects at ``alpha`` (see
+        :func:`early_prediction_table`).
+
+        Parameters
+        ----------
+        sustained : bool, default False
+            Only count a fraction if the classifier also beats the baseline at
+            every larger fraction.
+
+        Returns
+        -------
+        pandas.Series
+            Classifier -> fraction (NaN when it never does), majority excluded.
+        """
+        m = self.metrics[self.metrics["classifier"] != "majority"]
+        out = {}
+        for name, part in m.groupby("classifier", sort=False):
+            part = part.sort_values("fraction")
+            beats = part["beats_baseline"].to_numpy(dtype=bool)
+            if sustained:
+                beats = np.logical_and.accumulate(beats[::-1])[::-1]
+            hits = part["fraction"].to_numpy()[beats]
+            out[name] = float(hits.min()) if len(hits) else float("nan")
+        return pd.Series(out, name="earliest_fraction", dtype=float)
+
+    def summary(self):
+        """A JSON-ready digest (for ``summary.json`` and the report).
+
+        Keys: ``settings``, ``group_names``, ``earliest_fraction`` and
+        ``earliest_fraction_sustained`` (classifier -> fraction or None),
+        ``accuracy`` and ``balanced_accuracy`` (classifier -> fraction -> value),
+        ``baseline_accuracy`` (fraction -> value), ``patterns_selected_per_fold``
+        and ``runtime_seconds`` (rounded to 0.1 s).
+        """
+        m = self.metrics
+
+        def nested(col):
+            return {name: {f"{f:g}": round(float(v), 6) for f, v in
+                           zip(part["fraction"], part[col])}
+                    for name, part in m.groupby("classifier", sort=False)}
+
+        def clean(series):
+            return {k: (None if np.isnan(v) else float(v)) for k, v in series.items()}
+
+        base = m[m["classifier"] == "majority"]
+        return {
+            "settings": dict(self.settings),
+            "group_names": list(self.group_names),
+            "earliest_fraction": clean(self.earliest_fraction()),
+            "earliest_fraction_sustained": clean(self.earliest_fraction(sustained=True)),
+            "accuracy": nested("accuracy"),
+            "balanced_accuracy": nested("balanced_accuracy"),
+            "baseline_accuracy": {f"{f:g}": round(float(v), 6) for f, v in
+                                  zip(base["fraction"], base["accuracy"])},
+            "patterns_selected_per_fold": {str(k): len(v) for k, v in
+                                           sorted(self.selected_patterns.items())},
+            "runtime_seconds": round(float(self.runtime_seconds), 1),
+        }
+
+    def save(self, folder):
+        """Write ``early_prediction.csv``, ``early_prediction_long.csv``,
+        ``validation_predictions.csv`` and ``validation_folds.json`` to ``folder``."""
+        folder = Path(folder)
+        folder.mkdir(parents=True, exist_ok=True)
+        csv = dict(index=False, lineterminator="\n", float_format="%.10g")
+        self.metrics.to_csv(folder / "early_prediction.csv", **csv)
+        self.to_long().to_csv(folder / "early_prediction_long.csv", **csv)
+        self.predictions.to_csv(folder / "validation_predictions.csv", **csv)
+        digest = self.summary()
+        info = {
+            "settings": self.settings,
+            "group_names": self.group_names,
+            "earliest_fraction": digest["earliest_fraction"],
+            "earliest_fraction_sustained": digest["earliest_fraction_sustained"],
+            "folds": [
+                {"fold": int(k),
+                 "held_out": self.folds.loc[self.folds["fold"] == k, "learner"].tolist(),
+                 "selected_patterns": list(self.selected_patterns[k]),
+                 "encoding": self.encodings[k]}
+                for k in sorted(self.selected_patterns)
+            ],
+        }
+        write_json(folder / "validation_folds.json", info, indent=1)
+        return folder
+
+
+def learner_splits(learners, labels, *, folds=5, loo=False, seed=0):
+    """Split samples into folds so that no learner spans two folds.
+
+    Parameters
+    ----------
+    learners : array-like of str, shape (n_samples,)
+        Learner of each sample; a learner may have several samples (sessions).
+    labels : array-like, shape (n_samples,)
+        Group of each sample, used to stratify (the first sample of a learner
+        gives the learner's label).
+    folds : int, default 5
+        Number of stratified folds over learners (ignored when ``loo``).
+    loo : bool, default False
+        One fold per learner.
+    seed : int, default 0
+        Shuffles learners before the stratified split.
+
+    Returns
+    -------
+    list of (ndarray, ndarray)
+        ``(train_indices, test_indices)`` into the samples, one pair per fold.
+
+    Examples
+    --------
+    >>> learners = ["a", "a", "b", "c", "d", "e", "f"]
+    >>> labels = ["x", "x", "x", "x", "y", "y", "y"]
+    >>> for tr, te in learner_splits(learners, labels, folds=3):
+    ...     print(" ".join(sorted(set(np.asarray(learners)[te]))))
+    c e
+    b f
+    a d
+    """
+    where = "learner_splits"
+    learners = np.asarray(learners, dtype=object).astype(str)
+    labels = np.asarray(labels, dtype=object)
+    if len(labels) != len(learners):
+        raise ParameterError(f"learners has {len(learners)} entries but labels has "
+                             f"{len(labels)}; give one label per sample.")
+    uniq, first, inverse = np.unique(learners, return_index=True, return_inverse=True)
+    n = len(uniq)
+    if loo:
+        if n < 2:
+            raise ParameterError(f"Leave-one-learner-out needs at least 2 learners; got {n}.")
+        test_sets = [np.array([i]) for i in range(n)]
+    else:
+        folds = check_int(folds, "folds", where, minimum=2)
+        if n < folds:
+            raise ParameterError(
+                f"There are {n} learners but {folds} folds were asked for; use at most "
+                f"{n} folds (--folds {max(n, 2)}) or leave-one-learner-out (--loo).")
+        lab = np.array([str(v) for v in labels[first]], dtype=object)
+        names, counts = np.unique(lab, return_counts=True)
+        if len(names) < 2:
+            raise ParameterError(
+                f"All {n} learners are in group {names[0]!r}; cross-validation needs learners "
+                f"of at least two groups.")
+        small = int(np.argmin(counts))
+        if counts[small] < folds:
+            raise ParameterError(
+                f"Group {names[small]!r} has {counts[small]} learners, fewer than the {folds} "
+                f"folds, so some fold would hold one group only; use at most "
+                f"{counts[small]} folds (--folds {max(int(counts[small]), 2)}) or "
+                f"leave-one-learner-out (--loo).")
+        skf = StratifiedKFold(n_splits=folds, shuffle=True, random_state=seed)
+        test_sets = [te for _, te in skf.split(np.zeros(n), lab)]
+    out = []
+    for te_l in test_sets:
+        in_test = np.zeros(n, dtype=bool)
+        in_test[te_l] = True
+        test_mask = in_test[inverse]
+        out.append((np.flatnonzero(~test_mask), np.flatnonzero(test_mask)))
+    return out
+
+
+def default_featurizers(*, seed=0, pattern_params=None, hmm_params=None):
+    """The three featurizers compared by :func:`validate`, unfitted.
+
+    Returns
+    -------
+    dict
+        ``"pattern"``: :class:`PatternFeaturizer`, ``"hmm"``:
+        :class:`HMMLikelihoodFeaturizer`, ``"frequency_pause"``:
+        :class:`FrequencyPauseFeaturizer`.
+    """
+    return {
+        "pattern": PatternFeaturizer(seed=seed, **(pattern_params or {})),
+        "hmm": HMMLikelihoodFeaturizer(seed=seed, **(hmm_params or {})),
+        "frequency_pause": FrequencyPauseFeaturizer(),
+    }
+
+
+def make_classifier(name, *, featurizers=None, C=1.0, seed=0):
+    """A scikit-learn Pipeline equivalent to one classifier of :func:`validate`.
+
+    Features of the named featurizers are stacked (:class:`FeatureUnion`),
+    standardised and fed to an L2-regularised logistic regression; ``"majority"``
+    is a :class:`~sklearn.dummy.DummyClassifier` (``most_frequent``). ``X`` is a
+    SequenceDB and ``y`` the group of each sequence.
+
+    Examples
+    --------
+    >>> from seqmine.encoding.sequences import SequenceDB
+    >>> db = SequenceDB.from_lists([["a", "a"], ["a", "a", "b"], ["b", "b"], ["b", "b", "a"]])
+    >>> clf = make_classifier("frequency_pause").fit(db, ["x", "x", "y", "y"])
+    >>> clf.predict(db).tolist()
+    ['x', 'x', 'y', 'y']
+    """
+    if name not in CLASSIFIERS:
+        raise ParameterError(f"Unknown classifier {name!r}; choose from {', '.join(CLASSIFIERS)}.")
+    if name == "majority":
+        return DummyClassifier(strategy="most_frequent")
+    feats = featurizers if featurizers is not None else default_featurizers(seed=seed)
+    union = FeatureUnion([(f, clone(feats[f])) for f in CLASSIFIERS[name]])
+    return make_pipeline(union, StandardScaler(), _logistic(C))
+
+
+# --------------------------------------------------------------------- private
+class _FoldRunner:
+    """Runs one fold: fit every learned step on training learners, predict held-out."""
+
+    def __init__(self, *, grouping, encoder, featurizers, classifiers, fractions, C,
+                 train_on="full"):
+        self.grouping = grouping
+        self.encoder = encoder
+        self.featurizers = featurizers
+        self.classifiers = classifiers
+        self.fractions = fractions
+        self.C = C
+        self.train_on = train_on
+
+    def __call__(self, job):
+        fold, ev_tr, ev_te, oc_tr, oc_te = job
+        grouping = _fresh(self.grouping).fit(oc_tr)
+        names = [str(g) for g in grouping.group_names_]
+        g_tr = _group_series(grouping.transform(oc_tr), oc_tr)
+        g_te = _group_series(grouping.transform(oc_te), oc_te)
+        encoder = _fresh(self.encoder).fit(ev_tr)
+        db_tr = _with_learner_groups(encoder.transform(ev_tr), g_tr, names)
+        db_te = _with_learner_groups(encoder.transform(ev_te), g_te, names)
+        db_tr = db_tr.subset(db_tr.groups >= 0)
+        db_te = db_te.subset(db_te.groups >= 0)
+        present = np.unique(db_tr.groups)
+        if len(present) < len(names):
+            only = ", ".join(repr(names[i]) for i in present) or "none"
+            raise ParameterError(
+                f"Fold {fold}: the training learners hold only group(s) {only} after "
+                f"grouping with the training thresholds; use fewer folds or check the "
+                f"outcomes.")
+        y_tr = db_tr.groups
+        fitted = {}
+        blocks = {}
+        for fname, feat in self.featurizers.items():
+            fitted[fname] = clone(feat).fit(db_tr, y_tr)
+            blocks[fname] = np.asarray(fitted[fname].transform(db_tr), dtype=float)
+        full_models = models = self._fit_models(blocks, y_tr)
+        rows = []
+        learners_te = db_te.learners
+        uniq, inv = np.unique(learners_te, return_inverse=True)
+        true = np.full(len(uniq), -1, dtype=np.int64)
+        true[inv] = db_te.groups
+        n_seq = np.bincount(inv, minlength=len(uniq)).astype(float)
+        for frac in self.fractions:
+            cut = db_te if frac >= 1 else db_te.cut(frac)
+            te_blocks = {f: np.asarray(m.transform(cut), dtype=float) for f, m in fitted.items()}
+            models = full_models
+            if self.train_on == "matched" and frac < 1:
+                cut_tr = db_tr.cut(frac)
+                models = self._fit_models(
+                    {f: np.asarray(m.transform(cut_tr), dtype=float)
+                     for f, m in fitted.items()}, y_tr)
+            for cname in self.classifiers:
+                if cname == "majority":
+                    X = np.zeros((cut.n_sequences, 1))
+                else:
+                    X = np.hstack([te_blocks[f] for f in CLASSIFIERS[cname]])
+                proba = _full_proba(models[cname], X, len(names))
+                per = np.zeros((len(uniq), len(names)))
+                np.add.at(per, inv, proba)
+                per /= n_seq[:, None]
+                pred = np.argmax(per, axis=1)
+                frame = {"fold": fold, "learner": uniq, "group": [names[i] for i in true],
+                         "classifier": cname, "fraction": float(frac),
+                         "predicted": [names[i] for i in pred]}
+                for gi, g in enumerate(names):
+                    frame[f"proba_{g}"] = per[:, gi]
+                rows.append(pd.DataFrame(frame))
+        selected = []
+        if "pattern" in fitted and hasattr(fitted["pattern"], "get_feature_names_out"):
+            selected = [n.removeprefix("pattern: ") for n in
+                        fitted["pattern"].get_feature_names_out() if n != "no_pattern"]
+        return {
+            "fold": fold, "group_names": names, "predictions": pd.concat(rows, ignore_index=True),
+            "selected_patterns": selected,
+            "encoding": copy.deepcopy(getattr(encoder, "encoding_", {})),
+        }
+
+
+    def _fit_models(self, blocks, y_tr):
+        models = {}
+        for cname in self.classifiers:
+            if cname == "majority":
+                models[cname] = DummyClassifier(strategy="most_frequent").fit(
+                    np.zeros((len(y_tr), 1)), y_tr)
+            else:
+                X = np.hstack([blocks[f] for f in CLASSIFIERS[cname]])
+                models[cname] = make_pipeline(StandardScaler(), _logistic(self.C)).fit(X, y_tr)
+        return models
+
+
+def _full_proba(model, X, k):
+    proba = model.predict_proba(X)
+    out = np.zeros((X.shape[0], k))
+    out[:, np.asarray(model.classes_, dtype=np.int64)] = proba
+    return out
+
+
+def _logistic(C):
+    return LogisticRegression(C=C, max_iter=2000)
+
+
+def _check_fractions(fractions):
+    try:
+        vals = [fractions] if np.isscalar(fractions) else list(fractions)
+    except TypeError:
+        raise ParameterError(f"fractions must be a list of numbers in (0, 1]; got "
+                             f"{fractions!r}.") from None
+    if not vals:
+        raise ParameterError("fractions is empty; give at least one fraction in (0, 1], e.g. "
+                             "0.25,0.5,1.")
+    out = []
+    for v in vals:
+        try:
+            f = float(v)
+        except (TypeError, ValueError):
+            f = float("nan")
+        if not (0 < f <= 1):
+            raise ParameterError(
+                f"Cut fraction {v!r} is outside (0, 1]; fractions are shares of each "
+                f"sequence's events, e.g. 0.1,0.25,0.5,1.")
+        out.append(f)
+    return sorted(set(out))
+
+
+def _group_series(result, outcomes):
+    """Grouping output as a learner -> group (str or NaN) Series."""
+    learners = outcomes["learner"].astype(str).to_numpy()
+    if isinstance(result, pd.Series) and not result.index.equals(outcomes.index):
+        s = result.copy()  # already indexed by learner
+    else:
+        s = pd.Series(np.asarray(result, dtype=object), index=learners)
+    s.index = s.index.astype(str)
+    return s
+
+
+def _with_learner_groups(db, groups, names):
+    pos = {g: i for i, g in enumerate(names)}
+    codes = np.array([pos.get(str(groups.get(lr)), -1) if not pd.isna(groups.get(lr, np.nan))
+                      else -1 for lr in db.learners], dtype=np.int64)
+    return db.with_groups(codes, names)
+
+
+def _fresh(est):
+    try:
+        return clone(est)
+    except TypeError:
+        return copy.deepcopy(est)
+
+
+def _default_grouping():
+    from ..inputs.outcomes import Grouping  # noqa: PLC0415 (stage written separately)
+
+    return Grouping()
+
+
+def _default_encoder():
+    from ..encoding.encoder import Encoder  # noqa: PLC0415
+
+    return Encoder()
