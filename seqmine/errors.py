@@ -51,4 +51,26 @@ class NotFittedError(SeqmineError, ValueError, AttributeError):
 
 
 class SeqmineWarning(UserWarning):
-    """Something the user should know about but that does not stop the run."""
+    """Something the user should know about but that does not stop the run.
+
+    Parameters
+    ----------
+    message : str
+        One or two sentences: what was noticed or assumed, and what to do about it.
+    code : str
+        A stable machine-readable name (``coarse_times``, ``heavy_learner`` ...), listed
+        with the message in ``summary.json`` under ``warnings``.
+    count : int, optional
+        How many rows, learners, patterns ... the warning concerns, where that applies.
+
+    Examples
+    --------
+    >>> w = SeqmineWarning("3 learners have no events.", code="learners_without_events", count=3)
+    >>> (w.code, w.count, str(w))
+    ('learners_without_events', 3, '3 learners have no events.')
+    """
+
+    def __init__(self, message="", code="general", count=None):
+        super().__init__(message)
+        self.code = str(code)
+        self.count = None if count is None else int(count)

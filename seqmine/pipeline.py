@@ -5,13 +5,14 @@ from __future__ import annotations
 import contextlib
 import sys
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
 
 from ._util.jsonio import write_json
 from ._util.progress import is_quiet
+from ._util.warnlog import WarningLog, collect_warnings
 from .errors import DataFileError, ParameterError
 from .inputs.outcomes import Grouping, match_learners
 
@@ -145,6 +146,7 @@ class AnalysisResult:
     out_dir: object
     summary: dict
     files: list
+    warnings: list = field(default_factory=list)
 
     def message(self):
         """One-paragraph description for the command line."""
@@ -200,11 +202,12 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     from .config import default_config
 
     cfg = config or default_config()
-    with using_scheduler(cfg.get("scheduler"), int(cfg["jobs"])):
-        return _analyze(events_path, outcomes_path, out_dir, cfg, quiet=quiet)
+    log = WarningLog()
+    with using_scheduler(cfg.get("scheduler"), int(cfg["jobs"])), collect_warnings(log):
+        return _analyze(events_path, outcomes_path, out_dir, cfg, quiet=quiet, log=log)
 
 
-def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
+def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, log):
     from pathlib import Path
 
     from ._util.progress import set_quiet
@@ -387,13 +390,14 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     summary["versions"] = _versions()
     summary["pseudonymized"] = bool(key_path)
     summary["stage_seconds"] = stages.seconds
+    summary["warnings"] = log.as_list()
     write_json(out / "summary.json", _without_timings(summary))
     files.append(out / "summary.json")
     with stages("report"):
         report = render_report(out, examples=bool(cfg["report"]["examples"]),
                                max_patterns=int(cfg["report"]["top_patterns"]))
         files.append(report)
-    return AnalysisResult(out_dir=out, summary=summary, files=files)
+    return AnalysisResult(out_dir=out, summary=summary, files=files, warnings=list(log))
 
 
 def _sample_sequences(db, limit, seed):

@@ -163,10 +163,10 @@ def select_detectors(contrast_table, *, max_q=0.05, min_effect=0.2, effect="cohe
     if min_stability > 0:
         stab = pd.to_numeric(t["stability"], errors="coerce").to_numpy(float)
         if len(stab) and np.isnan(stab).all():
-            warnings.warn("The contrast table has no stability values (resampling was "
-                          "skipped), so no pattern passes min_stability; pass "
-                          "min_stability=0 (--min-stability 0) or compute stability.",
-                          SeqmineWarning, stacklevel=2)
+            warnings.warn(SeqmineWarning(
+                "The contrast table has no stability values (resampling was skipped), so no "
+                "pattern passes min_stability; pass min_stability=0 (--min-stability 0) or "
+                "compute stability.", code="no_stability"), stacklevel=2)
         keep &= stab >= min_stability
     if drop_redundant and "redundant_of" in t.columns:
         red = t["redundant_of"].astype(object).where(t["redundant_of"].notna(), "")

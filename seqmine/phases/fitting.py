@@ -113,10 +113,10 @@ def select_n_states(sequences, *, n_states=range(2, 7), n_restarts=5, n_folds=3,
             f"'n_states' (--states) or provide more sequences.")
     if len(supported) < len(counts):
         dropped = [n for n in counts if n not in supported]
-        warnings.warn(
+        warnings.warn(SeqmineWarning(
             f"State counts {dropped} have as many free parameters as the {len(X)} {label} "
             f"tokens and were skipped; the range was capped at {max(supported)} states.",
-            SeqmineWarning, stacklevel=2)
+            code="state_counts_skipped", count=len(dropped)), stacklevel=2)
     counts = supported
     tasks = [(n, r) for n in counts for r in range(n_restarts)]
     fold_of = None

@@ -491,10 +491,10 @@ def _prepare(patterns, db, lengths, groups, rate_unit, where):
                 f"{MIN_GROUP_SIZE} per compared group. Merge groups or collect more learners.")
     small = [all_names[g] for g in chosen if sizes_all[g] < SMALL_GROUP_SIZE]
     if small:
-        warnings.warn(
+        warnings.warn(SeqmineWarning(
             f"Group(s) {', '.join(map(repr, small))} have fewer than {SMALL_GROUP_SIZE} "
             f"sequences; the tests have very little power and the effect sizes are unstable.",
-            SeqmineWarning, stacklevel=3)
+            code="small_groups", count=len(small)), stacklevel=3)
     remap = np.full(len(all_names) + 1, -1, dtype=np.int64)
     remap[np.array(chosen)] = np.arange(len(chosen))
     lab_all = np.where(seq_groups >= 0, remap[seq_groups], -1)
@@ -503,11 +503,11 @@ def _prepare(patterns, db, lengths, groups, rate_unit, where):
     if db is not None:
         learners = db.learners[keep]
         if len(np.unique(learners)) < len(learners):
-            warnings.warn(
+            warnings.warn(SeqmineWarning(
                 f"Some learners have several sequences (sessions); {where} treats sequences "
                 f"as independent units, which overstates the evidence. Use unit='learner' "
                 f"(or encode one sequence per learner) for learner-level tests.",
-                SeqmineWarning, stacklevel=3)
+                code="sessions_not_independent"), stacklevel=3)
     rates_all = sequence_rates(patterns, lengths)
     presence_all = patterns.presence()
     everything = len(keep) == n_seq
@@ -516,9 +516,9 @@ def _prepare(patterns, db, lengths, groups, rate_unit, where):
     if patterns.n_patterns and presence.shape[0]:
         k = np.asarray(presence.sum(axis=0)).ravel()
         if np.all((k == 0) | (k == presence.shape[0])):
-            warnings.warn(
+            warnings.warn(SeqmineWarning(
                 "No pattern's presence varies across the compared sequences (each is in "
-                "all of them or none); every presence p-value is 1.", SeqmineWarning,
+                "all of them or none); every presence p-value is 1.", code="no_variation"),
                 stacklevel=3)
     return {"names": [all_names[g] for g in chosen], "labels": labels, "keep": keep,
             "presence": presence, "rates": rates, "rates_all": rates_all,

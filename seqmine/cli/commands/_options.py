@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import sys
+
 from ...encoding.encoder import encoder_from_settings
 from ...errors import ParameterError
 from ...inputs.load import EVENT_ROLES, load_events
@@ -10,7 +12,7 @@ from ...inputs.outcomes import Grouping, load_outcomes
 __all__ = ["add_event_options", "add_outcome_options", "add_encoding_options",
            "events_from_args", "outcomes_from_args", "grouping_from_args",
            "encoder_from_args", "parse_float_list", "add_privacy_option",
-           "pseudonymize_inputs"]
+           "pseudonymize_inputs", "print_warnings"]
 
 
 def parse_float_list(text, option):
@@ -128,3 +130,10 @@ def pseudonymize_inputs(args, loaded, outcomes):
     from ...inputs.privacy import read_key
     from ...pipeline import pseudonymize_inputs as replace
     return replace(loaded, outcomes, read_key(key_path))
+
+
+def print_warnings(records):
+    """Each warning a run recorded, once, as one line on standard error (also when quiet:
+    a warning says what the run assumed, which scripts need to know too)."""
+    for w in records:
+        print(f"seqmine: warning [{w.code}]: {w.message}", file=sys.stderr)

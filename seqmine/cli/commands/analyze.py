@@ -8,6 +8,7 @@ from ...config import default_config, load_config, merge_config
 from ...inputs.load import EVENT_ROLES
 from ...pipeline import analyze
 from . import _options
+from ._options import print_warnings
 
 NAME = "analyze"
 HELP = "run every stage on your event log and outcomes and write the output folder"
@@ -131,4 +132,5 @@ def run(args):
     result = analyze(args.events, args.outcomes, args.out, cfg, quiet=args.quiet)
     if not args.quiet:
         print(result.message())
+    print_warnings(result.warnings)
     return 0

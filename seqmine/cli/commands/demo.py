@@ -6,6 +6,7 @@ import tempfile
 from pathlib import Path
 
 from ...config import default_config
+from ._options import print_warnings
 from ...demo_data import EVENTS_FILE, OUTCOMES_FILE, write_greenhouse
 from ...pipeline import analyze
 
@@ -39,4 +40,5 @@ def run(args):
             result = analyze(paths["events"], paths["outcomes"], args.out, cfg, quiet=args.quiet)
     if not args.quiet:
         print(result.message())
+    print_warnings(result.warnings)
     return 0
