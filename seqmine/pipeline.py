@@ -10,6 +10,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from ._util.csvio import write_csv
 from ._util.jsonio import write_json
 from ._util.progress import is_quiet
 from ._util.warnlog import WarningLog, collect_warnings
@@ -251,7 +252,7 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
     encoder = encoder_from_settings(en_cfg)
     prepared = prepare_sequences(loaded, outcomes, encoder=encoder, grouping=grouping)
     db = prepared.db
-    loaded.rejects.to_csv(out / "rejects.csv", index=False)
+    write_csv(loaded.rejects, out / "rejects.csv")
     files.append(out / "rejects.csv")
 
     db.save(out / "sequences")
@@ -283,12 +284,11 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
                          redundancy=con_cfg["redundancy_jaccard"], jobs=jobs,
                          scheduler=scheduler)
         table = _order_patterns(table)
-        table.to_csv(out / "patterns.csv", index=False, lineterminator="\n", float_format="%.10g")
+        write_csv(table, out / "patterns.csv")
         files.append(out / "patterns.csv")
     with stages("transitions"):
         trans = transitions(db, exclude_pauses=not cfg["transitions"]["include_pauses"])
-        trans.to_csv(out / "transitions.csv", index=False, lineterminator="\n",
-                     float_format="%.10g")
+        write_csv(trans, out / "transitions.csv")
         files.append(out / "transitions.csv")
     alpha = float(con_cfg["alpha"])
     significant = table[table["q_value"] <= alpha]
@@ -357,8 +357,7 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
                 fractions=va_cfg["fractions"], grouping=clone(grouping),
                 encoder=clone(encoder), featurizers=feats, n_bootstrap=int(va_cfg["bootstrap"]),
                 alpha=alpha, seed=seed, n_jobs=jobs, scheduler=scheduler)
-            validation.metrics.to_csv(out / "early_prediction.csv", index=False,
-                                      lineterminator="\n", float_format="%.10g")
+            write_csv(validation.metrics, out / "early_prediction.csv")
             files.append(out / "early_prediction.csv")
             digest = validation.summary()
             summary["early_prediction"] = {k: digest[k] for k in (

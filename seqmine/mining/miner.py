@@ -28,6 +28,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from .._util.checks import check_int
+from .._util.csvio import write_csv
 from .._util.jsonio import json_default
 from ..encoding.sequences import SequenceDB
 from ..errors import DataFileError, ParameterError
@@ -339,7 +340,7 @@ def save_patternset(ps, folder, *, table_name="patterns.csv"):
     """
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
-    pattern_table(ps).to_csv(folder / table_name, index=False)
+    write_csv(pattern_table(ps), folder / table_name)
     sp.save_npz(folder / "counts.npz", sp.csr_matrix(ps.counts, dtype=np.int64),
                 compressed=True)
     meta = {

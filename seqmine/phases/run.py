@@ -13,6 +13,7 @@ import pandas as pd
 from joblib import Parallel, delayed
 
 from .._util.checks import check_choice, check_fraction, check_int, check_number
+from .._util.csvio import write_csv
 from .._util.jsonio import write_json
 from .._util.progress import progress
 from ..encoding.sequences import SequenceDB
@@ -154,7 +155,7 @@ class PhaseResult:
             "excluded.csv": self.excluded,
         }
         for name, table in tables.items():
-            table.to_csv(folder / name, index=False, lineterminator="\n", float_format="%.10g")
+            write_csv(table, folder / name)
         self.state_db.save(folder / "state_sequences")
         write_json(folder / "phases.json", self.summary(), indent=1)
         return folder

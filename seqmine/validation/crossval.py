@@ -25,6 +25,7 @@ from sklearn.pipeline import FeatureUnion, make_pipeline
 from sklearn.preprocessing import StandardScaler
 
 from .._util.checks import check_choice, check_fraction, check_int, check_number
+from .._util.csvio import write_csv
 from .._util.jsonio import write_json
 from .._util.parallel import parallel_map
 from .._util.progress import progress
@@ -367,10 +368,9 @@ class ValidationResult:
         ``validation_predictions.csv`` and ``validation_folds.json`` to ``folder``."""
         folder = Path(folder)
         folder.mkdir(parents=True, exist_ok=True)
-        csv = dict(index=False, lineterminator="\n", float_format="%.10g")
-        self.metrics.to_csv(folder / "early_prediction.csv", **csv)
-        self.to_long().to_csv(folder / "early_prediction_long.csv", **csv)
-        self.predictions.to_csv(folder / "validation_predictions.csv", **csv)
+        write_csv(self.metrics, folder / "early_prediction.csv")
+        write_csv(self.to_long(), folder / "early_prediction_long.csv")
+        write_csv(self.predictions, folder / "validation_predictions.csv")
         digest = self.summary()
         info = {
             "settings": self.settings,

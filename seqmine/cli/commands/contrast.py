@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from ..._util.csvio import write_csv
 from ..._util.progress import is_quiet
 from ...encoding.sequences import SequenceDB
 from ...errors import DataFileError, ParameterError
@@ -82,7 +83,7 @@ def run(args):
                      drop_redundant=args.drop_redundant, rate_unit=args.rate_unit,
                      unit=args.unit)
     out = _writable(args.out, "--out")
-    table.to_csv(out, index=False, lineterminator="\n")
+    write_csv(table, out)
     messages = [f"wrote {len(table)} patterns to {out} "
                 f"({int((table['favours'] != '').sum())} with q <= {args.alpha} "
                 f"by {args.correction})"]
@@ -94,12 +95,12 @@ def run(args):
                                correction="bh" if args.correction == "bh" else "holm",
                                alpha=args.alpha, rate_unit=args.rate_unit, unit=args.unit)
         path = _writable(args.pairwise, "--pairwise")
-        pw.to_csv(path, index=False, lineterminator="\n")
+        write_csv(pw, path)
         messages.append(f"wrote {len(pw)} pairwise rows to {path}")
     if args.transitions:
         tr = transitions(db, exclude_pauses=args.exclude_pauses)
         path = _writable(args.transitions, "--transitions")
-        tr.to_csv(path, index=False, lineterminator="\n")
+        write_csv(tr, path)
         messages.append(f"wrote {len(tr)} transition rows to {path}")
     if not is_quiet():
         print("\n".join(messages))

@@ -6,9 +6,9 @@ import tempfile
 from pathlib import Path
 
 from ...config import default_config
-from ._options import print_warnings
 from ...demo_data import EVENTS_FILE, OUTCOMES_FILE, write_greenhouse
 from ...pipeline import analyze
+from ._options import print_warnings
 
 NAME = "demo"
 HELP = "run the whole pipeline on the shipped greenhouse demo data"

@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
+from ..._util.csvio import write_csv
 from ...pipeline import prepare_sequences
 from . import _options
 
@@ -35,7 +36,7 @@ def run(args):
         encoder=_options.encoder_from_args(args))
     out.mkdir(parents=True, exist_ok=True)
     prepared.db.save(out / "sequences")
-    prepared.rejects.to_csv(out / "rejects.csv", index=False)
+    write_csv(prepared.rejects, out / "rejects.csv")
     (out / "summary.json").write_text(json.dumps(prepared.summary, indent=2, sort_keys=True) + "\n",
                                       encoding="utf-8")
     if not args.quiet:
