@@ -320,8 +320,10 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
                                 n_states=range(ph_cfg["min_states"], ph_cfg["max_states"] + 1),
                                 n_restarts=ph_cfg["restarts"], seed=seed,
                                 n_jobs=-1 if scheduler else jobs,
-                                n_iter=ph_cfg["max_iter"], criterion=ph_cfg["criterion"],
+                                max_iter=ph_cfg["max_iter"], tol=ph_cfg["tol"],
+                                criterion=ph_cfg["criterion"],
                                 n_folds=ph_cfg["heldout_folds"],
+                                all_folds=ph_cfg["heldout_all_folds"],
                                 n_permutations=ph_cfg["permutations"])
             phases.save(out / "phases")
             files.append(out / "phases")

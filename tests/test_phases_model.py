@@ -14,6 +14,7 @@ from hypothesis import strategies as st
 from seqmine.encoding.sequences import SequenceDB
 from seqmine.errors import DataFileError, ParameterError
 from seqmine.phases import PhaseModel, _hmm, fit_phase_model, name_state
+from seqmine.phases._lanes import Lanes
 
 # --------------------------------------------------------------------------------------
 # Ice-cream example, Jurafsky & Martin, Speech and Language Processing, 3rd ed. draft,
@@ -195,17 +196,40 @@ def test_state_names_dwell_and_graph(tmp_path):
     m = PhaseModel.from_parameters(
         [0.5, 0.5], [[0.75, 0.25], [0.02, 0.98]],
         [[0.45, 0.45, 0.1], [0.05, 0.05, 0.9]], ["measure_height", "pause:long", "paint_pot"])
-    assert m.state_names == ["measure_height + pause:long", "paint_pot"]
+    assert m.state_descriptions == ["measure_height + pause:long", "paint_pot"]
+    assert m.state_names == ["S1 measure_height + pause:long", "S2 paint_pot"]
     np.testing.assert_allclose(m.dwell_times, [4.0, 50.0])  # 1 / (1 - a_ii)
     desc = m.describe_states()
     assert desc["top_tokens"].iloc[1] == "paint_pot 0.900; measure_height 0.050; pause:long 0.050"
+    assert desc["name"].tolist() == m.state_names
     g = m.to_graph(threshold=0.05)
-    assert set(g.edges) == {("S1", "S1"), ("S1", "S2"), ("S2", "S2")}
-    assert g.nodes["S2"]["name"] == "paint_pot"
+    # S2 -> S1 (0.02) is below the threshold but is S2's most likely move elsewhere
+    assert set(g.edges) == {("S1", "S1"), ("S1", "S2"), ("S2", "S2"), ("S2", "S1")}
+    assert g.nodes["S2"]["name"] == "S2 paint_pot"
     path = m.write_graphml(tmp_path / "g.graphml")
     back = nx.read_graphml(path)
     assert math.isclose(back.edges["S1", "S2"]["probability"], 0.25)
     assert back.nodes["S1"]["dwell"] == 4.0
+
+
+def test_state_names_are_unique_when_states_share_tokens():
+    # regression: two states dominated by the same pause tokens got the same name
+    row = [0.45, 0.4, 0.15]
+    m = PhaseModel.from_parameters([0.5, 0.5], [[0.5, 0.5], [0.5, 0.5]], [row, row],
+                                   ["pause:long", "pause:medium", "reset"])
+    assert m.state_descriptions[0] == m.state_descriptions[1] == "pause:long + pause:medium"
+    assert len(set(m.state_names)) == 2
+
+
+def test_every_state_keeps_its_strongest_move_in_the_graph():
+    # regression: with every move below the threshold the diagram had no arrows
+    A = np.full((4, 4), 0.02) + np.diag([0.94] * 4)
+    A[0, 1] = A[1, 2] = A[2, 3] = A[3, 0] = 0.03
+    A /= A.sum(axis=1, keepdims=True)
+    m = PhaseModel.from_parameters(np.full(4, 0.25), A, np.eye(4))
+    g = m.to_graph(threshold=0.1)
+    moves = {(u, v) for u, v in g.edges if u != v}
+    assert moves == {("S1", "S2"), ("S2", "S3"), ("S3", "S4"), ("S4", "S1")}
 
 
 def test_name_state_mass_rule():
@@ -226,7 +250,26 @@ def test_json_round_trip(tmp_path):
     np.testing.assert_array_equal(back.info["occupancy"], m.info["occupancy"])
     assert back.score(db) == m.score(db)
     data = json.loads(path.read_text())
-    assert data["format"] == "seqmine-phase-model" and isinstance(data["transmat"], list)
+    assert data["format"] == "seqmine-phase-model" and data["version"] == 2
+    assert isinstance(data["transition_matrix"], list) and data["tokens"] == m.vocab
+    assert set(data) >= {"start_probabilities", "transition_matrix",
+                         "emission_probabilities", "tokens"}
+    assert not set(data) & {"startprob", "transmat", "emissionprob", "vocab"}
+
+
+def test_version_1_model_files_still_read(tmp_path):
+    # version 1 spelled the parameters startprob / transmat / emissionprob / vocab
+    v1 = {"format": "seqmine-phase-model", "version": 1, "label": "pooled",
+          "vocab": ["1", "2", "3"], "startprob": ICE_PI, "transmat": ICE_A,
+          "emissionprob": ICE_B, "log_likelihood": None, "n_observations": 0,
+          "emission_floor": 0.0, "info": {}}
+    p = tmp_path / "old.json"
+    p.write_text(json.dumps(v1))
+    m = PhaseModel.load(p)
+    assert m.equals(PhaseModel.from_parameters(ICE_PI, ICE_A, ICE_B, ["1", "2", "3"],
+                                               label="pooled"))
+    # J&M ice-cream: P(3 1 3) = 0.028562 (see above)
+    assert math.isclose(math.exp(m.score([ICE_313])), 0.028562, rel_tol=1e-9)
 
 
 def test_json_bad_files(tmp_path):
@@ -239,6 +282,9 @@ def test_json_bad_files(tmp_path):
         PhaseModel.load(p)
     p.write_text('{"format": "seqmine-phase-model", "version": 99}')
     with pytest.raises(DataFileError, match="version 99 is not supported"):
+        PhaseModel.load(p)
+    p.write_text('{"format": "seqmine-phase-model", "version": 2, "tokens": ["a"]}')
+    with pytest.raises(DataFileError, match="lacks start_probabilities, transition_matrix"):
         PhaseModel.load(p)
     with pytest.raises(DataFileError, match="no such phase model file"):
         PhaseModel.load(tmp_path / "missing.json")
@@ -259,27 +305,72 @@ def test_model_parameter_errors():
         m.score(db)
 
 
-def test_lean_estep_equals_stock_hmmlearn():
-    # our E-step shortcut must give the same Baum-Welch fit as hmmlearn itself
-    gen = PhaseModel.from_parameters([0.5, 0.3, 0.2], [[0.8, 0.1, 0.1], [0.2, 0.7, 0.1],
-                                                       [0.1, 0.3, 0.6]],
-                                     [[0.6, 0.2, 0.1, 0.1], [0.1, 0.6, 0.2, 0.1],
-                                      [0.1, 0.1, 0.2, 0.6]])
+@settings(max_examples=40, deadline=None)
+@given(small_models(), st.integers(1, 4))
+def test_lanes_match_hmmlearn_score_and_posteriors(case, chunk):
+    # our forward-backward, with sequences cut into lanes of `chunk` tokens, against
+    # hmmlearn's public score and predict_proba (reference library)
+    pi, A, B, seqs = case
+    X = np.concatenate([np.asarray(s) for s in seqs])
+    lengths = [len(s) for s in seqs]
+    lanes = Lanes(X, lengths, B.shape[1], chunk=chunk)
+    ref = _hmm._hmm_from(pi, A, B)
+    ll = lanes.loglik(pi, A, B)[0]
+    assert math.isclose(ll.sum(), ref.score(X.reshape(-1, 1), lengths), rel_tol=1e-10,
+                        abs_tol=1e-12)
+    np.testing.assert_allclose(lanes.posteriors(pi, A, B)[0],
+                               ref.predict_proba(X.reshape(-1, 1), lengths), atol=1e-9)
+
+
+def _generator_3x4():
+    return PhaseModel.from_parameters([0.5, 0.3, 0.2], [[0.8, 0.1, 0.1], [0.2, 0.7, 0.1],
+                                                        [0.1, 0.3, 0.6]],
+                                      [[0.6, 0.2, 0.1, 0.1], [0.1, 0.6, 0.2, 0.1],
+                                       [0.1, 0.1, 0.2, 0.6]])
+
+
+@pytest.mark.parametrize("chunk", [None, 3, 8])
+def test_plain_em_equals_hmmlearn_from_the_same_start(chunk):
+    # Baum-Welch without acceleration, from one start, must retrace hmmlearn's own fit
+    # (public API: init_params="" keeps the start; 25 iterations, no early stop)
+    from seqmine.phases._em import baum_welch, start_point
+
     lengths = np.array([1, 7, 30, 12, 2, 25] * 5)
-    X, _ = gen.sample(lengths, seed=5)
-    start = _hmm.start_point(X, 3, 4, seed=2)
-    fits = []
-    for cls in (CategoricalHMM, _hmm._LeanCategoricalHMM):
-        h = cls(n_components=3, n_features=4, init_params="", params="ste", n_iter=25,
-                tol=-np.inf, implementation="scaling")
-        h.startprob_, h.transmat_, h.emissionprob_ = (a.copy() for a in start)
-        h.fit(X.reshape(-1, 1), lengths)
-        fits.append(h)
-    stock, lean = fits
-    for name in ("startprob_", "transmat_", "emissionprob_"):
-        np.testing.assert_allclose(getattr(lean, name), getattr(stock, name), rtol=1e-9,
-                                   atol=1e-12)
-    np.testing.assert_allclose(lean.monitor_.history, stock.monitor_.history, rtol=1e-12)
+    X, _ = _generator_3x4().sample(lengths, seed=5)
+    start = start_point("random", X, lengths, 3, 4, np.random.default_rng(2))
+    ours = baum_welch(Lanes(X, lengths, 4, chunk=chunk), *(a[None] for a in start),
+                      max_iter=25, tol=-np.inf, accelerate=False)
+    h = CategoricalHMM(n_components=3, n_features=4, init_params="", params="ste", n_iter=25,
+                       tol=-np.inf, implementation="scaling")
+    h.startprob_, h.transmat_, h.emissionprob_ = (a.copy() for a in start)
+    h.fit(X.reshape(-1, 1), lengths)
+    for mine, theirs in ((ours["startprob"][0], h.startprob_), (ours["transmat"][0], h.transmat_),
+                         (ours["emissionprob"][0], h.emissionprob_)):
+        np.testing.assert_allclose(mine, theirs, rtol=1e-8, atol=1e-11)
+    assert ours["n_iter"][0] == 25 and not ours["converged"][0]
+
+
+def test_accelerated_em_never_ends_below_plain_em_steps():
+    # SQUAREM keeps an extrapolated point only when it beats a plain EM step, so the
+    # log-likelihood it reports never decreases from cycle to cycle (invariant)
+    from seqmine.phases._em import baum_welch, start_point
+
+    lengths = np.array([40, 25, 60, 33] * 6)
+    X, _ = _generator_3x4().sample(lengths, seed=9)
+    lanes = Lanes(X, lengths, 4)
+    start = [a[None] for a in start_point("sticky", X, lengths, 3, 4,
+                                          np.random.default_rng(4))]
+    ll0 = lanes.loglik(*start).sum()
+    history = []
+    for steps in (3, 6, 9, 12, 30, 60):
+        res = baum_welch(lanes, *start, max_iter=steps, tol=-np.inf)
+        history.append(lanes.loglik(res["startprob"], res["transmat"],
+                                    res["emissionprob"]).sum())
+    assert history[0] >= ll0
+    assert all(b >= a - 1e-9 for a, b in zip(history, history[1:]))
+    plain = baum_welch(lanes, *start, max_iter=60, tol=-np.inf, accelerate=False)
+    assert history[-1] >= lanes.loglik(plain["startprob"], plain["transmat"],
+                                       plain["emissionprob"]).sum() - 1e-6
 
 
 def test_plot_phase_model_draws_states_and_edges(tmp_path):
@@ -295,7 +386,7 @@ def test_plot_phase_model_draws_states_and_edges(tmp_path):
     m = fit_phase_model(db, n_states=2, n_restarts=1, seed=0, label="pooled")
     fig = plot_phase_model(m, threshold=0.01)
     texts = [t.get_text() for t in fig.axes[0].texts]
-    assert any(t.startswith("S1\n" + m.state_names[0]) for t in texts)
+    assert any(t.startswith("S1\n" + m.state_descriptions[0]) for t in texts)
     assert fig.axes[0].get_title() == "phase model: pooled"
     fig.savefig(tmp_path / "g.png")
     assert (tmp_path / "g.png").stat().st_size > 1000

@@ -9,9 +9,10 @@ from sklearn.base import BaseEstimator, ClassifierMixin
 from .._util.checks import check_choice, check_int, check_number
 from ..encoding.sequences import SequenceDB
 from ..errors import NotFittedError, ParameterError
-from . import _hmm
+from ._lanes import Lanes
 from .fitting import (
     DEFAULT_EMISSION_FLOOR,
+    DEFAULT_TOL,
     fit_phase_model,
     parse_state_range,
     select_n_states,
@@ -38,8 +39,9 @@ class GroupHMMClassifier(ClassifierMixin, BaseEstimator):
         Baum--Welch restarts per model.
     seed : int
     n_iter : int
+        Most EM steps (E-steps) per model.
     tol : float
-        Per-token EM convergence threshold.
+        EM convergence threshold (absolute gain of the total log-likelihood).
     emission_floor : float
         Additive emission smoothing (tokens unseen in a group keep a small probability).
     prior : {"empirical", "uniform"}
@@ -76,7 +78,7 @@ class GroupHMMClassifier(ClassifierMixin, BaseEstimator):
     True
     """
 
-    def __init__(self, *, n_states=3, n_restarts=3, seed=0, n_iter=200, tol=1e-4,
+    def __init__(self, *, n_states=3, n_restarts=3, seed=0, n_iter=200, tol=DEFAULT_TOL,
                  emission_floor=DEFAULT_EMISSION_FLOOR, prior="empirical", n_jobs=1):
         self.n_states = n_states
         self.n_restarts = n_restarts
@@ -105,7 +107,7 @@ class GroupHMMClassifier(ClassifierMixin, BaseEstimator):
             members = [s for s, lab in zip(seqs, labels) if lab == c]
             counts.append(len(members))
             kw = dict(n_restarts=n_restarts, seed=self.seed, n_jobs=self.n_jobs,
-                      n_iter=self.n_iter, tol=self.tol, emission_floor=self.emission_floor,
+                      max_iter=self.n_iter, tol=self.tol, emission_floor=self.emission_floor,
                       vocab=vocab, label=str(c), _purpose=100 + k)
             if len(state_counts) == 1:
                 models.append(fit_phase_model(members, n_states=state_counts[0], **kw))
@@ -129,8 +131,8 @@ class GroupHMMClassifier(ClassifierMixin, BaseEstimator):
         """``log P(O | model_c)`` per sequence and class, shape (n_sequences, n_classes)."""
         self._check_fitted()
         Xf, lengths = self._score_data(X)
-        cols = [_hmm.forward_loglik(m.startprob, m.transmat, m.emissionprob, Xf, lengths)
-                for m in self.models_]
+        lanes = Lanes(Xf, lengths, len(self.vocab_))
+        cols = [lanes.loglik(m.startprob, m.transmat, m.emissionprob)[0] for m in self.models_]
         return np.column_stack(cols)
 
     def predict_log_proba(self, X):

@@ -268,12 +268,12 @@ def model_distance(model_a, model_b, *, lengths=None, n_tokens=20000, seed=0):
 
 
 def state_paths_db(model, db, states):
-    """Decoded state paths as a SequenceDB of state tokens ``"S1:<state name>"``.
+    """Decoded state paths as a SequenceDB of state tokens ``"S1:<dominant tokens>"``.
 
     Times, source rows, learners, sessions and groups are those of ``db``, so the
     miner and contrast statistics run on phase sequences unchanged.
     """
-    vocab = [f"{lab}:{name}" for lab, name in zip(model.state_labels, model.state_names)]
+    vocab = [f"{lab}:{d}" for lab, d in zip(model.state_labels, model.state_descriptions)]
     states = np.asarray(states, dtype=np.int64)
     if len(states) != db.n_tokens:
         raise ParameterError(f"Got {len(states)} decoded states for {db.n_tokens} tokens.")

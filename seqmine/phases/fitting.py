@@ -1,4 +1,18 @@
-"""Fitting phase models: Baum--Welch restarts and choice of the number of states."""
+"""Fitting phase models: Baum--Welch restarts and choice of the number of states.
+
+How a model is fitted (:func:`fit_phase_model`): ``n_restarts`` start points of
+different kinds (a clustering of the tokens' contexts, hmmlearn-style random
+Dirichlet rows, a sticky start; see :mod:`._em`) run side by side for a few EM
+steps; the one with the highest log-likelihood is then run to convergence by
+SQUAREM-accelerated EM, which stops when a plain EM step gains less than ``tol``
+(absolute total log-likelihood) twice in a row, or after ``max_iter`` E-steps.
+
+How the state count is chosen (:func:`select_n_states`): every count in the range
+is fitted on all sequences (BIC) and, for the held-out score, on the learners
+outside one held-out fold; the held-out fold is scored by the model fitted
+without it. The model on all sequences starts from that training fit, so each
+count costs one search for a good optimum plus a short refinement.
+"""
 
 from __future__ import annotations
 
@@ -13,24 +27,35 @@ from .._util.checks import check_int, check_number
 from ..encoding.sequences import SequenceDB
 from ..errors import ParameterError, SeqmineWarning
 from . import _hmm
+from ._em import START_KINDS, baum_welch, split_start, start_point
+from ._lanes import Lanes
 from .model import PhaseModel
 
-__all__ = ["fit_phase_model", "select_n_states", "learner_folds", "parse_state_range"]
+__all__ = ["fit_phase_model", "select_n_states", "learner_folds", "parse_state_range",
+           "frequency_loglik"]
 
 #: Default additive emission smoothing (see :func:`_hmm.apply_emission_floor`).
 DEFAULT_EMISSION_FLOOR = 1e-4
+#: Default EM limits: most E-steps, and the absolute log-likelihood gain that counts
+#: as converged (hmmlearn's default ``tol``).
+DEFAULT_MAX_ITER = 500
+DEFAULT_TOL = 0.01
+#: E-steps every start runs before the best one is run to convergence.
+SCREEN_ITER = 9
 
 
-def fit_phase_model(sequences, *, n_states=3, n_restarts=5, seed=0, n_jobs=1, n_iter=200,
-                    tol=1e-4, emission_floor=DEFAULT_EMISSION_FLOOR, vocab=None,
-                    label="model", _purpose=0):
-    """Fit one categorical HMM by Baum--Welch with several random restarts.
+def fit_phase_model(sequences, *, n_states=3, n_restarts=3, seed=0, n_jobs=1,
+                    max_iter=DEFAULT_MAX_ITER, tol=DEFAULT_TOL,
+                    emission_floor=DEFAULT_EMISSION_FLOOR, vocab=None, label="model",
+                    start=None, _purpose=0):
+    """Fit one categorical HMM by Baum--Welch from several starts; keep the best.
 
-    Each restart starts from a random point drawn from a seed derived from
-    ``(seed, purpose, n_states, restart)``; the restart with the highest
-    log-likelihood wins (ties: the lowest restart number). Restarts run in
-    parallel with ``n_jobs`` and give the same result as a serial run. States of
-    the winner are put in a canonical order: decreasing expected occupancy.
+    Start ``r`` is of kind ``START_KINDS[r % 3]`` (``"clustered"``, ``"random"``,
+    ``"sticky"``), drawn from a seed derived from ``(seed, purpose, n_states,
+    restart)``. All starts run :data:`SCREEN_ITER` accelerated EM steps side by side;
+    the one with the highest log-likelihood (ties: the lowest restart number) runs
+    on until EM converges. States of the result are put in a canonical order:
+    decreasing expected occupancy.
 
     Parameters
     ----------
@@ -38,18 +63,24 @@ def fit_phase_model(sequences, *, n_states=3, n_restarts=5, seed=0, n_jobs=1, n_
         Token ids; with a list, ``vocab`` (or the largest id) fixes the vocabulary.
     n_states : int
     n_restarts : int
+        Number of starts of the kinds above (besides ``start`` when given; then 0 is
+        allowed).
     seed : int
     n_jobs : int
-        joblib workers (``-1`` = all cores).
-    n_iter : int
-        Maximum EM iterations per restart.
+        Accepted for symmetry with :func:`select_n_states`; the starts of one fit
+        run side by side in one process.
+    max_iter : int
+        Most E-steps (screening included).
     tol : float
-        EM stops when the log-likelihood gains less than ``tol`` per token.
+        Convergence threshold: absolute gain of the total log-likelihood per EM
+        step (twice in a row).
     emission_floor : float
         Additive smoothing of emission rows, ``(b + floor) / (1 + M floor)``, so a
         token unseen in the training data keeps a small probability.
     vocab : list of str, optional
     label : str
+    start : PhaseModel or (startprob, transmat, emissionprob), optional
+        A start point tried first (e.g. a model fitted on related data).
 
     Returns
     -------
@@ -62,44 +93,58 @@ def fit_phase_model(sequences, *, n_states=3, n_restarts=5, seed=0, n_jobs=1, n_
     >>> m.n_states, m.vocab
     (2, ['a', 'b'])
     """
+    where = "fit_phase_model"
     X, lengths, vocab = _arrays(sequences, vocab)
-    n_states = check_int(n_states, "n_states", "fit_phase_model", minimum=1)
-    n_restarts = check_int(n_restarts, "n_restarts", "fit_phase_model", minimum=1)
-    n_jobs = _check_jobs(n_jobs, "fit_phase_model")
-    emission_floor = check_number(emission_floor, "emission_floor", "fit_phase_model",
-                                  minimum=0)
+    n_states = check_int(n_states, "n_states", where, minimum=1)
+    n_restarts = check_int(n_restarts, "n_restarts", where,
+                           minimum=1 if start is None else 0)
+    _check_jobs(n_jobs, where)
+    max_iter = check_int(max_iter, "max_iter", where, minimum=1)
+    tol = check_number(tol, "tol", where, minimum=0)
+    emission_floor = check_number(emission_floor, "emission_floor", where, minimum=0)
     _check_supported(n_states, len(vocab), len(X), label)
-    tasks = [(n_states, r) for r in range(n_restarts)]
-    fits = _run(X, lengths, len(vocab), tasks, seed, _purpose, 0, n_jobs,
-                n_iter=n_iter, tol=tol, emission_floor=emission_floor)
-    return _best_model(fits, X, lengths, vocab, label, emission_floor, seed, n_restarts)
+    starts = [] if start is None else [_as_start(start, n_states, len(vocab))]
+    fit = _fit_best(X, lengths, len(vocab), n_states, seed_parts=(seed, _purpose, n_states, 0),
+                    starts=starts, n_restarts=n_restarts, max_iter=max_iter, tol=tol,
+                    emission_floor=emission_floor)
+    return _best_model(fit, X, lengths, vocab, label, emission_floor, seed, n_restarts)
 
 
-def select_n_states(sequences, *, n_states=range(2, 7), n_restarts=5, n_folds=3, seed=0,
-                    n_jobs=1, n_iter=200, tol=1e-4, emission_floor=DEFAULT_EMISSION_FLOOR,
-                    learners=None, vocab=None, label="pooled", _purpose=0):
+def select_n_states(sequences, *, n_states=range(2, 6), n_restarts=3, n_folds=3,
+                    all_folds=False, seed=0, n_jobs=1, max_iter=DEFAULT_MAX_ITER,
+                    tol=DEFAULT_TOL, emission_floor=DEFAULT_EMISSION_FLOOR, learners=None,
+                    vocab=None, label="pooled", _purpose=0):
     """Fit every state count in a range; score it by BIC and held-out log-likelihood.
 
-    Held-out log-likelihood: learners are split into ``n_folds`` folds (sequences of
-    one learner stay together); for each fold a model is fitted (with restarts) on
-    the other folds and scores the fold's sequences. State counts whose free
-    parameters reach the number of tokens are dropped with a :class:`SeqmineWarning`.
+    Held-out log-likelihood: learners are dealt into ``n_folds`` folds (sequences
+    of one learner stay together). By default one fold is held out: a model is
+    fitted (with restarts) on the other folds and scores the held-out fold; with
+    ``all_folds=True`` every fold is held out in turn (``n_folds`` fits per count)
+    and the scores are added. The model on all sequences, which BIC scores, starts
+    from the training fit of the first fold. State counts whose free parameters
+    reach the number of tokens are dropped with a :class:`SeqmineWarning`.
 
     Returns
     -------
     table : pandas.DataFrame
         One row per state count: ``model``, ``n_states``, ``n_parameters``,
-        ``n_observations``, ``log_likelihood``, ``bic``, ``heldout_loglik`` (summed
-        over folds), ``heldout_loglik_per_token``, ``best_bic``, ``best_heldout``
-        (bool: the count chosen by each criterion).
+        ``n_observations``, ``log_likelihood``, ``loglik_per_token``, ``bic``,
+        ``heldout_loglik`` (summed over the held-out folds),
+        ``heldout_loglik_per_token``, ``train_loglik_per_token`` (the training fits
+        on their own sequences), ``n_iter`` (E-steps of the model on all sequences),
+        ``converged``, ``best_bic``, ``best_heldout`` (bool: the count chosen by each
+        criterion).
     models : dict int -> PhaseModel
         The model fitted on all sequences for each state count.
     """
+    where = "select_n_states"
     X, lengths, vocab = _arrays(sequences, vocab)
     counts = parse_state_range(n_states)
-    n_restarts = check_int(n_restarts, "n_restarts", "select_n_states", minimum=1)
-    n_jobs = _check_jobs(n_jobs, "select_n_states")
-    n_folds = check_int(n_folds, "n_folds", "select_n_states", minimum=0)
+    n_restarts = check_int(n_restarts, "n_restarts", where, minimum=1)
+    n_jobs = _check_jobs(n_jobs, where)
+    n_folds = check_int(n_folds, "n_folds", where, minimum=0)
+    max_iter = check_int(max_iter, "max_iter", where, minimum=1)
+    tol = check_number(tol, "tol", where, minimum=0)
     if n_folds == 1:
         raise ParameterError("The 'n_folds' parameter of select_n_states must be 0 (no "
                              "held-out score) or at least 2. Got 1 instead.")
@@ -118,49 +163,54 @@ def select_n_states(sequences, *, n_states=range(2, 7), n_restarts=5, n_folds=3,
             f"tokens and were skipped; the range was capped at {max(supported)} states.",
             code="state_counts_skipped", count=len(dropped)), stacklevel=2)
     counts = supported
-    tasks = [(n, r) for n in counts for r in range(n_restarts)]
-    fold_of = None
+    splits = []
     if n_folds:
         fold_of = learner_folds(learners if learners is not None else
                                 np.arange(len(lengths)).astype(str), n_folds, seed)
-        tasks_cv = [(n, r, f) for f in range(n_folds) for n in counts for r in range(n_restarts)]
-    # all fits in one parallel batch
-    offsets = np.zeros(len(lengths) + 1, dtype=np.int64)
-    np.cumsum(lengths, out=offsets[1:])
-    jobs = [(X, lengths, n, r, 0) for n, r in tasks]
-    if n_folds:
-        train_sets = []
-        for f in range(n_folds):
-            idx = np.flatnonzero(fold_of != f)
-            train_sets.append(_take(X, offsets, lengths, idx))
-        jobs += [(train_sets[f][0], train_sets[f][1], n, r, f + 1) for n, r, f in tasks_cv]
-    fits = _parallel(jobs, M, seed, _purpose, n_jobs, n_iter=n_iter, tol=tol,
-                     emission_floor=emission_floor)
-    full = fits[:len(tasks)]
-    cv = fits[len(tasks):]
+        offsets = np.zeros(len(lengths) + 1, dtype=np.int64)
+        np.cumsum(lengths, out=offsets[1:])
+        for f in range(n_folds if all_folds else 1):
+            splits.append((_take(X, offsets, lengths, np.flatnonzero(fold_of != f)),
+                           _take(X, offsets, lengths, np.flatnonzero(fold_of == f))))
+    opts = dict(n_restarts=n_restarts, max_iter=max_iter, tol=tol,
+                emission_floor=emission_floor)
+    if splits:
+        calls = [delayed(_fit_counts)(Xtr, Ltr, M, counts, (seed, _purpose, f + 1), opts)
+                 for f, ((Xtr, Ltr), _) in enumerate(splits)]
+        train = _run_calls(calls, n_jobs)
+        held = {n: [] for n in counts}
+        for fits, ((Xtr, _), (Xho, Lho)) in zip(train, splits):
+            lanes = Lanes(Xho, Lho, M)
+            for n, fit in fits.items():
+                ho = float(lanes.loglik(fit["startprob"], fit["transmat"],
+                                        fit["emissionprob"]).sum())
+                held[n].append({"heldout_loglik": ho, "heldout_tokens": len(Xho),
+                                "train_loglik": fit["loglik"], "train_tokens": len(Xtr)})
+        calls = [delayed(_refine)(X, lengths, M, train[0][n], opts) for n in counts]
+        full = dict(zip(counts, _run_calls(calls, n_jobs)))
+    else:
+        full = _fit_counts(X, lengths, M, counts, (seed, _purpose, 0), opts)
+        held = {n: [] for n in counts}
+    outs = [(full[n], held[n]) for n in counts]
     rows, models = [], {}
-    for n in counts:
-        sel = [fit for (nn, _), fit in zip(tasks, full) if nn == n]
-        model = _best_model(sel, X, lengths, vocab, label, emission_floor, seed, n_restarts)
+    for n, (fit, held) in zip(counts, outs):
+        model = _best_model(fit, X, lengths, vocab, label, emission_floor, seed, n_restarts)
         models[n] = model
         k = model.n_free_parameters
         row = {"model": label, "n_states": n, "n_parameters": k, "n_observations": len(X),
                "log_likelihood": model.log_likelihood,
+               "loglik_per_token": model.log_likelihood / max(len(X), 1),
                "bic": -2.0 * model.log_likelihood + k * math.log(len(X)),
-               "heldout_loglik": float("nan"), "heldout_loglik_per_token": float("nan")}
-        if n_folds:
-            total, n_tok = 0.0, 0
-            for f in range(n_folds):
-                sel = [fit for (nn, _, ff), fit in zip(tasks_cv, cv) if nn == n and ff == f]
-                best = max(range(len(sel)), key=lambda i: (sel[i]["loglik"], -i))
-                b = sel[best]
-                idx = np.flatnonzero(fold_of == f)
-                Xh, lh = _take(X, offsets, lengths, idx)
-                total += float(_hmm.forward_loglik(b["startprob"], b["transmat"],
-                                                   b["emissionprob"], Xh, lh).sum())
-                n_tok += len(Xh)
-            row["heldout_loglik"] = total
-            row["heldout_loglik_per_token"] = total / max(n_tok, 1)
+               "heldout_loglik": float("nan"), "heldout_loglik_per_token": float("nan"),
+               "train_loglik_per_token": float("nan"),
+               "n_iter": int(fit["n_iter"]), "converged": bool(fit["converged"])}
+        if held:
+            ho_ll = sum(h["heldout_loglik"] for h in held)
+            ho_n = sum(h["heldout_tokens"] for h in held)
+            tr_ll = sum(h["train_loglik"] for h in held)
+            tr_n = sum(h["train_tokens"] for h in held)
+            row.update(heldout_loglik=ho_ll, heldout_loglik_per_token=ho_ll / max(ho_n, 1),
+                       train_loglik_per_token=tr_ll / max(tr_n, 1))
         rows.append(row)
     table = pd.DataFrame(rows)
     table["best_bic"] = table["bic"] == table["bic"].min()
@@ -171,6 +221,27 @@ def select_n_states(sequences, *, n_states=range(2, 7), n_restarts=5, n_folds=3,
     _first_only(table, "best_bic")
     _first_only(table, "best_heldout")
     return table, models
+
+
+def frequency_loglik(sequences, *, emission_floor=DEFAULT_EMISSION_FLOOR, vocab=None):
+    """Log-likelihood of the sequences under their own token frequencies.
+
+    The baseline every phase model should beat clearly: a one-state model whose
+    emission row is the (floored) share of each token, i.e. tokens drawn
+    independently of each other.
+
+    Examples
+    --------
+    >>> round(frequency_loglik([[0, 0, 1, 1]], emission_floor=0), 6)  # 4 log(1/2)
+    -2.772589
+    """
+    X, _, vocab = _arrays(sequences, vocab)
+    if len(X) == 0:
+        return 0.0
+    counts = np.bincount(X, minlength=len(vocab)).astype(np.float64)
+    p = _hmm.apply_emission_floor((counts / counts.sum())[None, :], emission_floor)[0]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return float(np.sum(np.where(counts > 0, counts * np.log(p), 0.0)))
 
 
 def learner_folds(learners, n_folds, seed):
@@ -270,44 +341,110 @@ def _check_supported(n_states, n_symbols, n_tokens, label):
 
 
 def _take(X, offsets, lengths, idx):
-    lens = lengths[idx]
-    parts = [X[offsets[i]:offsets[i + 1]] for i in idx]
-    Xs = np.concatenate(parts) if parts else np.zeros(0, dtype=np.int64)
-    return Xs, lens
+    """Tokens and lengths of the sequences ``idx`` (in increasing order)."""
+    keep = np.zeros(len(lengths), dtype=bool)
+    keep[idx] = True
+    return X[np.repeat(keep, lengths)], lengths[keep]
 
 
-def _fit_job(X, lengths, n_symbols, n_states, seed, kwargs):
-    return _hmm.fit_restart(X, lengths, n_states, n_symbols, seed, **kwargs)
-
-
-def _parallel(jobs, n_symbols, seed, purpose, n_jobs, **kwargs):
-    """Run ``(X, lengths, n_states, restart, fold)`` fits; order of results = order of jobs."""
-    calls = [(X, lengths, n_symbols, n, _hmm.derive_seed(seed, purpose, n, fold, r), kwargs)
-             for X, lengths, n, r, fold in jobs]
+def _run_calls(calls, n_jobs):
     if n_jobs == 1 or len(calls) <= 1:
-        return [_fit_job(*c) for c in calls]
-    return Parallel(n_jobs=n_jobs)(delayed(_fit_job)(*c) for c in calls)
+        return [c[0](*c[1], **c[2]) for c in calls]
+    return Parallel(n_jobs=n_jobs)(calls)
 
 
-def _run(X, lengths, n_symbols, tasks, seed, purpose, fold, n_jobs, **kwargs):
-    jobs = [(X, lengths, n, r, fold) for n, r in tasks]
-    return _parallel(jobs, n_symbols, seed, purpose, n_jobs, **kwargs)
+def _as_start(start, n_states, n_symbols):
+    if isinstance(start, PhaseModel):
+        start = (start.startprob, start.transmat, start.emissionprob)
+    pi, A, B = (np.asarray(a, dtype=np.float64) for a in start)
+    if pi.shape != (n_states,) or A.shape != (n_states, n_states) or B.shape != (
+            n_states, n_symbols):
+        raise ParameterError(
+            f"The start model has {len(pi)} states and {B.shape[-1]} tokens; it must have "
+            f"{n_states} states and {n_symbols} tokens.")
+    return pi, A, B
 
 
-def _best_model(fits, X, lengths, vocab, label, emission_floor, seed, n_restarts):
-    lls = [f["loglik"] for f in fits]
-    best = max(range(len(fits)), key=lambda i: (fits[i]["loglik"], -i))
-    b = fits[best]
-    pi, A, B = b["startprob"], b["transmat"], b["emissionprob"]
+def _fit_best(X, lengths, n_symbols, n_states, *, seed_parts, starts, n_restarts, max_iter,
+              tol, emission_floor, lanes=None):
+    """Screen the starts side by side, run the best to convergence, floor emissions."""
+    lanes = lanes if lanes is not None else Lanes(X, lengths, n_symbols)
+    cands = [s[:3] for s in starts]
+    kinds = [s[3] if len(s) > 3 else "given" for s in starts]
+    for r in range(n_restarts):
+        kind = START_KINDS[r % len(START_KINDS)]
+        rng = np.random.default_rng(_hmm.derive_seed(*seed_parts, r))
+        cands.append(start_point(kind, X, lengths, n_states, n_symbols, rng))
+        kinds.append(kind)
+    stacked = [np.stack([c[j] for c in cands]) for j in range(3)]
+    if len(cands) > 1 and max_iter > SCREEN_ITER:
+        screen = baum_welch(lanes, *stacked, max_iter=SCREEN_ITER, tol=tol)
+        screened = [float(v) for v in screen["loglik"]]
+        best = max(range(len(cands)), key=lambda i: (screened[i], -i))
+        one = [a[best:best + 1] for a in (screen["startprob"], screen["transmat"],
+                                          screen["emissionprob"])]
+        if screen["converged"][best]:
+            res, used = {k: v[best:best + 1] for k, v in screen.items()}, 0
+        else:
+            res = baum_welch(lanes, *one, max_iter=max_iter - SCREEN_ITER, tol=tol)
+            used = SCREEN_ITER
+        n_iter = int(res["n_iter"][0]) + used
+    else:
+        res = baum_welch(lanes, *stacked, max_iter=max_iter, tol=tol)
+        screened = [float(v) for v in res["loglik"]]
+        best = max(range(len(cands)), key=lambda i: (screened[i], -i))
+        res = {k: v[best:best + 1] for k, v in res.items()}
+        n_iter = int(res["n_iter"][0])
+    pi = res["startprob"][0]
+    A = res["transmat"][0]
+    B = _hmm.apply_emission_floor(res["emissionprob"][0], emission_floor)
+    ll = float(lanes.loglik(pi, A, B).sum())
+    return {"startprob": pi, "transmat": A, "emissionprob": B, "loglik": ll,
+            "n_iter": n_iter, "converged": bool(res["converged"][0]),
+            "screen_logliks": screened, "best_restart": int(best), "start_kinds": kinds}
+
+
+def _fit_counts(X, lengths, n_symbols, counts, seed_parts, opts):
+    """Fit every state count in turn on one data set; each count also starts from
+    every split of the previous count's fit (:func:`._em.split_start`)."""
+    lanes = Lanes(X, lengths, n_symbols)
+    fits = {}
+    for n in counts:
+        starts = []
+        prev = fits.get(n - 1)
+        if prev is not None:
+            for s in range(n - 1):
+                rng = np.random.default_rng(_hmm.derive_seed(*seed_parts, n, 977, s))
+                starts.append(split_start(prev["startprob"], prev["transmat"],
+                                          prev["emissionprob"], s, rng) + (f"split S{s + 1}",))
+        fits[n] = _fit_best(X, lengths, n_symbols, n, seed_parts=seed_parts + (n,),
+                            starts=starts, lanes=lanes, **opts)
+    return fits
+
+
+def _refine(X, lengths, n_symbols, fit, opts):
+    """The model on all sequences, started from a training fit."""
+    out = _fit_best(X, lengths, n_symbols, len(fit["startprob"]), seed_parts=(0,),
+                    starts=[(fit["startprob"], fit["transmat"], fit["emissionprob"])],
+                    **dict(opts, n_restarts=0))
+    for key in ("screen_logliks", "best_restart", "start_kinds"):
+        out[key] = fit[key]
+    return out
+
+
+def _best_model(fit, X, lengths, vocab, label, emission_floor, seed, n_restarts):
+    pi, A, B = fit["startprob"], fit["transmat"], fit["emissionprob"]
     occ = _hmm.posterior_occupancy(pi, A, B, X, lengths)
     order = np.lexsort((np.arange(len(occ)), -np.round(occ, 12)))
     pi, A, B, occ = pi[order], A[np.ix_(order, order)], B[order], occ[order]
-    info = {"seed": int(seed), "n_restarts": int(n_restarts), "best_restart": int(best),
-            "restart_logliks": [float(v) for v in lls], "n_iter": int(b["n_iter"]),
-            "converged": bool(b["converged"]), "n_sequences": int(len(lengths)),
-            "occupancy": occ}
+    info = {"seed": int(seed), "n_restarts": int(n_restarts),
+            "best_restart": int(fit["best_restart"]),
+            "start_kinds": list(fit["start_kinds"]),
+            "restart_logliks": [float(v) for v in fit["screen_logliks"]],
+            "n_iter": int(fit["n_iter"]), "converged": bool(fit["converged"]),
+            "n_sequences": int(len(lengths)), "occupancy": occ}
     return PhaseModel(startprob=pi, transmat=A, emissionprob=B, vocab=list(vocab), label=label,
-                      log_likelihood=float(b["loglik"]), n_observations=int(len(X)),
+                      log_likelihood=float(fit["loglik"]), n_observations=int(len(X)),
                       emission_floor=float(emission_floor), info=info)
 
 

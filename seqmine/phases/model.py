@@ -15,10 +15,15 @@ from ..encoding.sequences import SequenceDB
 from ..errors import DataFileError, ParameterError
 from . import _hmm
 
-__all__ = ["PhaseModel", "name_state"]
+__all__ = ["PhaseModel", "name_state", "strongest_moves"]
 
 _FORMAT = "seqmine-phase-model"
-_VERSION = 1
+_VERSION = 2
+#: Versions :meth:`PhaseModel.from_dict` reads (version 1 used hmmlearn's spellings
+#: ``startprob``, ``transmat``, ``emissionprob`` and ``vocab``).
+_READABLE = (1, 2)
+_V1_KEYS = {"startprob": "start_probabilities", "transmat": "transition_matrix",
+            "emissionprob": "emission_probabilities", "vocab": "tokens"}
 
 
 def name_state(emission_row, vocab, *, mass=0.5, max_tokens=2):
@@ -45,13 +50,31 @@ def name_state(emission_row, vocab, *, mass=0.5, max_tokens=2):
     return " + ".join(names)
 
 
+def strongest_moves(transmat):
+    """For each state, the other state it most often moves on to (-1 if none).
+
+    Examples
+    --------
+    >>> strongest_moves([[0.9, 0.04, 0.06], [0.5, 0.5, 0.0], [0.0, 0.0, 1.0]]).tolist()
+    [2, 0, -1]
+    """
+    A = np.array(transmat, dtype=np.float64)
+    if A.ndim != 2 or A.shape[0] != A.shape[1] or A.shape[0] == 0:
+        return np.zeros(0, dtype=np.int64)
+    np.fill_diagonal(A, -1.0)
+    best = np.argmax(A, axis=1)
+    return np.where(A[np.arange(len(A)), best] > 0, best, -1)
+
+
 @dataclass
 class PhaseModel:
     """Categorical-emission hidden Markov model with named states.
 
-    States are labelled ``S1 .. SN``; every model shares the full vocabulary of
-    the SequenceDB it was fitted on, and emission rows are smoothed (see
-    ``emission_floor``) so that no token has probability 0.
+    States are labelled ``S1 .. SN`` and named after their most probable tokens
+    (``"S2 advance_week + measure_height"``: label first, so names are unique);
+    every model shares the full vocabulary of the SequenceDB it was fitted on, and
+    emission rows are smoothed (see ``emission_floor``) so that no token has
+    probability 0.
 
     Parameters
     ----------
@@ -139,9 +162,16 @@ class PhaseModel:
         return [f"S{i + 1}" for i in range(self.n_states)]
 
     @property
-    def state_names(self):
-        """Readable name of each state from its dominant tokens."""
+    def state_descriptions(self):
+        """The dominant tokens of each state (:func:`name_state`); two states may share
+        a description."""
         return [name_state(row, self.vocab) for row in self.emissionprob]
+
+    @property
+    def state_names(self):
+        """Unique readable name of each state: label and dominant tokens, e.g.
+        ``"S1 measure_height + pause:long"``."""
+        return [f"{lab} {d}" for lab, d in zip(self.state_labels, self.state_descriptions)]
 
     @property
     def dwell_times(self):
@@ -235,7 +265,9 @@ class PhaseModel:
 
         Nodes are state labels with attributes ``name``, ``top_tokens``, ``dwell``,
         ``start_prob``, ``occupancy``; an edge ``i -> j`` (self-loops included) is
-        present when ``transmat[i, j] >= threshold`` and carries ``probability``.
+        present when ``transmat[i, j] >= threshold`` or when ``j`` is the state ``i``
+        most often moves on to (so no state is left without an arrow), and carries
+        ``probability``.
         """
         g = nx.DiGraph(model=self.label)
         desc = self.describe_states(top)
@@ -245,10 +277,11 @@ class PhaseModel:
                        dwell=float(row.dwell), start_prob=float(row.start_prob),
                        occupancy=float(occ))
         labels = self.state_labels
+        strongest = strongest_moves(self.transmat)
         for i in range(self.n_states):
             for j in range(self.n_states):
                 p = float(self.transmat[i, j])
-                if p >= threshold:
+                if p >= threshold or strongest[i] == j:
                     g.add_edge(labels[i], labels[j], probability=p)
         return g
 
@@ -259,14 +292,21 @@ class PhaseModel:
 
     # ------------------------------------------------------------- storage
     def to_dict(self):
-        """Plain-data form (lists and numbers) for JSON."""
+        """Plain-data form (lists and numbers) for JSON (format version 2).
+
+        Keys: ``format``, ``version``, ``label``, ``tokens`` (the vocabulary, in the
+        column order of the emission rows), ``start_probabilities``,
+        ``transition_matrix`` (rows: from state), ``emission_probabilities`` (rows:
+        states), ``state_labels``, ``state_names``, ``log_likelihood``,
+        ``n_observations``, ``emission_floor``, ``info``.
+        """
         info = {k: (v.tolist() if isinstance(v, np.ndarray) else v) for k, v in self.info.items()}
         return {
             "format": _FORMAT, "version": _VERSION, "label": self.label,
-            "vocab": list(self.vocab),
-            "startprob": self.startprob.tolist(),
-            "transmat": self.transmat.tolist(),
-            "emissionprob": self.emissionprob.tolist(),
+            "tokens": list(self.vocab),
+            "start_probabilities": self.startprob.tolist(),
+            "transition_matrix": self.transmat.tolist(),
+            "emission_probabilities": self.emissionprob.tolist(),
             "state_labels": self.state_labels,
             "state_names": self.state_names,
             "log_likelihood": None if math.isnan(self.log_likelihood) else self.log_likelihood,
@@ -277,19 +317,28 @@ class PhaseModel:
 
     @classmethod
     def from_dict(cls, data, source="model"):
-        """Rebuild a model from :meth:`to_dict` output."""
+        """Rebuild a model from :meth:`to_dict` output (format version 2 or 1)."""
         if not isinstance(data, dict) or data.get("format") != _FORMAT:
             raise DataFileError(f"{source}: not a seqmine phase model (format {_FORMAT!r}).")
-        if data.get("version") != _VERSION:
+        version = data.get("version")
+        if version not in _READABLE:
             raise DataFileError(
-                f"{source}: phase model version {data.get('version')!r} is not supported "
-                f"(this seqmine reads version {_VERSION}); re-run 'seqmine phases'.")
+                f"{source}: phase model version {version!r} is not supported "
+                f"(this seqmine reads versions {', '.join(map(str, _READABLE))}); re-run "
+                f"'seqmine phases'.")
+        if version == 1:
+            data = {_V1_KEYS.get(k, k): v for k, v in data.items()}
+        missing = [k for k in ("tokens", "start_probabilities", "transition_matrix",
+                               "emission_probabilities") if k not in data]
+        if missing:
+            raise DataFileError(f"{source}: phase model lacks {', '.join(missing)}; re-run "
+                                f"'seqmine phases'.")
         ll = data.get("log_likelihood")
         info = dict(data.get("info") or {})
         if "occupancy" in info and info["occupancy"] is not None:
             info["occupancy"] = np.asarray(info["occupancy"], dtype=np.float64)
-        return cls(startprob=data["startprob"], transmat=data["transmat"],
-                   emissionprob=data["emissionprob"], vocab=data["vocab"],
+        return cls(startprob=data["start_probabilities"], transmat=data["transition_matrix"],
+                   emissionprob=data["emission_probabilities"], vocab=data["tokens"],
                    label=str(data.get("label", "model")),
                    log_likelihood=float("nan") if ll is None else float(ll),
                    n_observations=int(data.get("n_observations", 0)),

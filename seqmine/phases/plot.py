@@ -11,10 +11,11 @@ __all__ = ["plot_phase_model"]
 def plot_phase_model(model, ax=None, *, threshold=0.05, title=None):
     """Draw states as circles and transitions above ``threshold`` as arrows.
 
-    Node labels show the state label, its readable name and the expected dwell time;
-    node area grows with the expected occupancy; arrow width grows with the
-    transition probability. Self-transitions are not drawn (the dwell time says
-    the same).
+    Node labels show the state's name (label and dominant tokens) and the expected
+    dwell time; node area grows with the expected occupancy; arrow width grows with
+    the transition probability. Each state's most likely move to another state is
+    drawn whatever its probability (see :meth:`PhaseModel.to_graph`).
+    Self-transitions are not drawn (the dwell time says the same).
 
     Parameters
     ----------
@@ -57,8 +58,8 @@ def plot_phase_model(model, ax=None, *, threshold=0.05, title=None):
     sizes = 1800 + 5000 * occ
     nx.draw_networkx_nodes(graph, pos, ax=ax, node_size=sizes, node_color="#dfe9f3",
                            edgecolors="#34495e")
-    labels = {n: f"{n}\n{graph.nodes[n]['name']}\ndwell {graph.nodes[n]['dwell']:.1f}"
-              for n in graph.nodes}
+    labels = {n: f"{graph.nodes[n]['name'].replace(' ', chr(10), 1)}\n"
+                 f"dwell {graph.nodes[n]['dwell']:.1f}" for n in graph.nodes}
     nx.draw_networkx_labels(graph, pos, labels=labels, ax=ax, font_size=8)
     edges = [(u, v) for u, v in graph.edges if u != v]
     widths = [0.5 + 6 * graph.edges[e]["probability"] for e in edges]

@@ -5,6 +5,7 @@ from __future__ import annotations
 import hashlib
 import json
 import re
+import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -17,7 +18,7 @@ from .._util.csvio import write_csv
 from .._util.jsonio import write_json
 from .._util.progress import progress
 from ..encoding.sequences import SequenceDB
-from ..errors import ParameterError
+from ..errors import ParameterError, SeqmineWarning
 from . import _hmm
 from .compare import (
     align_states,
@@ -26,10 +27,15 @@ from .compare import (
     model_distance,
     state_paths_db,
 )
+from ._em import baum_welch
+from ._lanes import Lanes
 from .fitting import (
     DEFAULT_EMISSION_FLOOR,
+    DEFAULT_MAX_ITER,
+    DEFAULT_TOL,
     _check_jobs,
     fit_phase_model,
+    frequency_loglik,
     parse_state_range,
     select_n_states,
 )
@@ -83,6 +89,12 @@ class PhaseResult:
         (their emission probability is the floor).
     params : dict
         The effective parameters.
+    frequency_loglik : dict str -> float
+        Per model, the log-likelihood of its training sequences under their own token
+        frequencies (a one-state model): the baseline a phase model should beat.
+    notes : list of dict
+        The warnings the stage raised (``code``, ``message``), also shown in the
+        report.
     """
 
     models: dict
@@ -98,6 +110,8 @@ class PhaseResult:
     excluded: pd.DataFrame
     unseen_tokens: dict = field(default_factory=dict)
     params: dict = field(default_factory=dict)
+    frequency_loglik: dict = field(default_factory=dict)
+    notes: list = field(default_factory=list)
 
     @property
     def at_top_of_range(self):
@@ -122,10 +136,17 @@ class PhaseResult:
             "n_tokens_used": int(self.state_db.n_tokens),
             "n_excluded": int(self.n_excluded),
             "excluded_reason": f"shorter than {self.params.get('min_length')} tokens",
-            "models": {k: f"{_model_file(k)}.json" for k in self.models},
+            "models": {k: _model_file(k) for k in self.models},
             "graphs": {k: f"{_graph_file(k)}.graphml" for k in self.models},
             "log_likelihood": {k: m.log_likelihood for k, m in self.models.items()},
+            "frequency_loglik": dict(self.frequency_loglik),
+            "gain_per_token": {
+                k: (m.log_likelihood - self.frequency_loglik[k]) / max(m.n_observations, 1)
+                for k, m in self.models.items() if k in self.frequency_loglik},
+            "converged": {k: bool(m.info.get("converged", True))
+                          for k, m in self.models.items()},
             "unseen_tokens": self.unseen_tokens,
+            "warnings": list(self.notes),
             "params": self.params,
         }
 
@@ -142,7 +163,7 @@ class PhaseResult:
         folder.mkdir(parents=True, exist_ok=True)
         threshold = self.params.get("edge_threshold", 0.05)
         for key, model in self.models.items():
-            model.save(folder / f"{_model_file(key)}.json")
+            model.save(folder / _model_file(key))
             model.write_graphml(folder / f"{_graph_file(key)}.graphml", threshold=threshold)
         tables = {
             "states.csv": self.states,
@@ -161,54 +182,69 @@ class PhaseResult:
         return folder
 
 
-def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, criterion="bic",
-               n_folds=3, min_length=2, groups=None, n_iter=200, tol=1e-4,
-               emission_floor=DEFAULT_EMISSION_FLOOR, n_permutations=19,
+def fit_phases(db, *, n_states=range(2, 6), n_restarts=3, seed=0, n_jobs=1, criterion="bic",
+               n_folds=3, all_folds=False, min_length=2, groups=None,
+               max_iter=DEFAULT_MAX_ITER, tol=DEFAULT_TOL,
+               emission_floor=DEFAULT_EMISSION_FLOOR, n_permutations=0,
                distance_tokens=20000, edge_threshold=0.05, alpha=0.05):
     """Fit phase models (HMMs) pooled and per outcome group, and compare the groups.
 
     1. Sequences shorter than ``min_length`` tokens are left out (listed in
        ``excluded``).
-    2. The pooled model is fitted for every state count in ``n_states``; the count
-       with the lowest BIC (``criterion="bic"``) or the highest held-out
-       log-likelihood over ``n_folds`` learner folds (``"heldout"``) is used for
-       every model. Both scores are reported in ``selection``.
-    3. One model per group at that state count; every model shares the full
-       vocabulary (tokens unseen in a group keep the emission floor).
+    2. The pooled model is fitted for every state count in ``n_states`` (see
+       :func:`select_n_states`); the count with the lowest BIC
+       (``criterion="bic"``) or the highest held-out log-likelihood
+       (``"heldout"``) is used for every model. Both scores are reported in
+       ``selection``.
+    3. One model per group at that state count, started from the pooled model and
+       from ``n_restarts - 1`` other starts; every model shares the full vocabulary
+       (tokens unseen in a group keep the emission floor).
     4. Comparisons: groups on the pooled model's Viterbi paths (Mann--Whitney, BH);
        aligned states and transition matrices of each pair of group models; the
-       Juang--Rabiner distance with a permutation reference (group labels
-       permuted among the pair's sequences, ``n_permutations`` times; both sides
-       refitted from the pooled model, see ``PhaseResult.distances``); the paths
-       as a SequenceDB of state tokens.
+       Juang--Rabiner distance, with a permutation reference on request (group
+       labels permuted among the pair's sequences, ``n_permutations`` times; both
+       sides refitted from the pooled model, see ``PhaseResult.distances``); the
+       paths as a SequenceDB of state tokens.
+    5. Checks, raised as :class:`~seqmine.errors.SeqmineWarning` and kept in
+       ``notes``: a model that gains less than 1 % over the token frequencies
+       (``phase_model_near_frequencies``), a held-out score above the training
+       score at the chosen count (``phase_heldout_above_training``), a chosen count
+       at the top of the range (``phase_states_at_top_of_range``), and EM stopped by
+       ``max_iter`` (``phase_fit_not_converged``).
 
     Parameters
     ----------
     db : SequenceDB
     n_states : int, range, list of int or str like ``"2-6"``
     n_restarts : int
-        Baum--Welch restarts per fit (seeded; best log-likelihood wins).
+        Baum--Welch starts per fit (seeded; best log-likelihood wins).
     seed : int
     n_jobs : int
-        joblib workers for restarts, state counts and permutations; results equal
-        the serial run.
+        joblib workers for state counts, groups and permutations; results equal the
+        serial run.
     criterion : {"bic", "heldout"}
     n_folds : int
-        Learner folds for the held-out score (0 = off).
+        Learner folds for the held-out score (0 = off); one fold (a share
+        ``1 / n_folds`` of the learners) is held out unless ``all_folds``.
+    all_folds : bool
+        Hold out every fold in turn (``n_folds`` training fits per state count).
     min_length : int
         Shortest sequence used (at least 2).
     groups : list of str, optional
         Groups to model and compare; default every group with sequences.
-    n_iter, tol : int, float
-        EM limits (``tol`` per token).
+    max_iter, tol : int, float
+        EM limits: most E-steps, and the absolute log-likelihood gain per step below
+        which EM has converged.
     emission_floor : float
         Additive emission smoothing.
     n_permutations : int
-        Permutations for the distance reference (0 = none).
+        Permutations for the distance reference (0 = none, the default: each costs
+        two model fits).
     distance_tokens : int
         Tokens sampled per direction for the Juang--Rabiner distance.
     edge_threshold : float
-        Smallest transition probability drawn as a graph edge.
+        Smallest transition probability written as a graph edge (each state's
+        strongest transition to another state is always written).
     alpha : float
         Level for ``favours`` in the path comparison.
 
@@ -220,7 +256,7 @@ def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, crit
     --------
     >>> db = SequenceDB.from_lists([["a", "b", "a", "b", "c"]] * 6 + [["c", "c", "a", "b"]] * 6,
     ...                            groups=["strong"] * 6 + ["weak"] * 6)
-    >>> res = fit_phases(db, n_states=2, n_restarts=1, n_folds=0, n_permutations=0)
+    >>> res = fit_phases(db, n_states=2, n_restarts=1, n_folds=0)
     >>> sorted(res.models), res.n_states
     (['pooled', 'strong', 'weak'], 2)
     """
@@ -234,6 +270,8 @@ def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, crit
     criterion = check_choice(criterion, "criterion", ("bic", "heldout"), where)
     n_folds = check_int(n_folds, "n_folds", where, minimum=0)
     min_length = check_int(min_length, "min_length", where, minimum=2)
+    max_iter = check_int(max_iter, "max_iter", where, minimum=1)
+    tol = check_number(tol, "tol", where, minimum=0)
     n_permutations = check_int(n_permutations, "n_permutations", where, minimum=0)
     distance_tokens = check_int(distance_tokens, "distance_tokens", where, minimum=100)
     emission_floor = check_number(emission_floor, "emission_floor", where, minimum=0)
@@ -252,25 +290,35 @@ def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, crit
     used_idx = np.flatnonzero(keep)
     data = db.subset(used_idx)
     group_list = _groups_to_model(data, groups)
-    fit_kw = dict(n_iter=n_iter, tol=tol, emission_floor=emission_floor)
+    fit_kw = dict(max_iter=max_iter, tol=tol, emission_floor=emission_floor)
 
     bar = progress(total=3 + len(group_list), desc="phases")
     selection, by_count = select_n_states(
-        data, n_states=counts, n_restarts=n_restarts, n_folds=n_folds, seed=seed,
-        n_jobs=n_jobs, learners=data.learners, label="pooled", _purpose=0, **fit_kw)
+        data, n_states=counts, n_restarts=n_restarts, n_folds=n_folds, all_folds=all_folds,
+        seed=seed, n_jobs=n_jobs, learners=data.learners, label="pooled", _purpose=0, **fit_kw)
     col = "best_bic" if criterion == "bic" else "best_heldout"
     chosen = int(selection.loc[selection[col], "n_states"].iloc[0])
     selection["selected"] = selection["n_states"] == chosen
     bar.update(1)
     models = {"pooled": by_count[chosen]}
+    subsets = {}
     unseen = {}
     for g in group_list:
         gi = data.group_names.index(g)
         sub = data.subset(np.flatnonzero(data.groups == gi))
+        subsets[g] = sub
         present = np.bincount(sub.tokens.astype(np.int64), minlength=len(data.vocab)) > 0
         unseen[g] = [t for t, p in zip(data.vocab, present) if not p]
-        models[g] = fit_phase_model(sub, n_states=chosen, n_restarts=n_restarts, seed=seed,
-                                    n_jobs=n_jobs, label=g, _purpose=1 + gi, **fit_kw)
+    group_calls = [delayed(fit_phase_model)(
+        subsets[g], n_states=chosen, n_restarts=n_restarts, seed=seed, label=g,
+        start=models["pooled"], _purpose=1 + data.group_names.index(g), **fit_kw)
+        for g in group_list]
+    if n_jobs == 1 or len(group_calls) <= 1:
+        fitted = [c[0](*c[1], **c[2]) for c in group_calls]
+    else:
+        fitted = Parallel(n_jobs=n_jobs)(group_calls)
+    for g, m in zip(group_list, fitted):
+        models[g] = m
         bar.update(1)
     pooled = models["pooled"]
     _, states = pooled.decode(data)
@@ -297,16 +345,21 @@ def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, crit
         align_rows.append(al)
         trans_rows.append(tr)
         dist_rows.append(pd.DataFrame([_distance_with_reference(
-            data, models, ga, gb, pair_no, chosen, n_restarts, seed, n_jobs, n_permutations,
-            distance_tokens, fit_kw)]))
+            data, models, ga, gb, pair_no, seed, n_jobs, n_permutations, distance_tokens,
+            fit_kw)]))
     bar.update(1)
     bar.close()
+    freq = {"pooled": frequency_loglik(data, emission_floor=emission_floor)}
+    for g in group_list:
+        freq[g] = frequency_loglik(subsets[g], emission_floor=emission_floor)
+    notes = _checks(models, freq, selection, chosen, counts)
     state_tables = pd.concat([m.describe_states() for m in models.values()], ignore_index=True)
     params = {"n_states": counts, "n_restarts": n_restarts, "seed": seed, "criterion": criterion,
-              "n_folds": n_folds, "min_length": min_length, "groups": group_list,
-              "n_iter": n_iter, "tol": tol, "emission_floor": emission_floor,
-              "n_permutations": n_permutations, "distance_tokens": distance_tokens,
-              "edge_threshold": edge_threshold, "alpha": alpha}
+              "n_folds": n_folds, "all_folds": bool(all_folds), "min_length": min_length,
+              "groups": group_list, "max_iter": max_iter, "tol": tol,
+              "emission_floor": emission_floor, "n_permutations": n_permutations,
+              "distance_tokens": distance_tokens, "edge_threshold": edge_threshold,
+              "alpha": alpha}
     return PhaseResult(
         models=models, n_states=chosen, selection=selection, states=state_tables,
         state_paths=state_paths, state_db=state_db, path_comparison=path_cmp,
@@ -316,7 +369,53 @@ def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, crit
                                                  "from_b", "to_b", "name_from", "name_to",
                                                  "prob_a", "prob_b", "difference"]),
         distances=_concat(dist_rows, _DIST_COLUMNS), excluded=excluded,
-        unseen_tokens=unseen, params=params)
+        unseen_tokens=unseen, params=params, frequency_loglik=freq, notes=notes)
+
+
+#: A model whose log-likelihood beats the token frequencies by less than this share of
+#: the frequencies' |log-likelihood| is flagged (a rule of thumb of ours).
+NEAR_FREQUENCIES = 0.01
+
+
+def _checks(models, freq, selection, chosen, counts):
+    """Warnings about the fitted models; each is raised and returned as plain data."""
+    notes = []
+
+    def note(code, message, count=1):
+        warnings.warn(SeqmineWarning(message, code=code, count=count), stacklevel=3)
+        notes.append({"code": code, "message": message, "count": int(count)})
+
+    weak = []
+    for key, m in models.items():
+        base = freq.get(key)
+        if (m.n_states > 1 and base is not None and base < 0
+                and (m.log_likelihood - base) < NEAR_FREQUENCIES * -base):
+            weak.append(f"{key} ({(m.log_likelihood - base) / -base:.2%})")
+    if weak:
+        note("phase_model_near_frequencies",
+             f"Phase models barely beat a model of token frequencies alone: {', '.join(weak)} "
+             f"better log-likelihood (less than {NEAR_FREQUENCIES:.0%}); the phases add "
+             f"little beyond how often each token occurs, so read them with care.",
+             count=len(weak))
+    row = selection[selection["n_states"] == chosen].iloc[0]
+    ho, tr = row.get("heldout_loglik_per_token"), row.get("train_loglik_per_token")
+    if ho is not None and tr is not None and np.isfinite(ho) and np.isfinite(tr) and ho > tr:
+        note("phase_heldout_above_training",
+             f"At {chosen} states the held-out learners score better per token "
+             f"({ho:.4f}) than the learners the model was fitted on ({tr:.4f}); the "
+             f"held-out fold may differ from the rest (e.g. fewer long sequences), so "
+             f"the held-out scores are a rough guide here.")
+    if len(counts) > 1 and chosen == max(selection["n_states"]):
+        note("phase_states_at_top_of_range",
+             f"The chosen number of phases ({chosen}) is the largest tried; more phases "
+             f"might fit better: try a wider range (e.g. --states {min(counts)}-{chosen + 2}"
+             f" or phases.max_states = {chosen + 2}).")
+    stopped = [k for k, m in models.items() if not m.info.get("converged", True)]
+    if stopped:
+        note("phase_fit_not_converged",
+             f"EM reached max_iter before converging for {', '.join(stopped)}; raise "
+             f"phases.max_iter (or --max-iter) to let it finish.", count=len(stopped))
+    return notes
 
 
 def load_phase_models(folder):
@@ -360,8 +459,8 @@ def _groups_to_model(data, groups):
     return out
 
 
-def _distance_with_reference(data, models, ga, gb, pair_no, n_states, n_restarts, seed, n_jobs,
-                             n_permutations, distance_tokens, fit_kw):
+def _distance_with_reference(data, models, ga, gb, pair_no, seed, n_jobs, n_permutations,
+                             distance_tokens, fit_kw):
     ia, ib = data.group_names.index(ga), data.group_names.index(gb)
     members = np.flatnonzero((data.groups == ia) | (data.groups == ib))
     lengths = data.lengths[members]
@@ -398,10 +497,11 @@ def _warm_distance(data, members, is_a, start, dseed, distance_tokens, fit_kw):
     fitted = []
     for mask in (is_a, ~is_a):
         sub = data.subset(members[mask])
-        X, lengths = sub.tokens.astype(np.int64), sub.lengths
-        fit = _hmm.fit_restart(X, lengths, len(start[0]), len(data.vocab), 0, start=start,
-                               **fit_kw)
-        fitted.append(PhaseModel(fit["startprob"], fit["transmat"], fit["emissionprob"],
+        lanes = Lanes(sub.tokens.astype(np.int64), sub.lengths, len(data.vocab))
+        res = baum_welch(lanes, *(a[None] for a in start), max_iter=fit_kw["max_iter"],
+                         tol=fit_kw["tol"])
+        B = _hmm.apply_emission_floor(res["emissionprob"][0], fit_kw["emission_floor"])
+        fitted.append(PhaseModel(res["startprob"][0], res["transmat"][0], B,
                                  list(data.vocab)))
     d = model_distance(fitted[0], fitted[1], lengths=data.lengths[members],
                        n_tokens=distance_tokens, seed=dseed)
@@ -425,7 +525,8 @@ def _safe(name):
 
 
 def _model_file(key):
-    return "model_pooled" if key == "pooled" else f"model_group-{_safe(key)}"
+    """File name of a model, ``.json`` included (``phases.json`` lists these names)."""
+    return "model_pooled.json" if key == "pooled" else f"model_group-{_safe(key)}.json"
 
 
 def _graph_file(key):

@@ -266,7 +266,10 @@ def _state_selection(inp, used=None):
     if not inp.ok:
         return head + _missing(inp.note)
     df = inp.value
-    cols = [c for c in ("model", "group", "n_states", "bic", "heldout_loglik") if c in df.columns]
+    cols = [c for c in ("model", "group", "n_states", "bic", "loglik_per_token",
+                        "heldout_loglik_per_token", "heldout_loglik") if c in df.columns]
+    if "heldout_loglik_per_token" in cols and "heldout_loglik" in cols:
+        cols.remove("heldout_loglik")
     marks = [c for c in ("best_bic", "best_heldout", "chosen") if c in df.columns]
     rows = []
     for _, r in df.iterrows():
@@ -275,7 +278,8 @@ def _state_selection(inp, used=None):
             if c in ("model", "group"):
                 row.append(esc(r[c]))
             else:
-                row.append(_fmt(r[c], 0 if c == "n_states" else 1))
+                row.append(_fmt(r[c], 0 if c == "n_states" else
+                                4 if c.endswith("per_token") else 1))
         notes = [{"best_bic": "lowest BIC", "best_heldout": "best held-out",
                   "chosen": "chosen"}[c] for c in marks if _true(r[c])]
         if _is_num(used) and _num(r.get("n_states")) == _num(used):
@@ -283,10 +287,14 @@ def _state_selection(inp, used=None):
         row.append(esc(", ".join(dict.fromkeys(notes))))
         rows.append(row)
     heads = [{"n_states": "phases", "heldout_loglik": "held-out log-likelihood",
-              "bic": "BIC"}.get(c, c) for c in cols] + [""]
-    nums = tuple(i for i, c in enumerate(cols) if c in ("n_states", "bic", "heldout_loglik"))
+              "bic": "BIC", "loglik_per_token": "log-likelihood per token",
+              "heldout_loglik_per_token": "held-out log-likelihood per token"}.get(c, c)
+             for c in cols] + [""]
+    nums = tuple(i for i, c in enumerate(cols) if c not in ("model", "group"))
     return (head + "<p>Each number of phases was fitted and scored: lower BIC and higher "
-            "held-out log-likelihood are better.</p>"
+            "held-out log-likelihood are better. The held-out score comes from learners "
+            "left out of the fit, per token so that it compares with the fit's own "
+            "score.</p>"
             + _table(heads, rows, raw_cells=False, num_cols=nums))
 
 

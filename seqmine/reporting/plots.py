@@ -246,8 +246,10 @@ def svg_state_diagram(states, transmat, *, title, fig_id, min_prob=0.05):
     """Phase model drawn as a state diagram on a circle.
 
     Each node is a state with its name, expected dwell and top emissions; arrows are
-    transitions between different states with probability at least ``min_prob``
-    (width grows with probability, printed beside the arrow).
+    transitions between different states with probability at least ``min_prob``,
+    plus each state's most likely move to another state whatever its probability,
+    so no state is left without an arrow (width grows with probability, printed
+    beside the arrow).
 
     Parameters
     ----------
@@ -269,10 +271,13 @@ def svg_state_diagram(states, transmat, *, title, fig_id, min_prob=0.05):
     a = np.asarray(transmat, dtype=float) if transmat is not None else np.full((n, n), np.nan)
     graph = nx.DiGraph()
     graph.add_nodes_from(range(n))
-    for i in range(n):
-        for j in range(n):
-            if i != j and a.shape == (n, n) and math.isfinite(a[i, j]) and a[i, j] >= min_prob:
-                graph.add_edge(i, j, p=float(a[i, j]))
+    if a.shape == (n, n):
+        off = np.where(np.eye(n, dtype=bool) | ~np.isfinite(a), -1.0, a)
+        strongest = np.argmax(off, axis=1) if n > 1 else np.zeros(n, dtype=int)
+        for i in range(n):
+            for j in range(n):
+                if i != j and off[i, j] > 0 and (off[i, j] >= min_prob or strongest[i] == j):
+                    graph.add_edge(i, j, p=float(a[i, j]))
     # Fixed circular layout (deterministic; first state at the top, clockwise).
     ang = [math.pi / 2 - 2 * math.pi * k / max(n, 1) for k in range(n)]
     rx, ry = (1.0, 1.0) if n <= 4 else (1.35, 1.0)  # wider than tall: boxes are wide

@@ -141,20 +141,23 @@ TRANSITION_COLUMNS = {
 
 #: Keys of ``phases/phases.json`` (which model file belongs to which group).
 PHASES_SUMMARY_KEYS = {
-    "models": "{'pooled' or group: model file name without .json}",
+    "models": "{'pooled' or group: model file name (with .json)}",
     "n_states": "state count used for every model",
     "criterion": "how the state count was chosen",
+    "n_states_at_top_of_range": "true when the chosen count is the largest tried",
+    "warnings": "list of {code, message, count} raised by the phases stage",
 }
 
-#: Keys of each phase model ``phases/model_*.json``.
+#: Keys of each phase model ``phases/model_*.json`` (format version 2; version 1 used
+#: ``vocab``, ``startprob``, ``transmat`` and ``emissionprob``).
 PHASE_MODEL_KEYS = {
     "label": "model label (group name or 'pooled')",
-    "vocab": "tokens, in the column order of emissionprob",
-    "startprob": "initial state probabilities",
-    "transmat": "transition matrix, list of rows (row = from state)",
-    "emissionprob": "emission probabilities, one row per state over vocab",
+    "tokens": "tokens, in the column order of emission_probabilities",
+    "start_probabilities": "initial state probabilities",
+    "transition_matrix": "transition matrix, list of rows (row = from state)",
+    "emission_probabilities": "emission probabilities, one row per state over tokens",
     "state_labels": "short state labels (S1, S2, ...)",
-    "state_names": "readable state names",
+    "state_names": "unique readable state names (label and most probable tokens)",
 }
 
 #: Columns of ``phases/state_selection.csv``.
@@ -348,7 +351,8 @@ def _read_all(folder):
     d["state_selection"] = _read_csv(
         folder, OUTPUT_FILES["state_selection"],
         numeric=("n_states", "n_parameters", "n_observations", "log_likelihood", "bic",
-                 "heldout_loglik", "heldout_loglik_per_token"))
+                 "heldout_loglik", "heldout_loglik_per_token", "loglik_per_token",
+                 "train_loglik_per_token"))
     d["occupancy"] = _read_csv(
         folder, OUTPUT_FILES["occupancy"],
         numeric=("n_a", "n_b", "mean_a", "mean_b", "median_a", "median_b", "u_statistic",
@@ -403,7 +407,10 @@ def _read_models(folder, phases_summary):
         return [], [], "phases/ not found"
     mapping = (phases_summary.value or {}).get("models")
     if isinstance(mapping, dict) and mapping:
-        files = [(str(k), f"{v}.json") for k, v in mapping.items() if isinstance(v, str)]
+        # phases.json names the files with ".json"; names without it (written before
+        # that was fixed) get it added
+        files = [(str(k), v if v.endswith(".json") else f"{v}.json")
+                 for k, v in mapping.items() if isinstance(v, str)]
     else:
         files = [(None, p.name) for p in sorted(pdir.glob("model_*.json"))]
     models = []

@@ -292,6 +292,7 @@ def section_phases(d, figs):
         crit = psum.get("criterion")
         out.append(f"<p>Every model has {_int(psum['n_states'])} phases"
                    + (f" (count chosen by {esc(crit)})" if crit else "") + ".</p>")
+    out.append(_phase_warnings(psum))
     order = {"pooled": -1, **{g: i for i, g in enumerate(d["groups"])}}
     models = sorted(models, key=lambda m: (order.get(m["group"], len(order)), m["group"],
                                            m["file"]))
@@ -299,8 +300,10 @@ def section_phases(d, figs):
     crowded = any(len(m["states"]) > 4 for m in models)
     min_prob = 0.1 if crowded else 0.05
     if models:
-        out.append(f"<p>Arrows with a probability below {min_prob:g} are left out; "
-                   "tokens produced less than 1% of the time in a phase are not listed.</p>")
+        out.append(f"<p>Arrows with a probability below {min_prob:g} are left out, except "
+                   "each phase's most likely move to another phase (so every phase shows "
+                   "where work goes next); tokens produced less than 1% of the time in a "
+                   "phase are not listed.</p>")
     for m in models:
         states = m["states"]
         rows = [[esc(st["name"]), _fmt(st.get("dwell"), 1),
@@ -324,28 +327,49 @@ def section_phases(d, figs):
     return _section("phases", out)
 
 
+def _phase_warnings(psum):
+    """The phases stage's own warnings (also in summary.json), as a list."""
+    items = psum.get("warnings") if isinstance(psum, dict) else None
+    msgs = [str(w.get("message", "")) for w in items or [] if isinstance(w, dict)]
+    msgs = [m for m in msgs if m]
+    if psum.get("n_states_at_top_of_range") is True and not any(
+            "largest tried" in m for m in msgs):
+        msgs.append("The chosen number of phases is the largest tried; a wider range of "
+                    "phase counts might fit better.")
+    if not msgs:
+        return ""
+    return ('<div class="note"><b>Check before reading the phases:</b><ul>'
+            + "".join(f"<li>{esc(m)}</li>" for m in msgs) + "</ul></div>")
+
+
 def phase_model(data):
     """States and transition matrix of a phase model JSON object, or None if unusable.
 
-    Reads ``vocab``, ``emissionprob`` (states x vocab), ``transmat``, ``state_labels``
-    and ``state_names``; dwell is ``1 / (1 - a_ii)``.
+    Reads ``tokens``, ``emission_probabilities`` (states x tokens),
+    ``transition_matrix``, ``state_labels`` and ``state_names`` (format version 2;
+    version 1 spelled them ``vocab``, ``emissionprob`` and ``transmat``); dwell is
+    ``1 / (1 - a_ii)``.
 
     Examples
     --------
-    >>> m = phase_model({"vocab": ["a", "b"], "emissionprob": [[0.9, 0.1], [0.2, 0.8]],
-    ...                  "transmat": [[0.5, 0.5], [0.25, 0.75]]})
+    >>> m = phase_model({"tokens": ["a", "b"],
+    ...                  "emission_probabilities": [[0.9, 0.1], [0.2, 0.8]],
+    ...                  "transition_matrix": [[0.5, 0.5], [0.25, 0.75]]})
     >>> [(s["name"], s["dwell"], s["emissions"][0]) for s in m["states"]]
     [('S1', 2.0, ('a', 0.9)), ('S2', 4.0, ('b', 0.8))]
     """
+    def get(new, old):
+        return data.get(new) if new in data else data.get(old)
+
     try:
-        emis = np.asarray(data.get("emissionprob"), dtype=float)
-        vocab = [str(v) for v in data.get("vocab") or []]
+        emis = np.asarray(get("emission_probabilities", "emissionprob"), dtype=float)
+        vocab = [str(v) for v in get("tokens", "vocab") or []]
     except (TypeError, ValueError):
         return None
     if emis.ndim != 2 or emis.shape[1] != len(vocab) or emis.shape[0] == 0:
         return None
     n = emis.shape[0]
-    tm = _matrix(data.get("transmat"), n)
+    tm = _matrix(get("transition_matrix", "transmat"), n)
     labels = _str_list(data.get("state_labels"), n) or [f"S{i + 1}" for i in range(n)]
     names = _str_list(data.get("state_names"), n)
     states = []
@@ -353,7 +377,12 @@ def phase_model(data):
         order = sorted(range(len(vocab)), key=lambda j: (-emis[i, j], j))[:5]
         stay = float(tm[i, i]) if tm is not None else math.nan
         dwell = 1.0 / (1.0 - stay) if math.isfinite(stay) and stay < 1 else None
-        name = labels[i] if not names or names[i] == labels[i] else f"{labels[i]} {names[i]}"
+        if not names or names[i] == labels[i]:
+            name = labels[i]
+        elif names[i].startswith(labels[i] + " "):   # version 2 names carry the label
+            name = names[i]
+        else:
+            name = f"{labels[i]} {names[i]}"
         states.append({"name": name, "dwell": dwell,
                        "emissions": [(vocab[j], float(emis[i, j])) for j in order
                                      if math.isfinite(emis[i, j]) and emis[i, j] >= 0.01]})

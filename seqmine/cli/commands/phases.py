@@ -6,6 +6,7 @@ import sys
 from pathlib import Path
 
 from ..._util.progress import is_quiet
+from ...config import DEFAULT_CONFIG
 from ...encoding.sequences import SequenceDB
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
@@ -21,24 +22,36 @@ DESCRIPTION = (
 
 
 def add_arguments(parser):
-    """Options of ``seqmine phases``."""
+    """Options of ``seqmine phases`` (defaults from ``DEFAULT_CONFIG["phases"]``)."""
+    d = DEFAULT_CONFIG["phases"]
+    states = f"{d['min_states']}-{d['max_states']}"
     parser.add_argument("seqdb", metavar="SEQDB_DIR",
                         help="sequence database folder written by 'seqmine encode'")
     parser.add_argument("--out", required=True, metavar="DIR",
                         help="output folder; results go to DIR/phases/")
-    parser.add_argument("--states", default="2-6", metavar="RANGE",
-                        help="state counts to try: '3', '2-6' or '2,3,5' (default 2-6)")
-    parser.add_argument("--restarts", type=int, default=5, metavar="N",
-                        help="Baum-Welch restarts per fit (default 5)")
+    parser.add_argument("--states", default=states, metavar="RANGE",
+                        help=f"state counts to try: '3', '2-6' or '2,3,5' (default {states})")
+    parser.add_argument("--restarts", type=int, default=d["restarts"], metavar="N",
+                        help=f"Baum-Welch starts per fit (default {d['restarts']})")
+    parser.add_argument("--max-iter", type=int, default=d["max_iter"], metavar="N",
+                        help=f"most EM steps per fit (default {d['max_iter']})")
+    parser.add_argument("--tol", type=float, default=d["tol"], metavar="X",
+                        help="EM stops when a step gains less than X in total "
+                             f"log-likelihood (default {d['tol']})")
     parser.add_argument("--seed", type=int, default=0, metavar="S", help="random seed (default 0)")
     parser.add_argument("--jobs", type=int, default=1, metavar="N",
                         help="parallel workers; results equal the serial run (default 1)")
-    parser.add_argument("--criterion", choices=("bic", "heldout"), default="bic",
-                        help="how the state count is chosen (default bic)")
-    parser.add_argument("--folds", type=int, default=3, metavar="K",
-                        help="learner folds for the held-out log-likelihood; 0 = off (default 3)")
-    parser.add_argument("--permutations", type=int, default=19, metavar="N",
-                        help="label permutations for the model-distance reference (default 19)")
+    parser.add_argument("--criterion", choices=("bic", "heldout"), default=d["criterion"],
+                        help=f"how the state count is chosen (default {d['criterion']})")
+    parser.add_argument("--folds", type=int, default=d["heldout_folds"], metavar="K",
+                        help="learner folds for the held-out log-likelihood: one fold "
+                             "(1/K of the learners) is held out; 0 = off "
+                             f"(default {d['heldout_folds']})")
+    parser.add_argument("--all-folds", action="store_true",
+                        help="hold out every fold in turn (K fits per state count)")
+    parser.add_argument("--permutations", type=int, default=d["permutations"], metavar="N",
+                        help="label permutations for the model-distance reference; each "
+                             f"costs two fits (default {d['permutations']})")
 
 
 def run(args):
@@ -48,6 +61,7 @@ def run(args):
     db = SequenceDB.load(args.seqdb)
     result = fit_phases(db, n_states=args.states, n_restarts=args.restarts, seed=args.seed,
                         n_jobs=args.jobs, criterion=args.criterion, n_folds=args.folds,
+                        all_folds=args.all_folds, max_iter=args.max_iter, tol=args.tol,
                         n_permutations=args.permutations)
     folder = result.save(Path(args.out) / "phases")
     if not is_quiet():
