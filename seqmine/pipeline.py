@@ -21,7 +21,7 @@ __all__ = ["Prepared", "prepare_sequences", "pseudonymize_inputs", "analyze", "A
            "MIN_GROUP_LEARNERS"]
 
 #: Configuration keys that only say where work runs (left out of summary.json).
-_EXECUTION_KEYS = ("jobs", "scheduler")
+_EXECUTION_KEYS = ("n_jobs", "scheduler")
 
 #: Fewest learners a group may have before the run stops with a message.
 MIN_GROUP_LEARNERS = 2
@@ -180,7 +180,7 @@ def _versions():
 def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     """Run the whole pipeline and write the output folder.
 
-    With ``config["jobs"] > 1`` mining partitions, Westfall-Young permutation
+    With ``config["n_jobs"] > 1`` mining partitions, Westfall-Young permutation
     batches, phase-model fits and validation folds run in local processes; with
     ``config["scheduler"]`` (a Dask address or ``"local"``) on a Dask cluster,
     connected once for the whole run. The outputs are identical to a serial run.
@@ -204,7 +204,7 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
 
     cfg = config or default_config()
     log = WarningLog()
-    with using_scheduler(cfg.get("scheduler"), int(cfg["jobs"])), collect_warnings(log):
+    with using_scheduler(cfg.get("scheduler"), int(cfg["n_jobs"])), collect_warnings(log):
         return _analyze(events_path, outcomes_path, out_dir, cfg, quiet=quiet, log=log)
 
 
@@ -258,17 +258,15 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
     db.save(out / "sequences")
     summary = dict(prepared.summary)
     seed = int(cfg["seed"])
-    jobs = int(cfg["jobs"])
+    jobs = int(cfg["n_jobs"])
     scheduler = cfg.get("scheduler") or None
     stages = _Stages(quiet=quiet)
     stages.seconds["loading and encoding"] = round(time.perf_counter() - t_load, 3)
 
     # 3. mine and score
     mine_cfg, con_cfg = cfg["mine"], cfg["contrast"]
-    if mine_cfg["max_gap"] is not None and mine_cfg["max_gap"] < 0:  # -1 = no limit
-        mine_cfg = dict(mine_cfg, max_gap=None)
     with stages("mining patterns"):
-        patternset = mine_parallel(db, jobs=jobs, scheduler=scheduler,
+        patternset = mine_parallel(db, n_jobs=jobs, scheduler=scheduler,
                           min_support=mine_cfg["min_support"],
                           min_length=mine_cfg["min_length"], max_length=mine_cfg["max_length"],
                           max_gap=mine_cfg["max_gap"], max_window=mine_cfg["max_window"],
@@ -279,15 +277,14 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
         save_patternset(patternset, out / "patternset")
     with stages("scoring patterns"):
         table = contrast(patternset, db, correction=con_cfg["correction"], alpha=con_cfg["alpha"],
-                         n_permutations=con_cfg["n_permutations"], seed=seed,
-                         stability_resamples=con_cfg["stability_resamples"],
-                         redundancy=con_cfg["redundancy_jaccard"], jobs=jobs,
-                         scheduler=scheduler)
+                         n_permutations=con_cfg["n_permutations"], random_state=seed,
+                         n_bootstrap=con_cfg["n_bootstrap"], redundancy=con_cfg["redundancy"],
+                         n_jobs=jobs, scheduler=scheduler)
         table = _order_patterns(table)
         write_csv(table, out / "patterns.csv")
         files.append(out / "patterns.csv")
     with stages("transitions"):
-        trans = transitions(db, exclude_pauses=not cfg["transitions"]["include_pauses"])
+        trans = transitions(db, exclude_pauses=cfg["transitions"]["exclude_pauses"])
         write_csv(trans, out / "transitions.csv")
         files.append(out / "transitions.csv")
     alpha = float(con_cfg["alpha"])
@@ -302,9 +299,9 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
             "rate_test": "Mann-Whitney U on occurrences per 100 tokens",
             "correction": con_cfg["correction"], "alpha": alpha,
             "n_permutations": int(con_cfg["n_permutations"]),
-            "stability_resamples": int(con_cfg["stability_resamples"]),
+            "n_bootstrap": int(con_cfg["n_bootstrap"]),
             "min_support": mine_cfg["min_support"], "max_length": mine_cfg["max_length"],
-            "max_gap": mine_cfg["max_gap"], "folds": cfg["validate"]["folds"],
+            "max_gap": mine_cfg["max_gap"], "n_splits": cfg["validate"]["n_splits"],
         },
         "sequence_lengths": {name: _describe(db.lengths[db.groups == g].astype(float))
                              for g, name in enumerate(db.group_names)},
@@ -318,11 +315,11 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
             phase_db = _sample_sequences(db, ph_cfg.get("max_sequences"), seed)
             phases = fit_phases(phase_db,
                                 n_states=range(ph_cfg["min_states"], ph_cfg["max_states"] + 1),
-                                n_restarts=ph_cfg["restarts"], seed=seed,
+                                n_restarts=ph_cfg["n_restarts"], random_state=seed,
                                 n_jobs=-1 if scheduler else jobs,
-                                n_iter=ph_cfg["max_iter"], criterion=ph_cfg["criterion"],
-                                n_folds=ph_cfg["heldout_folds"],
-                                n_permutations=ph_cfg["permutations"])
+                                n_iter=ph_cfg["n_iter"], criterion=ph_cfg["criterion"],
+                                n_splits=ph_cfg["n_splits"],
+                                n_permutations=ph_cfg["n_permutations"])
             phases.save(out / "phases")
             files.append(out / "phases")
             summary["phases"] = {"n_states": int(phases.n_states),
@@ -335,7 +332,7 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
 
         from .validation.crossval import default_featurizers, validate
         from .validation.features import HMMLikelihoodFeaturizer
-        allowed = set(HMMLikelihoodFeaturizer().get_params()) - {"seed"}
+        allowed = set(HMMLikelihoodFeaturizer().get_params()) - {"random_state"}
         unknown = sorted(set(va_cfg.get("hmm") or {}) - allowed)
         if unknown:
             raise ParameterError(
@@ -346,17 +343,18 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
             "start_with_action", "end_with_action", "max_patterns")}
         pattern_params.update(correction="bh" if con_cfg["correction"] == "westfall-young"
                               else con_cfg["correction"], alpha=alpha,
-                              top_k=int(va_cfg["top_patterns"]))
+                              top_k=int(va_cfg["top_k"]))
         with stages("early prediction"):
-            feats = default_featurizers(seed=seed, pattern_params=pattern_params,
+            feats = default_featurizers(random_state=seed, pattern_params=pattern_params,
                                         hmm_params=dict(va_cfg.get("hmm") or {}))
             va_events, va_outcomes = _sample_learners(prepared.events, prepared.outcomes,
                                                       va_cfg.get("max_learners"), seed)
             validation = validate(
-                va_events, va_outcomes, folds=int(va_cfg["folds"]),
+                va_events, va_outcomes, n_splits=int(va_cfg["n_splits"]),
                 fractions=va_cfg["fractions"], grouping=clone(grouping),
-                encoder=clone(encoder), featurizers=feats, n_bootstrap=int(va_cfg["bootstrap"]),
-                alpha=alpha, seed=seed, n_jobs=jobs, scheduler=scheduler)
+                encoder=clone(encoder), featurizers=feats,
+                n_bootstrap=int(va_cfg["n_bootstrap"]), alpha=alpha, random_state=seed,
+                n_jobs=jobs, scheduler=scheduler)
             write_csv(validation.metrics, out / "early_prediction.csv")
             files.append(out / "early_prediction.csv")
             digest = validation.summary()
@@ -369,8 +367,9 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
     with stages("detectors"):
         from .detection.detectors import export_detectors, save_detectors
         doc = export_detectors(table, db, patternset.constraints, max_q=float(de_cfg["max_q"]),
+                               min_effect=float(de_cfg["min_effect"]), effect=de_cfg["effect"],
                                min_stability=float(de_cfg["min_stability"]),
-                               max_detectors=int(de_cfg["max_detectors"]))
+                               max_detectors=de_cfg["max_detectors"])
         save_detectors(doc, out / "detectors.json")
         files.append(out / "detectors.json")
         summary["detectors"] = len(doc.get("detectors", []))
@@ -379,9 +378,9 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
     if cfg["report"]["examples"]:
         c = patternset.constraints
         files.append(write_examples(
-            out, db, table, max_patterns=int(cfg["report"]["top_patterns"]), alpha=alpha,
+            out, db, table, max_patterns=int(cfg["report"]["max_patterns"]), alpha=alpha,
             max_gap=c.get("max_gap"), max_window=c.get("max_window"),
-            skip_pauses=bool(c.get("skip_pauses", False)), seed=seed))
+            skip_pauses=bool(c.get("skip_pauses", False)), random_state=seed))
     summary["seed"] = seed
     # execution settings change where the work runs, never the results: they are left
     # out so that summary.json is identical whatever --jobs / --scheduler was used
@@ -394,7 +393,7 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
     files.append(out / "summary.json")
     with stages("report"):
         report = render_report(out, examples=bool(cfg["report"]["examples"]),
-                               max_patterns=int(cfg["report"]["top_patterns"]))
+                               max_patterns=int(cfg["report"]["max_patterns"]))
         files.append(report)
     return AnalysisResult(out_dir=out, summary=summary, files=files, warnings=list(log))
 

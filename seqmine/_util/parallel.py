@@ -1,6 +1,6 @@
 """One way to run independent tasks: serially, in local processes, or on a Dask cluster.
 
-``jobs=1`` runs in this process; ``jobs=N`` uses N local worker processes (joblib);
+``n_jobs=1`` runs in this process; ``n_jobs=N`` uses N local worker processes (joblib);
 ``scheduler="tcp://host:8786"`` (or ``"local"`` for a local Dask cluster) sends the same
 tasks to Dask distributed (``pip install "seqmine[distributed]"``). Results always come
 back in task order, so the output does not depend on where the tasks ran.
@@ -20,7 +20,7 @@ __all__ = ["parallel_map", "using_scheduler"]
 _ACTIVE = []
 
 
-def parallel_map(func, items, *, jobs=1, scheduler=None):
+def parallel_map(func, items, *, n_jobs=1, scheduler=None):
     """``[func(x) for x in items]``, possibly in parallel; order is preserved.
 
     Parameters
@@ -28,10 +28,10 @@ def parallel_map(func, items, *, jobs=1, scheduler=None):
     func : callable
         A module-level function (it is sent to other processes).
     items : iterable
-    jobs : int
+    n_jobs : int
         Local worker processes (1 = serial; -1 = all cores).
     scheduler : str, optional
-        Dask scheduler address, or ``"local"`` for a local cluster with ``jobs`` workers.
+        Dask scheduler address, or ``"local"`` for a local cluster with ``n_jobs`` workers.
 
     Returns
     -------
@@ -43,20 +43,21 @@ def parallel_map(func, items, *, jobs=1, scheduler=None):
     [2, 3, 1]
     """
     items = list(items)
-    if not scheduler and (jobs is None or jobs == 1 or len(items) <= 1):
+    if not scheduler and (n_jobs is None or n_jobs == 1 or len(items) <= 1):
         return [func(x) for x in items]
     # worker processes start with default settings: carry the quiet switch over
     func = functools.partial(_call_with_quiet, func, is_quiet())
     if scheduler:
-        return _dask_map(func, items, scheduler, jobs)
-    if not isinstance(jobs, int) or jobs == 0 or jobs < -1:
-        raise ParameterError(f"The 'jobs' parameter must be a positive int or -1. Got {jobs!r} instead.")
+        return _dask_map(func, items, scheduler, n_jobs)
+    if not isinstance(n_jobs, int) or n_jobs == 0 or n_jobs < -1:
+        raise ParameterError(f"The 'n_jobs' parameter must be a positive int or -1. "
+                             f"Got {n_jobs!r} instead.")
     from joblib import Parallel, delayed
-    return list(Parallel(n_jobs=jobs)(delayed(func)(x) for x in items))
+    return list(Parallel(n_jobs=n_jobs)(delayed(func)(x) for x in items))
 
 
 @contextlib.contextmanager
-def using_scheduler(scheduler, jobs=1):
+def using_scheduler(scheduler, n_jobs=1):
     """Connect to a Dask cluster once for a block of work.
 
     Inside the block, :func:`parallel_map` calls with the same ``scheduler`` reuse the
@@ -68,7 +69,7 @@ def using_scheduler(scheduler, jobs=1):
     ----------
     scheduler : str or None
         Dask scheduler address or ``"local"``.
-    jobs : int
+    n_jobs : int
         Workers of a ``"local"`` cluster.
 
     Yields
@@ -90,7 +91,7 @@ def using_scheduler(scheduler, jobs=1):
     import joblib
     stack = contextlib.ExitStack()
     with stack:
-        client = _connect(scheduler, jobs, stack)
+        client = _connect(scheduler, n_jobs, stack)
         _ACTIVE.append((scheduler, client))
         try:
             with joblib.parallel_config(backend="dask"):

@@ -20,6 +20,7 @@ import numpy as np
 import pandas as pd
 
 from .._util.checks import check_choice, check_columns
+from ..config import DEFAULT_CONFIG
 from ..errors import ColumnError, DataFileError, ParameterError
 
 __all__ = [
@@ -55,7 +56,7 @@ REJECT_REASONS = {
 MAX_ACTION_LENGTH = 200
 
 #: Largest input file read without ``max_bytes`` raised (bytes).
-DEFAULT_MAX_BYTES = 20_000_000_000
+DEFAULT_MAX_BYTES = DEFAULT_CONFIG["events"]["max_bytes"]
 
 #: Working memory per byte of input while loading and encoding (measured 25-40x on
 #: CSV logs; see docs/reliability.md). With the default ``max_bytes``, a file that
@@ -123,8 +124,11 @@ class LoadResult:
         }
 
 
-def load_events(path, *, columns=None, format=None, delimiter=None, encoding="utf-8",
-                duplicates="reject", max_action_length=MAX_ACTION_LENGTH,
+def load_events(path, *, columns=None, format=DEFAULT_CONFIG["events"]["format"],
+                delimiter=DEFAULT_CONFIG["events"]["delimiter"],
+                encoding=DEFAULT_CONFIG["events"]["encoding"],
+                duplicates=DEFAULT_CONFIG["events"]["duplicates"],
+                max_action_length=MAX_ACTION_LENGTH,
                 max_bytes=DEFAULT_MAX_BYTES):
     """Read an event log, validate every row and return kept and rejected rows.
 

@@ -9,6 +9,7 @@ from pathlib import Path
 
 from ...detection.watcher import EventError, Watcher
 from ...errors import DataFileError, ParameterError
+from . import _options
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -48,8 +49,7 @@ def add_arguments(parser):
                         help="print only firings whose hint is delivered (not suppressed)")
     parser.add_argument("--encourage-hints", action="store_true",
                         help="deliver completed encourage patterns as hints too (e.g. praise)")
-    parser.add_argument("--keep-duplicates", action="store_true",
-                        help="process exact duplicate events instead of rejecting them")
+    _options.add_duplicates_option(parser, what="exact duplicate events")
     parser.add_argument("--times", choices=("auto", "seconds", "iso"), default="auto",
                         help="time format of the output (default: as the input)")
     parser.add_argument("--pseudonymize", metavar="KEY_FILE", default=None,
@@ -66,7 +66,7 @@ def run(args):
     watcher = Watcher(args.detectors, cooldown_seconds=args.cooldown, idle_timeout=idle,
                       out_of_order_tolerance=args.tolerance,
                       hint_on_encourage=args.encourage_hints,
-                      reject_duplicates=not args.keep_duplicates)
+                      reject_duplicates=args.duplicates == "reject")
     pseudo = _pseudonymizer(args.pseudonymize) if args.pseudonymize else None
     err = sys.stderr
     out = sys.stdout
