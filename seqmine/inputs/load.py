@@ -20,6 +20,7 @@ import numpy as np
 import pandas as pd
 
 from .._util.checks import check_choice, check_columns
+from ..config import EVENT_ROLES
 from ..errors import ColumnError, DataFileError, ParameterError
 
 __all__ = [
@@ -33,8 +34,6 @@ __all__ = [
 ]
 
 #: Column roles of an event table and whether they are required.
-EVENT_ROLES = {"learner": True, "time": True, "action": True,
-               "session": False, "target": False, "channel": False}
 
 #: Reject reason codes written to ``rejects.csv``.
 REJECT_REASONS = {
