@@ -19,7 +19,28 @@ try:  # Python >= 3.11
 except ModuleNotFoundError:  # pragma: no cover - Python 3.10
     import tomli as tomllib
 
-__all__ = ["DEFAULT_CONFIG", "load_config", "merge_config", "default_config", "default_value"]
+__all__ = ["DEFAULT_CONFIG", "load_config", "merge_config", "default_config", "default_value",
+           "EVENT_ROLES", "CONTRAST_CORRECTIONS", "CLASSIFIERS", "DEFAULT_FRACTIONS",
+           "NONE_ALLOWED"]
+
+# ---- option vocabularies: kept here (no heavy imports) so the command line can offer
+# them as choices without importing pandas, scipy or scikit-learn
+
+#: Event-log column roles and whether each is required.
+EVENT_ROLES = {"learner": True, "time": True, "action": True,
+               "session": False, "target": False, "channel": False}
+
+#: Multiple-comparison corrections of the contrast table.
+CONTRAST_CORRECTIONS = ("bh", "holm", "westfall-young")
+
+#: Early-prediction classifier name -> featurizers whose columns it uses (``()`` = majority).
+CLASSIFIERS = {
+    "pattern": ("pattern",),
+    "hmm": ("hmm",),
+    "frequency_pause": ("frequency_pause",),
+    "fusion": ("pattern", "hmm", "frequency_pause"),
+    "majority": (),
+}
 
 #: Defaults of every option, by section: the one source of defaults. The Python API
 #: (``mine``, ``contrast``, ``fit_phases``, ``validate``, ``Encoder``, ...), every
@@ -69,6 +90,10 @@ DEFAULT_CONFIG = {
     "report": {"examples": True, "max_patterns": 15},
     "privacy": {"pseudonymize_key": None},
 }
+
+
+#: Observed fractions of each held-out sequence used by default in ``validate``.
+DEFAULT_FRACTIONS = tuple(DEFAULT_CONFIG["validate"]["fractions"])
 
 
 def default_config():

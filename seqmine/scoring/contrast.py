@@ -10,7 +10,7 @@ import pandas as pd
 import scipy.sparse as sp
 
 from .._util.checks import check_choice, check_fraction, check_int
-from ..config import DEFAULT_CONFIG
+from ..config import CONTRAST_CORRECTIONS, DEFAULT_CONFIG
 from ..errors import ParameterError, SeqmineWarning
 from ..mining.patterns import PatternSet
 from .effects import (
@@ -45,7 +45,6 @@ MIN_GROUP_SIZE = 2
 #: have little power (common practice, not a published threshold).
 SMALL_GROUP_SIZE = 5
 #: Values of the ``correction`` parameter.
-CONTRAST_CORRECTIONS = ("bh", "holm", "westfall-young")
 
 _RATE_UNITS = ("tokens", "actions", "count")
 _DEFAULTS = DEFAULT_CONFIG["contrast"]

@@ -29,7 +29,7 @@ from .._util.csvio import write_csv
 from .._util.jsonio import write_json
 from .._util.parallel import parallel_map
 from .._util.progress import progress
-from ..config import DEFAULT_CONFIG
+from ..config import CLASSIFIERS, DEFAULT_CONFIG, DEFAULT_FRACTIONS
 from ..errors import ParameterError
 from .features import (
     FrequencyPauseFeaturizer,
@@ -49,19 +49,8 @@ __all__ = [
     "DEFAULT_FRACTIONS",
 ]
 
-#: Observed fractions of each held-out sequence used by default.
-DEFAULT_FRACTIONS = tuple(DEFAULT_CONFIG["validate"]["fractions"])
 _DEFAULTS = DEFAULT_CONFIG["validate"]
 _SEED = DEFAULT_CONFIG["seed"]
-
-#: Classifier name -> featurizers whose columns it uses (``()`` = majority class).
-CLASSIFIERS = {
-    "pattern": ("pattern",),
-    "hmm": ("hmm",),
-    "frequency_pause": ("frequency_pause",),
-    "fusion": ("pattern", "hmm", "frequency_pause"),
-    "majority": (),
-}
 
 
 def validate(events, outcomes, *, n_splits=_DEFAULTS["n_splits"], loo=False,

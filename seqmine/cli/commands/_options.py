@@ -14,7 +14,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from ...config import DEFAULT_CONFIG
+from ...config import CONTRAST_CORRECTIONS, DEFAULT_CONFIG, EVENT_ROLES
 from ...errors import OptionValueError
 
 __all__ = ["add_option", "flag_for", "FLAG_EXCEPTIONS", "add_event_options",
@@ -24,9 +24,6 @@ __all__ = ["add_option", "flag_for", "FLAG_EXCEPTIONS", "add_event_options",
            "encoder_from_args", "mining_params", "add_privacy_option",
            "pseudonymize_inputs", "print_warnings", "int_or_none", "float_or_none",
            "support_value", "float_list", "label_list", "NONE_WORD", "shown"]
-
-#: Column roles of the event log (``learner``, ``time``, ...), from the ``[events]`` keys.
-EVENT_ROLES = [k[:-len("_column")] for k in DEFAULT_CONFIG["events"] if k.endswith("_column")]
 
 #: How "no limit" / "not set" is written on the command line and in TOML files.
 NONE_WORD = "none"
@@ -283,7 +280,7 @@ def add_contrast_options(p, title="pattern statistics"):
     """The options of :func:`seqmine.scoring.contrast.contrast` that have a
     configuration key (the ``[contrast]`` section)."""
     g = p.add_argument_group(title)
-    add_option(g, "contrast", "correction", choices=["bh", "holm", "westfall-young"],
+    add_option(g, "contrast", "correction", choices=CONTRAST_CORRECTIONS,
                help="multiple-comparison control of q_value (default: {default})")
     add_option(g, "contrast", "alpha", type=float, metavar="A",
                help="significance level: 'favours' is set when q <= A (default: {default})")

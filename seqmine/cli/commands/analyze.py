@@ -5,7 +5,6 @@ from __future__ import annotations
 import argparse
 
 from ...config import default_config, load_config, merge_config
-from ...pipeline import analyze
 from . import _options
 from ._options import add_option, print_warnings
 
@@ -68,6 +67,7 @@ def config_from_args(args):
 
 
 def run(args):
+    from ...pipeline import analyze
     cfg = config_from_args(args)
     result = analyze(args.events, args.outcomes, args.out, cfg, quiet=args.quiet)
     if not args.quiet:

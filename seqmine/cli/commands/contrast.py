@@ -7,11 +7,7 @@ from pathlib import Path
 
 from ..._util.csvio import write_csv
 from ..._util.progress import is_quiet
-from ...encoding.sequences import SequenceDB
 from ...errors import DataFileError, ParameterError
-from ...mining.miner import load_patternset
-from ...scoring.contrast import contrast, pairwise_contrast
-from ...scoring.transitions import transitions
 from . import _options
 from ._options import add_option
 
@@ -59,6 +55,9 @@ def add_arguments(parser):
 
 
 def run(args):
+    from ...encoding.sequences import SequenceDB
+    from ...scoring.contrast import contrast, pairwise_contrast
+    from ...scoring.transitions import transitions
     """Run ``seqmine contrast`` (quiet mode is set by the command line per call)."""
     ps = read_patternset(args.patterns)
     db = SequenceDB.load(args.sequences) if args.sequences else None
@@ -98,6 +97,7 @@ def run(args):
 
 
 def read_patternset(path):
+    from ...mining.miner import load_patternset
     """Read a pattern set folder written by ``seqmine mine`` (or the path of its CSV)."""
     folder = Path(path)
     if folder.suffix.lower() == ".csv":

@@ -6,7 +6,6 @@ import sys
 from pathlib import Path
 
 from ..._util.progress import is_quiet
-from ...encoding.sequences import SequenceDB
 from . import _options
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
@@ -34,6 +33,7 @@ def add_arguments(parser):
 
 def run(args):
     """Run the command; returns the exit status."""
+    from ...encoding.sequences import SequenceDB
     from ...mining.miner import mine, save_patternset
     db = SequenceDB.load(args.sequences)
     ps = mine(db, **_options.mining_params(args))

@@ -7,7 +7,6 @@ from pathlib import Path
 
 from ..._util.progress import is_quiet
 from ...config import DEFAULT_CONFIG
-from ...encoding.sequences import SequenceDB
 from . import _options
 from ._options import add_option
 
@@ -45,6 +44,7 @@ def add_arguments(parser):
 
 def run(args):
     """Run ``seqmine phases``; quiet mode is set per call by the command line."""
+    from ...encoding.sequences import SequenceDB
     from ...phases import fit_phases
 
     db = SequenceDB.load(args.sequences)

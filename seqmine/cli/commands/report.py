@@ -5,7 +5,6 @@ from __future__ import annotations
 import argparse
 
 from ...errors import ParameterError
-from ...reporting.render import render_report
 from ._options import add_option
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
@@ -30,6 +29,7 @@ def add_arguments(parser):
 
 
 def run(args):
+    from ...reporting.render import render_report
     """Render the report and print where it is."""
     if args.max_patterns < 1:
         raise ParameterError(
