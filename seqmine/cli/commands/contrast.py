@@ -55,10 +55,10 @@ def add_arguments(parser):
 
 
 def run(args):
+    """Run ``seqmine contrast`` (quiet mode is set by the command line per call)."""
     from ...encoding.sequences import SequenceDB
     from ...scoring.contrast import contrast, pairwise_contrast
     from ...scoring.transitions import transitions
-    """Run ``seqmine contrast`` (quiet mode is set by the command line per call)."""
     ps = read_patternset(args.patterns)
     db = SequenceDB.load(args.sequences) if args.sequences else None
     if args.transitions and db is None:
@@ -97,8 +97,8 @@ def run(args):
 
 
 def read_patternset(path):
-    from ...mining.miner import load_patternset
     """Read a pattern set folder written by ``seqmine mine`` (or the path of its CSV)."""
+    from ...mining.miner import load_patternset
     folder = Path(path)
     if folder.suffix.lower() == ".csv":
         folder = folder.parent

@@ -75,11 +75,11 @@ def add_arguments(parser):
 
 
 def run(args):
+    """Run ``seqmine detectors``."""
     import pandas as pd
 
     from ...detection.detectors import export_detectors, save_detectors
     from ...encoding.sequences import SequenceDB
-    """Run ``seqmine detectors``."""
     table_path = Path(args.table)
     if not table_path.is_file():
         raise DataFileError(f"{table_path}: contrast table not found; create it with "

@@ -29,8 +29,8 @@ def add_arguments(parser):
 
 
 def run(args):
-    from ...reporting.render import render_report
     """Render the report and print where it is."""
+    from ...reporting.render import render_report
     if args.max_patterns < 1:
         raise ParameterError(
             f"--max-patterns must be a whole number of at least 1. Got {args.max_patterns}.")

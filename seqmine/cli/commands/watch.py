@@ -60,8 +60,8 @@ def add_arguments(parser):
 
 
 def run(args):
-    from ...detection.watcher import Watcher
     """Run ``seqmine watch``."""
+    from ...detection.watcher import Watcher
     idle = _idle(args.idle_timeout)
     watcher = Watcher(args.detectors, cooldown_seconds=args.cooldown, idle_timeout=idle,
                       out_of_order_tolerance=args.tolerance,
@@ -100,8 +100,8 @@ def run(args):
 
 
 def _loop(stream, name, interactive, watcher, out, err, args, hints_only, pseudo):
-    from ...detection.watcher import EventError
     """Read, process and write every line; bad events get one line on ``err``."""
+    from ...detection.watcher import EventError
     for lineno, line in enumerate(stream, 1):
         if not line.strip():
             continue
