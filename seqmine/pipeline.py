@@ -3,8 +3,10 @@
 from __future__ import annotations
 
 import contextlib
+import os
 import time
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -17,7 +19,7 @@ from .errors import DataFileError, ParameterError
 from .inputs.outcomes import Grouping, match_learners
 
 __all__ = ["Prepared", "prepare_sequences", "pseudonymize_inputs", "analyze", "AnalysisResult",
-           "MIN_GROUP_LEARNERS"]
+           "warnings_frame", "MIN_GROUP_LEARNERS"]
 
 #: Configuration keys that only say where work runs (left out of summary.json).
 _EXECUTION_KEYS = ("n_jobs", "scheduler")
@@ -139,14 +141,76 @@ def _describe(values):
 
 
 # ---------------------------------------------------------------------- analyze
-@dataclass
+@dataclass(repr=False)
 class AnalysisResult:
-    """What :func:`analyze` wrote and the headline counts."""
+    """What :func:`analyze` computed and wrote: the result tables as pandas DataFrames
+    (the same content as the files), the summary and the file paths.
+
+    Attributes
+    ----------
+    out_dir : pathlib.Path
+        The output folder.
+    summary : dict
+        The content of ``summary.json`` (plus ``stage_seconds``, the wall-clock time of
+        each stage, which the file leaves out).
+    files : list of pathlib.Path
+        The files and folders written, in the order they were written.
+    patterns : pandas.DataFrame
+        The contrast table (``patterns.csv``): one row per mined pattern, most useful first.
+    transitions : pandas.DataFrame
+        The lag-1 transition table (``transitions.csv``).
+    phases : seqmine.phases.PhaseResult or None
+        The phase models and their tables (``selection``, ``states``,
+        ``path_comparison``, ``alignment``, ``aligned_transitions``, ``distances``,
+        ``excluded``); written to ``phases/``. None when phases were switched off.
+    early_prediction : pandas.DataFrame or None
+        Early-prediction metrics per classifier and fraction (``early_prediction.csv``);
+        None when validation was switched off.
+    detectors : pandas.DataFrame
+        One row per exported detector (the ``detectors`` list of ``detectors.json``).
+    rejects : pandas.DataFrame
+        Event rows that could not be used, with the reason (``rejects.csv``).
+    warnings : pandas.DataFrame
+        Each distinct warning of the run: ``code``, ``message``, ``count`` (as in
+        ``summary.json``).
+    """
 
     out_dir: object
     summary: dict
     files: list
-    warnings: list = field(default_factory=list)
+    patterns: pd.DataFrame = None
+    transitions: pd.DataFrame = None
+    phases: object = None
+    early_prediction: pd.DataFrame = None
+    detectors: pd.DataFrame = None
+    rejects: pd.DataFrame = None
+    warnings: pd.DataFrame = field(default_factory=lambda: warnings_frame([]))
+
+    @property
+    def report(self):
+        """Path of ``report.html`` (None if it was not written)."""
+        return next((Path(f) for f in self.files if str(f).endswith("report.html")), None)
+
+    def __repr__(self):
+        s = self.summary
+        groups = ", ".join(f"{g} {n}" for g, n in (s.get("sequences_per_group") or {}).items())
+        lines = [f"AnalysisResult(out_dir={str(self.out_dir)!r})",
+                 f"  {s.get('sequences', 0)} sequences ({groups}); "
+                 f"{s.get('patterns_mined', 0)} patterns mined, "
+                 f"{s.get('patterns_significant', 0)} significant; "
+                 f"{s.get('detectors', 0)} detectors; {len(self.warnings)} warning(s)"]
+        tables = [(name, getattr(self, name)) for name in
+                  ("patterns", "transitions", "early_prediction", "detectors", "rejects",
+                   "warnings")]
+        shapes = ", ".join(f"{name} {t.shape[0]}x{t.shape[1]}" for name, t in tables
+                           if isinstance(t, pd.DataFrame))
+        lines.append(f"  tables: {shapes}")
+        if self.phases is not None:
+            lines.append(f"  phases: {self.phases.n_states} states, models "
+                         f"{', '.join(self.phases.models)}")
+        if self.report is not None:
+            lines.append(f"  report: {self.report}")
+        return "\n".join(lines)
 
     def message(self):
         """One-paragraph description for the command line."""
@@ -160,6 +224,22 @@ class AnalysisResult:
         if rep:
             lines.append(f"Report: {rep[0]}")
         return "\n".join(lines)
+
+
+def warnings_frame(records):
+    """The warnings of a run (:class:`~seqmine._util.warnlog.RunWarning` records or
+    ``{"code", "message", "count"}`` dicts) as a DataFrame with those three columns.
+
+    Examples
+    --------
+    >>> warnings_frame([{"code": "tied_times", "message": "Ties.", "count": 3}])
+             code message  count
+    0  tied_times   Ties.      3
+    """
+    rows = [r if isinstance(r, dict) else r.as_dict() for r in records]
+    frame = pd.DataFrame(rows, columns=["code", "message", "count"])
+    frame["count"] = frame["count"].astype("Int64")
+    return frame
 
 
 def _versions():
@@ -177,7 +257,10 @@ def _versions():
 
 
 def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
-    """Run the whole pipeline and write the output folder.
+    """Run the whole pipeline, write the output folder and return the results.
+
+    The same as ``seqmine analyze EVENTS --outcomes OUTCOMES --out OUT_DIR``: with the
+    same settings the files are byte-identical.
 
     With ``config["n_jobs"] > 1`` mining partitions, Westfall-Young permutation
     batches, phase-model fits and validation folds run in local processes; with
@@ -189,19 +272,22 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     events_path, outcomes_path : str or Path
     out_dir : str or Path
         Created if missing; the contract files in it are replaced.
-    config : dict, optional
-        A configuration as from :func:`seqmine.config.load_config`; defaults otherwise.
+    config : dict, str or Path, optional
+        Settings over the defaults (:data:`seqmine.config.DEFAULT_CONFIG`): a nested
+        dict with only the keys to change, e.g. ``{"mine": {"min_support": 0.3}}``, a
+        whole configuration (:func:`seqmine.config.load_config`), or the path of a TOML
+        file. Unknown keys are errors that name the closest valid key.
     quiet : bool
-        No progress bars.
+        No progress bars or stage lines.
 
     Returns
     -------
     AnalysisResult
+        The result tables as DataFrames, the summary and the paths of the files.
     """
     from ._util.parallel import using_scheduler
-    from .config import default_config
 
-    cfg = config or default_config()
+    cfg = _settings(config)
     log = WarningLog()
     # quiet=False leaves the caller's setting (the command line's --quiet) in force
     with (quiet_mode(True) if quiet else contextlib.nullcontext()), \
@@ -209,10 +295,17 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
         return _analyze(events_path, outcomes_path, out_dir, cfg, log=log)
 
 
-def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
-    from pathlib import Path
+def _settings(config):
+    """The configuration of a run: defaults, a TOML file, or a (partial) dict over them."""
+    from .config import default_config, load_config, merge_config
+    if config is None:
+        return default_config()
+    if isinstance(config, (str, os.PathLike)):
+        return load_config(config)
+    return merge_config(default_config(), config, source="analyze(config=...)")
 
-    from .config import default_config
+
+def _analyze(events_path, outcomes_path, out_dir, cfg, *, log):
     from .encoding.encoder import encoder_from_settings
     from .inputs.load import load_events
     from .inputs.outcomes import load_outcomes
@@ -223,7 +316,6 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
     from .scoring.contrast import contrast
     from .scoring.transitions import transitions
 
-    cfg = config or default_config()
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     files = []
@@ -307,6 +399,7 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
 
     # 4. phases of work
     ph_cfg = cfg["phases"]
+    phases = validation = None
     if ph_cfg["enabled"]:
         from .phases import fit_phases
         with stages("phase models"):
@@ -393,7 +486,11 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
         report = render_report(out, examples=bool(cfg["report"]["examples"]),
                                max_patterns=int(cfg["report"]["max_patterns"]))
         files.append(report)
-    return AnalysisResult(out_dir=out, summary=summary, files=files, warnings=list(log))
+    return AnalysisResult(
+        out_dir=out, summary=summary, files=files, patterns=table, transitions=trans,
+        phases=phases, early_prediction=None if validation is None else validation.metrics,
+        detectors=pd.DataFrame(doc.get("detectors", [])), rejects=loaded.rejects,
+        warnings=warnings_frame(log))
 
 
 def _sample_sequences(db, limit, seed):

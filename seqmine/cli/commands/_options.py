@@ -340,8 +340,9 @@ def pseudonymize_inputs(args, loaded, outcomes):
     return replace(loaded, outcomes, read_key(key_path))
 
 
-def print_warnings(records):
-    """Each warning a run recorded, once, as one line on standard error (also when quiet:
-    a warning says what the run assumed, which scripts need to know too)."""
-    for w in records:
-        print(f"seqmine: warning [{w.code}]: {w.message}", file=sys.stderr)
+def print_warnings(frame):
+    """Each warning a run recorded (``AnalysisResult.warnings``), once, as one line on
+    standard error (also when quiet: a warning says what the run assumed, which scripts
+    need to know too)."""
+    for code, message in zip(frame["code"], frame["message"]):
+        print(f"seqmine: warning [{code}]: {message}", file=sys.stderr)
