@@ -15,7 +15,6 @@ Public API
 from .classify import GroupHMMClassifier
 from .compare import (
                       align_states,
-                      bh_adjust,
                       compare_state_paths,
                       compare_transitions,
                       model_distance,
@@ -43,7 +42,6 @@ __all__ = [
     "compare_transitions",
     "model_distance",
     "state_paths_db",
-    "bh_adjust",
     "GroupHMMClassifier",
     "plot_phase_model",
 ]
