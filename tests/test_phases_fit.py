@@ -18,7 +18,6 @@ from seqmine.phases import (
     compare_state_paths,
     fit_phase_model,
     fit_phases,
-    learner_folds,
     load_phase_models,
     model_distance,
     path_measures,
@@ -172,14 +171,6 @@ def test_selection_table_bic_formula():
     freq = np.bincount(db.tokens, minlength=6) / db.n_tokens
     np.testing.assert_allclose(models[1].emissionprob[0], _hmm.apply_emission_floor(
         freq[None, :], 1e-4)[0], atol=1e-6)
-
-
-def test_learner_folds_keep_learners_together():
-    learners = np.array(["a", "b", "a", "c", "d", "b", "e"])
-    folds = learner_folds(learners, 2, seed=0)
-    for name in set(learners):
-        assert len(set(folds[learners == name])) == 1
-    assert set(folds) == {0, 1}
 
 
 # -------------------------------------------------------------- comparisons

@@ -10,12 +10,13 @@ import pandas as pd
 from joblib import Parallel, delayed
 
 from .._util.checks import check_int, check_number
+from .._util.folds import learner_splits
 from ..encoding.sequences import SequenceDB
 from ..errors import ParameterError, SeqmineWarning
 from . import _hmm
 from .model import PhaseModel
 
-__all__ = ["fit_phase_model", "select_n_states", "learner_folds", "parse_state_range"]
+__all__ = ["fit_phase_model", "select_n_states", "parse_state_range"]
 
 #: Default additive emission smoothing (see :func:`_hmm.apply_emission_floor`).
 DEFAULT_EMISSION_FLOOR = 1e-4
@@ -121,8 +122,8 @@ def select_n_states(sequences, *, n_states=range(2, 7), n_restarts=5, n_folds=3,
     tasks = [(n, r) for n in counts for r in range(n_restarts)]
     fold_of = None
     if n_folds:
-        fold_of = learner_folds(learners if learners is not None else
-                                np.arange(len(lengths)).astype(str), n_folds, seed)
+        fold_of = _learner_folds(learners if learners is not None else
+                                 np.arange(len(lengths)).astype(str), n_folds, seed)
         tasks_cv = [(n, r, f) for f in range(n_folds) for n in counts for r in range(n_restarts)]
     # all fits in one parallel batch
     offsets = np.zeros(len(lengths) + 1, dtype=np.int64)
@@ -173,28 +174,25 @@ def select_n_states(sequences, *, n_states=range(2, 7), n_restarts=5, n_folds=3,
     return table, models
 
 
-def learner_folds(learners, n_folds, seed):
-    """Fold number of each sequence; all sequences of one learner share a fold.
-
-    Learners (sorted distinct identifiers) are shuffled with a seeded generator and
-    dealt round-robin into ``n_folds`` folds.
+def _learner_folds(learners, n_folds, seed):
+    """Fold number of each sequence for held-out scoring; a learner's sequences share one.
 
     Examples
     --------
-    >>> learner_folds(["a", "b", "a", "c"], 2, 0).tolist()
+    >>> _learner_folds(["a", "b", "a", "c"], 2, 0).tolist()
     [1, 0, 1, 0]
     """
-    learners = np.asarray(learners).astype(str)
-    uniq, inv = np.unique(learners, return_inverse=True)
-    if len(uniq) < n_folds:
+    n_learners = len(np.unique(np.asarray(learners).astype(str)))
+    if n_learners < n_folds:
         raise ParameterError(
             f"Held-out scoring needs at least {n_folds} learners (one per fold) but the data "
-            f"has {len(uniq)}; lower 'n_folds' (0 switches held-out scoring off).")
-    rng = np.random.default_rng(_hmm.derive_seed(seed, 7919))
-    perm = rng.permutation(len(uniq))
-    fold_of_learner = np.empty(len(uniq), dtype=np.int64)
-    fold_of_learner[perm] = np.arange(len(uniq)) % n_folds
-    return fold_of_learner[inv]
+            f"has {n_learners}; lower 'n_folds' (0 switches held-out scoring off).")
+    fold_of = np.empty(len(learners), dtype=np.int64)
+    splits = learner_splits(learners, folds=n_folds, seed=_hmm.derive_seed(seed, 7919),
+                            where="select_n_states")
+    for f, (_, test) in enumerate(splits):
+        fold_of[test] = f
+    return fold_of
 
 
 def parse_state_range(value):
