@@ -106,7 +106,7 @@ def test_cli_writes_the_tables(small_files, tmp_path):
     (("--fractions", "a,b"), r"--fractions takes comma-separated numbers"),
     (("--folds", "40"), r"There are 30 learners but 40 folds"),
     (("--classifiers", "pattern,svm"), r"--classifiers: unknown name 'svm'"),
-    (("--jobs", "0"), r"'n_jobs' parameter of validate must be >= 1 or -1"),
+    (("--jobs", "0"), r"'n_jobs' parameter of validate must be a positive int or -1"),
 ])
 def test_cli_bad_options_exit_2_with_one_line(small_files, tmp_path, capsys, extra, msg):
     code = _cli(small_files, tmp_path / "x", *extra)

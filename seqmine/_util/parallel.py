@@ -12,6 +12,7 @@ import contextlib
 import functools
 
 from ..errors import ParameterError
+from .checks import check_jobs
 from .progress import is_quiet, set_quiet
 
 __all__ = ["parallel_map", "using_scheduler"]
@@ -43,14 +44,14 @@ def parallel_map(func, items, *, jobs=1, scheduler=None):
     [2, 3, 1]
     """
     items = list(items)
+    if jobs is not None:
+        jobs = check_jobs(jobs, "jobs")
     if not scheduler and (jobs is None or jobs == 1 or len(items) <= 1):
         return [func(x) for x in items]
     # worker processes start with default settings: carry the quiet switch over
     func = functools.partial(_call_with_quiet, func, is_quiet())
     if scheduler:
         return _dask_map(func, items, scheduler, jobs)
-    if not isinstance(jobs, int) or jobs == 0 or jobs < -1:
-        raise ParameterError(f"The 'jobs' parameter must be a positive int or -1. Got {jobs!r} instead.")
     from joblib import Parallel, delayed
     return list(Parallel(n_jobs=jobs)(delayed(func)(x) for x in items))
 
@@ -60,8 +61,8 @@ def using_scheduler(scheduler, jobs=1):
     """Connect to a Dask cluster once for a block of work.
 
     Inside the block, :func:`parallel_map` calls with the same ``scheduler`` reuse the
-    connection (a ``"local"`` cluster is started once, not per call) and joblib's
-    ``Parallel`` (hidden Markov model restarts) runs on the cluster too. With
+    connection (a ``"local"`` cluster is started once, not per call) and calls without a
+    scheduler but with ``jobs > 1`` (hidden Markov model restarts) run on the cluster too. With
     ``scheduler=None`` nothing happens.
 
     Parameters

@@ -13,7 +13,7 @@ from __future__ import annotations
 import numpy as np
 import scipy.sparse as sp
 
-from .._util.checks import check_int
+from .._util.checks import check_int, check_jobs
 from .._util.parallel import parallel_map
 from .._util.progress import is_quiet, set_quiet
 from ..encoding.sequences import SequenceDB
@@ -100,10 +100,11 @@ def mine_parallel(db, *, jobs=1, scheduler=None, partitions=None, min_support=0.
 def _workers(jobs):
     if jobs is None or jobs == 1:
         return 1
+    jobs = check_jobs(jobs, "jobs", "mine")
     if jobs == -1:
         import os
         return max(1, os.cpu_count() or 1)
-    return check_int(jobs, "jobs", "mine", minimum=1)
+    return jobs
 
 
 def _partition_first_items(db, n_parts):

@@ -7,10 +7,10 @@ import warnings
 
 import numpy as np
 import pandas as pd
-from joblib import Parallel, delayed
 
-from .._util.checks import check_int, check_number
+from .._util.checks import check_int, check_jobs, check_number
 from .._util.folds import learner_splits
+from .._util.parallel import parallel_map
 from ..encoding.sequences import SequenceDB
 from ..errors import ParameterError, SeqmineWarning
 from . import _hmm
@@ -41,7 +41,7 @@ def fit_phase_model(sequences, *, n_states=3, n_restarts=5, seed=0, n_jobs=1, n_
     n_restarts : int
     seed : int
     n_jobs : int
-        joblib workers (``-1`` = all cores).
+        Worker processes (``-1`` = all cores; see :func:`seqmine._util.parallel.parallel_map`).
     n_iter : int
         Maximum EM iterations per restart.
     tol : float
@@ -66,7 +66,7 @@ def fit_phase_model(sequences, *, n_states=3, n_restarts=5, seed=0, n_jobs=1, n_
     X, lengths, vocab = _arrays(sequences, vocab)
     n_states = check_int(n_states, "n_states", "fit_phase_model", minimum=1)
     n_restarts = check_int(n_restarts, "n_restarts", "fit_phase_model", minimum=1)
-    n_jobs = _check_jobs(n_jobs, "fit_phase_model")
+    n_jobs = check_jobs(n_jobs, "n_jobs", "fit_phase_model")
     emission_floor = check_number(emission_floor, "emission_floor", "fit_phase_model",
                                   minimum=0)
     _check_supported(n_states, len(vocab), len(X), label)
@@ -99,7 +99,7 @@ def select_n_states(sequences, *, n_states=range(2, 7), n_restarts=5, n_folds=3,
     X, lengths, vocab = _arrays(sequences, vocab)
     counts = parse_state_range(n_states)
     n_restarts = check_int(n_restarts, "n_restarts", "select_n_states", minimum=1)
-    n_jobs = _check_jobs(n_jobs, "select_n_states")
+    n_jobs = check_jobs(n_jobs, "n_jobs", "select_n_states")
     n_folds = check_int(n_folds, "n_folds", "select_n_states", minimum=0)
     if n_folds == 1:
         raise ParameterError("The 'n_folds' parameter of select_n_states must be 0 (no "
@@ -250,14 +250,6 @@ def _arrays(sequences, vocab=None):
     return X, lengths, list(vocab)
 
 
-def _check_jobs(n_jobs, where):
-    n_jobs = check_int(n_jobs, "n_jobs", where)
-    if n_jobs == 0:
-        raise ParameterError(f"The 'n_jobs' parameter of {where} must be a positive int or "
-                             f"-1 (all cores). Got 0 instead.")
-    return n_jobs
-
-
 def _check_supported(n_states, n_symbols, n_tokens, label):
     k = _hmm.n_free_parameters(n_states, n_symbols)
     if k >= n_tokens:
@@ -274,7 +266,8 @@ def _take(X, offsets, lengths, idx):
     return Xs, lens
 
 
-def _fit_job(X, lengths, n_symbols, n_states, seed, kwargs):
+def _fit_job(call):
+    X, lengths, n_symbols, n_states, seed, kwargs = call
     return _hmm.fit_restart(X, lengths, n_states, n_symbols, seed, **kwargs)
 
 
@@ -282,9 +275,7 @@ def _parallel(jobs, n_symbols, seed, purpose, n_jobs, **kwargs):
     """Run ``(X, lengths, n_states, restart, fold)`` fits; order of results = order of jobs."""
     calls = [(X, lengths, n_symbols, n, _hmm.derive_seed(seed, purpose, n, fold, r), kwargs)
              for X, lengths, n, r, fold in jobs]
-    if n_jobs == 1 or len(calls) <= 1:
-        return [_fit_job(*c) for c in calls]
-    return Parallel(n_jobs=n_jobs)(delayed(_fit_job)(*c) for c in calls)
+    return parallel_map(_fit_job, calls, jobs=n_jobs)
 
 
 def _run(X, lengths, n_symbols, tasks, seed, purpose, fold, n_jobs, **kwargs):

@@ -23,7 +23,7 @@ from sklearn.linear_model import LogisticRegression
 from sklearn.pipeline import FeatureUnion, make_pipeline
 from sklearn.preprocessing import StandardScaler
 
-from .._util.checks import check_choice, check_fraction, check_int, check_number
+from .._util.checks import check_choice, check_fraction, check_int, check_jobs, check_number
 from .._util.csvio import write_csv
 from .._util.folds import learner_splits
 from .._util.jsonio import write_json
@@ -156,10 +156,7 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
     check_fraction(alpha, "alpha", where, high_inclusive=False)
     check_number(C, "C", where, minimum=0, strict=True)
     check_choice(train_on, "train_on", ("full", "matched"), where)
-    check_int(n_jobs, "n_jobs", where, minimum=-1)
-    if n_jobs == 0:
-        raise ParameterError("The 'n_jobs' parameter of validate must be >= 1 or -1. Got 0 "
-                             "instead.")
+    check_jobs(n_jobs, "n_jobs", where)
     names = list(CLASSIFIERS) if classifiers is None else list(classifiers)
     for n in names:
         if n not in CLASSIFIERS:
