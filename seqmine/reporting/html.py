@@ -9,11 +9,11 @@ formatted here, never taken as text from the files.
 from __future__ import annotations
 
 import math
-import re
 from html import escape
 
 import numpy as np
 
+from .._util.text import replace_control_characters
 from . import plots as _plots
 
 __all__ = ["esc", "lookup", "config_of", "counts_of", "group_names_of", "top_patterns",
@@ -21,7 +21,6 @@ __all__ = ["esc", "lookup", "config_of", "counts_of", "group_names_of", "top_pat
 
 PAGE_TITLE = "seqmine report: behaviour patterns and outcomes"
 _SEP = " > "
-_CONTROL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f]")
 _CORRECTIONS = {
     "bh": "Benjamini–Hochberg false discovery rate",
     "fdr_bh": "Benjamini–Hochberg false discovery rate",
@@ -113,7 +112,7 @@ def esc(value, max_chars=400):
     >>> esc('<script>alert("x")</script>')
     '&lt;script&gt;alert(&quot;x&quot;)&lt;/script&gt;'
     """
-    s = _CONTROL.sub("\ufffd", str(value))
+    s = replace_control_characters(str(value), keep_layout=True)
     if len(s) > max_chars:
         s = s[: max_chars - 1] + "…"
     return escape(s, quote=True)
