@@ -33,7 +33,7 @@ from .._util.jsonio import json_default
 from ..encoding.sequences import SequenceDB
 from ..errors import DataFileError, ParameterError
 from ._search import assemble_counts, build_trie, node_offsets, search
-from .patterns import PatternSet, parse_pattern
+from .patterns import PatternSet, is_subsequence, parse_pattern
 
 __all__ = ["mine", "match", "pattern_table", "save_patternset", "load_patternset",
            "DEFAULT_MAX_PATTERNS"]
@@ -588,17 +588,12 @@ def _superpattern_flags_slow(pats, support):
     not_maximal = np.zeros(n, dtype=bool)
     for i, p in enumerate(pats):
         for j, q in enumerate(pats):
-            if len(q) > len(p) and _is_subsequence(p, q):
+            if len(q) > len(p) and is_subsequence(p, q):
                 not_maximal[i] = True
                 if np.array_equal(support[i], support[j]):
                     not_closed[i] = True
                     break
     return not_closed, not_maximal
-
-
-def _is_subsequence(p, q):
-    it = iter(q)
-    return all(any(x == y for y in it) for x in p)
 
 
 def _first_item_ids(first_items, db):

@@ -32,7 +32,7 @@ import scipy.sparse as sp
 
 from ..errors import ParameterError
 
-__all__ = ["PatternSet", "PATTERN_SEPARATOR", "format_pattern", "parse_pattern"]
+__all__ = ["PatternSet", "PATTERN_SEPARATOR", "format_pattern", "parse_pattern", "is_subsequence"]
 
 #: Separator between tokens in a pattern's readable name (``a > b > c``).
 PATTERN_SEPARATOR = " > "
@@ -41,6 +41,20 @@ PATTERN_SEPARATOR = " > "
 def format_pattern(pattern, vocab):
     """Readable name of a pattern given as token ids."""
     return PATTERN_SEPARATOR.join(vocab[t] for t in pattern)
+
+
+def is_subsequence(short, long):
+    """True when ``short`` occurs in ``long`` in order, gaps allowed (no constraints).
+
+    Examples
+    --------
+    >>> is_subsequence(("a", "c"), ("a", "b", "c")), is_subsequence(("c", "a"), ("a", "b", "c"))
+    (True, False)
+    """
+    if len(short) > len(long):
+        return False
+    it = iter(long)
+    return all(any(x == y for y in it) for x in short)
 
 
 def parse_pattern(text, vocab):
