@@ -34,9 +34,9 @@ def _int_patterns(ps):
 
 # ---------------------------------------------------------------- worked examples
 def test_single_symbol_worked_example():
-    # Source: README of a general-purpose PrefixSpan package on the package index
-    # (database and the 14 frequent patterns at min support 2); see shared
-    # CHECK_VALUES.md, recomputed there by brute force.
+    # Source: README of the prefixspan package on PyPI (Chuancong Gao, PrefixSpan-py,
+    # version 0.5.2, "API Usage": the database and the 14 frequent patterns that
+    # ps.frequent(2) prints); recomputed by brute-force enumeration.
     seqs = [[0, 1, 2, 3, 4], [1, 1, 1, 3, 4], [2, 1, 2, 2, 0], [1, 1, 1, 2, 2]]
     expected = {(0,): 2, (1,): 4, (1, 2): 3, (1, 2, 2): 2, (1, 3): 2, (1, 3, 4): 2,
                 (1, 4): 2, (1, 1): 2, (1, 1, 1): 2, (2,): 3, (2, 2): 2, (3,): 2,
