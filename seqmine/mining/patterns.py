@@ -96,6 +96,11 @@ class PatternSet:
     constraints : dict
         The matching constraints (``max_gap``, ``max_window``, ``skip_pauses``, ...)
         and mining thresholds used.
+    search_stats : dict, optional
+        Work counters of the search that produced the set (blocks, candidates and
+        occurrences per level, instance counts), as returned by the private search;
+        empty for sets read from a file or assembled from pieces. Not compared and
+        not saved.
     """
 
     patterns: list
@@ -107,6 +112,7 @@ class PatternSet:
     counts: sp.csr_matrix
     seq_groups: np.ndarray
     constraints: dict = field(default_factory=dict)
+    search_stats: dict = field(default_factory=dict, compare=False, repr=False)
 
     def __post_init__(self):
         self.patterns = [tuple(int(t) for t in p) for p in self.patterns]
