@@ -203,7 +203,9 @@ def test_state_names_dwell_and_graph(tmp_path):
         [0.5, 0.5], [[0.75, 0.25], [0.02, 0.98]],
         [[0.45, 0.45, 0.1], [0.05, 0.05, 0.9]], ["measure_height", "pause:long", "paint_pot"])
     assert m.state_names == ["measure_height + pause:long", "paint_pot"]
-    np.testing.assert_allclose(m.dwell_times, [4.0, 50.0])  # 1 / (1 - a_ii)
+    # expected stay in a state, 1 / (1 - a_ii) (geometric durations; Rabiner 1989,
+    # Proc. IEEE 77(2), section II, from memory): 1/0.25 = 4 and 1/0.02 = 50
+    np.testing.assert_allclose(m.dwell_times, [4.0, 50.0])
     desc = m.describe_states()
     assert desc["top_tokens"].iloc[1] == "paint_pot 0.900; measure_height 0.050; pause:long 0.050"
     g = m.to_graph(threshold=0.05)
