@@ -256,8 +256,8 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
         raise ColumnError(f"{where}: the selected rows need columns 'pattern' and 'favours'.")
     constraints = dict(constraints or {})
     matching = {
-        "max_gap": _opt_int(constraints.get("max_gap")),
-        "max_window": _opt_int(constraints.get("max_window")),
+        "max_gap": _int_or_none(constraints.get("max_gap")),
+        "max_window": _int_or_none(constraints.get("max_window")),
         "skip_pauses": bool(constraints.get("skip_pauses", False)),
     }
     if group_sizes is not None and not isinstance(group_sizes, dict):
@@ -274,7 +274,7 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
     detectors = []
     for k, row in enumerate(selected_rows.to_dict("records")):
         tokens = _split_pattern(row["pattern"], known)
-        fav = "" if _missing(row.get("favours")) else str(row["favours"]).strip()
+        fav = "" if _is_missing(row.get("favours")) else str(row["favours"]).strip()
         if fav == weak:
             direction = "discourage"
         elif fav == strong:
@@ -294,7 +294,7 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
         }
         absence = None
         if direction == "encourage":
-            absence = {"after_events": _opt_int(absence_after_events),
+            absence = {"after_events": _int_or_none(absence_after_events),
                        "after_seconds": _finite_or_none(absence_after_seconds)}
         detectors.append({
             "id": f"D{k + 1:03d}",
@@ -671,7 +671,7 @@ def _readable(token):
     return token
 
 
-def _missing(v):
+def _is_missing(v):
     return v is None or (isinstance(v, float) and math.isnan(v))
 
 
@@ -686,7 +686,7 @@ def _finite_or_none(v):
     return f if math.isfinite(f) else None
 
 
-def _opt_int(v):
+def _int_or_none(v):
     if v is None or (isinstance(v, float) and math.isnan(v)):
         return None
     return int(v)
