@@ -10,12 +10,13 @@ from __future__ import annotations
 
 import contextlib
 import functools
+import os
 
 from ..errors import ParameterError
 from .checks import check_jobs
 from .progress import is_quiet, set_quiet
 
-__all__ = ["parallel_map", "using_scheduler"]
+__all__ = ["parallel_map", "using_scheduler", "n_workers"]
 
 #: Clients opened by :func:`using_scheduler`, innermost last: (scheduler, client).
 _ACTIVE = []
@@ -54,6 +55,20 @@ def parallel_map(func, items, *, jobs=1, scheduler=None):
         return _dask_map(func, items, scheduler, jobs)
     from joblib import Parallel, delayed
     return list(Parallel(n_jobs=jobs)(delayed(func)(x) for x in items))
+
+
+def n_workers(jobs, where=""):
+    """The number of worker processes ``jobs`` stands for: -1 = every core, None = 1.
+
+    Examples
+    --------
+    >>> n_workers(3), n_workers(None), n_workers(-1) >= 1
+    (3, 1, True)
+    """
+    if jobs is None:
+        return 1
+    jobs = check_jobs(jobs, "jobs", where)
+    return max(1, os.cpu_count() or 1) if jobs == -1 else jobs
 
 
 @contextlib.contextmanager
