@@ -10,7 +10,6 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from seqmine._util.text import replace_control_characters
-from seqmine.reporting import html as hx
 from seqmine.reporting import pieces as sec
 from seqmine.reporting import plots as _plots
 

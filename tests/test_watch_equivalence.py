@@ -4,7 +4,6 @@ from __future__ import annotations
 
 from collections import Counter
 
-import pytest
 from _watch_reference import (
     brute_instance_count,
     max_disjoint,
