@@ -18,13 +18,6 @@ from seqmine.validation.features import HMMLikelihoodFeaturizer
 FAST_HMM = dict(n_states=2, n_restarts=1, n_iter=20)
 
 
-@pytest.fixture(autouse=True)
-def _restore_quiet():
-    # the command line's --quiet switches progress output off process-wide
-    from seqmine._util.progress import is_quiet, set_quiet
-    before = is_quiet()
-    yield
-    set_quiet(before)
 
 
 def _greenhouse(n, seed):

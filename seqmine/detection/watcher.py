@@ -49,6 +49,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 
 from .._util.checks import check_number
+from .._util.isotime import parse_iso_datetime
 from .._util.text import has_control_characters
 from ..encoding.sequences import PAUSE_PREFIX
 from ..errors import SeqmineInputError
@@ -151,7 +152,7 @@ def parse_event_time(value):
             kind = "numeric"
         except ValueError:
             try:
-                dt = datetime.fromisoformat(s)
+                dt = parse_iso_datetime(s)
             except ValueError:
                 raise EventError(f"time {value!r} is neither ISO 8601 nor numeric seconds") from None
             if dt.tzinfo is None:
