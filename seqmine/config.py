@@ -12,6 +12,7 @@ import copy
 import difflib
 from pathlib import Path
 
+from ._util.checks import check_jobs
 from .errors import DataFileError, ParameterError
 
 try:  # Python >= 3.11
@@ -158,9 +159,11 @@ def merge_config(base, overrides, source="configuration"):
                 out[key][sub] = _check_value(source, key, sub, v)
         else:
             value = _check_value(source, None, key, value)
-            if key == "n_jobs" and not (value >= 1 or value == -1):
-                raise ParameterError(f"{source}: option 'n_jobs' must be a positive whole number "
-                                     f"or -1 (all cores); got {value!r}.")
+            if key == "n_jobs":
+                try:
+                    check_jobs(value, key)
+                except ParameterError as exc:
+                    raise ParameterError(f"{source}: {exc}") from None
             out[key] = value
     return out
 

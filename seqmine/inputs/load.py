@@ -24,6 +24,7 @@ import pandas as pd
 
 from .._util.checks import check_choice, check_columns
 from .._util.isotime import iso_seconds
+from .._util.text import CONTROL_CHARACTERS
 from ..config import DEFAULT_CONFIG, EVENT_ROLES
 from ..errors import ColumnError, DataFileError, ParameterError
 
@@ -69,7 +70,6 @@ _DEFAULT_LIMITS = (DEFAULT_MAX_BYTES, 20_000_000_000)  # the API's and the comma
 _EPOCH = pd.Timestamp("1970-01-01", tz="UTC")
 _T_MIN = 0.0
 _T_MAX = (pd.Timestamp("2100-01-01", tz="UTC") - _EPOCH).total_seconds()
-_CONTROL = r"[\x00-\x08\x0b-\x1f\x7f]"
 _FORMATS = ("csv", "tsv", "parquet", "jsonl", "xapi")
 
 
@@ -620,8 +620,9 @@ def _validate(raw, cols, path, duplicates, max_action_length):
     checks = [
         ("missing_learner", (lser == "").to_numpy()),
         ("missing_action", (aser == "").to_numpy()),
-        ("control_characters", (lser.str.contains(_CONTROL, regex=True)
-                                | aser.str.contains(_CONTROL, regex=True)).to_numpy(dtype=bool)),
+        ("control_characters", (lser.str.contains(CONTROL_CHARACTERS, regex=True)
+                                | aser.str.contains(CONTROL_CHARACTERS, regex=True)
+                                ).to_numpy(dtype=bool)),
         ("action_too_long", (aser.str.len() > max_action_length).to_numpy(dtype=bool)),
     ]
     for code, mask in checks:
