@@ -132,6 +132,12 @@ def _public_callables():
                         yield f"{mod.__name__}.{name}.{meth}", fn
             else:
                 yield f"{mod.__name__}.{name}", obj
+    for name in seqmine.__all__:  # the top-level names, wherever they are defined
+        obj = getattr(seqmine, name)
+        if callable(obj) and id(obj) not in seen and not (
+                inspect.isclass(obj) and issubclass(obj, BaseException)):
+            seen.add(id(obj))
+            yield f"seqmine.{name}", obj.__init__ if inspect.isclass(obj) else obj
 
 
 PUBLIC = sorted(_public_callables(), key=lambda t: t[0])
