@@ -8,6 +8,11 @@ import numpy as np
 import pandas as pd
 import pytest
 
+# The cluster's own sockets are sometimes closed late (at interpreter shutdown of a
+# worker); that is Dask's housekeeping, not ours, so its resource warnings are not errors.
+pytestmark = [pytest.mark.filterwarnings("ignore::ResourceWarning"),
+              pytest.mark.filterwarnings("ignore::pytest.PytestUnraisableExceptionWarning")]
+
 distributed = pytest.importorskip(
     "distributed", reason="the Dask tests need the optional 'distributed' package "
                           "(pip install \"seqmine[distributed]\")")
