@@ -32,7 +32,7 @@ from scipy import stats
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from seqmine._util.progress import set_quiet  # noqa: E402
+from seqmine._util.progress import quiet_mode  # noqa: E402
 from seqmine.mining.patterns import PatternSet  # noqa: E402
 from seqmine.scoring.contrast import contrast  # noqa: E402
 from seqmine.scoring.permutation import westfall_young_minp, westfall_young_rates  # noqa: E402
@@ -109,6 +109,11 @@ def semi_naive_unit_cost(counts, labels, n_patterns, n_perm, seed):
 
 
 def main(argv=None):
+    with quiet_mode():
+        return _main(argv)
+
+
+def _main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="small problem (seconds)")
     parser.add_argument("--learners", type=int, default=None)
@@ -121,7 +126,6 @@ def main(argv=None):
                         help="result file (default benchmarks/results/permutation.json, "
                              "permutation_quick.json with --quick)")
     args = parser.parse_args(argv)
-    set_quiet(True)
     n = args.learners or (2_000 if args.quick else 10_000)
     m = args.patterns or (2_000 if args.quick else 10_000)
     b = args.permutations or (200 if args.quick else 1_000)
@@ -134,7 +138,7 @@ def main(argv=None):
           f"({counts.nnz:,} non-zeros), generated in {gen_s:.1f} s", flush=True)
 
     t0 = time.perf_counter()
-    raw, adj = westfall_young_minp(counts, labels, n_permutations=b, seed=args.seed)
+    raw, adj = westfall_young_minp(counts, labels, n_permutations=b, random_state=args.seed)
     wy_s = time.perf_counter() - t0
     unit_fast = wy_s / (m * b)
     rss_wy = _peak_mb()
@@ -143,7 +147,7 @@ def main(argv=None):
 
     t0 = time.perf_counter()
     westfall_young_rates(sequence_rates_matrix(counts), labels, n_permutations=b,
-                         seed=args.seed)
+                         random_state=args.seed)
     wy_rates_s = time.perf_counter() - t0
     print(f"Westfall-Young min-P on the rank test of rates, {b} permutations: "
           f"{wy_rates_s:.2f} s", flush=True)
@@ -187,7 +191,7 @@ def main(argv=None):
                         seq_groups=labels)
         lengths = np.full(n, 100)
         t0 = time.perf_counter()
-        contrast(ps, lengths=lengths, correction="bh", stability_resamples=100,
+        contrast(ps, lengths=lengths, correction="bh", n_bootstrap=100,
                  redundancy=None)
         bh_s = time.perf_counter() - t0
         print(f"whole contrast table (Fisher, Mann-Whitney, effect sizes, BH, 100 bootstrap "
@@ -195,7 +199,7 @@ def main(argv=None):
         result["contrast_bh_stability100_seconds"] = bh_s
         sub = ps.select(np.arange(min(m, 2_000)))
         t0 = time.perf_counter()
-        contrast(sub, lengths=lengths, correction="bh", stability_resamples=0, redundancy=0.9)
+        contrast(sub, lengths=lengths, correction="bh", n_bootstrap=0, redundancy=0.9)
         red_s = time.perf_counter() - t0
         print(f"contrast with redundancy pass on {sub.n_patterns} patterns: {red_s:.2f} s",
               flush=True)

@@ -10,7 +10,11 @@ import numpy as np
 import pytest
 import scipy.sparse as sp
 
+from seqmine.encoding.encoder import Encoder
+from seqmine.inputs.load import load_events
+from seqmine.inputs.outcomes import load_outcomes
 from seqmine.mining.patterns import PatternSet
+from seqmine.pipeline import prepare_sequences
 from seqmine.scoring.contrast import contrast
 from seqmine.scoring.transitions import transitions
 
@@ -37,13 +41,9 @@ def _contiguous_counts(db, pattern_ids):
 
 @pytest.fixture(scope="module")
 def greenhouse():
-    pipeline = pytest.importorskip("seqmine.pipeline")
-    from seqmine.encoding.encoder import Encoder
-    from seqmine.inputs.load import load_events
-    from seqmine.inputs.outcomes import load_outcomes
 
     truth = json.loads((DATA / "ground_truth.json").read_text(encoding="utf-8"))
-    prepared = pipeline.prepare_sequences(load_events(DATA / "events.csv"),
+    prepared = prepare_sequences(load_events(DATA / "events.csv"),
                                           load_outcomes(DATA / "outcomes.csv"),
                                           encoder=Encoder())
     db = prepared.db
@@ -62,8 +62,8 @@ def greenhouse():
 @pytest.mark.parametrize("correction", ["bh", "westfall-young"])
 def test_planted_behaviours_come_out_in_the_right_direction(greenhouse, correction):
     db, ps, behaviours = greenhouse
-    table = contrast(ps, db, correction=correction, n_permutations=499, seed=1,
-                     stability_resamples=50).set_index("pattern")
+    table = contrast(ps, db, correction=correction, n_permutations=499, random_state=1,
+                     n_bootstrap=50).set_index("pattern")
     for b in behaviours:
         row = table.loc[" > ".join(b["key_pattern"])]
         expected = "" if b["direction"] == "neutral" else b["direction"]

@@ -13,7 +13,7 @@ import pkgutil
 import sys
 import warnings
 
-from .._util.progress import is_quiet, set_quiet
+from .._util.progress import quiet_mode
 from .._version import __version__
 from ..errors import SeqmineError, SeqmineInputError
 from . import commands
@@ -32,16 +32,25 @@ def _command_modules():
     return sorted(mods, key=lambda m: (rank.get(m.NAME, len(rank)), m.NAME))
 
 
+class _Parser(argparse.ArgumentParser):
+    """argparse with one-line errors: the option, what is wrong, where the help is."""
+
+    def error(self, message):
+        print(f"seqmine: error: {_one_line(message)} (see '{self.prog} --help')",
+              file=sys.stderr)
+        self.exit(2)
+
+
 def build_parser():
     """The argument parser with every sub-command."""
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="seqmine",
         description=("Find ordered behaviour patterns that separate strong from weak "
                      "learners in interaction logs, and turn them into live detectors."),
         epilog="Run 'seqmine COMMAND --help' for the options of one command.",
     )
     parser.add_argument("--version", action="version", version=f"seqmine {__version__}")
-    common = argparse.ArgumentParser(add_help=False)
+    common = _Parser(add_help=False)
     common.add_argument("--debug", action="store_true", help="show tracebacks on errors")
     common.add_argument("-q", "--quiet", action="store_true",
                         help="no progress bars or messages (for scripts)")
@@ -50,8 +59,7 @@ def build_parser():
         p = sub.add_parser(mod.NAME, help=mod.HELP, description=getattr(mod, "DESCRIPTION", mod.HELP),
                            parents=[common])
         mod.add_arguments(p)
-        # the defaults let a command tell which flags were given (config overrides)
-        p.set_defaults(_run=mod.run, _defaults={a.dest: a.default for a in p._actions})
+        p.set_defaults(_run=mod.run)
     return parser
 
 
@@ -74,10 +82,9 @@ def main(argv=None):
         parser.print_help()
         return 2
     debug = getattr(args, "debug", False)
-    was_quiet = is_quiet()
-    set_quiet(bool(getattr(args, "quiet", False)))  # per invocation, restored below
     try:
-        with warnings.catch_warnings():
+        # quiet mode for this invocation only (a context setting, restored on return)
+        with quiet_mode(bool(getattr(args, "quiet", False))), warnings.catch_warnings():
             # every warning is shown, as one line, whatever ran before in this process
             warnings.simplefilter("always")
             if not debug:
@@ -108,8 +115,6 @@ def main(argv=None):
         print(f"seqmine: internal error: {type(exc).__name__}: {_one_line(exc)} "
               f"(re-run with --debug for the traceback and report it)", file=sys.stderr)
         return 1
-    finally:
-        set_quiet(was_quiet)
 
 
 if __name__ == "__main__":  # pragma: no cover

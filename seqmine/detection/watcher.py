@@ -43,13 +43,14 @@ is therefore at most one small tuple per trie node, whatever the constraints.
 from __future__ import annotations
 
 import math
-import re
 from bisect import bisect_right
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from pathlib import Path
 
 from .._util.checks import check_number
+from .._util.isotime import parse_iso_datetime
+from .._util.text import has_control_characters
 from ..encoding.sequences import PAUSE_PREFIX
 from ..errors import SeqmineInputError
 from .detectors import load_detectors, validate_detectors
@@ -58,7 +59,6 @@ __all__ = ["Watcher", "Firing", "EventError", "parse_event_time"]
 
 _T_MAX = 4102444800.0  # 2100-01-01T00:00:00Z in Unix seconds (the loader's upper bound)
 _MAX_ACTION_LENGTH = 200  # the loader's default limit
-_CONTROL = re.compile(r"[\x00-\x08\x0b-\x1f\x7f]")
 _NEG_INF = float("-inf")
 
 
@@ -109,7 +109,8 @@ class Firing:
     hint: str = ""
     suppressed: bool = False
     reason: str = None
-    _index: int = field(default=-1, repr=False, compare=False)
+    #: position of the detector in the file (set by the watcher; not a parameter)
+    _index: int = field(default=-1, init=False, repr=False, compare=False)
 
     def to_dict(self, iso_times=False):
         """Plain JSON record (``type`` = ``"firing"``); times as ISO 8601 if asked."""
@@ -152,7 +153,7 @@ def parse_event_time(value):
             kind = "numeric"
         except ValueError:
             try:
-                dt = datetime.fromisoformat(s)
+                dt = parse_iso_datetime(s)
             except ValueError:
                 raise EventError(f"time {value!r} is neither ISO 8601 nor numeric seconds") from None
             if dt.tzinfo is None:
@@ -605,18 +606,19 @@ class Watcher:
         for d, times in fired:
             if times is None:
                 f = Firing(learner, ids[d], "absence", t, (), label, 0, dirs[d], prios[d],
-                           hints[d], held[0], held[1], d)
+                           hints[d], held[0], held[1])
                 cands.append(f)
             else:
                 occ = counts.get(d, 0) + 1
                 counts[d] = occ
                 if hintable[d]:
                     f = Firing(learner, ids[d], "occurrence", t, times, label, occ, dirs[d],
-                               prios[d], hints[d], held[0], held[1], d)
+                               prios[d], hints[d], held[0], held[1])
                     cands.append(f)
                 else:
                     f = Firing(learner, ids[d], "occurrence", t, times, label, occ, dirs[d],
-                               prios[d], hints[d], True, "no_hint", d)
+                               prios[d], hints[d], True, "no_hint")
+            f._index = d
             out.append(f)
         self.stats["firings"] += len(out)
         if cooling or not cands:
@@ -688,9 +690,8 @@ def _text(value, name):
         raise EventError(f"field {name!r} must be a string, got {type(value).__name__}")
     if not s:
         raise EventError(f"field {name!r} is empty")
-    if not s.isprintable():
-        if _CONTROL.search(s):
-            raise EventError(f"field {name!r} contains control characters")
+    if not s.isprintable() and has_control_characters(s):  # isprintable: a quick pre-test
+        raise EventError(f"field {name!r} contains control characters")
     if name == "action" and len(s) > _MAX_ACTION_LENGTH:
         raise EventError(f"the action is {len(s)} characters long (limit {_MAX_ACTION_LENGTH})")
     return s

@@ -30,16 +30,19 @@ import scipy.sparse as sp
 from .._util.checks import check_int
 from .._util.csvio import write_csv
 from .._util.jsonio import json_default
+from ..config import DEFAULT_CONFIG
 from ..encoding.sequences import SequenceDB
 from ..errors import DataFileError, ParameterError
 from ._search import assemble_counts, build_trie, node_offsets, search
-from .patterns import PatternSet, parse_pattern
+from .patterns import PatternSet, is_subsequence, parse_pattern
 
 __all__ = ["mine", "match", "pattern_table", "save_patternset", "load_patternset",
            "DEFAULT_MAX_PATTERNS"]
 
 #: Default limit on the number of frequent patterns before mining stops.
-DEFAULT_MAX_PATTERNS = 200_000
+DEFAULT_MAX_PATTERNS = DEFAULT_CONFIG["mine"]["max_patterns"]
+#: Defaults of the mining options (the ``[mine]`` section of the configuration).
+_DEFAULTS = DEFAULT_CONFIG["mine"]
 
 _PS_FORMAT = "seqmine-patternset"
 _PS_VERSION = 1
@@ -49,10 +52,13 @@ _IMPLIED_GAP_WINDOW = 16
 _MAX_BULK_SUBSET_LENGTH = 12
 
 
-def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_window=None,
-         skip_pauses=False, start_with_action=False, end_with_action=False, closed=False,
-         maximal=False, max_patterns=DEFAULT_MAX_PATTERNS, instance_counts=True,
-         first_items=None):
+def mine(db, *, min_support=_DEFAULTS["min_support"], min_length=_DEFAULTS["min_length"],
+         max_length=_DEFAULTS["max_length"], max_gap=_DEFAULTS["max_gap"],
+         max_window=_DEFAULTS["max_window"], skip_pauses=_DEFAULTS["skip_pauses"],
+         start_with_action=_DEFAULTS["start_with_action"],
+         end_with_action=_DEFAULTS["end_with_action"], closed=_DEFAULTS["closed"],
+         maximal=_DEFAULTS["maximal"], max_patterns=DEFAULT_MAX_PATTERNS,
+         instance_counts=True, first_items=None):
     """Mine ordered patterns that are frequent in at least one group.
 
     Parameters
@@ -113,13 +119,21 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
 
     Examples
     --------
+    The defaults (those of ``seqmine analyze``) look for contiguous runs of 2 to 4
+    items:
+
     >>> db = SequenceDB.from_lists([["a", "b", "c"], ["a", "c"], ["b", "c"]])
-    >>> ps = mine(db, min_support=2, max_length=2)
+    >>> mine(db, min_support=2).names
+    ['b > c']
+
+    Single items and any gap between items:
+
+    >>> ps = mine(db, min_support=2, min_length=1, max_length=2, max_gap=None)
     >>> ps.names
     ['a', 'b', 'c', 'a > c', 'b > c']
     >>> ps.support_counts[:, 0].tolist()
     [2, 2, 3, 2, 2]
-    >>> mine(db, min_support=1, min_length=2, max_length=2).names
+    >>> mine(db, min_support=1, max_length=2, max_gap=None).names
     ['a > b', 'a > c', 'b > c']
     """
     where = "mine"
@@ -176,7 +190,7 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
             ok &= ~is_pause_local[lev["sym"]]
         return ok
 
-    levels, triples = search(
+    levels, triples, stats = search(
         db, alphabet=alphabet, gidx=gidx, G=G, mode=mode, level1=level1,
         allowed_fn=allowed_fn, keep_fn=keep_fn, target_fn=target_fn,
         max_length=max_length, max_patterns=max_patterns,
@@ -214,10 +228,11 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
     return PatternSet(
         patterns=[pats[i] for i in idx], vocab=list(db.vocab), is_pause=db.is_pause.copy(),
         group_names=names, group_sizes=sizes, support_counts=support[idx],
-        counts=counts, seq_groups=seq_groups, constraints=constraints)
+        counts=counts, seq_groups=seq_groups, constraints=constraints, search_stats=stats)
 
 
-def match(db, patterns, *, max_gap=None, max_window=None, skip_pauses=False):
+def match(db, patterns, *, max_gap=_DEFAULTS["max_gap"], max_window=_DEFAULTS["max_window"],
+          skip_pauses=_DEFAULTS["skip_pauses"]):
     """Find given patterns in a database with the miner's exact semantics.
 
     Parameters
@@ -275,7 +290,7 @@ def match(db, patterns, *, max_gap=None, max_window=None, skip_pauses=False):
     def target_fn(k, lev):
         return trie[k]["is_pattern"]
 
-    levels, triples = search(
+    levels, triples, stats = search(
         db, alphabet=alphabet, gidx=gidx, G=G, mode=mode, level1=trie[1]["sym"],
         allowed_fn=allowed_fn, keep_fn=keep_fn, target_fn=target_fn,
         max_length=len(trie) - 1, max_patterns=None, cons=engine_cons)
@@ -288,7 +303,7 @@ def match(db, patterns, *, max_gap=None, max_window=None, skip_pauses=False):
         patterns=[tuple(int(t) for t in p) for p in pats], vocab=list(db.vocab),
         is_pause=db.is_pause.copy(), group_names=names, group_sizes=sizes,
         support_counts=support[nodes], counts=counts, seq_groups=seq_groups,
-        constraints=constraints)
+        constraints=constraints, search_stats=stats)
 
 
 def pattern_table(ps):
@@ -332,7 +347,7 @@ def save_patternset(ps, folder, *, table_name="patterns.csv"):
     >>> import tempfile
     >>> db = SequenceDB.from_lists([["a", "b"], ["b", "a", "b"]])
     >>> with tempfile.TemporaryDirectory() as tmp:
-    ...     folder = save_patternset(mine(db, min_support=2), tmp)
+    ...     folder = save_patternset(mine(db, min_support=2, min_length=1), tmp)
     ...     sorted(p.name for p in folder.iterdir())
     ...     load_patternset(folder).names
     ['counts.npz', 'patterns.csv', 'patternset.json']
@@ -588,17 +603,12 @@ def _superpattern_flags_slow(pats, support):
     not_maximal = np.zeros(n, dtype=bool)
     for i, p in enumerate(pats):
         for j, q in enumerate(pats):
-            if len(q) > len(p) and _is_subsequence(p, q):
+            if len(q) > len(p) and is_subsequence(p, q):
                 not_maximal[i] = True
                 if np.array_equal(support[i], support[j]):
                     not_closed[i] = True
                     break
     return not_closed, not_maximal
-
-
-def _is_subsequence(p, q):
-    it = iter(q)
-    return all(any(x == y for y in it) for x in p)
 
 
 def _first_item_ids(first_items, db):

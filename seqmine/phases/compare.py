@@ -9,8 +9,10 @@ from scipy.spatial.distance import jensenshannon
 from scipy.stats import mannwhitneyu
 
 from .._util.checks import check_fraction, check_int
+from ..config import DEFAULT_CONFIG
 from ..encoding.sequences import SequenceDB
 from ..errors import ParameterError
+from ..scoring.multitest import adjust_pvalues
 from .model import PhaseModel  # noqa: F401  (used by the doctests)
 
 __all__ = [
@@ -20,7 +22,6 @@ __all__ = [
     "compare_transitions",
     "model_distance",
     "state_paths_db",
-    "bh_adjust",
 ]
 
 _MEASURE_COLUMNS = ["measure", "state", "to_state", "state_name", "to_state_name",
@@ -149,7 +150,7 @@ def compare_state_paths(model, db, states=None, *, groups=None, alpha=0.05):
                     row.update(u_statistic=u, cliffs_delta=2.0 * u / (len(a) * len(b)) - 1.0,
                                p_value=float(res.pvalue))
             block.append(row)
-        q = bh_adjust([r["p_value"] for r in block])
+        q = adjust_pvalues([r["p_value"] for r in block], "bh")
         for r, qq in zip(block, q):
             r["q_value"] = float(qq)
             fav = ""
@@ -224,7 +225,8 @@ def compare_transitions(model_a, model_b, alignment=None):
     return pd.DataFrame(rows)
 
 
-def model_distance(model_a, model_b, *, lengths=None, n_tokens=20000, seed=0):
+def model_distance(model_a, model_b, *, lengths=None, n_tokens=20000,
+                   random_state=DEFAULT_CONFIG["seed"]):
     """Juang & Rabiner (1985) distance between two models, estimated by sampling.
 
     ``D(l1, l2) = (1/T) [log P(O2 | l2) - log P(O2 | l1)]`` with ``O2`` sampled from
@@ -240,7 +242,7 @@ def model_distance(model_a, model_b, *, lengths=None, n_tokens=20000, seed=0):
         sequence lengths); default one sequence of ``n_tokens``.
     n_tokens : int
         At least this many tokens are sampled from each model.
-    seed : int
+    random_state : int
 
     Returns
     -------
@@ -257,7 +259,7 @@ def model_distance(model_a, model_b, *, lengths=None, n_tokens=20000, seed=0):
     d = {}
     for key, src, other in (("d_ab", model_b, model_a), ("d_ba", model_a, model_b)):
         # the same stream for both directions makes the symmetric value exactly symmetric
-        rng = np.random.default_rng(seed)
+        rng = np.random.default_rng(random_state)
         lens = _draw_lengths(lengths, n_tokens, rng)
         X, _ = src.sample(lens, rng)
         T = float(len(X))
@@ -284,30 +286,6 @@ def state_paths_db(model, db, states):
                       source_rows=db.source_rows.copy(), learners=db.learners.copy(),
                       sessions=db.sessions.copy(), groups=db.groups.copy(),
                       group_names=list(db.group_names), encoding=encoding)
-
-
-def bh_adjust(p_values):
-    """Benjamini--Hochberg adjusted p-values (step-up); NaN passes through.
-
-    Examples
-    --------
-    >>> bh_adjust([0.01, 0.04, 0.03, float("nan")]).round(4).tolist()
-    [0.03, 0.04, 0.04, nan]
-    """
-    p = np.asarray(p_values, dtype=np.float64)
-    out = np.full(p.shape, np.nan)
-    ok = ~np.isnan(p)
-    m = int(ok.sum())
-    if m == 0:
-        return out
-    pv = p[ok]
-    order = np.argsort(pv, kind="stable")
-    ranked = pv[order] * m / np.arange(1, m + 1)
-    ranked = np.minimum.accumulate(ranked[::-1])[::-1]
-    adj = np.empty(m)
-    adj[order] = np.minimum(ranked, 1.0)
-    out[ok] = adj
-    return out
 
 
 # ----------------------------------------------------------------- helpers

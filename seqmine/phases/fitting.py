@@ -5,7 +5,7 @@ different kinds (a clustering of the tokens' contexts, hmmlearn-style random
 Dirichlet rows, a sticky start; see :mod:`._em`) run side by side for a few EM
 steps; the one with the highest log-likelihood is then run to convergence by
 SQUAREM-accelerated EM, which stops when a plain EM step gains less than ``tol``
-(absolute total log-likelihood) twice in a row, or after ``max_iter`` E-steps.
+(absolute total log-likelihood) twice in a row, or after ``n_iter`` E-steps.
 
 How the state count is chosen (:func:`select_n_states`): every count in the range
 is fitted on all sequences (BIC) and, for the held-out score, on the learners
@@ -16,14 +16,17 @@ count costs one search for a good optimum plus a short refinement.
 
 from __future__ import annotations
 
+import functools
 import math
 import warnings
 
 import numpy as np
 import pandas as pd
-from joblib import Parallel, delayed
 
-from .._util.checks import check_int, check_number
+from .._util.checks import check_int, check_jobs, check_number
+from .._util.folds import learner_splits
+from .._util.parallel import parallel_map
+from ..config import DEFAULT_CONFIG
 from ..encoding.sequences import SequenceDB
 from ..errors import ParameterError, SeqmineWarning
 from . import _hmm
@@ -31,28 +34,26 @@ from ._em import START_KINDS, baum_welch, split_start, start_point
 from ._lanes import Lanes
 from .model import PhaseModel
 
-__all__ = ["fit_phase_model", "select_n_states", "learner_folds", "parse_state_range",
-           "frequency_loglik"]
+__all__ = ["fit_phase_model", "select_n_states", "parse_state_range", "frequency_loglik"]
 
 #: Default additive emission smoothing (see :func:`_hmm.apply_emission_floor`).
 DEFAULT_EMISSION_FLOOR = 1e-4
-#: Default EM limits: most E-steps, and the absolute log-likelihood gain that counts
-#: as converged (hmmlearn's default ``tol``).
-DEFAULT_MAX_ITER = 500
-DEFAULT_TOL = 0.01
+_DEFAULTS = DEFAULT_CONFIG["phases"]
 #: E-steps every start runs before the best one is run to convergence.
 SCREEN_ITER = 9
 
 
-def fit_phase_model(sequences, *, n_states=3, n_restarts=3, seed=0, n_jobs=1,
-                    max_iter=DEFAULT_MAX_ITER, tol=DEFAULT_TOL,
+def fit_phase_model(sequences, *, n_states=3, n_restarts=_DEFAULTS["n_restarts"],
+                    random_state=DEFAULT_CONFIG["seed"], n_jobs=DEFAULT_CONFIG["n_jobs"],
+                    n_iter=_DEFAULTS["n_iter"], tol=_DEFAULTS["tol"],
                     emission_floor=DEFAULT_EMISSION_FLOOR, vocab=None, label="model",
-                    start=None, _purpose=0):
+                    start=None):
     """Fit one categorical HMM by Baum--Welch from several starts; keep the best.
 
     Start ``r`` is of kind ``START_KINDS[r % 3]`` (``"clustered"``, ``"random"``,
-    ``"sticky"``), drawn from a seed derived from ``(seed, purpose, n_states,
-    restart)``. All starts run :data:`SCREEN_ITER` accelerated EM steps side by side;
+    ``"sticky"``), drawn from a seed derived from ``(random_state, stream, n_states,
+    restart)`` (stream 0 here; the pooled and group models of
+    :func:`~seqmine.phases.fit_phases` use their own streams). All starts run :data:`SCREEN_ITER` accelerated EM steps side by side;
     the one with the highest log-likelihood (ties: the lowest restart number) runs
     on until EM converges. States of the result are put in a canonical order:
     decreasing expected occupancy.
@@ -65,12 +66,12 @@ def fit_phase_model(sequences, *, n_states=3, n_restarts=3, seed=0, n_jobs=1,
     n_restarts : int
         Number of starts of the kinds above (besides ``start`` when given; then 0 is
         allowed).
-    seed : int
+    random_state : int
     n_jobs : int
         Accepted for symmetry with :func:`select_n_states`; the starts of one fit
         run side by side in one process.
-    max_iter : int
-        Most E-steps (screening included).
+    n_iter : int
+        Most EM steps (E-steps, screening included).
     tol : float
         Convergence threshold: absolute gain of the total log-likelihood per EM
         step (twice in a row).
@@ -89,40 +90,55 @@ def fit_phase_model(sequences, *, n_states=3, n_restarts=3, seed=0, n_jobs=1,
     Examples
     --------
     >>> db = SequenceDB.from_lists([["a", "a", "b", "b"], ["a", "b", "b", "b"]] * 5)
-    >>> m = fit_phase_model(db, n_states=2, n_restarts=2, seed=1)
+    >>> m = fit_phase_model(db, n_states=2, n_restarts=2, random_state=1)
     >>> m.n_states, m.vocab
     (2, ['a', 'b'])
     """
+    return _fit_phase_model(sequences, n_states=n_states, n_restarts=n_restarts,
+                            random_state=random_state, n_jobs=n_jobs, n_iter=n_iter, tol=tol,
+                            emission_floor=emission_floor, vocab=vocab, label=label,
+                            start=start, stream=0)
+
+
+def _fit_phase_model(sequences, *, n_states, n_restarts, random_state, n_jobs, n_iter, tol,
+                     emission_floor, vocab, label, stream, start=None):
+    """:func:`fit_phase_model` drawing its starts from random stream ``stream``."""
     where = "fit_phase_model"
+    seed = random_state
     X, lengths, vocab = _arrays(sequences, vocab)
     n_states = check_int(n_states, "n_states", where, minimum=1)
     n_restarts = check_int(n_restarts, "n_restarts", where,
                            minimum=1 if start is None else 0)
-    _check_jobs(n_jobs, where)
-    max_iter = check_int(max_iter, "max_iter", where, minimum=1)
+    check_jobs(n_jobs, "n_jobs", where)
+    n_iter = check_int(n_iter, "n_iter", where, minimum=1)
     tol = check_number(tol, "tol", where, minimum=0)
     emission_floor = check_number(emission_floor, "emission_floor", where, minimum=0)
     _check_supported(n_states, len(vocab), len(X), label)
     starts = [] if start is None else [_as_start(start, n_states, len(vocab))]
-    fit = _fit_best(X, lengths, len(vocab), n_states, seed_parts=(seed, _purpose, n_states, 0),
-                    starts=starts, n_restarts=n_restarts, max_iter=max_iter, tol=tol,
+    fit = _fit_best(X, lengths, len(vocab), n_states, seed_parts=(seed, stream, n_states, 0),
+                    starts=starts, n_restarts=n_restarts, n_iter=n_iter, tol=tol,
                     emission_floor=emission_floor)
     return _best_model(fit, X, lengths, vocab, label, emission_floor, seed, n_restarts)
 
 
-def select_n_states(sequences, *, n_states=range(2, 6), n_restarts=3, n_folds=3,
-                    all_folds=False, seed=0, n_jobs=1, max_iter=DEFAULT_MAX_ITER,
-                    tol=DEFAULT_TOL, emission_floor=DEFAULT_EMISSION_FLOOR, learners=None,
-                    vocab=None, label="pooled", _purpose=0):
+def select_n_states(sequences, *,
+                    n_states=range(_DEFAULTS["min_states"], _DEFAULTS["max_states"] + 1),
+                    n_restarts=_DEFAULTS["n_restarts"], n_splits=_DEFAULTS["n_splits"],
+                    all_splits=_DEFAULTS["all_splits"], random_state=DEFAULT_CONFIG["seed"],
+                    n_jobs=DEFAULT_CONFIG["n_jobs"], n_iter=_DEFAULTS["n_iter"],
+                    tol=_DEFAULTS["tol"], emission_floor=DEFAULT_EMISSION_FLOOR, learners=None,
+                    vocab=None, label="pooled"):
     """Fit every state count in a range; score it by BIC and held-out log-likelihood.
 
-    Held-out log-likelihood: learners are dealt into ``n_folds`` folds (sequences
+    Held-out log-likelihood: learners are dealt into ``n_splits`` folds (sequences
     of one learner stay together). By default one fold is held out: a model is
     fitted (with restarts) on the other folds and scores the held-out fold; with
-    ``all_folds=True`` every fold is held out in turn (``n_folds`` fits per count)
-    and the scores are added. The model on all sequences, which BIC scores, starts
-    from the training fit of the first fold. State counts whose free parameters
-    reach the number of tokens are dropped with a :class:`SeqmineWarning`.
+    ``all_splits=True`` every fold is held out in turn (``n_splits`` fits per count)
+    and the scores are added. The state counts are fitted in increasing order, each
+    also from every split of the previous count's fit. The model on all sequences,
+    which BIC scores, starts from the training fit of the first fold. State counts
+    whose free parameters reach the number of tokens are dropped with a
+    :class:`SeqmineWarning`.
 
     Returns
     -------
@@ -137,16 +153,27 @@ def select_n_states(sequences, *, n_states=range(2, 6), n_restarts=3, n_folds=3,
     models : dict int -> PhaseModel
         The model fitted on all sequences for each state count.
     """
+    return _select_n_states(sequences, n_states=n_states, n_restarts=n_restarts,
+                            n_splits=n_splits, all_splits=all_splits, random_state=random_state,
+                            n_jobs=n_jobs, n_iter=n_iter, tol=tol,
+                            emission_floor=emission_floor, learners=learners, vocab=vocab,
+                            label=label, stream=0)
+
+
+def _select_n_states(sequences, *, n_states, n_restarts, n_splits, all_splits, random_state,
+                     n_jobs, n_iter, tol, emission_floor, learners, vocab, label, stream):
+    """:func:`select_n_states` drawing its starts from random stream ``stream``."""
     where = "select_n_states"
+    seed = random_state
     X, lengths, vocab = _arrays(sequences, vocab)
     counts = parse_state_range(n_states)
     n_restarts = check_int(n_restarts, "n_restarts", where, minimum=1)
-    n_jobs = _check_jobs(n_jobs, where)
-    n_folds = check_int(n_folds, "n_folds", where, minimum=0)
-    max_iter = check_int(max_iter, "max_iter", where, minimum=1)
+    n_jobs = check_jobs(n_jobs, "n_jobs", where)
+    n_folds = check_int(n_splits, "n_splits", where, minimum=0)
+    n_iter = check_int(n_iter, "n_iter", where, minimum=1)
     tol = check_number(tol, "tol", where, minimum=0)
     if n_folds == 1:
-        raise ParameterError("The 'n_folds' parameter of select_n_states must be 0 (no "
+        raise ParameterError("The 'n_splits' parameter of select_n_states must be 0 (no "
                              "held-out score) or at least 2. Got 1 instead.")
     M = len(vocab)
     supported = [n for n in counts if _hmm.n_free_parameters(n, M) < len(X)]
@@ -165,19 +192,19 @@ def select_n_states(sequences, *, n_states=range(2, 6), n_restarts=3, n_folds=3,
     counts = supported
     splits = []
     if n_folds:
-        fold_of = learner_folds(learners if learners is not None else
-                                np.arange(len(lengths)).astype(str), n_folds, seed)
+        fold_of = _learner_folds(learners if learners is not None else
+                                 np.arange(len(lengths)).astype(str), n_folds, seed)
         offsets = np.zeros(len(lengths) + 1, dtype=np.int64)
         np.cumsum(lengths, out=offsets[1:])
-        for f in range(n_folds if all_folds else 1):
+        for f in range(n_folds if all_splits else 1):
             splits.append((_take(X, offsets, lengths, np.flatnonzero(fold_of != f)),
                            _take(X, offsets, lengths, np.flatnonzero(fold_of == f))))
-    opts = dict(n_restarts=n_restarts, max_iter=max_iter, tol=tol,
-                emission_floor=emission_floor)
+    opts = dict(n_restarts=n_restarts, n_iter=n_iter, tol=tol, emission_floor=emission_floor)
     if splits:
-        calls = [delayed(_fit_counts)(Xtr, Ltr, M, counts, (seed, _purpose, f + 1), opts)
-                 for f, ((Xtr, Ltr), _) in enumerate(splits)]
-        train = _run_calls(calls, n_jobs)
+        train = parallel_map(functools.partial(_fit_counts_job, n_symbols=M, counts=counts,
+                                               opts=opts),
+                             [(Xtr, Ltr, (seed, stream, f + 1))
+                              for f, ((Xtr, Ltr), _) in enumerate(splits)], n_jobs=n_jobs)
         held = {n: [] for n in counts}
         for fits, ((Xtr, _), (Xho, Lho)) in zip(train, splits):
             lanes = Lanes(Xho, Lho, M)
@@ -186,10 +213,11 @@ def select_n_states(sequences, *, n_states=range(2, 6), n_restarts=3, n_folds=3,
                                         fit["emissionprob"]).sum())
                 held[n].append({"heldout_loglik": ho, "heldout_tokens": len(Xho),
                                 "train_loglik": fit["loglik"], "train_tokens": len(Xtr)})
-        calls = [delayed(_refine)(X, lengths, M, train[0][n], opts) for n in counts]
-        full = dict(zip(counts, _run_calls(calls, n_jobs)))
+        full = dict(zip(counts, parallel_map(
+            functools.partial(_refine, X, lengths, M, opts=opts),
+            [train[0][n] for n in counts], n_jobs=n_jobs)))
     else:
-        full = _fit_counts(X, lengths, M, counts, (seed, _purpose, 0), opts)
+        full = _fit_counts(X, lengths, M, counts, (seed, stream, 0), opts)
         held = {n: [] for n in counts}
     outs = [(full[n], held[n]) for n in counts]
     rows, models = [], {}
@@ -244,28 +272,26 @@ def frequency_loglik(sequences, *, emission_floor=DEFAULT_EMISSION_FLOOR, vocab=
         return float(np.sum(np.where(counts > 0, counts * np.log(p), 0.0)))
 
 
-def learner_folds(learners, n_folds, seed):
-    """Fold number of each sequence; all sequences of one learner share a fold.
-
-    Learners (sorted distinct identifiers) are shuffled with a seeded generator and
-    dealt round-robin into ``n_folds`` folds.
+def _learner_folds(learners, n_splits, random_state):
+    """Fold number of each sequence for held-out scoring; a learner's sequences share one.
 
     Examples
     --------
-    >>> learner_folds(["a", "b", "a", "c"], 2, 0).tolist()
+    >>> _learner_folds(["a", "b", "a", "c"], 2, 0).tolist()
     [1, 0, 1, 0]
     """
-    learners = np.asarray(learners).astype(str)
-    uniq, inv = np.unique(learners, return_inverse=True)
-    if len(uniq) < n_folds:
+    n_learners = len(np.unique(np.asarray(learners).astype(str)))
+    if n_learners < n_splits:
         raise ParameterError(
-            f"Held-out scoring needs at least {n_folds} learners (one per fold) but the data "
-            f"has {len(uniq)}; lower 'n_folds' (0 switches held-out scoring off).")
-    rng = np.random.default_rng(_hmm.derive_seed(seed, 7919))
-    perm = rng.permutation(len(uniq))
-    fold_of_learner = np.empty(len(uniq), dtype=np.int64)
-    fold_of_learner[perm] = np.arange(len(uniq)) % n_folds
-    return fold_of_learner[inv]
+            f"Held-out scoring needs at least {n_splits} learners (one per fold) but the data "
+            f"has {n_learners}; lower 'n_splits' (0 switches held-out scoring off).")
+    fold_of = np.empty(len(learners), dtype=np.int64)
+    splits = learner_splits(learners, n_splits=n_splits,
+                            random_state=_hmm.derive_seed(random_state, 7919),
+                            where="select_n_states")
+    for f, (_, test) in enumerate(splits):
+        fold_of[test] = f
+    return fold_of
 
 
 def parse_state_range(value):
@@ -323,14 +349,6 @@ def _arrays(sequences, vocab=None):
     return X, lengths, list(vocab)
 
 
-def _check_jobs(n_jobs, where):
-    n_jobs = check_int(n_jobs, "n_jobs", where)
-    if n_jobs == 0:
-        raise ParameterError(f"The 'n_jobs' parameter of {where} must be a positive int or "
-                             f"-1 (all cores). Got 0 instead.")
-    return n_jobs
-
-
 def _check_supported(n_states, n_symbols, n_tokens, label):
     k = _hmm.n_free_parameters(n_states, n_symbols)
     if k >= n_tokens:
@@ -347,12 +365,6 @@ def _take(X, offsets, lengths, idx):
     return X[np.repeat(keep, lengths)], lengths[keep]
 
 
-def _run_calls(calls, n_jobs):
-    if n_jobs == 1 or len(calls) <= 1:
-        return [c[0](*c[1], **c[2]) for c in calls]
-    return Parallel(n_jobs=n_jobs)(calls)
-
-
 def _as_start(start, n_states, n_symbols):
     if isinstance(start, PhaseModel):
         start = (start.startprob, start.transmat, start.emissionprob)
@@ -365,7 +377,7 @@ def _as_start(start, n_states, n_symbols):
     return pi, A, B
 
 
-def _fit_best(X, lengths, n_symbols, n_states, *, seed_parts, starts, n_restarts, max_iter,
+def _fit_best(X, lengths, n_symbols, n_states, *, seed_parts, starts, n_restarts, n_iter,
               tol, emission_floor, lanes=None):
     """Screen the starts side by side, run the best to convergence, floor emissions."""
     lanes = lanes if lanes is not None else Lanes(X, lengths, n_symbols)
@@ -377,7 +389,7 @@ def _fit_best(X, lengths, n_symbols, n_states, *, seed_parts, starts, n_restarts
         cands.append(start_point(kind, X, lengths, n_states, n_symbols, rng))
         kinds.append(kind)
     stacked = [np.stack([c[j] for c in cands]) for j in range(3)]
-    if len(cands) > 1 and max_iter > SCREEN_ITER:
+    if len(cands) > 1 and n_iter > SCREEN_ITER:
         screen = baum_welch(lanes, *stacked, max_iter=SCREEN_ITER, tol=tol)
         screened = [float(v) for v in screen["loglik"]]
         best = max(range(len(cands)), key=lambda i: (screened[i], -i))
@@ -386,11 +398,11 @@ def _fit_best(X, lengths, n_symbols, n_states, *, seed_parts, starts, n_restarts
         if screen["converged"][best]:
             res, used = {k: v[best:best + 1] for k, v in screen.items()}, 0
         else:
-            res = baum_welch(lanes, *one, max_iter=max_iter - SCREEN_ITER, tol=tol)
+            res = baum_welch(lanes, *one, max_iter=n_iter - SCREEN_ITER, tol=tol)
             used = SCREEN_ITER
         n_iter = int(res["n_iter"][0]) + used
     else:
-        res = baum_welch(lanes, *stacked, max_iter=max_iter, tol=tol)
+        res = baum_welch(lanes, *stacked, max_iter=n_iter, tol=tol)
         screened = [float(v) for v in res["loglik"]]
         best = max(range(len(cands)), key=lambda i: (screened[i], -i))
         res = {k: v[best:best + 1] for k, v in res.items()}
@@ -422,7 +434,12 @@ def _fit_counts(X, lengths, n_symbols, counts, seed_parts, opts):
     return fits
 
 
-def _refine(X, lengths, n_symbols, fit, opts):
+def _fit_counts_job(item, *, n_symbols, counts, opts):
+    X, lengths, seed_parts = item
+    return _fit_counts(X, lengths, n_symbols, counts, seed_parts, opts)
+
+
+def _refine(X, lengths, n_symbols, fit, *, opts):
     """The model on all sequences, started from a training fit."""
     out = _fit_best(X, lengths, n_symbols, len(fit["startprob"]), seed_parts=(0,),
                     starts=[(fit["startprob"], fit["transmat"], fit["emissionprob"])],

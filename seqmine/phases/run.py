@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 import hashlib
 import json
 import re
@@ -11,12 +12,13 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
-from joblib import Parallel, delayed
 
-from .._util.checks import check_choice, check_fraction, check_int, check_number
+from .._util.checks import check_choice, check_fraction, check_int, check_jobs, check_number
 from .._util.csvio import write_csv
 from .._util.jsonio import write_json
+from .._util.parallel import parallel_map
 from .._util.progress import progress
+from ..config import DEFAULT_CONFIG
 from ..encoding.sequences import SequenceDB
 from ..errors import ParameterError, SeqmineWarning
 from . import _hmm
@@ -31,17 +33,16 @@ from ._em import baum_welch
 from ._lanes import Lanes
 from .fitting import (
     DEFAULT_EMISSION_FLOOR,
-    DEFAULT_MAX_ITER,
-    DEFAULT_TOL,
-    _check_jobs,
-    fit_phase_model,
+    _fit_phase_model,
+    _select_n_states,
     frequency_loglik,
     parse_state_range,
-    select_n_states,
 )
 from .model import PhaseModel
 
 __all__ = ["fit_phases", "PhaseResult", "load_phase_models"]
+
+_DEFAULTS = DEFAULT_CONFIG["phases"]
 
 _FORMAT = "seqmine-phases"
 _VERSION = 1
@@ -182,11 +183,14 @@ class PhaseResult:
         return folder
 
 
-def fit_phases(db, *, n_states=range(2, 6), n_restarts=3, seed=0, n_jobs=1, criterion="bic",
-               n_folds=3, all_folds=False, min_length=2, groups=None,
-               max_iter=DEFAULT_MAX_ITER, tol=DEFAULT_TOL,
-               emission_floor=DEFAULT_EMISSION_FLOOR, n_permutations=0,
-               distance_tokens=20000, edge_threshold=0.05, alpha=0.05):
+def fit_phases(db, *, n_states=range(_DEFAULTS["min_states"], _DEFAULTS["max_states"] + 1),
+               n_restarts=_DEFAULTS["n_restarts"], random_state=DEFAULT_CONFIG["seed"],
+               n_jobs=DEFAULT_CONFIG["n_jobs"], criterion=_DEFAULTS["criterion"],
+               n_splits=_DEFAULTS["n_splits"], all_splits=_DEFAULTS["all_splits"],
+               min_length=2, groups=None, n_iter=_DEFAULTS["n_iter"], tol=_DEFAULTS["tol"],
+               emission_floor=DEFAULT_EMISSION_FLOOR,
+               n_permutations=_DEFAULTS["n_permutations"], distance_tokens=20000,
+               edge_threshold=0.05, alpha=DEFAULT_CONFIG["contrast"]["alpha"]):
     """Fit phase models (HMMs) pooled and per outcome group, and compare the groups.
 
     1. Sequences shorter than ``min_length`` tokens are left out (listed in
@@ -210,7 +214,7 @@ def fit_phases(db, *, n_states=range(2, 6), n_restarts=3, seed=0, n_jobs=1, crit
        (``phase_model_near_frequencies``), a held-out score above the training
        score at the chosen count (``phase_heldout_above_training``), a chosen count
        at the top of the range (``phase_states_at_top_of_range``), and EM stopped by
-       ``max_iter`` (``phase_fit_not_converged``).
+       ``n_iter`` (``phase_fit_not_converged``).
 
     Parameters
     ----------
@@ -218,23 +222,23 @@ def fit_phases(db, *, n_states=range(2, 6), n_restarts=3, seed=0, n_jobs=1, crit
     n_states : int, range, list of int or str like ``"2-6"``
     n_restarts : int
         Baum--Welch starts per fit (seeded; best log-likelihood wins).
-    seed : int
+    random_state : int
     n_jobs : int
-        joblib workers for state counts, groups and permutations; results equal the
-        serial run.
+        Worker processes for held-out folds, state counts, groups and permutations;
+        results equal the serial run.
     criterion : {"bic", "heldout"}
-    n_folds : int
+    n_splits : int
         Learner folds for the held-out score (0 = off); one fold (a share
-        ``1 / n_folds`` of the learners) is held out unless ``all_folds``.
-    all_folds : bool
-        Hold out every fold in turn (``n_folds`` training fits per state count).
+        ``1 / n_splits`` of the learners) is held out unless ``all_splits``.
+    all_splits : bool
+        Hold out every fold in turn (``n_splits`` training fits per state count).
     min_length : int
         Shortest sequence used (at least 2).
     groups : list of str, optional
         Groups to model and compare; default every group with sequences.
-    max_iter, tol : int, float
-        EM limits: most E-steps, and the absolute log-likelihood gain per step below
-        which EM has converged.
+    n_iter, tol : int, float
+        EM limits: most EM steps (E-steps), and the absolute log-likelihood gain per
+        step below which EM has converged.
     emission_floor : float
         Additive emission smoothing.
     n_permutations : int
@@ -256,7 +260,7 @@ def fit_phases(db, *, n_states=range(2, 6), n_restarts=3, seed=0, n_jobs=1, crit
     --------
     >>> db = SequenceDB.from_lists([["a", "b", "a", "b", "c"]] * 6 + [["c", "c", "a", "b"]] * 6,
     ...                            groups=["strong"] * 6 + ["weak"] * 6)
-    >>> res = fit_phases(db, n_states=2, n_restarts=1, n_folds=0)
+    >>> res = fit_phases(db, n_states=2, n_restarts=1, n_splits=0)
     >>> sorted(res.models), res.n_states
     (['pooled', 'strong', 'weak'], 2)
     """
@@ -265,20 +269,20 @@ def fit_phases(db, *, n_states=range(2, 6), n_restarts=3, seed=0, n_jobs=1, crit
         raise ParameterError(f"fit_phases needs a SequenceDB; got {type(db).__name__}.")
     counts = parse_state_range(n_states)
     n_restarts = check_int(n_restarts, "n_restarts", where, minimum=1)
-    n_jobs = _check_jobs(n_jobs, where)
-    seed = check_int(seed, "seed", where, minimum=0)
+    n_jobs = check_jobs(n_jobs, "n_jobs", where)
+    seed = check_int(random_state, "random_state", where, minimum=0)
     criterion = check_choice(criterion, "criterion", ("bic", "heldout"), where)
-    n_folds = check_int(n_folds, "n_folds", where, minimum=0)
+    n_folds = check_int(n_splits, "n_splits", where, minimum=0)
     min_length = check_int(min_length, "min_length", where, minimum=2)
-    max_iter = check_int(max_iter, "max_iter", where, minimum=1)
+    n_iter = check_int(n_iter, "n_iter", where, minimum=1)
     tol = check_number(tol, "tol", where, minimum=0)
     n_permutations = check_int(n_permutations, "n_permutations", where, minimum=0)
     distance_tokens = check_int(distance_tokens, "distance_tokens", where, minimum=100)
     emission_floor = check_number(emission_floor, "emission_floor", where, minimum=0)
     edge_threshold = check_fraction(edge_threshold, "edge_threshold", where)
     if criterion == "heldout" and n_folds < 2:
-        raise ParameterError("criterion='heldout' needs n_folds >= 2 (held-out scoring); "
-                             "set n_folds or use criterion='bic'.")
+        raise ParameterError("criterion='heldout' needs n_splits >= 2 (held-out scoring); "
+                             "set n_splits or use criterion='bic'.")
     keep = db.lengths >= min_length
     excluded = pd.DataFrame({"sequence": np.flatnonzero(~keep),
                              "learner": db.learners[~keep], "session": db.sessions[~keep],
@@ -290,12 +294,13 @@ def fit_phases(db, *, n_states=range(2, 6), n_restarts=3, seed=0, n_jobs=1, crit
     used_idx = np.flatnonzero(keep)
     data = db.subset(used_idx)
     group_list = _groups_to_model(data, groups)
-    fit_kw = dict(max_iter=max_iter, tol=tol, emission_floor=emission_floor)
+    fit_kw = dict(n_iter=n_iter, tol=tol, emission_floor=emission_floor)
 
     bar = progress(total=3 + len(group_list), desc="phases")
-    selection, by_count = select_n_states(
-        data, n_states=counts, n_restarts=n_restarts, n_folds=n_folds, all_folds=all_folds,
-        seed=seed, n_jobs=n_jobs, learners=data.learners, label="pooled", _purpose=0, **fit_kw)
+    selection, by_count = _select_n_states(
+        data, n_states=counts, n_restarts=n_restarts, n_splits=n_folds, all_splits=all_splits,
+        random_state=seed, n_jobs=n_jobs, learners=data.learners, vocab=None, label="pooled",
+        stream=0, **fit_kw)
     col = "best_bic" if criterion == "bic" else "best_heldout"
     chosen = int(selection.loc[selection[col], "n_states"].iloc[0])
     selection["selected"] = selection["n_states"] == chosen
@@ -309,14 +314,10 @@ def fit_phases(db, *, n_states=range(2, 6), n_restarts=3, seed=0, n_jobs=1, crit
         subsets[g] = sub
         present = np.bincount(sub.tokens.astype(np.int64), minlength=len(data.vocab)) > 0
         unseen[g] = [t for t, p in zip(data.vocab, present) if not p]
-    group_calls = [delayed(fit_phase_model)(
-        subsets[g], n_states=chosen, n_restarts=n_restarts, seed=seed, label=g,
-        start=models["pooled"], _purpose=1 + data.group_names.index(g), **fit_kw)
-        for g in group_list]
-    if n_jobs == 1 or len(group_calls) <= 1:
-        fitted = [c[0](*c[1], **c[2]) for c in group_calls]
-    else:
-        fitted = Parallel(n_jobs=n_jobs)(group_calls)
+    fitted = parallel_map(functools.partial(
+        _fit_group, n_states=chosen, n_restarts=n_restarts, random_state=seed,
+        start=models["pooled"], fit_kw=fit_kw),
+        [(subsets[g], g, 1 + data.group_names.index(g)) for g in group_list], n_jobs=n_jobs)
     for g, m in zip(group_list, fitted):
         models[g] = m
         bar.update(1)
@@ -354,9 +355,9 @@ def fit_phases(db, *, n_states=range(2, 6), n_restarts=3, seed=0, n_jobs=1, crit
         freq[g] = frequency_loglik(subsets[g], emission_floor=emission_floor)
     notes = _checks(models, freq, selection, chosen, counts)
     state_tables = pd.concat([m.describe_states() for m in models.values()], ignore_index=True)
-    params = {"n_states": counts, "n_restarts": n_restarts, "seed": seed, "criterion": criterion,
-              "n_folds": n_folds, "all_folds": bool(all_folds), "min_length": min_length,
-              "groups": group_list, "max_iter": max_iter, "tol": tol,
+    params = {"n_states": counts, "n_restarts": n_restarts, "random_state": seed,
+              "criterion": criterion, "n_splits": n_folds, "all_splits": bool(all_splits),
+              "min_length": min_length, "groups": group_list, "n_iter": n_iter, "tol": tol,
               "emission_floor": emission_floor, "n_permutations": n_permutations,
               "distance_tokens": distance_tokens, "edge_threshold": edge_threshold,
               "alpha": alpha}
@@ -413,8 +414,8 @@ def _checks(models, freq, selection, chosen, counts):
     stopped = [k for k, m in models.items() if not m.info.get("converged", True)]
     if stopped:
         note("phase_fit_not_converged",
-             f"EM reached max_iter before converging for {', '.join(stopped)}; raise "
-             f"phases.max_iter (or --max-iter) to let it finish.", count=len(stopped))
+             f"EM reached n_iter before converging for {', '.join(stopped)}; raise "
+             f"phases.n_iter (or --iter) to let it finish.", count=len(stopped))
     return notes
 
 
@@ -466,7 +467,7 @@ def _distance_with_reference(data, models, ga, gb, pair_no, seed, n_jobs, n_perm
     lengths = data.lengths[members]
     dseed = _hmm.derive_seed(seed, 4242, pair_no)
     d = model_distance(models[ga], models[gb], lengths=lengths, n_tokens=distance_tokens,
-                       seed=dseed)
+                       random_state=dseed)
     row = {"group_a": ga, "group_b": gb, **d, "test_statistic": np.nan,
            "n_permutations": n_permutations, "permutation_mean": np.nan,
            "permutation_max": np.nan, "p_value": np.nan}
@@ -478,12 +479,9 @@ def _distance_with_reference(data, models, ga, gb, pair_no, seed, n_jobs, n_perm
         for p in range(n_permutations):
             rng = np.random.default_rng(_hmm.derive_seed(seed, 31337, pair_no, p))
             labelings.append(rng.permutation(is_a))
-        calls = [delayed(_warm_distance)(data, members, mask, start, dseed, distance_tokens,
-                                         fit_kw) for mask in labelings]
-        if n_jobs == 1:
-            stats = [c[0](*c[1], **c[2]) for c in calls]
-        else:
-            stats = Parallel(n_jobs=n_jobs)(calls)
+        stats = parallel_map(functools.partial(_warm_distance, data, members, start=start,
+                                               dseed=dseed, distance_tokens=distance_tokens,
+                                               fit_kw=fit_kw), labelings, n_jobs=n_jobs)
         observed, ref = stats[0], np.asarray(stats[1:])
         row.update(test_statistic=float(observed), permutation_mean=float(ref.mean()),
                    permutation_max=float(ref.max()),
@@ -491,20 +489,28 @@ def _distance_with_reference(data, models, ga, gb, pair_no, seed, n_jobs, n_perm
     return row
 
 
-def _warm_distance(data, members, is_a, start, dseed, distance_tokens, fit_kw):
+def _fit_group(item, *, n_states, n_restarts, random_state, start, fit_kw):
+    """One group's model, started from the pooled model and ``n_restarts`` others."""
+    sub, label, stream = item
+    return _fit_phase_model(sub, n_states=n_states, n_restarts=n_restarts,
+                            random_state=random_state, n_jobs=1, vocab=None, label=label,
+                            start=start, stream=stream, **fit_kw)
+
+
+def _warm_distance(data, members, is_a, *, start, dseed, distance_tokens, fit_kw):
     """Symmetric distance between the two sides of a labelling, each side's model
     fitted by one Baum--Welch run started at the pooled model."""
     fitted = []
     for mask in (is_a, ~is_a):
         sub = data.subset(members[mask])
         lanes = Lanes(sub.tokens.astype(np.int64), sub.lengths, len(data.vocab))
-        res = baum_welch(lanes, *(a[None] for a in start), max_iter=fit_kw["max_iter"],
+        res = baum_welch(lanes, *(a[None] for a in start), max_iter=fit_kw["n_iter"],
                          tol=fit_kw["tol"])
         B = _hmm.apply_emission_floor(res["emissionprob"][0], fit_kw["emission_floor"])
         fitted.append(PhaseModel(res["startprob"][0], res["transmat"][0], B,
                                  list(data.vocab)))
     d = model_distance(fitted[0], fitted[1], lengths=data.lengths[members],
-                       n_tokens=distance_tokens, seed=dseed)
+                       n_tokens=distance_tokens, random_state=dseed)
     return d["symmetric"]
 
 

@@ -7,7 +7,8 @@ from pathlib import Path
 
 from ..._util.progress import is_quiet
 from ...config import DEFAULT_CONFIG
-from ...encoding.sequences import SequenceDB
+from . import _options
+from ._options import add_option
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -22,47 +23,45 @@ DESCRIPTION = (
 
 
 def add_arguments(parser):
-    """Options of ``seqmine phases`` (defaults from ``DEFAULT_CONFIG["phases"]``)."""
-    d = DEFAULT_CONFIG["phases"]
-    states = f"{d['min_states']}-{d['max_states']}"
-    parser.add_argument("seqdb", metavar="SEQDB_DIR",
-                        help="sequence database folder written by 'seqmine encode'")
+    """Options of ``seqmine phases`` (defaults: the ``[phases]`` configuration section)."""
+    _options.add_sequences_option(parser)
     parser.add_argument("--out", required=True, metavar="DIR",
                         help="output folder; results go to DIR/phases/")
-    parser.add_argument("--states", default=states, metavar="RANGE",
-                        help=f"state counts to try: '3', '2-6' or '2,3,5' (default {states})")
-    parser.add_argument("--restarts", type=int, default=d["restarts"], metavar="N",
-                        help=f"Baum-Welch starts per fit (default {d['restarts']})")
-    parser.add_argument("--max-iter", type=int, default=d["max_iter"], metavar="N",
-                        help=f"most EM steps per fit (default {d['max_iter']})")
-    parser.add_argument("--tol", type=float, default=d["tol"], metavar="X",
-                        help="EM stops when a step gains less than X in total "
-                             f"log-likelihood (default {d['tol']})")
-    parser.add_argument("--seed", type=int, default=0, metavar="S", help="random seed (default 0)")
-    parser.add_argument("--jobs", type=int, default=1, metavar="N",
-                        help="parallel workers; results equal the serial run (default 1)")
-    parser.add_argument("--criterion", choices=("bic", "heldout"), default=d["criterion"],
-                        help=f"how the state count is chosen (default {d['criterion']})")
-    parser.add_argument("--folds", type=int, default=d["heldout_folds"], metavar="K",
-                        help="learner folds for the held-out log-likelihood: one fold "
-                             "(1/K of the learners) is held out; 0 = off "
-                             f"(default {d['heldout_folds']})")
-    parser.add_argument("--all-folds", action="store_true",
-                        help="hold out every fold in turn (K fits per state count)")
-    parser.add_argument("--permutations", type=int, default=d["permutations"], metavar="N",
-                        help="label permutations for the model-distance reference; each "
-                             f"costs two fits (default {d['permutations']})")
+    ph = DEFAULT_CONFIG["phases"]
+    parser.add_argument("--states", default=f"{ph['min_states']}-{ph['max_states']}",
+                        metavar="RANGE",
+                        help="state counts to try: '3', '2-6' or '2,3,5' (default: %(default)s)")
+    add_option(parser, "phases", "n_restarts", type=int, metavar="N",
+               help="Baum-Welch starts per fit: clustered, random, sticky, ... (default: "
+                    "{default})")
+    add_option(parser, "phases", "n_iter", type=int, metavar="N",
+               help="most EM steps per fit (default: {default})")
+    add_option(parser, "phases", "tol", type=float, metavar="X",
+               help="EM stops when a step gains less than X in total log-likelihood "
+                    "(default: {default})")
+    _options.add_execution_options(parser, scheduler=False)
+    add_option(parser, "phases", "criterion", choices=("bic", "heldout"),
+               help="how the state count is chosen (default: {default})")
+    add_option(parser, "phases", "n_splits", type=int, metavar="K",
+               help="learner folds for the held-out log-likelihood: one fold (1/K of the "
+                    "learners) is held out; 0 = off (default: {default})")
+    add_option(parser, "phases", "all_splits", action="store_true",
+               help="hold out every fold in turn (K fits per state count)")
+    add_option(parser, "phases", "n_permutations", type=int, metavar="N",
+               help="label permutations for the model-distance reference; each costs two "
+                    "fits (default: {default})")
 
 
 def run(args):
     """Run ``seqmine phases``; quiet mode is set per call by the command line."""
+    from ...encoding.sequences import SequenceDB
     from ...phases import fit_phases
 
-    db = SequenceDB.load(args.seqdb)
-    result = fit_phases(db, n_states=args.states, n_restarts=args.restarts, seed=args.seed,
-                        n_jobs=args.jobs, criterion=args.criterion, n_folds=args.folds,
-                        all_folds=args.all_folds, max_iter=args.max_iter, tol=args.tol,
-                        n_permutations=args.permutations)
+    db = SequenceDB.load(args.sequences)
+    result = fit_phases(db, n_states=args.states, n_restarts=args.restarts,
+                        random_state=args.seed, n_jobs=args.jobs, criterion=args.criterion,
+                        n_splits=args.splits, all_splits=args.all_splits, n_iter=args.iter,
+                        tol=args.tol, n_permutations=args.permutations)
     folder = result.save(Path(args.out) / "phases")
     if not is_quiet():
         msg = [f"phases: {result.n_states} states ({result.params['criterion']}), "

@@ -7,8 +7,8 @@ import os
 import sys
 from pathlib import Path
 
-from ...detection.watcher import EventError, Watcher
 from ...errors import DataFileError, ParameterError
+from . import _options
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -48,8 +48,7 @@ def add_arguments(parser):
                         help="print only firings whose hint is delivered (not suppressed)")
     parser.add_argument("--encourage-hints", action="store_true",
                         help="deliver completed encourage patterns as hints too (e.g. praise)")
-    parser.add_argument("--keep-duplicates", action="store_true",
-                        help="process exact duplicate events instead of rejecting them")
+    _options.add_duplicates_option(parser, what="exact duplicate events")
     parser.add_argument("--times", choices=("auto", "seconds", "iso"), default="auto",
                         help="time format of the output (default: as the input)")
     parser.add_argument("--pseudonymize", metavar="KEY_FILE", default=None,
@@ -62,11 +61,12 @@ def add_arguments(parser):
 
 def run(args):
     """Run ``seqmine watch``."""
+    from ...detection.watcher import Watcher
     idle = _idle(args.idle_timeout)
     watcher = Watcher(args.detectors, cooldown_seconds=args.cooldown, idle_timeout=idle,
                       out_of_order_tolerance=args.tolerance,
                       hint_on_encourage=args.encourage_hints,
-                      reject_duplicates=not args.keep_duplicates)
+                      reject_duplicates=args.duplicates == "reject")
     pseudo = _pseudonymizer(args.pseudonymize) if args.pseudonymize else None
     err = sys.stderr
     out = sys.stdout
@@ -101,6 +101,7 @@ def run(args):
 
 def _loop(stream, name, interactive, watcher, out, err, args, hints_only, pseudo):
     """Read, process and write every line; bad events get one line on ``err``."""
+    from ...detection.watcher import EventError
     for lineno, line in enumerate(stream, 1):
         if not line.strip():
             continue
@@ -145,7 +146,7 @@ def _write(out, firings, watcher, times, hints_only):
 def _pseudonymizer(key_path):
     """learner -> pseudonym (as in the offline analysis); other values pass unchanged,
     so the watcher rejects them exactly as it would without the option."""
-    from ...detection.watcher import _CONTROL
+    from ..._util.text import has_control_characters
     from ...inputs.privacy import pseudonymize, read_key
 
     key = read_key(key_path)
@@ -155,7 +156,7 @@ def _pseudonymizer(key_path):
         if type(value) is not str:
             return value
         s = value.strip()
-        if not s or _CONTROL.search(s):
+        if not s or has_control_characters(s):
             return value
         p = cache.get(s)
         if p is None:
