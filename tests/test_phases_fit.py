@@ -135,9 +135,12 @@ def test_parallel_equals_serial():
 def test_restarts_pick_best_loglik():
     db = _sample_db(n=10, length=30)
     m = fit_phase_model(db, n_states=3, n_restarts=4, random_state=0)
-    lls = m.info["restart_logliks"]          # after the screening steps
-    assert m.info["start_kinds"] == ["clustered", "random", "sticky", "clustered"]
-    assert len(lls) == 4 and m.info["best_restart"] == int(np.argmax(lls))
+    lls = m.info["restart_logliks"]          # after the first screening steps
+    kinds = m.info["start_kinds"]
+    assert kinds[-4:] == ["clustered", "random", "sticky", "clustered"]
+    assert set(kinds[:-4]) <= {"split S1", "split S2"}    # splits of the 2-state fit
+    # the winner was among the two best after the first screening round
+    assert len(lls) == len(kinds) and m.info["best_restart"] in np.argsort(lls)[-2:]
     # the best start was run on: it ends no lower than where screening left it (the
     # emission floor of 1e-4 costs at most a little)
     assert m.log_likelihood >= max(lls) - 1e-3 * abs(max(lls))

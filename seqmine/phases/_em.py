@@ -13,7 +13,7 @@ Start points (``start_point``):
 
 - ``"clustered"``: each token is described by its symbol and the symbols just before
   and after it; weighted k-means (k-means++ seeding, Lloyd iterations) groups these
-  contexts into ``n_states`` clusters, and start, transition and emission
+  contexts into ``n_states`` clusters (best of four seedings), and start, transition and emission
   probabilities are counted from the cluster labels (with pseudo-counts), as in
   segmental k-means (Juang & Rabiner 1990);
 - ``"random"``: start and transition rows ``Dirichlet(1/N)``, emission rows uniform
@@ -320,8 +320,18 @@ def _clustered(X, lengths, N, M, rng):
     return _clean(pi), _clean(A + 1.0), _clean(B)
 
 
-def _kmeans(points, weights, k, rng, n_iter=50):
-    """Weighted k-means (k-means++ seeding, Lloyd iterations); returns the labels."""
+def _kmeans(points, weights, k, rng, n_init=4):
+    """Weighted k-means: the best (least weighted inertia) of ``n_init`` runs of
+    k-means++ seeding and Lloyd iterations; returns the labels."""
+    best, best_cost = None, np.inf
+    for _ in range(n_init):
+        label, cost = _kmeans_once(points, weights, k, rng)
+        if cost < best_cost - 1e-12:
+            best, best_cost = label, cost
+    return best
+
+
+def _kmeans_once(points, weights, k, rng, n_iter=50):
     n = len(points)
     w = weights / weights.sum()
     centres = np.empty((k, points.shape[1]))
@@ -344,6 +354,8 @@ def _kmeans(points, weights, k, rng, n_iter=50):
         if np.allclose(new, centres):
             break
         centres = new
-    return label
+    d = ((points[:, None, :] - centres[None]) ** 2).sum(axis=2)
+    label = np.argmin(d, axis=1)
+    return label, float((weights * d[np.arange(n), label]).sum())
 
 

@@ -41,6 +41,9 @@ DEFAULT_EMISSION_FLOOR = 1e-4
 _DEFAULTS = DEFAULT_CONFIG["phases"]
 #: E-steps every start runs before the best one is run to convergence.
 SCREEN_ITER = 9
+#: Screening runs on a seeded sample of whole sequences of about this many tokens when
+#: the data are larger (it only has to rank the starts).
+SCREEN_TOKENS = 40_000
 
 
 def fit_phase_model(sequences, *, n_states=3, n_restarts=_DEFAULTS["n_restarts"],
@@ -53,9 +56,12 @@ def fit_phase_model(sequences, *, n_states=3, n_restarts=_DEFAULTS["n_restarts"]
     Start ``r`` is of kind ``START_KINDS[r % 3]`` (``"clustered"``, ``"random"``,
     ``"sticky"``), drawn from a seed derived from ``(random_state, stream, n_states,
     restart)`` (stream 0 here; the pooled and group models of
-    :func:`~seqmine.phases.fit_phases` use their own streams). All starts run :data:`SCREEN_ITER` accelerated EM steps side by side;
-    the one with the highest log-likelihood (ties: the lowest restart number) runs
-    on until EM converges. States of the result are put in a canonical order:
+    :func:`~seqmine.phases.fit_phases` use their own streams). Without ``start``, the
+    models with 2, 3, ... states are fitted first and each count also starts from
+    every split of the previous count's fit (EM on these data has many poor local
+    optima; this finds the good ones far more often). All starts of one count run
+    :data:`SCREEN_ITER` accelerated EM steps side by side; the one with the highest
+    log-likelihood (ties: the lowest restart number) runs on until EM converges. States of the result are put in a canonical order:
     decreasing expected occupancy.
 
     Parameters
@@ -114,10 +120,14 @@ def _fit_phase_model(sequences, *, n_states, n_restarts, random_state, n_jobs, n
     tol = check_number(tol, "tol", where, minimum=0)
     emission_floor = check_number(emission_floor, "emission_floor", where, minimum=0)
     _check_supported(n_states, len(vocab), len(X), label)
-    starts = [] if start is None else [_as_start(start, n_states, len(vocab))]
-    fit = _fit_best(X, lengths, len(vocab), n_states, seed_parts=(seed, stream, n_states, 0),
-                    starts=starts, n_restarts=n_restarts, n_iter=n_iter, tol=tol,
-                    emission_floor=emission_floor)
+    opts = dict(n_restarts=n_restarts, n_iter=n_iter, tol=tol, emission_floor=emission_floor)
+    if start is None:
+        # fewer states first, so that each count can also start from splits of the last
+        counts = list(range(min(2, n_states), n_states + 1))
+        fit = _fit_counts(X, lengths, len(vocab), counts, (seed, stream, 0), opts)[n_states]
+    else:
+        fit = _fit_best(X, lengths, len(vocab), n_states, seed_parts=(seed, stream, n_states, 0),
+                        starts=[_as_start(start, n_states, len(vocab))], **opts)
     return _best_model(fit, X, lengths, vocab, label, emission_floor, seed, n_restarts)
 
 
@@ -147,7 +157,10 @@ def select_n_states(sequences, *,
         ``n_observations``, ``log_likelihood``, ``loglik_per_token``, ``bic``,
         ``heldout_loglik`` (summed over the held-out folds),
         ``heldout_loglik_per_token``, ``train_loglik_per_token`` (the training fits
-        on their own sequences), ``n_iter`` (E-steps of the model on all sequences),
+        on their own sequences), ``heldout_gain_per_token`` and
+        ``train_gain_per_token`` (the same minus the log-likelihood of the training
+        learners' token frequencies, so that a held-out fold with an easier mix of
+        tokens does not look better fitted), ``n_iter`` (E-steps of the model on all sequences),
         ``converged``, ``best_bic``, ``best_heldout`` (bool: the count chosen by each
         criterion).
     models : dict int -> PhaseModel
@@ -208,11 +221,17 @@ def _select_n_states(sequences, *, n_states, n_restarts, n_splits, all_splits, r
         held = {n: [] for n in counts}
         for fits, ((Xtr, _), (Xho, Lho)) in zip(train, splits):
             lanes = Lanes(Xho, Lho, M)
+            # the token frequencies of the training learners, scored on both sides
+            freq = _frequencies(Xtr, M, emission_floor)
+            base_tr = float(np.log(freq)[Xtr].sum())
+            base_ho = float(np.log(freq)[Xho].sum())
             for n, fit in fits.items():
                 ho = float(lanes.loglik(fit["startprob"], fit["transmat"],
                                         fit["emissionprob"]).sum())
                 held[n].append({"heldout_loglik": ho, "heldout_tokens": len(Xho),
-                                "train_loglik": fit["loglik"], "train_tokens": len(Xtr)})
+                                "train_loglik": fit["loglik"], "train_tokens": len(Xtr),
+                                "heldout_gain": ho - base_ho,
+                                "train_gain": fit["loglik"] - base_tr})
         full = dict(zip(counts, parallel_map(
             functools.partial(_refine, X, lengths, M, opts=opts),
             [train[0][n] for n in counts], n_jobs=n_jobs)))
@@ -231,6 +250,7 @@ def _select_n_states(sequences, *, n_states, n_restarts, n_splits, all_splits, r
                "bic": -2.0 * model.log_likelihood + k * math.log(len(X)),
                "heldout_loglik": float("nan"), "heldout_loglik_per_token": float("nan"),
                "train_loglik_per_token": float("nan"),
+               "heldout_gain_per_token": float("nan"), "train_gain_per_token": float("nan"),
                "n_iter": int(fit["n_iter"]), "converged": bool(fit["converged"])}
         if held:
             ho_ll = sum(h["heldout_loglik"] for h in held)
@@ -238,7 +258,9 @@ def _select_n_states(sequences, *, n_states, n_restarts, n_splits, all_splits, r
             tr_ll = sum(h["train_loglik"] for h in held)
             tr_n = sum(h["train_tokens"] for h in held)
             row.update(heldout_loglik=ho_ll, heldout_loglik_per_token=ho_ll / max(ho_n, 1),
-                       train_loglik_per_token=tr_ll / max(tr_n, 1))
+                       train_loglik_per_token=tr_ll / max(tr_n, 1),
+                       heldout_gain_per_token=sum(h["heldout_gain"] for h in held) / max(ho_n, 1),
+                       train_gain_per_token=sum(h["train_gain"] for h in held) / max(tr_n, 1))
         rows.append(row)
     table = pd.DataFrame(rows)
     table["best_bic"] = table["bic"] == table["bic"].min()
@@ -249,6 +271,12 @@ def _select_n_states(sequences, *, n_states, n_restarts, n_splits, all_splits, r
     _first_only(table, "best_bic")
     _first_only(table, "best_heldout")
     return table, models
+
+
+def _frequencies(X, n_symbols, emission_floor):
+    counts = np.bincount(X, minlength=n_symbols).astype(np.float64)
+    share = counts / max(counts.sum(), 1.0)
+    return _hmm.apply_emission_floor(share[None, :], emission_floor)[0]
 
 
 def frequency_loglik(sequences, *, emission_floor=DEFAULT_EMISSION_FLOOR, vocab=None):
@@ -266,10 +294,8 @@ def frequency_loglik(sequences, *, emission_floor=DEFAULT_EMISSION_FLOOR, vocab=
     X, _, vocab = _arrays(sequences, vocab)
     if len(X) == 0:
         return 0.0
-    counts = np.bincount(X, minlength=len(vocab)).astype(np.float64)
-    p = _hmm.apply_emission_floor((counts / counts.sum())[None, :], emission_floor)[0]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return float(np.sum(np.where(counts > 0, counts * np.log(p), 0.0)))
+    with np.errstate(divide="ignore"):
+        return float(np.log(_frequencies(X, len(vocab), emission_floor))[X].sum())
 
 
 def _learner_folds(learners, n_splits, random_state):
@@ -378,9 +404,11 @@ def _as_start(start, n_states, n_symbols):
 
 
 def _fit_best(X, lengths, n_symbols, n_states, *, seed_parts, starts, n_restarts, n_iter,
-              tol, emission_floor, lanes=None):
+              tol, emission_floor, lanes=None, screen_lanes=None):
     """Screen the starts side by side, run the best to convergence, floor emissions."""
     lanes = lanes if lanes is not None else Lanes(X, lengths, n_symbols)
+    if screen_lanes is None:
+        screen_lanes = _screen_lanes(X, lengths, n_symbols, lanes, seed_parts)
     cands = [s[:3] for s in starts]
     kinds = [s[3] if len(s) > 3 else "given" for s in starts]
     for r in range(n_restarts):
@@ -389,24 +417,29 @@ def _fit_best(X, lengths, n_symbols, n_states, *, seed_parts, starts, n_restarts
         cands.append(start_point(kind, X, lengths, n_states, n_symbols, rng))
         kinds.append(kind)
     stacked = [np.stack([c[j] for c in cands]) for j in range(3)]
-    if len(cands) > 1 and n_iter > SCREEN_ITER:
-        screen = baum_welch(lanes, *stacked, max_iter=SCREEN_ITER, tol=tol)
-        screened = [float(v) for v in screen["loglik"]]
-        best = max(range(len(cands)), key=lambda i: (screened[i], -i))
-        one = [a[best:best + 1] for a in (screen["startprob"], screen["transmat"],
-                                          screen["emissionprob"])]
-        if screen["converged"][best]:
-            res, used = {k: v[best:best + 1] for k, v in screen.items()}, 0
-        else:
-            res = baum_welch(lanes, *one, max_iter=n_iter - SCREEN_ITER, tol=tol)
-            used = SCREEN_ITER
-        n_iter = int(res["n_iter"][0]) + used
-    else:
-        res = baum_welch(lanes, *stacked, max_iter=n_iter, tol=tol)
+    screened = []
+    alive = np.arange(len(cands))
+    used = 0
+    # screening: every start runs SCREEN_ITER steps; the best two run SCREEN_ITER more;
+    # the best of those runs to convergence (an early lead can fall into a poor optimum).
+    # On large data the screening steps run on a sample of the sequences.
+    while len(alive) > 1 and n_iter - used > SCREEN_ITER:
+        screen = baum_welch(screen_lanes, *stacked, max_iter=SCREEN_ITER, tol=tol)
+        lls = [float(v) for v in screen["loglik"]]
+        if not used:                         # first round: every start, same effort
+            screened = lls
+        used += SCREEN_ITER
+        keep = sorted(range(len(alive)), key=lambda i: (-lls[i], i))
+        keep = keep[:2] if len(alive) > 2 else keep[:1]
+        alive = alive[keep]
+        stacked = [screen[k][keep] for k in ("startprob", "transmat", "emissionprob")]
+    res = baum_welch(lanes, *stacked, max_iter=n_iter - used, tol=tol)
+    if not used:                             # one start, or too few steps to screen
         screened = [float(v) for v in res["loglik"]]
-        best = max(range(len(cands)), key=lambda i: (screened[i], -i))
-        res = {k: v[best:best + 1] for k, v in res.items()}
-        n_iter = int(res["n_iter"][0])
+    pick = max(range(len(alive)), key=lambda i: (float(res["loglik"][i]), -alive[i]))
+    best = int(alive[pick])
+    res = {k: v[pick:pick + 1] for k, v in res.items()}
+    n_iter = int(res["n_iter"][0]) + used
     pi = res["startprob"][0]
     A = res["transmat"][0]
     B = _hmm.apply_emission_floor(res["emissionprob"][0], emission_floor)
@@ -416,10 +449,25 @@ def _fit_best(X, lengths, n_symbols, n_states, *, seed_parts, starts, n_restarts
             "screen_logliks": screened, "best_restart": int(best), "start_kinds": kinds}
 
 
+def _screen_lanes(X, lengths, n_symbols, lanes, seed_parts):
+    """``lanes``, or those of a seeded random sample of whole sequences with about
+    :data:`SCREEN_TOKENS` tokens when the data have more than 1.5 times that."""
+    if len(X) <= 1.5 * SCREEN_TOKENS:
+        return lanes
+    rng = np.random.default_rng(_hmm.derive_seed(*seed_parts, 4099))
+    order = rng.permutation(len(lengths))
+    take = order[:int(np.searchsorted(np.cumsum(lengths[order]), SCREEN_TOKENS)) + 1]
+    offsets = np.zeros(len(lengths) + 1, dtype=np.int64)
+    np.cumsum(lengths, out=offsets[1:])
+    Xs, Ls = _take(X, offsets, lengths, np.sort(take))
+    return Lanes(Xs, Ls, n_symbols)
+
+
 def _fit_counts(X, lengths, n_symbols, counts, seed_parts, opts):
     """Fit every state count in turn on one data set; each count also starts from
     every split of the previous count's fit (:func:`._em.split_start`)."""
     lanes = Lanes(X, lengths, n_symbols)
+    screen = _screen_lanes(X, lengths, n_symbols, lanes, seed_parts)
     fits = {}
     for n in counts:
         starts = []
@@ -430,7 +478,7 @@ def _fit_counts(X, lengths, n_symbols, counts, seed_parts, opts):
                 starts.append(split_start(prev["startprob"], prev["transmat"],
                                           prev["emissionprob"], s, rng) + (f"split S{s + 1}",))
         fits[n] = _fit_best(X, lengths, n_symbols, n, seed_parts=seed_parts + (n,),
-                            starts=starts, lanes=lanes, **opts)
+                            starts=starts, lanes=lanes, screen_lanes=screen, **opts)
     return fits
 
 

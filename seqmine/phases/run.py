@@ -399,13 +399,14 @@ def _checks(models, freq, selection, chosen, counts):
              f"little beyond how often each token occurs, so read them with care.",
              count=len(weak))
     row = selection[selection["n_states"] == chosen].iloc[0]
-    ho, tr = row.get("heldout_loglik_per_token"), row.get("train_loglik_per_token")
+    ho, tr = row.get("heldout_gain_per_token"), row.get("train_gain_per_token")
     if ho is not None and tr is not None and np.isfinite(ho) and np.isfinite(tr) and ho > tr:
         note("phase_heldout_above_training",
-             f"At {chosen} states the held-out learners score better per token "
-             f"({ho:.4f}) than the learners the model was fitted on ({tr:.4f}); the "
-             f"held-out fold may differ from the rest (e.g. fewer long sequences), so "
-             f"the held-out scores are a rough guide here.")
+             f"At {chosen} states the model explains the held-out learners better than the "
+             f"learners it was fitted on (gain over token frequencies {ho:.4f} against "
+             f"{tr:.4f} nats per token); a model that fits its own data no better than new "
+             f"data has learnt little, or the held-out fold is unusual -- check with "
+             f"phases.all_splits = true.")
     if len(counts) > 1 and chosen == max(selection["n_states"]):
         note("phase_states_at_top_of_range",
              f"The chosen number of phases ({chosen}) is the largest tried; more phases "
