@@ -400,7 +400,8 @@ def _checks(models, freq, selection, chosen, counts):
              count=len(weak))
     row = selection[selection["n_states"] == chosen].iloc[0]
     ho, tr = row.get("heldout_gain_per_token"), row.get("train_gain_per_token")
-    if ho is not None and tr is not None and np.isfinite(ho) and np.isfinite(tr) and ho > tr:
+    if (chosen > 1 and ho is not None and tr is not None and np.isfinite(ho)
+            and np.isfinite(tr) and ho > tr):
         note("phase_heldout_above_training",
              f"At {chosen} states the model explains the held-out learners better than the "
              f"learners it was fitted on (gain over token frequencies {ho:.4f} against "
