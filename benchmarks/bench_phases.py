@@ -1,14 +1,25 @@
-"""Benchmark of the phases stage: fitting time on demo-like data and 100,000-token groups.
+"""Benchmark of the phases stage: CPU seconds on a seven-week course log and on the demo.
 
 Run from the repository root::
 
-    python benchmarks/bench_phases.py            # full run
-    python benchmarks/bench_phases.py --quick    # smaller, for a smoke test
+    python benchmarks/bench_phases.py              # course log + demo data
+    python benchmarks/bench_phases.py --quick      # a 20,000-event course log (smoke test)
+    python benchmarks/bench_phases.py --reference  # also hmmlearn's best of five fits (slow)
 
-Writes ``benchmarks/results/phases.json``. Data are sampled from invented greenhouse
-HMMs (two outcome groups with different transition structure), so every figure is
-reproducible with the seed. Timings are wall-clock on whatever else the machine is
-running; the load average at start and end is recorded beside them.
+Writes ``benchmarks/results/phases.json``. Figures are CPU seconds of this process and
+its children (``resource.getrusage``), which other work on the machine inflates less
+than wall time; the 1-minute load average before and after each run is recorded beside
+them. The data:
+
+* the generated course log of ``_course_log.py`` (95,626 events, 130 learners, seven
+  weeks, 1-second clock) encoded with the defaults: one sequence per learner, and
+  sessions split at 30-minute gaps (many shorter sequences);
+* the shipped demo data set (300 learners).
+
+Per data set: the whole phases stage with the defaults (``fit_phases``: 2-5 states, 3
+starts, one held-out fold), and the early-prediction featurizer's HMM fit on the
+training learners of one fold (four fifths of the learners), the cost that every
+cross-validation fold pays.
 """
 
 from __future__ import annotations
@@ -17,149 +28,157 @@ import argparse
 import json
 import os
 import platform
+import resource
 import sys
 import time
+import warnings
 from pathlib import Path
 
 import numpy as np
 
-sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+HERE = Path(__file__).resolve().parent
+sys.path.insert(0, str(HERE.parent))
+sys.path.insert(0, str(HERE))
+
+from _course_log import write_course_log  # noqa: E402
 
 from seqmine._util.progress import quiet_mode  # noqa: E402
-from seqmine.encoding.sequences import SequenceDB  # noqa: E402
-from seqmine.phases import (  # noqa: E402
-    GroupHMMClassifier,
-    PhaseModel,
-    _hmm,  # noqa: E402
-    fit_phase_model,
-    fit_phases,
-)
+from seqmine.config import default_config  # noqa: E402
+from seqmine.encoding.encoder import encoder_from_settings  # noqa: E402
+from seqmine.inputs.load import load_events  # noqa: E402
+from seqmine.inputs.outcomes import Grouping, load_outcomes  # noqa: E402
+from seqmine.phases import fit_phases  # noqa: E402
+from seqmine.pipeline import prepare_sequences  # noqa: E402
+from seqmine.validation.features import HMMLikelihoodFeaturizer  # noqa: E402
 
-ACTIONS = ["add_seedling", "set_light", "set_water", "set_temperature", "advance_week",
-           "measure_height", "measure_leaves", "open_chart", "paint_pot", "reset",
-           "open_guide", "pause:short", "pause:medium", "pause:long"]
+DATA = HERE / ".data"
+DEMO = HERE.parent / "datasets" / "greenhouse"
 
 
-def greenhouse_generators(seed=0):
-    """Two invented 4-state generators over the greenhouse vocabulary."""
-    rng = np.random.default_rng(seed)
-    M = len(ACTIONS)
-    B = np.full((4, M), 0.01)
-    B[0, [1, 2, 3]] = [0.3, 0.3, 0.2]           # set up
-    B[1, [4, 5, 6, 13]] = [0.3, 0.3, 0.2, 0.15]  # advance, measure, pause
-    B[2, [7, 10, 12]] = [0.4, 0.3, 0.2]          # chart / guide
-    B[3, [8, 9, 11]] = [0.4, 0.3, 0.2]           # paint / reset bursts
-    B /= B.sum(axis=1, keepdims=True)
-    A_strong = np.array([[.6, .3, .05, .05], [.1, .6, .25, .05], [.3, .1, .55, .05],
-                         [.3, .1, .1, .5]])
-    A_weak = np.array([[.5, .15, .05, .3], [.2, .45, .05, .3], [.2, .1, .5, .2],
-                       [.2, .1, .05, .65]])
-    pi = np.array([.7, .1, .1, .1])
-    _ = rng
-    return (PhaseModel.from_parameters(pi, A_strong, B, ACTIONS, label="strong"),
-            PhaseModel.from_parameters(pi, A_weak, B, ACTIONS, label="weak"))
+def cpu_seconds():
+    """CPU time (user + system) of this process and its finished children."""
+    total = 0.0
+    for who in (resource.RUSAGE_SELF, resource.RUSAGE_CHILDREN):
+        r = resource.getrusage(who)
+        total += r.ru_utime + r.ru_stime
+    return total
 
 
-def make_db(n_per_group, mean_length, seed):
-    rng = np.random.default_rng(seed)
-    seqs, groups = [], []
-    for k, gen in enumerate(greenhouse_generators()):
-        lengths = np.maximum(rng.poisson(mean_length, size=n_per_group), 2)
-        X, _ = gen.sample(lengths, random_state=seed + 1 + k)
-        off = np.concatenate([[0], np.cumsum(lengths)])
-        seqs += [[ACTIONS[t] for t in X[off[i]:off[i + 1]]] for i in range(n_per_group)]
-        groups += [gen.label] * n_per_group
-    return SequenceDB.from_lists(seqs, groups=groups, vocab=ACTIONS,
-                                 pause_tokens=[a for a in ACTIONS if a.startswith("pause:")])
-
-
-def timed(fn):
-    t0 = time.perf_counter()
+def measured(fn):
+    """``fn()``, CPU seconds, wall seconds and the load average before and after."""
+    load0 = os.getloadavg()[0]
+    c0, w0 = cpu_seconds(), time.perf_counter()
     out = fn()
-    return out, time.perf_counter() - t0
+    return out, {"cpu_s": round(cpu_seconds() - c0, 3),
+                 "wall_s": round(time.perf_counter() - w0, 3),
+                 "load_avg": [round(load0, 2), round(os.getloadavg()[0], 2)]}
+
+
+def encode(events, outcomes, session_gap=None):
+    """The SequenceDB ``analyze`` would build (default encoding, median split)."""
+    settings = dict(default_config()["encode"])
+    if session_gap:
+        settings.update(unit="session", session_gap=float(session_gap))
+    loaded = load_events(events)
+    prepared = prepare_sequences(loaded, load_outcomes(outcomes),
+                                 encoder=encoder_from_settings(settings),
+                                 grouping=Grouping("median"))
+    return prepared.db
+
+
+def one_fold(db, seed=0):
+    """The sequences of four fifths of the learners (one cross-validation fold's training)."""
+    learners = np.unique(db.learners)
+    rng = np.random.default_rng(seed)
+    train = set(rng.choice(learners, int(0.8 * len(learners)), replace=False).tolist())
+    return db.subset(np.flatnonzero([lr in train for lr in db.learners]))
+
+
+def bench_db(name, db, reference=False):
+    seed = default_config()["seed"]
+    print(f"{name}: {db.n_sequences} sequences, {db.n_tokens} tokens, longest "
+          f"{int(db.lengths.max())}", flush=True)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        res, m = measured(lambda: fit_phases(db))
+    sel = res.selection
+    row = {"tokens": int(db.n_tokens), "sequences": int(db.n_sequences), "seconds": m["cpu_s"],
+           **m, "chosen_states": int(res.n_states),
+           "log_likelihood": {int(r.n_states): float(r.log_likelihood)
+                              for r in sel.itertuples()},
+           "em_steps": {int(r.n_states): int(r.n_iter) for r in sel.itertuples()},
+           "warnings": sorted({str(getattr(w.message, "code", w.message)) for w in caught}),
+           "settings": "defaults: states 2-5, 3 starts, one held-out fold of 3"}
+    print(f"  fit_phases (defaults): {m['cpu_s']:.2f} CPU-s, {m['wall_s']:.2f} s wall, "
+          f"load {m['load_avg']}; chose {res.n_states} states", flush=True)
+    fold = one_fold(db)
+    feat, m2 = measured(lambda: HMMLikelihoodFeaturizer(random_state=seed).fit(fold))
+    part = db.cut(0.5)
+    _, m3 = measured(lambda: feat.transform(part))
+    fold_row = {"tokens": int(fold.n_tokens), "sequences": int(fold.n_sequences),
+                "seconds": m2["cpu_s"], **m2, "transform_cpu_s": m3["cpu_s"],
+                "settings": "HMMLikelihoodFeaturizer defaults (3 states per group), "
+                            "training learners of one fold (4/5)"}
+    print(f"  HMM featurizer, one fold: fit {m2['cpu_s']:.2f} CPU-s, transform of all "
+          f"half-sequences {m3['cpu_s']:.3f} CPU-s", flush=True)
+    runs = {f"{name}: fit_phases defaults": row, f"{name}: HMM featurizer per fold": fold_row}
+    if reference:
+        runs[f"{name}: hmmlearn best of five"] = hmmlearn_reference(db, res)
+    return runs
+
+
+def hmmlearn_reference(db, res):
+    """hmmlearn's best of five fits from its default starts at each state count, and
+    how far the stage's pooled models are from it."""
+    import logging
+
+    from hmmlearn.hmm import CategoricalHMM
+
+    logging.getLogger("hmmlearn").setLevel(logging.ERROR)
+    X = db.tokens.astype(np.int64).reshape(-1, 1)
+    out = {"tokens": int(db.n_tokens), "by_states": {}}
+    for r in res.selection.itertuples():
+        n = int(r.n_states)
+        lls = []
+        c0 = cpu_seconds()
+        for s in range(5):
+            h = CategoricalHMM(n_components=n, n_features=len(db.vocab), n_iter=1000,
+                               random_state=s, implementation="scaling")
+            h.fit(X, db.lengths)
+            lls.append(float(h.score(X, db.lengths)))
+        best = max(lls)
+        out["by_states"][n] = {"hmmlearn_logliks": lls, "hmmlearn_cpu_s": cpu_seconds() - c0,
+                               "ours": float(r.log_likelihood),
+                               "ours_minus_best_percent": 100 * (r.log_likelihood - best)
+                               / abs(best)}
+        print(f"  {n} states: ours {r.log_likelihood:.1f}, hmmlearn best of five {best:.1f} "
+              f"({out['by_states'][n]['ours_minus_best_percent']:+.3f} %)", flush=True)
+    return out
 
 
 def main(argv=None):
-    with quiet_mode():
-        return _main(argv)
-
-
-def _main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--quick", action="store_true", help="smaller data (smoke test)")
-    ap.add_argument("--out", default=str(Path(__file__).with_name("results") / "phases.json"))
+    ap.add_argument("--quick", action="store_true", help="a 20,000-event course log only")
+    ap.add_argument("--reference", action="store_true",
+                    help="also fit hmmlearn's best of five at every state count (slow)")
+    ap.add_argument("--out", default=str(HERE / "results" / "phases.json"))
     args = ap.parse_args(argv)
     results = {"python": platform.python_version(), "machine": platform.machine(),
                "cpu_count": os.cpu_count(), "quick": args.quick,
                "load_average_at_start": list(os.getloadavg()), "runs": {}}
-    runs = results["runs"]
-
-    # ---- demo-like: a few hundred learners, ~100 tokens each
-    n_demo = 60 if args.quick else 150
-    demo = make_db(n_demo, 100, seed=1)
-    print(f"demo-like data: {demo.n_sequences} learners, {demo.n_tokens} tokens")
-    res, t = timed(lambda: fit_phases(demo, n_states="2-6", n_restarts=5, random_state=0, n_jobs=1,
-                                      n_splits=3, n_permutations=19))
-    runs["demo_fit_phases_defaults"] = {
-        "learners": demo.n_sequences, "tokens": demo.n_tokens, "seconds": t,
-        "chosen_states": res.n_states, "settings": "states 2-6, 5 restarts, 3 folds, 19 permutations"}
-    print(f"  fit_phases (defaults, serial): {t:.1f} s, chose {res.n_states} states")
-    res2, t2 = timed(lambda: fit_phases(demo, n_states="2-6", n_restarts=5, random_state=0, n_jobs=2,
-                                        n_splits=3, n_permutations=19))
-    same = all(res.models[k].equals(res2.models[k]) for k in res.models)
-    runs["demo_fit_phases_jobs2"] = {"seconds": t2, "speedup": t / t2, "identical": same}
-    print(f"  fit_phases (n_jobs=2): {t2:.1f} s (x{t / t2:.2f}), identical={same}")
-    _, t3 = timed(lambda: fit_phases(demo, n_states="2-6", n_restarts=5, random_state=0, n_splits=0,
-                                     n_permutations=0))
-    runs["demo_fit_phases_no_cv_no_perm"] = {"seconds": t3}
-    print(f"  fit_phases without held-out folds and permutations: {t3:.1f} s")
-
-    # ---- 100,000-token groups
-    n_big = 200 if args.quick else 1000
-    big = make_db(n_big, 100, seed=2)
-    strong = big.subset(np.flatnonzero(big.groups == 0))
-    print(f"large groups: {big.n_tokens} tokens ({strong.n_tokens} in one group, "
-          f"{strong.n_sequences} sequences)")
-    m, t = timed(lambda: fit_phase_model(strong, n_states=4, n_restarts=5, random_state=0))
-    runs["group_100k_fit_4_states_5_restarts"] = {
-        "tokens": strong.n_tokens, "sequences": strong.n_sequences, "seconds": t,
-        "seconds_per_restart": t / 5, "em_iterations_best": m.info["n_iter"]}
-    print(f"  one group, 4 states, 5 restarts: {t:.1f} s ({t / 5:.2f} s per restart)")
-    m2, t2 = timed(lambda: fit_phase_model(strong, n_states=4, n_restarts=5, random_state=0, n_jobs=2))
-    runs["group_100k_fit_jobs2"] = {"seconds": t2, "speedup": t / t2,
-                                    "identical": m.equals(m2)}
-    print(f"  same with n_jobs=2: {t2:.1f} s (x{t / t2:.2f}), identical={m.equals(m2)}")
-    res, t = timed(lambda: fit_phases(big, n_states="2-6", n_restarts=3, random_state=0, n_jobs=2,
-                                      n_splits=0, n_permutations=0))
-    runs["two_groups_100k_fit_phases"] = {
-        "tokens": big.n_tokens, "seconds": t, "chosen_states": res.n_states,
-        "settings": "states 2-6, 3 restarts, no folds, no permutations, n_jobs=2"}
-    print(f"  fit_phases on both groups (2-6 states, 3 restarts, 2 jobs): {t:.1f} s, "
-          f"chose {res.n_states} states")
-
-    # ---- scoring: our batched forward pass against hmmlearn's score, same model
-    X, lengths = strong.tokens.astype(np.int64), strong.lengths
-    ours, t_ours = timed(lambda: m.score(strong))
-    hm = _hmm._hmm_from(m.startprob, m.transmat, m.emissionprob)
-    ref, t_ref = timed(lambda: hm.score(X.reshape(-1, 1), lengths))
-    runs["scoring_100k_tokens"] = {
-        "ours_seconds": t_ours, "hmmlearn_seconds": t_ref, "ratio": t_ref / t_ours,
-        "max_abs_difference": abs(ours - ref)}
-    print(f"  log-likelihood of {len(X)} tokens: ours {t_ours * 1000:.1f} ms, hmmlearn "
-          f"{t_ref * 1000:.1f} ms (x{t_ref / t_ours:.1f}), |diff| {abs(ours - ref):.2e}")
-    clf, t = timed(lambda: GroupHMMClassifier(n_states=4, n_restarts=3, random_state=0).fit(big))
-    part = big.cut(0.3)
-    _, tp = timed(lambda: clf.predict_proba(part))
-    acc = float((clf.predict(part) == np.array(big.group_names)[big.groups]).mean())
-    runs["classifier_100k_groups"] = {"fit_seconds": t, "predict_seconds_30pct": tp,
-                                      "accuracy_first_30pct": acc}
-    print(f"  classifier fit {t:.1f} s; predict on first 30% of {big.n_sequences} sequences "
-          f"{tp * 1000:.0f} ms, accuracy {acc:.3f}")
-
+    n_events, n_learners = (20_000, 30) if args.quick else (95_626, 130)
+    ev, oc = write_course_log(DATA / f"course_{n_events}", n_learners, n_events)
+    with quiet_mode():
+        results["runs"].update(bench_db("course log", encode(ev, oc), args.reference))
+        results["runs"].update(bench_db("course log, 30-minute sessions",
+                                        encode(ev, oc, session_gap=1800), args.reference))
+        if not args.quick and (DEMO / "events.csv").is_file():
+            results["runs"].update(bench_db("demo data", encode(DEMO / "events.csv",
+                                                                DEMO / "outcomes.csv")))
     results["load_average_at_end"] = list(os.getloadavg())
     out = Path(args.out)
     out.parent.mkdir(parents=True, exist_ok=True)
-    out.write_text(json.dumps(results, indent=1, sort_keys=True), encoding="utf-8")
+    out.write_text(json.dumps(results, indent=1, sort_keys=True) + "\n", encoding="utf-8")
     print(f"results written to {out}")
     return 0
 

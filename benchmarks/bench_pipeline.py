@@ -8,6 +8,15 @@ peak is ``ru_maxrss``. Prints a table and writes ``benchmarks/results/pipeline.j
     python benchmarks/bench_pipeline.py                 # 1e5 and 1e6 events
     python benchmarks/bench_pipeline.py --quick         # 1e4 and 1e5 events
     python benchmarks/bench_pipeline.py --sizes 1e7     # the large run (large-data config)
+    python benchmarks/bench_pipeline.py --course        # the 95,626-event course log, and
+                                                        # `seqmine demo`
+
+``--course`` runs ``analyze`` with the shipped defaults on the seven-week course log of
+``_course_log.py`` (95,626 events, 130 learners, 1-second clock), once as it comes and
+once with sessions split at 30-minute gaps, and times ``seqmine demo`` (wall clock, the
+figure a user sees). Every record also holds the CPU seconds of ``analyze`` and of
+each stage (``resource.getrusage`` of the process and its children) and the 1-minute
+load average before and after.
 
 Configurations (``--config default|large``; default: ``default`` below 1e6 events,
 ``large`` from 1e6 on -- with the shipped defaults the phase models alone took 241 s
@@ -31,6 +40,7 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import resource
 import subprocess
 import sys
 import time
@@ -64,7 +74,7 @@ MEMORY_MODEL = {
 }
 
 CHILD = r'''
-import json, os, resource, sys, threading, time
+import contextlib, json, os, resource, sys, threading, time
 sys.path.insert(0, {root!r})
 events, outcomes, out, cfg_json = sys.argv[1:5]
 page = os.sysconf("SC_PAGE_SIZE")
@@ -73,6 +83,13 @@ state = {{"stage": "startup", "peaks": {{}}, "run": True}}
 def rss():
     with open("/proc/self/statm") as f:
         return int(f.read().split()[1]) * page
+
+def cpu():
+    total = 0.0
+    for who in (resource.RUSAGE_SELF, resource.RUSAGE_CHILDREN):
+        r = resource.getrusage(who)
+        total += r.ru_utime + r.ru_stime
+    return total
 
 def sample():
     while state["run"]:
@@ -86,22 +103,32 @@ import seqmine.pipeline as pl
 from seqmine.config import default_config, merge_config
 state["rss_after_import"] = rss()
 real_call = pl._Stages.__call__
+stage_cpu = {{}}
+@contextlib.contextmanager
 def tracking_call(self, name):
     state["stage"] = name
-    return real_call(self, name)
+    c0 = cpu()
+    with real_call(self, name):
+        yield
+    stage_cpu[name] = round(cpu() - c0, 3)
 pl._Stages.__call__ = tracking_call
 t = threading.Thread(target=sample, daemon=True)
 state["stage"] = "loading and encoding"
 t.start()
 cfg = merge_config(default_config(), json.loads(cfg_json))
 t0 = time.perf_counter()
+c0 = cpu()
 res = pl.analyze(events, outcomes, out, cfg, quiet=True)
 wall = time.perf_counter() - t0
+cpu_s = cpu() - c0
+# loading and encoding are timed without the stage context: the rest of the CPU time
+stage_cpu["loading and encoding"] = round(cpu_s - sum(stage_cpu.values()), 3)
 state["run"] = False
 t.join()
 s = res.summary
 print(json.dumps({{
-    "wall_s": wall, "stage_seconds": s["stage_seconds"],
+    "wall_s": wall, "stage_seconds": s["stage_seconds"], "cpu_s": cpu_s,
+    "stage_cpu_s": stage_cpu, "warnings": [w["code"] for w in s.get("warnings", [])],
     "stage_peak_mb": {{k: v / 2**20 for k, v in state["peaks"].items()}},
     "peak_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024,
     "children_peak_mb": resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024,
@@ -128,15 +155,21 @@ def dataset(n_events, fmt):
     return ev, oc
 
 
-def run_size(n_events, config_name, jobs=1, scheduler=None, fmt=None, out_root=None):
-    """Run ``analyze`` once in a subprocess; returns the measurement dict."""
+def run_size(n_events, config_name, jobs=1, scheduler=None, fmt=None, out_root=None,
+             data=None, extra=None, label=None):
+    """Run ``analyze`` once in a subprocess; returns the measurement dict.
+
+    ``data`` gives ``(events, outcomes)`` paths instead of generated greenhouse data,
+    ``extra`` configuration overrides, ``label`` a name for the data set."""
     cfg = dict(LARGE_CONFIG) if config_name == "large" else {}
+    cfg.update(extra or {})
     fmt = fmt or ("parquet" if config_name == "large" else "csv")
     cfg["n_jobs"] = jobs
     if scheduler:
         cfg["scheduler"] = scheduler
-    ev, oc = dataset(n_events, fmt)
-    out = Path(out_root or DATA / "out") / f"{ev.parent.name}_{config_name}"
+    ev, oc = data or dataset(n_events, fmt)
+    tag = label.replace(" ", "_").replace(",", "") if label else ev.parent.name
+    out = Path(out_root or DATA / "out") / f"{tag}_{config_name}"
     load0 = os.getloadavg()[0]
     proc = subprocess.run([sys.executable, "-c", CHILD.format(root=str(ROOT)), str(ev), str(oc),
                            str(out), json.dumps(cfg)], capture_output=True, text=True)
@@ -144,6 +177,7 @@ def run_size(n_events, config_name, jobs=1, scheduler=None, fmt=None, out_root=N
         raise RuntimeError(f"analyze failed at {n_events} events:\n{proc.stderr[-3000:]}")
     rec = json.loads(proc.stdout.strip().splitlines()[-1])
     rec.update(target_events=n_events, config=config_name, input_format=fmt, jobs=jobs,
+               dataset=label or "greenhouse",
                scheduler=scheduler, load_avg_start=round(load0, 2),
                load_avg_end=round(os.getloadavg()[0], 2),
                events_per_s=rec["events"] / rec["wall_s"],
@@ -166,27 +200,71 @@ def check_memory_model(rec):
 
 def print_table(records, file=sys.stdout):
     for r in records:
-        print(f"\n{r['events']:,} events, {r['tokens']:,} tokens, {r['sequences']:,} sequences "
+        if "demo_wall_s" in r:
+            print(f"\nseqmine demo: {r['demo_wall_s']:.1f} s wall, {r['cpu_s']:.1f} CPU-s; "
+                  f"load average {r['load_avg_start']} -> {r['load_avg_end']}", file=file)
+            continue
+        print(f"\n{r.get('dataset', 'greenhouse')}: {r['events']:,} events, {r['tokens']:,} "
+              f"tokens, {r['sequences']:,} sequences "
               f"({r['config']} config, {r['input_format']}, jobs={r['jobs']}); "
               f"load average {r['load_avg_start']} -> {r['load_avg_end']}", file=file)
-        print(f"  {'stage':<22} {'seconds':>9} {'peak MB':>9} {'model MB':>9} "
+        print(f"  {'stage':<22} {'seconds':>9} {'CPU-s':>7} {'peak MB':>9} {'model MB':>9} "
               f"{'peak/model':>10}", file=file)
         model = r.get("memory_model", {})
+        cpu = r.get("stage_cpu_s", {})
         for stage, sec in r["stage_seconds"].items():
             m = model.get(stage, {})
             ratio = m.get("measured_over_model")
-            print(f"  {stage:<22} {sec:>9.2f} {r['stage_peak_mb'].get(stage, float('nan')):>9.0f} "
+            print(f"  {stage:<22} {sec:>9.2f} {cpu.get(stage, float('nan')):>7.2f} "
+                  f"{r['stage_peak_mb'].get(stage, float('nan')):>9.0f} "
                   f"{m.get('model_mb', float('nan')):>9.0f} "
                   f"{'' if ratio is None else format(ratio, '.2f'):>10}", file=file)
-        print(f"  {'total':<22} {r['wall_s']:>9.2f} {r['peak_mb']:>9.0f}   "
-              f"({r['events_per_s']:,.0f} events/s, {r['peak_bytes_per_event']:,.0f} "
-              f"peak bytes/event)", file=file)
+        print(f"  {'total':<22} {r['wall_s']:>9.2f} {r.get('cpu_s', float('nan')):>7.2f} "
+              f"{r['peak_mb']:>9.0f}   ({r['events_per_s']:,.0f} events/s, "
+              f"{r['peak_bytes_per_event']:,.0f} peak bytes/event)", file=file)
+
+
+def run_course(session_gap=None):
+    """``analyze`` with the defaults on the 95,626-event course log."""
+    sys.path.insert(0, str(HERE))
+    from _course_log import write_course_log
+
+    ev, oc = write_course_log(DATA / "course_95626")
+    extra, label = {}, "course log"
+    if session_gap:
+        extra = {"encode": {"unit": "session", "session_gap": float(session_gap)}}
+        label = f"course log, sessions at {session_gap / 60:g}-minute gaps"
+    return run_size(95_626, "default", data=(ev, oc), extra=extra, label=label)
+
+
+def run_demo():
+    """Wall clock and CPU seconds of ``seqmine demo`` (a fresh process)."""
+    out = DATA / "out" / "demo"
+    load0 = os.getloadavg()[0]
+    c0 = _children_cpu()
+    t0 = time.perf_counter()
+    proc = subprocess.run([sys.executable, "-m", "seqmine", "demo", "--out", str(out),
+                           "--quiet"], capture_output=True, text=True, cwd=str(ROOT))
+    wall = time.perf_counter() - t0
+    if proc.returncode != 0:
+        raise RuntimeError(f"seqmine demo failed:\n{proc.stderr[-3000:]}")
+    return {"dataset": "seqmine demo", "config": "default", "target_events": 0, "jobs": 1,
+            "demo_wall_s": round(wall, 2), "cpu_s": round(_children_cpu() - c0, 2),
+            "load_avg_start": round(load0, 2), "load_avg_end": round(os.getloadavg()[0], 2)}
+
+
+def _children_cpu():
+    r = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return r.ru_utime + r.ru_stime
 
 
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__,
                                  formatter_class=argparse.RawDescriptionHelpFormatter)
     ap.add_argument("--quick", action="store_true", help="1e4 and 1e5 events")
+    ap.add_argument("--course", action="store_true",
+                    help="the 95,626-event course log (as it comes and in 30-minute "
+                         "sessions) and `seqmine demo`, with the defaults")
     ap.add_argument("--sizes", default=None, help="comma-separated event counts, e.g. 1e5,1e6")
     ap.add_argument("--config", choices=["default", "large"], default=None)
     ap.add_argument("--jobs", type=int, default=1)
@@ -199,6 +277,16 @@ def main(argv=None):
     else:
         sizes = [10_000, 100_000] if args.quick else [100_000, 1_000_000]
     records = []
+    if args.course:
+        sizes = []
+        for gap in (None, 1800):
+            print("analyze on the course log"
+                  + (f" (sessions at {gap} s gaps)" if gap else "") + " ...",
+                  file=sys.stderr, flush=True)
+            records.append(run_course(gap))
+            print_table(records[-1:])
+        records.append(run_demo())
+        print_table(records[-1:])
     for n in sizes:
         name = args.config or ("large" if n >= 1_000_000 else "default")
         print(f"analyze at ~{n:,} events ({name} config) ...", file=sys.stderr, flush=True)
@@ -207,13 +295,16 @@ def main(argv=None):
     out = Path(args.output)
     out.parent.mkdir(parents=True, exist_ok=True)
     old = json.loads(out.read_text()) if out.is_file() else []
-    keep = [r for r in old if (r["target_events"], r["config"], r.get("jobs", 1)) not in
-            {(r2["target_events"], r2["config"], r2["jobs"]) for r2 in records}]
+    def key(r):
+        return (r["target_events"], r["config"], r.get("jobs", 1),
+                r.get("dataset", "greenhouse"))
+
+    new = {key(r) for r in records}
+    keep = [r for r in old if key(r) not in new]
     for r in keep:
-        r["memory_model"] = check_memory_model(r)
-    out.write_text(json.dumps(sorted(keep + records, key=lambda r: (r["target_events"],
-                                                                    r["config"])), indent=1)
-                   + "\n")
+        if "stage_peak_mb" in r:
+            r["memory_model"] = check_memory_model(r)
+    out.write_text(json.dumps(sorted(keep + records, key=key), indent=1) + "\n")
     print(f"\nwritten {out}")
     return records
 

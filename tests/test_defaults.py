@@ -46,13 +46,14 @@ API_DEFAULTS = [
     ("scoring.transitions.transition_counts", "exclude_pauses", "transitions",
      "exclude_pauses"),
     *[("phases.run.fit_phases", k, P, k) for k in
-      ("n_restarts", "n_iter", "criterion", "n_splits", "n_permutations")],
+      ("n_restarts", "n_iter", "tol", "criterion", "n_splits", "all_splits", "n_permutations")],
     ("phases.run.fit_phases", "n_states", P, ("min_states", "max_states")),
     ("phases.run.fit_phases", "alpha", C, "alpha"),
-    *[("phases.fitting.select_n_states", k, P, k) for k in ("n_restarts", "n_iter", "n_splits")],
+    *[("phases.fitting.select_n_states", k, P, k) for k in
+      ("n_restarts", "n_iter", "tol", "n_splits", "all_splits")],
     ("phases.fitting.select_n_states", "n_states", P, ("min_states", "max_states")),
-    *[("phases.fitting.fit_phase_model", k, P, k) for k in ("n_restarts", "n_iter")],
-    *[("phases.classify.GroupHMMClassifier", k, P, k) for k in ("n_restarts", "n_iter")],
+    *[("phases.fitting.fit_phase_model", k, P, k) for k in ("n_restarts", "n_iter", "tol")],
+    *[("phases.classify.GroupHMMClassifier", k, P, k) for k in ("n_restarts", "n_iter", "tol")],
     *[("validation.crossval.validate", k, V, k) for k in ("n_splits", "fractions", "n_bootstrap")],
     ("validation.crossval.validate", "alpha", C, "alpha"),
     ("validation.crossval.learner_splits", "n_splits", V, "n_splits"),

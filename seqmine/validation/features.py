@@ -329,7 +329,7 @@ class HMMLikelihoodFeaturizer(TransformerMixin, BaseEstimator):
     n_states : int, default 3
     n_restarts : int, default 2
     n_iter : int, default 50
-        Baum–Welch iterations per restart.
+        Most EM steps per group model (screening of the starts included).
     smoothing : float > 0, default 1e-3
         Emission probability floor (added, then renormalised), so a token rare in
         one group does not give an infinite ratio.
