@@ -30,17 +30,19 @@ DEFAULT_CONFIG = {
         "learner_column": "learner", "time_column": "time", "action_column": "action",
         "session_column": "session", "target_column": "target", "channel_column": "channel",
         "format": None, "delimiter": None, "encoding": "utf-8", "duplicates": "reject",
-        "max_bytes": 20_000_000_000,
+        "max_bytes": 20_000_000_000, "time_unit": "auto", "timezone": None,
+        "decimal_comma": False,
     },
     "outcomes": {
         "learner_column": "learner", "pre_column": "pre", "post_column": "post",
         "max_column": "max", "score_column": "score", "label_column": "label",
         "max_score": None, "grouping": None, "fraction": 1 / 3, "low": None, "high": None,
+        "decimal_comma": False, "match_ids": "exact",
     },
     "encode": {
         "template": "{action}", "mapping": None, "collapse_repeats": False,
         "pause_strategy": "quantile", "pause_bins": 3, "pause_thresholds": None,
-        "implicit_pauses": ["shortest"], "unit": "learner", "session_gap": None,
+        "implicit_pauses": ["shortest"], "unit": "session", "session_gap": 1800.0,
     },
     "mine": {
         "min_support": 0.2, "min_length": 2, "max_length": 4, "max_gap": 0,
@@ -50,7 +52,7 @@ DEFAULT_CONFIG = {
     },
     "contrast": {
         "correction": "bh", "alpha": 0.05, "n_permutations": 1000,
-        "stability_resamples": 100, "redundancy_jaccard": 0.9,
+        "stability_resamples": 100, "redundancy_jaccard": 0.9, "unit": "auto",
     },
     "transitions": {"include_pauses": True},
     "phases": {"enabled": True, "min_states": 2, "max_states": 5, "restarts": 3,
@@ -110,11 +112,17 @@ def merge_config(base, overrides, source="configuration"):
     return out
 
 
+#: Options whose value "none" (or "off") turns them off (stored as None).
+_OFF_WORDS = {"encode.session_gap": ("none", "off")}
+
+
 def _check_type(source, key, default, value):
     """The value, checked to have the kind of its default (options defaulting to None
     take any); a whole number written as a float (``max_bytes = 2e10``) becomes an int."""
     if default is None or value is None:
         return value
+    if isinstance(value, str) and value.strip().lower() in _OFF_WORDS.get(key, ()):
+        return None
     if (isinstance(default, int) and not isinstance(default, bool) and isinstance(value, float)
             and value.is_integer()):
         value = int(value)

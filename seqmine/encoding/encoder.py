@@ -39,6 +39,7 @@ import pandas as pd
 from sklearn.base import BaseEstimator
 
 from .._util.checks import check_choice, check_int, check_number
+from ..config import DEFAULT_CONFIG
 from ..errors import DataFileError, NotFittedError, ParameterError, SeqmineWarning
 from ..inputs.clock import to_microseconds
 from .pauses import learner_weighted_edges, pause_labels, pause_ranges
@@ -51,8 +52,8 @@ __all__ = ["Encoder", "encode", "encoder_from_settings", "load_mapping", "pause_
 TEMPLATE_FIELDS = ("action", "target", "channel", "session")
 
 #: Inactivity (seconds) after which a new sequence starts by default: 30 minutes, a
-#: common practice for sessions in web analytics.
-DEFAULT_SESSION_GAP = 1800.0
+#: common practice for sessions in web analytics (from the configuration defaults).
+DEFAULT_SESSION_GAP = DEFAULT_CONFIG["encode"]["session_gap"]
 
 
 def load_mapping(path):
@@ -431,8 +432,15 @@ class Encoder(BaseEstimator):
 
 def encoder_from_settings(settings):
     """An unfitted :class:`Encoder` from plain settings (the ``[encode]`` configuration
-    section): ``mapping`` is a mapping-file path, ``implicit_pauses`` a list."""
+    section): ``mapping`` is a mapping-file path, ``implicit_pauses`` a list,
+    ``session_gap`` may be ``"none"``."""
     params = dict(settings)
+    if isinstance(params.get("session_gap"), str):
+        if params["session_gap"].strip().lower() not in ("none", "off"):
+            raise ParameterError(
+                f"session_gap must be a number of seconds or 'none'; got "
+                f"{params['session_gap']!r}.")
+        params["session_gap"] = None
     mapping = params.pop("mapping", None)
     implicit = tuple(params.pop("implicit_pauses", None) or ())
     return Encoder(mapping=load_mapping(mapping) if mapping else None,

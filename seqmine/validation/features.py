@@ -568,6 +568,8 @@ class _ContrastScorer:
     def __call__(self, patterns, db):
         from ..scoring.contrast import contrast  # noqa: PLC0415
 
+        # several sequences (sessions) of one learner: the learner is the unit
+        unit = "learner" if len(np.unique(db.learners)) < db.n_sequences else "sequence"
         return contrast(patterns, db, correction=self.correction, alpha=self.alpha,
                         seed=self.seed, n_permutations=self.n_permutations,
-                        stability_resamples=0, redundancy=None)
+                        stability_resamples=0, redundancy=None, unit=unit)

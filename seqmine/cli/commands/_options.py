@@ -11,7 +11,7 @@ from ...inputs.outcomes import Grouping, load_outcomes
 
 __all__ = ["add_event_options", "add_outcome_options", "add_encoding_options",
            "events_from_args", "outcomes_from_args", "grouping_from_args",
-           "encoder_from_args", "parse_float_list", "add_privacy_option",
+           "encoder_from_args", "parse_float_list", "parse_session_gap", "add_privacy_option",
            "pseudonymize_inputs", "print_warnings"]
 
 
@@ -23,6 +23,21 @@ def parse_float_list(text, option):
         return [float(x) for x in str(text).split(",") if x.strip()]
     except ValueError:
         raise ParameterError(f"{option} takes comma-separated numbers, e.g. 5,30; got {text!r}.") from None
+
+
+def parse_session_gap(text):
+    """``"1800"`` -> 1800.0; ``"none"`` / ``"off"`` -> None (no inactivity rule)."""
+    if str(text).strip().lower() in ("none", "off"):
+        return None
+    try:
+        value = float(text)
+    except ValueError:
+        raise ParameterError(
+            f"--session-gap takes seconds (e.g. 1800) or 'none'; got {text!r}.") from None
+    if not value > 0 or value != value or value == float("inf"):
+        raise ParameterError(f"--session-gap must be a positive number of seconds or 'none'; "
+                             f"got {text!r}.")
+    return value
 
 
 def add_event_options(p):
@@ -38,6 +53,15 @@ def add_event_options(p):
                    help="keep exact duplicate events instead of rejecting them")
     g.add_argument("--max-bytes", type=float, default=20e9,
                    help="refuse event files larger than this many bytes (default: 2e10)")
+    g.add_argument("--time-unit", choices=["auto", "s", "ms", "us"], default="auto",
+                   help="what a numeric time stands for (default: auto, which recognises "
+                        "milliseconds and microseconds since 1970 and relative milliseconds "
+                        "and says so)")
+    g.add_argument("--timezone", metavar="NAME", default=None,
+                   help="IANA time zone of ISO 8601 times written without a zone, e.g. "
+                        "Europe/Berlin (default: UTC)")
+    g.add_argument("--decimal-comma", action="store_true",
+                   help="numbers in the events and outcomes use a decimal comma (12,5)")
 
 
 def add_outcome_options(p, required=True):
@@ -59,6 +83,10 @@ def add_outcome_options(p, required=True):
                    help="top/bottom share for --grouping fraction (default: 1/3)")
     g.add_argument("--low", type=float, default=None, help="below this: weak (thresholds rule)")
     g.add_argument("--high", type=float, default=None, help="at or above this: strong (thresholds rule)")
+    g.add_argument("--match-ids", choices=["exact", "numeric"], default="exact",
+                   help="how learner ids of the events and outcomes match: exact text "
+                        "(default; ids that almost match stop the run), or numeric (1, 01 "
+                        "and 1.0 are one learner)")
 
 
 def add_encoding_options(p):
@@ -76,10 +104,11 @@ def add_encoding_options(p):
     g.add_argument("--implicit-pauses", default="shortest", metavar="LABELS",
                    help="pause bins that emit no token: labels such as short,medium, or "
                         "'shortest' for the first bin (default: shortest; '' for none)")
-    g.add_argument("--unit", choices=["learner", "session"], default="learner",
-                   help="one sequence per learner or per session (default: learner)")
-    g.add_argument("--session-gap", type=float, default=None,
-                   help="with --unit session: a gap longer than this (s) starts a new session")
+    g.add_argument("--unit", choices=["learner", "session"], default="session",
+                   help="one sequence per session (default) or per learner")
+    g.add_argument("--session-gap", type=parse_session_gap, default=1800.0, metavar="SECONDS",
+                   help="with --unit session: more inactivity than this starts a new "
+                        "sequence (default: 1800, i.e. 30 minutes; 'none' turns it off)")
 
 
 def events_from_args(args, path):
@@ -87,14 +116,16 @@ def events_from_args(args, path):
     return load_events(path, columns=columns, format=args.format, delimiter=args.delimiter,
                        encoding=args.encoding,
                        duplicates="keep" if args.keep_duplicates else "reject",
-                       max_bytes=args.max_bytes)
+                       max_bytes=args.max_bytes, time_unit=args.time_unit,
+                       timezone=args.timezone, decimal_comma=args.decimal_comma)
 
 
 def outcomes_from_args(args):
     cols = {"learner": args.outcome_learner_column, "pre": args.pre_column,
             "post": args.post_column, "max": args.max_column, "score": args.score_column,
             "label": args.label_column}
-    return load_outcomes(args.outcomes, columns=cols, max_score=args.max_score)
+    return load_outcomes(args.outcomes, columns=cols, max_score=args.max_score,
+                         decimal_comma=getattr(args, "decimal_comma", False))
 
 
 def grouping_from_args(args, outcomes):
@@ -120,16 +151,19 @@ def add_privacy_option(p):
 
 
 def pseudonymize_inputs(args, loaded, outcomes):
-    """Events and outcomes with learner identifiers replaced, when --pseudonymize is given.
+    """Events and outcomes with learner ids matched (--match-ids) and replaced by keyed
+    hashes when --pseudonymize is given.
 
     Done right after loading (as ``seqmine analyze`` does), so no output sees a raw id.
     """
+    from ...pipeline import reconcile_inputs
     key_path = getattr(args, "pseudonymize", None)
-    if not key_path:
-        return loaded, outcomes
-    from ...inputs.privacy import read_key
-    from ...pipeline import pseudonymize_inputs as replace
-    return replace(loaded, outcomes, read_key(key_path))
+    key = None
+    if key_path:
+        from ...inputs.privacy import read_key
+        key = read_key(key_path)
+    return reconcile_inputs(loaded, outcomes, match_ids=getattr(args, "match_ids", "exact"),
+                            key=key)
 
 
 def print_warnings(records):

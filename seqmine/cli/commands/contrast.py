@@ -61,9 +61,10 @@ def add_arguments(parser):
     parser.add_argument("--rate-unit", choices=("tokens", "actions", "count"), default=None,
                         help="rates per 100 tokens, per 100 actions or raw counts (default: "
                              "tokens with --seqdb, else count)")
-    parser.add_argument("--unit", choices=("sequence", "learner"), default="sequence",
+    parser.add_argument("--unit", choices=("auto", "sequence", "learner"), default="auto",
                         help="unit of analysis; 'learner' merges each learner's sessions "
-                             "first (needs --seqdb; default sequence)")
+                             "first (needs --seqdb); 'auto' (default) is 'learner' when the "
+                             "--seqdb has several sequences for some learner")
     parser.add_argument("--exclude-pauses", action="store_true",
                         help="transitions skip pause tokens")
 
@@ -75,13 +76,17 @@ def run(args):
     if args.transitions and db is None:
         raise ParameterError("--transitions needs --seqdb DIR (the sequence database folder).")
     redundancy = _redundancy(args.redundancy)
+    unit = args.unit
+    if unit == "auto":
+        from ...pipeline import contrast_unit
+        unit = contrast_unit("auto", db) if db is not None else "sequence"
     groups = [g.strip() for g in args.groups.split(",")] if args.groups else None
     table = contrast(ps, db, groups=groups, correction=args.correction, alpha=args.alpha,
                      n_permutations=args.permutations, seed=args.seed,
                      stability_resamples=args.stability_resamples, redundancy=redundancy,
                      redundancy_order=args.redundancy_order,
                      drop_redundant=args.drop_redundant, rate_unit=args.rate_unit,
-                     unit=args.unit)
+                     unit=unit)
     out = _writable(args.out, "--out")
     write_csv(table, out)
     messages = [f"wrote {len(table)} patterns to {out} "
@@ -93,7 +98,7 @@ def run(args):
                                  "table already holds the pairwise comparison.")
         pw = pairwise_contrast(ps, db, groups=groups,
                                correction="bh" if args.correction == "bh" else "holm",
-                               alpha=args.alpha, rate_unit=args.rate_unit, unit=args.unit)
+                               alpha=args.alpha, rate_unit=args.rate_unit, unit=unit)
         path = _writable(args.pairwise, "--pairwise")
         write_csv(pw, path)
         messages.append(f"wrote {len(pw)} pairwise rows to {path}")
