@@ -125,10 +125,8 @@ def _processed(stats):
 def worker_reference(spec):
     from prefixspan import PrefixSpan
 
-    from seqmine._util.progress import set_quiet
     from seqmine.mining import miner as mine_mod
 
-    set_quiet(True)
     tokens, lengths, groups = generate(spec["tokens"])
     db = make_db(tokens, lengths, groups, grouped=False)
     minsup = int(np.ceil(spec["support"] * db.n_sequences))
@@ -164,10 +162,8 @@ def worker_reference(spec):
 
 
 def worker_scaling(spec):
-    from seqmine._util.progress import set_quiet
     from seqmine.mining import miner as mine_mod
 
-    set_quiet(True)
     tokens, lengths, groups = generate(spec["tokens"])
     db = make_db(tokens, lengths, groups, grouped=True)
     del tokens

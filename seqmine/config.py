@@ -19,7 +19,30 @@ try:  # Python >= 3.11
 except ModuleNotFoundError:  # pragma: no cover - Python 3.10
     import tomli as tomllib
 
-__all__ = ["DEFAULT_CONFIG", "load_config", "merge_config", "default_config"]
+__all__ = ["DEFAULT_CONFIG", "load_config", "merge_config", "default_config", "EVENT_ROLES",
+           "CONTRAST_CORRECTIONS", "CLASSIFIERS", "DEFAULT_FRACTIONS"]
+
+# ---- option vocabularies: kept here (no heavy imports) so the command line can offer
+# them as choices without importing pandas, scipy or scikit-learn
+
+#: Event-log column roles and whether each is required.
+EVENT_ROLES = {"learner": True, "time": True, "action": True,
+               "session": False, "target": False, "channel": False}
+
+#: Multiple-comparison corrections of the contrast table.
+CONTRAST_CORRECTIONS = ("bh", "holm", "westfall-young")
+
+#: Early-prediction classifier name -> featurizers whose columns it uses (``()`` = majority).
+CLASSIFIERS = {
+    "pattern": ("pattern",),
+    "hmm": ("hmm",),
+    "frequency_pause": ("frequency_pause",),
+    "fusion": ("pattern", "hmm", "frequency_pause"),
+    "majority": (),
+}
+
+#: Observed fractions of each held-out sequence used by default in ``validate``.
+DEFAULT_FRACTIONS = (0.1, 0.2, 0.25, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0)
 
 #: Defaults of every option, by section. ``None`` means "not set / automatic".
 DEFAULT_CONFIG = {

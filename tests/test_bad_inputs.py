@@ -17,8 +17,8 @@ import time
 import numpy as np
 import pandas as pd
 import pytest
-from seqmine.cli.main import main
 
+from seqmine.cli.main import main
 from seqmine.encoding.sequences import SequenceDB
 from seqmine.inputs.load import load_events
 

@@ -7,9 +7,9 @@ import numpy as np
 import pandas as pd
 import pytest
 from prefixspan import PrefixSpan
-from seqmine.cli.main import main
 
 import seqmine.mining.miner as mine_module
+from seqmine.cli.main import main
 from seqmine.encoding.sequences import SequenceDB
 from seqmine.errors import DataFileError, ParameterError, PatternExplosionError
 from seqmine.mining.miner import (

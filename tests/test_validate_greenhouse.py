@@ -10,7 +10,6 @@ pytest.importorskip("seqmine.mining.miner")
 pytest.importorskip("seqmine.scoring.contrast")
 
 from seqmine.cli.main import main  # noqa: E402
-
 from seqmine.demo_data import generate_greenhouse, write_greenhouse  # noqa: E402
 from seqmine.encoding.encoder import Encoder  # noqa: E402
 from seqmine.inputs.load import parse_times  # noqa: E402
@@ -20,13 +19,6 @@ from seqmine.validation.crossval import default_featurizers, validate  # noqa: E
 FAST_HMM = dict(n_states=2, n_restarts=1, n_iter=20)
 
 
-@pytest.fixture(autouse=True)
-def _restore_quiet():
-    # the command line's --quiet switches progress output off process-wide
-    from seqmine._util.progress import is_quiet, set_quiet
-    before = is_quiet()
-    yield
-    set_quiet(before)
 
 
 def _greenhouse(n, seed):

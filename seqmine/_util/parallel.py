@@ -12,7 +12,7 @@ import contextlib
 import functools
 
 from ..errors import ParameterError
-from .progress import is_quiet, set_quiet
+from .progress import is_quiet, quiet_mode
 
 __all__ = ["parallel_map", "using_scheduler"]
 
@@ -100,12 +100,8 @@ def using_scheduler(scheduler, jobs=1):
 
 
 def _call_with_quiet(func, quiet, item):
-    before = is_quiet()
-    set_quiet(quiet)
-    try:
+    with quiet_mode(quiet):
         return func(item)
-    finally:
-        set_quiet(before)
 
 
 def _connect(scheduler, jobs, stack):

@@ -50,6 +50,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 
 from .._util.checks import check_number
+from .._util.isotime import parse_iso_datetime
 from ..encoding.sequences import PAUSE_PREFIX
 from ..errors import SeqmineInputError
 from ..inputs.clock import TIME_UNITS, resolve_timezone
@@ -158,7 +159,7 @@ def parse_event_time(value, per_second=1, zone=None):
             kind = "numeric"
         except ValueError:
             try:
-                dt = datetime.fromisoformat(s)
+                dt = parse_iso_datetime(s)
             except ValueError:
                 raise EventError(f"time {value!r} is neither ISO 8601 nor numeric seconds") from None
             if dt.tzinfo is None:

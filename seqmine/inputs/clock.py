@@ -30,13 +30,13 @@ offline and live.
 
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
 
 from .._util.checks import check_choice
+from .._util.isotime import iso_seconds
 from ..errors import DataFileError, ParameterError
 
 __all__ = [
@@ -72,7 +72,7 @@ _EPOCH_BANDS = (("s", 1e8, _T_MAX), ("ms", 1e11, _T_MAX * 1e3), ("us", 1e14, _T_
 _UNIT_WORDS = {"s": "seconds", "ms": "milliseconds", "us": "microseconds"}
 _EPOCH = pd.Timestamp("1970-01-01", tz="UTC")
 _FAST_ISO = r"\d{4}-\d{2}-\d{2}(?:[T ]\d{2}:\d{2}(?::\d{2}(?:\.\d{1,9})?)?)?Z?"
-_ZONE_SUFFIX = re.compile(r"(?:Z|[+-]\d{2}(?::?\d{2})?)$", re.IGNORECASE)
+_ZONED = r"\d{2}:\d{2}(?::\d{2}(?:[.,]\d+)?)?\s*(?:[Zz]|[+-]\d{2}(?::?\d{2})?)\s*$"
 _DECIMAL_COMMA = r"[+-]?\d+,\d+"
 
 
@@ -371,17 +371,22 @@ def _fast_iso(s, zone):
 
 
 def _general_iso(strings, zone):
-    """Seconds of ISO 8601 strings of any form; NaN where unreadable."""
+    """Seconds of ISO 8601 strings of any form; NaN where unreadable.
+
+    Zoned and naive strings are parsed apart (pandas before 3 gives naive strings the
+    offset of the zoned ones when both are in one call); strings pandas cannot hold
+    (before pandas 3: years outside 1677-2262) are read with the standard library, so
+    that they are reported as out of range, not garbled.
+    """
     out = np.full(len(strings), np.nan)
     amb = np.zeros(len(strings), bool)
     miss = np.zeros(len(strings), bool)
-    if zone is None:  # naive = UTC: one parse for all
-        aware = np.ones(len(strings), dtype=bool)
-    else:
-        aware = np.array(strings.str.contains(_ZONE_SUFFIX).fillna(False), dtype=bool)
-    if aware.any():
-        parsed = pd.to_datetime(strings[aware], format="ISO8601", utc=True, errors="coerce")
-        out[aware] = ((parsed - _EPOCH) / pd.Timedelta(seconds=1)).to_numpy(dtype=float)
+    zoned = np.array(strings.str.contains(_ZONED, na=False), dtype=bool)
+    for part in ((zoned, ~zoned) if zone is None else (zoned,)):
+        if part.any():
+            parsed = pd.to_datetime(strings[part], format="ISO8601", utc=True, errors="coerce")
+            out[part] = ((parsed - _EPOCH) / pd.Timedelta(seconds=1)).to_numpy(dtype=float)
+    aware = zoned if zone is not None else np.ones(len(strings), dtype=bool)
     naive = ~aware
     if naive.any():
         parsed = pd.to_datetime(strings[naive], format="ISO8601", errors="coerce")
@@ -393,6 +398,12 @@ def _general_iso(strings, zone):
             ns = parsed[ok].to_numpy().astype("datetime64[ns]").astype(np.int64)
             vals[ok], a[ok], m[ok] = local_to_utc_seconds(ns, zone)
         out[naive], amb[naive], miss[naive] = vals, a, m
+    looks_iso = np.array(strings.str.match(r"\s*[+-]?\d{4}-\d{2}-\d{2}", na=False), dtype=bool)
+    for i in np.flatnonzero(np.isnan(out) & looks_iso & aware):
+        try:
+            out[i] = iso_seconds(strings.iat[i])
+        except (ValueError, OverflowError):
+            pass
     return out, amb, miss
 
 

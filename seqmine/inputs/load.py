@@ -29,6 +29,7 @@ import numpy as np
 import pandas as pd
 
 from .._util.checks import check_choice, check_columns
+from ..config import EVENT_ROLES
 from ..errors import ColumnError, DataFileError, ParameterError, SeqmineWarning
 from . import readers
 from .clock import TIED_SHARE_WARNING, TIME_UNITS, diagnose_clock, read_times, resolve_timezone
@@ -44,10 +45,6 @@ __all__ = [
     "MANY_REJECTED_SHARE",
     "HEAVY_LEARNER_RATIO",
 ]
-
-#: Column roles of an event table and whether they are required.
-EVENT_ROLES = {"learner": True, "time": True, "action": True,
-               "session": False, "target": False, "channel": False}
 
 #: Reject reason codes written to ``rejects.csv``.
 REJECT_REASONS = {

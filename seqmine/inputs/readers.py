@@ -136,6 +136,11 @@ def _decode_message(path, data, encoding, exc):
 def read_delimited(path, fmt, delimiter, encoding):
     """A delimited text file as text cells, with wrong-width records set aside."""
     buf = _utf8_bytes(path, read_bytes(path), encoding)
+    if b"\x00" in buf:
+        # pandas' C parser (before pandas 3) ends a field at a NUL byte, which would
+        # silently shorten a value such as "open\x00chart"; as U+0001 the row keeps its
+        # length and is rejected as control_characters like any other control character
+        buf = buf.replace(b"\x00", b"\x01")
     if b"\n" not in buf and b"\r" in buf:  # old Mac line ends
         buf = buf.replace(b"\r", b"\n")
     first = _decoded(path, buf, lambda: buf.split(b"\n", 1)[0].decode("utf-8"))

@@ -15,7 +15,7 @@ import scipy.sparse as sp
 
 from .._util.checks import check_int
 from .._util.parallel import parallel_map
-from .._util.progress import is_quiet, set_quiet
+from .._util.progress import quiet_mode
 from ..encoding.sequences import SequenceDB
 from ..errors import ParameterError, PatternExplosionError
 from .miner import DEFAULT_MAX_PATTERNS, _superpattern_flags, mine
@@ -135,12 +135,8 @@ def _mine_partition(task):
                     learners=np.full(n_seq, "", dtype=object),
                     sessions=np.full(n_seq, "", dtype=object),
                     groups=groups, group_names=group_names)
-    quiet = is_quiet()
-    set_quiet(True)      # one bar per partition would interleave
-    try:
+    with quiet_mode():  # one bar per partition would interleave
         return mine(db, first_items=part, **kwargs)
-    finally:
-        set_quiet(quiet)
 
 
 def _serial_key(ps):

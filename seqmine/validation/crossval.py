@@ -25,6 +25,7 @@ from sklearn.pipeline import FeatureUnion, make_pipeline
 from sklearn.preprocessing import StandardScaler
 
 from .._util.checks import check_choice, check_fraction, check_int, check_number
+from ..config import CLASSIFIERS, DEFAULT_FRACTIONS
 from .._util.csvio import write_csv
 from .._util.jsonio import write_json
 from .._util.parallel import parallel_map
@@ -48,17 +49,6 @@ __all__ = [
     "DEFAULT_FRACTIONS",
 ]
 
-#: Observed fractions of each held-out sequence used by default.
-DEFAULT_FRACTIONS = (0.1, 0.2, 0.25, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0)
-
-#: Classifier name -> featurizers whose columns it uses (``()`` = majority class).
-CLASSIFIERS = {
-    "pattern": ("pattern",),
-    "hmm": ("hmm",),
-    "frequency_pause": ("frequency_pause",),
-    "fusion": ("pattern", "hmm", "frequency_pause"),
-    "majority": (),
-}
 
 
 def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTIONS,
