@@ -24,6 +24,7 @@ def outcomes_for(learners, seed=0, *, ties=False):
     n = len(learners)
     pre = rng.integers(2, 10, size=n)
     if ties:
+        pre = 2 * rng.integers(1, 5, size=n)  # 20 - pre even: half the room is a whole score
         # most learners gain exactly half the room: the median split puts them together
         post = pre + np.where(rng.random(n) < 0.7, (20 - pre) // 2, rng.integers(0, 11, n))
     else:
@@ -53,11 +54,13 @@ def one_second_course(n_learners=130, events_per_learner=735, weeks=7, seed=1):
         within = np.minimum(within, 1500)  # under 25 minutes inside a session
         session_of = np.searchsorted(cuts, np.arange(n), side="right")
         t = np.empty(n, dtype=np.int64)
+        free = 0  # sessions never overlap: each starts an hour or more after the last
         for s in range(n_sessions):
             idx = np.flatnonzero(session_of == s)
             if len(idx):
-                t[idx] = starts[s] + np.concatenate([[0], np.cumsum(within[idx][:-1])])
-        t = np.maximum.accumulate(t)  # sessions never overlap
+                t0 = max(int(starts[s]), free)
+                t[idx] = t0 + np.concatenate([[0], np.cumsum(within[idx][:-1])])
+                free = int(t[idx[-1]]) + 3600
         acts = rng.choice(ACTIONS, size=n)
         rows.append(pd.DataFrame({"learner": learner, "t": t, "action": acts}))
     ev = pd.concat(rows, ignore_index=True).sort_values(["t", "learner"], kind="mergesort")
@@ -71,7 +74,7 @@ def day_resolution_log(n_learners=120, events=13_000, seed=2):
     repeated clicks on the same day look like duplicates."""
     rng = np.random.default_rng(seed)
     learner = rng.integers(0, n_learners, size=events)
-    day = rng.integers(0, 60, size=events)
+    day = rng.integers(0, 25, size=events)
     action = rng.choice(ACTIONS[:5], size=events, p=[0.4, 0.3, 0.1, 0.1, 0.1])
     dates = (START.tz_localize(None).normalize() + pd.to_timedelta(day, unit="D"))
     ev = pd.DataFrame({"learner": [f"d{k:03d}" for k in learner],
@@ -137,7 +140,7 @@ def near_matching_ids(seed=7):
     """Events with ids 01..09 and 40.0..., outcomes with 1..9 and 40... ."""
     ev, _ = numeric_log("s", n_learners=20, seed=seed)
     codes = ev["learner"].str[1:].astype(int)
-    ev["learner"] = np.where(codes < 10, codes.map(lambda c: f"{c + 1:02d}"),
+    ev["learner"] = np.where(codes < 10, codes.map(lambda c: f"0{c + 1}"),
                              codes.map(lambda c: f"{c + 30}.0"))
     oc_ids = sorted({str(int(float(x))) for x in ev["learner"]}, key=int)
     return ev, outcomes_for(oc_ids, seed)

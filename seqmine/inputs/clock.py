@@ -8,7 +8,7 @@ the choice is always said out loud:
   4.1 x 10^9; all three bands end in 2100);
 * small whole numbers (relative times) whose typical gap within a learner is 600 or
   more are read as milliseconds (600 s, ten minutes between two actions, is rare in
-  interaction logs; 600 ms is common);
+  interaction logs; 600 ms is common); at least 20 gaps are needed to judge;
 * a column holding numbers of two of the epoch bands stops the load with example
   rows: it mixes units, and reading it either way would lose learners.
 
@@ -67,6 +67,8 @@ TIED_SHARE_WARNING = 0.05
 #: milliseconds when ``time_unit="auto"`` (our rule, see the module docstring).
 RELATIVE_MS_MEDIAN_GAP = 600
 
+#: Fewest gaps from which relative whole-number times may be judged to be milliseconds.
+_MIN_GAPS_FOR_UNIT = 20
 _T_MAX = 4_102_444_800.0  # 2100-01-01T00:00:00Z in seconds since 1970
 _EPOCH_BANDS = (("s", 1e8, _T_MAX), ("ms", 1e11, _T_MAX * 1e3), ("us", 1e14, _T_MAX * 1e6))
 _UNIT_WORDS = {"s": "seconds", "ms": "milliseconds", "us": "microseconds"}
@@ -206,7 +208,7 @@ def local_to_utc_seconds(local_ns, zone):
         utc_ns[pos] = vals[inv]
         ambiguous[pos] = kinds[inv] == 1
         missing[pos] = kinds[inv] == 2
-    return utc_ns / 1e9, ambiguous, missing
+    return _ns_to_seconds(utc_ns), ambiguous, missing
 
 
 def read_times(values, *, time_unit="auto", timezone=None, decimal_comma=False,
@@ -361,13 +363,23 @@ def _fast_iso(s, zone):
     except ValueError:
         return None
     ns = stamps.astype(np.int64)
-    secs = ns / 1e9
+    secs = _ns_to_seconds(ns)
     amb = np.zeros(len(s), bool)
     miss = np.zeros(len(s), bool)
     if zone is not None and not utc.all():
         local = ~utc
         secs[local], amb[local], miss[local] = local_to_utc_seconds(ns[local], zone)
     return secs, amb, miss
+
+
+def _ns_to_seconds(ns):
+    """Seconds from whole nanoseconds, rounded as Python's ``datetime.timestamp`` rounds
+    whole microseconds (nanoseconds since 1970 exceed what a float holds exactly)."""
+    us, rest = np.divmod(np.asarray(ns, dtype=np.int64), 1000)
+    out = us / 1e6
+    if rest.any():
+        out = out + rest / 1e9
+    return out
 
 
 def _general_iso(strings, zone):
@@ -430,8 +442,12 @@ def _numeric_unit(num, is_num, time_unit, learners, source, path, text):
     n_num = int(is_num.sum())
     relative = is_num & (vals < _EPOCH_BANDS[0][1])
     if time_unit != "auto":
-        major = bands[time_unit].sum() * 2 > n_num
-        return time_unit, "", (bands[time_unit] if major else None)
+        # numbers of another unit since 1970 are rejected, never read as 1970 or 2500
+        other = np.zeros(len(num), bool)
+        for u, m in bands.items():
+            if u != time_unit:
+                other |= m
+        return time_unit, "", (~other if bands[time_unit].any() else None)
     if not n_num:
         return "s", "", None
     counts = {u: int(m.sum()) for u, m in bands.items()}
@@ -475,4 +491,4 @@ def _median_gap(learners, values):
     same = codes[1:] == codes[:-1]
     d = (t[1:] - t[:-1])[same]
     d = d[d > 0]
-    return float(np.median(d)) if len(d) else None
+    return float(np.median(d)) if len(d) >= _MIN_GAPS_FOR_UNIT else None

@@ -62,14 +62,16 @@ def is_gzip(path):
 
 
 def uncompressed_size(path, size):
-    """Bytes after decompression (the gzip trailer's size, which wraps at 4 GiB, or a
-    tenfold guess when the trailer is smaller than the file); ``size`` for plain files."""
+    """Bytes after decompression (the gzip trailer's size, or a tenfold guess when the
+    trailer cannot be right); ``size`` for plain files."""
     if not is_gzip(path):
         return size
     with open(path, "rb") as fh:
         fh.seek(-4, 2)
         trailer = int.from_bytes(fh.read(4), "little")
-    return trailer if trailer >= size else 10 * size
+    # a trailer below the file size has wrapped at 4 GiB; one beyond any real
+    # compression ratio belongs to a damaged file (reading it will say so)
+    return trailer if size <= trailer <= 1000 * size else 10 * size
 
 
 def read_bytes(path):
