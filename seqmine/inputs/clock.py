@@ -305,17 +305,15 @@ def read_times(values, *, time_unit="auto", timezone=None, decimal_comma=False,
                       unit=unit, unit_assumed=assumed, timezone=timezone)
 
 
-def diagnose_clock(learners, seconds, *, codes=None):
+def diagnose_clock(learners, seconds):
     """What the clock of a log can tell: resolution and tied consecutive events.
 
     Parameters
     ----------
     learners : array-like
-        Learner of each event.
+        Learner of each event; a learner's events are consecutive.
     seconds : array-like of float
         Times; events of a learner in time order (ties in file order).
-    codes : ndarray of int, optional
-        Integer learner codes (saves factorising ``learners`` again).
 
     Returns
     -------
@@ -331,10 +329,8 @@ def diagnose_clock(learners, seconds, *, codes=None):
     ('minute', 1, 5)
     """
     t = to_microseconds(np.asarray(seconds, dtype=float))
-    if codes is None:
-        codes = pd.factorize(pd.Series(np.asarray(learners, dtype=object)))[0]
-    codes = np.asarray(codes)
-    same = codes[1:] == codes[:-1] if len(codes) > 1 else np.zeros(0, bool)
+    who = np.asarray(learners, dtype=object)
+    same = (who[1:] == who[:-1]).astype(bool) if len(who) > 1 else np.zeros(0, bool)
     diffs = (t[1:] - t[:-1])[same]
     pairs = int(len(diffs))
     tied = int((diffs == 0).sum())

@@ -355,8 +355,10 @@ def _validate(raw, cols, path, duplicates, max_action_length, times):
     source_row = np.arange(1, n + 1, dtype=np.int64)
     unreadable = np.zeros(n, dtype=bool)
     unreadable[np.array(sorted(bad_rows), dtype=np.int64) - 1] = True
-    tc = read_times(col("time").where(~pd.Series(unreadable), "0"), learners=learner,
-                    source=cols["time"], path=str(path), **times)
+    tcol = col("time")
+    if unreadable.any():  # their (empty) cells must not count as missing times
+        tcol = tcol.where(~pd.Series(unreadable), "0")
+    tc = read_times(tcol, learners=learner, source=cols["time"], path=str(path), **times)
     seconds, reason, detail = tc.seconds, tc.reason, tc.detail
     # one reason per row: unreadable records first, then the time problems found by
     # read_times, then the learner/action checks below in their listed order

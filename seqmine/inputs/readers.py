@@ -143,8 +143,14 @@ def read_delimited(path, fmt, delimiter, encoding):
         # silently shorten a value such as "open\x00chart"; as U+0001 the row keeps its
         # length and is rejected as control_characters like any other control character
         buf = buf.replace(b"\x00", b"\x01")
+    lineterminator = None
     if b"\n" not in buf and b"\r" in buf:  # old Mac line ends
         buf = buf.replace(b"\r", b"\n")
+    elif b"\r" in buf and buf.count(b"\r") > buf.count(b"\r\n"):
+        # a carriage return inside a field of a line-feed file is a character of that
+        # field (rejected as a control character), not the end of a record
+        buf = buf.replace(b"\r\n", b"\n")
+        lineterminator = "\n"
     first = _decoded(path, buf, lambda: buf.split(b"\n", 1)[0].decode("utf-8"))
     if not first.strip():
         raise DataFileError(f"{path}: the first line (header) is empty; the file needs a header row.")
@@ -176,7 +182,7 @@ def read_delimited(path, fmt, delimiter, encoding):
     try:
         df = _decoded(path, buf, pd.read_csv, source, sep=sep, dtype=str,
                       keep_default_na=False, na_values=[], encoding="utf-8",
-                      skip_blank_lines=True, engine="c")
+                      skip_blank_lines=True, engine="c", lineterminator=lineterminator)
     except pd.errors.EmptyDataError:
         raise DataFileError(f"{path}: no columns found; is the file empty?") from None
     except pd.errors.ParserError:
