@@ -171,7 +171,7 @@ def worker_scaling(spec):
     floor_w = min(floor_w, _timed(lambda: np.bincount(db.tokens, minlength=len(db.vocab)))[1])
     kw = dict(spec["options"])
     ps, w, c = _timed(lambda: mine_mod.mine(db, max_length=4, max_patterns=10 ** 7, **kw))
-    from seqmine.mining._search import LAST_STATS as stats
+    stats = ps.search_stats
     processed = _processed(stats)
     return {
         "tokens": int(db.n_tokens), "sequences": int(db.n_sequences),

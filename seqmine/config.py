@@ -12,6 +12,7 @@ import copy
 import difflib
 from pathlib import Path
 
+from ._util.checks import check_jobs
 from .errors import DataFileError, ParameterError
 
 try:  # Python >= 3.11
@@ -128,9 +129,11 @@ def merge_config(base, overrides, source="configuration"):
                 out[key][sub] = _check_type(source, f"{key}.{sub}", DEFAULT_CONFIG[key].get(sub), v)
         else:
             value = _check_type(source, key, DEFAULT_CONFIG.get(key), value)
-            if key == "jobs" and not (value >= 1 or value == -1):
-                raise ParameterError(f"{source}: option 'jobs' must be a positive whole number "
-                                     f"or -1 (all cores); got {value!r}.")
+            if key == "jobs":
+                try:
+                    check_jobs(value, key)
+                except ParameterError as exc:
+                    raise ParameterError(f"{source}: {exc}") from None
             out[key] = value
     return out
 

@@ -29,6 +29,7 @@ import numpy as np
 import pandas as pd
 
 from .._util.checks import check_choice, check_columns
+from .._util.text import CONTROL_CHARACTERS
 from ..config import EVENT_ROLES
 from ..errors import ColumnError, DataFileError, ParameterError, SeqmineWarning
 from . import readers
@@ -81,7 +82,6 @@ DEFAULT_MAX_BYTES = 20_000_000_000
 MEMORY_PER_INPUT_BYTE = 40
 _DEFAULT_LIMITS = (DEFAULT_MAX_BYTES, 20_000_000_000)  # the API's and the command line's
 
-_CONTROL = r"[\x00-\x08\x0b-\x1f\x7f]"
 _FORMATS = readers.FORMATS
 #: Clock resolutions too coarse to order a learner's actions within a session.
 _COARSE = ("minute", "hour", "day")
@@ -369,8 +369,9 @@ def _validate(raw, cols, path, duplicates, max_action_length, times):
     checks = [
         ("missing_learner", (lser == "").to_numpy()),
         ("missing_action", (aser == "").to_numpy()),
-        ("control_characters", (lser.str.contains(_CONTROL, regex=True)
-                                | aser.str.contains(_CONTROL, regex=True)).to_numpy(dtype=bool)),
+        ("control_characters", (lser.str.contains(CONTROL_CHARACTERS, regex=True)
+                                | aser.str.contains(CONTROL_CHARACTERS, regex=True)
+                                ).to_numpy(dtype=bool)),
         ("action_too_long", (aser.str.len() > max_action_length).to_numpy(dtype=bool)),
     ]
     for code, mask in checks:

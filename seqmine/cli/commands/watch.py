@@ -146,7 +146,7 @@ def _write(out, firings, watcher, times, hints_only):
 def _pseudonymizer(key_path):
     """learner -> pseudonym (as in the offline analysis); other values pass unchanged,
     so the watcher rejects them exactly as it would without the option."""
-    from ...detection.watcher import _CONTROL
+    from ..._util.text import has_control_characters
     from ...inputs.privacy import pseudonymize, read_key
 
     key = read_key(key_path)
@@ -156,7 +156,7 @@ def _pseudonymizer(key_path):
         if type(value) is not str:
             return value
         s = value.strip()
-        if not s or _CONTROL.search(s):
+        if not s or has_control_characters(s):
             return value
         p = cache.get(s)
         if p is None:
