@@ -420,11 +420,11 @@ def test_damaged_gzip_and_zip_say_so(tmp_path):
 # ===================================================================== malformed rows
 def test_a_row_with_too_many_fields_is_rejected_and_the_rest_loads(tmp_path):
     p = tmp_path / "events.csv"
-    p.write_text('learner,time,action\na,1,x\nb,2,"note: two\nlines"\na,3,y,extra\nb,4,z\n',
-                 encoding="utf-8")
+    p.write_text('learner,time,action,target\na,1,x,\nb,2,y,"pot 1\n(left)"\na,3,y,pot,extra\n'
+                 'b,4,z,\n', encoding="utf-8")
     res, _ = _load(p)
     # physical line 5 (the quoted line break makes record 3 start on line 5)
-    assert res.rejects.values.tolist() == [[3, "bad_fields", "line 5: 4 field(s), expected 3"]]
+    assert res.rejects.values.tolist() == [[3, "bad_fields", "line 5: 5 field(s), expected 4"]]
     assert res.events["source_row"].tolist() == [1, 2, 4]
 
 
