@@ -152,20 +152,18 @@ def _warn_about_matching(load_result, outcomes, grouping, report, names):
     """``learners_without_events``, ``learners_without_outcome`` and ``lopsided_groups``."""
     ev_path = str(getattr(load_result, "path", "") or "the events")
     oc_path = str(outcomes.attrs.get("path") or "the outcomes")
-    missing = report["outcomes_without_events"]
-    if missing:
-        warnings.warn(SeqmineWarning(
-            f"{len(missing):,} learner(s) in {oc_path} have no usable events in {ev_path} "
-            f"(e.g. {', '.join(repr(str(x)) for x in missing[:3])}); they take no part in "
-            f"the analysis. Check the ids and rejects.csv.",
-            code="learners_without_events", count=len(missing)), stacklevel=3)
-    orphans = report["events_without_outcome"]
-    if orphans:
-        warnings.warn(SeqmineWarning(
-            f"{len(orphans):,} learner(s) with events in {ev_path} have no row in {oc_path} "
-            f"(e.g. {', '.join(repr(str(x)) for x in orphans[:3])}); their events are "
-            f"encoded but belong to no group.",
-            code="learners_without_outcome", count=len(orphans)), stacklevel=3)
+    for ids, code, text in (
+            (report["outcomes_without_events"], "learners_without_events",
+             "learner(s) in {oc} have no usable events in {ev} (e.g. {ex}); they take no "
+             "part in the analysis. Check the ids and rejects.csv."),
+            (report["events_without_outcome"], "learners_without_outcome",
+             "learner(s) with events in {ev} have no row in {oc} (e.g. {ex}); their events "
+             "are encoded but belong to no group.")):
+        if ids:
+            ex = ", ".join(repr(str(x)) for x in ids[:3])
+            warnings.warn(SeqmineWarning(
+                f"{len(ids):,} " + text.format(oc=oc_path, ev=ev_path, ex=ex),
+                code=code, count=len(ids)), stacklevel=3)
     per = report["learners_per_group"]
     if grouping.rule in ("median", "fraction") and len(names) == 2:
         sizes = [per.get(n, 0) for n in names]
