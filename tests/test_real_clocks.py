@@ -634,3 +634,27 @@ def test_watcher_follows_the_session_rule_of_the_detectors_file(short_course):
     for learner, row in offline.iterrows():
         for d in offline.columns:
             assert live.get(learner, {}).get(d, 0) == row[d], (learner, d)
+
+
+def test_session_gap_none_turns_the_rule_off(tmp_path, capsys):
+    from seqmine.config import load_config
+    ev, oc = logs.one_second_course(n_learners=6, events_per_learner=60, weeks=1, seed=12)
+    ev_path, oc_path = logs.write(tmp_path, ev, oc)
+    counts = {}
+    for gap in ("1800", "none"):
+        out = tmp_path / f"o{gap}"
+        rc, _, err = _cli(capsys, "encode", ev_path, "--outcomes", oc_path, "--out", out,
+                          "--session-gap", gap, "-q")
+        assert rc == 0, err
+        s = json.loads((out / "summary.json").read_text(encoding="utf-8"))
+        counts[gap] = s["sequences"]
+        assert s["encoding"]["session_gap"] == (None if gap == "none" else 1800.0)
+        assert isinstance(s["warnings"], list)
+    assert counts["none"] == 6 < counts["1800"]
+    rc, _, err = _cli(capsys, "encode", ev_path, "--outcomes", oc_path, "--out", tmp_path / "x",
+                      "--session-gap", "soon")
+    assert rc == 2 and ("argument --session-gap: takes a positive number of seconds (e.g. "
+                        "1800) or 'none'; got 'soon'") in err
+    toml = tmp_path / "c.toml"
+    toml.write_text('[encode]\nsession_gap = "none"\n', encoding="utf-8")
+    assert load_config(toml)["encode"]["session_gap"] is None

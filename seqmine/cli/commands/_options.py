@@ -25,16 +25,16 @@ def parse_float_list(text, option):
 
 def parse_session_gap(text):
     """``"1800"`` -> 1800.0; ``"none"`` / ``"off"`` -> None (no inactivity rule)."""
+    import argparse
     if str(text).strip().lower() in ("none", "off"):
         return None
     try:
         value = float(text)
     except ValueError:
-        raise ParameterError(
-            f"--session-gap takes seconds (e.g. 1800) or 'none'; got {text!r}.") from None
-    if not value > 0 or value != value or value == float("inf"):
-        raise ParameterError(f"--session-gap must be a positive number of seconds or 'none'; "
-                             f"got {text!r}.")
+        value = float("nan")
+    if not 0 < value < float("inf"):
+        raise argparse.ArgumentTypeError(
+            f"takes a positive number of seconds (e.g. 1800) or 'none'; got {text!r}")
     return value
 
 
