@@ -658,3 +658,32 @@ def test_session_gap_none_turns_the_rule_off(tmp_path, capsys):
     toml = tmp_path / "c.toml"
     toml.write_text('[encode]\nsession_gap = "none"\n', encoding="utf-8")
     assert load_config(toml)["encode"]["session_gap"] is None
+
+
+@pytest.mark.slow
+def test_planted_behaviours_recovered_with_sessions_learner_level():
+    # the generator's ground truth (the direction each behaviour was planted with, not a
+    # check value of ours): with a second session a week later for 30 % of learners, the
+    # default encoding makes two sequences of them, and the learner-level tests still
+    # find every planted behaviour in its direction, without treating sessions as
+    # independent units (warnings are errors in this suite)
+    from seqmine.mining.miner import match
+    from seqmine.pipeline import contrast_unit
+    from seqmine.scoring.contrast import contrast
+    demo = generate_greenhouse(300, seed=20261202, sessions=True)
+    ev = demo.events.assign(time=(demo.events["time"] - logs.EPOCH).dt.total_seconds())
+    oc = demo.outcomes.assign(gain=(demo.outcomes["post"] - demo.outcomes["pre"])
+                              / (demo.outcomes["max"] - demo.outcomes["pre"]))
+    from seqmine.inputs.outcomes import Grouping
+    groups = Grouping().fit(oc).transform(oc)
+    db = Encoder().fit(ev).transform(ev, groups=groups.dropna(), group_names=["strong", "weak"])
+    assert db.n_sequences > ev["learner"].nunique()
+    behaviours = demo.ground_truth["behaviours"]
+    ps = match(db, [b["key_pattern"] for b in behaviours], max_gap=0)
+    unit = contrast_unit("auto", db)
+    assert unit == "learner"
+    table = contrast(ps, db, unit=unit, stability_resamples=0).set_index("pattern")
+    for b in behaviours:
+        row = table.loc[" > ".join(b["key_pattern"])]
+        expected = "" if b["direction"] == "neutral" else b["direction"]
+        assert row["favours"] == expected, (b["name"], row.to_dict())
