@@ -28,6 +28,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+import pandas as pd
 
 from .sequences import PAUSE_PREFIX
 
@@ -86,7 +87,7 @@ def learner_weighted_edges(gaps, learners, n_bins):
     gaps = np.asarray(gaps, dtype=np.int64)
     if len(gaps) == 0 or n_bins < 2:
         return np.zeros(0, dtype=np.int64)
-    codes = np.unique(np.asarray(learners), return_inverse=True)[1].ravel()
+    codes = pd.factorize(np.asarray(learners, dtype=object))[0]  # hashing: no object sort
     per = np.bincount(codes)
     weight = 1.0 / per[codes]
     values, inverse = np.unique(gaps, return_inverse=True)
