@@ -143,7 +143,7 @@ def test_day_resolution_times_warn_and_turn_pauses_off(tmp_path):
     assert str(seen["duplicates_at_coarse_resolution"]) == (
         f"{ev_path}: {dup:,} row(s) were rejected as duplicates, but the clock only records "
         f"whole days, so separate actions in the same day look identical; if they are "
-        f"separate actions, pass --keep-duplicates.")
+        f"separate actions, pass --duplicates keep.")
     assert seen["duplicates_at_coarse_resolution"].count == dup
     assert "many_rejected" in seen
     # within a 30-minute session every gap is 0 s: no pause token can mean anything
@@ -152,7 +152,7 @@ def test_day_resolution_times_warn_and_turn_pauses_off(tmp_path):
         "The gaps within sequences take 1 distinct value(s) (0 s), too few for 3 pause "
         "bins on this clock; no pause tokens are written.")
     assert not db.is_pause.any() and len(enc.edges_) == 0
-    # --keep-duplicates keeps them all
+    # --duplicates keep keeps them all
     kept, _ = _load(ev_path, duplicates="keep")
     assert kept.n_rejected == 0
 
@@ -653,8 +653,8 @@ def test_session_gap_none_turns_the_rule_off(tmp_path, capsys):
     assert counts["none"] == 6 < counts["1800"]
     rc, _, err = _cli(capsys, "encode", ev_path, "--outcomes", oc_path, "--out", tmp_path / "x",
                       "--session-gap", "soon")
-    assert rc == 2 and ("argument --session-gap: takes a positive number of seconds (e.g. "
-                        "1800) or 'none'; got 'soon'") in err
+    assert rc == 2 and ("--session-gap: expected a positive number of seconds (e.g. 1800) "
+                        "or 'none'; got 'soon'") in err
     toml = tmp_path / "c.toml"
     toml.write_text('[encode]\nsession_gap = "none"\n', encoding="utf-8")
     assert load_config(toml)["encode"]["session_gap"] is None

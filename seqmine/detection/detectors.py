@@ -43,6 +43,7 @@ import numpy as np
 import pandas as pd
 
 from .._util.checks import check_int, check_number
+from ..config import DEFAULT_CONFIG
 from ..encoding.pauses import pause_ranges
 from ..encoding.sequences import PAUSE_PREFIX
 from ..errors import ColumnError, DataFileError, ParameterError, SeqmineWarning
@@ -83,9 +84,13 @@ _MATCHING_KEYS = {"max_gap", "max_window", "skip_pauses"}
 
 
 # ====================================================================== selection
-def select_detectors(contrast_table, *, max_q=0.05, min_effect=0.2, effect="cohens_h",
-                     min_stability=0.5, lengths=None, groups=None, max_detectors=50,
-                     drop_redundant=True):
+_DEFAULTS = DEFAULT_CONFIG["detectors"]
+
+
+def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
+                     min_effect=_DEFAULTS["min_effect"], effect=_DEFAULTS["effect"],
+                     min_stability=_DEFAULTS["min_stability"], lengths=None, groups=None,
+                     max_detectors=_DEFAULTS["max_detectors"], drop_redundant=True):
     """Choose the contrast-table rows worth exporting as detectors.
 
     A row is kept when it favours a group, its ``q_value <= max_q``, the absolute
@@ -116,6 +121,7 @@ def select_detectors(contrast_table, *, max_q=0.05, min_effect=0.2, effect="cohe
     groups : str or list of str, optional
         Only patterns favouring these groups.
     max_detectors : int >= 1, optional
+        At most this many rows (default 20); None = no limit.
     drop_redundant : bool
 
     Returns
@@ -329,10 +335,12 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
     return doc
 
 
-def export_detectors(contrast_table, db, constraints=None, *, max_q=0.05, min_effect=0.2,
-                     effect="cohens_h", min_stability=0.5, lengths=None, groups=None,
-                     max_detectors=50, drop_redundant=True, strong=None, weak=None,
-                     absence_after_events=None, absence_after_seconds=None):
+def export_detectors(contrast_table, db, constraints=None, *, max_q=_DEFAULTS["max_q"],
+                     min_effect=_DEFAULTS["min_effect"], effect=_DEFAULTS["effect"],
+                     min_stability=_DEFAULTS["min_stability"], lengths=None, groups=None,
+                     max_detectors=_DEFAULTS["max_detectors"], drop_redundant=True,
+                     strong=None, weak=None, absence_after_events=None,
+                     absence_after_seconds=None):
     """Select rows of a contrast table and build the detectors document in one step.
 
     Parameters

@@ -30,7 +30,7 @@ import pandas as pd
 
 from .._util.checks import check_choice, check_columns
 from .._util.text import CONTROL_CHARACTERS
-from ..config import EVENT_ROLES
+from ..config import DEFAULT_CONFIG, EVENT_ROLES
 from ..errors import ColumnError, DataFileError, ParameterError, SeqmineWarning
 from . import readers
 from .clock import TIED_SHARE_WARNING, TIME_UNITS, diagnose_clock, read_times, resolve_timezone
@@ -74,7 +74,7 @@ MANY_REJECTED_SHARE = 0.10
 HEAVY_LEARNER_RATIO = 20
 
 #: Largest input file read without ``max_bytes`` raised (bytes).
-DEFAULT_MAX_BYTES = 20_000_000_000
+DEFAULT_MAX_BYTES = DEFAULT_CONFIG["events"]["max_bytes"]
 
 #: Working memory per byte of input while loading and encoding (measured 25-40x on
 #: CSV logs; see docs/reliability.md). With the default ``max_bytes``, a file that
@@ -155,10 +155,15 @@ class LoadResult:
         }
 
 
-def load_events(path, *, columns=None, format=None, delimiter=None, encoding="utf-8",
-                duplicates="reject", max_action_length=MAX_ACTION_LENGTH,
-                max_bytes=DEFAULT_MAX_BYTES, time_unit="auto", timezone=None,
-                decimal_comma=False):
+def load_events(path, *, columns=None, format=DEFAULT_CONFIG["events"]["format"],
+                delimiter=DEFAULT_CONFIG["events"]["delimiter"],
+                encoding=DEFAULT_CONFIG["events"]["encoding"],
+                duplicates=DEFAULT_CONFIG["events"]["duplicates"],
+                max_action_length=MAX_ACTION_LENGTH,
+                max_bytes=DEFAULT_MAX_BYTES,
+                time_unit=DEFAULT_CONFIG["events"]["time_unit"],
+                timezone=DEFAULT_CONFIG["events"]["timezone"],
+                decimal_comma=DEFAULT_CONFIG["events"]["decimal_comma"]):
     """Read an event log, validate every row and return kept and rejected rows.
 
     Parameters
@@ -467,7 +472,7 @@ def _warn_about_load(path, cols, tc, clock, events, rejects, n, n_dup):
         warn("duplicates_at_coarse_resolution",
              f"{path}: {n_dup:,} row(s) were rejected as duplicates, but the clock only "
              f"records whole {res}s, so separate actions in the same {res} look identical; "
-             f"if they are separate actions, pass --keep-duplicates.", n_dup)
+             f"if they are separate actions, pass --duplicates keep.", n_dup)
     if n >= _MIN_ROWS_FOR_SHARE and len(rejects) > MANY_REJECTED_SHARE * n:
         top = rejects["reason"].value_counts()
         warn("many_rejected",

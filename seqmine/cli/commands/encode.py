@@ -27,7 +27,7 @@ def add_arguments(p):
 
 def run(args):
     from ..._util.warnlog import collect_warnings
-    from ...pipeline import prepare_sequences
+    from ...pipeline import prepare_sequences, warnings_frame
     out = Path(args.out)
     with collect_warnings() as log:
         loaded, outcomes = _options.pseudonymize_inputs(
@@ -46,5 +46,5 @@ def run(args):
         s = prepared.summary
         print(f"encoded {s['sequences']} sequences ({s['tokens']} tokens) from "
               f"{s['rows_kept']} of {s['rows_in']} rows; {s['rows_rejected']} rejected -> {out}")
-    _options.print_warnings(log)
+    _options.print_warnings(warnings_frame(log))
     return 0
