@@ -16,6 +16,7 @@ from ._util.csvio import write_csv
 from ._util.jsonio import write_json
 from ._util.progress import quiet_mode, stage_line
 from ._util.warnlog import WarningLog, collect_warnings
+from .config import DEFAULT_CONFIG
 from .errors import DataFileError, ParameterError, SeqmineWarning
 from .inputs.outcomes import Grouping, match_learners, reconcile_learner_ids
 
@@ -128,7 +129,8 @@ def prepare_sequences(load_result, outcomes, *, encoder, grouping=None, grouping
                     grouping=grouping)
 
 
-def reconcile_inputs(loaded, outcomes, *, match_ids="exact", key=None):
+def reconcile_inputs(loaded, outcomes, *, match_ids=DEFAULT_CONFIG["outcomes"]["match_ids"],
+                     key=None):
     """Match learner ids between the files (:func:`reconcile_learner_ids`), then replace
     them by keyed hashes when ``key`` is given (:func:`pseudonymize_inputs`)."""
     loaded.events, outcomes = reconcile_learner_ids(

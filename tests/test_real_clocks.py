@@ -169,7 +169,7 @@ def test_day_resolution_without_sessions_keeps_meaningful_day_bins(tmp_path):
 
 # ===================================================================== heavy learner
 def test_one_heavy_learner_moves_no_pause_edge_by_more_than_ten_percent(tmp_path):
-    demo = generate_greenhouse(300, seed=20261202)
+    demo = generate_greenhouse(300, random_state=20261202)
     ev = demo.events.assign(time=demo.events["time"].dt.strftime("%Y-%m-%dT%H:%M:%SZ"))
     heavy = pd.concat([ev, logs.heavy_learner_events()], ignore_index=True)
     base, _ = _load(logs.write(tmp_path / "a", ev, demo.outcomes)[0])
@@ -670,7 +670,7 @@ def test_planted_behaviours_recovered_with_sessions_learner_level():
     from seqmine.mining.miner import match
     from seqmine.pipeline import contrast_unit
     from seqmine.scoring.contrast import contrast
-    demo = generate_greenhouse(300, seed=20261202, sessions=True)
+    demo = generate_greenhouse(300, random_state=20261202, sessions=True)
     ev = demo.events.assign(time=(demo.events["time"] - logs.EPOCH).dt.total_seconds())
     oc = demo.outcomes.assign(gain=(demo.outcomes["post"] - demo.outcomes["pre"])
                               / (demo.outcomes["max"] - demo.outcomes["pre"]))
@@ -682,7 +682,7 @@ def test_planted_behaviours_recovered_with_sessions_learner_level():
     ps = match(db, [b["key_pattern"] for b in behaviours], max_gap=0)
     unit = contrast_unit("auto", db)
     assert unit == "learner"
-    table = contrast(ps, db, unit=unit, stability_resamples=0).set_index("pattern")
+    table = contrast(ps, db, unit=unit, n_bootstrap=0).set_index("pattern")
     for b in behaviours:
         row = table.loc[" > ".join(b["key_pattern"])]
         expected = "" if b["direction"] == "neutral" else b["direction"]

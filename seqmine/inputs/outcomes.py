@@ -80,7 +80,7 @@ def normalized_gain(pre, post, maximum):
 
 
 def load_outcomes(path, *, columns=None, kind="auto", max_score=None, delimiter=None,
-                  decimal_comma=False):
+                  decimal_comma=DEFAULT_CONFIG["events"]["decimal_comma"]):
     """Read and check an outcomes table.
 
     Parameters
@@ -390,11 +390,11 @@ def canonical_learner_ids(values):
     return pd.Series(out, dtype=object).to_numpy(dtype=object)
 
 
-def reconcile_learner_ids(events, outcomes, rule="exact", *, events_source="events",
-                          outcomes_source="outcomes"):
-    """Events and outcomes with learner ids matched by ``rule``; near matches stop.
+def reconcile_learner_ids(events, outcomes, match_ids=DEFAULT_CONFIG["outcomes"]["match_ids"], *,
+                          events_source="events", outcomes_source="outcomes"):
+    """Events and outcomes with learner ids matched by ``match_ids``; near matches stop.
 
-    With ``rule="numeric"`` both tables' ids become :func:`canonical_learner_ids`.
+    With ``match_ids="numeric"`` both tables' ids become :func:`canonical_learner_ids`.
     Then, among the ids found in only one of the tables, any pair that differs only in
     how the id is written (leading zeros, a decimal ``.0``, letter case, surrounding
     white space) stops the run: reading them as different learners would silently
@@ -416,8 +416,8 @@ def reconcile_learner_ids(events, outcomes, rule="exact", *, events_source="even
     >>> reconcile_learner_ids(ev, oc, "numeric")[0]["learner"].tolist()
     ['1', '2']
     """
-    check_choice(rule, "match_ids", MATCH_ID_RULES, "reconcile_learner_ids")
-    if rule == "numeric":
+    check_choice(match_ids, "match_ids", MATCH_ID_RULES, "reconcile_learner_ids")
+    if match_ids == "numeric":
         events = events.assign(learner=canonical_learner_ids(events["learner"]))
         kind = outcomes.attrs.get("outcome_kind")
         attrs = dict(outcomes.attrs)
@@ -447,7 +447,7 @@ def reconcile_learner_ids(events, outcomes, rule="exact", *, events_source="even
     numeric = all(canonical_learner_ids([e])[0] == canonical_learner_ids([o])[0]
                   for e, o in pairs)
     fix = ("make the ids identical in both files, or pass --match-ids numeric to read 1, "
-           "01 and 1.0 as the same learner" if numeric and rule == "exact" else
+           "01 and 1.0 as the same learner" if numeric and match_ids == "exact" else
            "make the ids identical in both files (same case and spelling)")
     raise DataFileError(
         f"{events_source} and {outcomes_source}: {len(pairs)} learner id(s) almost match "
