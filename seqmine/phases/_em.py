@@ -124,7 +124,7 @@ def split_start(startprob, transmat, emissionprob, state, rng):
 
 
 def baum_welch(lanes, startprob, transmat, emissionprob, *, max_iter=500, tol=0.01,
-               accelerate=True, patience=2):
+               accelerate=True, patience=2, race=None):
     """Fit several models on the same data by (accelerated) EM, side by side.
 
     Parameters
@@ -142,6 +142,10 @@ def baum_welch(lanes, startprob, transmat, emissionprob, *, max_iter=500, tol=0.
     accelerate : bool
         SQUAREM extrapolation (the default) or plain EM.
     patience : int
+    race : float, optional
+        When several models run side by side to pick one, stop a model as soon as its
+        log-likelihood trails the best by more than this share of the best's absolute
+        value (it is left unconverged; the caller keeps the best).
 
     Returns
     -------
@@ -213,6 +217,9 @@ def baum_welch(lanes, startprob, transmat, emissionprob, *, max_iter=500, tol=0.
         for a, b4, b2 in zip(theta, th4, th2):
             a[idx] = np.where(ok.reshape((-1,) + (1,) * (b4.ndim - 1)), b4, b2)
         out = n_iter[idx] >= max_iter
+        if race is not None:
+            lead = loglik.max()
+            out |= loglik[idx] < lead - race * abs(lead)
         for r, a in zip(result, theta):
             r[idx[out]] = a[idx[out]]
         active = idx[~out]
