@@ -62,11 +62,18 @@ def test_cli_user_errors(tmp_path, capsys):
 
 
 def test_cli_hints_at_top_of_range(tmp_path, capsys):
-    _write_db(tmp_path / "db")
+    seqs = ([["set_light", "advance_week", "measure_height", "pause:long"]] * 12
+            + [["paint_pot", "paint_pot", "reset", "set_light", "set_water"]] * 12)
+    SequenceDB.from_lists(seqs, groups=["strong"] * 12 + ["weak"] * 12,
+                          pause_tokens=["pause:long"]).save(tmp_path / "db")
     rc = main(["phases", str(tmp_path / "db"), "--out", str(tmp_path / "out"), "--states", "1-2",
                "--restarts", "1", "--splits", "0", "--permutations", "0"])
     assert rc == 0
     summary = json.loads((tmp_path / "out" / "phases" / "phases.json").read_text())
     err = capsys.readouterr().err
-    assert summary["n_states_at_top_of_range"] == (summary["n_states"] == 2)
-    assert ("consider a wider --states range" in err) == (summary["n_states"] == 2)
+    assert summary["n_states"] == 2 and summary["n_states_at_top_of_range"]
+    # said once, as a warning that names the option to widen
+    assert err.count("largest tried") == 1
+    assert "seqmine: warning: The chosen number of phases (2) is the largest tried" in err
+    assert "--states 1-4" in err
+    assert [w["code"] for w in summary["warnings"]] == ["phase_states_at_top_of_range"]

@@ -400,3 +400,29 @@ def test_plot_phase_model_draws_states_and_edges(tmp_path):
     fig.savefig(tmp_path / "g.png")
     assert (tmp_path / "g.png").stat().st_size > 1000
     plt.close(fig)
+
+
+def test_no_private_hmmlearn_internals():
+    # regression: phases/_hmm.py imported hmmlearn's private `_hmmc` and overrode the
+    # private `_do_estep`, which any hmmlearn release may change. Only hmmlearn's public
+    # names may be used by seqmine (CategoricalHMM and its documented attributes).
+    import ast
+    from pathlib import Path
+
+    import seqmine
+
+    root = Path(seqmine.__file__).parent
+    for path in root.rglob("*.py"):
+        tree = ast.parse(path.read_text(encoding="utf-8"))
+        for node in ast.walk(tree):
+            if isinstance(node, ast.ImportFrom) and (node.module or "").startswith("hmmlearn"):
+                assert not any(part.startswith("_") for part in node.module.split(".")), path
+                assert not any(a.name.startswith("_") for a in node.names), (path, node.lineno)
+            if isinstance(node, ast.Import):
+                for a in node.names:
+                    if a.name.startswith("hmmlearn"):
+                        assert not any(p.startswith("_") for p in a.name.split(".")), path
+            if isinstance(node, ast.Attribute) and node.attr in ("_do_estep", "_hmmc",
+                                                                   "_fit_scaling",
+                                                                   "_fit_log"):
+                raise AssertionError(f"{path}:{node.lineno} uses hmmlearn's {node.attr}")

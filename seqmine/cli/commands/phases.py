@@ -66,8 +66,7 @@ def run(args):
     if not is_quiet():
         msg = [f"phases: {result.n_states} states ({result.params['criterion']}), "
                f"{result.state_db.n_sequences} sequences modelled"]
-        if result.at_top_of_range:
-            msg.append("the chosen count is the largest tried; consider a wider --states range")
+        # a count at the top of the range is a warning, printed once at the end
         if result.n_excluded:
             msg.append(f"{result.n_excluded} sequences shorter than "
                        f"{result.params['min_length']} tokens left out (see excluded.csv)")
