@@ -142,4 +142,6 @@ def test_phase_files_of_colliding_labels_stay_apart():
     for label in (a, b, "../..", "..", "C:\\x", "~"):
         for stem in (_model_file(label), _graph_file(label)):
             assert Path(stem).name == stem and not stem.startswith(".")
-    assert _model_file("strong") == "model_group-strong"  # plain labels unchanged
+    # plain labels unchanged; the model file name carries its .json (phases.json lists
+    # these names and the report reads them as they are)
+    assert _model_file("strong") == "model_group-strong.json"
