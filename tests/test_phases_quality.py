@@ -21,8 +21,8 @@ from seqmine.phases.fitting import frequency_loglik
 
 DATASETS = {
     "token_hmm": lambda: token_hmm_db(n=30, length=50, seed=11),
-    "phase_process": lambda: phase_process_db(n_learners=50, events=(30, 80), seed=12),
-    "short_sessions": lambda: short_sessions_db(n_learners=22, seed=13),
+    "phase_process": lambda: phase_process_db(n_learners=40, events=(30, 80), seed=12),
+    "short_sessions": lambda: short_sessions_db(n_learners=15, seed=13),
 }
 
 
