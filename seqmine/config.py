@@ -50,7 +50,8 @@ DEFAULT_CONFIG = {
     },
     "contrast": {
         "correction": "bh", "alpha": 0.05, "n_permutations": 1000,
-        "stability_resamples": 100, "redundancy_jaccard": 0.9,
+        "stability_resamples": 100, "replication_splits": 20, "volume_strata": None,
+        "redundancy_jaccard": 0.9, "unit": "learner",
     },
     "transitions": {"include_pauses": True},
     "phases": {"enabled": True, "min_states": 2, "max_states": 5, "restarts": 3,
@@ -59,7 +60,8 @@ DEFAULT_CONFIG = {
     "validate": {"enabled": True, "folds": 5,
                  "fractions": [0.1, 0.25, 0.5, 0.75, 1.0], "bootstrap": 500,
                  "top_patterns": 30, "hmm": {}, "max_learners": None},
-    "detectors": {"max_q": 0.05, "min_stability": 0.5, "max_detectors": 20},
+    "detectors": {"max_q": 0.05, "min_stability": 0.5, "max_detectors": 20,
+                  "evidence": ["order", "presence"]},
     "report": {"examples": True, "top_patterns": 15},
     "privacy": {"pseudonymize_key": None},
 }

@@ -129,14 +129,8 @@ def pseudonymize_inputs(loaded, outcomes, key):
 
 
 def _describe(values):
-    v = values[np.isfinite(values)]
-    if len(v) == 0:
-        return {"n": 0}
-    q = np.quantile(v, [0, 0.25, 0.5, 0.75, 1])
-    return {"n": int(len(v)), "mean": round(float(v.mean()), 6),
-            "min": round(float(q[0]), 6), "q1": round(float(q[1]), 6),
-            "median": round(float(q[2]), 6), "q3": round(float(q[3]), 6),
-            "max": round(float(q[4]), 6)}
+    from .scoring.activity import describe
+    return describe(values)
 
 
 # ---------------------------------------------------------------------- analyze
@@ -217,9 +211,10 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
     from .inputs.load import load_events
     from .inputs.outcomes import load_outcomes
     from .inputs.privacy import read_key
-    from .mining.miner import save_patternset
+    from .mining.miner import mine, save_patternset
     from .mining.partitions import mine_parallel
     from .reporting.render import render_report, write_examples
+    from .scoring.activity import activity_comparison
     from .scoring.contrast import contrast
     from .scoring.transitions import transitions
 
@@ -277,15 +272,29 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
                           end_with_action=mine_cfg["end_with_action"], closed=mine_cfg["closed"],
                           maximal=mine_cfg["maximal"], max_patterns=mine_cfg["max_patterns"])
         save_patternset(patternset, out / "patternset")
+    contrast_options = dict(
+        correction=con_cfg["correction"], alpha=con_cfg["alpha"],
+        n_permutations=con_cfg["n_permutations"], seed=seed,
+        stability_resamples=con_cfg["stability_resamples"],
+        replication_splits=con_cfg["replication_splits"],
+        volume_strata=con_cfg["volume_strata"], unit=con_cfg["unit"], jobs=jobs,
+        scheduler=scheduler)
     with stages("scoring patterns"):
-        table = contrast(patternset, db, correction=con_cfg["correction"], alpha=con_cfg["alpha"],
-                         n_permutations=con_cfg["n_permutations"], seed=seed,
-                         stability_resamples=con_cfg["stability_resamples"],
-                         redundancy=con_cfg["redundancy_jaccard"], jobs=jobs,
-                         scheduler=scheduler)
+        table = contrast(patternset, db, redundancy=con_cfg["redundancy_jaccard"],
+                         **contrast_options)
         table = _order_patterns(table)
         write_csv(table, out / "patterns.csv")
         files.append(out / "patterns.csv")
+    with stages("scoring single tokens"):
+        # what each group does more of: every action and pause kind, scored whatever
+        # min_length is, in a family of its own
+        singles = mine(db, min_support=1, min_length=1, max_length=1)
+        tokens = contrast(singles, db, redundancy=None, **contrast_options)
+        tokens.insert(2, "kind", np.where(
+            tokens["pattern"].map(dict(zip(db.vocab, db.is_pause))), "pause", "action"))
+        tokens = _order_patterns(tokens)
+        write_csv(tokens, out / "tokens.csv")
+        files.append(out / "tokens.csv")
     with stages("transitions"):
         trans = transitions(db, exclude_pauses=not cfg["transitions"]["include_pauses"])
         write_csv(trans, out / "transitions.csv")
@@ -297,12 +306,28 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
         "patterns_significant": int(len(significant)),
         "patterns_significant_distinct": int((significant["redundant_of"].fillna("") == "").sum())
         if "redundant_of" in significant else int(len(significant)),
+        "patterns_surviving": _surviving(table, alpha),
+        "patterns_by_evidence": _by_evidence(table),
+        "tokens_by_evidence": _by_evidence(tokens),
+        "unit_of_analysis": table.attrs.get("unit", "sequence"),
+        "activity": activity_comparison(db),
         "method": {
-            "presence_test": "Fisher's exact test (two-sided) on presence per sequence",
+            "presence_test": "Fisher's exact test (two-sided) on presence per "
+                             + ("learner" if table.attrs.get("unit") == "learner"
+                                else "sequence"),
+            "volume_test": "Cochran-Mantel-Haenszel test of presence across "
+                           f"{table.attrs.get('volume_strata', 0)} strata of events per "
+                           + ("learner" if table.attrs.get("unit") == "learner"
+                              else "sequence"),
+            "order_test": "the same stratified test among the units that hold every item "
+                          "of the pattern",
             "rate_test": "Mann-Whitney U on occurrences per 100 tokens",
+            "transition_test": "Mann-Whitney U on each learner's share of transitions "
+                               "(learner level); adjusted residuals are pooled description",
             "correction": con_cfg["correction"], "alpha": alpha,
             "n_permutations": int(con_cfg["n_permutations"]),
             "stability_resamples": int(con_cfg["stability_resamples"]),
+            "replication_splits": int(con_cfg["replication_splits"]),
             "min_support": mine_cfg["min_support"], "max_length": mine_cfg["max_length"],
             "max_gap": mine_cfg["max_gap"], "folds": cfg["validate"]["folds"],
         },
@@ -370,7 +395,8 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
         from .detection.detectors import export_detectors, save_detectors
         doc = export_detectors(table, db, patternset.constraints, max_q=float(de_cfg["max_q"]),
                                min_stability=float(de_cfg["min_stability"]),
-                               max_detectors=int(de_cfg["max_detectors"]))
+                               max_detectors=int(de_cfg["max_detectors"]),
+                               evidence=_evidence_option(de_cfg["evidence"]))
         save_detectors(doc, out / "detectors.json")
         files.append(out / "detectors.json")
         summary["detectors"] = len(doc.get("detectors", []))
@@ -425,10 +451,34 @@ def _without_timings(summary):
 
 
 def _order_patterns(table):
-    """Most useful first: significant before not, then by q value, then by pattern."""
-    order = table.assign(_sig=table["q_value"].isna()).sort_values(
-        ["_sig", "q_value", "p_value", "length", "pattern"], kind="mergesort")
-    return order.drop(columns="_sig").reset_index(drop=True)
+    """Most useful first: by evidence (order, presence, volume, none), then by q value,
+    then by pattern."""
+    rank = {"order": 0, "presence": 1, "volume": 2}
+    ev = table["evidence"].map(rank).fillna(3) if "evidence" in table else 3
+    order = table.assign(_ev=ev, _sig=table["q_value"].isna()).sort_values(
+        ["_ev", "_sig", "q_value", "p_value", "length", "pattern"], kind="mergesort")
+    return order.drop(columns=["_ev", "_sig"]).reset_index(drop=True)
+
+
+def _surviving(table, alpha):
+    """How many patterns pass before adjustment, after the volume adjustment and the
+    order test."""
+    def n(col):
+        return int((table[col] <= alpha).sum()) if col in table else 0
+    return {"before_adjustment": n("q_value"), "volume_adjusted": n("q_volume"),
+            "order": n("q_order")}
+
+
+def _by_evidence(table):
+    ev = table["evidence"].fillna("") if "evidence" in table else []
+    return {k: int((ev == k).sum()) for k in ("order", "presence", "volume")}
+
+
+def _evidence_option(value):
+    """``[detectors] evidence``: a list of kinds, or "any" / empty for q_value alone."""
+    if value is None or value == "any" or value == [] or value == ["any"]:
+        return None
+    return [value] if isinstance(value, str) else list(value)
 
 
 class _Stages:

@@ -235,7 +235,7 @@ def _transition_table(sub, n=5):
     lo = lo[lo["_k"] < 0]
     hi = hi[hi["_k"] > 0]
     cols = [c for c in ("count", "probability", "expected", "adjusted_residual", "yules_q",
-                        "q_difference") if c in sub.columns]
+                        "q_pooled") if c in sub.columns]
     rows = []
     for label, part in (("more often", hi), ("less often", lo)):
         for _, r in part.iterrows():
@@ -245,7 +245,7 @@ def _transition_table(sub, n=5):
     if not rows:
         return ""
     heads = ["than expected", "transition"] + [{"probability": "share of next steps",
-                                   "q_difference": "q (groups differ)",
+                                   "q_pooled": "q (groups differ)",
                                    "yules_q": "Yule's Q"}.get(c, c.replace("_", " "))
                                   for c in cols]
     return _table(heads, rows, raw_cells=False, num_cols=tuple(range(2, len(heads))))
@@ -256,7 +256,7 @@ def _transition_cell(col, value):
         return _fmt(value, 0)
     if col == "probability":
         return _pct(value)
-    if col == "q_difference":
+    if col == "q_pooled":
         return _fmt_p(value)
     return _fmt(value, 2)
 

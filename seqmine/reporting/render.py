@@ -136,7 +136,7 @@ TRANSITION_COLUMNS = {
     "expected": "expected count under (quasi-)independence",
     "adjusted_residual": "adjusted residual (z-like; |value| > 1.96 is notable)",
     "yules_q": "Yule's Q of the 2x2 table of the transition (-1..1)",
-    "q_difference": "corrected p value of the difference between groups",
+    "q_pooled": "corrected p value of the difference between groups",
 }
 
 #: Keys of ``phases/phases.json`` (which model file belongs to which group).
@@ -343,7 +343,7 @@ def _read_all(folder):
     d["transitions"] = _read_csv(
         folder, OUTPUT_FILES["transitions"],
         numeric=("count", "from_total", "to_total", "total", "expected", "probability",
-                 "adjusted_residual", "yules_q", "p_difference", "q_difference"))
+                 "adjusted_residual", "yules_q", "p_pooled", "q_pooled"))
     d["phases_summary"] = _read_json(folder, OUTPUT_FILES["phases_summary"], dict)
     d["state_selection"] = _read_csv(
         folder, OUTPUT_FILES["state_selection"],

@@ -4,11 +4,12 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+import scipy.sparse as sp
 from scipy import stats
 
 from .._util.checks import check_choice
 from ..errors import ParameterError
-from .effects import fisher_exact_many
+from .effects import fisher_exact_many, kruskal_sparse, mannwhitney_sparse
 from .multitest import adjust_pvalues
 
 __all__ = [
@@ -17,6 +18,7 @@ __all__ = [
     "adjusted_residuals",
     "quasi_independence_expected",
     "yules_q",
+    "learner_transition_tests",
     "TRANSITION_COLUMNS",
     "MAX_TRANSITION_CELLS",
 ]
@@ -28,12 +30,14 @@ MAX_TRANSITION_CELLS = 2**25
 #: Columns of the table returned by :func:`transitions` (``transitions.csv``).
 TRANSITION_COLUMNS = [
     "group", "from", "to", "count", "from_total", "to_total", "total", "expected",
-    "probability", "adjusted_residual", "yules_q", "p_difference", "q_difference",
+    "probability", "adjusted_residual", "yules_q", "learners", "learner_probability",
+    "p_learners", "q_learners", "p_pooled", "q_pooled",
 ]
 
 
 def transitions(db, *, exclude_pauses=False, structural_zeros="auto", correction="bh"):
-    """Lag-1 transition table per group with adjusted residuals and a group test.
+    """Lag-1 transition table per group: adjusted residuals (description) and a
+    learner-level test of the group difference (inference).
 
     Parameters
     ----------
@@ -49,7 +53,7 @@ def transitions(db, *, exclude_pauses=False, structural_zeros="auto", correction
         come from iterative proportional fitting (quasi-independence) instead of
         ``row * column / total``. ``"none"``: no structural zeros.
     correction : {"bh", "holm"}
-        Correction of ``p_difference`` over all listed transitions.
+        Correction of ``p_learners`` and ``p_pooled`` over all listed transitions.
 
     Returns
     -------
@@ -67,17 +71,30 @@ def transitions(db, *, exclude_pauses=False, structural_zeros="auto", correction
         Liker 1982; Bakeman & Gottman 1997), |z| > 1.96 marks a transition more
         (or less) frequent than chance at about the 5% level, uncorrected;
         ``yules_q`` (AD - BC) / (AD + BC) from the 2x2 collapse A = x, B = r - x,
-        C = c - x, D = N - r - c + x; ``p_difference`` test that the share of a's
-        transitions going to b is the same in every group (Fisher exact on the
-        groups x (to b, to other) table for two groups, Pearson chi-square
-        otherwise; NaN with one group); ``q_difference`` its adjustment; both are
-        repeated on each group's row of the transition.
+        C = c - x, D = N - r - c + x; ``learners`` the group's learners with at least
+        one transition out of a; ``learner_probability`` the mean over those learners
+        of their own share of a's transitions that go to b; ``p_learners`` the
+        learner-level test that these per-learner shares are alike in every group
+        (two-sided Mann-Whitney U for two groups, Kruskal-Wallis otherwise, as scipy
+        computes them; see :func:`learner_transition_tests`); ``q_learners`` its
+        adjustment; ``p_pooled`` the token-level test on the groups x (to b, to other)
+        table of pooled counts (Fisher exact for two groups, Pearson chi-square
+        otherwise), which treats every transition as independent and so overstates
+        the evidence (description only); ``q_pooled`` its adjustment. Test columns are
+        NaN with one group and repeated on each group's row of the transition.
 
     Notes
     -----
+    Adjusted residuals, Yule's Q and the pooled test count transitions as if each
+    were an independent observation; a few very active learners then dominate, and
+    with many transitions tiny p-values follow from small differences. They
+    *describe* where the groups' transition tables differ; the learner-level test
+    (each learner counted once, whatever their activity) is the inference.
+
     With structural zeros the adjusted-residual formula above is kept with the
     fitted expected counts; it is then an approximation (common practice).
     Transitions are within sequences only; the last token of a sequence starts none.
+    Sessions of one learner are merged for the learner-level test.
 
     References
     ----------
@@ -112,6 +129,8 @@ def transitions(db, *, exclude_pauses=False, structural_zeros="auto", correction
     r_all = counts.sum(axis=2)
     p_diff = _group_difference(x_all, r_all[:, pairs[:, 0]] if len(pairs) else x_all)
     q_diff = adjust_pvalues(p_diff, correction)
+    lt = learner_transition_tests(db, pairs, exclude_pauses=exclude_pauses)
+    q_learn = adjust_pvalues(lt["p_learners"], correction)
     vocab = np.array(db.vocab, dtype=object)
     for g in range(n_groups):
         table = counts[g].astype(np.float64)
@@ -134,7 +153,9 @@ def transitions(db, *, exclude_pauses=False, structural_zeros="auto", correction
             "expected": expected[a_, b_], "probability": prob,
             "adjusted_residual": z[a_, b_],
             "yules_q": yules_q(x, r[a_] - x, c[b_] - x, n - r[a_] - c[b_] + x),
-            "p_difference": p_diff, "q_difference": q_diff,
+            "learners": lt["learners"][g], "learner_probability": lt["mean_share"][g],
+            "p_learners": lt["p_learners"], "q_learners": q_learn,
+            "p_pooled": p_diff, "q_pooled": q_diff,
         }))
     if not frames:
         return pd.DataFrame({c: [] for c in TRANSITION_COLUMNS})
@@ -186,6 +207,94 @@ def transition_counts(db, *, exclude_pauses=False):
     flat = (grp[ok] * v + frm[ok]) * v + to[ok]
     counts = np.bincount(flat, minlength=len(names) * v * v).reshape(len(names), v, v)
     return counts.astype(np.int64), names
+
+
+def learner_transition_tests(db, pairs, *, exclude_pauses=False):
+    """Learner-level test of each transition a -> b between groups.
+
+    Each learner's transitions (over all their sequences) give their own share of a's
+    transitions that go to b, ``x_i / r_i``, defined for learners with ``r_i > 0``.
+    Those shares are compared between groups: two-sided Mann-Whitney U (two groups)
+    or Kruskal-Wallis (more), exactly as ``scipy.stats.mannwhitneyu`` /
+    ``scipy.stats.kruskal`` compute them. Every learner counts once, however active.
+
+    Parameters
+    ----------
+    db : SequenceDB
+    pairs : ndarray of int, shape (k, 2)
+        (from, to) vocabulary ids of the transitions to test.
+    exclude_pauses : bool
+        Drop pause tokens first (as in :func:`transitions`).
+
+    Returns
+    -------
+    dict
+        ``learners`` (n_groups, k): learners of each group with ``r_i > 0``;
+        ``mean_share`` (n_groups, k): their mean share (NaN without learners);
+        ``p_learners`` (k,): p-values (NaN when fewer than two groups have such
+        learners, or the database has one group).
+
+    Examples
+    --------
+    >>> from seqmine.encoding.sequences import SequenceDB
+    >>> db = SequenceDB.from_lists([["a", "b", "a", "b"], ["a", "a", "b"]] * 4,
+    ...                            groups=["strong", "weak"] * 4)
+    >>> out = learner_transition_tests(db, np.array([[0, 1]]))
+    >>> out["mean_share"][:, 0].tolist(), round(float(out["p_learners"][0]), 4)
+    ([1.0, 0.5], 0.0131)
+    """
+    pairs = np.asarray(pairs, dtype=np.int64).reshape(-1, 2)
+    k = len(pairs)
+    n_groups = db.n_groups
+    out = {"learners": np.zeros((max(n_groups, 1), k), dtype=np.int64),
+           "mean_share": np.full((max(n_groups, 1), k), np.nan), "p_learners": np.full(k, np.nan)}
+    if n_groups < 2 or k == 0 or np.all(db.groups < 0):
+        return out
+    tokens = np.asarray(db.tokens, dtype=np.int64)
+    seq = db.seq_index
+    if exclude_pauses:
+        keep = ~db.is_pause[tokens]
+        tokens, seq = tokens[keep], seq[keep]
+    names, inverse = np.unique(db.learners, return_inverse=True)
+    learner_of_seq = inverse.ravel()
+    n_l = len(names)
+    group_l = np.full(n_l, -1, dtype=np.int64)
+    group_l[learner_of_seq] = db.groups      # a learner's group (one per learner)
+    v = len(db.vocab)
+    same = seq[1:] == seq[:-1]
+    frm, to = tokens[:-1][same], tokens[1:][same]
+    lid = learner_of_seq[seq[:-1][same]]
+    col = {int(a) * v + int(b): j for j, (a, b) in enumerate(pairs)}
+    flat = frm * v + to
+    sel = np.isin(flat, list(col))
+    pair_idx = np.array([col[int(f)] for f in flat[sel]], dtype=np.int64)
+    x = sp.csc_matrix((np.ones(int(sel.sum())), (lid[sel], pair_idx)), shape=(n_l, k))
+    r = sp.csc_matrix((np.ones(len(frm)), (lid, frm)), shape=(n_l, v))
+    for a in np.unique(pairs[:, 0]):
+        cols = np.flatnonzero(pairs[:, 0] == a)
+        ra = r[:, int(a)].toarray().ravel()
+        rows = np.flatnonzero((ra > 0) & (group_l >= 0))
+        if len(rows) == 0:
+            continue
+        share = sp.csc_matrix(sp.diags(1.0 / ra[rows]) @ x[rows][:, cols])
+        lab = group_l[rows]
+        sizes = np.bincount(lab, minlength=n_groups)
+        out["learners"][:, cols] = sizes[:, None]
+        sums = np.stack([np.asarray(share[lab == g].sum(axis=0)).ravel()
+                         for g in range(n_groups)])
+        with np.errstate(divide="ignore", invalid="ignore"):
+            out["mean_share"][:, cols] = np.where(sizes[:, None] > 0,
+                                                  sums / sizes[:, None], np.nan)
+        present = np.flatnonzero(sizes > 0)
+        if len(present) < 2:
+            continue
+        if n_groups == 2:
+            out["p_learners"][cols] = mannwhitney_sparse(share, lab == 0)[1]
+        else:
+            remap = np.full(n_groups, -1)
+            remap[present] = np.arange(len(present))
+            out["p_learners"][cols] = kruskal_sparse(share, remap[lab], len(present))[1]
+    return out
 
 
 def adjusted_residuals(table, expected=None):

@@ -570,4 +570,4 @@ class _ContrastScorer:
 
         return contrast(patterns, db, correction=self.correction, alpha=self.alpha,
                         seed=self.seed, n_permutations=self.n_permutations,
-                        stability_resamples=0, redundancy=None)
+                        stability_resamples=0, replication_splits=0, redundancy=None)

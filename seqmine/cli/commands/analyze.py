@@ -56,6 +56,10 @@ _FLAG_TO_CONFIG = [
     ("count_pauses", "mine", "skip_pauses", lambda v: not v),
     ("max_patterns", "mine", "max_patterns", None),
     ("correction", "contrast", "correction", None),
+    ("contrast_unit", "contrast", "unit", None),
+    ("replication_splits", "contrast", "replication_splits", None),
+    ("detector_evidence", "detectors", "evidence",
+     lambda v: [x.strip() for x in v.split(",") if x.strip()]),
     ("permutations", "contrast", "n_permutations", None),
     ("alpha", "contrast", "alpha", None),
     ("folds", "validate", "folds", None),
@@ -99,6 +103,17 @@ def add_arguments(p):
                    help="multiple-comparison control (default: bh)")
     g.add_argument("--permutations", type=int, default=1000,
                    help="permutations for westfall-young (default: 1000)")
+    g.add_argument("--contrast-unit", choices=["learner", "sequence"], default="learner",
+                   help="unit of the pattern tests: each learner once, sessions merged "
+                        "(default), or each sequence as if independent (session-level "
+                        "tests overstate the evidence)")
+    g.add_argument("--replication-splits", type=int, default=20,
+                   help="random half splits behind the replication column, 0 = skip "
+                        "(default: 20)")
+    g.add_argument("--detector-evidence", default="order,presence", metavar="KINDS",
+                   help="evidence a detector may rest on: comma-separated order, presence, "
+                        "volume, or 'any' (default: order,presence, i.e. findings that "
+                        "survive the volume adjustment)")
     g.add_argument("--alpha", type=float, default=0.05, help="significance level (default: 0.05)")
     g.add_argument("--folds", type=int, default=5, help="cross-validation folds (default: 5)")
     g.add_argument("--no-phases", action="store_true", help="skip the hidden Markov models")

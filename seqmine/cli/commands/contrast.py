@@ -19,10 +19,13 @@ HELP = "test which mined patterns separate the outcome groups (patterns.csv, tra
 DESCRIPTION = (
     "Read a pattern set written by 'seqmine mine' and score every pattern for how it "
     "separates the outcome groups: per-group support and rate, Fisher's exact test on "
-    "presence, Mann-Whitney U on rates, effect sizes, multiple-comparison control "
-    "(Benjamini-Hochberg, Holm or a Westfall-Young permutation test), bootstrap stability "
-    "and redundancy marks. With --transitions (needs --seqdb) also writes the lag-1 "
-    "transition table with adjusted residuals. Findings are correlational."
+    "presence, the same difference at equal activity volume (Cochran-Mantel-Haenszel "
+    "over activity strata) and in the items' order, the evidence each finding rests on, "
+    "Mann-Whitney U on rates, effect sizes, multiple-comparison control "
+    "(Benjamini-Hochberg, Holm or a Westfall-Young permutation test), bootstrap stability, "
+    "split-half replication and redundancy marks. With --transitions (needs --seqdb) also "
+    "writes the lag-1 transition table with adjusted residuals (description) and a "
+    "learner-level test per transition. Findings are correlational."
 )
 
 
@@ -61,9 +64,16 @@ def add_arguments(parser):
     parser.add_argument("--rate-unit", choices=("tokens", "actions", "count"), default=None,
                         help="rates per 100 tokens, per 100 actions or raw counts (default: "
                              "tokens with --seqdb, else count)")
-    parser.add_argument("--unit", choices=("sequence", "learner"), default="sequence",
-                        help="unit of analysis; 'learner' merges each learner's sessions "
-                             "first (needs --seqdb; default sequence)")
+    parser.add_argument("--unit", choices=("sequence", "learner"), default=None,
+                        help="unit of analysis: 'learner' merges each learner's sessions "
+                             "first; 'sequence' treats sessions as independent (session-level "
+                             "tests; default learner with --seqdb, else sequence)")
+    parser.add_argument("--replication-splits", type=int, default=20, metavar="N",
+                        help="random half splits for the replication column, 0 = skip "
+                             "(default 20)")
+    parser.add_argument("--volume-strata", type=int, default=None, metavar="N",
+                        help="activity strata of the volume adjustment (default: about one "
+                             "per ten units, 2 to 50)")
     parser.add_argument("--exclude-pauses", action="store_true",
                         help="transitions skip pause tokens")
 
@@ -78,15 +88,20 @@ def run(args):
     groups = [g.strip() for g in args.groups.split(",")] if args.groups else None
     table = contrast(ps, db, groups=groups, correction=args.correction, alpha=args.alpha,
                      n_permutations=args.permutations, seed=args.seed,
-                     stability_resamples=args.stability_resamples, redundancy=redundancy,
+                     stability_resamples=args.stability_resamples,
+                     replication_splits=args.replication_splits,
+                     volume_strata=args.volume_strata, redundancy=redundancy,
                      redundancy_order=args.redundancy_order,
                      drop_redundant=args.drop_redundant, rate_unit=args.rate_unit,
                      unit=args.unit)
     out = _writable(args.out, "--out")
     write_csv(table, out)
+    ev = table["evidence"].value_counts()
     messages = [f"wrote {len(table)} patterns to {out} "
-                f"({int((table['favours'] != '').sum())} with q <= {args.alpha} "
-                f"by {args.correction})"]
+                f"({int((table['q_value'] <= args.alpha).sum())} with q <= {args.alpha} "
+                f"by {args.correction}; evidence: {int(ev.get('order', 0))} order, "
+                f"{int(ev.get('presence', 0))} presence, {int(ev.get('volume', 0))} volume "
+                f"only)"]
     if args.pairwise:
         if len(table.attrs.get("groups", [])) < 3:
             raise ParameterError("--pairwise needs more than two compared groups; the two-group "

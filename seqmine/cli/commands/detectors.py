@@ -13,7 +13,7 @@ from ...detection.detectors import export_detectors, save_detectors
 from ...encoding.sequences import SequenceDB
 from ...errors import DataFileError, ParameterError
 
-__all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
+__all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run", "parse_evidence"]
 
 NAME = "detectors"
 HELP = "select validated patterns and write them as live detectors (detectors.json)"
@@ -21,7 +21,8 @@ DESCRIPTION = (
     "Read the contrast table written by 'seqmine contrast' (patterns.csv) and the "
     "sequence database the patterns were mined on (for the encoding: symbol template, "
     "action mapping, pause bins, repeat collapsing), keep the patterns that are "
-    "significant, large enough, stable and not redundant, and write detectors.json for "
+    "significant after the volume adjustment (by default), large enough, stable and not "
+    "redundant, and write detectors.json for "
     "'seqmine watch'. Matching constraints (max gap, max window, skip pauses) come from "
     "the miner's pattern set folder (--patterns, or a patternset.json beside the table) "
     "unless given as options. Patterns favouring the weak group become 'discourage' "
@@ -57,6 +58,11 @@ def add_arguments(parser):
                    help="comma-separated groups whose patterns are kept (default: all)")
     g.add_argument("--max-detectors", type=int, default=50, metavar="N",
                    help="most detectors written (default 50)")
+    g.add_argument("--evidence", default="order,presence", metavar="KINDS",
+                   help="kinds of evidence a detector may rest on (the evidence column): "
+                        "comma-separated order, presence, volume, or 'any' to select on "
+                        "q_value alone (default order,presence: only findings that survive "
+                        "the volume adjustment)")
     g.add_argument("--keep-redundant", action="store_true",
                    help="keep patterns contained in (or containing) a better one")
     g.add_argument("--strong-group", default=None, metavar="NAME",
@@ -98,7 +104,7 @@ def run(args):
         table, db, constraints, max_q=args.max_q, min_effect=args.min_effect,
         effect=args.effect, min_stability=args.min_stability, lengths=lengths, groups=groups,
         max_detectors=args.max_detectors, drop_redundant=not args.keep_redundant,
-        strong=args.strong_group, weak=args.weak_group,
+        evidence=parse_evidence(args.evidence, "--evidence"), strong=args.strong_group, weak=args.weak_group,
         absence_after_events=args.absence_events, absence_after_seconds=args.absence_seconds)
     doc["selection"].update(source=str(table_path), constraints_from=source)
     out = save_detectors(doc, args.out)
@@ -108,6 +114,20 @@ def run(args):
               f"{len(doc['detectors']) - n_dis} encourage) from {len(table)} patterns to {out}; "
               f"review every hint text before use")
     return 0
+
+
+def parse_evidence(text, option):
+    """``"order,presence"`` -> ``["order", "presence"]``; ``"any"`` -> None."""
+    if text is None:
+        return None
+    parts = [x.strip().lower() for x in str(text).split(",") if x.strip()]
+    if parts == ["any"]:
+        return None
+    bad = [x for x in parts if x not in ("order", "presence", "volume")]
+    if bad or not parts:
+        raise ParameterError(f"{option} takes a comma-separated list of order, presence, "
+                             f"volume, or 'any'. Got {text!r} instead.")
+    return parts
 
 
 def _opt_int(text):
