@@ -285,20 +285,21 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
         table = _order_patterns(table)
         write_csv(table, out / "patterns.csv")
         files.append(out / "patterns.csv")
+    with stages("transitions"):
+        trans = transitions(db, exclude_pauses=not cfg["transitions"]["include_pauses"])
+        write_csv(trans, out / "transitions.csv")
+        files.append(out / "transitions.csv")
     with stages("scoring single tokens"):
         # what each group does more of: every action and pause kind, scored whatever
         # min_length is, in a family of its own
         singles = mine(db, min_support=1, min_length=1, max_length=1)
-        tokens = contrast(singles, db, redundancy=None, **contrast_options)
+        tokens = contrast(singles, db, redundancy=None,
+                          **dict(contrast_options, stability_resamples=0))
         tokens.insert(2, "kind", np.where(
             tokens["pattern"].map(dict(zip(db.vocab, db.is_pause))), "pause", "action"))
         tokens = _order_patterns(tokens)
         write_csv(tokens, out / "tokens.csv")
         files.append(out / "tokens.csv")
-    with stages("transitions"):
-        trans = transitions(db, exclude_pauses=not cfg["transitions"]["include_pauses"])
-        write_csv(trans, out / "transitions.csv")
-        files.append(out / "transitions.csv")
     alpha = float(con_cfg["alpha"])
     significant = table[table["q_value"] <= alpha]
     summary.update({

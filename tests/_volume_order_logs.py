@@ -8,6 +8,8 @@
   opposite order. Volume and item counts are alike; only the order differs.
 * :func:`null_db` -- no group difference at all (optionally a volume difference), for
   calibration.
+* :func:`frequency_only_db` -- ``strong`` learners do one action more often, at random
+  places: presence differs, order does not (a null for the order test).
 * :func:`session_db` -- several sessions per learner with a learner-level effect, for
   unit-of-analysis checks.
 * :func:`to_event_log` -- the events and outcomes files of such a database, for runs
@@ -107,6 +109,24 @@ def null_db(seed, n_per_group=40, ratio=1.0, median=40, n_groups=2):
             groups.append(g)
     return SequenceDB.from_lists([[VOCAB[t] for t in s] for s in seqs], groups=groups,
                                  group_names=names, pause_tokens=PAUSES, vocab=VOCAB)
+
+
+def frequency_only_db(seed, n_per_group=40, median=40, action="reset", extra=(1, 5)):
+    """Same process; each ``strong`` learner gets 1-4 extra ``action`` tokens at random
+    positions, so patterns holding it are more common there without any order."""
+    rng = np.random.default_rng(seed)
+    trans = transition_matrix()
+    tok = VOCAB.index(action)
+    seqs, groups = [], []
+    for g in ("strong", "weak"):
+        for length in _lengths(rng, n_per_group, median):
+            s = list(markov_sequence(rng, int(length), trans))
+            if g == "strong":
+                for _ in range(int(rng.integers(*extra))):
+                    s.insert(int(rng.integers(0, len(s) + 1)), tok)
+            seqs.append(np.array(s))
+            groups.append(g)
+    return _db(seqs, groups)
 
 
 def session_db(seed, n_per_group=30, sessions=(2, 6), median=25, effect=0.0):

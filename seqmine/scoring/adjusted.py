@@ -33,7 +33,9 @@ __all__ = [
     "cmh_from_counts",
     "cmh_moments",
     "cmh_statistic",
+    "chi2_upper",
     "cell_counts",
+    "CellCounter",
     "item_requirements",
     "order_tables",
     "chance_occurrences",
@@ -90,18 +92,51 @@ def activity_strata(volume, n_strata=None):
 def cell_counts(matrix, labels, strata, n_groups, n_strata):
     """Column sums of ``matrix`` per (group, stratum) cell: array (G, S, n_columns).
 
-    One sparse product of a cell-indicator matrix with ``matrix`` (rows with label
-    -1 are left out).
+    Rows with label -1 are left out. For a sparse 0/1 presence matrix one
+    ``numpy.bincount`` over its stored entries does it (see :class:`CellCounter`).
     """
-    labels = np.asarray(labels, dtype=np.int64)
-    strata = np.asarray(strata, dtype=np.int64)
-    rows = np.flatnonzero(labels >= 0)
-    cells = labels[rows] * n_strata + strata[rows]
-    ind = sp.csr_matrix((np.ones(len(rows)), (cells, rows)),
-                        shape=(n_groups * n_strata, matrix.shape[0]))
-    out = ind @ matrix
-    out = out.toarray() if sp.issparse(out) else np.asarray(out)
-    return np.rint(out).reshape(n_groups, n_strata, -1)
+    return CellCounter(matrix).counts(labels, strata, n_groups, n_strata)
+
+
+class CellCounter:
+    """Sums of a sparse matrix's columns per cell of the rows, for many cell
+    assignments: the stored entries are laid out once, each assignment then costs one
+    gather and one ``numpy.bincount`` over them.
+
+    Examples
+    --------
+    >>> c = CellCounter(sp.csr_matrix([[1, 0], [1, 1], [0, 1]]))
+    >>> c.counts(np.array([0, 1, 1]), np.zeros(3, int), 2, 1)[:, 0].tolist()
+    [[1.0, 0.0], [1.0, 2.0]]
+    """
+
+    def __init__(self, matrix):
+        m = sp.csr_matrix(matrix)
+        m.sum_duplicates()
+        self.shape = m.shape
+        self.rows = np.repeat(np.arange(m.shape[0], dtype=np.int64), np.diff(m.indptr))
+        self.cols = m.indices.astype(np.int64)
+        self.data = m.data.astype(np.float64)
+        self.weighted = not np.all(self.data == 1)
+        self._width, self._base = None, None
+
+    def counts(self, labels, strata, n_groups, n_strata):
+        labels = np.asarray(labels, dtype=np.int64)
+        cell = labels * n_strata + np.asarray(strata, dtype=np.int64)
+        width = n_groups * n_strata
+        if self._width != width:
+            self._width, self._base = width, self.cols * width
+        if len(labels) and labels.min() < 0:
+            c = np.where(labels >= 0, cell, -1)[self.rows]
+            ok = c >= 0
+            flat = self._base[ok] + c[ok]
+            weights = self.data[ok] if self.weighted else None
+        else:
+            flat = self._base + cell[self.rows]
+            weights = self.data if self.weighted else None
+        out = np.bincount(flat, weights=weights,
+                          minlength=self.shape[1] * width).astype(np.float64)
+        return np.rint(out.reshape(self.shape[1], n_groups, n_strata).transpose(1, 2, 0))
 
 
 def cmh_from_counts(present, sizes):
@@ -118,8 +153,9 @@ def cmh_from_counts(present, sizes):
     Returns
     -------
     pvalue : ndarray, shape (m,)
-        Upper tail of chi-square with ``G - 1`` degrees of freedom; 1.0 when no
-        stratum has variation (the pattern is in all or none of its units, or every
+        Upper tail of chi-square with ``G - 1`` degrees of freedom (fewer when a group
+        has no unit in any informative stratum: the rank of the covariance); 1.0 when
+        no stratum has variation (the pattern is in all or none of its units, or every
         stratum holds one group only).
     statistic : ndarray, shape (m,)
     excess : ndarray, shape (G, m)
@@ -148,9 +184,8 @@ def cmh_from_counts(present, sizes):
     (4.275, 3.0)
     """
     excess, cov = cmh_moments(present, sizes)
-    stat, ok = cmh_statistic(excess[:-1].T, cov)
-    g = excess.shape[0]
-    p = np.where(ok, special.chdtrc(g - 1, stat), 1.0)
+    stat, df = cmh_statistic(excess[:-1].T, cov)
+    p = chi2_upper(stat, df)
     return np.clip(p, 0.0, 1.0), stat, excess
 
 
@@ -177,6 +212,8 @@ def cmh_moments(present, sizes):
         k = np.where(big_n > 1, t * (big_n - t) / (big_n ** 2 * np.maximum(big_n - 1, 1.0)),
                      0.0)                       # (S, m)
     excess = (x - n * frac[None]).sum(axis=1)   # (G, m)
+    if d == 1:                                  # two groups: one variance per pattern
+        return excess, (k * n[0] * (big_n - n[0])).sum(axis=0)[:, None, None]
     ns = n[:d]                                  # (d, S, m)
     cov = -np.einsum("sm,ism,jsm->mij", k, ns, ns)
     diag = np.einsum("sm,sm,ism->mi", k, big_n, ns)
@@ -185,19 +222,42 @@ def cmh_moments(present, sizes):
 
 
 def cmh_statistic(e, cov):
-    """``e' cov^-1 e`` per pattern (``e`` (m, d), ``cov`` (m, d, d)) and whether the
-    pattern has any variation; the pseudo-inverse covers a singular covariance (a
-    group absent from every informative stratum)."""
+    """``e' cov^-1 e`` per pattern (``e`` (m, d) or (m, d, nb), ``cov`` (m, d, d)) and
+    its degrees of freedom, the rank of ``cov`` (0 = no variation: statistic 0). The
+    pseudo-inverse covers a singular covariance (a group absent from every
+    informative stratum)."""
     e = np.asarray(e, dtype=np.float64)
-    if e.ndim == 3:                             # (m, d, nb): many label sets at once
-        inv = _pinv(cov)
-        stat = np.einsum("mib,mij,mjb->mb", e, inv, e)
-        ok = (np.abs(cov).sum(axis=(1, 2)) > 1e-12)[:, None]
+    inv = _pinv(cov)
+    if cov.shape[1] == 1:
+        df = (cov[:, 0, 0] > 1e-12).astype(np.int64)
     else:
-        inv = _pinv(cov)
+        df = np.linalg.matrix_rank(cov, hermitian=True) if len(cov) else np.zeros(0, int)
+    if e.ndim == 3:                             # many label sets at once
+        stat = np.einsum("mib,mij,mjb->mb", e, inv, e)
+        df = df[:, None]
+    else:
         stat = np.einsum("mi,mij,mj->m", e, inv, e)
-        ok = np.abs(cov).sum(axis=(1, 2)) > 1e-12
-    return np.where(ok, np.maximum(stat, 0.0), 0.0), ok
+    return np.where(df > 0, np.maximum(stat, 0.0), 0.0), df
+
+
+def chi2_upper(stat, df):
+    """Upper tail of chi-square with ``df`` degrees of freedom; 1.0 where df is 0.
+
+    With one degree of freedom it is ``erfc(sqrt(stat / 2))`` (the same function,
+    computed faster).
+
+    Examples
+    --------
+    >>> from scipy import stats
+    >>> bool(np.isclose(chi2_upper(np.array([3.84]), np.array([1]))[0],
+    ...                 stats.chi2.sf(3.84, 1), rtol=1e-12))
+    True
+    """
+    stat = np.asarray(stat, dtype=np.float64)
+    df = np.broadcast_to(np.asarray(df), stat.shape)
+    if df.size and np.all((df == 1) | (df == 0)):
+        return np.where(df > 0, special.erfc(np.sqrt(np.maximum(stat, 0.0) / 2.0)), 1.0)
+    return np.where(df > 0, special.chdtrc(np.maximum(df, 1), stat), 1.0)
 
 
 def _pinv(cov):
@@ -312,19 +372,27 @@ def order_tables(presence, token_counts, lengths, patterns, labelings, n_bins, *
         bins = _chance_bins(np.where(holds, np.round(log_e, 9), np.inf), holds, n_bins)
         pats = pats_of_req[bounds[start]: bounds[stop]]
         local = req_of[pats] - start
-        pres = presence[:, pats].toarray() > 0
+        # holders (unit, set) with their bin, and present holders (unit, pattern): each
+        # labelling then costs a gather and a bincount over these entries only
+        h_unit, h_set = np.nonzero(holds)
+        h_bin = bins[h_unit, h_set]
+        sub = presence[:, pats].tocoo()
+        p_unit, p_pat = sub.row.astype(np.int64), sub.col.astype(np.int64)
+        p_ok = holds[p_unit, local[p_pat]]
+        p_unit, p_pat = p_unit[p_ok], p_pat[p_ok]
+        p_bin = bins[p_unit, local[p_pat]]
         for (lab, k), (x_out, n_out) in zip(labelings, outs):
             lab = np.asarray(lab, dtype=np.int64)
-            cell = np.where(holds & (lab[:, None] >= 0), lab[:, None] * n_bins + bins, -1)
             width_c = k * n_bins
-            ok = cell >= 0
-            flat = (np.arange(rb)[None, :] * width_c + cell)[ok]
-            sizes = np.bincount(flat, minlength=rb * width_c).reshape(rb, k, n_bins)
+            lh = lab[h_unit]
+            ok = lh >= 0
+            sizes = np.bincount((h_set * width_c + lh * n_bins + h_bin)[ok],
+                                minlength=rb * width_c).reshape(rb, k, n_bins)
             n_out[:, :, pats] = np.moveaxis(sizes[local], 0, -1)
-            cp = cell[:, local]
-            okp = (cp >= 0) & pres
-            flat = (np.arange(len(pats))[None, :] * width_c + cp)[okp]
-            xs = np.bincount(flat, minlength=len(pats) * width_c).reshape(len(pats), k, n_bins)
+            lp = lab[p_unit]
+            ok = lp >= 0
+            xs = np.bincount((p_pat * width_c + lp * n_bins + p_bin)[ok],
+                             minlength=len(pats) * width_c).reshape(len(pats), k, n_bins)
             x_out[:, :, pats] = np.moveaxis(xs, 0, -1)
     return outs
 

@@ -9,7 +9,7 @@ from scipy import special, stats
 from .._util.checks import check_int
 from .._util.progress import progress
 from ..errors import ParameterError
-from .adjusted import cell_counts, cmh_from_counts, cmh_moments, cmh_statistic
+from .adjusted import chi2_upper, cell_counts, cmh_from_counts, cmh_moments, cmh_statistic
 from .effects import (
     FISHER_RTOL,
     _log_factorials,
@@ -257,8 +257,7 @@ def westfall_young_volume(presence, labels, strata, *, n_permutations=1000, seed
 
     def pfunc(lab2d):
         e = np.stack([np.rint(pt @ (lab2d == g).astype(pt.dtype)) for g in range(d)], axis=1)
-        stat, ok = cmh_statistic(e - expected.T[:, :, None], cov)
-        return np.where(ok, special.chdtrc(d, stat), 1.0)
+        return chi2_upper(*cmh_statistic(e - expected.T[:, :, None], cov))
 
     adjusted = _step_down_minp(raw, pfunc, labels, n_permutations, seed,
                                _batch_size(batch_size, m), jobs=jobs, scheduler=scheduler,

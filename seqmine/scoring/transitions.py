@@ -264,10 +264,12 @@ def learner_transition_tests(db, pairs, *, exclude_pauses=False):
     same = seq[1:] == seq[:-1]
     frm, to = tokens[:-1][same], tokens[1:][same]
     lid = learner_of_seq[seq[:-1][same]]
-    col = {int(a) * v + int(b): j for j, (a, b) in enumerate(pairs)}
+    keys = pairs[:, 0] * v + pairs[:, 1]
+    order = np.argsort(keys, kind="stable")
     flat = frm * v + to
-    sel = np.isin(flat, list(col))
-    pair_idx = np.array([col[int(f)] for f in flat[sel]], dtype=np.int64)
+    pos = np.minimum(np.searchsorted(keys[order], flat), k - 1)
+    sel = keys[order][pos] == flat
+    pair_idx = order[pos[sel]]
     x = sp.csc_matrix((np.ones(int(sel.sum())), (lid[sel], pair_idx)), shape=(n_l, k))
     r = sp.csc_matrix((np.ones(len(frm)), (lid, frm)), shape=(n_l, v))
     for a in np.unique(pairs[:, 0]):
