@@ -13,13 +13,13 @@ import math
 import numpy as np
 
 from .html import (
+    _as_float,
     _chip,
     _fmt,
     _fmt_p,
     _group_label,
     _int,
-    _is_num,
-    _num,
+    _is_finite,
     _pct,
     _table,
     esc,
@@ -98,19 +98,19 @@ def activity_lines(summary, groups):
     for g in groups:
         e = events.get(g) or {}
         t = tokens.get(g) or {}
-        if _is_num(e.get("mean")):
+        if _is_finite(e.get("mean")):
             parts.append(f"{_group_label(g, groups)} {_fmt(e['mean'], 1)} events"
-                         + (f" ({_fmt(t['mean'], 1)} tokens)" if _is_num(t.get("mean")) else ""))
+                         + (f" ({_fmt(t['mean'], 1)} tokens)" if _is_finite(t.get("mean")) else ""))
     if not parts:
         return []
     line = "Activity per learner (mean): " + "; ".join(parts) + "."
     p = act.get("p_value")
-    if _is_num(p):
+    if _is_finite(p):
         test = esc(act.get("test") or "test")
         ratio = act.get("ratio_of_means")
-        line += (f" Ratio of means {_fmt(ratio, 2)}; " if _is_num(ratio) else " ") \
+        line += (f" Ratio of means {_fmt(ratio, 2)}; " if _is_finite(ratio) else " ") \
             + f"{test}: p {_p_text(p)}."
-        if _num(p) <= 0.05:
+        if _as_float(p) <= 0.05:
             line += (" <b>The groups differ in how much they did</b>: a more active group "
                      "has more chances to show any pattern, so compare the counts after "
                      "the volume adjustment below.")
@@ -169,10 +169,10 @@ def tokens_table(df, groups, alpha, n=30):
         row = [_chip(r["pattern"]), esc(r.get("kind", ""))]
         for g in groups:
             row += [_pct(r.get(f"support_{g}")), _fmt(r.get(f"rate_{g}"), 2)]
-        q_rate = _num(r.get("q_rate"))
+        q_rate = _as_float(r.get("q_rate"))
         more = ""
         if math.isfinite(q_rate) and q_rate <= alpha and len(groups) >= 2:
-            rates = [(_num(r.get(f"rate_{g}")), g) for g in groups]
+            rates = [(_as_float(r.get(f"rate_{g}")), g) for g in groups]
             more = _group_label(max(rates)[1], groups)
         row += [_fmt_p(r.get("q_rate")), _fmt_p(r.get("q_volume")), more,
                 esc(r.get("evidence", "") or "")]
