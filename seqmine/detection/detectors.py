@@ -338,9 +338,9 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
         }
         for key in ("q_volume", "q_order", "replication"):
             if key in row:
-                evidence[key] = _num(row.get(key))
+                evidence[key] = _finite_or_none(row.get(key))
         if "evidence" in row:
-            evidence["kind"] = "" if _missing(row.get("evidence")) else str(row["evidence"])
+            evidence["kind"] = "" if _is_missing(row.get("evidence")) else str(row["evidence"])
         absence = None
         if direction == "encourage":
             absence = {"after_events": _int_or_none(absence_after_events),
