@@ -38,7 +38,7 @@ import scipy.sparse as sp
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from seqmine._util.progress import set_quiet  # noqa: E402
+from seqmine._util.progress import quiet_mode  # noqa: E402
 from seqmine.mining.patterns import PatternSet  # noqa: E402
 from seqmine.scoring.adjusted import (  # noqa: E402
     activity_strata,
@@ -103,7 +103,6 @@ def main(argv=None):
     parser.add_argument("--seed", type=int, default=0)
     parser.add_argument("--out", default=None)
     args = parser.parse_args(argv)
-    set_quiet(True)
     n = args.learners or (2_000 if args.quick else 10_000)
     m = args.patterns or (2_000 if args.quick else 10_000)
     load_before = os.getloadavg()
@@ -198,4 +197,5 @@ def main(argv=None):
 
 
 if __name__ == "__main__":
-    main()
+    with quiet_mode():
+        main()

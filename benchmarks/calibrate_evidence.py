@@ -42,7 +42,7 @@ sys.path.insert(0, str(ROOT / "tests"))
 
 from _volume_order_logs import frequency_only_db, null_db  # noqa: E402
 
-from seqmine._util.progress import set_quiet  # noqa: E402
+from seqmine._util.progress import quiet_mode  # noqa: E402
 from seqmine.mining.miner import mine  # noqa: E402
 from seqmine.scoring.contrast import contrast  # noqa: E402
 from seqmine.scoring.transitions import transitions  # noqa: E402
@@ -92,7 +92,6 @@ def main(argv=None):
     ap.add_argument("--only", default=None, help="comma-separated settings")
     ap.add_argument("--out", default=None)
     args = ap.parse_args(argv)
-    set_quiet(True)
     n_sets = args.sets or (50 if args.quick else 400)
     names = args.only.split(",") if args.only else list(SETTINGS)
     load0 = os.getloadavg()
@@ -120,4 +119,5 @@ def main(argv=None):
 
 
 if __name__ == "__main__":
-    main()
+    with quiet_mode():
+        main()

@@ -219,6 +219,7 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
     from .scoring.transitions import transitions
 
     cfg = config or default_config()
+    _check_evidence_options(cfg)
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     files = []
@@ -478,6 +479,21 @@ def _evidence_option(value):
     if value is None or value == "any" or value == [] or value == ["any"]:
         return None
     return [value] if isinstance(value, str) else list(value)
+
+
+def _check_evidence_options(cfg):
+    """The unit and detector-evidence options, checked before any work is done."""
+    unit = cfg["contrast"]["unit"]
+    if unit not in ("learner", "sequence"):
+        raise ParameterError(
+            f"configuration: option 'contrast.unit' must be 'learner' (each learner once) or "
+            f"'sequence' (session-level tests); got {unit!r}.")
+    kinds = _evidence_option(cfg["detectors"]["evidence"])
+    bad = [k for k in (kinds or []) if k not in ("order", "presence", "volume")]
+    if bad:
+        raise ParameterError(
+            f"configuration: option 'detectors.evidence' lists {bad[0]!r}; use some of "
+            f"order, presence, volume, or 'any' to select on q_value alone.")
 
 
 class _Stages:

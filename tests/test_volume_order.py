@@ -247,3 +247,28 @@ def test_report_groups_findings_by_evidence_and_states_activity_first(tmp_path):
     assert "replication <b>0.90</b>" in body and "Replication</b> is the share" in body
     assert "What each group does more of" in text and "paint_pot" in \
         text[text.index('id="tokens"'): text.index('id="transitions"')]
+
+
+def test_analyze_flags_and_their_messages(tmp_path, capsys):
+    from seqmine.cli.commands.analyze import config_from_args
+    from seqmine.cli.main import build_parser, main
+
+    args = build_parser().parse_args(
+        ["analyze", "e.csv", "--outcomes", "o.csv", "--out", "x", "--contrast-unit",
+         "sequence", "--replication-splits", "5", "--detector-evidence", "order,volume"])
+    cfg = config_from_args(args, args._defaults)
+    assert cfg["contrast"]["unit"] == "sequence" and cfg["contrast"]["replication_splits"] == 5
+    assert cfg["detectors"]["evidence"] == ["order", "volume"]
+    events, outcomes = to_event_log(null_db(1, n_per_group=6))
+    events.to_csv(tmp_path / "e.csv", index=False)
+    outcomes.to_csv(tmp_path / "o.csv", index=False)
+    base = ["analyze", str(tmp_path / "e.csv"), "--outcomes", str(tmp_path / "o.csv"),
+            "--out", str(tmp_path / "out"), "--quiet"]
+    assert main(base + ["--detector-evidence", "beyond"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert err.count("\n") == 0 and "'detectors.evidence' lists 'beyond'" in err
+    cfg_file = tmp_path / "c.toml"
+    cfg_file.write_text('[contrast]\nunit = "session"\n', encoding="utf-8")
+    assert main(base + ["--config", str(cfg_file)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert err.count("\n") == 0 and "'contrast.unit' must be 'learner'" in err
