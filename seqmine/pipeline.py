@@ -322,7 +322,7 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
             "order_test": "the same stratified test among the units that hold every item "
                           "of the pattern",
             "rate_test": "Mann-Whitney U on occurrences per 100 tokens",
-            "transition_test": "Mann-Whitney U on each learner's share of transitions "
+            "transition_test": "Welch's t test on each learner's share of transitions "
                                "(learner level); adjusted residuals are pooled description",
             "correction": con_cfg["correction"], "alpha": alpha,
             "n_permutations": int(con_cfg["n_permutations"]),

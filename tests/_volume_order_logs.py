@@ -8,8 +8,9 @@
   opposite order. Volume and item counts are alike; only the order differs.
 * :func:`null_db` -- no group difference at all (optionally a volume difference), for
   calibration.
-* :func:`frequency_only_db` -- ``strong`` learners do one action more often, at random
-  places: presence differs, order does not (a null for the order test).
+* :func:`frequency_only_db` -- tokens in random order in both groups, ``strong``
+  learners use one action more often: presence differs, order does not (a null for the
+  order test).
 * :func:`session_db` -- several sessions per learner with a learner-level effect, for
   unit-of-analysis checks.
 * :func:`to_event_log` -- the events and outcomes files of such a database, for runs
@@ -111,20 +112,21 @@ def null_db(seed, n_per_group=40, ratio=1.0, median=40, n_groups=2):
                                  group_names=names, pause_tokens=PAUSES, vocab=VOCAB)
 
 
-def frequency_only_db(seed, n_per_group=40, median=40, action="reset", extra=(1, 5)):
-    """Same process; each ``strong`` learner gets 1-4 extra ``action`` tokens at random
-    positions, so patterns holding it are more common there without any order."""
+def frequency_only_db(seed, n_per_group=40, median=40, action="reset", factor=2.0):
+    """Tokens drawn independently (random order in both groups); ``strong`` learners
+    draw ``action`` ``factor`` times as often. Patterns holding it are more common
+    there, but the arrangement is random everywhere: a null for the order test."""
     rng = np.random.default_rng(seed)
-    trans = transition_matrix()
+    base = np.full(len(VOCAB), 1.0)
     tok = VOCAB.index(action)
     seqs, groups = [], []
     for g in ("strong", "weak"):
+        p = base.copy()
+        if g == "strong":
+            p[tok] *= factor
+        p /= p.sum()
         for length in _lengths(rng, n_per_group, median):
-            s = list(markov_sequence(rng, int(length), trans))
-            if g == "strong":
-                for _ in range(int(rng.integers(*extra))):
-                    s.insert(int(rng.integers(0, len(s) + 1)), tok)
-            seqs.append(np.array(s))
+            seqs.append(rng.choice(len(VOCAB), size=int(length), p=p))
             groups.append(g)
     return _db(seqs, groups)
 

@@ -93,6 +93,15 @@ def test_permutation_chunks_equal_the_serial_stream_in_process(monkeypatch, jobs
         raw_p, adj_p = fn(x, labels, n_permutations=97, seed=7, batch_size=13, jobs=jobs)
         np.testing.assert_array_equal(raw_s, raw_p)
         np.testing.assert_array_equal(adj_s, adj_p)
+    # permutations within activity strata follow the same chunking rule
+    from seqmine.scoring.permutation import westfall_young_volume
+    strata = np.arange(len(labels)) % 3
+    raw_s, adj_s = westfall_young_volume(x, labels, strata, n_permutations=97, seed=7,
+                                         batch_size=10)
+    raw_p, adj_p = westfall_young_volume(x, labels, strata, n_permutations=97, seed=7,
+                                         batch_size=13, jobs=jobs)
+    np.testing.assert_array_equal(raw_s, raw_p)
+    np.testing.assert_array_equal(adj_s, adj_p)
 
 
 def test_contrast_westfall_young_in_local_processes_equals_serial():

@@ -15,6 +15,7 @@ from seqmine.scoring.transitions import transitions
 
 from _volume_order_logs import (
     EPISODE,
+    frequency_only_db,
     null_db,
     opposite_order_db,
     session_db,
@@ -95,12 +96,13 @@ def test_greenhouse_planted_behaviours_carry_the_evidence_their_construction_imp
     assert full["replication"] >= 0.5
 
 
-def _null_rates(n_sets, seed0, ratio, correction="bh", n_groups=2):
+def _null_rates(n_sets, seed0, ratio, correction="bh", n_groups=2, make=None):
     """Per new test, the share of null data sets with any q <= ALPHA (the family-wise
     error, which under the complete null equals the mean false discovery proportion)."""
     hits = {"q_volume": 0, "q_order": 0, "q_learners": 0}
     for s in range(n_sets):
-        db = null_db(seed0 + s, ratio=ratio, n_groups=n_groups)
+        db = (make(seed0 + s) if make else
+              null_db(seed0 + s, ratio=ratio, n_groups=n_groups))
         t = _score(db, correction=correction, n_permutations=99, seed=s)
         hits["q_volume"] += bool((t["q_volume"] <= ALPHA).any())
         hits["q_order"] += bool((t["q_order"] <= ALPHA).any())
@@ -123,6 +125,15 @@ def test_new_tests_hold_their_level_on_null_data(ratio):
     hits = _null_rates(n_sets, 7000 if ratio == 1.0 else 8000, ratio)
     for key, count in hits.items():
         assert count <= _upper(n_sets), (key, hits)
+
+
+@pytest.mark.slow
+def test_order_test_holds_its_level_when_only_item_frequency_differs():
+    # strong learners use 'reset' twice as often, tokens in random order in both groups:
+    # presence differs (q_volume is not under its null), the order test is
+    hits = _null_rates(40, 9500, 1.0, make=frequency_only_db)
+    assert hits["q_order"] <= _upper(40)
+    assert hits["q_volume"] > _upper(40)  # the frequency difference itself is found
 
 
 @pytest.mark.slow

@@ -9,7 +9,7 @@ from scipy import stats
 
 from .._util.checks import check_choice
 from ..errors import ParameterError
-from .effects import fisher_exact_many, kruskal_sparse, mannwhitney_sparse
+from .effects import fisher_exact_many
 from .multitest import adjust_pvalues
 
 __all__ = [
@@ -19,6 +19,7 @@ __all__ = [
     "quasi_independence_expected",
     "yules_q",
     "learner_transition_tests",
+    "welch_means_test",
     "TRANSITION_COLUMNS",
     "MAX_TRANSITION_CELLS",
 ]
@@ -74,9 +75,9 @@ def transitions(db, *, exclude_pauses=False, structural_zeros="auto", correction
         C = c - x, D = N - r - c + x; ``learners`` the group's learners with at least
         one transition out of a; ``learner_probability`` the mean over those learners
         of their own share of a's transitions that go to b; ``p_learners`` the
-        learner-level test that these per-learner shares are alike in every group
-        (two-sided Mann-Whitney U for two groups, Kruskal-Wallis otherwise, as scipy
-        computes them; see :func:`learner_transition_tests`); ``q_learners`` its
+        learner-level test that the groups' mean shares are equal (Welch's t test for
+        two groups, Welch's ANOVA otherwise; see :func:`learner_transition_tests`);
+        ``q_learners`` its
         adjustment; ``p_pooled`` the token-level test on the groups x (to b, to other)
         table of pooled counts (Fisher exact for two groups, Pearson chi-square
         otherwise), which treats every transition as independent and so overstates
@@ -214,9 +215,12 @@ def learner_transition_tests(db, pairs, *, exclude_pauses=False):
 
     Each learner's transitions (over all their sequences) give their own share of a's
     transitions that go to b, ``x_i / r_i``, defined for learners with ``r_i > 0``.
-    Those shares are compared between groups: two-sided Mann-Whitney U (two groups)
-    or Kruskal-Wallis (more), exactly as ``scipy.stats.mannwhitneyu`` /
-    ``scipy.stats.kruskal`` compute them. Every learner counts once, however active.
+    The groups' mean shares are compared with Welch's t test (two groups) or Welch's
+    one-way ANOVA (more), see :func:`welch_means_test`. Every learner counts once,
+    however active. Given ``r_i``, the share has mean p whatever ``r_i`` is, but its
+    spread shrinks as ``r_i`` grows, so groups that differ in activity differ in
+    spread: a test of means that allows unequal variances stays valid there, while a
+    rank test (which compares whole distributions) would not.
 
     Parameters
     ----------
@@ -237,11 +241,16 @@ def learner_transition_tests(db, pairs, *, exclude_pauses=False):
     Examples
     --------
     >>> from seqmine.encoding.sequences import SequenceDB
-    >>> db = SequenceDB.from_lists([["a", "b", "a", "b"], ["a", "a", "b"]] * 4,
-    ...                            groups=["strong", "weak"] * 4)
+    >>> seqs = [["a", "b", "a", "b"], ["a", "a", "b"], ["a", "b", "b"], ["a", "a", "a", "b"],
+    ...         ["a", "b", "a", "b", "a", "b"], ["a", "a", "b", "a"], ["a", "b", "a", "a"],
+    ...         ["b", "a", "a"]]
+    >>> db = SequenceDB.from_lists(seqs, groups=["strong", "weak"] * 4)
     >>> out = learner_transition_tests(db, np.array([[0, 1]]))
-    >>> out["mean_share"][:, 0].tolist(), round(float(out["p_learners"][0]), 4)
-    ([1.0, 0.5], 0.0131)
+    >>> out["mean_share"][:, 0].round(4).tolist(), round(float(out["p_learners"][0]), 4)
+    ([0.875, 0.3333], 0.0198)
+
+    (shares 1, 1, 1, 1/2 against 1/2, 1/3, 1/2, 0; ``scipy.stats.ttest_ind(...,
+    equal_var=False)`` gives the same p.)
     """
     pairs = np.asarray(pairs, dtype=np.int64).reshape(-1, 2)
     k = len(pairs)
@@ -280,22 +289,83 @@ def learner_transition_tests(db, pairs, *, exclude_pauses=False):
             continue
         share = sp.csc_matrix(sp.diags(1.0 / ra[rows]) @ x[rows][:, cols])
         lab = group_l[rows]
-        sizes = np.bincount(lab, minlength=n_groups)
+        sizes = np.bincount(lab, minlength=n_groups).astype(np.float64)
         out["learners"][:, cols] = sizes[:, None]
-        sums = np.stack([np.asarray(share[lab == g].sum(axis=0)).ravel()
-                         for g in range(n_groups)])
+        ind = sp.csr_matrix((np.ones(len(rows)), (lab, np.arange(len(rows)))),
+                            shape=(n_groups, len(rows)))
+        sums = np.asarray((ind @ share).todense())
+        sumsq = np.asarray((ind @ share.multiply(share)).todense())
         with np.errstate(divide="ignore", invalid="ignore"):
             out["mean_share"][:, cols] = np.where(sizes[:, None] > 0,
                                                   sums / sizes[:, None], np.nan)
-        present = np.flatnonzero(sizes > 0)
-        if len(present) < 2:
-            continue
-        if n_groups == 2:
-            out["p_learners"][cols] = mannwhitney_sparse(share, lab == 0)[1]
-        else:
-            remap = np.full(n_groups, -1)
-            remap[present] = np.arange(len(present))
-            out["p_learners"][cols] = kruskal_sparse(share, remap[lab], len(present))[1]
+        out["p_learners"][cols] = welch_means_test(sums, sumsq, sizes)
+    return out
+
+
+def welch_means_test(sums, sumsq, sizes):
+    """Heteroscedastic test that group means are equal, per column.
+
+    Parameters
+    ----------
+    sums, sumsq : ndarray, shape (n_groups, k)
+        Per group, the sum and the sum of squares of each column's values.
+    sizes : ndarray, shape (n_groups,)
+        Values per group.
+
+    Returns
+    -------
+    ndarray, shape (k,)
+        Two groups: Welch's t test, two-sided (``scipy.stats.ttest_ind(equal_var=False)``).
+        More: Welch's one-way ANOVA (Welch 1951; ``statsmodels anova_oneway(...,
+        use_var="unequal")``). Only groups with at least two values take part; NaN when
+        fewer than two do. Without any spread: 1.0 for equal means (scipy gives NaN) and,
+        with two groups, 0.0 for different means (as scipy); with more groups, NaN when
+        some group has no spread (the test is undefined there) unless all means are
+        equal.
+
+    Examples
+    --------
+    >>> x, y = np.array([1.0, 0.5, 0.75]), np.array([0.0, 0.25, 0.5, 0.25])
+    >>> p = welch_means_test(np.array([[x.sum()], [y.sum()]]),
+    ...                      np.array([[x @ x], [y @ y]]), np.array([3, 4]))
+    >>> from scipy import stats
+    >>> bool(np.isclose(p[0], stats.ttest_ind(x, y, equal_var=False).pvalue))
+    True
+    """
+    sums = np.asarray(sums, dtype=np.float64)
+    sumsq = np.asarray(sumsq, dtype=np.float64)
+    sizes = np.asarray(sizes, dtype=np.float64)
+    use = sizes >= 2
+    k = sums.shape[1]
+    p = np.full(k, np.nan)
+    if use.sum() < 2:
+        return p
+    n = sizes[use][:, None]
+    mean = sums[use] / n
+    var = np.maximum(sumsq[use] - n * mean ** 2, 0.0) / (n - 1)
+    var = np.where(var < 1e-12 * np.maximum(mean ** 2, 1.0), 0.0, var)
+    se2 = var / n
+    spread = (var > 0).all(axis=0)
+    flat = (mean.max(axis=0) - mean.min(axis=0)) <= 1e-12
+    with np.errstate(divide="ignore", invalid="ignore"):
+        if len(n) == 2:
+            s2 = se2.sum(axis=0)
+            t = (mean[0] - mean[1]) / np.sqrt(s2)
+            df = s2 ** 2 / (se2[0] ** 2 / (n[0] - 1) + se2[1] ** 2 / (n[1] - 1))
+            res = 2.0 * stats.t.sf(np.abs(t), df)
+            # no spread in either group: equal means give 1, different means 0 (as scipy)
+            return np.where(s2 > 0, res, np.where(flat, 1.0, 0.0))
+        g = len(n)
+        w = n / var
+        wsum = w.sum(axis=0)
+        grand = (w * mean).sum(axis=0) / wsum
+        a = (w * (mean - grand) ** 2).sum(axis=0) / (g - 1)
+        tmp = ((1.0 - w / wsum) ** 2 / (n - 1)).sum(axis=0)
+        b = 1.0 + 2.0 * (g - 2) / (g ** 2 - 1) * tmp
+        f = a / b
+        df2 = (g ** 2 - 1) / (3.0 * tmp)
+        res = stats.f.sf(f, g - 1, df2)
+    return np.where(spread, res, np.where(flat, 1.0, np.nan))
     return out
 
 
