@@ -306,7 +306,7 @@ def _evidence(data):
     size = f"{data.get('learners')} learners x {data.get('patterns')} patterns"
     ref = {"volume-adjusted test (CMH over strata) + BH": "ratio_volume_to_fisher_cpu",
            "order test (holders, chance bins, CMH) + BH": "ratio_order_to_fisher_cpu",
-           "replication, 20 splits (30 % of patterns by order test)":
+           "replication, 20 splits (30 % findings, half by order test)":
                "ratio_replication_to_bootstrap_cpu"}
     rows = []
     for name, r in steps.items():

@@ -176,10 +176,11 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
     come out again in new learners.
 
     *Replication.* Each of ``replication_splits`` random splits halves every group's
-    units; ``replication`` is the fraction of splits in which the test named by
-    ``evidence`` (the volume-adjusted test for rows without evidence, the raw test
-    for ``"volume"``) has p <= ``alpha`` in both halves, favouring the full-data group
-    (:func:`seqmine.scoring.replication.split_half_replication`).
+    units; for each finding, ``replication`` is the fraction of splits in which the
+    test named by ``evidence`` (the volume-adjusted test for ``"presence"``, the raw
+    test for ``"volume"``) has p <= ``alpha`` in both halves, favouring the full-data
+    group (:func:`seqmine.scoring.replication.split_half_replication`); NaN for
+    patterns without evidence (nothing was found to replicate).
 
     *Redundancy.* Patterns are visited by priority (``redundancy_order``); a pattern
     is redundant when the Jaccard index of its set of supporting sequences with
@@ -296,11 +297,14 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
     else:
         stability = np.full(m, np.nan)
 
+    # replication is of findings: the test named by the evidence (without activity
+    # volumes, the raw test of rows that favour a group); NaN for the rest
     if ev["strata"] is None:
-        tests, rep_dir = np.full(m, "raw", dtype=object), dir_raw
+        tests = np.where(favours != "", "raw", "")
+        rep_dir = dir_raw
     else:
-        tests = np.where(evidence == "order", "order",
-                         np.where(evidence == "volume", "raw", "volume"))
+        tests = np.where(evidence == "order", "order", np.where(
+            evidence == "presence", "volume", np.where(evidence == "volume", "raw", "")))
         rep_dir = np.where(evidence == "order", ev["dir_order"],
                            np.where(evidence == "volume", dir_raw, ev["dir_volume"]))
     replication = split_half_replication(

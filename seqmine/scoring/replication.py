@@ -4,6 +4,7 @@ confirmed in the other?"""
 from __future__ import annotations
 
 import numpy as np
+import scipy.sparse as sp
 
 from .._util.checks import check_int
 from .adjusted import CellCounter, cmh_from_counts, order_tables
@@ -59,7 +60,9 @@ def split_half_replication(presence, labels, n_groups, tests, directions, *, alp
         Group index of each unit.
     n_groups : int
     tests : array_like of str, shape (n_patterns,)
-        Which test each pattern's finding rests on (:data:`REPLICATION_TESTS`).
+        Which test each pattern's finding rests on (:data:`REPLICATION_TESTS`); any
+        other value (e.g. ``""`` for a pattern without a finding) gives NaN, and such
+        patterns cost nothing.
     directions : array_like of int, shape (n_patterns,)
         Group the full data favour (-1 = none: never replicates).
     alpha : float
@@ -80,7 +83,8 @@ def split_half_replication(presence, labels, n_groups, tests, directions, *, alp
     -------
     ndarray of float, shape (n_patterns,)
         Fraction of splits in which the test has p <= ``alpha`` in *both* halves and
-        both favour the full-data group: found in one half, confirmed in the other.
+        both favour the full-data group: found in one half, confirmed in the other
+        (NaN for patterns without a test).
 
     Notes
     -----
@@ -104,13 +108,18 @@ def split_half_replication(presence, labels, n_groups, tests, directions, *, alp
     tests = np.asarray(tests, dtype=object)
     directions = np.asarray(directions, dtype=np.int64)
     m = presence.shape[1]
+    out = np.full(m, np.nan)
     if n_splits == 0 or m == 0:
-        return np.full(m, np.nan)
+        return out
+    use = {t: np.flatnonzero(tests == t) for t in REPLICATION_TESTS}
+    counted = np.sort(np.concatenate([use["raw"], use["volume"]]))
+    if len(counted) == 0 and len(use["order"]) == 0:
+        return out
     halves = split_halves(labels, n_splits, seed).astype(np.int64)
     n_s = int(strata.max()) + 1 if strata is not None and len(strata) else 1
     st = strata if strata is not None else np.zeros(len(labels), dtype=np.int64)
     hits = np.zeros(m, dtype=np.int64)
-    use = {t: np.flatnonzero(tests == t) for t in REPLICATION_TESTS}
+    presence = sp.csc_matrix(presence)
     order_tabs = None
     if len(use["order"]):
         if lengths is None:
@@ -119,27 +128,32 @@ def split_half_replication(presence, labels, n_groups, tests, directions, *, alp
                                   [patterns[i] for i in use["order"]],
                                   [(halves[r] * n_groups + labels, 2 * n_groups)
                                    for r in range(n_splits)], n_s)
-    counter = CellCounter(presence)
+    # only the patterns that need per-half presence counts are counted
+    counter = CellCounter(presence[:, counted])
+    local = {t: np.searchsorted(counted, use[t]) for t in ("raw", "volume")}
     for r in range(n_splits):
         sub = halves[r] * n_groups + labels
-        x = counter.counts(sub, st, 2 * n_groups, n_s).reshape(2, n_groups, n_s, m)
+        x = counter.counts(sub, st, 2 * n_groups, n_s).reshape(2, n_groups, n_s, -1)
         sizes = np.bincount(sub * n_s + st, minlength=2 * n_groups * n_s).reshape(
             2, n_groups, n_s).astype(np.float64)
         p = np.ones((2, m))
         fav = np.full((2, m), -1, dtype=np.int64)
-        for h in (0, 1):
-            if len(use["raw"]):
-                j = use["raw"]
-                p[h, j], fav[h, j] = _raw_test(x[h][:, :, j].sum(axis=1), sizes[h].sum(axis=1))
+        if len(use["raw"]):
+            j, jl = use["raw"], local["raw"]
+            for h in (0, 1):
+                p[h, j], fav[h, j] = _raw_test(x[h][:, :, jl].sum(axis=1),
+                                               sizes[h].sum(axis=1))
         if len(use["volume"]):
-            j = use["volume"]
-            p[:, j], fav[:, j] = _both_halves(x[:, :, :, j], sizes[:, :, :, None])
+            j, jl = use["volume"], local["volume"]
+            p[:, j], fav[:, j] = _both_halves(x[:, :, :, jl], sizes[:, :, :, None])
         if order_tabs is not None:
             j = use["order"]
             xo, el = (a.reshape(2, n_groups, n_s, -1) for a in order_tabs[r])
             p[:, j], fav[:, j] = _both_halves(xo, el)
         hits += np.all((p <= alpha) & (fav == directions) & (directions >= 0), axis=0)
-    return hits / n_splits
+    done = np.concatenate([counted, use["order"]])
+    out[done] = hits[done] / n_splits
+    return out
 
 
 def _both_halves(x, sizes):
