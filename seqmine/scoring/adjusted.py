@@ -381,18 +381,17 @@ def order_tables(presence, token_counts, lengths, patterns, labelings, n_bins, *
         p_ok = holds[p_unit, local[p_pat]]
         p_unit, p_pat = p_unit[p_ok], p_pat[p_ok]
         p_bin = bins[p_unit, local[p_pat]]
+        bases = {}
         for (lab, k), (x_out, n_out) in zip(labelings, outs):
-            lab = np.asarray(lab, dtype=np.int64)
+            lab = np.asarray(lab, dtype=np.int64) * n_bins
             width_c = k * n_bins
-            lh = lab[h_unit]
-            ok = lh >= 0
-            sizes = np.bincount((h_set * width_c + lh * n_bins + h_bin)[ok],
-                                minlength=rb * width_c).reshape(rb, k, n_bins)
+            if width_c not in bases:    # the label-free part of the flat cell index
+                bases[width_c] = (h_set * width_c + h_bin, p_pat * width_c + p_bin)
+            h_base, p_base = bases[width_c]
+            sizes = _bincount_cells(h_base, lab[h_unit], rb * width_c).reshape(rb, k, n_bins)
             n_out[:, :, pats] = np.moveaxis(sizes[local], 0, -1)
-            lp = lab[p_unit]
-            ok = lp >= 0
-            xs = np.bincount((p_pat * width_c + lp * n_bins + p_bin)[ok],
-                             minlength=len(pats) * width_c).reshape(len(pats), k, n_bins)
+            xs = _bincount_cells(p_base, lab[p_unit], len(pats) * width_c).reshape(
+                len(pats), k, n_bins)
             x_out[:, :, pats] = np.moveaxis(xs, 0, -1)
     return outs
 
@@ -466,6 +465,14 @@ class _Chance:
         kb = self.k_of[start:stop]
         log_e += self.log_pos[:, kb] - self.log_lfall[:, kb]
         return holds, log_e
+
+
+def _bincount_cells(base, offset, length):
+    """``bincount(base + offset)`` over the entries whose offset is not negative."""
+    if len(offset) and offset.min() < 0:
+        ok = offset >= 0
+        return np.bincount(base[ok] + offset[ok], minlength=length)
+    return np.bincount(base + offset, minlength=length)
 
 
 def _chance_bins(values, holds, n_bins):
