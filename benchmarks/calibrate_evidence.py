@@ -17,7 +17,7 @@ for Benjamini-Hochberg, Holm and Westfall-Young alike. Settings:
 * ``frequency`` -- same process, the first group does ``reset`` more often at random
   places (presence differs, so only the order test is under its null);
 * ``volume-holm``, ``volume-wy`` -- the ``volume`` setting with Holm and with
-  Westfall-Young (199 permutations; ``q_volume`` permutes within activity strata);
+  Westfall-Young (199 permutations for ``q_value``; the new tests use Holm then);
 * ``three-groups`` -- three groups, the first 1.7x more active.
 
 Writes ``benchmarks/results/calibration.json`` (``calibration_quick.json``) and prints

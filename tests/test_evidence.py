@@ -25,7 +25,6 @@ from seqmine.scoring.adjusted import (
 )
 from seqmine.scoring.contrast import contrast
 from seqmine.scoring.evidence import classify_evidence
-from seqmine.scoring.permutation import permute_within, westfall_young_volume
 from seqmine.scoring.replication import split_half_replication, split_halves
 from seqmine.scoring.transitions import learner_transition_tests, transitions
 
@@ -276,47 +275,6 @@ def test_learners_are_the_units_of_every_new_test():
     b = t_j.set_index("pattern").loc[a.index, cols]
     np.testing.assert_allclose(a.to_numpy(float), b.to_numpy(float), rtol=1e-12)
     assert t_s.attrs["unit"] == "learner" and t_s.attrs["n_sequences"] == 24
-
-
-# ------------------------------------------------- Westfall-Young within strata
-def test_westfall_young_volume_equals_brute_force_loop():
-    # replay the documented permutation stream: permute_within(rng, labels, strata) with
-    # rng = default_rng(seed); p-values per permutation from statsmodels per pattern
-    rng = np.random.default_rng(11)
-    n, m = 40, 7
-    labels = np.repeat([0, 1], 20)
-    strata = rng.integers(0, 4, n)
-    pres = (rng.random((n, m)) < np.linspace(0.2, 0.8, m)).astype(np.int8)
-    pres[labels == 0, 0] |= (rng.random(20) < 0.5).astype(np.int8)
-
-    def pvals(lab):
-        out = []
-        for j in range(m):
-            tables = [[[np.sum((lab == 0) & (strata == s) & (pres[:, j] == 1)),
-                        np.sum((lab == 0) & (strata == s) & (pres[:, j] == 0))],
-                       [np.sum((lab == 1) & (strata == s) & (pres[:, j] == 1)),
-                        np.sum((lab == 1) & (strata == s) & (pres[:, j] == 0))]]
-                      for s in range(4)]
-            p = _statsmodels_cmh(tables)
-            out.append(1.0 if p is None else p)
-        return np.array(out)
-
-    raw, adj = westfall_young_volume(sp.csr_matrix(pres), labels, strata, n_permutations=30,
-                                     seed=5, batch_size=7)
-    ref_raw = pvals(labels)
-    np.testing.assert_allclose(raw, ref_raw, rtol=1e-9)
-    order = np.argsort(ref_raw, kind="stable")
-    r = np.random.default_rng(5)
-    exceed = np.zeros(m)
-    for _ in range(30):
-        perm = permute_within(r, labels, strata)
-        for s in range(4):  # the permutation keeps every stratum's group sizes
-            assert np.sum(perm[strata == s]) == np.sum(labels[strata == s])
-        q = np.minimum.accumulate(pvals(perm)[order][::-1])[::-1]
-        exceed += q <= ref_raw[order] * (1 + 1e-7)
-    ref_adj = np.empty(m)
-    ref_adj[order] = np.maximum.accumulate((exceed + 1) / 31)
-    np.testing.assert_allclose(adj, ref_adj, atol=1e-12)
 
 
 # ------------------------------------------------------------------ replication

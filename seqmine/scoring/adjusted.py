@@ -194,8 +194,7 @@ def cmh_moments(present, sizes):
 
     Parameters are those of :func:`cmh_from_counts`. Returns ``excess`` (G, m) and
     ``cov`` (m, G-1, G-1), the covariance of the first ``G - 1`` groups' summed counts
-    given every stratum's margins. Both stay fixed when labels are permuted within
-    strata, which the stratified permutation test relies on.
+    given every stratum's margins.
     """
     x = np.asarray(present, dtype=np.float64)
     if x.ndim != 3:
