@@ -158,8 +158,8 @@ def main(argv=None):
                     support_counts=np.zeros((m, 2), np.int64), counts=presence,
                     seq_groups=labels)
     clock("contrast table, old columns only (lengths, no token counts), 100 resamples",
-          lambda: contrast(ps, lengths=lengths, stability_resamples=100,
-                           replication_splits=0, redundancy=None))
+          lambda: contrast(ps, lengths=lengths, n_bootstrap=100,
+                           n_replication_splits=0, redundancy=None))
 
     # the whole table with every new column needs a database; pass the token counts
     # through the same path contrast() uses
@@ -168,8 +168,8 @@ def main(argv=None):
     con._unit_activity = lambda db, lens, agg: (volume, tokens)
     try:
         clock("contrast table, all columns (volume, order, 20 splits), 100 resamples",
-              lambda: contrast(ps, lengths=lengths, stability_resamples=100,
-                               replication_splits=20, redundancy=None))
+              lambda: contrast(ps, lengths=lengths, n_bootstrap=100,
+                               n_replication_splits=20, redundancy=None))
     finally:
         con._unit_activity = real
     load_after = os.getloadavg()

@@ -70,8 +70,8 @@ def run_setting(name, n_sets, seed0):
         db = gen(seed0 + s, **kwargs)
         ps = mine(db, **MINING)
         n_patterns.append(ps.n_patterns)
-        t = contrast(ps, db, correction=correction, n_permutations=199, seed=s,
-                     stability_resamples=0, replication_splits=0, redundancy=None)
+        t = contrast(ps, db, correction=correction, n_permutations=199, random_state=s,
+                     n_bootstrap=0, n_replication_splits=0, redundancy=None)
         for key in ("q_volume", "q_order"):
             if key in hits:
                 hits[key] += bool((t[key] <= ALPHA).any())

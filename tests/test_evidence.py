@@ -175,7 +175,7 @@ def test_activity_strata_follow_the_documented_rule():
                 assert got[a] <= got[b]
     assert activity_strata(np.arange(1000)).max() + 1 == 50      # automatic: at most 50
     assert activity_strata(np.arange(95)).max() + 1 == 9         # about ten per stratum
-    with pytest.raises(ParameterError, match="'volume_strata' parameter of contrast"):
+    with pytest.raises(ParameterError, match="'n_volume_strata' parameter of contrast"):
         activity_strata([1, 2], 0)
 
 
@@ -224,14 +224,14 @@ def test_order_and_volume_tests_equal_brute_force(seed, n_units, max_gap, n_stra
     rng = np.random.default_rng(seed)
     db = _small_db(rng, n_units)
     ps = mine(db, min_support=1, min_length=1, max_length=3, max_gap=max_gap)
-    table = contrast(ps, db, stability_resamples=0, replication_splits=0, redundancy=None,
-                     volume_strata=n_strata).set_index("pattern")
+    table = contrast(ps, db, n_bootstrap=0, n_replication_splits=0, redundancy=None,
+                     n_volume_strata=n_strata).set_index("pattern")
     seqs = [db.sequence(i).tolist() for i in range(db.n_sequences)]
     groups = db.groups.tolist()
     events = [len(s) for s in seqs]
     strata = _brute_strata(events, n_strata)
     n_bins = max(strata) + 1
-    assert table.attrs["volume_strata"] == n_bins
+    assert table.attrs["n_volume_strata"] == n_bins
     for pat, name in zip(ps.patterns, ps.names):
         row = table.loc[name]
         assert row["p_volume"] == pytest.approx(
@@ -264,12 +264,12 @@ def test_learners_are_the_units_of_every_new_test():
                                  learners=learners[::2], vocab=["a", "b", "c", "|"],
                                  pause_tokens=["|"])
     ps_s = mine(db_s, min_support=1, min_length=1, max_length=2, max_gap=0)
-    t_s = contrast(ps_s, db_s, stability_resamples=0, replication_splits=5, redundancy=None)
+    t_s = contrast(ps_s, db_s, n_bootstrap=0, n_replication_splits=5, redundancy=None)
     from seqmine.mining.miner import match
     ps_j = match(db_j, ps_s.patterns, max_gap=0)
     # the joined database has the separator token: its lengths differ by one token,
     # which the order test's chance index sees, but events (actions) are equal
-    t_j = contrast(ps_j, db_j, stability_resamples=0, replication_splits=5, redundancy=None)
+    t_j = contrast(ps_j, db_j, n_bootstrap=0, n_replication_splits=5, redundancy=None)
     cols = ["support_strong", "support_weak", "p_value", "p_volume", "q_volume"]
     a = t_s.set_index("pattern")[cols].sort_index()
     b = t_j.set_index("pattern").loc[a.index, cols]
@@ -280,10 +280,10 @@ def test_learners_are_the_units_of_every_new_test():
 # ------------------------------------------------------------------ replication
 def test_split_halves_are_balanced_and_seeded():
     labels = np.array([0] * 7 + [1] * 4)
-    h = split_halves(labels, 6, seed=3)
+    h = split_halves(labels, 6, random_state=3)
     assert (h[:, :7].sum(axis=1) == 4).all() and (h[:, 7:].sum(axis=1) == 2).all()
-    np.testing.assert_array_equal(h, split_halves(labels, 6, seed=3))
-    assert not np.array_equal(h, split_halves(labels, 6, seed=4))
+    np.testing.assert_array_equal(h, split_halves(labels, 6, random_state=3))
+    assert not np.array_equal(h, split_halves(labels, 6, random_state=4))
 
 
 def test_replication_equals_brute_force_halves():
@@ -299,7 +299,7 @@ def test_replication_equals_brute_force_halves():
     tests = ["raw", "volume", "volume"]
     directions = [0, 0, 1]
     got = split_half_replication(sp.csr_matrix(pres), labels, 2, tests, directions,
-                                 alpha=0.1, n_splits=12, seed=2, strata=strata)
+                                 alpha=0.1, n_splits=12, random_state=2, strata=strata)
     halves = split_halves(labels, 12, 2)
     hits = np.zeros(3)
     for r in range(12):

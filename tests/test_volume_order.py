@@ -31,7 +31,7 @@ MINING = dict(min_support=0.2, min_length=1, max_length=4, max_gap=0, skip_pause
 
 def _score(db, **kw):
     ps = mine(db, **MINING)
-    opts = dict(stability_resamples=0, replication_splits=0, redundancy=None)
+    opts = dict(n_bootstrap=0, n_replication_splits=0, redundancy=None)
     opts.update(kw)
     return contrast(ps, db, **opts)
 
@@ -52,7 +52,7 @@ def test_volume_only_differences_do_not_survive_the_adjustment(seed):
 @pytest.mark.parametrize("seed", [0, 1, 2])
 def test_opposite_orders_are_order_findings_for_the_right_group(seed):
     db = opposite_order_db(seed)
-    t = _score(db, replication_splits=10).set_index("pattern")
+    t = _score(db, n_replication_splits=10).set_index("pattern")
     forward = " > ".join(EPISODE)
     backward = " > ".join(EPISODE[::-1])
     expect = {forward: "strong", backward: "weak",
@@ -82,7 +82,7 @@ def test_greenhouse_planted_behaviours_carry_the_evidence_their_construction_imp
     truth = json.loads((DATA / "ground_truth.json").read_text(encoding="utf-8"))
     db = prepare_sequences(load_events(DATA / "events.csv"), load_outcomes(DATA / "outcomes.csv"),
                            encoder=Encoder()).db
-    t = _score(db, replication_splits=20).set_index("pattern")
+    t = _score(db, n_replication_splits=20).set_index("pattern")
     implied = {"controlled_comparison": "order", "settings_burst": "presence",
                "decorating": "presence", "look_it_up": ""}
     for b in truth["behaviours"]:
@@ -103,7 +103,7 @@ def _null_rates(n_sets, seed0, ratio, correction="bh", n_groups=2, make=None):
     for s in range(n_sets):
         db = (make(seed0 + s) if make else
               null_db(seed0 + s, ratio=ratio, n_groups=n_groups))
-        t = _score(db, correction=correction, n_permutations=99, seed=s)
+        t = _score(db, correction=correction, n_permutations=99, random_state=s)
         hits["q_volume"] += bool((t["q_volume"] <= ALPHA).any())
         hits["q_order"] += bool((t["q_order"] <= ALPHA).any())
         tr = transitions(db)
@@ -137,7 +137,7 @@ def test_order_test_holds_its_level_when_only_item_frequency_differs():
 
 
 @pytest.mark.slow
-def test_westfall_young_volume_holds_its_level_with_more_groups():
+def test_westfall_young_runs_hold_their_level_with_more_groups():
     hits = _null_rates(20, 9000, 1.7, correction="westfall-young", n_groups=3)
     assert hits["q_volume"] <= _upper(20) and hits["q_order"] <= _upper(20)
 
@@ -155,8 +155,8 @@ def volume_run(tmp_path_factory):
     cfg = default_config()
     cfg["phases"]["enabled"] = False
     cfg["validate"]["enabled"] = False
-    cfg["contrast"]["stability_resamples"] = 20
-    cfg["contrast"]["replication_splits"] = 10
+    cfg["contrast"]["n_bootstrap"] = 20
+    cfg["contrast"]["n_replication_splits"] = 10
     result = analyze(root / "events.csv", root / "outcomes.csv", root / "out", cfg, quiet=True)
     return root / "out", result
 
@@ -207,7 +207,7 @@ def test_sessions_count_learners_once_unless_asked(tmp_path):
     cfg["encode"]["unit"] = "session"
     cfg["phases"]["enabled"] = False
     cfg["validate"]["enabled"] = False
-    cfg["contrast"]["stability_resamples"] = 0
+    cfg["contrast"]["n_bootstrap"] = 0
     learner = analyze(tmp_path / "events.csv", tmp_path / "outcomes.csv", tmp_path / "a", cfg,
                       quiet=True)
     assert learner.summary["unit_of_analysis"] == "learner"
@@ -268,20 +268,23 @@ def test_analyze_flags_and_their_messages(tmp_path, capsys):
 
     args = build_parser().parse_args(
         ["analyze", "e.csv", "--outcomes", "o.csv", "--out", "x", "--contrast-unit",
-         "sequence", "--replication-splits", "5", "--detector-evidence", "order,volume"])
-    cfg = config_from_args(args, args._defaults)
-    assert cfg["contrast"]["unit"] == "sequence" and cfg["contrast"]["replication_splits"] == 5
+         "sequence", "--replication-splits", "5", "--evidence", "order,volume"])
+    cfg = config_from_args(args)
+    assert cfg["contrast"]["unit"] == "sequence" and cfg["contrast"]["n_replication_splits"] == 5
     assert cfg["detectors"]["evidence"] == ["order", "volume"]
     events, outcomes = to_event_log(null_db(1, n_per_group=6))
     events.to_csv(tmp_path / "e.csv", index=False)
     outcomes.to_csv(tmp_path / "o.csv", index=False)
     base = ["analyze", str(tmp_path / "e.csv"), "--outcomes", str(tmp_path / "o.csv"),
             "--out", str(tmp_path / "out"), "--quiet"]
-    assert main(base + ["--detector-evidence", "beyond"]) == 2
+    assert main(base + ["--evidence", "beyond"]) == 2
     err = capsys.readouterr().err.strip()
-    assert err.count("\n") == 0 and "'detectors.evidence' lists 'beyond'" in err
+    assert err.count("\n") == 0 and "--evidence: expected a comma-separated list" in err
     cfg_file = tmp_path / "c.toml"
-    cfg_file.write_text('[contrast]\nunit = "session"\n', encoding="utf-8")
-    assert main(base + ["--config", str(cfg_file)]) == 2
-    err = capsys.readouterr().err.strip()
-    assert err.count("\n") == 0 and "'contrast.unit' must be 'learner'" in err
+    for text, needle in [('[detectors]\nevidence = ["beyond"]\n',
+                          "'detectors.evidence' lists 'beyond'"),
+                         ('[contrast]\nunit = "session"\n', "'contrast.unit' must be 'learner'")]:
+        cfg_file.write_text(text, encoding="utf-8")
+        assert main(base + ["--config", str(cfg_file)]) == 2
+        err = capsys.readouterr().err.strip()
+        assert err.count("\n") == 0 and needle in err, err

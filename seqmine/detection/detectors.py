@@ -42,6 +42,7 @@ import numpy as np
 import pandas as pd
 
 from .._util.checks import check_int, check_number
+from ..config import DEFAULT_CONFIG
 from ..encoding.sequences import PAUSE_PREFIX
 from ..errors import ColumnError, DataFileError, ParameterError, SeqmineWarning
 from ..mining.patterns import PATTERN_SEPARATOR, is_subsequence
@@ -76,7 +77,7 @@ _EFFECT_COLUMNS = ("risk_difference", "odds_ratio", "cohens_h", "cliffs_delta")
 #: Values of the contrast table's ``evidence`` column a detector may rest on.
 EVIDENCE_KINDS = ("order", "presence", "volume")
 #: Default: only findings that survive the volume adjustment become detectors.
-DEFAULT_EVIDENCE = ("order", "presence")
+DEFAULT_EVIDENCE = tuple(DEFAULT_CONFIG["detectors"]["evidence"])
 _TEMPLATE_FIELDS = ("action", "target", "channel", "session")
 _PAUSE_STRATEGIES = ("quantile", "fixed", "learner_quantile", "none")
 _TOP_KEYS = {"format", "version", "notice", "encoding", "vocabulary", "matching", "groups",
@@ -87,9 +88,14 @@ _MATCHING_KEYS = {"max_gap", "max_window", "skip_pauses"}
 
 
 # ====================================================================== selection
-def select_detectors(contrast_table, *, max_q=0.05, min_effect=0.2, effect="cohens_h",
-                     min_stability=0.5, lengths=None, groups=None, max_detectors=50,
-                     drop_redundant=True, evidence=DEFAULT_EVIDENCE):
+_DEFAULTS = DEFAULT_CONFIG["detectors"]
+
+
+def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
+                     min_effect=_DEFAULTS["min_effect"], effect=_DEFAULTS["effect"],
+                     min_stability=_DEFAULTS["min_stability"], lengths=None, groups=None,
+                     max_detectors=_DEFAULTS["max_detectors"], drop_redundant=True,
+                     evidence=DEFAULT_EVIDENCE):
     """Choose the contrast-table rows worth exporting as detectors.
 
     A row is kept when it favours a group, its ``evidence`` is one of ``evidence``
@@ -122,6 +128,7 @@ def select_detectors(contrast_table, *, max_q=0.05, min_effect=0.2, effect="cohe
     groups : str or list of str, optional
         Only patterns favouring these groups.
     max_detectors : int >= 1, optional
+        At most this many rows (default 20); None = no limit.
     drop_redundant : bool
     evidence : sequence of {"order", "presence", "volume"}, or None
         Kinds of evidence a row may rest on (the ``evidence`` column of the contrast
@@ -372,9 +379,11 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
     return doc
 
 
-def export_detectors(contrast_table, db, constraints=None, *, max_q=0.05, min_effect=0.2,
-                     effect="cohens_h", min_stability=0.5, lengths=None, groups=None,
-                     max_detectors=50, drop_redundant=True, evidence=DEFAULT_EVIDENCE,
+def export_detectors(contrast_table, db, constraints=None, *, max_q=_DEFAULTS["max_q"],
+                     min_effect=_DEFAULTS["min_effect"], effect=_DEFAULTS["effect"],
+                     min_stability=_DEFAULTS["min_stability"], lengths=None, groups=None,
+                     max_detectors=_DEFAULTS["max_detectors"], drop_redundant=True,
+                     evidence=DEFAULT_EVIDENCE,
                      strong=None, weak=None, absence_after_events=None,
                      absence_after_seconds=None):
     """Select rows of a contrast table and build the detectors document in one step.

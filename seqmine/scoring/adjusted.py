@@ -80,7 +80,7 @@ def activity_strata(volume, n_strata=None):
     n = len(v)
     if n_strata is None:
         n_strata = int(np.clip(n // UNITS_PER_STRATUM, 2, MAX_AUTO_STRATA))
-    n_strata = check_int(n_strata, "volume_strata", "contrast", minimum=1)
+    n_strata = check_int(n_strata, "n_volume_strata", "contrast", minimum=1)
     if n == 0:
         return np.zeros(0, dtype=np.int64)
     edges = np.unique(np.quantile(v, np.linspace(0.0, 1.0, n_strata + 1)[1:-1]))

@@ -10,7 +10,7 @@ import pandas as pd
 import scipy.sparse as sp
 
 from .._util.checks import check_choice, check_fraction, check_int
-from ..config import CONTRAST_CORRECTIONS
+from ..config import CONTRAST_CORRECTIONS, DEFAULT_CONFIG
 from ..errors import ParameterError, SeqmineWarning
 from ..mining.patterns import PatternSet
 from .effects import (
@@ -49,13 +49,18 @@ SMALL_GROUP_SIZE = 5
 #: Values of the ``correction`` parameter.
 
 _RATE_UNITS = ("tokens", "actions", "count")
+_DEFAULTS = DEFAULT_CONFIG["contrast"]
 _ORDERS = ("significance", "length")
 
 
-def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", alpha=0.05,
-             n_permutations=1000, seed=0, stability_resamples=100, replication_splits=20,
-             volume_strata=None, redundancy=0.9, redundancy_order="significance",
-             drop_redundant=False, rate_unit=None, unit=None, batch_size=None, jobs=1,
+def contrast(patterns, db=None, *, lengths=None, groups=None,
+             correction=_DEFAULTS["correction"], alpha=_DEFAULTS["alpha"],
+             n_permutations=_DEFAULTS["n_permutations"], random_state=DEFAULT_CONFIG["seed"],
+             n_bootstrap=_DEFAULTS["n_bootstrap"],
+             n_replication_splits=_DEFAULTS["n_replication_splits"],
+             n_volume_strata=_DEFAULTS["n_volume_strata"], redundancy=_DEFAULTS["redundancy"],
+             redundancy_order="significance", drop_redundant=False, rate_unit=None,
+             unit=_DEFAULTS["unit"], batch_size=None, n_jobs=DEFAULT_CONFIG["n_jobs"],
              scheduler=None):
     """Score every pattern for how it separates outcome groups.
 
@@ -84,13 +89,13 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
         level of the stability resamples.
     n_permutations : int
         Permutations for ``"westfall-young"``.
-    seed : int
+    random_state : int
         Seed of the permutations and bootstrap resamples (same seed, same table).
-    stability_resamples : int
+    n_bootstrap : int
         Stratified bootstrap resamples for ``stability`` (0 = skip, column NaN).
-    replication_splits : int
+    n_replication_splits : int
         Random half splits for ``replication`` (0 = skip, column NaN).
-    volume_strata : int, optional
+    n_volume_strata : int, optional
         Activity strata of the volume adjustment; default about one per ten units
         (at least 2, at most 50; see :func:`seqmine.scoring.adjusted.activity_strata`).
     redundancy : float or None
@@ -106,18 +111,18 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
         Rates are instance counts per 100 tokens of the sequence (pauses included),
         per 100 action tokens (needs ``db``), or raw instance counts per sequence.
         Default: ``"tokens"`` when lengths are known, else ``"count"``.
-    unit : {"learner", "sequence"}, optional
-        Unit of analysis. ``"learner"`` (needs ``db``) first merges each learner's
-        sequences (sessions): instance counts, lengths and token counts are summed, a
-        pattern is present when it occurs in any of them; supports are then shares of
-        learners and permutations, resamples and splits move whole learners.
-        ``"sequence"`` treats every sequence (session) as an independent unit and warns
-        (``sessions_not_independent``) when a learner has several. Default:
-        ``"learner"`` when ``db`` is given, else ``"sequence"``.
+    unit : {"learner", "sequence"}
+        Unit of analysis. ``"learner"`` first merges each learner's sequences
+        (sessions, known from ``db``): instance counts, lengths and token counts are
+        summed, a pattern is present when it occurs in any of them; supports are then
+        shares of learners and permutations, resamples and splits move whole learners
+        (without ``db`` each sequence counts as one learner). ``"sequence"`` treats
+        every sequence (session) as an independent unit and warns
+        (``sessions_not_independent``) when a learner has several.
     batch_size : int, optional
         Permutations/resamples per sparse product (memory bound).
-    jobs, scheduler
-        Westfall-Young permutations in ``jobs`` local processes or on a Dask cluster
+    n_jobs, scheduler
+        Westfall-Young permutations in ``n_jobs`` local processes or on a Dask cluster
         (``"local"`` or an address); the table is identical to the serial run.
 
     Returns
@@ -174,7 +179,7 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
     stability says whether a finding rests on a few of them, not whether it would
     come out again in new learners.
 
-    *Replication.* Each of ``replication_splits`` random splits halves every group's
+    *Replication.* Each of ``n_replication_splits`` random splits halves every group's
     units; for each finding, ``replication`` is the fraction of splits in which the
     test named by ``evidence`` (the volume-adjusted test for ``"presence"``, the raw
     test for ``"volume"``) has p <= ``alpha`` in both halves, favouring the full-data
@@ -209,7 +214,7 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
     >>> ps = PatternSet(patterns=[(0, 1), (1, 0)], vocab=db.vocab, is_pause=db.is_pause,
     ...                 group_names=db.group_names, group_sizes=db.group_sizes(),
     ...                 support_counts=[[6, 0], [0, 6]], counts=counts, seq_groups=db.groups)
-    >>> table = contrast(ps, db, stability_resamples=20)
+    >>> table = contrast(ps, db, n_bootstrap=20)
     >>> table[["pattern", "support_strong", "support_weak", "evidence", "favours"]]
       pattern  support_strong  support_weak evidence favours
     0   a > b             1.0           0.0    order  strong
@@ -222,13 +227,12 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
     correction = check_choice(correction, "correction", CONTRAST_CORRECTIONS, "contrast")
     alpha = check_fraction(alpha, "alpha", "contrast")
     n_permutations = check_int(n_permutations, "n_permutations", "contrast", minimum=1)
-    seed = check_int(seed, "seed", "contrast", minimum=0)
-    stability_resamples = check_int(stability_resamples, "stability_resamples", "contrast",
-                                    minimum=0)
-    replication_splits = check_int(replication_splits, "replication_splits", "contrast",
-                                   minimum=0)
-    volume_strata = check_int(volume_strata, "volume_strata", "contrast", minimum=1,
-                              allow_none=True)
+    random_state = check_int(random_state, "random_state", "contrast", minimum=0)
+    n_bootstrap = check_int(n_bootstrap, "n_bootstrap", "contrast", minimum=0)
+    n_replication_splits = check_int(n_replication_splits, "n_replication_splits", "contrast",
+                                     minimum=0)
+    n_volume_strata = check_int(n_volume_strata, "n_volume_strata", "contrast", minimum=1,
+                                allow_none=True)
     if redundancy is not None:
         redundancy = check_fraction(redundancy, "redundancy", "contrast")
     redundancy_order = check_choice(redundancy_order, "redundancy_order", _ORDERS, "contrast")
@@ -258,16 +262,18 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
         stats = {"p_value": p, "chi2": chi,
                  "cramers_v": np.sqrt(chi / sizes.sum()), "kruskal_h": h, "p_rate": p_rate}
     ev = evidence_tests(pres, labels, len(names), patterns.patterns, volume=prep["volume"],
-                        token_counts=prep["token_counts"], n_strata=volume_strata)
+                        token_counts=prep["token_counts"], n_strata=n_volume_strata)
 
     if correction == "westfall-young":
-        _, q = westfall_young_minp(pres, labels, n_permutations=n_permutations, seed=seed,
-                                   batch_size=batch_size, jobs=jobs, scheduler=scheduler)
+        _, q = westfall_young_minp(pres, labels, n_permutations=n_permutations,
+                                   random_state=random_state, batch_size=batch_size,
+                                   n_jobs=n_jobs, scheduler=scheduler)
     else:
         q = adjust_pvalues(p, correction)
     if correction == "westfall-young":
         _, q_rate = westfall_young_rates(rates, labels, n_permutations=n_permutations,
-                                         seed=seed, batch_size=batch_size, jobs=jobs,
+                                         random_state=random_state, batch_size=batch_size,
+                                         n_jobs=n_jobs,
                                          scheduler=scheduler)
     else:
         q_rate = adjust_pvalues(stats["p_rate"], correction)
@@ -287,10 +293,10 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
         _, favours = classify_evidence(q, np.full(m, np.nan), np.full(m, np.nan), dir_raw,
                                        dir_raw, dir_raw, names, alpha)
 
-    if stability_resamples > 0:
+    if n_bootstrap > 0:
         stability = bootstrap_significance(pres, labels, direction,
-                                           n_resamples=stability_resamples, alpha=alpha,
-                                           seed=seed, batch_size=batch_size)
+                                           n_bootstrap=n_bootstrap, alpha=alpha,
+                                           random_state=random_state, batch_size=batch_size)
     else:
         stability = np.full(m, np.nan)
 
@@ -305,8 +311,8 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
         rep_dir = np.where(evidence == "order", ev["dir_order"],
                            np.where(evidence == "volume", dir_raw, ev["dir_volume"]))
     replication = split_half_replication(
-        pres, labels, len(names), tests, rep_dir, alpha=alpha, n_splits=replication_splits,
-        seed=seed, strata=ev["strata"], token_counts=prep["token_counts"],
+        pres, labels, len(names), tests, rep_dir, alpha=alpha, n_splits=n_replication_splits,
+        random_state=random_state, strata=ev["strata"], token_counts=prep["token_counts"],
         lengths=ev.get("lengths"), patterns=patterns.patterns)
 
     if redundancy is not None:
@@ -343,9 +349,10 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
     df = df.iloc[np.argsort(p, kind="stable")].reset_index(drop=True)
     if drop_redundant:
         df = df[df["redundant_of"] == ""].reset_index(drop=True)
-    df.attrs.update(_attrs(prep, correction, alpha, n_permutations, seed, stability_resamples,
+    df.attrs.update(_attrs(prep, correction, alpha, n_permutations, random_state, n_bootstrap,
                            redundancy))
-    df.attrs.update(replication_splits=replication_splits, volume_strata=int(ev["n_strata"]))
+    df.attrs.update(n_replication_splits=n_replication_splits,
+                    n_volume_strata=int(ev["n_strata"]))
     return df
 
 
@@ -441,13 +448,8 @@ def sequence_rates(patterns, lengths=None, *, per=100.0):
 def _prepare_unit(patterns, db, lengths, groups, rate_unit, unit, where):
     """:func:`_prepare` after merging sequences into learners when ``unit='learner'``,
     plus each unit's activity volume and token counts (``volume``, ``token_counts``)."""
-    if unit is None:
-        unit = "learner" if db is not None else "sequence"
     check_choice(unit, "unit", ("sequence", "learner"), where)
-    if unit == "learner" and db is None:
-        raise ParameterError(f"unit='learner' of {where} needs db= (to know which sequences "
-                             f"belong to which learner).")
-    merge = (unit == "learner" and isinstance(patterns, PatternSet)
+    merge = (unit == "learner" and db is not None and isinstance(patterns, PatternSet)
              and db.n_sequences == patterns.counts.shape[0]
              and len(np.unique(db.learners)) < db.n_sequences)
     if not merge:
@@ -688,9 +690,9 @@ def _empty_frame(table, names, correction):
     return df
 
 
-def _attrs(prep, correction, alpha, n_permutations, seed, stability_resamples, redundancy):
+def _attrs(prep, correction, alpha, n_permutations, random_state, n_bootstrap, redundancy):
     return {"groups": list(prep["names"]), "correction": correction, "alpha": alpha,
             "n_permutations": n_permutations if correction == "westfall-young" else 0,
-            "seed": seed, "stability_resamples": stability_resamples,
+            "random_state": random_state, "n_bootstrap": n_bootstrap,
             "redundancy": redundancy, "rate_unit": prep["rate_unit"],
             "n_sequences": int(len(prep["labels"])), "unit": prep.get("unit", "sequence")}

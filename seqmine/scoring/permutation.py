@@ -9,8 +9,8 @@ from scipy import special, stats
 from .._util.checks import check_int
 from .._util.parallel import n_workers, parallel_map
 from .._util.progress import progress
+from ..config import DEFAULT_CONFIG
 from ..errors import ParameterError
-from .adjusted import chi2_upper, cell_counts, cmh_from_counts, cmh_moments, cmh_statistic
 from .effects import (
     FISHER_RTOL,
     _log_factorials,
@@ -20,15 +20,17 @@ from .effects import (
     fisher_table,
 )
 
-__all__ = ["westfall_young_minp", "westfall_young_rates", "westfall_young_volume",
-           "bootstrap_significance", "presence_pvalues", "permute_within"]
+__all__ = ["westfall_young_minp", "westfall_young_rates", "bootstrap_significance",
+           "presence_pvalues"]
 
 #: Default budget of entries of one (patterns x permutations) batch.
 _BATCH_ENTRIES = 2_000_000
+_CONTRAST = DEFAULT_CONFIG["contrast"]
 
 
-def westfall_young_minp(presence, labels, *, n_permutations=1000, seed=0, batch_size=None,
-                        jobs=1, scheduler=None):
+def westfall_young_minp(presence, labels, *, n_permutations=_CONTRAST["n_permutations"],
+                        random_state=DEFAULT_CONFIG["seed"], batch_size=None,
+                        n_jobs=DEFAULT_CONFIG["n_jobs"], scheduler=None):
     """Westfall-Young step-down min-P adjusted p-values for all patterns at once.
 
     Parameters
@@ -39,15 +41,15 @@ def westfall_young_minp(presence, labels, *, n_permutations=1000, seed=0, batch_
         Group index ``0 .. k-1`` of each sequence (``k >= 2``).
     n_permutations : int
         Number of label permutations ``B``.
-    seed : int
+    random_state : int
         Seed of ``numpy.random.default_rng``; permutation ``b`` (``b = 0 .. B-1``) is
         ``rng.permutation(labels)`` drawn in that order, so the result does not depend
         on ``batch_size``.
     batch_size : int, optional
         Permutations handled per sparse product; default keeps
         ``n_patterns * batch_size`` near two million entries.
-    jobs, scheduler
-        Run contiguous chunks of the permutation stream in ``jobs`` local processes
+    n_jobs, scheduler
+        Run contiguous chunks of the permutation stream in ``n_jobs`` local processes
         or on a Dask cluster (see :func:`seqmine._util.parallel.parallel_map`). Each chunk
         starts from the generator state the serial run has there, so the
         permutations, and the result, are identical to the serial run.
@@ -79,7 +81,8 @@ def westfall_young_minp(presence, labels, *, n_permutations=1000, seed=0, batch_
     --------
     >>> import scipy.sparse as sp
     >>> pres = sp.csr_matrix(np.array([[1, 0], [1, 1], [1, 0], [0, 1], [0, 1], [0, 0]]))
-    >>> raw, adj = westfall_young_minp(pres, [0, 0, 0, 1, 1, 1], n_permutations=200, seed=1)
+    >>> raw, adj = westfall_young_minp(pres, [0, 0, 0, 1, 1, 1], n_permutations=200,
+    ...                             random_state=1)
     >>> raw.round(3).tolist()
     [0.1, 1.0]
     >>> bool(adj[0] >= raw[0])
@@ -96,13 +99,14 @@ def westfall_young_minp(presence, labels, *, n_permutations=1000, seed=0, batch_
     pfunc = _pvalue_function(pt, sizes)
     raw = pfunc(_group_counts(pt, labels[:, None], n_groups))[:, 0]
     adjusted = _step_down_minp(raw, lambda perm: pfunc(_group_counts(pt, perm, n_groups)),
-                               labels, n_permutations, seed, _batch_size(batch_size, m),
-                               jobs=jobs, scheduler=scheduler)
+                               labels, n_permutations, random_state,
+                               _batch_size(batch_size, m), n_jobs=n_jobs, scheduler=scheduler)
     return raw, adjusted
 
 
-def westfall_young_rates(rates, labels, *, n_permutations=1000, seed=0, batch_size=None,
-                         jobs=1, scheduler=None):
+def westfall_young_rates(rates, labels, *, n_permutations=_CONTRAST["n_permutations"],
+                         random_state=DEFAULT_CONFIG["seed"], batch_size=None,
+                         n_jobs=DEFAULT_CONFIG["n_jobs"], scheduler=None):
     """Westfall-Young step-down min-P adjustment of the rank test on rates.
 
     Parameters
@@ -111,7 +115,7 @@ def westfall_young_rates(rates, labels, *, n_permutations=1000, seed=0, batch_si
         Non-negative per-sequence rates (absent entries are 0).
     labels : array_like of int, shape (n_sequences,)
         Group index ``0 .. k-1`` of each sequence (``k >= 2``).
-    n_permutations, seed, batch_size, jobs, scheduler
+    n_permutations, random_state, batch_size, n_jobs, scheduler
         As in :func:`westfall_young_minp` (the same seed draws the same permutations).
 
     Returns
@@ -190,96 +194,9 @@ def westfall_young_rates(rates, labels, *, n_permutations=1000, seed=0, batch_si
             return np.where(ties > 0, stats.chi2.sf(h, n_groups - 1), 1.0)
 
     raw = pfunc(labels[:, None])[:, 0]
-    adjusted = _step_down_minp(raw, pfunc, labels, n_permutations, seed,
-                               _batch_size(batch_size, m), jobs=jobs, scheduler=scheduler)
+    adjusted = _step_down_minp(raw, pfunc, labels, n_permutations, random_state,
+                               _batch_size(batch_size, m), n_jobs=n_jobs, scheduler=scheduler)
     return raw, adjusted
-
-
-def westfall_young_volume(presence, labels, strata, *, n_permutations=1000, seed=0,
-                          batch_size=None, jobs=1, scheduler=None):
-    """Westfall-Young step-down min-P for the volume-adjusted (stratified) presence test.
-
-    Parameters
-    ----------
-    presence : sparse matrix, shape (n_units, n_patterns)
-    labels : array_like of int, shape (n_units,)
-        Group index ``0 .. k-1`` of each unit.
-    strata : array_like of int, shape (n_units,)
-        Activity stratum of each unit (:func:`seqmine.scoring.adjusted.activity_strata`).
-    n_permutations, seed, batch_size, jobs, scheduler
-        As in :func:`westfall_young_minp`; here permutation ``b`` is
-        :func:`permute_within` ``(rng, labels, strata)`` with
-        ``rng = numpy.random.default_rng(seed)``.
-
-    Returns
-    -------
-    raw : ndarray of float, shape (n_patterns,)
-        Cochran-Mantel-Haenszel p-values over the strata
-        (:func:`seqmine.scoring.adjusted.cmh_from_counts`).
-    adjusted : ndarray of float, shape (n_patterns,)
-        Family-wise adjusted p-values.
-
-    Notes
-    -----
-    Labels are permuted *within* strata, which keeps every stratum's group sizes and
-    present totals, hence the expected counts and the variance of the statistic: each
-    permutation only changes the observed per-group totals, one sparse product per
-    batch. The null hypothesis is conditional independence of presence and group
-    given the stratum, the one the stratified test is about.
-
-    Examples
-    --------
-    >>> import scipy.sparse as sp
-    >>> pres = sp.csr_matrix(np.array([[1, 0], [1, 1], [1, 0], [0, 1], [0, 1], [0, 0]]))
-    >>> raw, adj = westfall_young_volume(pres, [0, 0, 0, 1, 1, 1], [0, 0, 1, 0, 1, 1],
-    ...                                  n_permutations=99, seed=1)
-    >>> bool(np.all(adj >= raw - 1e-12))
-    True
-    """
-    n_permutations = check_int(n_permutations, "n_permutations", "westfall_young_volume",
-                               minimum=1)
-    labels = np.asarray(labels, dtype=np.int64)
-    strata = np.asarray(strata, dtype=np.int64)
-    if strata.shape != labels.shape:
-        raise ParameterError(f"strata has {len(strata)} entries but labels has {len(labels)}.")
-    pt, sizes = _prepare(presence, labels)
-    n_groups = len(sizes)
-    m = pt.shape[0]
-    if m == 0:
-        return np.zeros(0), np.zeros(0)
-    n_s = int(strata.max()) + 1
-    x = cell_counts(pt.T.tocsr(), labels, strata, n_groups, n_s)
-    cell_sizes = np.bincount(labels * n_s + strata,
-                             minlength=n_groups * n_s).reshape(n_groups, n_s)
-    raw, _, excess = cmh_from_counts(x, cell_sizes)
-    _, cov = cmh_moments(x, cell_sizes)
-    d = n_groups - 1
-    expected = x.sum(axis=1)[:d] - excess[:d]          # invariant under the permutations
-
-    def pfunc(lab2d):
-        e = np.stack([np.rint(pt @ (lab2d == g).astype(pt.dtype)) for g in range(d)], axis=1)
-        return chi2_upper(*cmh_statistic(e - expected.T[:, :, None], cov))
-
-    adjusted = _step_down_minp(raw, pfunc, labels, n_permutations, seed,
-                               _batch_size(batch_size, m), jobs=jobs, scheduler=scheduler,
-                               strata=strata)
-    return raw, adjusted
-
-
-def permute_within(rng, labels, strata):
-    """A random permutation of ``labels`` within each stratum (one ``rng.random`` draw).
-
-    Examples
-    --------
-    >>> rng = np.random.default_rng(0)
-    >>> out = permute_within(rng, np.array([0, 1, 0, 1, 1]), np.array([0, 0, 1, 1, 1]))
-    >>> sorted(out[:2].tolist()), sorted(out[2:].tolist())
-    ([0, 1], [0, 1, 1])
-    """
-    order = np.lexsort((rng.random(len(labels)), strata))
-    out = np.empty_like(labels)
-    out[np.argsort(strata, kind="stable")] = labels[order]
-    return out
 
 
 def presence_pvalues(presence, labels):
@@ -294,8 +211,10 @@ def presence_pvalues(presence, labels):
     return chi2_presence(counts[:, :, 0], sizes)[1]
 
 
-def bootstrap_significance(presence, labels, direction, *, n_resamples=100, alpha=0.05,
-                           seed=0, batch_size=None):
+def bootstrap_significance(presence, labels, direction, *,
+                           n_bootstrap=_CONTRAST["n_bootstrap"],
+                           alpha=_CONTRAST["alpha"],
+                           random_state=DEFAULT_CONFIG["seed"], batch_size=None):
     """Share of stratified bootstrap resamples in which each pattern is significant.
 
     Parameters
@@ -308,13 +227,13 @@ def bootstrap_significance(presence, labels, direction, *, n_resamples=100, alph
         (group 0 minus group 1); for more groups the index of the group with the
         highest support. A pattern with direction 0 (two groups, no difference)
         scores 0.
-    n_resamples : int
+    n_bootstrap : int
         Number of resamples ``R``. Each draws, within every group, as many sequences
         as the group has, with replacement (stratified bootstrap).
     alpha : float
         Nominal (uncorrected) level.
-    seed : int
-        Resamples come from ``rng = numpy.random.default_rng([seed, 1])``: for
+    random_state : int
+        Resamples come from ``rng = numpy.random.default_rng([random_state, 1])``: for
         resample ``r = 0 .. R-1`` and group ``g = 0 .. k-1`` in turn,
         ``rng.choice(members_g, size=n_g, replace=True)`` (independent of batching).
 
@@ -324,7 +243,7 @@ def bootstrap_significance(presence, labels, direction, *, n_resamples=100, alph
         Fraction of resamples in which the raw presence test (Fisher for two groups,
         chi-square otherwise) has p <= ``alpha`` *and* the direction matches.
     """
-    n_resamples = check_int(n_resamples, "stability_resamples", "contrast", minimum=1)
+    n_resamples = check_int(n_bootstrap, "n_bootstrap", "contrast", minimum=1)
     labels = np.asarray(labels, dtype=np.int64)
     direction = np.asarray(direction, dtype=np.int64)
     pt, sizes = _prepare(presence, labels)
@@ -334,7 +253,7 @@ def bootstrap_significance(presence, labels, direction, *, n_resamples=100, alph
     if m == 0:
         return np.zeros(0)
     members = [np.flatnonzero(labels == g) for g in range(n_groups)]
-    rng = np.random.default_rng([seed, 1])
+    rng = np.random.default_rng([random_state, 1])
     batch = _batch_size(batch_size, m)
     n = len(labels)
     done = 0
@@ -362,25 +281,23 @@ def bootstrap_significance(presence, labels, direction, *, n_resamples=100, alph
 
 
 # --------------------------------------------------------------------- helpers
-def _step_down_minp(raw, pfunc, labels, n_permutations, seed, batch, jobs=1, scheduler=None,
-                    strata=None):
-    """Westfall-Young algorithm 2.8 given ``pfunc(permuted labels (n, nb)) -> (m, nb)``
-    (labels permuted within ``strata`` when given)."""
+def _step_down_minp(raw, pfunc, labels, n_permutations, seed, batch, n_jobs=1, scheduler=None):
+    """Westfall-Young algorithm 2.8 given ``pfunc(permuted labels (n, nb)) -> (m, nb)``."""
     m = len(raw)
     order = np.argsort(raw, kind="stable")
     threshold = raw[order][:, None] * (1.0 + FISHER_RTOL)
     rng = np.random.default_rng(seed)
-    if (jobs is None or jobs == 1) and not scheduler:
+    if (n_jobs is None or n_jobs == 1) and not scheduler:
         exceed = _exceed_counts((pfunc, labels, rng.bit_generator.state, n_permutations, batch,
-                                 order, threshold, True, strata))
+                                 order, threshold, True))
     else:
         tasks = []
-        for start, stop in _chunks(n_permutations, jobs):
+        for start, stop in _chunks(n_permutations, n_jobs):
             tasks.append((pfunc, labels, rng.bit_generator.state, stop - start, batch, order,
-                          threshold, False, strata))
+                          threshold, False))
             for _ in range(stop - start):   # advance exactly as the chunk will
-                _draw(rng, labels, strata)
-        exceed = np.sum(parallel_map(_exceed_counts, tasks, jobs=jobs, scheduler=scheduler),
+                rng.permutation(labels)
+        exceed = np.sum(parallel_map(_exceed_counts, tasks, n_jobs=n_jobs, scheduler=scheduler),
                         axis=0)
     adj_sorted = np.maximum.accumulate((exceed + 1.0) / (n_permutations + 1.0))
     adjusted = np.empty(m)
@@ -390,7 +307,7 @@ def _step_down_minp(raw, pfunc, labels, n_permutations, seed, batch, jobs=1, sch
 
 def _exceed_counts(task):
     """Per sorted pattern, how many of ``count`` permutations have ``q*(j) <= p(j)``."""
-    pfunc, labels, state, count, batch, order, threshold, show, strata = task
+    pfunc, labels, state, count, batch, order, threshold, show = task
     rng = np.random.default_rng()
     rng.bit_generator.state = state
     exceed = np.zeros(len(order), dtype=np.int64)
@@ -398,7 +315,7 @@ def _exceed_counts(task):
     bar = progress(total=count, desc="permutations", unit="perm") if show else None
     while done < count:
         nb = min(batch, count - done)
-        perm = np.stack([_draw(rng, labels, strata) for _ in range(nb)], axis=1)
+        perm = np.stack([rng.permutation(labels) for _ in range(nb)], axis=1)
         p_b = pfunc(perm)[order]
         q_b = np.minimum.accumulate(p_b[::-1], axis=0)[::-1]
         exceed += (q_b <= threshold).sum(axis=1)
@@ -408,11 +325,6 @@ def _exceed_counts(task):
     if bar is not None:
         bar.close()
     return exceed
-
-
-def _draw(rng, labels, strata):
-    """One permutation of the labels: across all units, or within strata."""
-    return rng.permutation(labels) if strata is None else permute_within(rng, labels, strata)
 
 
 def _chunks(n, jobs):

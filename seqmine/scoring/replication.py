@@ -18,11 +18,11 @@ __all__ = ["split_half_replication", "split_halves", "REPLICATION_TESTS"]
 REPLICATION_TESTS = ("raw", "volume", "order")
 
 
-def split_halves(labels, n_splits, seed):
+def split_halves(labels, n_splits, random_state):
     """Random halves of the units, balanced within each group.
 
     Split ``r`` shuffles each group's units with ``rng.permutation`` (``rng =
-    numpy.random.default_rng([seed, 2])``, groups in index order, splits in turn) and
+    numpy.random.default_rng([random_state, 2])``, groups in index order, splits in turn) and
     puts the first ``floor(n_g / 2)`` in half 0, the rest in half 1.
 
     Returns
@@ -32,12 +32,12 @@ def split_halves(labels, n_splits, seed):
 
     Examples
     --------
-    >>> h = split_halves(np.array([0, 0, 0, 0, 1, 1]), 3, seed=0)
+    >>> h = split_halves(np.array([0, 0, 0, 0, 1, 1]), 3, random_state=0)
     >>> h.shape, h[:, :4].sum(axis=1).tolist(), h[:, 4:].sum(axis=1).tolist()
     ((3, 6), [2, 2, 2], [1, 1, 1])
     """
     labels = np.asarray(labels, dtype=np.int64)
-    rng = np.random.default_rng([int(seed), 2])
+    rng = np.random.default_rng([int(random_state), 2])
     members = [np.flatnonzero(labels == g) for g in range(int(labels.max()) + 1)] \
         if len(labels) else []
     out = np.zeros((int(n_splits), len(labels)), dtype=np.int8)
@@ -49,7 +49,7 @@ def split_halves(labels, n_splits, seed):
 
 
 def split_half_replication(presence, labels, n_groups, tests, directions, *, alpha=0.05,
-                           n_splits=20, seed=0, strata=None, token_counts=None,
+                           n_splits=20, random_state=0, strata=None, token_counts=None,
                            lengths=None, patterns=None):
     """Share of random half splits in which each pattern's finding holds in both halves.
 
@@ -69,7 +69,7 @@ def split_half_replication(presence, labels, n_groups, tests, directions, *, alp
         Nominal (uncorrected) level in each half.
     n_splits : int
         Random splits (:func:`split_halves`).
-    seed : int
+    random_state : int
     strata : ndarray of int, optional
         Activity stratum per unit (needed for ``"volume"`` and ``"order"``).
     token_counts : sparse matrix, optional
@@ -103,7 +103,7 @@ def split_half_replication(presence, labels, n_groups, tests, directions, *, alp
     ...                              n_splits=5)[0])
     1.0
     """
-    n_splits = check_int(n_splits, "replication_splits", "contrast", minimum=0)
+    n_splits = check_int(n_splits, "n_replication_splits", "contrast", minimum=0)
     labels = np.asarray(labels, dtype=np.int64)
     tests = np.asarray(tests, dtype=object)
     directions = np.asarray(directions, dtype=np.int64)
@@ -115,7 +115,7 @@ def split_half_replication(presence, labels, n_groups, tests, directions, *, alp
     counted = np.sort(np.concatenate([use["raw"], use["volume"]]))
     if len(counted) == 0 and len(use["order"]) == 0:
         return out
-    halves = split_halves(labels, n_splits, seed).astype(np.int64)
+    halves = split_halves(labels, n_splits, random_state).astype(np.int64)
     n_s = int(strata.max()) + 1 if strata is not None and len(strata) else 1
     st = strata if strata is not None else np.zeros(len(labels), dtype=np.int64)
     hits = np.zeros(m, dtype=np.int64)

@@ -7,9 +7,11 @@ import json
 from pathlib import Path
 
 from ..._util.progress import is_quiet
-from ...errors import DataFileError, ParameterError
+from ...errors import DataFileError, OptionValueError
+from . import _options
+from ._options import add_option
 
-__all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run", "parse_evidence"]
+__all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
 NAME = "detectors"
 HELP = "select validated patterns and write them as live detectors (detectors.json)"
@@ -32,33 +34,27 @@ def add_arguments(parser):
     """Options of ``seqmine detectors``."""
     parser.add_argument("table", metavar="CONTRAST_CSV",
                         help="contrast table (patterns.csv) written by 'seqmine contrast'")
-    parser.add_argument("--sequences", "--seqdb", dest="sequences", required=True, metavar="DIR",
-                        help="sequence database folder written by 'seqmine encode' (its "
-                             "encoding is copied into the detectors file)")
+    _options.add_sequences_option(parser, positional=False)
     parser.add_argument("--patterns", metavar="DIR", default=None,
                         help="pattern set folder written by 'seqmine mine' (gives the matching "
                              "constraints; default: a patternset.json beside the table)")
     parser.add_argument("--out", required=True, metavar="JSON", help="detectors file to write")
     g = parser.add_argument_group("selection")
-    g.add_argument("--max-q", type=float, default=0.05, metavar="Q",
-                   help="largest q value kept (default 0.05)")
-    g.add_argument("--effect", default="cohens_h", metavar="COLUMN",
-                   help="effect-size column for filtering and ranking (default cohens_h)")
-    g.add_argument("--min-effect", type=float, default=0.2, metavar="E",
-                   help="smallest |effect| kept (default 0.2, Cohen's 'small' h)")
-    g.add_argument("--min-stability", type=float, default=0.5, metavar="S",
-                   help="smallest stability kept, 0 = no check (default 0.5)")
+    add_option(g, "detectors", "max_q", type=float, metavar="Q",
+               help="largest q value kept (default: {default})")
+    add_option(g, "detectors", "effect", metavar="COLUMN",
+               help="effect-size column for filtering and ranking (default: {default})")
+    add_option(g, "detectors", "min_effect", type=float, metavar="E",
+               help="smallest |effect| kept (default: {default}, Cohen's 'small' h)")
+    add_option(g, "detectors", "min_stability", type=float, metavar="S",
+               help="smallest stability kept, 0 = no check (default: {default})")
     g.add_argument("--min-length", type=int, default=None, metavar="N")
     g.add_argument("--max-length", type=int, default=None, metavar="N")
     g.add_argument("--favours", default=None, metavar="GROUPS",
                    help="comma-separated groups whose patterns are kept (default: all)")
-    g.add_argument("--max-detectors", type=int, default=50, metavar="N",
-                   help="most detectors written (default 50)")
-    g.add_argument("--evidence", default="order,presence", metavar="KINDS",
-                   help="kinds of evidence a detector may rest on (the evidence column): "
-                        "comma-separated order, presence, volume, or 'any' to select on "
-                        "q_value alone (default order,presence: only findings that survive "
-                        "the volume adjustment)")
+    add_option(g, "detectors", "max_detectors", type=_options.int_or_none, metavar="N",
+               help="most detectors written, or 'none' (default: {default})")
+    _options.add_evidence_option(g)
     g.add_argument("--keep-redundant", action="store_true",
                    help="keep patterns contained in (or containing) a better one")
     g.add_argument("--strong-group", default=None, metavar="NAME",
@@ -67,11 +63,12 @@ def add_arguments(parser):
                    help="name of the weak group (default: 'weak' or the second group)")
     g = parser.add_argument_group("matching and absence rules")
     g.add_argument("--max-gap", type=_opt_int, default=argparse.SUPPRESS, metavar="N",
-                   help="override the pattern set's max gap ('none' = unlimited)")
+                   help="override the pattern set's max gap ('none' = no limit)")
     g.add_argument("--max-window", type=_opt_int, default=argparse.SUPPRESS, metavar="N",
-                   help="override the pattern set's max window ('none' = unlimited)")
-    g.add_argument("--skip-pauses", choices=("yes", "no"), default=None,
-                   help="override whether pauses count toward gaps and windows")
+                   help="override the pattern set's max window ('none' = no limit)")
+    g.add_argument("--skip-pauses", action=argparse.BooleanOptionalAction, default=None,
+                   help="override whether pause tokens count toward gaps and windows "
+                        "(default: as the pattern set was mined)")
     g.add_argument("--absence-events", type=int, default=None, metavar="N",
                    help="encourage detectors also fire when the pattern has not been shown "
                         "after N events of a sequence (default: off)")
@@ -80,11 +77,11 @@ def add_arguments(parser):
 
 
 def run(args):
+    """Run ``seqmine detectors``."""
     import pandas as pd
 
     from ...detection.detectors import export_detectors, save_detectors
     from ...encoding.sequences import SequenceDB
-    """Run ``seqmine detectors``."""
     table_path = Path(args.table)
     if not table_path.is_file():
         raise DataFileError(f"{table_path}: contrast table not found; create it with "
@@ -104,7 +101,7 @@ def run(args):
         table, db, constraints, max_q=args.max_q, min_effect=args.min_effect,
         effect=args.effect, min_stability=args.min_stability, lengths=lengths, groups=groups,
         max_detectors=args.max_detectors, drop_redundant=not args.keep_redundant,
-        evidence=parse_evidence(args.evidence, "--evidence"), strong=args.strong_group, weak=args.weak_group,
+        evidence=args.evidence, strong=args.strong_group, weak=args.weak_group,
         absence_after_events=args.absence_events, absence_after_seconds=args.absence_seconds)
     doc["selection"].update(source=str(table_path), constraints_from=source)
     out = save_detectors(doc, args.out)
@@ -116,30 +113,10 @@ def run(args):
     return 0
 
 
-def parse_evidence(text, option):
-    """``"order,presence"`` -> ``["order", "presence"]``; ``"any"`` -> None."""
-    if text is None:
-        return None
-    parts = [x.strip().lower() for x in str(text).split(",") if x.strip()]
-    if parts == ["any"]:
-        return None
-    bad = [x for x in parts if x not in ("order", "presence", "volume")]
-    if bad or not parts:
-        raise ParameterError(f"{option} takes a comma-separated list of order, presence, "
-                             f"volume, or 'any'. Got {text!r} instead.")
-    return parts
-
-
 def _opt_int(text):
-    t = str(text).strip().lower()
-    if t in ("none", "off"):
-        return None
-    try:
-        v = int(t)
-    except ValueError:
-        raise ParameterError(f"Expected a whole number or 'none'. Got {text!r} instead.") from None
-    if v < 0:
-        raise ParameterError(f"Expected a whole number >= 0 or 'none'. Got {text!r} instead.")
+    v = _options.int_or_none(text)
+    if v is not None and v < 0:
+        raise OptionValueError(f"expected a whole number >= 0 or 'none'; got {text!r}")
     return v
 
 
@@ -169,5 +146,5 @@ def _constraints(args, table_path):
     if hasattr(args, "max_window"):
         out["max_window"] = args.max_window
     if args.skip_pauses is not None:
-        out["skip_pauses"] = args.skip_pauses == "yes"
+        out["skip_pauses"] = bool(args.skip_pauses)
     return out, source
