@@ -385,7 +385,8 @@ def _analyze(events_path, outcomes_path, out_dir, cfg, *, log):
     with stages("scoring single tokens"):
         # what each group does more of: every action and pause kind, scored whatever
         # min_length is, in a family of its own
-        singles = mine(db, min_support=1, min_length=1, max_length=1)
+        singles = mine(db, min_support=1, min_length=1, max_length=1,
+                       start_with_action=False, end_with_action=False)
         tokens = contrast(singles, db, redundancy=None,
                           **dict(contrast_options, n_bootstrap=0))
         tokens.insert(2, "kind", np.where(

@@ -7,6 +7,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from .._util.checks import check_int
+from ..config import DEFAULT_CONFIG
 from .adjusted import CellCounter, cmh_from_counts, order_tables
 from .effects import chi2_presence, fisher_exact_many
 from .evidence import direction_from_excess
@@ -49,7 +50,8 @@ def split_halves(labels, n_splits, random_state):
 
 
 def split_half_replication(presence, labels, n_groups, tests, directions, *, alpha=0.05,
-                           n_splits=20, random_state=0, strata=None, token_counts=None,
+                           n_splits=DEFAULT_CONFIG["contrast"]["n_replication_splits"],
+                           random_state=DEFAULT_CONFIG["seed"], strata=None, token_counts=None,
                            lengths=None, patterns=None):
     """Share of random half splits in which each pattern's finding holds in both halves.
 
