@@ -459,8 +459,12 @@ def test_learner_unit_merges_sessions():
 def test_learner_unit_errors():
     db = _session_db()
     ps = brute_patternset(db, PATTERNS[:2])
-    with pytest.raises(ParameterError, match="unit='learner' of contrast needs db="):
-        contrast(ps, unit="learner")
+    # without the database nothing says which sequences share a learner: each sequence
+    # is then its own learner (the same table as unit="sequence")
+    alone = contrast(ps, unit="learner", n_bootstrap=0, redundancy=None)
+    same = contrast(ps, unit="sequence", n_bootstrap=0, redundancy=None)
+    alone.attrs, same.attrs = {}, {}
+    pd.testing.assert_frame_equal(alone, same)
     groups = db.groups.copy()
     groups[1] = 1 - groups[1]  # one session of a learner moves to the other group
     db2 = db.with_groups(groups, db.group_names)

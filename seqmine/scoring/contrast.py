@@ -610,7 +610,8 @@ def _prepare(patterns, db, lengths, groups, rate_unit, where, sessions_ok=False)
             warnings.warn(SeqmineWarning(
                 f"Some learners have several sequences (sessions); {where} treats sequences "
                 f"as independent units (session-level tests), which overstates the "
-                f"evidence. Use unit='learner' (the default) for learner-level tests.",
+                f"evidence. Use unit='learner' (--contrast-unit learner, the default) for "
+                f"learner-level tests.",
                 code="sessions_not_independent"), stacklevel=3)
     rates_all = sequence_rates(patterns, lengths)
     presence_all = patterns.presence()
