@@ -111,14 +111,15 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
         Rates are instance counts per 100 tokens of the sequence (pauses included),
         per 100 action tokens (needs ``db``), or raw instance counts per sequence.
         Default: ``"tokens"`` when lengths are known, else ``"count"``.
-    unit : {"learner", "sequence"}
+    unit : {"learner", "sequence", "auto"}
         Unit of analysis. ``"learner"`` first merges each learner's sequences
         (sessions, known from ``db``): instance counts, lengths and token counts are
         summed, a pattern is present when it occurs in any of them; supports are then
         shares of learners and permutations, resamples and splits move whole learners
         (without ``db`` each sequence counts as one learner). ``"sequence"`` treats
         every sequence (session) as an independent unit and warns
-        (``sessions_not_independent``) when a learner has several.
+        (``sessions_not_independent``) when a learner has several. ``"auto"`` is the
+        same as ``"learner"`` (kept for configurations that spell it so).
     batch_size : int, optional
         Permutations/resamples per sparse product (memory bound).
     n_jobs, scheduler
@@ -357,7 +358,7 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
 
 
 def pairwise_contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh",
-                      alpha=0.05, rate_unit=None, unit="sequence"):
+                      alpha=0.05, rate_unit=None, unit="learner"):
     """Two-group comparisons of every pair of groups, as one long table.
 
     Parameters
@@ -448,7 +449,9 @@ def sequence_rates(patterns, lengths=None, *, per=100.0):
 def _prepare_unit(patterns, db, lengths, groups, rate_unit, unit, where):
     """:func:`_prepare` after merging sequences into learners when ``unit='learner'``,
     plus each unit's activity volume and token counts (``volume``, ``token_counts``)."""
-    check_choice(unit, "unit", ("sequence", "learner"), where)
+    check_choice(unit, "unit", ("learner", "sequence", "auto"), where)
+    if unit == "auto":
+        unit = "learner"
     merge = (unit == "learner" and db is not None and isinstance(patterns, PatternSet)
              and db.n_sequences == patterns.counts.shape[0]
              and len(np.unique(db.learners)) < db.n_sequences)
