@@ -288,3 +288,13 @@ def test_analyze_flags_and_their_messages(tmp_path, capsys):
         assert main(base + ["--config", str(cfg_file)]) == 2
         err = capsys.readouterr().err.strip()
         assert err.count("\n") == 0 and needle in err, err
+
+
+def test_report_survives_a_detectors_file_whose_encoding_is_not_an_object(tmp_path):
+    # regression (found by the report fuzz test): the pause ranges of the data checks
+    # read detectors.json's encoding, which a hand-edited file may hold as a list
+    from seqmine.reporting.render import render_report
+
+    (tmp_path / "detectors.json").write_text(json.dumps({"encoding": [None]}),
+                                             encoding="utf-8")
+    assert "<!DOCTYPE html>" in render_report(tmp_path).read_text(encoding="utf-8")
