@@ -122,7 +122,7 @@ def main(argv=None):
     raw_dir = np.where(np.asarray(pres[labels == 0].mean(axis=0)).ravel()
                        > np.asarray(pres[labels == 1].mean(axis=0)).ravel(), 1, -1)
     clock("bootstrap stability, 100 resamples (existing)",
-          lambda: bootstrap_significance(pres, labels, raw_dir, n_resamples=100))
+          lambda: bootstrap_significance(pres, labels, raw_dir, n_bootstrap=100))
     volume = lengths.astype(float)
     strata = activity_strata(volume)
     n_s = int(strata.max()) + 1

@@ -397,3 +397,38 @@ def test_transitions_table_labels_pooled_and_learner_columns():
     strong = t[t.group == "strong"].reset_index(drop=True)
     weak = t[t.group == "weak"].reset_index(drop=True)
     np.testing.assert_array_equal(strong["p_learners"].to_numpy(), weak["p_learners"].to_numpy())
+
+
+def test_order_replication_counts_each_half_like_a_labelling_of_its_own():
+    # the half-1 tables are the whole data minus half 0; check against labelling both
+    # halves explicitly (2 x groups labels), then the per-half CMH by statsmodels
+    from seqmine.scoring.adjusted import order_tables
+
+    rng = np.random.default_rng(12)
+    db = _small_db(rng, 40)
+    ps = mine(db, min_support=1, min_length=2, max_length=2, max_gap=0)
+    tokens = sp.csr_matrix((np.ones(db.n_tokens), (db.seq_index, db.tokens.astype(int))),
+                           shape=(db.n_sequences, len(db.vocab)))
+    labels = db.groups
+    strata = activity_strata(db.lengths, 3)
+    n_s = int(strata.max()) + 1
+    m = ps.n_patterns
+    got = split_half_replication(ps.presence(), labels, 2, ["order"] * m, [0] * m,
+                                 alpha=0.5, n_splits=6, random_state=4, strata=strata,
+                                 token_counts=tokens, lengths=db.lengths, patterns=ps.patterns)
+    halves = split_halves(labels, 6, 4)
+    tabs = order_tables(ps.presence(), tokens, db.lengths, ps.patterns,
+                        [(halves[r] * 2 + labels, 4) for r in range(6)], n_s)
+    hits = np.zeros(m)
+    for r, (x, n) in enumerate(tabs):
+        ok = np.ones(m, bool)
+        for h in (0, 1):
+            for j in range(m):
+                t = [[[x[h * 2 + g, b, j], n[h * 2 + g, b, j] - x[h * 2 + g, b, j]]
+                      for g in (0, 1)] for b in range(n_s)]
+                p = _statsmodels_cmh(t)
+                full = [np.array(tt, float) for tt in t if np.sum(tt) >= 2]
+                e = sum(tt[0, 0] - tt[0].sum() * tt[:, 0].sum() / tt.sum() for tt in full)
+                ok[j] &= (p is not None and p <= 0.5) and e > 1e-9
+        hits += ok
+    np.testing.assert_allclose(got, hits / 6)

@@ -114,28 +114,27 @@ class CellCounter:
         m = sp.csr_matrix(matrix)
         m.sum_duplicates()
         self.shape = m.shape
-        self.rows = np.repeat(np.arange(m.shape[0], dtype=np.int64), np.diff(m.indptr))
-        self.cols = m.indices.astype(np.int64)
-        self.data = m.data.astype(np.float64)
-        self.weighted = not np.all(self.data == 1)
+        # entries are stored row by row, so a row's cell is spread over them by repeat
+        self.row_counts = np.diff(m.indptr)
+        self.cols = m.indices.astype(np.int32 if m.shape[1] < 2 ** 31 else np.int64)
+        self.weighted = not np.all(m.data == 1)
+        self.data = m.data.astype(np.float64) if self.weighted else None
         self._width, self._base = None, None
 
     def counts(self, labels, strata, n_groups, n_strata):
         labels = np.asarray(labels, dtype=np.int64)
-        cell = labels * n_strata + np.asarray(strata, dtype=np.int64)
         width = n_groups * n_strata
+        # rows without a label go to one spill cell per column, dropped below
+        cell = np.where(labels >= 0, labels * n_strata + np.asarray(strata, dtype=np.int64),
+                        width)
         if self._width != width:
-            self._width, self._base = width, self.cols * width
-        if len(labels) and labels.min() < 0:
-            c = np.where(labels >= 0, cell, -1)[self.rows]
-            ok = c >= 0
-            flat = self._base[ok] + c[ok]
-            weights = self.data[ok] if self.weighted else None
-        else:
-            flat = self._base + cell[self.rows]
-            weights = self.data if self.weighted else None
-        out = np.bincount(flat, weights=weights,
-                          minlength=self.shape[1] * width).astype(np.float64)
+            size = self.shape[1] * (width + 1)
+            dtype = np.int32 if size < 2 ** 31 else np.int64
+            self._width, self._base = width, self.cols.astype(dtype) * dtype(width + 1)
+        flat = self._base + np.repeat(cell.astype(self._base.dtype), self.row_counts)
+        out = np.bincount(flat, weights=self.data,
+                          minlength=self.shape[1] * (width + 1)).astype(np.float64)
+        out = out.reshape(self.shape[1], width + 1)[:, :width]
         return np.rint(out.reshape(self.shape[1], n_groups, n_strata).transpose(1, 2, 0))
 
 
@@ -358,6 +357,17 @@ def order_tables(presence, token_counts, lengths, patterns, labelings, n_bins, *
     if not reqs or n_units == 0:
         return outs
     chance = _Chance(token_counts, lengths, reqs)
+    # one indicator column per (labelling, label); units without a label have none
+    starts = np.cumsum([0] + [k for _, k in labelings])[:-1]
+    rows, cols = [], []
+    for (lab, _), start_l in zip(labelings, starts):
+        lab = np.asarray(lab, dtype=np.int64)
+        ok = np.flatnonzero(lab >= 0)
+        rows.append(ok)
+        cols.append(start_l + lab[ok])
+    rows, cols = np.concatenate(rows), np.concatenate(cols)
+    indicator = sp.csr_matrix((np.ones(len(rows), dtype=np.float32), (rows, cols)),
+                              shape=(n_units, int(sum(k for _, k in labelings))))
     pats_of_req = np.argsort(req_of, kind="stable")
     pats_of_req = pats_of_req[req_of[pats_of_req] >= 0]
     bounds = np.searchsorted(req_of[pats_of_req], np.arange(len(reqs) + 1))
@@ -371,27 +381,27 @@ def order_tables(presence, token_counts, lengths, patterns, labelings, n_bins, *
         bins = _chance_bins(np.where(holds, np.round(log_e, 9), np.inf), holds, n_bins)
         pats = pats_of_req[bounds[start]: bounds[stop]]
         local = req_of[pats] - start
-        # holders (unit, set) with their bin, and present holders (unit, pattern): each
-        # labelling then costs a gather and a bincount over these entries only
+        # holders as a sparse units x (set, bin) matrix, present holders as units x
+        # (pattern, bin): one sparse product with the labellings' indicator matrix
+        # counts every labelling's cells at once
         h_unit, h_set = np.nonzero(holds)
-        h_bin = bins[h_unit, h_set]
+        h_cols = h_set * n_bins + bins[h_unit, h_set]
+        hmat = sp.csr_matrix((np.ones(len(h_unit), dtype=np.float32), (h_unit, h_cols)),
+                             shape=(n_units, rb * n_bins))
         sub = presence[:, pats].tocoo()
         p_unit, p_pat = sub.row.astype(np.int64), sub.col.astype(np.int64)
         p_ok = holds[p_unit, local[p_pat]]
         p_unit, p_pat = p_unit[p_ok], p_pat[p_ok]
-        p_bin = bins[p_unit, local[p_pat]]
-        bases = {}
-        for (lab, k), (x_out, n_out) in zip(labelings, outs):
-            lab = np.asarray(lab, dtype=np.int64) * n_bins
-            width_c = k * n_bins
-            if width_c not in bases:    # the label-free part of the flat cell index
-                bases[width_c] = (h_set * width_c + h_bin, p_pat * width_c + p_bin)
-            h_base, p_base = bases[width_c]
-            sizes = _bincount_cells(h_base, lab[h_unit], rb * width_c).reshape(rb, k, n_bins)
-            n_out[:, :, pats] = np.moveaxis(sizes[local], 0, -1)
-            xs = _bincount_cells(p_base, lab[p_unit], len(pats) * width_c).reshape(
-                len(pats), k, n_bins)
-            x_out[:, :, pats] = np.moveaxis(xs, 0, -1)
+        p_cols = p_pat * n_bins + bins[p_unit, local[p_pat]]
+        pmat = sp.csr_matrix((np.ones(len(p_unit), dtype=np.float32), (p_unit, p_cols)),
+                             shape=(n_units, len(pats) * n_bins))
+        ind_t = indicator.T.tocsr()
+        sizes_all = np.rint((ind_t @ hmat).toarray()).reshape(-1, rb, n_bins)
+        present_all = np.rint((ind_t @ pmat).toarray()).reshape(-1, len(pats), n_bins)
+        for (_, k), start_l, (x_out, n_out) in zip(labelings, starts, outs):
+            sizes = sizes_all[start_l: start_l + k]              # (k, rb, n_bins)
+            n_out[:, :, pats] = np.moveaxis(sizes[:, local, :], 1, 2)
+            x_out[:, :, pats] = np.moveaxis(present_all[start_l: start_l + k], 1, 2)
     return outs
 
 
@@ -466,22 +476,23 @@ class _Chance:
         return holds, log_e
 
 
-def _bincount_cells(base, offset, length):
-    """``bincount(base + offset)`` over the entries whose offset is not negative."""
-    if len(offset) and offset.min() < 0:
-        ok = offset >= 0
-        return np.bincount(base[ok] + offset[ok], minlength=length)
-    return np.bincount(base + offset, minlength=length)
-
-
 def _chance_bins(values, holds, n_bins):
-    """Quantile bin of each holder within its column; ties share a bin."""
-    out = np.zeros(values.shape, dtype=np.int64)
+    """Quantile bin of each holder within its column; ties share a bin.
+
+    ``bin = floor(n_bins * #holders with a smaller value / #holders)``; non-holders
+    carry ``inf`` and sort last. With ``q_j = ceil(j * #holders / n_bins)``, a value has
+    at least ``q_j`` smaller ones exactly when it exceeds the ``q_j``-th smallest, so the
+    bin is the number of these ``n_bins - 1`` thresholds it exceeds.
+    """
     srt = np.sort(values, axis=0)
     n_h = holds.sum(axis=0)
-    for c in range(values.shape[1]):
-        if n_h[c] == 0:
-            continue
-        less = np.searchsorted(srt[:n_h[c], c], values[:, c], side="left")
-        out[:, c] = np.minimum(n_bins * less // n_h[c], n_bins - 1)
-    return out
+    cols = np.arange(values.shape[1])
+    out = np.zeros(values.shape, dtype=np.int16)
+    above = np.empty(values.shape, dtype=bool)
+    for j in range(1, n_bins):
+        q = -((-j * n_h) // n_bins)                     # ceil(j * n_h / n_bins)
+        threshold = srt[np.maximum(q - 1, 0), cols]
+        threshold = np.where(q > 0, threshold, np.inf)
+        np.greater(values, threshold, out=above)
+        out += above
+    return out.astype(np.int64)

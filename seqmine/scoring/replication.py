@@ -126,10 +126,15 @@ def split_half_replication(presence, labels, n_groups, tests, directions, *, alp
     if len(use["order"]):
         if lengths is None:
             lengths = np.asarray(token_counts.sum(axis=1)).ravel()
-        order_tabs = order_tables(presence[:, use["order"]], token_counts, lengths,
-                                  [patterns[i] for i in use["order"]],
-                                  [(halves[r] * n_groups + labels, 2 * n_groups)
-                                   for r in range(n_splits)], n_s)
+        # the whole data once, then half 0 of every split; half 1 is the difference
+        tabs = order_tables(presence[:, use["order"]], token_counts, lengths,
+                            [patterns[i] for i in use["order"]],
+                            [(labels, n_groups)]
+                            + [(np.where(halves[r] == 0, labels, -1), n_groups)
+                               for r in range(n_splits)], n_s)
+        whole = tabs[0]
+        order_tabs = [tuple(np.stack([h, w - h]) for h, w in zip(tabs[r + 1], whole))
+                      for r in range(n_splits)]
     # only the patterns that need per-half presence counts are counted
     counter = CellCounter(presence[:, counted])
     local = {t: np.searchsorted(counted, use[t]) for t in ("raw", "volume")}
@@ -150,7 +155,7 @@ def split_half_replication(presence, labels, n_groups, tests, directions, *, alp
             p[:, j], fav[:, j] = _both_halves(x[:, :, :, jl], sizes[:, :, :, None])
         if order_tabs is not None:
             j = use["order"]
-            xo, el = (a.reshape(2, n_groups, n_s, -1) for a in order_tabs[r])
+            xo, el = order_tabs[r]                  # each (2, G, S, k)
             p[:, j], fav[:, j] = _both_halves(xo, el)
         hits += np.all((p <= alpha) & (fav == directions) & (directions >= 0), axis=0)
     done = np.concatenate([counted, use["order"]])
