@@ -482,17 +482,23 @@ def _chance_bins(values, holds, n_bins):
     ``bin = floor(n_bins * #holders with a smaller value / #holders)``; non-holders
     carry ``inf`` and sort last. With ``q_j = ceil(j * #holders / n_bins)``, a value has
     at least ``q_j`` smaller ones exactly when it exceeds the ``q_j``-th smallest, so the
-    bin is the number of these ``n_bins - 1`` thresholds it exceeds.
+    bin is the number of these ``n_bins - 1`` thresholds it exceeds: one search of every
+    value among its column's thresholds (columns kept apart by an offset).
     """
+    n, k = values.shape
     srt = np.sort(values, axis=0)
     n_h = holds.sum(axis=0)
-    cols = np.arange(values.shape[1])
-    out = np.zeros(values.shape, dtype=np.int16)
-    above = np.empty(values.shape, dtype=bool)
-    for j in range(1, n_bins):
-        q = -((-j * n_h) // n_bins)                     # ceil(j * n_h / n_bins)
-        threshold = srt[np.maximum(q - 1, 0), cols]
-        threshold = np.where(q > 0, threshold, np.inf)
-        np.greater(values, threshold, out=above)
-        out += above
-    return out.astype(np.int64)
+    j = np.arange(1, n_bins)[:, None]
+    q = -((-j * n_h[None, :]) // n_bins)                # ceil(j * n_h / n_bins)
+    thresholds = np.where(q > 0, srt[np.maximum(q - 1, 0), np.arange(k)[None, :]], np.inf)
+    # finite stand-ins for inf, then one offset per column larger than any spread
+    finite = np.isfinite(values)
+    lo = values[finite].min() if finite.any() else 0.0
+    hi = values[finite].max() if finite.any() else 0.0
+    span = hi - lo + 2.0
+    big = hi + 1.0
+    offset = np.arange(k) * span
+    keys = (np.where(np.isfinite(thresholds), thresholds, big) - lo + offset[None, :]).T.ravel()
+    vals = np.where(finite, values, big) - lo + offset[None, :]
+    pos = np.searchsorted(keys, vals.ravel(), side="left").reshape(n, k)
+    return pos - np.arange(k)[None, :] * (n_bins - 1)
