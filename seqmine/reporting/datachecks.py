@@ -65,7 +65,6 @@ def report_pause_ranges(d):
     if enc is None:
         det = d["detectors"].value if "detectors" in d else None
         enc = det.get("encoding") if isinstance(det, dict) else None
-        enc = enc if isinstance(enc, dict) else None   # a hand-edited file may hold anything
     if enc is None and isinstance(summary.get("pause_edges_seconds"), list):
         enc = {"pause": {"edges": summary.get("pause_edges_seconds"),
                          "labels": summary.get("pause_labels") or []}}
