@@ -79,7 +79,8 @@ DEFAULT_CONFIG = {
     },
     "contrast": {
         "correction": "bh", "alpha": 0.05, "n_permutations": 1000,
-        "n_bootstrap": 100, "redundancy": 0.9, "unit": "auto",
+        "n_bootstrap": 100, "n_replication_splits": 20, "n_volume_strata": None,
+        "redundancy": 0.9, "unit": "learner",
     },
     "transitions": {"exclude_pauses": False},
     "phases": {"enabled": True, "min_states": 2, "max_states": 5, "n_restarts": 3,
@@ -89,7 +90,8 @@ DEFAULT_CONFIG = {
                  "fractions": [0.1, 0.25, 0.5, 0.75, 1.0], "n_bootstrap": 500,
                  "top_k": 30, "hmm": {}, "max_learners": None},
     "detectors": {"max_q": 0.05, "min_effect": 0.2, "effect": "cohens_h",
-                  "min_stability": 0.5, "max_detectors": 20},
+                  "min_stability": 0.5, "max_detectors": 20,
+                  "evidence": ["order", "presence"]},
     "report": {"examples": True, "max_patterns": 15},
     "privacy": {"pseudonymize_key": None},
 }

@@ -38,6 +38,9 @@ def _table():
         "support_weak": [0.5, 0.55, 0.2, 0.4, 0.3, 0.3, 0.31],
         "p_value": [0.001, 0.002, 0.001, 0.003, 0.2, 0.01, 0.9],
         "q_value": [0.004, 0.006, 0.004, 0.008, 0.3, 0.03, 0.9],
+        "q_volume": [0.004, 0.006, 0.004, 0.008, 0.3, 0.03, 0.9],
+        "q_order": [0.004, 0.006, 0.004, None, None, 0.2, None],
+        "evidence": ["order", "order", "order", "presence", "", "presence", ""],
         "favours": ["weak", "weak", "strong", "weak", "", "strong", ""],
         "risk_difference": [-0.4, -0.35, 0.4, -0.35, -0.2, 0.2, -0.01],
         "odds_ratio": [0.11, 0.2, 6.0, 0.08, 0.26, 2.3, 0.95],
@@ -84,7 +87,34 @@ def test_select_options():
     assert "set_light > set_water > advance_week" not in select_detectors(t)["pattern"].tolist()
 
 
+def test_select_defaults_to_findings_that_survive_the_volume_adjustment():
+    t = _table()
+    # the first pattern is now significant only before the volume adjustment
+    t.loc[0, ["evidence", "q_volume", "q_order"]] = ["volume", 0.2, 0.5]
+    default = select_detectors(t, drop_redundant=False)["pattern"].tolist()
+    assert "set_light > set_water > advance_week" not in default
+    assert default == ["set_light > advance_week > measure_height > pause:long",
+                       "set_light > set_water", "measure_height > pause:long"]
+    widened = select_detectors(t, drop_redundant=False,
+                               evidence=["order", "presence", "volume"])["pattern"].tolist()
+    assert widened[0] == "set_light > set_water > advance_week"
+    assert select_detectors(t, evidence=None, drop_redundant=False)["pattern"].tolist() \
+        == widened
+    # a row is judged by the q value of its own test: an order finding needs q_order <= max_q
+    t.loc[2, "q_order"] = 0.2
+    assert "set_light > advance_week > measure_height > pause:long" not in \
+        select_detectors(t, drop_redundant=False)["pattern"].tolist()
+    assert select_detectors(t, evidence="order", drop_redundant=False)["pattern"].tolist() \
+        == ["set_light > set_water"]
+
+
 def test_select_messages():
+    with pytest.raises(ColumnError, match=r"lacks column\(s\) evidence, q_volume, q_order\. "
+                                          r"The table predates.*evidence=None"):
+        select_detectors(_table().drop(columns=["evidence", "q_volume", "q_order"]))
+    with pytest.raises(ParameterError, match=r"'evidence' parameter of select_detectors must "
+                                             r"list some of order, presence, volume"):
+        select_detectors(_table(), evidence=["beyond"])
     with pytest.raises(ColumnError, match=r"lacks column\(s\) stability.*min_stability=0"):
         select_detectors(_table().drop(columns="stability"))
     with pytest.raises(ColumnError, match=r"lacks column\(s\) hedges_g.*one of risk_difference"):

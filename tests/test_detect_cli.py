@@ -66,6 +66,8 @@ def test_detectors_command_options_override(run_dir, capsys):
     (["patterns.csv", "--max-q", "3"], r"'max_q' parameter of select_detectors must be in"),
     (["patterns.csv", "--strong-group", "top"], "'strong' group 'top' of build_detectors"),
     (["patterns.csv", "--max-gap", "-2"], "--max-gap: expected a whole number >= 0 or 'none'"),
+    (["patterns.csv", "--evidence", "beyond"],
+     r"--evidence: expected a comma-separated list of order, presence, volume, or 'any'"),
 ])
 def test_detectors_command_errors_exit_2(run_dir, capsys, args, message):
     argv = ["detectors"] + [str(run_dir / a) if a.endswith((".csv", "sequences")) else a

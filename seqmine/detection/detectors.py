@@ -53,6 +53,8 @@ __all__ = [
     "DETECTORS_FORMAT",
     "DETECTORS_VERSION",
     "DETECTOR_NOTICE",
+    "DEFAULT_EVIDENCE",
+    "EVIDENCE_KINDS",
     "select_detectors",
     "build_detectors",
     "export_detectors",
@@ -74,6 +76,10 @@ DETECTOR_NOTICE = (
 )
 
 _EFFECT_COLUMNS = ("risk_difference", "odds_ratio", "cohens_h", "cliffs_delta")
+#: Values of the contrast table's ``evidence`` column a detector may rest on.
+EVIDENCE_KINDS = ("order", "presence", "volume")
+#: Default: only findings that survive the volume adjustment become detectors.
+DEFAULT_EVIDENCE = tuple(DEFAULT_CONFIG["detectors"]["evidence"])
 _TEMPLATE_FIELDS = ("action", "target", "channel", "session")
 _PAUSE_STRATEGIES = ("quantile", "fixed", "learner_quantile", "none")
 _TOP_KEYS = {"format", "version", "notice", "encoding", "vocabulary", "matching", "groups",
@@ -90,10 +96,13 @@ _DEFAULTS = DEFAULT_CONFIG["detectors"]
 def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
                      min_effect=_DEFAULTS["min_effect"], effect=_DEFAULTS["effect"],
                      min_stability=_DEFAULTS["min_stability"], lengths=None, groups=None,
-                     max_detectors=_DEFAULTS["max_detectors"], drop_redundant=True):
+                     max_detectors=_DEFAULTS["max_detectors"], drop_redundant=True,
+                     evidence=DEFAULT_EVIDENCE):
     """Choose the contrast-table rows worth exporting as detectors.
 
-    A row is kept when it favours a group, its ``q_value <= max_q``, the absolute
+    A row is kept when it favours a group, its ``evidence`` is one of ``evidence``
+    (by default only findings that survive the volume adjustment), the q value of
+    its evidence test is at most ``max_q``, the absolute
     value of its ``effect`` column is at least ``min_effect``, its ``stability`` is at
     least ``min_stability``, its length is allowed and its favoured group is in
     ``groups``. Kept rows are ranked by absolute effect (largest first), then q value,
@@ -123,6 +132,12 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
     max_detectors : int >= 1, optional
         At most this many rows (default 20); None = no limit.
     drop_redundant : bool
+    evidence : sequence of {"order", "presence", "volume"}, or None
+        Kinds of evidence a row may rest on (the ``evidence`` column of the contrast
+        table); the q value compared with ``max_q`` is that of the named test
+        (``q_order``, ``q_volume``, ``q_value`` for ``"volume"``). Default
+        ``("order", "presence")``: differences that activity volume explains are not
+        exported. ``None`` selects on ``q_value`` alone (tables without evidence).
 
     Returns
     -------
@@ -132,10 +147,14 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
     Examples
     --------
     >>> t = pd.DataFrame({"pattern": ["a > b", "a > b > c", "d"], "length": [2, 3, 1],
-    ...                   "q_value": [0.01, 0.01, 0.2], "favours": ["weak", "weak", "strong"],
+    ...                   "q_value": [0.01, 0.01, 0.2], "q_volume": [0.01, 0.01, 0.2],
+    ...                   "q_order": [0.01, 0.2, None], "evidence": ["order", "presence", ""],
+    ...                   "favours": ["weak", "weak", "strong"],
     ...                   "cohens_h": [0.5, 0.6, 0.9], "stability": [0.9, 0.8, 0.9]})
     >>> select_detectors(t)["pattern"].tolist()
     ['a > b > c']
+    >>> select_detectors(t, evidence=["order"])["pattern"].tolist()
+    ['a > b']
     """
     where = "select_detectors"
     if not isinstance(contrast_table, pd.DataFrame):
@@ -150,13 +169,19 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
         raise ParameterError(f"The 'min_stability' parameter of {where} must be in [0, 1]. "
                              f"Got {min_stability!r} instead.")
     max_detectors = check_int(max_detectors, "max_detectors", where, minimum=1, allow_none=True)
+    evidence = _check_evidence(evidence, where)
     needed = ["pattern", "q_value", "favours", effect]
     if min_stability > 0:
         needed.append("stability")
+    if evidence is not None:
+        needed += [c for c in ("evidence", "q_volume", "q_order") if c not in needed]
     missing = [c for c in needed if c not in contrast_table.columns]
     if missing:
         fix = (" Pass min_stability=0 (--min-stability 0) to skip the stability check."
                if missing == ["stability"] else
+               " The table predates the volume and order tests: score it again with "
+               "'seqmine contrast', or pass evidence=None (--evidence any) to select on "
+               "q_value alone." if evidence is not None and "evidence" in missing else
                f" Choose another effect column with effect=/--effect (one of "
                f"{', '.join(c for c in _EFFECT_COLUMNS if c in contrast_table.columns) or 'none present'})."
                if missing == [effect] else "")
@@ -167,7 +192,14 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
     favours = t["favours"].astype(object).where(t["favours"].notna(), "").astype(str).str.strip()
     q = pd.to_numeric(t["q_value"], errors="coerce").to_numpy(float)
     eff = np.abs(pd.to_numeric(t[effect], errors="coerce").to_numpy(float))
-    keep = (favours != "").to_numpy() & (q <= max_q) & (eff >= min_effect)
+    keep = (favours != "").to_numpy() & (eff >= min_effect)
+    if evidence is not None:
+        # only findings of the allowed kinds, judged by the q value of their own test
+        kind = t["evidence"].astype(object).where(t["evidence"].notna(), "").astype(str)
+        keep &= kind.isin(evidence).to_numpy()
+        for name, col in (("order", "q_order"), ("presence", "q_volume")):
+            q = np.where(kind == name, pd.to_numeric(t[col], errors="coerce"), q)
+    keep &= q <= max_q
     if min_stability > 0:
         stab = pd.to_numeric(t["stability"], errors="coerce").to_numpy(float)
         if len(stab) and np.isnan(stab).all():
@@ -198,6 +230,19 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
         if max_detectors is not None and len(chosen) >= max_detectors:
             break
     return t.iloc[chosen].reset_index(drop=True)
+
+
+def _check_evidence(evidence, where):
+    if evidence is None:
+        return None
+    chosen = [evidence] if isinstance(evidence, str) else list(evidence)
+    bad = [e for e in chosen if e not in EVIDENCE_KINDS]
+    if bad or not chosen:
+        raise ParameterError(
+            f"The 'evidence' parameter of {where} must list some of "
+            f"{', '.join(EVIDENCE_KINDS)} (or be None for q_value alone). Got {evidence!r} "
+            f"instead.")
+    return chosen
 
 
 # ======================================================================= building
@@ -301,6 +346,11 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
             "effects": {c: _finite_or_none(row.get(c)) for c in _EFFECT_COLUMNS if c in row},
             "stability": _finite_or_none(row.get("stability")),
         }
+        for key in ("q_volume", "q_order", "replication"):
+            if key in row:
+                evidence[key] = _finite_or_none(row.get(key))
+        if "evidence" in row:
+            evidence["kind"] = "" if _is_missing(row.get("evidence")) else str(row["evidence"])
         shown = {t: ranges[t] for t in tokens if t in ranges}
         if shown:
             evidence["pause_ranges"] = shown
@@ -339,6 +389,7 @@ def export_detectors(contrast_table, db, constraints=None, *, max_q=_DEFAULTS["m
                      min_effect=_DEFAULTS["min_effect"], effect=_DEFAULTS["effect"],
                      min_stability=_DEFAULTS["min_stability"], lengths=None, groups=None,
                      max_detectors=_DEFAULTS["max_detectors"], drop_redundant=True,
+                     evidence=DEFAULT_EVIDENCE,
                      strong=None, weak=None, absence_after_events=None,
                      absence_after_seconds=None):
     """Select rows of a contrast table and build the detectors document in one step.
@@ -353,6 +404,7 @@ def export_detectors(contrast_table, db, constraints=None, *, max_q=_DEFAULTS["m
     constraints : dict, optional
         ``PatternSet.constraints`` of the mined patterns.
     max_q, min_effect, effect, min_stability, lengths, groups, max_detectors, drop_redundant
+    evidence
         See :func:`select_detectors`.
     strong, weak, absence_after_events, absence_after_seconds
         See :func:`build_detectors`.
@@ -365,7 +417,9 @@ def export_detectors(contrast_table, db, constraints=None, *, max_q=_DEFAULTS["m
     selection = {"max_q": max_q, "min_effect": min_effect, "min_stability": min_stability,
                  "lengths": list(lengths) if isinstance(lengths, (tuple, list)) else lengths,
                  "groups": groups, "max_detectors": max_detectors,
-                 "drop_redundant": drop_redundant}
+                 "drop_redundant": drop_redundant,
+                 "evidence": None if evidence is None else _check_evidence(evidence,
+                                                                           "export_detectors")}
     rows = select_detectors(contrast_table, effect=effect, **dict(selection, lengths=lengths))
     return build_detectors(
         rows, db.encoding, constraints, group_names=db.group_names, strong=strong, weak=weak,
