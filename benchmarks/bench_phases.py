@@ -4,7 +4,8 @@ Run from the repository root::
 
     python benchmarks/bench_phases.py              # course log + demo data
     python benchmarks/bench_phases.py --quick      # a 20,000-event course log (smoke test)
-    python benchmarks/bench_phases.py --reference  # also hmmlearn's best of five fits (slow)
+    python benchmarks/bench_phases.py --reference  # also hmmlearn's best of five fits on
+                                                   # the course log (slow: minutes)
 
 Writes ``benchmarks/results/phases.json``. Figures are CPU seconds of this process and
 its children (``resource.getrusage``), which other work on the machine inflates less
@@ -174,7 +175,7 @@ def main(argv=None):
     with quiet_mode():
         results["runs"].update(bench_db("course log", encode(ev, oc), args.reference))
         results["runs"].update(bench_db("course log, a sequence per learner",
-                                        encode(ev, oc, unit="learner"), args.reference))
+                                        encode(ev, oc, unit="learner")))
         if not args.quick and (DEMO / "events.csv").is_file():
             results["runs"].update(bench_db("demo data", encode(DEMO / "events.csv",
                                                                 DEMO / "outcomes.csv")))
