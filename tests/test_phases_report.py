@@ -85,3 +85,37 @@ def test_top_of_range_is_said_in_the_report(tmp_path):
     path.write_text(json.dumps(data), encoding="utf-8")
     section = _phase_section(render_report(folder).read_text(encoding="utf-8"))
     assert "largest tried" in section and "wider range" in section
+
+
+def test_heldout_learners_explained_better_than_training_learners_is_flagged():
+    # regression: held-out log-likelihood above the in-sample one (a sign of a model
+    # that learnt little) went unreported. The rule compares gains over the training
+    # learners' token frequencies per token, at the chosen count.
+    import pandas as pd
+
+    from seqmine.phases import PhaseModel
+    from seqmine.phases.run import _checks
+
+    model = PhaseModel.from_parameters([0.5, 0.5], [[0.9, 0.1], [0.1, 0.9]],
+                                       [[0.8, 0.2], [0.2, 0.8]])
+    model.log_likelihood = -50.0
+    models = {"pooled": model}
+    freq = {"pooled": -80.0}
+    table = pd.DataFrame({"n_states": [1, 2], "heldout_gain_per_token": [0.0, 0.21],
+                          "train_gain_per_token": [0.0, 0.20]})
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        notes = _checks(models, freq, table, 2, [1, 2])
+    # 2 of 1-2 is also the top of the range
+    assert [n["code"] for n in notes] == ["phase_heldout_above_training",
+                                          "phase_states_at_top_of_range"]
+    assert [w.message.code for w in caught] == [n["code"] for n in notes]
+    assert "0.2100 against 0.2000" in notes[0]["message"]
+    assert "all_splits" in notes[0]["message"]
+    # the other way round: no warning about held-out learners
+    table["heldout_gain_per_token"] = [0.0, 0.19]
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        notes = _checks(models, freq, table, 2, [1, 2])
+    assert "phase_heldout_above_training" not in {n["code"] for n in notes}
+    assert {w.message.code for w in caught} == {n["code"] for n in notes}
