@@ -3,26 +3,28 @@
 The E-step is :class:`~seqmine.phases._lanes.Lanes` (numpy forward--backward on many
 sequences and several models at once); the M-step is the usual maximum-likelihood
 update (Rabiner 1989, eqs. 40a-c). EM is accelerated by SQUAREM (Varadhan & Roland
-2008): two EM steps give a direction and a step length, the extrapolated point is
-accepted only when its log-likelihood is at least that of the plain EM step, so the
-fit never ends below where plain EM would be. EM stops when one plain EM step
-gains less than ``tol`` in total log-likelihood (an absolute change, like
-hmmlearn's ``tol``) or after ``max_iter`` E-steps.
+2008, scheme S3, in the probability parameters): two EM steps give a direction and a
+step length, the step is shortened until no probability is negative, and the
+extrapolated point is accepted only when its log-likelihood is at least that of the
+plain EM step, so the fit never ends below where plain EM would be. EM stops when a
+plain EM step gains less than ``tol`` in total log-likelihood (an absolute change,
+like hmmlearn's ``tol``) in ``patience`` consecutive cycles, or after ``max_iter``
+E-steps.
 
 Start points (``start_point``):
 
 - ``"clustered"``: each token is described by its symbol and the symbols just before
-  and after it; weighted k-means (k-means++ seeding, Lloyd iterations) groups these
-  contexts into ``n_states`` clusters (best of four seedings), and start, transition and emission
-  probabilities are counted from the cluster labels (with pseudo-counts), as in
-  segmental k-means (Juang & Rabiner 1990);
+  and after it; weighted k-means (k-means++ seeding, Lloyd iterations; best of four
+  seedings) groups these contexts into ``n_states`` clusters, and start, transition
+  and emission probabilities are counted from the cluster labels (with
+  pseudo-counts), as in segmental k-means (Juang & Rabiner 1990);
 - ``"random"``: start and transition rows ``Dirichlet(1/N)``, emission rows uniform
   random numbers normalised (hmmlearn's default start);
 - ``"sticky"``: transition rows ``0.5 I + 0.5 Dirichlet(1)``, emission rows
   ``0.8 Dirichlet(1) + 0.2 f`` with ``f`` the token frequencies;
-- ``"split"``: a fitted model with one state fewer, its busiest state split in two
-  (its emission row tilted two opposite ways; used when state counts are fitted in
-  turn).
+- splits (:func:`split_start`): a fitted model with one state fewer with one of its
+  states split in two (the halves leave mostly to different next states, their
+  emission rows tilted two opposite ways); used when state counts are fitted in turn.
 
 References
 ----------
