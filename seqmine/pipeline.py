@@ -18,7 +18,9 @@ from .errors import DataFileError, ParameterError
 from .inputs.outcomes import Grouping, match_learners
 
 __all__ = ["Prepared", "prepare_sequences", "pseudonymize_inputs", "analyze", "AnalysisResult",
-           "MIN_GROUP_LEARNERS"]
+           "MIN_GROUP_LEARNERS", "order_patterns", "merge_summary", "mine_summary",
+           "contrast_summary", "phases_summary", "validation_summary",
+           "validation_pattern_params", "public_config"]
 
 #: Configuration keys that only say where work runs (left out of summary.json).
 _EXECUTION_KEYS = ("jobs", "scheduler")
@@ -115,13 +117,18 @@ def prepare_sequences(load_result, outcomes, *, encoder, grouping=None, grouping
 
 
 def pseudonymize_inputs(loaded, outcomes, key):
-    """Replace learner identifiers in the loaded events and outcomes by keyed hashes.
+    """Replace learner (and session) identifiers in the loaded events and outcomes by
+    keyed hashes.
 
     Done right after loading, so no later stage or output ever sees a raw identifier.
+    Empty sessions stay empty ("no session").
     """
     from .inputs.privacy import pseudonymize_frame
-    loaded.events = pseudonymize_frame(loaded.events, key).sort_values(
-        ["learner", "time"], kind="mergesort").reset_index(drop=True)
+    events = pseudonymize_frame(loaded.events, key)
+    if "session" in events.columns:  # session ids usually contain the learner's id
+        events = pseudonymize_frame(events, key, "session", keep_empty=True)
+    loaded.events = events.sort_values(["learner", "time"], kind="mergesort").reset_index(
+        drop=True)
     kind = outcomes.attrs.get("outcome_kind")
     outcomes = pseudonymize_frame(outcomes, key)
     outcomes.attrs["outcome_kind"] = kind
@@ -180,16 +187,27 @@ def _versions():
 def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     """Run the whole pipeline and write the output folder.
 
+    The whole configuration is checked before anything is read. The folder is
+    written as one step: a new run is built in a temporary folder beside ``out_dir``
+    and swapped into place when every file is written, so ``out_dir`` holds either the
+    previous complete run or the new one, never a mix (see :mod:`seqmine._util.outdir`).
+    ``summary.json`` records which stages ran with which settings and inputs and what
+    each wrote (:mod:`seqmine._util.runrecord`).
+
     With ``config["jobs"] > 1`` mining partitions, Westfall-Young permutation
-    batches, phase-model fits and validation folds run in local processes; with
-    ``config["scheduler"]`` (a Dask address or ``"local"``) on a Dask cluster,
-    connected once for the whole run. The outputs are identical to a serial run.
+    batches, phase-model fits and validation folds run in local processes (at most
+    as many as there are cores); with ``config["scheduler"]`` (a Dask address or
+    ``"local"``) on a Dask cluster, connected once for the whole run. The outputs are
+    identical to a serial run.
 
     Parameters
     ----------
     events_path, outcomes_path : str or Path
+        Files, named pipes, or ``"-"`` for standard input (one of the two).
     out_dir : str or Path
-        Created if missing; the contract files in it are replaced.
+        The output folder: new, empty, or written by an earlier seqmine run (which is
+        replaced as a whole). A folder holding other files, a symbolic link, or a folder
+        holding an input is refused.
     config : dict, optional
         A configuration as from :func:`seqmine.config.load_config`; defaults otherwise.
     quiet : bool
@@ -199,24 +217,56 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     -------
     AnalysisResult
     """
-    from ._util.parallel import using_scheduler
-    from .config import default_config
+    from ._util.outdir import writing_folder
+    from ._util.parallel import effective_jobs, using_scheduler
+    from .config import check_config, default_config
+    from .inputs.sources import STDIN, regular_input
 
-    cfg = config or default_config()
+    cfg = check_config(config if config is not None else default_config())
+    _preflight(cfg)
+    if str(events_path) == STDIN and str(outcomes_path) == STDIN:
+        raise ParameterError("Only one of EVENTS and --outcomes can be '-' (standard input); "
+                             "give the other as a file.")
+    scheduler = cfg.get("scheduler") or None
+    if scheduler in (None, "local"):
+        cfg = dict(cfg, jobs=effective_jobs(int(cfg["jobs"]), notify=not quiet))
     log = WarningLog()
-    with using_scheduler(cfg.get("scheduler"), int(cfg["jobs"])), collect_warnings(log):
-        return _analyze(events_path, outcomes_path, out_dir, cfg, quiet=quiet, log=log)
+    inputs = [events_path, outcomes_path, cfg["encode"]["mapping"],
+              cfg["privacy"]["pseudonymize_key"]]
+    with writing_folder(out_dir, "--out", inputs=inputs) as staging:
+        with regular_input(events_path, "events", max_bytes=cfg["events"]["max_bytes"]) as ev, \
+                regular_input(outcomes_path, "outcomes") as oc, \
+                using_scheduler(scheduler, int(cfg["jobs"])), collect_warnings(log):
+            result = _analyze(ev, oc, staging, cfg, quiet=quiet, log=log)
+    result.files = [staging.shown(f) for f in result.files]
+    result.out_dir = staging.target
+    return result
 
 
-def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, log):
-    from pathlib import Path
+def _preflight(cfg):
+    """Checks that need more than the option rules (the symbol template, the mapping and
+    key files), done before anything is read or written."""
+    from .encoding.encoder import encoder_from_settings
+    from .inputs.privacy import read_key
+    encoder_from_settings(cfg["encode"])._check_params()
+    if cfg["privacy"]["pseudonymize_key"]:
+        read_key(cfg["privacy"]["pseudonymize_key"])
 
+
+def _input_entry(pair, given):
+    """Record entry of an input read from ``pair`` = (regular file, shown name)."""
+    from ._util.runrecord import file_input
+    from .inputs.sources import STDIN
+    return file_input(pair[0], shown=STDIN if str(given) == STDIN else pair[1])
+
+
+def _analyze(ev, oc, staging, cfg, *, quiet=False, log):
     from ._util.progress import set_quiet
-    from .config import default_config
+    from ._util.runrecord import RunRecord
     from .encoding.encoder import encoder_from_settings
     from .inputs.load import load_events
     from .inputs.outcomes import load_outcomes
-    from .inputs.privacy import read_key
+    from .inputs.privacy import key_fingerprint, read_key
     from .mining.miner import save_patternset
     from .mining.partitions import mine_parallel
     from .reporting.render import render_report, write_examples
@@ -225,49 +275,55 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
 
     if quiet:
         set_quiet(True)
-    cfg = config or default_config()
-    out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
+    out = staging.path
+    record = RunRecord("analyze")
+    run = _RunStages(out, record, quiet=quiet)
     files = []
     ev_cfg, oc_cfg, en_cfg = cfg["events"], cfg["outcomes"], cfg["encode"]
+    seed = int(cfg["seed"])
+    jobs = int(cfg["jobs"])
+    scheduler = cfg.get("scheduler") or None
 
     # 1. load and validate
-    t_load = time.perf_counter()
-    columns = {role: ev_cfg[f"{role}_column"] for role in
-               ("learner", "time", "action", "session", "target", "channel")}
-    loaded = load_events(events_path, columns=columns, format=ev_cfg["format"],
-                         delimiter=ev_cfg["delimiter"], encoding=ev_cfg["encoding"],
-                         duplicates=ev_cfg["duplicates"], max_bytes=ev_cfg["max_bytes"])
-    outcomes = load_outcomes(outcomes_path, columns={
-        k: oc_cfg[f"{k}_column"] for k in ("learner", "pre", "post", "max", "score", "label")},
-        max_score=oc_cfg["max_score"])
     key_path = cfg["privacy"]["pseudonymize_key"]
-    if key_path:
-        loaded, outcomes = pseudonymize_inputs(loaded, outcomes, read_key(key_path))
+    key = read_key(key_path) if key_path else None
+    load_inputs = {"events": _input_entry(ev, ev[1]), "outcomes": _input_entry(oc, oc[1])}
+    privacy = {"pseudonymized": key is not None,
+               "key_fingerprint": key_fingerprint(key) if key is not None else None}
+    with run.stage("load", "loading", {"events": ev_cfg, "outcomes": oc_cfg,
+                                        "privacy": privacy}, inputs=load_inputs):
+        columns = {role: ev_cfg[f"{role}_column"] for role in
+                   ("learner", "time", "action", "session", "target", "channel")}
+        loaded = load_events(ev[0], columns=columns, format=ev_cfg["format"],
+                             delimiter=ev_cfg["delimiter"], encoding=ev_cfg["encoding"],
+                             duplicates=ev_cfg["duplicates"], max_bytes=ev_cfg["max_bytes"])
+        outcomes = load_outcomes(oc[0], columns={
+            k: oc_cfg[f"{k}_column"] for k in ("learner", "pre", "post", "max", "score", "label")},
+            max_score=oc_cfg["max_score"])
+        if key is not None:
+            loaded, outcomes = pseudonymize_inputs(loaded, outcomes, key)
+        write_csv(loaded.rejects, out / "rejects.csv")
+        files.append(out / "rejects.csv")
 
     # 2. group and encode
     rule = oc_cfg["grouping"] or ("label" if outcomes.attrs.get("outcome_kind") == "label"
                                   else "median")
     grouping = Grouping(rule, fraction=oc_cfg["fraction"], low=oc_cfg["low"], high=oc_cfg["high"])
     encoder = encoder_from_settings(en_cfg)
-    prepared = prepare_sequences(loaded, outcomes, encoder=encoder, grouping=grouping)
-    db = prepared.db
-    write_csv(loaded.rejects, out / "rejects.csv")
-    files.append(out / "rejects.csv")
-
-    db.save(out / "sequences")
+    enc_inputs = {"load": {"stage": "load"}}
+    if en_cfg.get("mapping"):
+        enc_inputs["mapping"] = _input_entry((en_cfg["mapping"], en_cfg["mapping"]), "")
+    with run.stage("encode", "encoding", {**en_cfg, "grouping": rule}, inputs=enc_inputs):
+        prepared = prepare_sequences(loaded, outcomes, encoder=encoder, grouping=grouping)
+        db = prepared.db
+        db.save(out / "sequences")
     summary = dict(prepared.summary)
-    seed = int(cfg["seed"])
-    jobs = int(cfg["jobs"])
-    scheduler = cfg.get("scheduler") or None
-    stages = _Stages(quiet=quiet)
-    stages.seconds["loading and encoding"] = round(time.perf_counter() - t_load, 3)
 
     # 3. mine and score
     mine_cfg, con_cfg = cfg["mine"], cfg["contrast"]
     if mine_cfg["max_gap"] is not None and mine_cfg["max_gap"] < 0:  # -1 = no limit
         mine_cfg = dict(mine_cfg, max_gap=None)
-    with stages("mining patterns"):
+    with run.stage("mine", "mining patterns", mine_cfg) as owned:
         patternset = mine_parallel(db, jobs=jobs, scheduler=scheduler,
                           min_support=mine_cfg["min_support"],
                           min_length=mine_cfg["min_length"], max_length=mine_cfg["max_length"],
@@ -277,44 +333,32 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
                           end_with_action=mine_cfg["end_with_action"], closed=mine_cfg["closed"],
                           maximal=mine_cfg["maximal"], max_patterns=mine_cfg["max_patterns"])
         save_patternset(patternset, out / "patternset")
-    with stages("scoring patterns"):
+        owned += merge_summary(summary, mine_summary(patternset, mine_cfg))
+    alpha = float(con_cfg["alpha"])
+    with run.stage("contrast", "scoring patterns", {**con_cfg, "seed": seed}) as owned:
         table = contrast(patternset, db, correction=con_cfg["correction"], alpha=con_cfg["alpha"],
                          n_permutations=con_cfg["n_permutations"], seed=seed,
                          stability_resamples=con_cfg["stability_resamples"],
                          redundancy=con_cfg["redundancy_jaccard"], jobs=jobs,
                          scheduler=scheduler)
-        table = _order_patterns(table)
+        table = order_patterns(table)
         write_csv(table, out / "patterns.csv")
         files.append(out / "patterns.csv")
-    with stages("transitions"):
+        owned += merge_summary(summary, contrast_summary(table, con_cfg))
+    with run.stage("transitions", "transitions", cfg["transitions"]):
         trans = transitions(db, exclude_pauses=not cfg["transitions"]["include_pauses"])
         write_csv(trans, out / "transitions.csv")
         files.append(out / "transitions.csv")
-    alpha = float(con_cfg["alpha"])
-    significant = table[table["q_value"] <= alpha]
-    summary.update({
-        "patterns_mined": int(patternset.n_patterns),
-        "patterns_significant": int(len(significant)),
-        "patterns_significant_distinct": int((significant["redundant_of"].fillna("") == "").sum())
-        if "redundant_of" in significant else int(len(significant)),
-        "method": {
-            "presence_test": "Fisher's exact test (two-sided) on presence per sequence",
-            "rate_test": "Mann-Whitney U on occurrences per 100 tokens",
-            "correction": con_cfg["correction"], "alpha": alpha,
-            "n_permutations": int(con_cfg["n_permutations"]),
-            "stability_resamples": int(con_cfg["stability_resamples"]),
-            "min_support": mine_cfg["min_support"], "max_length": mine_cfg["max_length"],
-            "max_gap": mine_cfg["max_gap"], "folds": cfg["validate"]["folds"],
-        },
-        "sequence_lengths": {name: _describe(db.lengths[db.groups == g].astype(float))
-                             for g, name in enumerate(db.group_names)},
-    })
+    summary["sequence_lengths"] = {name: _describe(db.lengths[db.groups == g].astype(float))
+                                   for g, name in enumerate(db.group_names)}
 
     # 4. phases of work
     ph_cfg = cfg["phases"]
-    if ph_cfg["enabled"]:
+    if not ph_cfg["enabled"]:
+        record.skip("phases", "switched off (phases.enabled = false, --no-phases)")
+    else:
         from .phases import fit_phases
-        with stages("phase models"):
+        with run.stage("phases", "phase models", {**ph_cfg, "seed": seed}) as owned:
             phase_db = _sample_sequences(db, ph_cfg.get("max_sequences"), seed)
             phases = fit_phases(phase_db,
                                 n_states=range(ph_cfg["min_states"], ph_cfg["max_states"] + 1),
@@ -325,29 +369,19 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
                                 n_permutations=ph_cfg["permutations"])
             phases.save(out / "phases")
             files.append(out / "phases")
-            summary["phases"] = {"n_states": int(phases.n_states),
-                                 "sequences_sampled": int(phase_db.n_sequences)}
+            owned += merge_summary(summary, phases_summary(phases, phase_db))
 
     # 5. early prediction: the whole discovery pipeline re-run inside learner folds
     va_cfg = cfg["validate"]
-    if va_cfg["enabled"]:
+    if not va_cfg["enabled"]:
+        record.skip("validate", "switched off (validate.enabled = false, --no-validate)")
+    else:
         from sklearn.base import clone
 
         from .validation.crossval import default_featurizers, validate
-        from .validation.features import HMMLikelihoodFeaturizer
-        allowed = set(HMMLikelihoodFeaturizer().get_params()) - {"seed"}
-        unknown = sorted(set(va_cfg.get("hmm") or {}) - allowed)
-        if unknown:
-            raise ParameterError(
-                f"configuration: unknown option 'validate.hmm.{unknown[0]}'; the options are "
-                f"{', '.join(sorted(allowed))}.")
-        pattern_params = {k: mine_cfg[k] for k in (
-            "min_support", "min_length", "max_length", "max_gap", "max_window", "skip_pauses",
-            "start_with_action", "end_with_action", "max_patterns")}
-        pattern_params.update(correction="bh" if con_cfg["correction"] == "westfall-young"
-                              else con_cfg["correction"], alpha=alpha,
-                              top_k=int(va_cfg["top_patterns"]))
-        with stages("early prediction"):
+        pattern_params = validation_pattern_params(mine_cfg, con_cfg, va_cfg)
+        with run.stage("validate", "early prediction",
+                       {**va_cfg, "seed": seed, "patterns": pattern_params}) as owned:
             feats = default_featurizers(seed=seed, pattern_params=pattern_params,
                                         hmm_params=dict(va_cfg.get("hmm") or {}))
             va_events, va_outcomes = _sample_learners(prepared.events, prepared.outcomes,
@@ -359,44 +393,151 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
                 alpha=alpha, seed=seed, n_jobs=jobs, scheduler=scheduler)
             write_csv(validation.metrics, out / "early_prediction.csv")
             files.append(out / "early_prediction.csv")
-            digest = validation.summary()
-            summary["early_prediction"] = {k: digest[k] for k in (
-                "earliest_fraction", "earliest_fraction_sustained") if k in digest}
-            summary["early_prediction"]["learners_sampled"] = int(va_events["learner"].nunique())
+            owned += merge_summary(summary, validation_summary(
+                validation, va_cfg, int(va_events["learner"].nunique())))
 
     # 6. detectors
     de_cfg = cfg["detectors"]
-    with stages("detectors"):
+    with run.stage("detectors", "detectors", de_cfg) as owned:
         from .detection.detectors import export_detectors, save_detectors
         doc = export_detectors(table, db, patternset.constraints, max_q=float(de_cfg["max_q"]),
                                min_stability=float(de_cfg["min_stability"]),
                                max_detectors=int(de_cfg["max_detectors"]))
         save_detectors(doc, out / "detectors.json")
         files.append(out / "detectors.json")
-        summary["detectors"] = len(doc.get("detectors", []))
+        owned += merge_summary(summary, {"detectors": len(doc.get("detectors", []))})
 
     # 7. examples and report
-    if cfg["report"]["examples"]:
+    rep_cfg = cfg["report"]
+    if not rep_cfg["examples"]:
+        record.skip("examples", "switched off (report.examples = false, --no-examples)")
+    else:
         c = patternset.constraints
-        files.append(write_examples(
-            out, db, table, max_patterns=int(cfg["report"]["top_patterns"]), alpha=alpha,
-            max_gap=c.get("max_gap"), max_window=c.get("max_window"),
-            skip_pauses=bool(c.get("skip_pauses", False)), seed=seed))
+        with run.stage("examples", "examples", {"top_patterns": int(rep_cfg["top_patterns"]),
+                                                "seed": seed}):
+            files.append(write_examples(
+                out, db, table, max_patterns=int(rep_cfg["top_patterns"]), alpha=alpha,
+                max_gap=c.get("max_gap"), max_window=c.get("max_window"),
+                skip_pauses=bool(c.get("skip_pauses", False)), seed=seed))
     summary["seed"] = seed
     # execution settings change where the work runs, never the results: they are left
     # out so that summary.json is identical whatever --jobs / --scheduler was used
-    summary["configuration"] = {k: v for k, v in cfg.items() if k not in _EXECUTION_KEYS}
+    summary["configuration"] = public_config(cfg)
     summary["versions"] = _versions()
-    summary["pseudonymized"] = bool(key_path)
-    summary["stage_seconds"] = stages.seconds
+    summary["pseudonymized"] = key is not None
     summary["warnings"] = log.as_list()
-    write_json(out / "summary.json", _without_timings(summary))
-    files.append(out / "summary.json")
-    with stages("report"):
-        report = render_report(out, examples=bool(cfg["report"]["examples"]),
-                               max_patterns=int(cfg["report"]["top_patterns"]))
+    write_json(out / "summary.json", record.apply(summary))
+    with run.stage("report", "report", rep_cfg, inputs=run.done_inputs()):
+        report = render_report(out, examples=bool(rep_cfg["examples"]),
+                               max_patterns=int(rep_cfg["top_patterns"]))
         files.append(report)
+    write_json(out / "summary.json", record.apply(summary))
+    files.append(out / "summary.json")
+    summary = dict(record.apply(summary), stage_seconds=run.seconds)
     return AnalysisResult(out_dir=out, summary=summary, files=files, warnings=list(log))
+
+
+def public_config(cfg):
+    """The configuration as summary.json shows it: without the execution settings (where
+    the work ran never changes the results)."""
+    return {k: v for k, v in cfg.items() if k not in _EXECUTION_KEYS}
+
+
+def merge_summary(summary, fragment):
+    """Put ``fragment`` into ``summary`` (objects such as ``method`` merged key by key);
+    returns the keys set, dotted for entries of merged objects (``method.alpha``)."""
+    owned = []
+    for key, value in fragment.items():
+        if isinstance(value, dict) and key == "method":
+            summary.setdefault(key, {}).update(value)
+            owned += [f"{key}.{k}" for k in value]
+        else:
+            summary[key] = value
+            owned.append(key)
+    return owned
+
+
+def mine_summary(patternset, mine_cfg):
+    """The summary keys the mining stage owns."""
+    return {"patterns_mined": int(patternset.n_patterns),
+            "method": {"min_support": mine_cfg["min_support"],
+                       "max_length": mine_cfg["max_length"], "max_gap": mine_cfg["max_gap"]}}
+
+
+def contrast_summary(table, con_cfg):
+    """The summary keys the contrast stage owns (counts of significant patterns and the
+    statements of the method section)."""
+    alpha = float(con_cfg["alpha"])
+    significant = table[table["q_value"] <= alpha]
+    distinct = (int((significant["redundant_of"].fillna("") == "").sum())
+                if "redundant_of" in significant else int(len(significant)))
+    return {
+        "patterns_significant": int(len(significant)),
+        "patterns_significant_distinct": distinct,
+        "method": {
+            "presence_test": "Fisher's exact test (two-sided) on presence per sequence",
+            "rate_test": "Mann-Whitney U on occurrences per 100 tokens",
+            "correction": con_cfg["correction"], "alpha": alpha,
+            "n_permutations": int(con_cfg["n_permutations"]),
+            "stability_resamples": int(con_cfg["stability_resamples"]),
+        },
+    }
+
+
+def phases_summary(phases, phase_db):
+    """The summary keys the phases stage owns."""
+    return {"phases": {"n_states": int(phases.n_states),
+                       "sequences_sampled": int(phase_db.n_sequences)}}
+
+
+def validation_summary(validation, va_cfg, n_learners):
+    """The summary keys the early-prediction stage owns."""
+    digest = validation.summary()
+    early = {k: digest[k] for k in ("earliest_fraction", "earliest_fraction_sustained")
+             if k in digest}
+    early["learners_sampled"] = int(n_learners)
+    return {"early_prediction": early, "method": {"folds": va_cfg["folds"]}}
+
+
+def validation_pattern_params(mine_cfg, con_cfg, va_cfg):
+    """Pattern-discovery settings used inside each validation fold."""
+    params = {k: mine_cfg[k] for k in (
+        "min_support", "min_length", "max_length", "max_gap", "max_window", "skip_pauses",
+        "start_with_action", "end_with_action", "max_patterns")}
+    params.update(correction="bh" if con_cfg["correction"] == "westfall-young"
+                  else con_cfg["correction"], alpha=float(con_cfg["alpha"]),
+                  top_k=int(va_cfg["top_patterns"]))
+    return params
+
+
+class _RunStages:
+    """Times each stage, shows which one runs (to stderr, unless quiet) and records what
+    it wrote in the run record."""
+
+    def __init__(self, out, record, quiet=False):
+        self.out = out
+        self.record = record
+        self.quiet = quiet
+        self.seconds = {}
+
+    @contextlib.contextmanager
+    def stage(self, name, label, settings, inputs=None):
+        from ._util.runrecord import DEPENDS, new_files, snapshot
+        if not (self.quiet or is_quiet()):
+            print(f"seqmine: {label} ...", file=sys.stderr, flush=True)
+        t0 = time.perf_counter()
+        before = snapshot(self.out)
+        owned = []
+        yield owned
+        self.seconds[label] = round(time.perf_counter() - t0, 3)
+        if inputs is None:
+            inputs = {d: {"stage": d} for d in DEPENDS[name]}
+        written = {k: v for k, v in new_files(self.out, before).items() if k != "summary.json"}
+        self.record.done(name, settings=settings, inputs=inputs, outputs=written,
+                         summary_keys=owned)
+
+    def done_inputs(self):
+        return {s: {"stage": s} for s in self.record.ran}
 
 
 def _sample_sequences(db, limit, seed):
@@ -419,29 +560,8 @@ def _sample_learners(events, outcomes, limit, seed):
             outcomes[outcomes["learner"].isin(keep)].reset_index(drop=True))
 
 
-def _without_timings(summary):
-    """summary.json stays byte-identical across runs: wall-clock times are left out."""
-    return {k: v for k, v in summary.items() if k != "stage_seconds"}
-
-
-def _order_patterns(table):
+def order_patterns(table):
     """Most useful first: significant before not, then by q value, then by pattern."""
     order = table.assign(_sig=table["q_value"].isna()).sort_values(
         ["_sig", "q_value", "p_value", "length", "pattern"], kind="mergesort")
     return order.drop(columns="_sig").reset_index(drop=True)
-
-
-class _Stages:
-    """Times each stage and shows which one runs (to stderr, unless quiet)."""
-
-    def __init__(self, quiet=False):
-        self.quiet = quiet
-        self.seconds = {}
-
-    @contextlib.contextmanager
-    def __call__(self, name):
-        if not (self.quiet or is_quiet()):
-            print(f"seqmine: {name} ...", file=sys.stderr, flush=True)
-        t0 = time.perf_counter()
-        yield
-        self.seconds[name] = round(time.perf_counter() - t0, 3)

@@ -10,14 +10,55 @@ from __future__ import annotations
 
 import contextlib
 import functools
+import os
+import sys
 
 from ..errors import ParameterError
 from .progress import is_quiet, set_quiet
 
-__all__ = ["parallel_map", "using_scheduler"]
+__all__ = ["parallel_map", "using_scheduler", "available_cores", "effective_jobs"]
 
 #: Clients opened by :func:`using_scheduler`, innermost last: (scheduler, client).
 _ACTIVE = []
+
+
+def available_cores():
+    """Cores this process may run on (its CPU affinity; at least 1).
+
+    Examples
+    --------
+    >>> available_cores() >= 1
+    True
+    """
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except (AttributeError, OSError):  # pragma: no cover - not Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def effective_jobs(jobs, *, notify=False):
+    """Local worker processes for ``jobs``: ``-1`` means every available core, and more
+    than the available cores is capped to them (more processes than cores only adds
+    overhead). With ``notify`` a capped value is said once on standard error.
+
+    Examples
+    --------
+    >>> effective_jobs(1), effective_jobs(-1) == available_cores()
+    (1, True)
+    >>> effective_jobs(10**6) == available_cores()
+    True
+    """
+    if jobs is None:
+        return 1
+    cores = available_cores()
+    if jobs == -1:
+        return cores
+    if isinstance(jobs, int) and jobs > cores:
+        if notify and not is_quiet():
+            print(f"seqmine: note: {jobs} jobs asked for, but only {cores} core(s) are "
+                  f"available; using {cores}.", file=sys.stderr)
+        return cores
+    return jobs
 
 
 def parallel_map(func, items, *, jobs=1, scheduler=None):
@@ -52,6 +93,9 @@ def parallel_map(func, items, *, jobs=1, scheduler=None):
     if not isinstance(jobs, int) or jobs == 0 or jobs < -1:
         raise ParameterError(f"The 'jobs' parameter must be a positive int or -1. Got {jobs!r} instead.")
     from joblib import Parallel, delayed
+    jobs = min(effective_jobs(jobs), len(items))
+    if jobs == 1:
+        return [func(x) for x in items]
     return list(Parallel(n_jobs=jobs)(delayed(func)(x) for x in items))
 
 

@@ -22,7 +22,7 @@ __all__ = ["main", "build_parser"]
 
 # Order in which sub-commands are listed in --help (pipeline order); others follow.
 _ORDER = ["demo", "analyze", "encode", "mine", "contrast", "phases", "validate",
-          "detectors", "watch", "report"]
+          "detectors", "watch", "report", "keygen"]
 
 
 def _command_modules():

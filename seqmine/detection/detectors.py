@@ -42,6 +42,7 @@ import numpy as np
 import pandas as pd
 
 from .._util.checks import check_int, check_number
+from .._util.outdir import open_new
 from ..encoding.sequences import PAUSE_PREFIX
 from ..errors import ColumnError, DataFileError, ParameterError, SeqmineWarning
 from ..mining.patterns import PATTERN_SEPARATOR
@@ -389,7 +390,8 @@ def save_detectors(detectors, path):
     validate_detectors(detectors, source=str(path))
     text = json.dumps(_plain(detectors), indent=2, ensure_ascii=False, allow_nan=False)
     path.parent.mkdir(parents=True, exist_ok=True)
-    path.write_text(text + "\n", encoding="utf-8")
+    with open_new(path) as fh:
+        fh.write(text + "\n")
     return path
 
 

@@ -21,6 +21,7 @@ import pandas as pd
 
 from .._util.checks import check_choice, check_columns
 from ..errors import ColumnError, DataFileError, ParameterError
+from .sources import regular_input
 
 __all__ = [
     "LoadResult",
@@ -164,6 +165,16 @@ def load_events(path, *, columns=None, format=None, delimiter=None, encoding="ut
     [[4, 'missing_learner']]
     """
     check_choice(duplicates, "duplicates", ("reject", "keep"), "load_events")
+    with regular_input(path, "events", max_bytes=max_bytes) as (regular, shown):
+        result = _load_events(regular, columns=columns, format=format, delimiter=delimiter,
+                              encoding=encoding, duplicates=duplicates,
+                              max_action_length=max_action_length, max_bytes=max_bytes)
+    result.path = shown
+    return result
+
+
+def _load_events(path, *, columns, format, delimiter, encoding, duplicates, max_action_length,
+                 max_bytes):
     if delimiter in ("\\t", "tab", "TAB"):  # a tab typed on a command line
         delimiter = "\t"
     if delimiter is not None and (not isinstance(delimiter, str) or len(delimiter) != 1
@@ -304,7 +315,23 @@ def _guess_format(path):
         return "jsonl"
     if name.endswith(".json"):
         return "xapi"
+    if not name.endswith((".csv", ".txt", ".gz", ".bz2", ".zip", ".xz")):
+        first = _first_byte(path)  # no telling extension (standard input, a pipe)
+        if first == b"{":
+            return "jsonl"
+        if first == b"[":
+            return "xapi"
     return "csv"
+
+
+def _first_byte(path):
+    """The first byte of ``path`` after a byte-order mark and white space (b"" if none)."""
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(4096)
+    except OSError:
+        return b""
+    return head.removeprefix(b"\xef\xbb\xbf").lstrip()[:1]
 
 
 def _read_delimited(path, fmt, delimiter, encoding):

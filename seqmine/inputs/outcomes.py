@@ -22,6 +22,7 @@ from sklearn.base import BaseEstimator
 
 from .._util.checks import check_choice, check_columns, check_fraction
 from ..errors import DataFileError, ParameterError
+from .sources import regular_input
 
 __all__ = [
     "normalized_gain",
@@ -96,6 +97,12 @@ def load_outcomes(path, *, columns=None, kind="auto", max_score=None, delimiter=
         scores, ``post`` or ``pre`` above ``max``.
     """
     check_choice(kind, "kind", ("auto", "gain", "score", "label"), "load_outcomes")
+    with regular_input(path, "outcomes") as (regular, _shown):
+        return _load_outcomes(regular, columns=columns, kind=kind, max_score=max_score,
+                              delimiter=delimiter)
+
+
+def _load_outcomes(path, *, columns, kind, max_score, delimiter):
     path = Path(path)
     roles = {r: r for r in ("learner", "pre", "post", "max", "score", "label")}
     roles.update({k: v for k, v in (columns or {}).items() if v})

@@ -21,6 +21,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from .._util.outdir import open_new
 from .._version import __version__
 from ..errors import DataFileError
 from . import html as hx
@@ -270,10 +271,8 @@ def render_report(out_dir, *, examples=True, max_patterns=12, max_examples=2):
     data = _read_all(folder)
     page = _page(data, examples=examples, max_patterns=max_patterns, max_examples=max_examples)
     target = folder / REPORT_FILE
-    tmp = folder / (REPORT_FILE + ".tmp")
-    with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
+    with open_new(target, "w", newline="\n") as fh:
         fh.write(page)
-    os.replace(tmp, target)
     return target
 
 
@@ -311,8 +310,8 @@ def write_examples(out_dir, db, patterns, **kwargs):
         names, favours = [str(p) for p in patterns], kwargs.pop("favours", None)
     data = build_examples(db, names, favours=favours, **kwargs)
     path = Path(out_dir) / OUTPUT_FILES["examples"]
-    path.write_text(json.dumps(data, indent=1, ensure_ascii=False) + "\n",
-                    encoding="utf-8")
+    with open_new(path) as fh:
+        fh.write(json.dumps(data, indent=1, ensure_ascii=False) + "\n")
     return path
 
 
