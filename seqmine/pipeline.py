@@ -3,9 +3,11 @@
 from __future__ import annotations
 
 import contextlib
+import os
 import sys
 import time
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -20,7 +22,8 @@ from .inputs.outcomes import Grouping, match_learners
 __all__ = ["Prepared", "prepare_sequences", "pseudonymize_inputs", "analyze", "AnalysisResult",
            "MIN_GROUP_LEARNERS", "order_patterns", "merge_summary", "mine_summary",
            "contrast_summary", "phases_summary", "validation_summary",
-           "validation_pattern_params", "public_config"]
+           "validation_pattern_params", "public_config", "run_folder_of", "rerun_stage",
+           "recorded_names", "stage_output_folder"]
 
 #: Configuration keys that only say where work runs (left out of summary.json).
 _EXECUTION_KEYS = ("jobs", "scheduler")
@@ -233,7 +236,7 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     log = WarningLog()
     inputs = [events_path, outcomes_path, cfg["encode"]["mapping"],
               cfg["privacy"]["pseudonymize_key"]]
-    with writing_folder(out_dir, "--out", inputs=inputs) as staging:
+    with writing_folder(out_dir, "--out", inputs=inputs, owned=recorded_names(out_dir)) as staging:
         with regular_input(events_path, "events", max_bytes=cfg["events"]["max_bytes"]) as ev, \
                 regular_input(outcomes_path, "outcomes") as oc, \
                 using_scheduler(scheduler, int(cfg["jobs"])), collect_warnings(log):
@@ -241,6 +244,120 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     result.files = [staging.shown(f) for f in result.files]
     result.out_dir = staging.target
     return result
+
+
+def run_folder_of(path):
+    """The output folder with a run record that ``path`` is, or lies directly in (None
+    when there is none). Sub-commands writing there re-run their stage in that run.
+
+    Examples
+    --------
+    >>> run_folder_of("no/such/folder") is None
+    True
+    """
+    from ._util.runrecord import has_record, read_summary
+    if path is None or not str(path).strip():
+        return None
+    p = Path(os.path.abspath(path))
+    for folder in (p, p.parent):
+        if folder.is_dir() and not folder.is_symlink() and has_record(read_summary(folder)):
+            return folder
+    return None
+
+
+def recorded_names(folder):
+    """Top-level names of the files a folder's run record lists (empty without one)."""
+    from ._util.runrecord import has_record, read_summary
+    summary = read_summary(folder) if folder is not None and Path(folder).is_dir() else None
+    if not has_record(summary):
+        return set()
+    return {rel.split("/")[0] for entry in summary["stages"].values()
+            if isinstance(entry, dict) for rel in (entry.get("outputs") or {})}
+
+
+def stage_output_folder(folder, stage, marker):
+    """The sub-folder of a run folder written by ``stage`` (the one holding ``marker``,
+    e.g. ``sequences.json``), or None when the record lists none."""
+    from ._util.runrecord import read_summary
+    entry = (read_summary(folder) or {}).get("stages", {}).get(stage) or {}
+    if entry.get("status") != "done":
+        return None
+    for rel in entry.get("outputs") or {}:
+        parts = rel.split("/")
+        if parts[-1] == marker:
+            return Path(folder, *parts[:-1])
+    return None
+
+
+def rerun_stage(folder, stage, command, work, *, settings, inputs=None, outside_inputs=(),
+                config_section=None, config_values=None):
+    """Re-run one stage in an existing output folder as one step.
+
+    The folder is cloned beside itself (hard links), the stage's previous outputs and
+    those of every stage depending on it are removed from the clone (and marked
+    ``removed`` in the record, with the summary keys they owned), ``work(staging)``
+    writes the new outputs into ``staging.path`` and returns ``(summary fragment,
+    result)``, the record is updated, and the clone is swapped into place. A failure
+    anywhere leaves the folder as it was.
+
+    Parameters
+    ----------
+    folder : path-like
+        An output folder with a run record (see :func:`run_folder_of`).
+    stage, command : str
+    work : callable
+    settings : dict
+        The settings recorded for the stage.
+    inputs : dict, optional
+        Recorded inputs (default: the stages it depends on).
+    outside_inputs : iterable of path-like
+        Files read from outside the folder (refused when they lie inside it).
+    config_section : str, optional
+        Section of ``summary.json``'s ``configuration`` updated with ``config_values``.
+
+    Returns
+    -------
+    (result of work, pathlib.Path of the folder)
+    """
+    from ._util.outdir import writing_folder
+    from ._util.runrecord import DEPENDS, RunRecord, new_files, read_summary, snapshot
+    from .errors import OutputError
+    previous = read_summary(folder)
+    with writing_folder(folder, "--out", inputs=outside_inputs, update=True) as st:
+        record = RunRecord(command, previous)
+        for rel in record.rerun(stage):
+            with contextlib.suppress(FileNotFoundError):
+                os.unlink(st.path / rel)
+        _prune_empty_folders(st.path)
+        summary = {k: v for k, v in previous.items()
+                   if k not in ("stages", "history", "record_version")}
+        write_json(st.path / "summary.json", record.apply(summary))
+        before = snapshot(st.path)
+        fragment, result = work(st)
+        outputs = {k: v for k, v in new_files(st.path, before).items() if k != "summary.json"}
+        others = {rel.split("/")[0]: s for s in record.stages if s != stage
+                  and record.status(s) == "done" for rel in record.outputs(s)}
+        for rel in outputs:
+            if rel.split("/")[0] in others:
+                raise OutputError(
+                    f"{st.target / rel.split('/')[0]} belongs to the {others[rel.split('/')[0]]} "
+                    f"stage of this run; give the {stage} results another name.")
+        owned = merge_summary(summary, fragment or {})
+        if config_section and isinstance(summary.get("configuration"), dict):
+            section = summary["configuration"].setdefault(config_section, {})
+            section.update({k: v for k, v in (config_values or {}).items() if k in section})
+        if inputs is None:
+            inputs = {d: {"stage": d} for d in DEPENDS[stage] if record.status(d) == "done"}
+        record.done(stage, settings=settings, inputs=inputs, outputs=outputs,
+                    summary_keys=owned)
+        write_json(st.path / "summary.json", record.apply(summary))
+    return result, st.target
+
+
+def _prune_empty_folders(root):
+    for dirpath, _dirs, _files in os.walk(root, topdown=False):
+        if dirpath != str(root) and not os.listdir(dirpath):
+            os.rmdir(dirpath)
 
 
 def _preflight(cfg):
@@ -253,11 +370,11 @@ def _preflight(cfg):
         read_key(cfg["privacy"]["pseudonymize_key"])
 
 
-def _input_entry(pair, given):
+def _input_entry(pair):
     """Record entry of an input read from ``pair`` = (regular file, shown name)."""
     from ._util.runrecord import file_input
-    from .inputs.sources import STDIN
-    return file_input(pair[0], shown=STDIN if str(given) == STDIN else pair[1])
+    from .inputs.sources import STDIN, STDIN_NAME
+    return file_input(pair[0], shown=STDIN if pair[1] == STDIN_NAME else pair[1])
 
 
 def _analyze(ev, oc, staging, cfg, *, quiet=False, log):
@@ -287,7 +404,7 @@ def _analyze(ev, oc, staging, cfg, *, quiet=False, log):
     # 1. load and validate
     key_path = cfg["privacy"]["pseudonymize_key"]
     key = read_key(key_path) if key_path else None
-    load_inputs = {"events": _input_entry(ev, ev[1]), "outcomes": _input_entry(oc, oc[1])}
+    load_inputs = {}  # filled once the files have been read (a missing file says so first)
     privacy = {"pseudonymized": key is not None,
                "key_fingerprint": key_fingerprint(key) if key is not None else None}
     with run.stage("load", "loading", {"events": ev_cfg, "outcomes": oc_cfg,
@@ -302,6 +419,7 @@ def _analyze(ev, oc, staging, cfg, *, quiet=False, log):
             max_score=oc_cfg["max_score"])
         if key is not None:
             loaded, outcomes = pseudonymize_inputs(loaded, outcomes, key)
+        load_inputs.update(events=_input_entry(ev), outcomes=_input_entry(oc))
         write_csv(loaded.rejects, out / "rejects.csv")
         files.append(out / "rejects.csv")
 
@@ -312,7 +430,7 @@ def _analyze(ev, oc, staging, cfg, *, quiet=False, log):
     encoder = encoder_from_settings(en_cfg)
     enc_inputs = {"load": {"stage": "load"}}
     if en_cfg.get("mapping"):
-        enc_inputs["mapping"] = _input_entry((en_cfg["mapping"], en_cfg["mapping"]), "")
+        enc_inputs["mapping"] = _input_entry((en_cfg["mapping"], en_cfg["mapping"]))
     with run.stage("encode", "encoding", {**en_cfg, "grouping": rule}, inputs=enc_inputs):
         prepared = prepare_sequences(loaded, outcomes, encoder=encoder, grouping=grouping)
         db = prepared.db

@@ -31,7 +31,8 @@ from pathlib import Path
 from ..errors import OutputError
 
 __all__ = ["open_new", "check_output_folder", "check_output_file", "writing_folder",
-           "writing_file", "output_error", "Staging", "OUTPUT_NAMES", "same_file"]
+           "writing_file", "writing_files", "output_error", "Staging", "OUTPUT_NAMES",
+           "same_file"]
 
 #: Names seqmine writes into an output folder (any command); a folder holding only
 #: these (or nothing) may be replaced by a new run.
@@ -45,7 +46,7 @@ OUTPUT_NAMES = frozenset({
 #: Marker files of the sub-folders seqmine writes as one unit, and the suffixes of
 #: the files such a folder may hold.
 _UNIT_MARKERS = {
-    "phases.json": (".json", ".csv", ".graphml"),
+    "phases.json": (".json", ".csv", ".graphml", "state_sequences"),
     "patternset.json": (".json", ".csv", ".npz"),
     "sequences.json": (".json", ".npz"),
 }
@@ -193,6 +194,28 @@ def writing_file(target, option="--out", *, inputs=()):
     finally:
         with contextlib.suppress(OSError):
             os.unlink(tmp)
+
+
+@contextlib.contextmanager
+def writing_files(folder, names, option="--out", *, inputs=()):
+    """Write several files into ``folder`` (which may hold other files): yields a private
+    temporary folder; when the block ends without error each of ``names`` written there
+    is moved onto ``folder / name`` (each file whole; checked like
+    :func:`writing_file`)."""
+    targets = [check_output_file(Path(folder) / n, option, inputs=inputs) for n in names]
+    with output_error(folder):
+        Path(folder).mkdir(parents=True, exist_ok=True)
+        tmp = Path(tempfile.mkdtemp(prefix=f".{targets[0].name}{_TMP}", dir=folder))
+    try:
+        with output_error(folder, staged=tmp):
+            yield tmp
+            with _signals_held():
+                for target in targets:
+                    if (tmp / target.name).exists():
+                        os.replace(tmp / target.name, target)
+    finally:
+        with _signals_held():
+            shutil.rmtree(tmp, ignore_errors=True)
 
 
 # ------------------------------------------------------------------- folders

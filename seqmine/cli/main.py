@@ -10,7 +10,9 @@ from __future__ import annotations
 import argparse
 import importlib
 import pkgutil
+import signal
 import sys
+import threading
 import warnings
 
 from .._util.progress import is_quiet, set_quiet
@@ -55,6 +57,30 @@ def build_parser():
     return parser
 
 
+class _StopSignals:
+    """While a command runs, SIGTERM interrupts it like Ctrl-C (SIGINT) does, so the
+    clean-up code runs: temporary folders are removed, worker pools shut down, the
+    previous output stays. Outside the main thread nothing is changed."""
+
+    def __init__(self):
+        self.terminated = False
+        self._before = None
+
+    def _handler(self, signum, frame):
+        self.terminated = True
+        raise KeyboardInterrupt
+
+    def __enter__(self):
+        if threading.current_thread() is threading.main_thread():
+            self._before = signal.signal(signal.SIGTERM, self._handler)
+        return self
+
+    def __exit__(self, *exc):
+        if self._before is not None:
+            signal.signal(signal.SIGTERM, self._before)
+        return False
+
+
 def _show_warning(message, category, filename, lineno, file=None, line=None):
     print(f"seqmine: warning: {_one_line(message)}", file=sys.stderr)
 
@@ -76,8 +102,9 @@ def main(argv=None):
     debug = getattr(args, "debug", False)
     was_quiet = is_quiet()
     set_quiet(bool(getattr(args, "quiet", False)))  # per invocation, restored below
+    stop = _StopSignals()
     try:
-        with warnings.catch_warnings():
+        with warnings.catch_warnings(), stop:
             # every warning is shown, as one line, whatever ran before in this process
             warnings.simplefilter("always")
             if not debug:
@@ -95,8 +122,18 @@ def main(argv=None):
         os.dup2(devnull, sys.stdout.fileno())
         return 0
     except KeyboardInterrupt:
-        print("seqmine: interrupted", file=sys.stderr)
+        if stop.terminated:
+            print("seqmine: terminated (SIGTERM); nothing half-written was left behind",
+                  file=sys.stderr)
+            return 128 + signal.SIGTERM
+        print("seqmine: interrupted; nothing half-written was left behind", file=sys.stderr)
         return 130
+    except OSError as exc:
+        if debug or not exc.filename:
+            raise
+        print(f"seqmine: error: {exc.filename}: {exc.strerror or type(exc).__name__}; check "
+              f"the path and its permissions.", file=sys.stderr)
+        return 2
     except SeqmineError as exc:
         if debug:
             raise

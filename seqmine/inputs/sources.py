@@ -18,10 +18,12 @@ from pathlib import Path
 
 from ..errors import DataFileError, SeqmineInputError
 
-__all__ = ["regular_input", "is_stream", "STDIN"]
+__all__ = ["regular_input", "is_stream", "STDIN", "STDIN_NAME"]
 
 #: The name that stands for standard input.
 STDIN = "-"
+#: How standard input is named in messages.
+STDIN_NAME = "standard input"
 
 
 def is_stream(path):
@@ -62,7 +64,7 @@ def regular_input(path, role="input", *, max_bytes=None):
     if not is_stream(path):
         yield Path(path), str(path)
         return
-    shown = "standard input" if str(path) == STDIN else str(path)
+    shown = STDIN_NAME if str(path) == STDIN else str(path)
     suffix = "" if str(path) == STDIN else Path(str(path)).suffix
     with tempfile.TemporaryDirectory(prefix="seqmine-input-") as tmp:
         spool = Path(tmp) / f"{role}{suffix}"

@@ -29,18 +29,18 @@ from .html import (
     _missing,
     _num,
     _ordered,
-    _pattern_label,
     _pct,
     _plural,
     _section,
     _significant,
-    _split,
     _str_list,
     _table,
     _true,
     config_of,
     counts_of,
     esc,
+    row_excerpts,
+    row_tokens,
     lookup,
     top_patterns,
 )
@@ -130,7 +130,7 @@ def _strongest(sig, groups):
         sup = [f"{esc(h)} {_pct(r[f'support_{h}'])}" for h in groups
                if f"support_{h}" in r.index]
         items.append(f"Most reliable pattern more common among {_group_label(g, groups)}: "
-                     f"{_chips(_split(r['pattern']))}"
+                     f"{_chips(row_tokens(r))}"
                      + (f" (in {', '.join(sup)} of sequences)" if sup else "") + ".")
     return items
 
@@ -232,7 +232,7 @@ def section_patterns(d, figs, *, examples, max_patterns, max_examples):
     out.append(f'<p class="note">{note}</p>')
     if sup_cols and len(top):
         out.append(_plots.svg_support_bars(
-            [_pattern_label(p) for p in top["pattern"]],
+            [" → ".join(row_tokens(r)) for _, r in top.iterrows()],
             {g: top[c].to_numpy(float) for g, c in sup_cols}, fig_id=figs()))
     ex_map = {}
     if examples:
@@ -241,7 +241,7 @@ def section_patterns(d, figs, *, examples, max_patterns, max_examples):
             ex_map = ex_inp.value["patterns"]
     for rank, (_, row) in enumerate(top.iterrows(), start=1):
         out.append(_pattern_card(rank, row, sup_cols, groups, d["alpha"],
-                                 ex_map.get(str(row["pattern"])), examples, max_examples))
+                                 row_excerpts(ex_map, row), examples, max_examples))
     if not examples:
         out.append('<p class="note">Example excerpts were switched off for this report.</p>')
     elif not d["examples"].ok:

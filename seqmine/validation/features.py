@@ -25,7 +25,7 @@ from sklearn.base import BaseEstimator, TransformerMixin
 from .._util.checks import check_choice, check_fraction, check_int, check_number
 from ..encoding.sequences import SequenceDB
 from ..errors import NotFittedError, ParameterError
-from ..mining.patterns import PATTERN_SEPARATOR
+from ..mining.patterns import PATTERN_SEPARATOR, pattern_tokens
 
 __all__ = [
     "PatternFeaturizer",
@@ -165,8 +165,8 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
         else:
             scores = pd.DataFrame({"pattern": [], "p_value": [], "q_value": []})
         self.scores_ = scores
-        chosen = select_patterns(scores, alpha=self.alpha, top_k=self.top_k)
-        self.patterns_ = [tuple(p.split(PATTERN_SEPARATOR)) for p in chosen]
+        chosen = select_patterns(scores, alpha=self.alpha, top_k=self.top_k, as_tokens=True)
+        self.patterns_ = [tuple(p) for p in chosen]
         return self
 
     def transform(self, X):
@@ -441,7 +441,7 @@ class HMMLikelihoodFeaturizer(TransformerMixin, BaseEstimator):
 
 
 # --------------------------------------------------------------------- helpers
-def select_patterns(scores, *, alpha=0.05, top_k=30):
+def select_patterns(scores, *, alpha=0.05, top_k=30, as_tokens=False):
     """Choose patterns from a contrast table: significant first, smallest p-values.
 
     Parameters
@@ -453,10 +453,13 @@ def select_patterns(scores, *, alpha=0.05, top_k=30):
     top_k : int
         Keep at most this many (ordered by p-value, then pattern name, so ties
         are broken deterministically).
+    as_tokens : bool
+        Return each pattern as its token list (from the ``tokens`` column when the
+        table has one, which is exact even for tokens containing ``" > "``).
 
     Returns
     -------
-    list of str
+    list of str (or of list of str)
 
     Examples
     --------
@@ -467,12 +470,17 @@ def select_patterns(scores, *, alpha=0.05, top_k=30):
     """
     if len(scores) == 0:
         return []
-    t = pd.DataFrame({"pattern": scores["pattern"].astype(str),
-                      "p_value": pd.to_numeric(scores["p_value"]),
-                      "q_value": pd.to_numeric(scores["q_value"])})
+    rows = scores.reset_index(drop=True)
+    t = pd.DataFrame({"pattern": rows["pattern"].astype(str),
+                      "p_value": pd.to_numeric(rows["p_value"]),
+                      "q_value": pd.to_numeric(rows["q_value"]),
+                      "tokens": (rows["tokens"].astype(str) if "tokens" in rows.columns
+                                 else rows["pattern"].astype(str))})
     t = t[t["q_value"] <= alpha]
-    t = t.sort_values(["p_value", "pattern"], kind="mergesort")
-    return t["pattern"].head(int(top_k)).tolist()
+    t = t.sort_values(["p_value", "pattern", "tokens"], kind="mergesort").head(int(top_k))
+    if not as_tokens:
+        return t["pattern"].tolist()
+    return [pattern_tokens(r) for r in rows.loc[t.index].to_dict("records")]
 
 
 def group_codes(db, y):

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 import sys
 
 from ...encoding.encoder import encoder_from_settings
@@ -12,7 +13,7 @@ from ...inputs.outcomes import Grouping, load_outcomes
 __all__ = ["add_event_options", "add_outcome_options", "add_encoding_options",
            "events_from_args", "outcomes_from_args", "grouping_from_args",
            "encoder_from_args", "parse_float_list", "add_privacy_option",
-           "pseudonymize_inputs", "print_warnings"]
+           "pseudonymize_inputs", "print_warnings", "check_max_bytes"]
 
 
 def parse_float_list(text, option):
@@ -87,14 +88,23 @@ def events_from_args(args, path):
     return load_events(path, columns=columns, format=args.format, delimiter=args.delimiter,
                        encoding=args.encoding,
                        duplicates="keep" if args.keep_duplicates else "reject",
-                       max_bytes=args.max_bytes)
+                       max_bytes=check_max_bytes(args.max_bytes))
 
 
-def outcomes_from_args(args):
+def check_max_bytes(value):
+    """``--max-bytes`` as a whole number of bytes (refuses inf, nan and non-positive)."""
+    if not (isinstance(value, (int, float)) and math.isfinite(value) and value >= 1):
+        raise ParameterError(f"--max-bytes must be a finite number of bytes >= 1, such as "
+                             f"2e10. Got {value!r} instead.")
+    return int(value)
+
+
+def outcomes_from_args(args, path=None):
     cols = {"learner": args.outcome_learner_column, "pre": args.pre_column,
             "post": args.post_column, "max": args.max_column, "score": args.score_column,
             "label": args.label_column}
-    return load_outcomes(args.outcomes, columns=cols, max_score=args.max_score)
+    return load_outcomes(args.outcomes if path is None else path, columns=cols,
+                         max_score=args.max_score)
 
 
 def grouping_from_args(args, outcomes):

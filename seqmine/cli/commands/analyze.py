@@ -25,7 +25,7 @@ _FLAG_TO_CONFIG = [
     ("delimiter", "events", "delimiter", None),
     ("encoding", "events", "encoding", None),
     ("keep_duplicates", "events", "duplicates", lambda v: "keep" if v else "reject"),
-    ("max_bytes", "events", "max_bytes", int),
+    ("max_bytes", "events", "max_bytes", _options.check_max_bytes),
     ("outcome_learner_column", "outcomes", "learner_column", None),
     ("pre_column", "outcomes", "pre_column", None),
     ("post_column", "outcomes", "post_column", None),

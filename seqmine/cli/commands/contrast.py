@@ -26,84 +26,201 @@ DESCRIPTION = (
 )
 
 
+#: Defaults of the options that re-running contrast in an output folder takes from the
+#: folder's record when they are not given: option -> (record setting, default).
+_FROM_RECORD = {
+    "correction": ("correction", "bh"), "alpha": ("alpha", 0.05),
+    "permutations": ("n_permutations", 1000), "seed": ("seed", 0),
+    "stability_resamples": ("stability_resamples", 100),
+    "redundancy": ("redundancy_jaccard", 0.9),
+    "redundancy_order": ("redundancy_order", "significance"),
+    "drop_redundant": ("drop_redundant", False), "rate_unit": ("rate_unit", None),
+    "unit": ("unit", "sequence"),
+}
+
+
 def add_arguments(parser):
     """Options of ``seqmine contrast``."""
     parser.add_argument("patterns", metavar="PATTERNS_DIR",
-                        help="pattern set folder written by 'seqmine mine' (or its .csv table)")
+                        help="pattern set folder written by 'seqmine mine' (or its .csv table), "
+                             "or an output folder of 'seqmine analyze' to re-run its contrast")
     parser.add_argument("--seqdb", metavar="DIR", default=None,
                         help="sequence database folder the patterns were mined on (gives "
                              "sequence lengths for rates; needed for --transitions)")
-    parser.add_argument("--out", required=True, metavar="CSV", help="contrast table to write")
+    parser.add_argument("--out", metavar="CSV", default=None,
+                        help="contrast table to write (default with an output folder: its "
+                             "patterns.csv, replacing the run's contrast)")
     parser.add_argument("--transitions", metavar="CSV", default=None,
                         help="also write the lag-1 transition table here")
     parser.add_argument("--pairwise", metavar="CSV", default=None,
                         help="with more than two groups, also write pairwise comparisons here")
     parser.add_argument("--groups", metavar="A,B", default=None,
                         help="comma-separated group names to compare (default: all groups)")
-    parser.add_argument("--correction", choices=CONTRAST_CORRECTIONS, default="bh",
+    parser.add_argument("--correction", choices=CONTRAST_CORRECTIONS, default=None,
                         help="multiple-comparison control of q_value (default bh)")
-    parser.add_argument("--alpha", type=float, default=0.05, metavar="A",
+    parser.add_argument("--alpha", type=float, default=None, metavar="A",
                         help="level for 'favours' and stability (default 0.05)")
-    parser.add_argument("--permutations", type=int, default=1000, metavar="N",
+    parser.add_argument("--permutations", type=int, default=None, metavar="N",
                         help="label permutations for westfall-young (default 1000)")
-    parser.add_argument("--seed", type=int, default=0, metavar="S",
+    parser.add_argument("--seed", type=int, default=None, metavar="S",
                         help="seed of permutations and resamples (default 0)")
-    parser.add_argument("--stability-resamples", type=int, default=100, metavar="N",
+    parser.add_argument("--stability-resamples", type=int, default=None, metavar="N",
                         help="bootstrap resamples for the stability column, 0 = skip "
                              "(default 100)")
-    parser.add_argument("--redundancy", default="0.9", metavar="J",
+    parser.add_argument("--redundancy", default=None, metavar="J",
                         help="Jaccard threshold for redundancy marks, or 'none' (default 0.9)")
     parser.add_argument("--redundancy-order", choices=("significance", "length"),
-                        default="significance",
+                        default=None,
                         help="which of two near-duplicates is kept (default significance)")
-    parser.add_argument("--drop-redundant", action="store_true",
+    parser.add_argument("--drop-redundant", action="store_true", default=None,
                         help="leave redundant patterns out of the table")
     parser.add_argument("--rate-unit", choices=("tokens", "actions", "count"), default=None,
                         help="rates per 100 tokens, per 100 actions or raw counts (default: "
                              "tokens with --seqdb, else count)")
-    parser.add_argument("--unit", choices=("sequence", "learner"), default="sequence",
+    parser.add_argument("--unit", choices=("sequence", "learner"), default=None,
                         help="unit of analysis; 'learner' merges each learner's sessions "
                              "first (needs --seqdb; default sequence)")
     parser.add_argument("--exclude-pauses", action="store_true",
-                        help="transitions skip pause tokens")
+                        help="transitions skip pauses")
 
 
 def run(args):
     """Run ``seqmine contrast`` (quiet mode is set by the command line per call)."""
+    from ...pipeline import run_folder_of
+    folder = _run_folder(args, run_folder_of)
+    if folder is not None:
+        return _run_in_folder(args, folder)
+    if args.out is None:
+        raise ParameterError("--out CSV is needed unless PATTERNS_DIR is an output folder of "
+                             "'seqmine analyze' (whose contrast is then re-run).")
+    opts = _resolved(args, {})
     ps = read_patternset(args.patterns)
     db = SequenceDB.load(args.seqdb) if args.seqdb else None
     if args.transitions and db is None:
         raise ParameterError("--transitions needs --seqdb DIR (the sequence database folder).")
-    redundancy = _redundancy(args.redundancy)
     groups = [g.strip() for g in args.groups.split(",")] if args.groups else None
-    table = contrast(ps, db, groups=groups, correction=args.correction, alpha=args.alpha,
-                     n_permutations=args.permutations, seed=args.seed,
-                     stability_resamples=args.stability_resamples, redundancy=redundancy,
-                     redundancy_order=args.redundancy_order,
-                     drop_redundant=args.drop_redundant, rate_unit=args.rate_unit,
-                     unit=args.unit)
-    out = _writable(args.out, "--out")
-    write_csv(table, out)
-    messages = [f"wrote {len(table)} patterns to {out} "
-                f"({int((table['favours'] != '').sum())} with q <= {args.alpha} "
-                f"by {args.correction})"]
+    table = _contrast(ps, db, groups, opts)
+    reads = [args.patterns, args.seqdb]
+    messages = [_write(table, args.out, "--out", reads, "patterns") +
+                f" ({int((table['favours'] != '').sum())} with q <= {opts['alpha']} "
+                f"by {opts['correction']})"]
     if args.pairwise:
         if len(table.attrs.get("groups", [])) < 3:
             raise ParameterError("--pairwise needs more than two compared groups; the two-group "
                                  "table already holds the pairwise comparison.")
         pw = pairwise_contrast(ps, db, groups=groups,
-                               correction="bh" if args.correction == "bh" else "holm",
-                               alpha=args.alpha, rate_unit=args.rate_unit, unit=args.unit)
-        path = _writable(args.pairwise, "--pairwise")
-        write_csv(pw, path)
-        messages.append(f"wrote {len(pw)} pairwise rows to {path}")
+                               correction="bh" if opts["correction"] == "bh" else "holm",
+                               alpha=opts["alpha"], rate_unit=opts["rate_unit"],
+                               unit=opts["unit"])
+        messages.append(_write(pw, args.pairwise, "--pairwise", reads, "pairwise rows"))
     if args.transitions:
         tr = transitions(db, exclude_pauses=args.exclude_pauses)
-        path = _writable(args.transitions, "--transitions")
-        write_csv(tr, path)
-        messages.append(f"wrote {len(tr)} transition rows to {path}")
+        messages.append(_write(tr, args.transitions, "--transitions", reads, "transition rows"))
     if not is_quiet():
         print("\n".join(messages))
+    return 0
+
+
+def _write(table, path, option, reads, what):
+    from ..._util.outdir import writing_file
+    with writing_file(path, option, inputs=reads) as tmp:
+        write_csv(table, tmp)
+    return f"wrote {len(table)} {what} to {path}"
+
+
+def _contrast(ps, db, groups, opts):
+    return contrast(ps, db, groups=groups, correction=opts["correction"], alpha=opts["alpha"],
+                    n_permutations=opts["permutations"], seed=opts["seed"],
+                    stability_resamples=opts["stability_resamples"],
+                    redundancy=opts["redundancy"], redundancy_order=opts["redundancy_order"],
+                    drop_redundant=opts["drop_redundant"], rate_unit=opts["rate_unit"],
+                    unit=opts["unit"])
+
+
+def _resolved(args, recorded):
+    """Option values: given on the command line, else the folder's record, else default."""
+    out = {}
+    for opt, (name, default) in _FROM_RECORD.items():
+        value = getattr(args, opt)
+        if value is None:
+            value = recorded.get(name, default)
+        out[opt] = value
+    out["redundancy"] = _redundancy(out["redundancy"])
+    return out
+
+
+def _run_folder(args, run_folder_of):
+    """The analyze output folder this call writes into, or None (file mode)."""
+    given = Path(args.patterns)
+    if given.is_dir() and run_folder_of(given) == Path(given).absolute() and \
+            (given / "summary.json").is_file():
+        return run_folder_of(given)
+    return run_folder_of(args.out) if args.out else None
+
+
+def _run_in_folder(args, folder):
+    """Re-run the contrast stage of an analyze output folder."""
+    from ..._util.runrecord import read_summary
+    from ...errors import OutputError
+    from ...pipeline import (
+        contrast_summary,
+        order_patterns,
+        rerun_stage,
+        stage_output_folder,
+    )
+    if args.transitions or args.pairwise:
+        raise ParameterError("--transitions and --pairwise write extra tables; run them with "
+                             "--out FILE.csv outside the output folder, not when re-running "
+                             "the contrast of an output folder.")
+    ps_dir = stage_output_folder(folder, "mine", "patternset.json")
+    db_dir = stage_output_folder(folder, "encode", "sequences.json")
+    if ps_dir is None or db_dir is None:
+        raise DataFileError(f"{folder}: the run record lists no pattern set or sequences to "
+                            f"score; run 'seqmine analyze' (or encode and mine) into it first.")
+    for given, own, what in ((args.patterns, ps_dir, "pattern set"),
+                             (args.seqdb, db_dir, "sequence database")):
+        if given and Path(given).resolve() not in (Path(folder).resolve(), own.resolve(),
+                                                   (own / "patterns.csv").resolve()):
+            raise OutputError(f"{given} is not the {what} of the run in {folder}; a contrast "
+                              f"written there must score that run's own {what} (write to a "
+                              f"file outside the folder with --out to score another).")
+    name = "patterns.csv"
+    if args.out and Path(args.out).resolve() != Path(folder).resolve():
+        rel = Path(args.out).resolve().relative_to(Path(folder).resolve())
+        if len(rel.parts) != 1 or rel.suffix.lower() != ".csv":
+            raise ParameterError(f"--out {args.out}: inside an output folder the contrast "
+                                 f"table is a .csv file directly in {folder}.")
+        name = rel.name
+    recorded = ((read_summary(folder) or {}).get("stages", {}).get("contrast") or {}).get(
+        "settings") or {}
+    opts = _resolved(args, recorded)
+    groups = [g.strip() for g in args.groups.split(",")] if args.groups else None
+    settings = {name: opts[opt] for opt, (name, _d) in _FROM_RECORD.items()}
+    settings.update(groups=groups, redundancy_jaccard=opts["redundancy"])
+
+    def work(st):
+        rel_ps, rel_db = ps_dir.relative_to(folder), db_dir.relative_to(folder)
+        ps = load_patternset(st.path / rel_ps)
+        db = SequenceDB.load(st.path / rel_db)
+        table = order_patterns(_contrast(ps, db, groups, opts))
+        write_csv(table, st.path / name)
+        return contrast_summary(table, {
+            "correction": opts["correction"], "alpha": opts["alpha"],
+            "n_permutations": opts["permutations"],
+            "stability_resamples": opts["stability_resamples"]}), table
+
+    table, target = rerun_stage(
+        folder, "contrast", NAME, work, settings=settings, config_section="contrast",
+        config_values={"correction": opts["correction"], "alpha": opts["alpha"],
+                       "n_permutations": opts["permutations"],
+                       "stability_resamples": opts["stability_resamples"],
+                       "redundancy_jaccard": opts["redundancy"]})
+    if not is_quiet():
+        n_sig = int((table["favours"].fillna("") != "").sum())
+        print(f"re-ran the contrast in {target}: {len(table)} patterns, {n_sig} with q <= "
+              f"{opts['alpha']} by {opts['correction']}; the detectors, examples and report "
+              f"of the earlier contrast were removed (run 'seqmine detectors {target}' and "
+              f"'seqmine report {target}')")
     return 0
 
 
@@ -118,20 +235,16 @@ def read_patternset(path):
     return load_patternset(folder)
 
 
-def _redundancy(text):
-    t = str(text).strip().lower()
+def _redundancy(value):
+    if value is None:
+        return None
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        return float(value)
+    t = str(value).strip().lower()
     if t in ("none", "off", "0"):
         return None
     try:
         return float(t)
     except ValueError:
         raise ParameterError(f"--redundancy must be a Jaccard threshold in (0, 1] such as 0.9, "
-                             f"or 'none'. Got {text!r} instead.") from None
-
-
-def _writable(path, option):
-    p = Path(path)
-    if p.exists() and p.is_dir():
-        raise ParameterError(f"{option} {p} is a folder; give a file name such as {p / 'x.csv'}.")
-    p.parent.mkdir(parents=True, exist_ok=True)
-    return p
+                             f"or 'none'. Got {value!r} instead.") from None

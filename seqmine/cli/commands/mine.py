@@ -7,7 +7,7 @@ from pathlib import Path
 
 from ..._util.progress import is_quiet
 from ...encoding.sequences import SequenceDB
-from ...errors import ParameterError
+from ...errors import DataFileError, ParameterError
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -51,8 +51,9 @@ def add_arguments(parser):
     """Options of ``seqmine mine``."""
     parser.add_argument("seqdb", metavar="SEQDB_DIR",
                         help="sequence database folder written by 'seqmine encode'")
-    parser.add_argument("--out", required=True, metavar="PATH",
-                        help="output folder, or the path of the pattern table (*.csv)")
+    parser.add_argument("--out", default=None, metavar="PATH",
+                        help="output folder, or the path of the pattern table (*.csv); "
+                             "default with an output folder as SEQDB_DIR: its patternset/")
     parser.add_argument("--min-support", default="0.1", metavar="S",
                         help="fraction of a group's sequences (e.g. 0.2) or a count of "
                              "sequences (e.g. 5); default 0.1")
@@ -84,22 +85,79 @@ def add_arguments(parser):
 def run(args):
     """Run the command; returns the exit status."""
     from ...mining.miner import DEFAULT_MAX_PATTERNS, mine, save_patternset
+    from ...pipeline import run_folder_of
+
+    params = dict(min_support=_support(args.min_support), min_length=args.min_length,
+                  max_length=args.max_length, max_gap=args.max_gap, max_window=args.max_window,
+                  skip_pauses=args.skip_pauses, start_with_action=args.start_with_action,
+                  end_with_action=args.end_with_action, closed=args.closed, maximal=args.maximal,
+                  max_patterns=(DEFAULT_MAX_PATTERNS if args.max_patterns is None
+                                else args.max_patterns))
+    given = Path(args.seqdb)
+    folder = (run_folder_of(given) if (given / "summary.json").is_file()
+              and run_folder_of(given) == given.absolute() else None)
+    if folder is None and args.out is not None:
+        folder = run_folder_of(args.out)
+    if folder is not None:
+        return _run_in_folder(args, folder, params)
+    if args.out is None:
+        raise ParameterError("--out PATH is needed unless SEQDB_DIR is an output folder of "
+                             "'seqmine encode' or 'seqmine analyze'.")
     db = SequenceDB.load(args.seqdb)
-    ps = mine(db, min_support=_support(args.min_support), min_length=args.min_length,
-              max_length=args.max_length, max_gap=args.max_gap, max_window=args.max_window,
-              skip_pauses=args.skip_pauses, start_with_action=args.start_with_action,
-              end_with_action=args.end_with_action, closed=args.closed, maximal=args.maximal,
-              max_patterns=(DEFAULT_MAX_PATTERNS if args.max_patterns is None
-                            else args.max_patterns))
+    ps = mine(db, **params)
     out = Path(args.out)
     if out.suffix.lower() == ".csv":
-        folder = save_patternset(ps, out.parent, table_name=out.name)
+        from ..._util.outdir import writing_files
+        names = [out.name, "counts.npz", "patternset.json"]
+        with writing_files(out.parent, names, "--out", inputs=[args.seqdb]) as tmp:
+            save_patternset(ps, tmp, table_name=out.name)
         table = out
     else:
-        folder = save_patternset(ps, out)
-        table = folder / "patterns.csv"
+        from ..._util.outdir import writing_folder
+        with writing_folder(out, "--out", inputs=[args.seqdb]) as st:
+            save_patternset(ps, st.path)
+        table = out / "patterns.csv"
+    _say(ps, db, table)
+    return 0
+
+
+def _say(ps, db, table):
     if not is_quiet():
         print(f"mine: {ps.n_patterns} patterns from {db.n_sequences} sequences "
               f"(groups: {', '.join(ps.group_names)})", file=sys.stderr)
     print(f"pattern table written to {table}")
+
+
+def _run_in_folder(args, folder, params):
+    """Re-run the mining stage of an output folder (its later stages are removed)."""
+    from ...errors import OutputError
+    from ...mining.miner import mine, save_patternset
+    from ...pipeline import mine_summary, rerun_stage, stage_output_folder
+    db_dir = stage_output_folder(folder, "encode", "sequences.json")
+    if db_dir is None:
+        raise DataFileError(f"{folder}: the run record lists no sequences to mine; run "
+                            f"'seqmine encode' into it first.")
+    if Path(args.seqdb).resolve() not in (folder.resolve(), db_dir.resolve()):
+        raise OutputError(f"{args.seqdb} is not the sequence database of the run in {folder}; "
+                          f"patterns written there must be mined from its own sequences "
+                          f"({db_dir}).")
+    name = "patternset"
+    if args.out and Path(args.out).resolve() != folder.resolve():
+        rel = Path(args.out).resolve().relative_to(folder.resolve())
+        if len(rel.parts) != 1 or rel.suffix:
+            raise ParameterError(f"--out {args.out}: inside an output folder the pattern set "
+                                 f"is a folder directly in {folder}, such as "
+                                 f"{folder / 'patternset'}.")
+        name = rel.name
+    settings = dict(params)
+
+    def work(st):
+        db = SequenceDB.load(st.path / db_dir.relative_to(folder))
+        ps = mine(db, **params)
+        save_patternset(ps, st.path / name)
+        return mine_summary(ps, params), (ps, db)
+
+    (ps, db), target = rerun_stage(folder, "mine", NAME, work, settings=settings,
+                                   config_section="mine", config_values=settings)
+    _say(ps, db, target / name / "patterns.csv")
     return 0

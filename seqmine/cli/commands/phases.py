@@ -7,6 +7,7 @@ from pathlib import Path
 
 from ..._util.progress import is_quiet
 from ...encoding.sequences import SequenceDB
+from ...errors import ParameterError
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -24,8 +25,9 @@ def add_arguments(parser):
     """Options of ``seqmine phases``."""
     parser.add_argument("seqdb", metavar="SEQDB_DIR",
                         help="sequence database folder written by 'seqmine encode'")
-    parser.add_argument("--out", required=True, metavar="DIR",
-                        help="output folder; results go to DIR/phases/")
+    parser.add_argument("--out", default=None, metavar="DIR",
+                        help="output folder; results go to DIR/phases/ (default with an "
+                             "output folder as SEQDB_DIR: that folder)")
     parser.add_argument("--states", default="2-6", metavar="RANGE",
                         help="state counts to try: '3', '2-6' or '2,3,5' (default 2-6)")
     parser.add_argument("--restarts", type=int, default=5, metavar="N",
@@ -43,13 +45,38 @@ def add_arguments(parser):
 
 def run(args):
     """Run ``seqmine phases``; quiet mode is set per call by the command line."""
-    from ...phases import fit_phases
+    from ..._util.outdir import writing_folder
+    from ..._util.parallel import effective_jobs
+    from ...pipeline import run_folder_of
 
+    jobs = effective_jobs(args.jobs, notify=True)
+    given = Path(args.seqdb)
+    folder = (given.absolute() if (given / "summary.json").is_file()
+              and run_folder_of(given) == given.absolute() else None)
+    if folder is None and args.out is not None and run_folder_of(args.out) == \
+            Path(args.out).absolute():
+        folder = run_folder_of(args.out)
+    if folder is not None:
+        return _run_in_folder(args, folder, jobs)
+    if args.out is None:
+        raise ParameterError("--out DIR is needed unless SEQDB_DIR is an output folder of "
+                             "'seqmine encode' or 'seqmine analyze'.")
     db = SequenceDB.load(args.seqdb)
-    result = fit_phases(db, n_states=args.states, n_restarts=args.restarts, seed=args.seed,
-                        n_jobs=args.jobs, criterion=args.criterion, n_folds=args.folds,
-                        n_permutations=args.permutations)
-    folder = result.save(Path(args.out) / "phases")
+    result = _fit(db, args, jobs)
+    with writing_folder(Path(args.out) / "phases", "--out", inputs=[args.seqdb]) as st:
+        result.save(st.path)
+    _say(result, Path(args.out) / "phases")
+    return 0
+
+
+def _fit(db, args, jobs):
+    from ...phases import fit_phases
+    return fit_phases(db, n_states=args.states, n_restarts=args.restarts, seed=args.seed,
+                      n_jobs=jobs, criterion=args.criterion, n_folds=args.folds,
+                      n_permutations=args.permutations)
+
+
+def _say(result, folder):
     if not is_quiet():
         msg = [f"phases: {result.n_states} states ({result.params['criterion']}), "
                f"{result.state_db.n_sequences} sequences modelled"]
@@ -60,4 +87,34 @@ def run(args):
                        f"{result.params['min_length']} tokens left out (see excluded.csv)")
         print("; ".join(msg), file=sys.stderr)
     print(f"phase models written to {folder}")
+
+
+def _run_in_folder(args, folder, jobs):
+    """Re-run the phases stage of an output folder."""
+    from ...errors import DataFileError, OutputError
+    from ...pipeline import phases_summary, rerun_stage, stage_output_folder
+    db_dir = stage_output_folder(folder, "encode", "sequences.json")
+    if db_dir is None:
+        raise DataFileError(f"{folder}: the run record lists no sequences to model; run "
+                            f"'seqmine encode' into it first.")
+    if Path(args.seqdb).resolve() not in (folder.resolve(), db_dir.resolve()):
+        raise OutputError(f"{args.seqdb} is not the sequence database of the run in {folder}; "
+                          f"phase models written there must be fitted to its own sequences "
+                          f"({db_dir}).")
+    settings = {"states": args.states, "restarts": args.restarts, "seed": args.seed,
+                "criterion": args.criterion, "heldout_folds": args.folds,
+                "permutations": args.permutations}
+    counts = [int(x) for x in str(args.states).replace("-", ",").split(",") if x.strip().isdigit()]
+    if counts:
+        settings.update(min_states=min(counts), max_states=max(counts))
+
+    def work(st):
+        db = SequenceDB.load(st.path / db_dir.relative_to(folder))
+        result = _fit(db, args, jobs)
+        result.save(st.path / "phases")
+        return phases_summary(result, db), result
+
+    result, target = rerun_stage(folder, "phases", NAME, work, settings=settings,
+                                 config_section="phases", config_values=settings)
+    _say(result, target / "phases")
     return 0

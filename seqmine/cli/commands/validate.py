@@ -70,6 +70,11 @@ def add_arguments(p):
 
 
 def run(args):
+    from ..._util.outdir import writing_folder
+    from ..._util.parallel import effective_jobs
+    from ...inputs.sources import regular_input
+    from ...pipeline import recorded_names, run_folder_of
+
     fractions = _options.parse_float_list(args.fractions, "--fractions")
     if not fractions:
         raise ParameterError("--fractions needs at least one number in (0, 1], e.g. 0.25,0.5,1.")
@@ -78,8 +83,17 @@ def run(args):
         if c not in CLASSIFIERS:
             raise ParameterError(
                 f"--classifiers: unknown name {c!r}; choose from {', '.join(CLASSIFIERS)}.")
-    loaded, outcomes = _options.pseudonymize_inputs(
-        args, _options.events_from_args(args, args.events), _options.outcomes_from_args(args))
+    jobs = effective_jobs(args.jobs, notify=not args.quiet) if args.scheduler in (
+        None, "local") else args.jobs
+    out = Path(args.out)
+    folder = run_folder_of(out) if run_folder_of(out) == out.absolute() else None
+    with regular_input(args.events, "events",
+                       max_bytes=_options.check_max_bytes(args.max_bytes)) as ev, \
+            regular_input(args.outcomes, "outcomes") as oc:
+        if folder is not None:
+            _check_same_inputs(args, folder, ev, oc)
+        loaded, outcomes = _options.pseudonymize_inputs(
+            args, _options.events_from_args(args, ev[0]), _options.outcomes_from_args(args, oc[0]))
     featurizers = default_featurizers(
         seed=args.seed,
         pattern_params=dict(min_support=args.min_support, max_length=args.max_length,
@@ -92,8 +106,13 @@ def run(args):
         encoder=_options.encoder_from_args(args), featurizers=featurizers,
         classifiers=classifiers, train_on=args.train_on, n_bootstrap=args.bootstrap,
         alpha=args.alpha,
-        seed=args.seed, n_jobs=args.jobs, scheduler=args.scheduler)
-    out = result.save(Path(args.out))
+        seed=args.seed, n_jobs=jobs, scheduler=args.scheduler)
+    if folder is not None:
+        _save_in_folder(args, folder, result, loaded)
+    else:
+        with writing_folder(out, "--out", inputs=[args.events, args.outcomes],
+                            owned=recorded_names(out)) as st:
+            result.save(st.path)
     if not args.quiet:
         earliest = result.earliest_fraction()
         parts = [f"{k} {'never' if v != v else f'{v:g}'}" for k, v in earliest.items()]
@@ -102,3 +121,48 @@ def run(args):
               f"({result.runtime_seconds:.1f} s); earliest fraction beating the majority "
               f"baseline: {', '.join(parts)} -> {out / 'early_prediction.csv'}")
     return 0
+
+
+def _check_same_inputs(args, folder, ev, oc):
+    """Validation written into an output folder must use the run's own data and key."""
+    from ..._util.runrecord import file_input, read_summary
+    from ...errors import OutputError
+    from ...inputs.privacy import key_fingerprint, read_key
+    load = ((read_summary(folder) or {}).get("stages") or {}).get("load") or {}
+    recorded = load.get("inputs") or {}
+    for role, pair, given in (("events", ev, args.events), ("outcomes", oc, args.outcomes)):
+        want = (recorded.get(role) or {}).get("sha256")
+        if want and file_input(pair[0])["sha256"] != want:
+            raise OutputError(f"{given}: not the {role} file the run in {folder} was made from "
+                              f"(its content differs from the record); validate into another "
+                              f"folder, or re-run 'seqmine analyze'.")
+    privacy = (load.get("settings") or {}).get("privacy") or {}
+    key = read_key(args.pseudonymize) if args.pseudonymize else None
+    if privacy.get("pseudonymized") and key is None:
+        raise OutputError(f"{folder}: the run there is pseudonymized; give the same "
+                          f"--pseudonymize KEY_FILE, so no raw identifier enters the folder.")
+    if key is not None and privacy.get("key_fingerprint") not in (None, key_fingerprint(key)):
+        raise OutputError(f"{args.pseudonymize}: not the key the run in {folder} was "
+                          f"pseudonymized with; give that key (pseudonyms would not match).")
+    if key is not None and not privacy.get("pseudonymized"):
+        raise OutputError(f"{folder}: the run there is not pseudonymized; validate into "
+                          f"another folder or re-run 'seqmine analyze --pseudonymize'.")
+
+
+def _save_in_folder(args, folder, result, loaded):
+    from ...pipeline import rerun_stage, validation_summary
+    settings = {"folds": args.folds, "loo": args.loo, "fractions": args.fractions,
+                "classifiers": args.classifiers, "train_on": args.train_on, "seed": args.seed,
+                "bootstrap": args.bootstrap, "min_support": args.min_support,
+                "max_length": args.max_length, "max_gap": args.max_gap, "top_k": args.top_k,
+                "alpha": args.alpha, "hmm_states": args.hmm_states}
+
+    def work(st):
+        result.save(st.path)
+        return validation_summary(result, {"folds": args.folds},
+                                  int(loaded.events["learner"].nunique())), None
+
+    rerun_stage(folder, "validate", NAME, work, settings=settings,
+                inputs={"load": {"stage": "load"}},
+                outside_inputs=[args.events, args.outcomes], config_section="validate",
+                config_values={"folds": args.folds, "bootstrap": args.bootstrap})
