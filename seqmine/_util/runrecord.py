@@ -202,11 +202,11 @@ class RunRecord:
         self._forget_keys(stage)
         for dep in dependents(stage):
             entry = self.stages.get(dep)
-            if not entry or entry.get("status") == "skipped":
+            if not entry or entry.get("status") != "done":
                 continue
             paths += list(entry.get("outputs") or {})
             self._forget_keys(dep)
-            self._entry(dep, "removed", reason=(
+            self._entry(dep, "removed", settings=entry.get("settings"), reason=(
                 f"{stage} was re-run by 'seqmine {self.command}'; run '{_RERUN[dep]}' to "
                 f"write it again"))
             self.removed.append(dep)

@@ -16,6 +16,7 @@ import threading
 import warnings
 
 from .._util.progress import is_quiet, set_quiet
+from .._util.terminal import terminal_safe
 from .._version import __version__
 from ..errors import SeqmineError, SeqmineInputError
 from . import commands
@@ -86,7 +87,7 @@ def _show_warning(message, category, filename, lineno, file=None, line=None):
 
 
 def _one_line(msg):
-    return " ".join(str(msg).split())
+    return terminal_safe(" ".join(str(msg).split()))
 
 
 def main(argv=None):

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from ..._util.csvio import write_csv
+from ..._util.csvio import read_csv, write_csv
 from ..._util.progress import is_quiet
 from ...encoding.sequences import SequenceDB
 from ...errors import DataFileError, ParameterError
@@ -191,8 +191,8 @@ def _run_in_folder(args, folder):
             raise ParameterError(f"--out {args.out}: inside an output folder the contrast "
                                  f"table is a .csv file directly in {folder}.")
         name = rel.name
-    recorded = ((read_summary(folder) or {}).get("stages", {}).get("contrast") or {}).get(
-        "settings") or {}
+    stages = (read_summary(folder) or {}).get("stages") or {}
+    recorded = (stages.get("contrast") or {}).get("settings") or {}
     opts = _resolved(args, recorded)
     groups = [g.strip() for g in args.groups.split(",")] if args.groups else None
     settings = {name: opts[opt] for opt, (name, _d) in _FROM_RECORD.items()}
@@ -209,19 +209,44 @@ def _run_in_folder(args, folder):
             "n_permutations": opts["permutations"],
             "stability_resamples": opts["stability_resamples"]}), table
 
+    examples = stages.get("examples") or {}
     table, target = rerun_stage(
         folder, "contrast", NAME, work, settings=settings, config_section="contrast",
         config_values={"correction": opts["correction"], "alpha": opts["alpha"],
                        "n_permutations": opts["permutations"],
                        "stability_resamples": opts["stability_resamples"],
                        "redundancy_jaccard": opts["redundancy"]})
+    if examples.get("status") in ("done", "removed") and name == "patterns.csv":
+        _rewrite_examples(folder, examples.get("settings") or {}, ps_dir, db_dir, opts["alpha"])
     if not is_quiet():
         n_sig = int((table["favours"].fillna("") != "").sum())
         print(f"re-ran the contrast in {target}: {len(table)} patterns, {n_sig} with q <= "
-              f"{opts['alpha']} by {opts['correction']}; the detectors, examples and report "
-              f"of the earlier contrast were removed (run 'seqmine detectors {target}' and "
+              f"{opts['alpha']} by {opts['correction']}; the detectors and report of the "
+              f"earlier contrast were removed (run 'seqmine detectors {target}' and "
               f"'seqmine report {target}')")
     return 0
+
+
+def _rewrite_examples(folder, settings, ps_dir, db_dir, alpha):
+    """Example excerpts for the new contrast (a second step: the report shows them)."""
+    from ...pipeline import rerun_stage
+    from ...reporting.render import write_examples
+
+    def work(st):
+        import pandas as pd
+        db = SequenceDB.load(st.path / db_dir.relative_to(folder))
+        c = load_patternset(st.path / ps_dir.relative_to(folder)).constraints
+        table = read_csv(st.path / "patterns.csv", dtype=str, keep_default_na=False)
+        for col in ("p_value", "q_value", "risk_difference"):
+            if col in table.columns:
+                table[col] = pd.to_numeric(table[col].replace("", None), errors="coerce")
+        write_examples(st.path, db, table, max_patterns=int(settings.get("top_patterns", 15)),
+                       alpha=alpha, max_gap=c.get("max_gap"), max_window=c.get("max_window"),
+                       skip_pauses=bool(c.get("skip_pauses", False)),
+                       seed=int(settings.get("seed", 0)))
+        return {}, None
+
+    rerun_stage(folder, "examples", NAME, work, settings=settings)
 
 
 def read_patternset(path):
