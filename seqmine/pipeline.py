@@ -247,8 +247,8 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
 
 
 def run_folder_of(path):
-    """The output folder with a run record that ``path`` is, or lies directly in (None
-    when there is none). Sub-commands writing there re-run their stage in that run.
+    """The output folder with a run record that ``path`` is or lies in (None when there is
+    none). Sub-commands writing there re-run their stage in that run.
 
     Examples
     --------
@@ -259,7 +259,7 @@ def run_folder_of(path):
     if path is None or not str(path).strip():
         return None
     p = Path(os.path.abspath(path))
-    for folder in (p, p.parent):
+    for folder in (p, *p.parents):
         if folder.is_dir() and not folder.is_symlink() and has_record(read_summary(folder)):
             return folder
     return None

@@ -14,7 +14,7 @@ import os
 import sys
 
 from ..errors import ParameterError
-from .progress import is_quiet, set_quiet
+from .progress import is_quiet, set_quiet, use_thread_lock
 
 __all__ = ["parallel_map", "using_scheduler", "available_cores", "effective_jobs"]
 
@@ -144,6 +144,7 @@ def using_scheduler(scheduler, jobs=1):
 
 
 def _call_with_quiet(func, quiet, item):
+    use_thread_lock()  # no process-shared semaphore a stopped worker could leak
     before = is_quiet()
     set_quiet(quiet)
     try:
