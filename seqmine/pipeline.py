@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import contextlib
 import os
-import sys
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -14,7 +13,7 @@ import pandas as pd
 
 from ._util.csvio import write_csv
 from ._util.jsonio import write_json
-from ._util.progress import is_quiet
+from ._util.progress import quiet_mode, stage_line
 from ._util.warnlog import WarningLog, collect_warnings
 from .errors import DataFileError, ParameterError
 from .inputs.outcomes import Grouping, match_learners
@@ -232,15 +231,18 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
                              "give the other as a file.")
     scheduler = cfg.get("scheduler") or None
     if scheduler in (None, "local"):
-        cfg = dict(cfg, jobs=effective_jobs(int(cfg["jobs"]), notify=not quiet))
+        with (quiet_mode(True) if quiet else contextlib.nullcontext()):
+            cfg = dict(cfg, jobs=effective_jobs(int(cfg["jobs"]), notify=True))
     log = WarningLog()
     inputs = [events_path, outcomes_path, cfg["encode"]["mapping"],
               cfg["privacy"]["pseudonymize_key"]]
     with writing_folder(out_dir, "--out", inputs=inputs, owned=recorded_names(out_dir)) as staging:
         with regular_input(events_path, "events", max_bytes=cfg["events"]["max_bytes"]) as ev, \
                 regular_input(outcomes_path, "outcomes") as oc, \
+                (quiet_mode(True) if quiet else contextlib.nullcontext()), \
                 using_scheduler(scheduler, int(cfg["jobs"])), collect_warnings(log):
-            result = _analyze(ev, oc, staging, cfg, quiet=quiet, log=log)
+            # quiet=False leaves the caller's setting (the command line's --quiet)
+            result = _analyze(ev, oc, staging, cfg, log=log)
     result.files = [staging.shown(f) for f in result.files]
     result.out_dir = staging.target
     return result
@@ -377,8 +379,7 @@ def _input_entry(pair):
     return file_input(pair[0], shown=STDIN if pair[1] == STDIN_NAME else pair[1])
 
 
-def _analyze(ev, oc, staging, cfg, *, quiet=False, log):
-    from ._util.progress import set_quiet
+def _analyze(ev, oc, staging, cfg, *, log):
     from ._util.runrecord import RunRecord
     from .encoding.encoder import encoder_from_settings
     from .inputs.load import load_events
@@ -390,11 +391,9 @@ def _analyze(ev, oc, staging, cfg, *, quiet=False, log):
     from .scoring.contrast import contrast
     from .scoring.transitions import transitions
 
-    if quiet:
-        set_quiet(True)
     out = staging.path
     record = RunRecord("analyze")
-    run = _RunStages(out, record, quiet=quiet)
+    run = _RunStages(out, record)
     files = []
     ev_cfg, oc_cfg, en_cfg = cfg["events"], cfg["outcomes"], cfg["encode"]
     seed = int(cfg["seed"])
@@ -632,17 +631,15 @@ class _RunStages:
     """Times each stage, shows which one runs (to stderr, unless quiet) and records what
     it wrote in the run record."""
 
-    def __init__(self, out, record, quiet=False):
+    def __init__(self, out, record):
         self.out = out
         self.record = record
-        self.quiet = quiet
         self.seconds = {}
 
     @contextlib.contextmanager
     def stage(self, name, label, settings, inputs=None):
         from ._util.runrecord import DEPENDS, new_files, snapshot
-        if not (self.quiet or is_quiet()):
-            print(f"seqmine: {label} ...", file=sys.stderr, flush=True)
+        stage_line(f"{label} ...")
         t0 = time.perf_counter()
         before = snapshot(self.out)
         owned = []

@@ -18,8 +18,6 @@ from __future__ import annotations
 
 import re
 
-import pandas as pd
-
 from .outdir import open_new
 
 __all__ = ["write_csv", "read_csv", "neutralise", "restore", "CSV_OPTIONS",
@@ -95,12 +93,14 @@ def read_csv(path, **kwargs):
     Keyword arguments go to :func:`pandas.read_csv`. Text cells and column names lose
     the apostrophe :func:`write_csv` added; numeric columns are unchanged.
     """
+    import pandas as pd
     frame = pd.read_csv(path, **kwargs)
     return restore_frame(frame)
 
 
 def restore_frame(frame):
     """``frame`` (read from a seqmine CSV) with the neutralisation undone, in place."""
+    import pandas as pd
     frame.columns = [restore(c) if isinstance(c, str) else c for c in frame.columns]
     for col in frame.columns:
         s = frame[col]
@@ -114,6 +114,7 @@ def restore_frame(frame):
 def _neutralised(frame):
     """A copy of ``frame`` whose risky text cells and column names are neutralised
     (``frame`` itself when nothing needs changing)."""
+    import pandas as pd
     out = None
     cols = [neutralise(c) if isinstance(c, str) else c for c in frame.columns]
     if cols != list(frame.columns):

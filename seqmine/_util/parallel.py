@@ -14,51 +14,13 @@ import os
 import sys
 
 from ..errors import ParameterError
-from .progress import is_quiet, set_quiet, use_thread_lock
+from .checks import check_jobs
+from .progress import is_quiet, quiet_mode, use_thread_lock
 
-__all__ = ["parallel_map", "using_scheduler", "available_cores", "effective_jobs"]
+__all__ = ["parallel_map", "using_scheduler", "n_workers", "available_cores", "effective_jobs"]
 
 #: Clients opened by :func:`using_scheduler`, innermost last: (scheduler, client).
 _ACTIVE = []
-
-
-def available_cores():
-    """Cores this process may run on (its CPU affinity; at least 1).
-
-    Examples
-    --------
-    >>> available_cores() >= 1
-    True
-    """
-    try:
-        return max(1, len(os.sched_getaffinity(0)))
-    except (AttributeError, OSError):  # pragma: no cover - not Linux
-        return max(1, os.cpu_count() or 1)
-
-
-def effective_jobs(jobs, *, notify=False):
-    """Local worker processes for ``jobs``: ``-1`` means every available core, and more
-    than the available cores is capped to them (more processes than cores only adds
-    overhead). With ``notify`` a capped value is said once on standard error.
-
-    Examples
-    --------
-    >>> effective_jobs(1), effective_jobs(-1) == available_cores()
-    (1, True)
-    >>> effective_jobs(10**6) == available_cores()
-    True
-    """
-    if jobs is None:
-        return 1
-    cores = available_cores()
-    if jobs == -1:
-        return cores
-    if isinstance(jobs, int) and jobs > cores:
-        if notify and not is_quiet():
-            print(f"seqmine: note: {jobs} jobs asked for, but only {cores} core(s) are "
-                  f"available; using {cores}.", file=sys.stderr)
-        return cores
-    return jobs
 
 
 def parallel_map(func, items, *, jobs=1, scheduler=None):
@@ -84,14 +46,14 @@ def parallel_map(func, items, *, jobs=1, scheduler=None):
     [2, 3, 1]
     """
     items = list(items)
+    if jobs is not None:
+        jobs = check_jobs(jobs, "jobs")
     if not scheduler and (jobs is None or jobs == 1 or len(items) <= 1):
         return [func(x) for x in items]
     # worker processes start with default settings: carry the quiet switch over
     func = functools.partial(_call_with_quiet, func, is_quiet())
     if scheduler:
         return _dask_map(func, items, scheduler, jobs)
-    if not isinstance(jobs, int) or jobs == 0 or jobs < -1:
-        raise ParameterError(f"The 'jobs' parameter must be a positive int or -1. Got {jobs!r} instead.")
     from joblib import Parallel, delayed
     jobs = min(effective_jobs(jobs), len(items))
     if jobs == 1:
@@ -99,13 +61,64 @@ def parallel_map(func, items, *, jobs=1, scheduler=None):
     return list(Parallel(n_jobs=jobs)(delayed(func)(x) for x in items))
 
 
+def n_workers(jobs, where=""):
+    """The number of worker processes ``jobs`` stands for: -1 = every available core,
+    None = 1.
+
+    Examples
+    --------
+    >>> n_workers(3), n_workers(None), n_workers(-1) == available_cores()
+    (3, 1, True)
+    """
+    if jobs is None:
+        return 1
+    jobs = check_jobs(jobs, "jobs", where)
+    return available_cores() if jobs == -1 else jobs
+
+
+def available_cores():
+    """Cores this process may run on (its CPU affinity; at least 1).
+
+    Examples
+    --------
+    >>> available_cores() >= 1
+    True
+    """
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except (AttributeError, OSError):  # pragma: no cover - not Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def effective_jobs(jobs, *, notify=False):
+    """Local worker processes for ``jobs``: ``-1`` means every available core, and more
+    than the available cores is capped to them (more processes than cores only adds
+    overhead). With ``notify`` a capped value is said on standard error.
+
+    Examples
+    --------
+    >>> effective_jobs(1), effective_jobs(-1) == available_cores()
+    (1, True)
+    >>> effective_jobs(10**6) == available_cores()
+    True
+    """
+    workers = n_workers(jobs)
+    cores = available_cores()
+    if workers > cores:
+        if notify and not is_quiet():
+            print(f"seqmine: note: {jobs} jobs asked for, but only {cores} core(s) are "
+                  f"available; using {cores}.", file=sys.stderr)
+        return cores
+    return workers
+
+
 @contextlib.contextmanager
 def using_scheduler(scheduler, jobs=1):
     """Connect to a Dask cluster once for a block of work.
 
     Inside the block, :func:`parallel_map` calls with the same ``scheduler`` reuse the
-    connection (a ``"local"`` cluster is started once, not per call) and joblib's
-    ``Parallel`` (hidden Markov model restarts) runs on the cluster too. With
+    connection (a ``"local"`` cluster is started once, not per call) and calls without a
+    scheduler but with ``jobs > 1`` (hidden Markov model restarts) run on the cluster too. With
     ``scheduler=None`` nothing happens.
 
     Parameters
@@ -145,12 +158,8 @@ def using_scheduler(scheduler, jobs=1):
 
 def _call_with_quiet(func, quiet, item):
     use_thread_lock()  # no process-shared semaphore a stopped worker could leak
-    before = is_quiet()
-    set_quiet(quiet)
-    try:
+    with quiet_mode(quiet):
         return func(item)
-    finally:
-        set_quiet(before)
 
 
 def _connect(scheduler, jobs, stack):

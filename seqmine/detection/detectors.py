@@ -44,9 +44,10 @@ import pandas as pd
 
 from .._util.checks import check_int, check_number
 from .._util.outdir import open_new
+from .._util.text import TERMINAL_UNSAFE
 from ..encoding.sequences import PAUSE_PREFIX
 from ..errors import ColumnError, DataFileError, ParameterError, SeqmineWarning
-from ..mining.patterns import pattern_id, pattern_tokens
+from ..mining.patterns import is_subsequence, pattern_id, pattern_tokens
 
 __all__ = [
     "DETECTORS_FORMAT",
@@ -82,9 +83,8 @@ _DETECTOR_KEYS = {"id", "pattern_id", "tokens", "direction", "favours", "evidenc
 _MATCHING_KEYS = {"max_gap", "max_window", "skip_pauses"}
 #: Longest detector id accepted.
 MAX_ID_LENGTH = 100
-# C0 and C1 control characters, DEL, and the Unicode line/paragraph separators and
-# bidirectional overrides: nothing in an id may move a terminal's cursor or reorder text
-_UNSAFE_ID = re.compile("[\x00-\x1f\x7f-\x9f\u2028\u2029\u202a-\u202e\u2066-\u2069]")
+# nothing in an id may move a terminal's cursor or reorder text
+_UNSAFE_ID = re.compile(TERMINAL_UNSAFE)
 
 
 # ====================================================================== selection
@@ -189,8 +189,8 @@ def select_detectors(contrast_table, *, max_q=0.05, min_effect=0.2, effect="cohe
     chosen = []
     for i in order:
         if drop_redundant and any(favours.iloc[j] == favours.iloc[i]
-                                  and (_is_subsequence(pats[j], pats[i])
-                                       or _is_subsequence(pats[i], pats[j]))
+                                  and (is_subsequence(pats[j], pats[i])
+                                       or is_subsequence(pats[i], pats[j]))
                                   for j in chosen):
             continue
         chosen.append(i)
@@ -263,8 +263,8 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
         raise ColumnError(f"{where}: the selected rows need columns 'pattern' and 'favours'.")
     constraints = dict(constraints or {})
     matching = {
-        "max_gap": _opt_int(constraints.get("max_gap")),
-        "max_window": _opt_int(constraints.get("max_window")),
+        "max_gap": _int_or_none(constraints.get("max_gap")),
+        "max_window": _int_or_none(constraints.get("max_window")),
         "skip_pauses": bool(constraints.get("skip_pauses", False)),
     }
     if group_sizes is not None and not isinstance(group_sizes, dict):
@@ -281,7 +281,7 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
     detectors = []
     for k, row in enumerate(selected_rows.to_dict("records")):
         tokens = pattern_tokens(row, known)
-        fav = "" if _missing(row.get("favours")) else str(row["favours"]).strip()
+        fav = "" if _is_missing(row.get("favours")) else str(row["favours"]).strip()
         if fav == weak:
             direction = "discourage"
         elif fav == strong:
@@ -291,18 +291,18 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
                 f"{where}: row {k} ({row['pattern']!r}) favours {fav or 'no group'!r}, neither "
                 f"the strong ({strong!r}) nor the weak ({weak!r}) group; filter it out first.")
         evidence = {
-            "support": {g: _num(row.get(f"support_{g}")) for g in group_names
+            "support": {g: _finite_or_none(row.get(f"support_{g}")) for g in group_names
                         if f"support_{g}" in row},
             "n": dict(group_sizes) if group_sizes else {},
-            "p_value": _num(row.get("p_value")),
-            "q_value": _num(row.get("q_value")),
-            "effects": {c: _num(row.get(c)) for c in _EFFECT_COLUMNS if c in row},
-            "stability": _num(row.get("stability")),
+            "p_value": _finite_or_none(row.get("p_value")),
+            "q_value": _finite_or_none(row.get("q_value")),
+            "effects": {c: _finite_or_none(row.get(c)) for c in _EFFECT_COLUMNS if c in row},
+            "stability": _finite_or_none(row.get("stability")),
         }
         absence = None
         if direction == "encourage":
-            absence = {"after_events": _opt_int(absence_after_events),
-                       "after_seconds": _num(absence_after_seconds)}
+            absence = {"after_events": _int_or_none(absence_after_events),
+                       "after_seconds": _finite_or_none(absence_after_seconds)}
         detectors.append({
             "id": f"D{k + 1:03d}",
             "pattern_id": _row_id(row, tokens),
@@ -528,7 +528,7 @@ def _validate_encoding(enc, fail):
     if unit not in ("learner", "session"):
         fail("encoding.unit", f"{unit!r} must be 'learner' or 'session'.")
     gap = enc.get("session_gap")
-    if gap is not None and not (_is_num(gap) and gap > 0):
+    if gap is not None and not (_is_finite_real(gap) and gap > 0):
         fail("encoding.session_gap", f"{gap!r} must be a number of seconds > 0 or null.")
     pause = enc.get("pause", {"strategy": "none"})
     if not isinstance(pause, dict):
@@ -539,7 +539,7 @@ def _validate_encoding(enc, fail):
     edges = pause.get("edges", [])
     labels = pause.get("labels", [])
     implicit = pause.get("implicit", [])
-    if not isinstance(edges, list) or not all(_is_num(e) for e in edges):
+    if not isinstance(edges, list) or not all(_is_finite_real(e) for e in edges):
         fail("encoding.pause.edges", "must be a list of finite numbers of seconds.")
     # quantile edges of tied gaps can be equal (the bin between them stays empty);
     # hand-set (fixed) edges must be strictly ascending, as the Encoder requires
@@ -615,7 +615,7 @@ def _validate_detector(d, k, pause_ok, labels, seen, fail):
         ev, sec = ab.get("after_events"), ab.get("after_seconds")
         if ev is not None and (not _is_int(ev) or ev < 1):
             fail(f"{at}.absence.after_events", f"{ev!r} must be an integer >= 1 or null.")
-        if sec is not None and not (_is_num(sec) and sec > 0):
+        if sec is not None and not (_is_finite_real(sec) and sec > 0):
             fail(f"{at}.absence.after_seconds", f"{sec!r} must be a number > 0 or null.")
         if direction == "discourage" and (ev is not None or sec is not None):
             fail(f"{at}.absence", "absence rules apply to encourage detectors only; set it "
@@ -636,13 +636,6 @@ def _row_id(row, tokens):
     if isinstance(pid, str) and pid.strip():
         return pid.strip()
     return pattern_id(tokens)
-
-
-def _is_subsequence(short, long):
-    if len(short) > len(long):
-        return False
-    it = iter(long)
-    return all(any(x == y for y in it) for x in short)
 
 
 def _length_mask(lens, lengths):
@@ -667,11 +660,11 @@ def _readable(token):
     return token
 
 
-def _missing(v):
+def _is_missing(v):
     return v is None or (isinstance(v, float) and math.isnan(v))
 
 
-def _num(v):
+def _finite_or_none(v):
     """A finite float or None (JSON has no NaN/inf)."""
     if v is None or isinstance(v, bool):
         return None
@@ -682,7 +675,7 @@ def _num(v):
     return f if math.isfinite(f) else None
 
 
-def _opt_int(v):
+def _int_or_none(v):
     if v is None or (isinstance(v, float) and math.isnan(v)):
         return None
     return int(v)
@@ -692,7 +685,8 @@ def _is_int(v):
     return isinstance(v, numbers.Integral) and not isinstance(v, bool)
 
 
-def _is_num(v):
+def _is_finite_real(v):
+    """True for a finite real number (not a boolean, not a string), as the schema wants."""
     return (isinstance(v, numbers.Real) and not isinstance(v, bool)
             and math.isfinite(float(v)))
 
@@ -710,7 +704,7 @@ def _plain(obj):
     if isinstance(obj, np.integer):
         return int(obj)
     if isinstance(obj, (float, np.floating)):
-        return _num(obj)
+        return _finite_or_none(obj)
     return obj
 
 

@@ -35,7 +35,7 @@ import scipy.sparse as sp
 from ..errors import ParameterError
 
 __all__ = ["PatternSet", "PATTERN_SEPARATOR", "format_pattern", "parse_pattern", "pattern_id",
-           "tokens_text", "parse_tokens", "pattern_tokens"]
+           "tokens_text", "parse_tokens", "pattern_tokens", "split_readable", "is_subsequence"]
 
 #: Separator between tokens in a pattern's readable name (``a > b > c``).
 PATTERN_SEPARATOR = " > "
@@ -139,6 +139,20 @@ def _segment(pieces, known):
     return best[0]
 
 
+def is_subsequence(short, long):
+    """True when ``short`` occurs in ``long`` in order, gaps allowed (no constraints).
+
+    Examples
+    --------
+    >>> is_subsequence(("a", "c"), ("a", "b", "c")), is_subsequence(("c", "a"), ("a", "b", "c"))
+    (True, False)
+    """
+    if len(short) > len(long):
+        return False
+    it = iter(long)
+    return all(any(x == y for y in it) for x in short)
+
+
 def parse_pattern(text, vocab):
     """Token ids of a readable pattern name; raises ParameterError for unknown tokens."""
     index = {v: i for i, v in enumerate(vocab)}
@@ -178,6 +192,11 @@ class PatternSet:
     constraints : dict
         The matching constraints (``max_gap``, ``max_window``, ``skip_pauses``, ...)
         and mining thresholds used.
+    search_stats : dict, optional
+        Work counters of the search that produced the set (blocks, candidates and
+        occurrences per level, instance counts), as returned by the private search;
+        empty for sets read from a file or assembled from pieces. Not compared and
+        not saved.
     """
 
     patterns: list
@@ -189,6 +208,7 @@ class PatternSet:
     counts: sp.csr_matrix
     seq_groups: np.ndarray
     constraints: dict = field(default_factory=dict)
+    search_stats: dict = field(default_factory=dict, compare=False, repr=False)
 
     def __post_init__(self):
         self.patterns = [tuple(int(t) for t in p) for p in self.patterns]

@@ -10,11 +10,11 @@ from __future__ import annotations
 
 import json
 import math
-import re
 from html import escape
 
 import numpy as np
 
+from .._util.text import replace_control_characters
 from ..mining.patterns import pattern_id
 from . import plots as _plots
 
@@ -23,7 +23,6 @@ __all__ = ["esc", "lookup", "config_of", "counts_of", "group_names_of", "top_pat
 
 PAGE_TITLE = "seqmine report: behaviour patterns and outcomes"
 _SEP = " > "
-_CONTROL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f]")
 _CORRECTIONS = {
     "bh": "Benjamini–Hochberg false discovery rate",
     "fdr_bh": "Benjamini–Hochberg false discovery rate",
@@ -115,7 +114,7 @@ def esc(value, max_chars=400):
     >>> esc('<script>alert("x")</script>')
     '&lt;script&gt;alert(&quot;x&quot;)&lt;/script&gt;'
     """
-    s = _CONTROL.sub("\ufffd", str(value))
+    s = replace_control_characters(str(value), keep_layout=True)
     if len(s) > max_chars:
         s = s[: max_chars - 1] + "…"
     return escape(s, quote=True)
@@ -318,13 +317,13 @@ def _five_numbers(obj):
         return {}
     out = {}
     for g, v in obj.items():
-        if isinstance(v, dict) and all(_is_num(v.get(k)) for k in ("min", "q1", "median", "q3",
+        if isinstance(v, dict) and all(_is_finite(v.get(k)) for k in ("min", "q1", "median", "q3",
                                                                      "max")):
             out[str(g)] = {k: float(v[k]) for k in ("min", "q1", "median", "q3", "max")}
-            if _is_num(v.get("n")):
+            if _is_finite(v.get("n")):
                 out[str(g)]["n"] = v["n"]
         elif isinstance(v, list):
-            x = np.asarray([_num(t) for t in v], dtype=float)
+            x = np.asarray([_as_float(t) for t in v], dtype=float)
             x = x[np.isfinite(x)]
             if x.size:
                 q = np.quantile(x, [0, 0.25, 0.5, 0.75, 1])
@@ -336,7 +335,7 @@ def _five_numbers(obj):
 def _describe_grouping(v):
     if isinstance(v, dict):
         rule = v.get("rule")
-        rest = [f"{esc(k)} {_fmt(x, 3) if _is_num(x) else esc(x)}"
+        rest = [f"{esc(k)} {_fmt(x, 3) if _is_finite(x) else esc(x)}"
                 for k, x in v.items() if k != "rule"]
         text = f"rule: {esc(rule)}" if rule is not None else ""
         return "; ".join([t for t in [text, ", ".join(rest)] if t]) or "–"
@@ -363,7 +362,8 @@ def _str_list(v, n):
     return None
 
 
-def _is_num(v):
+def _is_finite(v):
+    """True when ``v`` converts to a finite float (numbers and numeric strings, not booleans)."""
     if isinstance(v, bool):
         return False
     try:
@@ -372,7 +372,8 @@ def _is_num(v):
         return False
 
 
-def _num(v, default=math.nan):
+def _as_float(v, default=math.nan):
+    """``float(v)`` (infinities kept), or ``default`` for booleans and non-numbers."""
     if isinstance(v, bool):
         return default
     try:
@@ -382,19 +383,19 @@ def _num(v, default=math.nan):
 
 
 def _int(v):
-    x = _num(v)
+    x = _as_float(v)
     return f"{int(round(x)):,}" if math.isfinite(x) else "–"
 
 
 def _fmt(v, digits):
-    x = _num(v)
+    x = _as_float(v)
     if not math.isfinite(x):
         return "–" if not (isinstance(x, float) and math.isinf(x)) else ("∞" if x > 0 else "−∞")
     return f"{x:,.{digits}f}"
 
 
 def _fmt_p(v):
-    x = _num(v)
+    x = _as_float(v)
     if not math.isfinite(x):
         return "–"
     if x < 0.001:
@@ -403,12 +404,12 @@ def _fmt_p(v):
 
 
 def _pct(v):
-    x = _num(v)
+    x = _as_float(v)
     return f"{100 * x:.0f}%" if math.isfinite(x) else "–"
 
 
 def _duration(seconds):
-    s = _num(seconds)
+    s = _as_float(seconds)
     if not math.isfinite(s):
         return "–"
     if s < 60:

@@ -6,11 +6,8 @@ from pathlib import Path
 
 from ..._util.csvio import read_csv, write_csv
 from ..._util.progress import is_quiet
-from ...encoding.sequences import SequenceDB
+from ...config import CONTRAST_CORRECTIONS
 from ...errors import DataFileError, ParameterError
-from ...mining.miner import load_patternset
-from ...scoring.contrast import CONTRAST_CORRECTIONS, contrast, pairwise_contrast
-from ...scoring.transitions import transitions
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run", "read_patternset"]
 
@@ -86,7 +83,10 @@ def add_arguments(parser):
 
 def run(args):
     """Run ``seqmine contrast`` (quiet mode is set by the command line per call)."""
+    from ...encoding.sequences import SequenceDB
     from ...pipeline import run_folder_of
+    from ...scoring.contrast import pairwise_contrast
+    from ...scoring.transitions import transitions
     folder = _run_folder(args, run_folder_of)
     if folder is not None:
         return _run_in_folder(args, folder)
@@ -129,6 +129,7 @@ def _write(table, path, option, reads, what):
 
 
 def _contrast(ps, db, groups, opts):
+    from ...scoring.contrast import contrast
     return contrast(ps, db, groups=groups, correction=opts["correction"], alpha=opts["alpha"],
                     n_permutations=opts["permutations"], seed=opts["seed"],
                     stability_resamples=opts["stability_resamples"],
@@ -161,7 +162,9 @@ def _run_folder(args, run_folder_of):
 def _run_in_folder(args, folder):
     """Re-run the contrast stage of an analyze output folder."""
     from ..._util.runrecord import read_summary
+    from ...encoding.sequences import SequenceDB
     from ...errors import OutputError
+    from ...mining.miner import load_patternset
     from ...pipeline import (
         contrast_summary,
         order_patterns,
@@ -229,6 +232,8 @@ def _run_in_folder(args, folder):
 
 def _rewrite_examples(folder, settings, ps_dir, db_dir, alpha):
     """Example excerpts for the new contrast (a second step: the report shows them)."""
+    from ...encoding.sequences import SequenceDB
+    from ...mining.miner import load_patternset
     from ...pipeline import rerun_stage
     from ...reporting.render import write_examples
 
@@ -250,6 +255,7 @@ def _rewrite_examples(folder, settings, ps_dir, db_dir, alpha):
 
 
 def read_patternset(path):
+    from ...mining.miner import load_patternset
     """Read a pattern set folder written by ``seqmine mine`` (or the path of its CSV)."""
     folder = Path(path)
     if folder.suffix.lower() == ".csv":

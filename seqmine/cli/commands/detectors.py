@@ -6,11 +6,7 @@ import argparse
 import json
 from pathlib import Path
 
-import pandas as pd
-
 from ..._util.progress import is_quiet
-from ...detection.detectors import export_detectors, save_detectors
-from ...encoding.sequences import SequenceDB
 from ...errors import DataFileError, ParameterError
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
@@ -82,6 +78,8 @@ def add_arguments(parser):
 
 def run(args):
     """Run ``seqmine detectors``."""
+    from ...detection.detectors import save_detectors
+    from ...encoding.sequences import SequenceDB
     from ...pipeline import run_folder_of
     given = Path(args.table)
     folder = (given.absolute() if given.is_dir() and run_folder_of(given) == given.absolute()
@@ -107,6 +105,8 @@ def run(args):
 
 
 def _read_table(table_path):
+    import pandas as pd
+
     from ..._util.csvio import read_csv
     if not table_path.is_file():
         raise DataFileError(f"{table_path}: contrast table not found; create it with "
@@ -119,6 +119,7 @@ def _read_table(table_path):
 
 
 def _export(args, table, db, constraints):
+    from ...detection.detectors import export_detectors
     lengths = None
     if args.min_length is not None or args.max_length is not None:
         lengths = (args.min_length, args.max_length)
@@ -142,6 +143,8 @@ def _say(doc, table, out):
 def _run_in_folder(args, folder):
     """Re-run the detectors stage of an output folder, from its own contrast table."""
     from ..._util.runrecord import read_summary
+    from ...detection.detectors import save_detectors
+    from ...encoding.sequences import SequenceDB
     from ...errors import OutputError
     from ...pipeline import rerun_stage, stage_output_folder
     stages = (read_summary(folder) or {}).get("stages") or {}

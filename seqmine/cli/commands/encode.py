@@ -5,7 +5,6 @@ from __future__ import annotations
 from pathlib import Path
 
 from ..._util.csvio import write_csv
-from ...pipeline import prepare_sequences
 from . import _options
 
 NAME = "encode"
@@ -31,7 +30,7 @@ def run(args):
     from ..._util.runrecord import RunRecord, file_input, new_files, snapshot
     from ...inputs.privacy import key_fingerprint, read_key
     from ...inputs.sources import STDIN, STDIN_NAME, regular_input
-    from ...pipeline import recorded_names
+    from ...pipeline import prepare_sequences, recorded_names
 
     out = Path(args.out)
     key = read_key(args.pseudonymize) if args.pseudonymize else None

@@ -6,7 +6,6 @@ import sys
 from pathlib import Path
 
 from ..._util.progress import is_quiet
-from ...encoding.sequences import SequenceDB
 from ...errors import DataFileError, ParameterError
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
@@ -84,6 +83,7 @@ def add_arguments(parser):
 
 def run(args):
     """Run the command; returns the exit status."""
+    from ...encoding.sequences import SequenceDB
     from ...mining.miner import DEFAULT_MAX_PATTERNS, mine, save_patternset
     from ...pipeline import run_folder_of
 
@@ -150,6 +150,8 @@ def _run_in_folder(args, folder, params):
                                  f"{folder / 'patternset'}.")
         name = rel.name
     settings = dict(params)
+
+    from ...encoding.sequences import SequenceDB
 
     def work(st):
         db = SequenceDB.load(st.path / db_dir.relative_to(folder))

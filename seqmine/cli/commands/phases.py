@@ -6,7 +6,6 @@ import sys
 from pathlib import Path
 
 from ..._util.progress import is_quiet
-from ...encoding.sequences import SequenceDB
 from ...errors import ParameterError
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
@@ -47,6 +46,7 @@ def run(args):
     """Run ``seqmine phases``; quiet mode is set per call by the command line."""
     from ..._util.outdir import writing_folder
     from ..._util.parallel import effective_jobs
+    from ...encoding.sequences import SequenceDB
     from ...pipeline import run_folder_of
 
     jobs = effective_jobs(args.jobs, notify=True)
@@ -91,6 +91,7 @@ def _say(result, folder):
 
 def _run_in_folder(args, folder, jobs):
     """Re-run the phases stage of an output folder."""
+    from ...encoding.sequences import SequenceDB
     from ...errors import DataFileError, OutputError
     from ...pipeline import phases_summary, rerun_stage, stage_output_folder
     db_dir = stage_output_folder(folder, "encode", "sequences.json")

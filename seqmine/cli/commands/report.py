@@ -5,7 +5,6 @@ from __future__ import annotations
 from pathlib import Path
 
 from ...errors import ParameterError
-from ...reporting.render import render_report
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -31,6 +30,8 @@ def add_arguments(parser):
 def run(args):
     """Render the report and print where it is."""
     from ...pipeline import rerun_stage, run_folder_of
+    from ...reporting.render import render_report
+
     if args.max_patterns < 1:
         raise ParameterError(
             f"--max-patterns must be a whole number of at least 1. Got {args.max_patterns}.")

@@ -4,13 +4,8 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from ...config import CLASSIFIERS, DEFAULT_FRACTIONS
 from ...errors import ParameterError
-from ...validation.crossval import (
-    CLASSIFIERS,
-    DEFAULT_FRACTIONS,
-    default_featurizers,
-    validate,
-)
 from . import _options
 
 NAME = "validate"
@@ -74,6 +69,7 @@ def run(args):
     from ..._util.parallel import effective_jobs
     from ...inputs.sources import regular_input
     from ...pipeline import recorded_names, run_folder_of
+    from ...validation.crossval import default_featurizers, validate
 
     fractions = _options.parse_float_list(args.fractions, "--fractions")
     if not fractions:

@@ -7,8 +7,7 @@ import os
 import sys
 from pathlib import Path
 
-from ..._util.terminal import terminal_safe, terminal_safe_json
-from ...detection.watcher import EventError, Watcher
+from ..._util.text import terminal_safe, terminal_safe_json
 from ...errors import DataFileError, ParameterError
 from ...inputs.sources import STDIN, is_stream
 
@@ -64,6 +63,7 @@ def add_arguments(parser):
 
 
 def run(args):
+    from ...detection.watcher import Watcher
     """Run ``seqmine watch``."""
     idle = _idle(args.idle_timeout)
     watcher = Watcher(args.detectors, cooldown_seconds=args.cooldown, idle_timeout=idle,
@@ -110,6 +110,7 @@ def run(args):
 
 
 def _loop(stream, name, interactive, watcher, out, err, args, hints_only, pseudo):
+    from ...detection.watcher import EventError
     """Read, process and write every line; bad events get one line on ``err``."""
     for lineno, line in enumerate(stream, 1):
         if not line.strip():
@@ -159,7 +160,7 @@ def _pseudonymizer(key_path):
     the pseudonym of its text (``183`` like ``"183"``, as the offline loader reads both);
     other values pass unchanged, so the watcher rejects them exactly as it would without
     the option. An empty session stays empty ("no session")."""
-    from ...detection.watcher import _CONTROL
+    from ..._util.text import has_control_characters
     from ...inputs.privacy import pseudonymize_value, read_key
 
     key = read_key(key_path)
@@ -168,7 +169,7 @@ def _pseudonymizer(key_path):
     def convert(value):
         if type(value) is str:
             s = value.strip()
-            if not s or _CONTROL.search(s):
+            if not s or has_control_characters(s):
                 return value
         elif type(value) in (int, float):
             s = str(value)
