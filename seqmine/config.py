@@ -339,7 +339,8 @@ def _rule_str(source, key, v, none_ok):
     if v is None and none_ok:
         return None
     if not isinstance(v, str) or (not none_ok and not v):
-        raise _bad(source, key, v, "a non-empty string" + (" or empty" if none_ok else ""))
+        raise _bad(source, key, v, "a string in quotes" + (" (or left out)" if none_ok
+                                                          else ", not empty"))
     return v
 
 

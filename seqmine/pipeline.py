@@ -319,7 +319,7 @@ def rerun_stage(folder, stage, command, work, *, settings, inputs=None, outside_
 
     Returns
     -------
-    (result of work, pathlib.Path of the folder)
+    (result of work, pathlib.Path of the folder, list of the stages removed)
     """
     from ._util.outdir import writing_folder
     from ._util.runrecord import DEPENDS, RunRecord, new_files, read_summary, snapshot
@@ -353,7 +353,7 @@ def rerun_stage(folder, stage, command, work, *, settings, inputs=None, outside_
         record.done(stage, settings=settings, inputs=inputs, outputs=outputs,
                     summary_keys=owned)
         write_json(st.path / "summary.json", record.apply(summary))
-    return result, st.target
+    return result, st.target, list(record.removed)
 
 
 def _prune_empty_folders(root):

@@ -16,6 +16,7 @@ are.
 
 from __future__ import annotations
 
+import csv
 import re
 
 from .outdir import open_new
@@ -82,8 +83,13 @@ def write_csv(frame, path):
     ['a > b', '=cmd']
     """
     safe = _neutralised(frame)
+    options = dict(CSV_OPTIONS)
+    if _holds_carriage_return(safe):
+        # a lone CR is not quoted by the minimal rule (the line end is LF), and readers
+        # would take it for a line end: quote every text cell of this table instead
+        options["quoting"] = csv.QUOTE_NONNUMERIC
     with open_new(path, "w", newline="") as fh:
-        safe.to_csv(fh, **CSV_OPTIONS)
+        safe.to_csv(fh, **options)
     return path
 
 
@@ -109,6 +115,18 @@ def restore_frame(frame):
             if mask.any():
                 frame[col] = s.where(~mask, s[mask].map(restore))
     return frame
+
+
+def _holds_carriage_return(frame):
+    import pandas as pd
+    if any(isinstance(c, str) and "\r" in c for c in frame.columns):
+        return True
+    for k in range(frame.shape[1]):
+        s = frame.iloc[:, k]
+        if (s.dtype == object or pd.api.types.is_string_dtype(s)) and s.map(
+                lambda v: isinstance(v, str) and "\r" in v).any():
+            return True
+    return False
 
 
 def _neutralised(frame):

@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import json
 import math
+import os
 from pathlib import Path
 
 import pandas as pd
@@ -274,8 +275,16 @@ def render_report(out_dir, *, examples=True, max_patterns=12, max_examples=2):
     data = _read_all(folder)
     page = _page(data, examples=examples, max_patterns=max_patterns, max_examples=max_examples)
     target = folder / REPORT_FILE
-    with open_new(target, "w", newline="\n") as fh:
-        fh.write(page)
+    if target.is_symlink():  # checked first, so nothing is written at all
+        open_new(target)
+    tmp = folder / f".{REPORT_FILE}.seqmine-tmp-{os.getpid()}"
+    try:
+        with open_new(tmp, "w", newline="\n") as fh:
+            fh.write(page)
+        os.replace(tmp, target)  # the page appears whole, never half-written
+    finally:
+        if tmp.exists():
+            tmp.unlink()
     return target
 
 

@@ -160,21 +160,14 @@ def _run_folder(args, run_folder_of):
 
 
 def _run_in_folder(args, folder):
-    """Re-run the contrast stage of an analyze output folder."""
+    """Re-run the contrast stage of an output folder (and, when asked, its transitions)."""
     from ..._util.runrecord import read_summary
     from ...encoding.sequences import SequenceDB
     from ...errors import OutputError
     from ...mining.miner import load_patternset
-    from ...pipeline import (
-        contrast_summary,
-        order_patterns,
-        rerun_stage,
-        stage_output_folder,
-    )
-    if args.transitions or args.pairwise:
-        raise ParameterError("--transitions and --pairwise write extra tables; run them with "
-                             "--out FILE.csv outside the output folder, not when re-running "
-                             "the contrast of an output folder.")
+    from ...pipeline import contrast_summary, order_patterns, rerun_stage, stage_output_folder
+    from ...scoring.contrast import pairwise_contrast
+
     ps_dir = stage_output_folder(folder, "mine", "patternset.json")
     db_dir = stage_output_folder(folder, "encode", "sequences.json")
     if ps_dir is None or db_dir is None:
@@ -187,13 +180,9 @@ def _run_in_folder(args, folder):
             raise OutputError(f"{given} is not the {what} of the run in {folder}; a contrast "
                               f"written there must score that run's own {what} (write to a "
                               f"file outside the folder with --out to score another).")
-    name = "patterns.csv"
-    if args.out and Path(args.out).resolve() != Path(folder).resolve():
-        rel = Path(args.out).resolve().relative_to(Path(folder).resolve())
-        if len(rel.parts) != 1 or rel.suffix.lower() != ".csv":
-            raise ParameterError(f"--out {args.out}: inside an output folder the contrast "
-                                 f"table is a .csv file directly in {folder}.")
-        name = rel.name
+    name = _name_in(folder, args.out, "--out", "patterns.csv")
+    pw_name = _name_in(folder, args.pairwise, "--pairwise", None)
+    tr_name = _name_in(folder, args.transitions, "--transitions", None)
     stages = (read_summary(folder) or {}).get("stages") or {}
     recorded = (stages.get("contrast") or {}).get("settings") or {}
     opts = _resolved(args, recorded)
@@ -202,32 +191,76 @@ def _run_in_folder(args, folder):
     settings.update(groups=groups, redundancy_jaccard=opts["redundancy"])
 
     def work(st):
-        rel_ps, rel_db = ps_dir.relative_to(folder), db_dir.relative_to(folder)
-        ps = load_patternset(st.path / rel_ps)
-        db = SequenceDB.load(st.path / rel_db)
+        ps = load_patternset(st.path / ps_dir.relative_to(folder))
+        db = SequenceDB.load(st.path / db_dir.relative_to(folder))
         table = order_patterns(_contrast(ps, db, groups, opts))
         write_csv(table, st.path / name)
+        if pw_name:
+            if len(table.attrs.get("groups", [])) < 3:
+                raise ParameterError("--pairwise needs more than two compared groups; the "
+                                     "two-group table already holds the pairwise comparison.")
+            write_csv(pairwise_contrast(
+                ps, db, groups=groups, correction="bh" if opts["correction"] == "bh" else "holm",
+                alpha=opts["alpha"], rate_unit=opts["rate_unit"], unit=opts["unit"]),
+                st.path / pw_name)
         return contrast_summary(table, {
             "correction": opts["correction"], "alpha": opts["alpha"],
             "n_permutations": opts["permutations"],
             "stability_resamples": opts["stability_resamples"]}), table
 
     examples = stages.get("examples") or {}
-    table, target = rerun_stage(
+    table, target, removed = rerun_stage(
         folder, "contrast", NAME, work, settings=settings, config_section="contrast",
         config_values={"correction": opts["correction"], "alpha": opts["alpha"],
                        "n_permutations": opts["permutations"],
                        "stability_resamples": opts["stability_resamples"],
                        "redundancy_jaccard": opts["redundancy"]})
+    messages = [f"wrote {len(table)} patterns to {target / name} "
+                f"({int((table['favours'].fillna('') != '').sum())} with q <= {opts['alpha']} "
+                f"by {opts['correction']})"]
     if examples.get("status") in ("done", "removed") and name == "patterns.csv":
         _rewrite_examples(folder, examples.get("settings") or {}, ps_dir, db_dir, opts["alpha"])
+        removed = [s for s in removed if s != "examples"]
+    if tr_name:
+        _rewrite_transitions(folder, tr_name, db_dir, args.exclude_pauses)
+        messages.append(f"wrote the transition table to {target / tr_name}")
+    if removed:
+        messages.append(f"removed the {', '.join(removed)} of the earlier contrast from "
+                        f"{target} (run 'seqmine detectors {target}' and 'seqmine report "
+                        f"{target}' to write them again)")
     if not is_quiet():
-        n_sig = int((table["favours"].fillna("") != "").sum())
-        print(f"re-ran the contrast in {target}: {len(table)} patterns, {n_sig} with q <= "
-              f"{opts['alpha']} by {opts['correction']}; the detectors and report of the "
-              f"earlier contrast were removed (run 'seqmine detectors {target}' and "
-              f"'seqmine report {target}')")
+        print("\n".join(messages))
     return 0
+
+
+def _name_in(folder, path, option, default):
+    """File name of an output ``path`` given for a file directly in ``folder``."""
+    if not path or Path(path).resolve() == Path(folder).resolve():
+        return default
+    try:
+        rel = Path(path).resolve().relative_to(Path(folder).resolve())
+    except ValueError:
+        rel = None
+    if rel is None or len(rel.parts) != 1 or rel.suffix.lower() != ".csv":
+        raise ParameterError(f"{option} {path}: when the contrast of the output folder "
+                             f"{folder} is re-run, its tables are .csv files directly in it.")
+    return rel.name
+
+
+def _rewrite_transitions(folder, name, db_dir, exclude_pauses):
+    """The lag-1 transition table of the run (its own stage of the record)."""
+    from ...encoding.sequences import SequenceDB
+    from ...pipeline import rerun_stage
+    from ...scoring.transitions import transitions
+
+    def work(st):
+        db = SequenceDB.load(st.path / db_dir.relative_to(folder))
+        write_csv(transitions(db, exclude_pauses=exclude_pauses), st.path / name)
+        return {}, None
+
+    rerun_stage(folder, "transitions", NAME, work,
+                settings={"include_pauses": not exclude_pauses},
+                config_section="transitions", config_values={"include_pauses": not exclude_pauses})
 
 
 def _rewrite_examples(folder, settings, ps_dir, db_dir, alpha):

@@ -187,7 +187,7 @@ def _run_in_folder(args, folder):
         save_detectors(doc, st.path / name)
         return {"detectors": len(doc["detectors"])}, (doc, table)
 
-    (doc, table), target = rerun_stage(
+    (doc, table), target, _ = rerun_stage(
         folder, "detectors", NAME, work, settings=settings, config_section="detectors",
         config_values={"max_q": args.max_q, "min_stability": args.min_stability,
                        "max_detectors": args.max_detectors})

@@ -159,7 +159,7 @@ def _run_in_folder(args, folder, params):
         save_patternset(ps, st.path / name)
         return mine_summary(ps, params), (ps, db)
 
-    (ps, db), target = rerun_stage(folder, "mine", NAME, work, settings=settings,
+    (ps, db), target, _ = rerun_stage(folder, "mine", NAME, work, settings=settings,
                                    config_section="mine", config_values=settings)
     _say(ps, db, target / name / "patterns.csv")
     return 0

@@ -115,7 +115,7 @@ def _run_in_folder(args, folder, jobs):
         result.save(st.path / "phases")
         return phases_summary(result, db), result
 
-    result, target = rerun_stage(folder, "phases", NAME, work, settings=settings,
+    result, target, _ = rerun_stage(folder, "phases", NAME, work, settings=settings,
                                  config_section="phases", config_values=settings)
     _say(result, target / "phases")
     return 0

@@ -47,7 +47,7 @@ def run(args):
                                  max_patterns=args.max_patterns)
             return {}, page.name
 
-        name, target = rerun_stage(folder, "report", NAME, work,
+        name, target, _ = rerun_stage(folder, "report", NAME, work,
                                    settings={"examples": args.examples,
                                              "max_patterns": args.max_patterns})
         path = target / name

@@ -63,14 +63,14 @@ def add_arguments(parser):
 
 
 def run(args):
-    from ...detection.watcher import Watcher
     """Run ``seqmine watch``."""
+    from ...detection.watcher import Watcher
     idle = _idle(args.idle_timeout)
+    pseudo = _pseudonymizer(args.pseudonymize) if args.pseudonymize else None
     watcher = Watcher(args.detectors, cooldown_seconds=args.cooldown, idle_timeout=idle,
                       out_of_order_tolerance=args.tolerance,
                       hint_on_encourage=args.encourage_hints,
                       reject_duplicates=not args.keep_duplicates)
-    pseudo = _pseudonymizer(args.pseudonymize) if args.pseudonymize else None
     err = sys.stderr
     out = sys.stdout
     for note in watcher.notes:
