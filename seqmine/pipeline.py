@@ -22,7 +22,7 @@ __all__ = ["Prepared", "prepare_sequences", "pseudonymize_inputs", "analyze", "A
            "MIN_GROUP_LEARNERS", "order_patterns", "merge_summary", "mine_summary",
            "contrast_summary", "phases_summary", "validation_summary",
            "validation_pattern_params", "public_config", "run_folder_of", "rerun_stage",
-           "recorded_names", "stage_output_folder"]
+           "recorded_names", "stage_output_folder", "own_stage_folder"]
 
 #: Configuration keys that only say where work runs (left out of summary.json).
 _EXECUTION_KEYS = ("jobs", "scheduler")
@@ -289,6 +289,38 @@ def stage_output_folder(folder, stage, marker):
         if parts[-1] == marker:
             return Path(folder, *parts[:-1])
     return None
+
+
+#: What each stage's sub-folder is called in messages, and the file that marks it.
+_STAGE_FOLDERS = {"encode": ("sequence database", "sequences.json"),
+                  "mine": ("pattern set", "patternset.json")}
+
+
+def own_stage_folder(folder, stage, given=None):
+    """The sub-folder of the output ``folder`` that ``stage`` wrote (``sequences/`` of
+    ``encode``, the pattern set of ``mine``), checking that ``given`` (a path the user
+    named as input, if any) is that folder or the output folder itself: results written
+    into a run must come from that run.
+
+    Raises
+    ------
+    DataFileError
+        When the record lists no such folder.
+    OutputError
+        When ``given`` is another folder.
+    """
+    from .errors import OutputError
+    what, marker = _STAGE_FOLDERS[stage]
+    own = stage_output_folder(folder, stage, marker)
+    if own is None:
+        raise DataFileError(f"{folder}: the run record lists no {what}; run 'seqmine "
+                            f"{'encode' if stage == 'encode' else 'mine'}' into it first.")
+    allowed = {Path(folder).resolve(), own.resolve(), (own / "patterns.csv").resolve()}
+    if given and Path(given).resolve() not in allowed:
+        raise OutputError(f"{given} is not the {what} of the run in {folder}; results "
+                          f"written there must come from its own {what} ({own}); write to "
+                          f"another folder to use another.")
+    return own
 
 
 def rerun_stage(folder, stage, command, work, *, settings, inputs=None, outside_inputs=(),

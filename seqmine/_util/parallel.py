@@ -93,7 +93,8 @@ def available_cores():
 def effective_jobs(jobs, *, notify=False):
     """Local worker processes for ``jobs``: ``-1`` means every available core, and more
     than the available cores is capped to them (more processes than cores only adds
-    overhead). With ``notify`` a capped value is said on standard error.
+    overhead). With ``notify`` a capped value is said on standard error. A value that is
+    no worker count is returned unchanged (the caller's check names it).
 
     Examples
     --------
@@ -102,6 +103,8 @@ def effective_jobs(jobs, *, notify=False):
     >>> effective_jobs(10**6) == available_cores()
     True
     """
+    if not (isinstance(jobs, int) and (jobs >= 1 or jobs == -1)) or isinstance(jobs, bool):
+        return jobs  # not a worker count: left to the caller's own check and message
     workers = n_workers(jobs)
     cores = available_cores()
     if workers > cores:

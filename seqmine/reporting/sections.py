@@ -515,8 +515,13 @@ def section_method(d):
     out = [_h2("method")]
     items = []
 
+    recorded = isinstance(summary.get("stages"), dict)
+
     def add(label, key, fmt=esc):
-        v = lookup(summary, key)
+        # with a run record, only the statements of stages that ran (kept in method and
+        # at the top level by the record), never a configured value of a stage that did not
+        v = ((summary.get("method") or {}).get(key, summary.get(key)) if recorded
+             else lookup(summary, key))
         if v is not None and v != "":
             items.append(f"<li><b>{label}:</b> {fmt(v)}</li>")
 

@@ -163,23 +163,12 @@ def _run_in_folder(args, folder):
     """Re-run the contrast stage of an output folder (and, when asked, its transitions)."""
     from ..._util.runrecord import read_summary
     from ...encoding.sequences import SequenceDB
-    from ...errors import OutputError
     from ...mining.miner import load_patternset
-    from ...pipeline import contrast_summary, order_patterns, rerun_stage, stage_output_folder
+    from ...pipeline import contrast_summary, order_patterns, own_stage_folder, rerun_stage
     from ...scoring.contrast import pairwise_contrast
 
-    ps_dir = stage_output_folder(folder, "mine", "patternset.json")
-    db_dir = stage_output_folder(folder, "encode", "sequences.json")
-    if ps_dir is None or db_dir is None:
-        raise DataFileError(f"{folder}: the run record lists no pattern set or sequences to "
-                            f"score; run 'seqmine analyze' (or encode and mine) into it first.")
-    for given, own, what in ((args.patterns, ps_dir, "pattern set"),
-                             (args.seqdb, db_dir, "sequence database")):
-        if given and Path(given).resolve() not in (Path(folder).resolve(), own.resolve(),
-                                                   (own / "patterns.csv").resolve()):
-            raise OutputError(f"{given} is not the {what} of the run in {folder}; a contrast "
-                              f"written there must score that run's own {what} (write to a "
-                              f"file outside the folder with --out to score another).")
+    ps_dir = own_stage_folder(folder, "mine", args.patterns)
+    db_dir = own_stage_folder(folder, "encode", args.seqdb)
     name = _name_in(folder, args.out, "--out", "patterns.csv")
     pw_name = _name_in(folder, args.pairwise, "--pairwise", None)
     tr_name = _name_in(folder, args.transitions, "--transitions", None)
@@ -188,7 +177,7 @@ def _run_in_folder(args, folder):
     opts = _resolved(args, recorded)
     groups = [g.strip() for g in args.groups.split(",")] if args.groups else None
     settings = {name: opts[opt] for opt, (name, _d) in _FROM_RECORD.items()}
-    settings.update(groups=groups, redundancy_jaccard=opts["redundancy"])
+    settings.update(groups=groups, redundancy_jaccard=opts["redundancy"], table=name)
 
     def work(st):
         ps = load_patternset(st.path / ps_dir.relative_to(folder))

@@ -146,22 +146,20 @@ def _run_in_folder(args, folder):
     from ...detection.detectors import save_detectors
     from ...encoding.sequences import SequenceDB
     from ...errors import OutputError
-    from ...pipeline import rerun_stage, stage_output_folder
+    from ...pipeline import own_stage_folder, rerun_stage, stage_output_folder
     stages = (read_summary(folder) or {}).get("stages") or {}
     contrast = stages.get("contrast") or {}
-    tables = [rel for rel in (contrast.get("outputs") or {}) if rel.endswith(".csv")]
-    db_dir = stage_output_folder(folder, "encode", "sequences.json")
-    ps_dir = stage_output_folder(folder, "mine", "patternset.json")
-    if contrast.get("status") != "done" or not tables or db_dir is None:
+    table_name = (contrast.get("settings") or {}).get("table", "patterns.csv")
+    tables = [rel for rel in (contrast.get("outputs") or {}) if rel == table_name]
+    if contrast.get("status") != "done" or not tables:
         raise DataFileError(f"{folder}: the run record lists no contrast table to select "
                             f"detectors from; run 'seqmine contrast {folder}' first.")
+    db_dir = own_stage_folder(folder, "encode", args.sequences)
+    ps_dir = stage_output_folder(folder, "mine", "patternset.json")
     own = [(Path(folder) / tables[0]).resolve(), Path(folder).resolve()]
     if Path(args.table).resolve() not in own:
         raise OutputError(f"{args.table} is not the contrast table of the run in {folder}; "
                           f"detectors written there must come from {own[0]}.")
-    if args.sequences and Path(args.sequences).resolve() != db_dir.resolve():
-        raise OutputError(f"{args.sequences} is not the sequence database of the run in "
-                          f"{folder} ({db_dir}).")
     name = "detectors.json"
     if args.out and Path(args.out).resolve() != Path(folder).resolve():
         rel = Path(args.out).resolve().relative_to(Path(folder).resolve())

@@ -6,7 +6,7 @@ import sys
 from pathlib import Path
 
 from ..._util.progress import is_quiet
-from ...errors import DataFileError, ParameterError
+from ...errors import ParameterError
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -130,17 +130,9 @@ def _say(ps, db, table):
 
 def _run_in_folder(args, folder, params):
     """Re-run the mining stage of an output folder (its later stages are removed)."""
-    from ...errors import OutputError
     from ...mining.miner import mine, save_patternset
-    from ...pipeline import mine_summary, rerun_stage, stage_output_folder
-    db_dir = stage_output_folder(folder, "encode", "sequences.json")
-    if db_dir is None:
-        raise DataFileError(f"{folder}: the run record lists no sequences to mine; run "
-                            f"'seqmine encode' into it first.")
-    if Path(args.seqdb).resolve() not in (folder.resolve(), db_dir.resolve()):
-        raise OutputError(f"{args.seqdb} is not the sequence database of the run in {folder}; "
-                          f"patterns written there must be mined from its own sequences "
-                          f"({db_dir}).")
+    from ...pipeline import mine_summary, own_stage_folder, rerun_stage
+    db_dir = own_stage_folder(folder, "encode", args.seqdb)
     name = "patternset"
     if args.out and Path(args.out).resolve() != folder.resolve():
         rel = Path(args.out).resolve().relative_to(folder.resolve())

@@ -92,16 +92,8 @@ def _say(result, folder):
 def _run_in_folder(args, folder, jobs):
     """Re-run the phases stage of an output folder."""
     from ...encoding.sequences import SequenceDB
-    from ...errors import DataFileError, OutputError
-    from ...pipeline import phases_summary, rerun_stage, stage_output_folder
-    db_dir = stage_output_folder(folder, "encode", "sequences.json")
-    if db_dir is None:
-        raise DataFileError(f"{folder}: the run record lists no sequences to model; run "
-                            f"'seqmine encode' into it first.")
-    if Path(args.seqdb).resolve() not in (folder.resolve(), db_dir.resolve()):
-        raise OutputError(f"{args.seqdb} is not the sequence database of the run in {folder}; "
-                          f"phase models written there must be fitted to its own sequences "
-                          f"({db_dir}).")
+    from ...pipeline import own_stage_folder, phases_summary, rerun_stage
+    db_dir = own_stage_folder(folder, "encode", args.seqdb)
     settings = {"states": args.states, "restarts": args.restarts, "seed": args.seed,
                 "criterion": args.criterion, "heldout_folds": args.folds,
                 "permutations": args.permutations}
