@@ -25,7 +25,7 @@ ROOT = Path(__file__).resolve().parents[1]
 
 def main():
     p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    p.add_argument("--folds", type=int, default=5)
+    p.add_argument("--splits", type=int, default=5)
     p.add_argument("--jobs", type=int, default=2)
     p.add_argument("--fractions", default="0.1,0.25,0.5,0.75,1")
     args = p.parse_args()
@@ -37,8 +37,8 @@ def main():
     results = {}
     for jobs in sorted({1, args.jobs}):
         t0 = time.perf_counter()
-        results[jobs] = validate(events, outcomes, folds=args.folds, fractions=fractions,
-                                 n_jobs=jobs, seed=0)
+        results[jobs] = validate(events, outcomes, n_splits=args.splits, fractions=fractions,
+                                 n_jobs=jobs, random_state=0)
         timings[jobs] = time.perf_counter() - t0
     r = results[1]
     same = all(results[j].to_frame().equals(r.to_frame()) for j in results)
@@ -54,7 +54,7 @@ def main():
             for row in part.itertuples() if row.fraction in (0.25, 0.5, 1.0)}
     out = {
         "learners": int(r.settings["n_learners"]), "events": int(len(events)),
-        "folds": args.folds, "fractions": fractions,
+        "folds": args.splits, "fractions": fractions,
         "seconds": {f"jobs={j}": round(t, 2) for j, t in timings.items()},
         "parallel_identical_to_serial": bool(same),
         "earliest_fraction": {k: (None if np.isnan(v) else v)

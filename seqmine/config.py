@@ -22,9 +22,9 @@ try:  # Python >= 3.11
 except ModuleNotFoundError:  # pragma: no cover - Python 3.10
     import tomli as tomllib
 
-__all__ = ["DEFAULT_CONFIG", "load_config", "merge_config", "default_config", "EVENT_ROLES",
-           "CONTRAST_CORRECTIONS", "CLASSIFIERS", "DEFAULT_FRACTIONS", "check_config",
-           "OPTION_RULES", "MAX_SEED"]
+__all__ = ["DEFAULT_CONFIG", "load_config", "merge_config", "default_config", "default_value",
+           "EVENT_ROLES", "CONTRAST_CORRECTIONS", "CLASSIFIERS", "DEFAULT_FRACTIONS",
+           "NONE_ALLOWED", "check_config", "OPTION_RULES", "MAX_SEED"]
 
 # ---- option vocabularies: kept here (no heavy imports) so the command line can offer
 # them as choices without importing pandas, scipy or scikit-learn
@@ -45,13 +45,15 @@ CLASSIFIERS = {
     "majority": (),
 }
 
-#: Observed fractions of each held-out sequence used by default in ``validate``.
-DEFAULT_FRACTIONS = (0.1, 0.2, 0.25, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0)
-
-#: Defaults of every option, by section. ``None`` means "not set / automatic".
+#: Defaults of every option, by section: the one source of defaults. The Python API
+#: (``mine``, ``contrast``, ``fit_phases``, ``validate``, ``Encoder``, ...), every
+#: sub-command's flags and ``analyze`` take theirs from here (a test checks that they
+#: agree). Keys are the Python parameter names; ``seed`` is the command-line and file
+#: name of the API's ``random_state``. ``None`` means "not set / automatic / no limit"
+#: (written ``"none"`` in a TOML file).
 DEFAULT_CONFIG = {
     "seed": 20261202,
-    "jobs": 1,
+    "n_jobs": 1,
     "scheduler": None,
     "events": {
         "learner_column": "learner", "time_column": "time", "action_column": "action",
@@ -77,24 +79,43 @@ DEFAULT_CONFIG = {
     },
     "contrast": {
         "correction": "bh", "alpha": 0.05, "n_permutations": 1000,
-        "stability_resamples": 100, "redundancy_jaccard": 0.9,
+        "n_bootstrap": 100, "redundancy": 0.9,
     },
-    "transitions": {"include_pauses": True},
-    "phases": {"enabled": True, "min_states": 2, "max_states": 5, "restarts": 3,
-               "max_iter": 100, "criterion": "bic", "heldout_folds": 3,
-               "permutations": 19, "max_sequences": None},
-    "validate": {"enabled": True, "folds": 5,
-                 "fractions": [0.1, 0.25, 0.5, 0.75, 1.0], "bootstrap": 500,
-                 "top_patterns": 30, "hmm": {}, "max_learners": None},
-    "detectors": {"max_q": 0.05, "min_stability": 0.5, "max_detectors": 20},
-    "report": {"examples": True, "top_patterns": 15},
+    "transitions": {"exclude_pauses": False},
+    "phases": {"enabled": True, "min_states": 2, "max_states": 5, "n_restarts": 3,
+               "n_iter": 100, "criterion": "bic", "n_splits": 3,
+               "n_permutations": 19, "max_sequences": None},
+    "validate": {"enabled": True, "n_splits": 5,
+                 "fractions": [0.1, 0.25, 0.5, 0.75, 1.0], "n_bootstrap": 500,
+                 "top_k": 30, "hmm": {}, "max_learners": None},
+    "detectors": {"max_q": 0.05, "min_effect": 0.2, "effect": "cohens_h",
+                  "min_stability": 0.5, "max_detectors": 20},
+    "report": {"examples": True, "max_patterns": 15},
     "privacy": {"pseudonymize_key": None},
 }
+
+
+#: Observed fractions of each held-out sequence used by default in ``validate``.
+DEFAULT_FRACTIONS = tuple(DEFAULT_CONFIG["validate"]["fractions"])
 
 
 def default_config():
     """A deep copy of :data:`DEFAULT_CONFIG`."""
     return copy.deepcopy(DEFAULT_CONFIG)
+
+
+def default_value(section, key=None):
+    """The default of one option (a copy), as API signatures and flags use it.
+
+    Examples
+    --------
+    >>> default_value("mine", "min_support")
+    0.2
+    >>> default_value("seed")
+    20261202
+    """
+    value = DEFAULT_CONFIG[section] if key is None else DEFAULT_CONFIG[section][key]
+    return copy.deepcopy(value)
 
 
 def load_config(path):
@@ -114,8 +135,18 @@ def load_config(path):
     return merge_config(default_config(), data, source=str(path))
 
 
+#: Options that take ``"none"`` (no limit / switched off) besides a number, though their
+#: default is a number; a negative number is refused with a pointer to ``"none"``.
+NONE_ALLOWED = {("mine", "max_gap"), ("mine", "max_length"), ("mine", "max_window"),
+                ("contrast", "redundancy"), ("detectors", "max_detectors")}
+
+
 def merge_config(base, overrides, source="configuration"):
-    """Merge ``overrides`` into a copy of ``base``, rejecting unknown keys."""
+    """Merge ``overrides`` into a copy of ``base``, rejecting unknown keys.
+
+    The string ``"none"`` (any case) stands for ``None`` (TOML has no null) in options
+    whose default is ``None`` or that are listed in :data:`NONE_ALLOWED`.
+    """
     out = copy.deepcopy(base)
     for key, value in (overrides or {}).items():
         if key not in out:
@@ -127,16 +158,32 @@ def merge_config(base, overrides, source="configuration"):
                 if sub not in out[key]:
                     raise ParameterError(_unknown(source, f"{key}.{sub}",
                                                   [f"{key}.{k}" for k in out[key]]))
-                out[key][sub] = _check_type(source, f"{key}.{sub}", DEFAULT_CONFIG[key].get(sub), v)
+                out[key][sub] = _check_value(source, key, sub, v)
         else:
-            value = _check_type(source, key, DEFAULT_CONFIG.get(key), value)
-            if key == "jobs":
+            value = _check_value(source, None, key, value)
+            if key == "n_jobs":
                 try:
                     check_jobs(value, key)
                 except ParameterError as exc:
                     raise ParameterError(f"{source}: {exc}") from None
             out[key] = value
     return out
+
+
+def _check_value(source, section, key, value):
+    """``value`` of option ``section.key`` checked against its default's kind, with
+    ``"none"`` read as None where allowed."""
+    default = DEFAULT_CONFIG[key] if section is None else DEFAULT_CONFIG[section].get(key)
+    name = key if section is None else f"{section}.{key}"
+    optional = default is None or (section, key) in NONE_ALLOWED
+    if optional and isinstance(value, str) and value.strip().lower() == "none":
+        return None
+    value = _check_type(source, name, default, value)
+    if ((section, key) in NONE_ALLOWED and isinstance(value, (int, float))
+            and not isinstance(value, bool) and value < 0):  # other kinds: check_config
+        raise ParameterError(f"{source}: option '{name}' must be 0 or more, or \"none\" for "
+                             f"no limit; got {value!r}.")
+    return value
 
 
 def _check_type(source, key, default, value):
@@ -174,19 +221,17 @@ def _unknown(source, key, valid):
 #: Largest seed (numpy's legacy generators and scikit-learn take seeds below 2**32).
 MAX_SEED = 2**32 - 1
 
-_CORRECTIONS = ("bh", "holm", "westfall-young")
 _FORMATS = (None, "csv", "tsv", "parquet", "jsonl", "xapi")
-_HMM_KEYS = ("backend", "n_iter", "n_restarts", "n_states", "smoothing")
 
 #: The rule of every option, checked by :func:`check_config` before any stage runs:
 #: (kind, arguments). Kinds: ``int`` (low, high, None allowed), ``num`` (low, high,
 #: low exclusive, high exclusive, None allowed), ``bool``, ``str`` (None allowed),
 #: ``choice`` (values), ``numbers`` (low, high, low exclusive, None allowed: a list),
 #: ``strings`` (a list), ``support`` (a fraction in (0, 1] or a count >= 1), ``table``
-#: (a table whose keys are listed).
+#: (a table of options, checked by the stage that reads it).
 OPTION_RULES = {
     "seed": ("int", (0, MAX_SEED, False)),
-    "jobs": ("int", (-1, 4096, False)),
+    "n_jobs": ("int", (-1, 4096, False)),
     "scheduler": ("str", (True,)),
     **{f"events.{r}_column": ("str", (False,)) for r in
        ("learner", "time", "action", "session", "target", "channel")},
@@ -222,33 +267,35 @@ OPTION_RULES = {
     "mine.closed": ("bool", ()),
     "mine.maximal": ("bool", ()),
     "mine.max_patterns": ("int", (1, 10**9, False)),
-    "contrast.correction": ("choice", (_CORRECTIONS,)),
+    "contrast.correction": ("choice", (CONTRAST_CORRECTIONS,)),
     "contrast.alpha": ("num", (0, 1, True, True, False)),
     "contrast.n_permutations": ("int", (1, 10**7, False)),
-    "contrast.stability_resamples": ("int", (0, 10**6, False)),
-    "contrast.redundancy_jaccard": ("num", (0, 1, True, False, True)),
-    "transitions.include_pauses": ("bool", ()),
+    "contrast.n_bootstrap": ("int", (0, 10**6, False)),
+    "contrast.redundancy": ("num", (0, 1, True, False, True)),
+    "transitions.exclude_pauses": ("bool", ()),
     "phases.enabled": ("bool", ()),
     "phases.min_states": ("int", (1, 100, False)),
     "phases.max_states": ("int", (1, 100, False)),
-    "phases.restarts": ("int", (1, 1000, False)),
-    "phases.max_iter": ("int", (1, 10**6, False)),
+    "phases.n_restarts": ("int", (1, 1000, False)),
+    "phases.n_iter": ("int", (1, 10**6, False)),
     "phases.criterion": ("choice", (("bic", "heldout"),)),
-    "phases.heldout_folds": ("int", (0, 100, False)),
-    "phases.permutations": ("int", (0, 10**5, False)),
+    "phases.n_splits": ("int", (0, 100, False)),
+    "phases.n_permutations": ("int", (0, 10**5, False)),
     "phases.max_sequences": ("int", (2, 10**9, True)),
     "validate.enabled": ("bool", ()),
-    "validate.folds": ("int", (2, 1000, False)),
+    "validate.n_splits": ("int", (2, 1000, False)),
     "validate.fractions": ("numbers", (0, 1, True, False)),
-    "validate.bootstrap": ("int", (1, 10**6, False)),
-    "validate.top_patterns": ("int", (1, 10**6, False)),
-    "validate.hmm": ("table", (_HMM_KEYS,)),
+    "validate.n_bootstrap": ("int", (1, 10**6, False)),
+    "validate.top_k": ("int", (1, 10**6, False)),
+    "validate.hmm": ("table", ()),
     "validate.max_learners": ("int", (2, 10**9, True)),
     "detectors.max_q": ("num", (0, 1, True, False, False)),
+    "detectors.min_effect": ("num", (0, None, False, False, False)),
+    "detectors.effect": ("str", (False,)),
     "detectors.min_stability": ("num", (0, 1, False, False, False)),
-    "detectors.max_detectors": ("int", (1, 10**6, False)),
+    "detectors.max_detectors": ("int", (1, 10**6, True)),
     "report.examples": ("bool", ()),
-    "report.top_patterns": ("int", (1, 10**4, False)),
+    "report.max_patterns": ("int", (1, 10**4, False)),
     "privacy.pseudonymize_key": ("str", (True,)),
 }
 
@@ -374,14 +421,11 @@ def _rule_support(source, key, v):
     raise _bad(source, key, v, "a fraction in (0, 1] such as 0.2, or a count of sequences >= 1")
 
 
-def _rule_table(source, key, v, allowed):
+def _rule_table(source, key, v):
     if v is None:
         return {}
     if not isinstance(v, dict):
         raise _bad(source, key, v, "a table of options")
-    for k in v:
-        if k not in allowed:
-            raise ParameterError(_unknown(source, f"{key}.{k}", [f"{key}.{a}" for a in allowed]))
     return v
 
 
@@ -401,9 +445,9 @@ def _cross_checks(cfg, source):
             raise ParameterError(f"{source}: option '{a}' ({va}) is larger than '{b}' ({vb}); "
                                  f"{why}.")
 
-    if get("jobs") == 0:
-        raise ParameterError(f"{source}: option 'jobs' must be a positive whole number or -1 "
-                             f"(all cores); got 0.")
+    if get("n_jobs") == 0:
+        raise ParameterError(f"{source}: option 'n_jobs' must be a positive whole number or "
+                             f"-1 (all cores); got 0.")
     order("phases.min_states", "phases.max_states",
           "the state counts tried run from min_states to max_states")
     order("mine.min_length", "mine.max_length", "no pattern could be that long and that short")

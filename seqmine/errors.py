@@ -6,6 +6,8 @@ them into a one-line message and exit status 2; anything else is an internal err
 (exit status 1).
 """
 
+import argparse
+
 __all__ = [
     "SeqmineError",
     "SeqmineInputError",
@@ -13,6 +15,7 @@ __all__ = [
     "ColumnError",
     "ParameterError",
     "OutputError",
+    "OptionValueError",
     "PatternExplosionError",
     "NotFittedError",
     "SeqmineWarning",
@@ -47,6 +50,14 @@ class OutputError(SeqmineInputError):
     """An output cannot be written: a link or an input where an output goes, a file where
     a folder is needed, no permission, a full disk, or another run writing the same folder.
     Nothing of the run is left behind when it is raised."""
+
+
+class OptionValueError(ParameterError, argparse.ArgumentTypeError):
+    """A command-line option value that cannot be read (e.g. ``--max-gap x``).
+
+    Raised by the value parsers of the command line; argparse reports it as one line
+    naming the option.
+    """
 
 
 class PatternExplosionError(SeqmineInputError):

@@ -19,13 +19,13 @@ from .errors import DataFileError, ParameterError
 from .inputs.outcomes import Grouping, match_learners
 
 __all__ = ["Prepared", "prepare_sequences", "pseudonymize_inputs", "analyze", "AnalysisResult",
-           "MIN_GROUP_LEARNERS", "order_patterns", "merge_summary", "mine_summary",
+           "warnings_frame", "MIN_GROUP_LEARNERS", "order_patterns", "merge_summary", "mine_summary",
            "contrast_summary", "phases_summary", "validation_summary",
            "validation_pattern_params", "public_config", "run_folder_of", "rerun_stage",
            "recorded_names", "stage_output_folder", "own_stage_folder"]
 
 #: Configuration keys that only say where work runs (left out of summary.json).
-_EXECUTION_KEYS = ("jobs", "scheduler")
+_EXECUTION_KEYS = ("n_jobs", "scheduler")
 
 #: Fewest learners a group may have before the run stops with a message.
 MIN_GROUP_LEARNERS = 2
@@ -149,14 +149,76 @@ def _describe(values):
 
 
 # ---------------------------------------------------------------------- analyze
-@dataclass
+@dataclass(repr=False)
 class AnalysisResult:
-    """What :func:`analyze` wrote and the headline counts."""
+    """What :func:`analyze` computed and wrote: the result tables as pandas DataFrames
+    (the same content as the files), the summary and the file paths.
+
+    Attributes
+    ----------
+    out_dir : pathlib.Path
+        The output folder.
+    summary : dict
+        The content of ``summary.json`` (plus ``stage_seconds``, the wall-clock time of
+        each stage, which the file leaves out).
+    files : list of pathlib.Path
+        The files and folders written, in the order they were written.
+    patterns : pandas.DataFrame
+        The contrast table (``patterns.csv``): one row per mined pattern, most useful first.
+    transitions : pandas.DataFrame
+        The lag-1 transition table (``transitions.csv``).
+    phases : seqmine.phases.PhaseResult or None
+        The phase models and their tables (``selection``, ``states``,
+        ``path_comparison``, ``alignment``, ``aligned_transitions``, ``distances``,
+        ``excluded``); written to ``phases/``. None when phases were switched off.
+    early_prediction : pandas.DataFrame or None
+        Early-prediction metrics per classifier and fraction (``early_prediction.csv``);
+        None when validation was switched off.
+    detectors : pandas.DataFrame
+        One row per exported detector (the ``detectors`` list of ``detectors.json``).
+    rejects : pandas.DataFrame
+        Event rows that could not be used, with the reason (``rejects.csv``).
+    warnings : pandas.DataFrame
+        Each distinct warning of the run: ``code``, ``message``, ``count`` (as in
+        ``summary.json``).
+    """
 
     out_dir: object
     summary: dict
     files: list
-    warnings: list = field(default_factory=list)
+    patterns: pd.DataFrame = None
+    transitions: pd.DataFrame = None
+    phases: object = None
+    early_prediction: pd.DataFrame = None
+    detectors: pd.DataFrame = None
+    rejects: pd.DataFrame = None
+    warnings: pd.DataFrame = field(default_factory=lambda: warnings_frame([]))
+
+    @property
+    def report(self):
+        """Path of ``report.html`` (None if it was not written)."""
+        return next((Path(f) for f in self.files if str(f).endswith("report.html")), None)
+
+    def __repr__(self):
+        s = self.summary
+        groups = ", ".join(f"{g} {n}" for g, n in (s.get("sequences_per_group") or {}).items())
+        lines = [f"AnalysisResult(out_dir={str(self.out_dir)!r})",
+                 f"  {s.get('sequences', 0)} sequences ({groups}); "
+                 f"{s.get('patterns_mined', 0)} patterns mined, "
+                 f"{s.get('patterns_significant', 0)} significant; "
+                 f"{s.get('detectors', 0)} detectors; {len(self.warnings)} warning(s)"]
+        tables = [(name, getattr(self, name)) for name in
+                  ("patterns", "transitions", "early_prediction", "detectors", "rejects",
+                   "warnings")]
+        shapes = ", ".join(f"{name} {t.shape[0]}x{t.shape[1]}" for name, t in tables
+                           if isinstance(t, pd.DataFrame))
+        lines.append(f"  tables: {shapes}")
+        if self.phases is not None:
+            lines.append(f"  phases: {self.phases.n_states} states, models "
+                         f"{', '.join(self.phases.models)}")
+        if self.report is not None:
+            lines.append(f"  report: {self.report}")
+        return "\n".join(lines)
 
     def message(self):
         """One-paragraph description for the command line."""
@@ -170,6 +232,22 @@ class AnalysisResult:
         if rep:
             lines.append(f"Report: {rep[0]}")
         return "\n".join(lines)
+
+
+def warnings_frame(records):
+    """The warnings of a run (:class:`~seqmine._util.warnlog.RunWarning` records or
+    ``{"code", "message", "count"}`` dicts) as a DataFrame with those three columns.
+
+    Examples
+    --------
+    >>> warnings_frame([{"code": "tied_times", "message": "Ties.", "count": 3}])
+             code message  count
+    0  tied_times   Ties.      3
+    """
+    rows = [r if isinstance(r, dict) else r.as_dict() for r in records]
+    frame = pd.DataFrame(rows, columns=["code", "message", "count"])
+    frame["count"] = frame["count"].astype("Int64")
+    return frame
 
 
 def _versions():
@@ -187,18 +265,19 @@ def _versions():
 
 
 def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
-    """Run the whole pipeline and write the output folder.
+    """Run the whole pipeline, write the output folder and return the results.
 
-    The whole configuration is checked before anything is read. The folder is
-    written as one step: a new run is built in a temporary folder beside ``out_dir``
-    and swapped into place when every file is written, so ``out_dir`` holds either the
-    previous complete run or the new one, never a mix (see :mod:`seqmine._util.outdir`).
-    ``summary.json`` records which stages ran with which settings and inputs and what
-    each wrote (:mod:`seqmine._util.runrecord`).
+    The same as ``seqmine analyze EVENTS --outcomes OUTCOMES --out OUT_DIR``: with the
+    same settings the files are byte-identical. The whole configuration is checked
+    before anything is read. The folder is written as one step: the run is built in a
+    temporary folder beside ``out_dir`` and swapped into place when every file is
+    written, so ``out_dir`` holds either the previous complete run or the new one, never
+    a mix (see :mod:`seqmine._util.outdir`). ``summary.json`` records which stages ran
+    with which settings and inputs and what each wrote (:mod:`seqmine._util.runrecord`).
 
-    With ``config["jobs"] > 1`` mining partitions, Westfall-Young permutation
-    batches, phase-model fits and validation folds run in local processes (at most
-    as many as there are cores); with ``config["scheduler"]`` (a Dask address or
+    With ``config["n_jobs"] > 1`` mining partitions, Westfall-Young permutation
+    batches, phase-model fits and validation folds run in local processes (at most as
+    many as there are cores); with ``config["scheduler"]`` (a Dask address or
     ``"local"``) on a Dask cluster, connected once for the whole run. The outputs are
     identical to a serial run.
 
@@ -210,21 +289,25 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
         The output folder: new, empty, or written by an earlier seqmine run (which is
         replaced as a whole). A folder holding other files, a symbolic link, or a folder
         holding an input is refused.
-    config : dict, optional
-        A configuration as from :func:`seqmine.config.load_config`; defaults otherwise.
+    config : dict, str or Path, optional
+        Settings over the defaults (:data:`seqmine.config.DEFAULT_CONFIG`): a nested
+        dict with only the keys to change, e.g. ``{"mine": {"min_support": 0.3}}``, a
+        whole configuration (:func:`seqmine.config.load_config`), or the path of a TOML
+        file. Unknown keys are errors that name the closest valid key.
     quiet : bool
-        No progress bars.
+        No progress bars or stage lines.
 
     Returns
     -------
     AnalysisResult
+        The result tables as DataFrames, the summary and the paths of the files.
     """
     from ._util.outdir import writing_folder
     from ._util.parallel import effective_jobs, using_scheduler
-    from .config import check_config, default_config
+    from .config import check_config
     from .inputs.sources import STDIN, regular_input
 
-    cfg = check_config(config if config is not None else default_config())
+    cfg = check_config(_settings(config))
     _preflight(cfg)
     if str(events_path) == STDIN and str(outcomes_path) == STDIN:
         raise ParameterError("Only one of EVENTS and --outcomes can be '-' (standard input); "
@@ -232,7 +315,7 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     scheduler = cfg.get("scheduler") or None
     if scheduler in (None, "local"):
         with (quiet_mode(True) if quiet else contextlib.nullcontext()):
-            cfg = dict(cfg, jobs=effective_jobs(int(cfg["jobs"]), notify=True))
+            cfg = dict(cfg, n_jobs=effective_jobs(int(cfg["n_jobs"]), notify=True))
     log = WarningLog()
     inputs = [events_path, outcomes_path, cfg["encode"]["mapping"],
               cfg["privacy"]["pseudonymize_key"]]
@@ -240,12 +323,22 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
         with regular_input(events_path, "events", max_bytes=cfg["events"]["max_bytes"]) as ev, \
                 regular_input(outcomes_path, "outcomes") as oc, \
                 (quiet_mode(True) if quiet else contextlib.nullcontext()), \
-                using_scheduler(scheduler, int(cfg["jobs"])), collect_warnings(log):
+                using_scheduler(scheduler, int(cfg["n_jobs"])), collect_warnings(log):
             # quiet=False leaves the caller's setting (the command line's --quiet)
             result = _analyze(ev, oc, staging, cfg, log=log)
     result.files = [staging.shown(f) for f in result.files]
     result.out_dir = staging.target
     return result
+
+
+def _settings(config):
+    """The configuration of a run: defaults, a TOML file, or a (partial) dict over them."""
+    from .config import default_config, load_config, merge_config
+    if config is None:
+        return default_config()
+    if isinstance(config, (str, os.PathLike)):
+        return load_config(config)
+    return merge_config(default_config(), config, source="analyze(config=...)")
 
 
 def run_folder_of(path):
@@ -396,12 +489,21 @@ def _prune_empty_folders(root):
 
 def _preflight(cfg):
     """Checks that need more than the option rules (the symbol template, the mapping and
-    key files), done before anything is read or written."""
+    key files, the hidden Markov model options of validation), done before anything is
+    read or written."""
     from .encoding.encoder import encoder_from_settings
     from .inputs.privacy import read_key
     encoder_from_settings(cfg["encode"])._check_params()
     if cfg["privacy"]["pseudonymize_key"]:
         read_key(cfg["privacy"]["pseudonymize_key"])
+    if cfg["validate"]["enabled"]:
+        from .validation.features import HMMLikelihoodFeaturizer
+        allowed = set(HMMLikelihoodFeaturizer().get_params()) - {"random_state"}
+        unknown = sorted(set(cfg["validate"].get("hmm") or {}) - allowed)
+        if unknown:
+            raise ParameterError(
+                f"configuration: unknown option 'validate.hmm.{unknown[0]}'; the options are "
+                f"{', '.join(sorted(allowed))}.")
 
 
 def _input_entry(pair):
@@ -429,7 +531,7 @@ def _analyze(ev, oc, staging, cfg, *, log):
     files = []
     ev_cfg, oc_cfg, en_cfg = cfg["events"], cfg["outcomes"], cfg["encode"]
     seed = int(cfg["seed"])
-    jobs = int(cfg["jobs"])
+    jobs = int(cfg["n_jobs"])
     scheduler = cfg.get("scheduler") or None
 
     # 1. load and validate
@@ -473,7 +575,7 @@ def _analyze(ev, oc, staging, cfg, *, log):
     if mine_cfg["max_gap"] is not None and mine_cfg["max_gap"] < 0:  # -1 = no limit
         mine_cfg = dict(mine_cfg, max_gap=None)
     with run.stage("mine", "mining patterns", mine_cfg) as owned:
-        patternset = mine_parallel(db, jobs=jobs, scheduler=scheduler,
+        patternset = mine_parallel(db, n_jobs=jobs, scheduler=scheduler,
                           min_support=mine_cfg["min_support"],
                           min_length=mine_cfg["min_length"], max_length=mine_cfg["max_length"],
                           max_gap=mine_cfg["max_gap"], max_window=mine_cfg["max_window"],
@@ -486,16 +588,15 @@ def _analyze(ev, oc, staging, cfg, *, log):
     alpha = float(con_cfg["alpha"])
     with run.stage("contrast", "scoring patterns", {**con_cfg, "seed": seed}) as owned:
         table = contrast(patternset, db, correction=con_cfg["correction"], alpha=con_cfg["alpha"],
-                         n_permutations=con_cfg["n_permutations"], seed=seed,
-                         stability_resamples=con_cfg["stability_resamples"],
-                         redundancy=con_cfg["redundancy_jaccard"], jobs=jobs,
-                         scheduler=scheduler)
+                         n_permutations=con_cfg["n_permutations"], random_state=seed,
+                         n_bootstrap=con_cfg["n_bootstrap"], redundancy=con_cfg["redundancy"],
+                         n_jobs=jobs, scheduler=scheduler)
         table = order_patterns(table)
         write_csv(table, out / "patterns.csv")
         files.append(out / "patterns.csv")
         owned += merge_summary(summary, contrast_summary(table, con_cfg))
     with run.stage("transitions", "transitions", cfg["transitions"]):
-        trans = transitions(db, exclude_pauses=not cfg["transitions"]["include_pauses"])
+        trans = transitions(db, exclude_pauses=cfg["transitions"]["exclude_pauses"])
         write_csv(trans, out / "transitions.csv")
         files.append(out / "transitions.csv")
     summary["sequence_lengths"] = {name: _describe(db.lengths[db.groups == g].astype(float))
@@ -503,6 +604,7 @@ def _analyze(ev, oc, staging, cfg, *, log):
 
     # 4. phases of work
     ph_cfg = cfg["phases"]
+    phases = validation = None
     if not ph_cfg["enabled"]:
         record.skip("phases", "switched off (phases.enabled = false, --no-phases)")
     else:
@@ -511,11 +613,11 @@ def _analyze(ev, oc, staging, cfg, *, log):
             phase_db = _sample_sequences(db, ph_cfg.get("max_sequences"), seed)
             phases = fit_phases(phase_db,
                                 n_states=range(ph_cfg["min_states"], ph_cfg["max_states"] + 1),
-                                n_restarts=ph_cfg["restarts"], seed=seed,
+                                n_restarts=ph_cfg["n_restarts"], random_state=seed,
                                 n_jobs=-1 if scheduler else jobs,
-                                n_iter=ph_cfg["max_iter"], criterion=ph_cfg["criterion"],
-                                n_folds=ph_cfg["heldout_folds"],
-                                n_permutations=ph_cfg["permutations"])
+                                n_iter=ph_cfg["n_iter"], criterion=ph_cfg["criterion"],
+                                n_splits=ph_cfg["n_splits"],
+                                n_permutations=ph_cfg["n_permutations"])
             phases.save(out / "phases")
             files.append(out / "phases")
             owned += merge_summary(summary, phases_summary(phases, phase_db))
@@ -531,15 +633,16 @@ def _analyze(ev, oc, staging, cfg, *, log):
         pattern_params = validation_pattern_params(mine_cfg, con_cfg, va_cfg)
         with run.stage("validate", "early prediction",
                        {**va_cfg, "seed": seed, "patterns": pattern_params}) as owned:
-            feats = default_featurizers(seed=seed, pattern_params=pattern_params,
+            feats = default_featurizers(random_state=seed, pattern_params=pattern_params,
                                         hmm_params=dict(va_cfg.get("hmm") or {}))
             va_events, va_outcomes = _sample_learners(prepared.events, prepared.outcomes,
                                                       va_cfg.get("max_learners"), seed)
             validation = validate(
-                va_events, va_outcomes, folds=int(va_cfg["folds"]),
+                va_events, va_outcomes, n_splits=int(va_cfg["n_splits"]),
                 fractions=va_cfg["fractions"], grouping=clone(grouping),
-                encoder=clone(encoder), featurizers=feats, n_bootstrap=int(va_cfg["bootstrap"]),
-                alpha=alpha, seed=seed, n_jobs=jobs, scheduler=scheduler)
+                encoder=clone(encoder), featurizers=feats,
+                n_bootstrap=int(va_cfg["n_bootstrap"]), alpha=alpha, random_state=seed,
+                n_jobs=jobs, scheduler=scheduler)
             write_csv(validation.metrics, out / "early_prediction.csv")
             files.append(out / "early_prediction.csv")
             owned += merge_summary(summary, validation_summary(
@@ -550,8 +653,9 @@ def _analyze(ev, oc, staging, cfg, *, log):
     with run.stage("detectors", "detectors", de_cfg) as owned:
         from .detection.detectors import export_detectors, save_detectors
         doc = export_detectors(table, db, patternset.constraints, max_q=float(de_cfg["max_q"]),
+                               min_effect=float(de_cfg["min_effect"]), effect=de_cfg["effect"],
                                min_stability=float(de_cfg["min_stability"]),
-                               max_detectors=int(de_cfg["max_detectors"]))
+                               max_detectors=de_cfg["max_detectors"])
         save_detectors(doc, out / "detectors.json")
         files.append(out / "detectors.json")
         owned += merge_summary(summary, {"detectors": len(doc.get("detectors", []))})
@@ -562,12 +666,12 @@ def _analyze(ev, oc, staging, cfg, *, log):
         record.skip("examples", "switched off (report.examples = false, --no-examples)")
     else:
         c = patternset.constraints
-        with run.stage("examples", "examples", {"top_patterns": int(rep_cfg["top_patterns"]),
+        with run.stage("examples", "examples", {"max_patterns": int(rep_cfg["max_patterns"]),
                                                 "seed": seed}):
             files.append(write_examples(
-                out, db, table, max_patterns=int(rep_cfg["top_patterns"]), alpha=alpha,
+                out, db, table, max_patterns=int(rep_cfg["max_patterns"]), alpha=alpha,
                 max_gap=c.get("max_gap"), max_window=c.get("max_window"),
-                skip_pauses=bool(c.get("skip_pauses", False)), seed=seed))
+                skip_pauses=bool(c.get("skip_pauses", False)), random_state=seed))
     summary["seed"] = seed
     # execution settings change where the work runs, never the results: they are left
     # out so that summary.json is identical whatever --jobs / --scheduler was used
@@ -578,12 +682,16 @@ def _analyze(ev, oc, staging, cfg, *, log):
     write_json(out / "summary.json", record.apply(summary))
     with run.stage("report", "report", rep_cfg, inputs=run.done_inputs()):
         report = render_report(out, examples=bool(rep_cfg["examples"]),
-                               max_patterns=int(rep_cfg["top_patterns"]))
+                               max_patterns=int(rep_cfg["max_patterns"]))
         files.append(report)
     write_json(out / "summary.json", record.apply(summary))
     files.append(out / "summary.json")
     summary = dict(record.apply(summary), stage_seconds=run.seconds)
-    return AnalysisResult(out_dir=out, summary=summary, files=files, warnings=list(log))
+    return AnalysisResult(
+        out_dir=out, summary=summary, files=files, patterns=table, transitions=trans,
+        phases=phases, early_prediction=None if validation is None else validation.metrics,
+        detectors=pd.DataFrame(doc.get("detectors", [])), rejects=loaded.rejects,
+        warnings=warnings_frame(log))
 
 
 def public_config(cfg):
@@ -628,7 +736,7 @@ def contrast_summary(table, con_cfg):
             "rate_test": "Mann-Whitney U on occurrences per 100 tokens",
             "correction": con_cfg["correction"], "alpha": alpha,
             "n_permutations": int(con_cfg["n_permutations"]),
-            "stability_resamples": int(con_cfg["stability_resamples"]),
+            "n_bootstrap": int(con_cfg["n_bootstrap"]),
         },
     }
 
@@ -645,7 +753,7 @@ def validation_summary(validation, va_cfg, n_learners):
     early = {k: digest[k] for k in ("earliest_fraction", "earliest_fraction_sustained")
              if k in digest}
     early["learners_sampled"] = int(n_learners)
-    return {"early_prediction": early, "method": {"folds": va_cfg["folds"]}}
+    return {"early_prediction": early, "method": {"n_splits": va_cfg["n_splits"]}}
 
 
 def validation_pattern_params(mine_cfg, con_cfg, va_cfg):
@@ -655,7 +763,7 @@ def validation_pattern_params(mine_cfg, con_cfg, va_cfg):
         "start_with_action", "end_with_action", "max_patterns")}
     params.update(correction="bh" if con_cfg["correction"] == "westfall-young"
                   else con_cfg["correction"], alpha=float(con_cfg["alpha"]),
-                  top_k=int(va_cfg["top_patterns"]))
+                  top_k=int(va_cfg["top_k"]))
     return params
 
 

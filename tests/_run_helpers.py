@@ -14,16 +14,16 @@ FAST_TOML = """
 [phases]
 min_states = 2
 max_states = 2
-restarts = 1
-max_iter = 5
-permutations = 2
+n_restarts = 1
+n_iter = 5
+n_permutations = 2
 [validate]
-folds = 2
+n_splits = 2
 fractions = [0.5, 1.0]
-bootstrap = 10
-top_patterns = 5
+n_bootstrap = 10
+top_k = 5
 [contrast]
-stability_resamples = 5
+n_bootstrap = 5
 [mine]
 min_support = 0.3
 max_length = 3
@@ -33,7 +33,8 @@ max_length = 3
 def make_data(folder, n_learners=30, seed=5):
     """events.csv, outcomes.csv and fast.toml in ``folder``; returns the folder."""
     folder = Path(folder)
-    write_greenhouse(folder, n_learners=n_learners, seed=seed, events_per_learner=(15, 30))
+    write_greenhouse(folder, n_learners=n_learners, random_state=seed,
+                     events_per_learner=(15, 30))
     (folder / "fast.toml").write_text(FAST_TOML)
     return folder
 

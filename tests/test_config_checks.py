@@ -15,7 +15,7 @@ from seqmine.errors import ParameterError
 CASES = [
     ("seed = 1e20", f"option 'seed' must be a whole number between 0 and {MAX_SEED}"),
     ("seed = -3", "option 'seed' must be a whole number between 0"),
-    ("jobs = 0", "The 'jobs' parameter must be a positive int or -1"),
+    ("n_jobs = 0", "The 'n_jobs' parameter must be a positive int or -1"),
     ("scheduler = 3", "option 'scheduler' must be a string in quotes (or left out); got 3"),
     ("[mine]\nmax_window = \"x\"", "option 'mine.max_window' must be a whole number"),
     ("[mine]\nmin_support = 1.5", "option 'mine.min_support' must be a fraction in (0, 1]"),
@@ -36,6 +36,8 @@ CASES = [
     ("[validate]\nfractions = []", "option 'validate.fractions' must be a list of numbers"),
     ("[validate]\nhmm = {n_statez = 3}", "unknown option 'validate.hmm.n_statez'"),
     ("[detectors]\nmax_q = 0", "option 'detectors.max_q' must be a finite number in (0, 1]"),
+    ("[contrast]\nredundancy = 1.5", "option 'contrast.redundancy' must be a finite number"),
+    ("[validate]\nn_splits = 1", "option 'validate.n_splits' must be a whole number between 2"),
 ]
 
 
@@ -52,12 +54,23 @@ def test_configuration_errors_stop_before_anything_is_read(tmp_path, capsys, tom
     assert not out.exists()
 
 
-@pytest.mark.parametrize("value", ["inf", "nan", "0", "-5"])
-def test_max_bytes_flag_must_be_finite(tmp_path, capsys, value):
+@pytest.mark.parametrize("value, fragment", [
+    ("inf", "expected a whole number such as 2e10"), ("nan", "expected a whole number"),
+    ("0", "option 'events.max_bytes' must be a whole number between 1"),
+    ("-5", "option 'events.max_bytes' must be a whole number between 1")])
+def test_max_bytes_flag_must_be_finite(tmp_path, capsys, value, fragment):
     rc = main(["analyze", str(tmp_path / "e.csv"), "--outcomes", str(tmp_path / "o.csv"),
                "--out", str(tmp_path / "out"), "--max-bytes", value, "-q"])
-    err = capsys.readouterr().err.strip().splitlines()
-    assert rc == 2 and len(err) == 1 and "--max-bytes must be a finite number" in err[0], err
+    err = capsys.readouterr().err
+    assert rc == 2 and fragment in err, err
+    assert not (tmp_path / "out").exists()
+
+
+def test_every_option_has_a_rule():
+    from seqmine.config import DEFAULT_CONFIG, OPTION_RULES
+    keys = {f"{s}.{k}" if isinstance(v, dict) else s
+            for s, v in DEFAULT_CONFIG.items() for k in (v if isinstance(v, dict) else [s])}
+    assert keys == set(OPTION_RULES)
 
 
 def test_defaults_pass_and_whole_floats_become_ints():

@@ -49,7 +49,7 @@ def _cells(path):
 def hostile_run(tmp_path_factory):
     root = tmp_path_factory.mktemp("formula")
     d = root / "data"
-    write_greenhouse(d, n_learners=40, seed=4, events_per_learner=(20, 35))
+    write_greenhouse(d, n_learners=40, random_state=4, events_per_learner=(20, 35))
     ev = pd.read_csv(d / "events.csv", dtype=str, keep_default_na=False)
     ids = {old: f"{'=+-@'[k % 4]}id{k}" for k, old in enumerate(sorted(ev["learner"].unique()))}
     ev["action"] = ev["action"].replace(HOSTILE_ACTIONS)
@@ -67,7 +67,7 @@ def hostile_run(tmp_path_factory):
                  "--out", str(out), "--config", str(d / "fast.toml"), "-q"]) == 0
     val = root / "validation"
     assert main(["validate", str(d / "events.csv"), "--outcomes", str(d / "labels.csv"),
-                 "--out", str(val), "--folds", "2", "--fractions", "0.5,1", "--bootstrap",
+                 "--out", str(val), "--splits", "2", "--fractions", "0.5,1", "--bootstrap",
                  "5", "--classifiers", "pattern,majority", "-q"]) == 0
     return out, val
 
@@ -142,7 +142,7 @@ def test_hostile_action_names_round_trip_into_detectors_and_the_watcher(tmp_path
     db = SequenceDB.from_lists(strong + weak, groups=["strong"] * 6 + ["weak"] * 6,
                                group_names=["strong", "weak"])
     table = contrast(mine(db, min_support=0.5, max_length=2, max_gap=0), db,
-                     stability_resamples=0, redundancy=None)
+                     n_bootstrap=0, redundancy=None)
     path = write_csv(table, tmp_path / "patterns.csv")
     back = read_csv(path, keep_default_na=False)
     assert [json.loads(t) for t in back["tokens"]] == [json.loads(t) for t in table["tokens"]]

@@ -49,8 +49,8 @@ def test_detectors_command_writes_a_valid_file(run_dir, capsys):
 
 def test_detectors_command_options_override(run_dir, capsys):
     out = run_dir / "d.json"
-    assert main(["detectors", str(run_dir / "patterns.csv"), "--seqdb", str(run_dir / "sequences"),
-                 "--out", str(out), "--max-gap", "none", "--max-window", "3", "--skip-pauses", "no",
+    assert main(["detectors", str(run_dir / "patterns.csv"), "--sequences", str(run_dir / "sequences"),
+                 "--out", str(out), "--max-gap", "none", "--max-window", "3", "--no-skip-pauses",
                  "--favours", "weak", "--min-length", "2", "--keep-redundant", "-q"]) == 0
     doc = load_detectors(out)
     assert doc["matching"] == {"max_gap": None, "max_window": 3, "skip_pauses": False}
@@ -65,7 +65,7 @@ def test_detectors_command_options_override(run_dir, capsys):
     (["patterns.csv", "--effect", "hedges_g"], r"lacks column\(s\) hedges_g"),
     (["patterns.csv", "--max-q", "3"], r"'max_q' parameter of select_detectors must be in"),
     (["patterns.csv", "--strong-group", "top"], "'strong' group 'top' of build_detectors"),
-    (["patterns.csv", "--max-gap", "-2"], "invalid _opt_int value"),
+    (["patterns.csv", "--max-gap", "-2"], "--max-gap: expected a whole number >= 0 or 'none'"),
 ])
 def test_detectors_command_errors_exit_2(run_dir, capsys, args, message):
     argv = ["detectors"] + [str(run_dir / a) if a.endswith((".csv", "sequences")) else a

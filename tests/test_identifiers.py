@@ -34,7 +34,7 @@ def _pseudonym(key, text):
 @pytest.fixture(scope="module")
 def numeric_data(tmp_path_factory):
     d = tmp_path_factory.mktemp("ids")
-    write_greenhouse(d, n_learners=80, seed=6, events_per_learner=(20, 30))
+    write_greenhouse(d, n_learners=80, random_state=6, events_per_learner=(20, 30))
     ev = pd.read_csv(d / "events.csv", dtype=str, keep_default_na=False)
     ids = {old: str(BASE_ID + k) for k, old in enumerate(sorted(ev["learner"].unique()))}
     ev["learner"] = ev["learner"].map(ids)

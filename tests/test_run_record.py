@@ -84,7 +84,7 @@ def test_contrast_rerun_then_report_agree_with_the_new_contrast(run, tmp_path, c
     # the summary owns the new counts and method statements ...
     assert s["method"]["correction"] == "holm"
     assert s["configuration"]["contrast"]["correction"] == "holm"
-    assert s["configuration"]["contrast"]["redundancy_jaccard"] is None
+    assert s["configuration"]["contrast"]["redundancy"] is None
     assert s["patterns_significant"] == n_sig == s["patterns_significant_distinct"]
     # ... the stale detectors are gone and marked, their count left the summary
     assert not (out / "detectors.json").exists() and "detectors" not in s
@@ -157,7 +157,7 @@ def test_stage_reruns_refuse_inputs_of_another_run(run, tmp_path, capsys):
     other_events = tmp_path / "events.csv"
     other_events.write_bytes((data / "events.csv").read_bytes() + b"L9999,5,reset,pot1\n")
     assert main(["validate", str(other_events), "--outcomes", str(data / "outcomes.csv"),
-                 "--out", str(out), "--folds", "2", "--bootstrap", "5", "-q"]) == 2
+                 "--out", str(out), "--splits", "2", "--bootstrap", "5", "-q"]) == 2
     assert "not the events file the run in" in capsys.readouterr().err
     assert digest(out) == before
 

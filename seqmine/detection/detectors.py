@@ -45,6 +45,7 @@ import pandas as pd
 from .._util.checks import check_int, check_number
 from .._util.outdir import open_new
 from .._util.text import TERMINAL_UNSAFE
+from ..config import DEFAULT_CONFIG
 from ..encoding.sequences import PAUSE_PREFIX
 from ..errors import ColumnError, DataFileError, ParameterError, SeqmineWarning
 from ..mining.patterns import is_subsequence, pattern_id, pattern_tokens
@@ -88,9 +89,13 @@ _UNSAFE_ID = re.compile(TERMINAL_UNSAFE)
 
 
 # ====================================================================== selection
-def select_detectors(contrast_table, *, max_q=0.05, min_effect=0.2, effect="cohens_h",
-                     min_stability=0.5, lengths=None, groups=None, max_detectors=50,
-                     drop_redundant=True):
+_DEFAULTS = DEFAULT_CONFIG["detectors"]
+
+
+def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
+                     min_effect=_DEFAULTS["min_effect"], effect=_DEFAULTS["effect"],
+                     min_stability=_DEFAULTS["min_stability"], lengths=None, groups=None,
+                     max_detectors=_DEFAULTS["max_detectors"], drop_redundant=True):
     """Choose the contrast-table rows worth exporting as detectors.
 
     A row is kept when it favours a group, its ``q_value <= max_q``, the absolute
@@ -121,6 +126,7 @@ def select_detectors(contrast_table, *, max_q=0.05, min_effect=0.2, effect="cohe
     groups : str or list of str, optional
         Only patterns favouring these groups.
     max_detectors : int >= 1, optional
+        At most this many rows (default 20); None = no limit.
     drop_redundant : bool
 
     Returns
@@ -331,10 +337,12 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
     return doc
 
 
-def export_detectors(contrast_table, db, constraints=None, *, max_q=0.05, min_effect=0.2,
-                     effect="cohens_h", min_stability=0.5, lengths=None, groups=None,
-                     max_detectors=50, drop_redundant=True, strong=None, weak=None,
-                     absence_after_events=None, absence_after_seconds=None):
+def export_detectors(contrast_table, db, constraints=None, *, max_q=_DEFAULTS["max_q"],
+                     min_effect=_DEFAULTS["min_effect"], effect=_DEFAULTS["effect"],
+                     min_stability=_DEFAULTS["min_stability"], lengths=None, groups=None,
+                     max_detectors=_DEFAULTS["max_detectors"], drop_redundant=True,
+                     strong=None, weak=None, absence_after_events=None,
+                     absence_after_seconds=None):
     """Select rows of a contrast table and build the detectors document in one step.
 
     Parameters

@@ -25,6 +25,7 @@ from .._util.csvio import restore_frame
 from .._util.outdir import open_new
 from .._util.runrecord import has_record, output_status
 from .._version import __version__
+from ..config import DEFAULT_CONFIG
 from ..errors import DataFileError
 from . import html as hx
 from . import sections as sec
@@ -98,11 +99,11 @@ SUMMARY_KEYS = {
     "method.correction": "'bh', 'holm' or 'westfall-young'",
     "method.alpha": "threshold on q values",
     "method.n_permutations": "permutations for Westfall-Young",
-    "method.stability_resamples": "bootstrap resamples behind stability",
+    "method.n_bootstrap": "bootstrap resamples behind stability",
     "method.min_support": "minimum support in at least one group",
     "method.max_length": "longest pattern mined",
     "method.max_gap": "largest gap (tokens) between pattern items",
-    "method.folds": "learner-level cross-validation folds of early prediction",
+    "method.n_splits": "learner-level cross-validation folds of early prediction",
     "pseudonymized": "true when learner identifiers were replaced by keyed hashes",
     "configuration": "effective configuration, shown verbatim (also accepted: config)",
     "versions": "{package: version}",
@@ -225,10 +226,11 @@ EXAMPLE_KEYS = {
     "excerpt.events": "list of {time (s), token (or action), pause (s to next, optional), matched (bool)}",
 }
 
-_DEFAULT_ALPHA = 0.05
+_DEFAULT_ALPHA = DEFAULT_CONFIG["contrast"]["alpha"]
 
 
-def render_report(out_dir, *, examples=True, max_patterns=12, max_examples=2):
+def render_report(out_dir, *, examples=DEFAULT_CONFIG["report"]["examples"],
+                  max_patterns=DEFAULT_CONFIG["report"]["max_patterns"], max_examples=2):
     """Write ``report.html`` into an output folder, from the files in it.
 
     Parameters
@@ -238,7 +240,7 @@ def render_report(out_dir, *, examples=True, max_patterns=12, max_examples=2):
     examples : bool, default True
         Show example excerpts from ``examples.json`` (switch off to keep log
         excerpts out of the report).
-    max_patterns : int, default 12
+    max_patterns : int, default 15
         Differential patterns shown in detail.
     max_examples : int, default 2
         Excerpts shown per pattern.
@@ -301,15 +303,15 @@ def write_examples(out_dir, db, patterns, **kwargs):
         non-redundant, at most ``max_patterns``) or a list of patterns (token lists,
         or readable text).
     **kwargs
-        ``max_patterns`` (default 12), ``alpha`` (default 0.05), and the options of
+        ``max_patterns`` (default 15), ``alpha`` (default 0.05), and the options of
         :func:`build_examples` (matching constraints, ``per_pattern``, ``context``,
-        ``seed``...).
+        ``random_state``...).
 
     Returns
     -------
     pathlib.Path
     """
-    max_patterns = kwargs.pop("max_patterns", 12)
+    max_patterns = kwargs.pop("max_patterns", DEFAULT_CONFIG["report"]["max_patterns"])
     alpha = kwargs.pop("alpha", _DEFAULT_ALPHA)
     if isinstance(patterns, pd.DataFrame):
         df = patterns

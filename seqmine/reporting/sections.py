@@ -536,8 +536,8 @@ def section_method(d):
     add("Threshold on q", "alpha")
     if str(lookup(summary, "correction") or "").lower().startswith("westfall"):
         add("Permutations", "n_permutations")
-    add("Bootstrap resamples behind stability", "stability_resamples")
-    add("Cross-validation folds (early prediction)", "folds")
+    add("Bootstrap resamples behind stability", "n_bootstrap")
+    add("Cross-validation folds (early prediction)", "n_splits")
     items.append("<li><b>Patterns</b> were mined by prefix projection (PrefixSpan) and kept "
                  "when frequent in at least one group. <b>Transitions</b>: lag-1 counts with "
                  "adjusted residuals and Yule's Q. <b>Phases</b>: hidden Markov models with "

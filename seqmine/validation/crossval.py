@@ -24,12 +24,12 @@ from sklearn.pipeline import FeatureUnion, make_pipeline
 from sklearn.preprocessing import StandardScaler
 
 from .._util.checks import check_choice, check_fraction, check_int, check_jobs, check_number
-from ..config import CLASSIFIERS, DEFAULT_FRACTIONS
 from .._util.csvio import write_csv
-from .._util.folds import learner_splits
+from .._util.folds import learner_splits as _learner_splits
 from .._util.jsonio import write_json
 from .._util.parallel import parallel_map
 from .._util.progress import progress
+from ..config import CLASSIFIERS, DEFAULT_CONFIG, DEFAULT_FRACTIONS
 from ..errors import ParameterError
 from .features import (
     FrequencyPauseFeaturizer,
@@ -49,12 +49,15 @@ __all__ = [
     "DEFAULT_FRACTIONS",
 ]
 
+_DEFAULTS = DEFAULT_CONFIG["validate"]
+_SEED = DEFAULT_CONFIG["seed"]
 
 
-def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTIONS,
-             grouping=None, encoder=None, featurizers=None, classifiers=None, C=1.0,
-             train_on="full", n_bootstrap=1000, confidence=0.95, alpha=0.05, seed=0,
-             n_jobs=1, scheduler=None):
+def validate(events, outcomes, *, n_splits=_DEFAULTS["n_splits"], loo=False,
+             fractions=DEFAULT_FRACTIONS, grouping=None, encoder=None, featurizers=None,
+             classifiers=None, C=1.0, train_on="full", n_bootstrap=_DEFAULTS["n_bootstrap"],
+             confidence=0.95, alpha=DEFAULT_CONFIG["contrast"]["alpha"], random_state=_SEED,
+             n_jobs=DEFAULT_CONFIG["n_jobs"], scheduler=None):
     """Cross-validate the discovery pipeline by learner and measure early prediction.
 
     Parameters
@@ -64,13 +67,13 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
         ``load_events(...).events`` (a LoadResult is accepted too).
     outcomes : pandas.DataFrame
         Outcome table with a ``learner`` column, as from ``load_outcomes``.
-    folds : int, default 5
+    n_splits : int, default 5
         Number of stratified folds (ignored when ``loo``).
     loo : bool, default False
         Leave one learner out instead of k folds (see Notes on the baseline).
     fractions : sequence of float in (0, 1]
         Observed fractions of each held-out sequence (of its action events, see
-        :meth:`SequenceDB.cut`).
+        :meth:`SequenceDB.cut`); default :data:`DEFAULT_FRACTIONS`.
     grouping : estimator, optional
         Unfitted outcome grouping with ``fit(outcomes)``, ``transform(outcomes)``
         (learner -> group name, NaN = none) and ``group_names_``. Default
@@ -90,12 +93,12 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
         fraction the classifiers (not the discovery steps) are re-trained on the
         training sequences cut to the same fraction, so training and test see
         equally long beginnings.
-    n_bootstrap : int, default 1000
+    n_bootstrap : int, default 500
         Bootstrap resamples of the held-out learners for the confidence intervals.
     confidence : float, default 0.95
     alpha : float, default 0.05
         Level of the one-sided test against the majority baseline.
-    seed : int, default 0
+    random_state : int, default 20261202
         Seeds the fold split, the featurizers and the bootstrap.
     n_jobs : int, default 1
         Folds run in this many local processes (joblib; -1 = all cores); results are
@@ -156,7 +159,8 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
         names.append("majority")
     grouping = grouping if grouping is not None else _default_grouping()
     encoder = encoder if encoder is not None else _default_encoder()
-    featurizers = featurizers if featurizers is not None else default_featurizers(seed=seed)
+    featurizers = (featurizers if featurizers is not None
+                   else default_featurizers(random_state=random_state))
     needed = sorted({f for n in names for f in CLASSIFIERS[n]})
     missing = [f for f in needed if f not in featurizers]
     if missing:
@@ -180,7 +184,8 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
     learners = np.array(sorted(lr for lr, g in strat.items()
                                if lr in has_events and not pd.isna(g)), dtype=object)
     labels = np.array([str(strat[lr]) for lr in learners], dtype=object)
-    split = learner_splits(learners, labels, folds=folds, loo=loo, seed=seed)
+    split = learner_splits(learners, labels, n_splits=n_splits, loo=loo,
+                           random_state=random_state)
 
     ev_by = {lr: idx for lr, idx in events.groupby("learner", sort=False).indices.items()}
     jobs = []
@@ -196,7 +201,7 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
     if n_jobs == 1 and not scheduler:
         outs = [run(job) for job in progress(jobs, desc="folds", unit="fold")]
     else:
-        outs = parallel_map(run, jobs, jobs=n_jobs, scheduler=scheduler)
+        outs = parallel_map(run, jobs, n_jobs=n_jobs, scheduler=scheduler)
     group_names = outs[0]["group_names"]
     for o in outs:
         if o["group_names"] != group_names:
@@ -209,17 +214,18 @@ def validate(events, outcomes, *, folds=5, loo=False, fractions=DEFAULT_FRACTION
         ["classifier", "fraction", "learner"], key=lambda s: s.map(order) if s.name ==
         "classifier" else s, kind="mergesort", ignore_index=True)
     metrics = early_prediction_table(predictions, group_names, n_bootstrap=n_bootstrap,
-                                     confidence=confidence, alpha=alpha, seed=seed)
+                                     confidence=confidence, alpha=alpha,
+                                     random_state=random_state)
     fold_table = pd.DataFrame({
         "learner": np.concatenate([learners[te] for _, te in split]),
         "fold": np.concatenate([np.full(len(te), k) for k, (_, te) in enumerate(split)]),
     }).sort_values("learner", kind="mergesort", ignore_index=True)
     settings = {
-        "folds": None if loo else int(folds), "loo": bool(loo),
+        "n_splits": None if loo else int(n_splits), "loo": bool(loo),
         "fractions": list(fractions), "classifiers": names, "C": float(C),
         "train_on": train_on,
         "n_bootstrap": int(n_bootstrap), "confidence": float(confidence),
-        "alpha": float(alpha), "seed": int(seed),
+        "alpha": float(alpha), "random_state": int(random_state),
         "test": "one-sided exact McNemar (binomial test on discordant pairs) vs majority",
         "n_learners": int(len(learners)),
         "n_learners_without_outcome_group": int(len(has_events - set(learners))),
@@ -376,7 +382,45 @@ class ValidationResult:
         return folder
 
 
-def default_featurizers(*, seed=0, pattern_params=None, hmm_params=None):
+def learner_splits(learners, labels=None, *, n_splits=_DEFAULTS["n_splits"], loo=False,
+                   random_state=_SEED):
+    """Split samples into folds so that no learner spans two folds, as :func:`validate`
+    does (stratified by ``labels`` when given).
+
+    Parameters
+    ----------
+    learners : array-like of str, shape (n_samples,)
+        Learner of each sample; a learner may have several samples (sessions).
+    labels : array-like, shape (n_samples,), optional
+        Group of each sample, used to stratify (the first sample of a learner gives the
+        learner's label).
+    n_splits : int, default 5
+        Number of folds over learners (ignored when ``loo``).
+    loo : bool, default False
+        One fold per learner.
+    random_state : int, default 20261202
+        Shuffles learners before the split.
+
+    Returns
+    -------
+    list of (ndarray, ndarray)
+        ``(train_indices, test_indices)`` into the samples, one pair per fold.
+
+    Examples
+    --------
+    >>> learners = ["a", "a", "b", "c", "d", "e", "f"]
+    >>> labels = ["x", "x", "x", "x", "y", "y", "y"]
+    >>> for tr, te in learner_splits(learners, labels, n_splits=3, random_state=0):
+    ...     print(" ".join(sorted(set(np.asarray(learners)[te]))))
+    c e
+    b f
+    a d
+    """
+    return _learner_splits(learners, labels, n_splits=n_splits, loo=loo,
+                           random_state=random_state)
+
+
+def default_featurizers(*, random_state=_SEED, pattern_params=None, hmm_params=None):
     """The three featurizers compared by :func:`validate`, unfitted.
 
     Returns
@@ -387,13 +431,13 @@ def default_featurizers(*, seed=0, pattern_params=None, hmm_params=None):
         :class:`FrequencyPauseFeaturizer`.
     """
     return {
-        "pattern": PatternFeaturizer(seed=seed, **(pattern_params or {})),
-        "hmm": HMMLikelihoodFeaturizer(seed=seed, **(hmm_params or {})),
+        "pattern": PatternFeaturizer(random_state=random_state, **(pattern_params or {})),
+        "hmm": HMMLikelihoodFeaturizer(random_state=random_state, **(hmm_params or {})),
         "frequency_pause": FrequencyPauseFeaturizer(),
     }
 
 
-def make_classifier(name, *, featurizers=None, C=1.0, seed=0):
+def make_classifier(name, *, featurizers=None, C=1.0, random_state=_SEED):
     """A scikit-learn Pipeline equivalent to one classifier of :func:`validate`.
 
     Features of the named featurizers are stacked (:class:`FeatureUnion`),
@@ -413,7 +457,8 @@ def make_classifier(name, *, featurizers=None, C=1.0, seed=0):
         raise ParameterError(f"Unknown classifier {name!r}; choose from {', '.join(CLASSIFIERS)}.")
     if name == "majority":
         return DummyClassifier(strategy="most_frequent")
-    feats = featurizers if featurizers is not None else default_featurizers(seed=seed)
+    feats = (featurizers if featurizers is not None
+             else default_featurizers(random_state=random_state))
     union = FeatureUnion([(f, clone(feats[f])) for f in CLASSIFIERS[name]])
     return make_pipeline(union, StandardScaler(), _logistic(C))
 

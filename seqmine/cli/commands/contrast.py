@@ -2,12 +2,14 @@
 
 from __future__ import annotations
 
+import argparse
 from pathlib import Path
 
 from ..._util.csvio import read_csv, write_csv
 from ..._util.progress import is_quiet
-from ...config import CONTRAST_CORRECTIONS
 from ...errors import DataFileError, ParameterError
+from . import _options
+from ._options import add_option
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run", "read_patternset"]
 
@@ -18,22 +20,17 @@ DESCRIPTION = (
     "separates the outcome groups: per-group support and rate, Fisher's exact test on "
     "presence, Mann-Whitney U on rates, effect sizes, multiple-comparison control "
     "(Benjamini-Hochberg, Holm or a Westfall-Young permutation test), bootstrap stability "
-    "and redundancy marks. With --transitions (needs --seqdb) also writes the lag-1 "
+    "and redundancy marks. With --transitions (needs --sequences) also writes the lag-1 "
     "transition table with adjusted residuals. Findings are correlational."
 )
 
 
-#: Defaults of the options that re-running contrast in an output folder takes from the
-#: folder's record when they are not given: option -> (record setting, default).
-_FROM_RECORD = {
-    "correction": ("correction", "bh"), "alpha": ("alpha", 0.05),
-    "permutations": ("n_permutations", 1000), "seed": ("seed", 0),
-    "stability_resamples": ("stability_resamples", 100),
-    "redundancy": ("redundancy_jaccard", 0.9),
-    "redundancy_order": ("redundancy_order", "significance"),
-    "drop_redundant": ("drop_redundant", False), "rate_unit": ("rate_unit", None),
-    "unit": ("unit", "sequence"),
-}
+#: Options that, when a contrast is re-run in an output folder and they are not given,
+#: keep the value of the folder's record: argparse destination -> recorded setting.
+_FROM_RECORD = {"correction": "correction", "alpha": "alpha", "permutations": "n_permutations",
+                "bootstrap": "n_bootstrap", "redundancy": "redundancy", "seed": "seed",
+                "redundancy_order": "redundancy_order", "drop_redundant": "drop_redundant",
+                "rate_unit": "rate_unit", "unit": "unit"}
 
 
 def add_arguments(parser):
@@ -41,44 +38,38 @@ def add_arguments(parser):
     parser.add_argument("patterns", metavar="PATTERNS_DIR",
                         help="pattern set folder written by 'seqmine mine' (or its .csv table), "
                              "or an output folder of 'seqmine analyze' to re-run its contrast")
-    parser.add_argument("--seqdb", metavar="DIR", default=None,
-                        help="sequence database folder the patterns were mined on (gives "
-                             "sequence lengths for rates; needed for --transitions)")
+    _options.add_sequences_option(parser, positional=False, required=False)
     parser.add_argument("--out", metavar="CSV", default=None,
                         help="contrast table to write (default with an output folder: its "
                              "patterns.csv, replacing the run's contrast)")
     parser.add_argument("--transitions", metavar="CSV", default=None,
-                        help="also write the lag-1 transition table here")
+                        help="also write the lag-1 transition table here (needs --sequences)")
     parser.add_argument("--pairwise", metavar="CSV", default=None,
                         help="with more than two groups, also write pairwise comparisons here")
     parser.add_argument("--groups", metavar="A,B", default=None,
                         help="comma-separated group names to compare (default: all groups)")
-    parser.add_argument("--correction", choices=CONTRAST_CORRECTIONS, default=None,
-                        help="multiple-comparison control of q_value (default bh)")
-    parser.add_argument("--alpha", type=float, default=None, metavar="A",
-                        help="level for 'favours' and stability (default 0.05)")
-    parser.add_argument("--permutations", type=int, default=None, metavar="N",
-                        help="label permutations for westfall-young (default 1000)")
-    parser.add_argument("--seed", type=int, default=None, metavar="S",
-                        help="seed of permutations and resamples (default 0)")
-    parser.add_argument("--stability-resamples", type=int, default=None, metavar="N",
-                        help="bootstrap resamples for the stability column, 0 = skip "
-                             "(default 100)")
-    parser.add_argument("--redundancy", default=None, metavar="J",
-                        help="Jaccard threshold for redundancy marks, or 'none' (default 0.9)")
-    parser.add_argument("--redundancy-order", choices=("significance", "length"),
-                        default=None,
-                        help="which of two near-duplicates is kept (default significance)")
-    parser.add_argument("--drop-redundant", action="store_true", default=None,
-                        help="leave redundant patterns out of the table")
-    parser.add_argument("--rate-unit", choices=("tokens", "actions", "count"), default=None,
-                        help="rates per 100 tokens, per 100 actions or raw counts (default: "
-                             "tokens with --seqdb, else count)")
-    parser.add_argument("--unit", choices=("sequence", "learner"), default=None,
-                        help="unit of analysis; 'learner' merges each learner's sessions "
-                             "first (needs --seqdb; default sequence)")
-    parser.add_argument("--exclude-pauses", action="store_true",
-                        help="transitions skip pauses")
+    _options.add_execution_options(parser, scheduler=False)
+    g = _options.add_contrast_options(parser)
+    g.add_argument("--redundancy-order", choices=("significance", "length"),
+                   default="significance",
+                   help="which of two near-duplicates is kept (default: significance)")
+    g.add_argument("--drop-redundant", action="store_true",
+                   help="leave redundant patterns out of the table")
+    g.add_argument("--rate-unit", choices=("tokens", "actions", "count"), default=None,
+                   help="rates per 100 tokens, per 100 actions or raw counts (default: "
+                        "tokens with --sequences, else count)")
+    g.add_argument("--unit", choices=("sequence", "learner"), default="sequence",
+                   help="unit of analysis; 'learner' merges each learner's sessions first "
+                        "(needs --sequences; default: sequence)")
+    add_option(g, "transitions", "exclude_pauses", action=argparse.BooleanOptionalAction,
+               help="transitions skip pause tokens (default: {default})")
+    # which options were given: re-running in an output folder keeps the record's values
+    defaults = {}
+    for action in parser._actions:
+        if action.dest in _FROM_RECORD:
+            defaults[action.dest] = action.default
+            action.default = argparse.SUPPRESS
+    parser.set_defaults(_option_defaults=defaults)
 
 
 def run(args):
@@ -95,12 +86,13 @@ def run(args):
                              "'seqmine analyze' (whose contrast is then re-run).")
     opts = _resolved(args, {})
     ps = read_patternset(args.patterns)
-    db = SequenceDB.load(args.seqdb) if args.seqdb else None
+    db = SequenceDB.load(args.sequences) if args.sequences else None
     if args.transitions and db is None:
-        raise ParameterError("--transitions needs --seqdb DIR (the sequence database folder).")
+        raise ParameterError("--transitions needs --sequences DIR (the sequence database "
+                             "folder).")
     groups = [g.strip() for g in args.groups.split(",")] if args.groups else None
-    table = _contrast(ps, db, groups, opts)
-    reads = [args.patterns, args.seqdb]
+    table = _contrast(ps, db, groups, opts, args.jobs)
+    reads = [args.patterns, args.sequences]
     messages = [_write(table, args.out, "--out", reads, "patterns") +
                 f" ({int((table['favours'] != '').sum())} with q <= {opts['alpha']} "
                 f"by {opts['correction']})"]
@@ -128,34 +120,34 @@ def _write(table, path, option, reads, what):
     return f"wrote {len(table)} {what} to {path}"
 
 
-def _contrast(ps, db, groups, opts):
+def _contrast(ps, db, groups, opts, n_jobs=1):
     from ...scoring.contrast import contrast
     return contrast(ps, db, groups=groups, correction=opts["correction"], alpha=opts["alpha"],
-                    n_permutations=opts["permutations"], seed=opts["seed"],
-                    stability_resamples=opts["stability_resamples"],
-                    redundancy=opts["redundancy"], redundancy_order=opts["redundancy_order"],
+                    n_permutations=opts["permutations"], random_state=opts["seed"],
+                    n_bootstrap=opts["bootstrap"], redundancy=opts["redundancy"],
+                    redundancy_order=opts["redundancy_order"],
                     drop_redundant=opts["drop_redundant"], rate_unit=opts["rate_unit"],
-                    unit=opts["unit"])
+                    unit=opts["unit"], n_jobs=n_jobs)
 
 
 def _resolved(args, recorded):
     """Option values: given on the command line, else the folder's record, else default."""
     out = {}
-    for opt, (name, default) in _FROM_RECORD.items():
-        value = getattr(args, opt)
-        if value is None:
-            value = recorded.get(name, default)
-        out[opt] = value
-    out["redundancy"] = _redundancy(out["redundancy"])
+    for dest, name in _FROM_RECORD.items():
+        if hasattr(args, dest):
+            out[dest] = getattr(args, dest)
+        elif name in recorded:
+            out[dest] = recorded[name]
+        else:
+            out[dest] = args._option_defaults[dest]
     return out
 
 
 def _run_folder(args, run_folder_of):
-    """The analyze output folder this call writes into, or None (file mode)."""
+    """The output folder this call re-runs the contrast of, or None (file mode)."""
     given = Path(args.patterns)
-    if given.is_dir() and run_folder_of(given) == Path(given).absolute() and \
-            (given / "summary.json").is_file():
-        return run_folder_of(given)
+    if given.is_dir() and run_folder_of(given) == given.absolute():
+        return given.absolute()
     return run_folder_of(args.out) if args.out else None
 
 
@@ -168,7 +160,7 @@ def _run_in_folder(args, folder):
     from ...scoring.contrast import pairwise_contrast
 
     ps_dir = own_stage_folder(folder, "mine", args.patterns)
-    db_dir = own_stage_folder(folder, "encode", args.seqdb)
+    db_dir = own_stage_folder(folder, "encode", args.sequences)
     name = _name_in(folder, args.out, "--out", "patterns.csv")
     pw_name = _name_in(folder, args.pairwise, "--pairwise", None)
     tr_name = _name_in(folder, args.transitions, "--transitions", None)
@@ -176,13 +168,13 @@ def _run_in_folder(args, folder):
     recorded = (stages.get("contrast") or {}).get("settings") or {}
     opts = _resolved(args, recorded)
     groups = [g.strip() for g in args.groups.split(",")] if args.groups else None
-    settings = {name: opts[opt] for opt, (name, _d) in _FROM_RECORD.items()}
-    settings.update(groups=groups, redundancy_jaccard=opts["redundancy"], table=name)
+    settings = {name: opts[dest] for dest, name in _FROM_RECORD.items()}
+    settings.update(groups=groups, table=name)
 
     def work(st):
         ps = load_patternset(st.path / ps_dir.relative_to(folder))
         db = SequenceDB.load(st.path / db_dir.relative_to(folder))
-        table = order_patterns(_contrast(ps, db, groups, opts))
+        table = order_patterns(_contrast(ps, db, groups, opts, args.jobs))
         write_csv(table, st.path / name)
         if pw_name:
             if len(table.attrs.get("groups", [])) < 3:
@@ -194,16 +186,14 @@ def _run_in_folder(args, folder):
                 st.path / pw_name)
         return contrast_summary(table, {
             "correction": opts["correction"], "alpha": opts["alpha"],
-            "n_permutations": opts["permutations"],
-            "stability_resamples": opts["stability_resamples"]}), table
+            "n_permutations": opts["permutations"], "n_bootstrap": opts["bootstrap"]}), table
 
     examples = stages.get("examples") or {}
     table, target, removed = rerun_stage(
         folder, "contrast", NAME, work, settings=settings, config_section="contrast",
         config_values={"correction": opts["correction"], "alpha": opts["alpha"],
                        "n_permutations": opts["permutations"],
-                       "stability_resamples": opts["stability_resamples"],
-                       "redundancy_jaccard": opts["redundancy"]})
+                       "n_bootstrap": opts["bootstrap"], "redundancy": opts["redundancy"]})
     messages = [f"wrote {len(table)} patterns to {target / name} "
                 f"({int((table['favours'].fillna('') != '').sum())} with q <= {opts['alpha']} "
                 f"by {opts['correction']})"]
@@ -247,9 +237,8 @@ def _rewrite_transitions(folder, name, db_dir, exclude_pauses):
         write_csv(transitions(db, exclude_pauses=exclude_pauses), st.path / name)
         return {}, None
 
-    rerun_stage(folder, "transitions", NAME, work,
-                settings={"include_pauses": not exclude_pauses},
-                config_section="transitions", config_values={"include_pauses": not exclude_pauses})
+    rerun_stage(folder, "transitions", NAME, work, settings={"exclude_pauses": exclude_pauses},
+                config_section="transitions", config_values={"exclude_pauses": exclude_pauses})
 
 
 def _rewrite_examples(folder, settings, ps_dir, db_dir, alpha):
@@ -267,37 +256,22 @@ def _rewrite_examples(folder, settings, ps_dir, db_dir, alpha):
         for col in ("p_value", "q_value", "risk_difference"):
             if col in table.columns:
                 table[col] = pd.to_numeric(table[col].replace("", None), errors="coerce")
-        write_examples(st.path, db, table, max_patterns=int(settings.get("top_patterns", 15)),
+        write_examples(st.path, db, table, max_patterns=int(settings.get("max_patterns", 15)),
                        alpha=alpha, max_gap=c.get("max_gap"), max_window=c.get("max_window"),
                        skip_pauses=bool(c.get("skip_pauses", False)),
-                       seed=int(settings.get("seed", 0)))
+                       random_state=int(settings.get("seed", 0)))
         return {}, None
 
     rerun_stage(folder, "examples", NAME, work, settings=settings)
 
 
 def read_patternset(path):
-    from ...mining.miner import load_patternset
     """Read a pattern set folder written by ``seqmine mine`` (or the path of its CSV)."""
+    from ...mining.miner import load_patternset
     folder = Path(path)
     if folder.suffix.lower() == ".csv":
         folder = folder.parent
     if not folder.exists():
         raise DataFileError(f"{folder}: no such pattern set folder; create it with "
-                            f"'seqmine mine SEQDB_DIR --out {folder}'.")
+                            f"'seqmine mine SEQUENCES_DIR --out {folder}'.")
     return load_patternset(folder)
-
-
-def _redundancy(value):
-    if value is None:
-        return None
-    if isinstance(value, (int, float)) and not isinstance(value, bool):
-        return float(value)
-    t = str(value).strip().lower()
-    if t in ("none", "off", "0"):
-        return None
-    try:
-        return float(t)
-    except ValueError:
-        raise ParameterError(f"--redundancy must be a Jaccard threshold in (0, 1] such as 0.9, "
-                             f"or 'none'. Got {value!r} instead.") from None

@@ -7,7 +7,9 @@ import json
 from pathlib import Path
 
 from ..._util.progress import is_quiet
-from ...errors import DataFileError, ParameterError
+from ...errors import DataFileError, OptionValueError, ParameterError
+from . import _options
+from ._options import add_option
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -32,9 +34,7 @@ def add_arguments(parser):
     parser.add_argument("table", metavar="CONTRAST_CSV",
                         help="contrast table (patterns.csv) written by 'seqmine contrast', or "
                              "an output folder of 'seqmine analyze' to re-select its detectors")
-    parser.add_argument("--sequences", "--seqdb", dest="sequences", default=None, metavar="DIR",
-                        help="sequence database folder written by 'seqmine encode' (its "
-                             "encoding is copied into the detectors file)")
+    _options.add_sequences_option(parser, positional=False, required=False)
     parser.add_argument("--patterns", metavar="DIR", default=None,
                         help="pattern set folder written by 'seqmine mine' (gives the matching "
                              "constraints; default: a patternset.json beside the table)")
@@ -42,20 +42,20 @@ def add_arguments(parser):
                         help="detectors file to write (default with an output folder as "
                              "CONTRAST_CSV: its detectors.json)")
     g = parser.add_argument_group("selection")
-    g.add_argument("--max-q", type=float, default=0.05, metavar="Q",
-                   help="largest q value kept (default 0.05)")
-    g.add_argument("--effect", default="cohens_h", metavar="COLUMN",
-                   help="effect-size column for filtering and ranking (default cohens_h)")
-    g.add_argument("--min-effect", type=float, default=0.2, metavar="E",
-                   help="smallest |effect| kept (default 0.2, Cohen's 'small' h)")
-    g.add_argument("--min-stability", type=float, default=0.5, metavar="S",
-                   help="smallest stability kept, 0 = no check (default 0.5)")
+    add_option(g, "detectors", "max_q", type=float, metavar="Q",
+               help="largest q value kept (default: {default})")
+    add_option(g, "detectors", "effect", metavar="COLUMN",
+               help="effect-size column for filtering and ranking (default: {default})")
+    add_option(g, "detectors", "min_effect", type=float, metavar="E",
+               help="smallest |effect| kept (default: {default}, Cohen's 'small' h)")
+    add_option(g, "detectors", "min_stability", type=float, metavar="S",
+               help="smallest stability kept, 0 = no check (default: {default})")
     g.add_argument("--min-length", type=int, default=None, metavar="N")
     g.add_argument("--max-length", type=int, default=None, metavar="N")
     g.add_argument("--favours", default=None, metavar="GROUPS",
                    help="comma-separated groups whose patterns are kept (default: all)")
-    g.add_argument("--max-detectors", type=int, default=50, metavar="N",
-                   help="most detectors written (default 50)")
+    add_option(g, "detectors", "max_detectors", type=_options.int_or_none, metavar="N",
+               help="most detectors written, or 'none' (default: {default})")
     g.add_argument("--keep-redundant", action="store_true",
                    help="keep patterns contained in (or containing) a better one")
     g.add_argument("--strong-group", default=None, metavar="NAME",
@@ -64,11 +64,12 @@ def add_arguments(parser):
                    help="name of the weak group (default: 'weak' or the second group)")
     g = parser.add_argument_group("matching and absence rules")
     g.add_argument("--max-gap", type=_opt_int, default=argparse.SUPPRESS, metavar="N",
-                   help="override the pattern set's max gap ('none' = unlimited)")
+                   help="override the pattern set's max gap ('none' = no limit)")
     g.add_argument("--max-window", type=_opt_int, default=argparse.SUPPRESS, metavar="N",
-                   help="override the pattern set's max window ('none' = unlimited)")
-    g.add_argument("--skip-pauses", choices=("yes", "no"), default=None,
-                   help="override whether pauses count toward gaps and windows")
+                   help="override the pattern set's max window ('none' = no limit)")
+    g.add_argument("--skip-pauses", action=argparse.BooleanOptionalAction, default=None,
+                   help="override whether pause tokens count toward gaps and windows "
+                        "(default: as the pattern set was mined)")
     g.add_argument("--absence-events", type=int, default=None, metavar="N",
                    help="encourage detectors also fire when the pattern has not been shown "
                         "after N events of a sequence (default: off)")
@@ -194,15 +195,9 @@ def _run_in_folder(args, folder):
 
 
 def _opt_int(text):
-    t = str(text).strip().lower()
-    if t in ("none", "off"):
-        return None
-    try:
-        v = int(t)
-    except ValueError:
-        raise ParameterError(f"Expected a whole number or 'none'. Got {text!r} instead.") from None
-    if v < 0:
-        raise ParameterError(f"Expected a whole number >= 0 or 'none'. Got {text!r} instead.")
+    v = _options.int_or_none(text)
+    if v is not None and v < 0:
+        raise OptionValueError(f"expected a whole number >= 0 or 'none'; got {text!r}")
     return v
 
 
@@ -232,5 +227,5 @@ def _constraints(args, table_path):
     if hasattr(args, "max_window"):
         out["max_window"] = args.max_window
     if args.skip_pauses is not None:
-        out["skip_pauses"] = args.skip_pauses == "yes"
+        out["skip_pauses"] = bool(args.skip_pauses)
     return out, source

@@ -34,7 +34,7 @@ def run(args):
 
     out = Path(args.out)
     key = read_key(args.pseudonymize) if args.pseudonymize else None
-    max_bytes = _options.check_max_bytes(args.max_bytes)
+    max_bytes = args.max_bytes
     with writing_folder(out, "--out", inputs=[args.events, args.outcomes, args.mapping,
                                               args.pseudonymize],
                         owned=recorded_names(out)) as st, \

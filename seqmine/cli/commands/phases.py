@@ -6,7 +6,10 @@ import sys
 from pathlib import Path
 
 from ..._util.progress import is_quiet
+from ...config import DEFAULT_CONFIG
 from ...errors import ParameterError
+from . import _options
+from ._options import add_option
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -21,25 +24,24 @@ DESCRIPTION = (
 
 
 def add_arguments(parser):
-    """Options of ``seqmine phases``."""
-    parser.add_argument("seqdb", metavar="SEQDB_DIR",
-                        help="sequence database folder written by 'seqmine encode'")
+    """Options of ``seqmine phases`` (defaults: the ``[phases]`` configuration section)."""
+    _options.add_sequences_option(parser)
     parser.add_argument("--out", default=None, metavar="DIR",
                         help="output folder; results go to DIR/phases/ (default with an "
-                             "output folder as SEQDB_DIR: that folder)")
-    parser.add_argument("--states", default="2-6", metavar="RANGE",
-                        help="state counts to try: '3', '2-6' or '2,3,5' (default 2-6)")
-    parser.add_argument("--restarts", type=int, default=5, metavar="N",
-                        help="Baum-Welch restarts per fit (default 5)")
-    parser.add_argument("--seed", type=int, default=0, metavar="S", help="random seed (default 0)")
-    parser.add_argument("--jobs", type=int, default=1, metavar="N",
-                        help="parallel workers; results equal the serial run (default 1)")
-    parser.add_argument("--criterion", choices=("bic", "heldout"), default="bic",
-                        help="how the state count is chosen (default bic)")
-    parser.add_argument("--folds", type=int, default=3, metavar="K",
-                        help="learner folds for the held-out log-likelihood; 0 = off (default 3)")
-    parser.add_argument("--permutations", type=int, default=19, metavar="N",
-                        help="label permutations for the model-distance reference (default 19)")
+                             "output folder as SEQUENCES_DIR: that folder)")
+    ph = DEFAULT_CONFIG["phases"]
+    parser.add_argument("--states", default=f"{ph['min_states']}-{ph['max_states']}",
+                        metavar="RANGE",
+                        help="state counts to try: '3', '2-6' or '2,3,5' (default: %(default)s)")
+    add_option(parser, "phases", "n_restarts", type=int, metavar="N",
+               help="Baum-Welch restarts per fit (default: {default})")
+    _options.add_execution_options(parser, scheduler=False)
+    add_option(parser, "phases", "criterion", choices=("bic", "heldout"),
+               help="how the state count is chosen (default: {default})")
+    add_option(parser, "phases", "n_splits", type=int, metavar="K",
+               help="learner folds for the held-out log-likelihood; 0 = off (default: {default})")
+    add_option(parser, "phases", "n_permutations", type=int, metavar="N",
+               help="label permutations for the model-distance reference (default: {default})")
 
 
 def run(args):
@@ -50,7 +52,7 @@ def run(args):
     from ...pipeline import run_folder_of
 
     jobs = effective_jobs(args.jobs, notify=True)
-    given = Path(args.seqdb)
+    given = Path(args.sequences)
     folder = (given.absolute() if (given / "summary.json").is_file()
               and run_folder_of(given) == given.absolute() else None)
     if folder is None and args.out is not None and run_folder_of(args.out) == \
@@ -61,9 +63,9 @@ def run(args):
     if args.out is None:
         raise ParameterError("--out DIR is needed unless SEQDB_DIR is an output folder of "
                              "'seqmine encode' or 'seqmine analyze'.")
-    db = SequenceDB.load(args.seqdb)
+    db = SequenceDB.load(args.sequences)
     result = _fit(db, args, jobs)
-    with writing_folder(Path(args.out) / "phases", "--out", inputs=[args.seqdb]) as st:
+    with writing_folder(Path(args.out) / "phases", "--out", inputs=[args.sequences]) as st:
         result.save(st.path)
     _say(result, Path(args.out) / "phases")
     return 0
@@ -71,9 +73,9 @@ def run(args):
 
 def _fit(db, args, jobs):
     from ...phases import fit_phases
-    return fit_phases(db, n_states=args.states, n_restarts=args.restarts, seed=args.seed,
-                      n_jobs=jobs, criterion=args.criterion, n_folds=args.folds,
-                      n_permutations=args.permutations)
+    return fit_phases(db, n_states=args.states, n_restarts=args.restarts,
+                      random_state=args.seed, n_jobs=jobs, criterion=args.criterion,
+                      n_splits=args.splits, n_permutations=args.permutations)
 
 
 def _say(result, folder):
@@ -93,10 +95,10 @@ def _run_in_folder(args, folder, jobs):
     """Re-run the phases stage of an output folder."""
     from ...encoding.sequences import SequenceDB
     from ...pipeline import own_stage_folder, phases_summary, rerun_stage
-    db_dir = own_stage_folder(folder, "encode", args.seqdb)
-    settings = {"states": args.states, "restarts": args.restarts, "seed": args.seed,
-                "criterion": args.criterion, "heldout_folds": args.folds,
-                "permutations": args.permutations}
+    db_dir = own_stage_folder(folder, "encode", args.sequences)
+    settings = {"states": args.states, "n_restarts": args.restarts, "seed": args.seed,
+                "criterion": args.criterion, "n_splits": args.splits,
+                "n_permutations": args.permutations}
     counts = [int(x) for x in str(args.states).replace("-", ",").split(",") if x.strip().isdigit()]
     if counts:
         settings.update(min_states=min(counts), max_states=max(counts))

@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+import argparse
 from pathlib import Path
 
 from ...errors import ParameterError
+from ._options import add_option
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -21,10 +23,10 @@ DESCRIPTION = (
 def add_arguments(parser):
     """Options of ``seqmine report``."""
     parser.add_argument("out_dir", metavar="OUT_DIR", help="output folder of 'seqmine analyze'")
-    parser.add_argument("--no-examples", dest="examples", action="store_false",
-                        help="leave example excerpts from the log out of the report")
-    parser.add_argument("--max-patterns", type=int, default=12, metavar="N",
-                        help="differential patterns shown in detail (default: 12)")
+    add_option(parser, "report", "examples", action=argparse.BooleanOptionalAction,
+               help="example excerpts from the log in the report (default: {default})")
+    add_option(parser, "report", "max_patterns", type=int, metavar="N",
+               help="differential patterns shown in detail (default: {default})")
 
 
 def run(args):
@@ -48,8 +50,8 @@ def run(args):
             return {}, page.name
 
         name, target, _ = rerun_stage(folder, "report", NAME, work,
-                                   settings={"examples": args.examples,
-                                             "max_patterns": args.max_patterns})
+                                      settings={"examples": args.examples,
+                                                "max_patterns": args.max_patterns})
         path = target / name
     if not args.quiet:
         print(f"Report written to {path}")

@@ -10,6 +10,7 @@ from pathlib import Path
 from ..._util.text import terminal_safe, terminal_safe_json
 from ...errors import DataFileError, ParameterError
 from ...inputs.sources import STDIN, is_stream
+from . import _options
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -50,8 +51,7 @@ def add_arguments(parser):
                         help="print only firings whose hint is delivered (not suppressed)")
     parser.add_argument("--encourage-hints", action="store_true",
                         help="deliver completed encourage patterns as hints too (e.g. praise)")
-    parser.add_argument("--keep-duplicates", action="store_true",
-                        help="process exact duplicate events instead of rejecting them")
+    _options.add_duplicates_option(parser, what="exact duplicate events")
     parser.add_argument("--times", choices=("auto", "seconds", "iso"), default="auto",
                         help="time format of the output (default: as the input)")
     parser.add_argument("--pseudonymize", metavar="KEY_FILE", default=None,
@@ -70,7 +70,7 @@ def run(args):
     watcher = Watcher(args.detectors, cooldown_seconds=args.cooldown, idle_timeout=idle,
                       out_of_order_tolerance=args.tolerance,
                       hint_on_encourage=args.encourage_hints,
-                      reject_duplicates=not args.keep_duplicates)
+                      reject_duplicates=args.duplicates == "reject")
     err = sys.stderr
     out = sys.stdout
     for note in watcher.notes:
@@ -110,8 +110,8 @@ def run(args):
 
 
 def _loop(stream, name, interactive, watcher, out, err, args, hints_only, pseudo):
-    from ...detection.watcher import EventError
     """Read, process and write every line; bad events get one line on ``err``."""
+    from ...detection.watcher import EventError
     for lineno, line in enumerate(stream, 1):
         if not line.strip():
             continue
