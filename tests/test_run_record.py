@@ -175,3 +175,19 @@ def test_a_pseudonymized_rerun_leaves_no_raw_identifier(run, tmp_path):
         text = (out / rel).read_bytes().decode("utf-8", errors="replace")
         assert not pattern.search(text), rel
     assert _summary(out)["pseudonymized"] is True
+
+
+def test_a_rerun_keeps_the_recorded_options_it_is_not_given(run, tmp_path):
+    _, _, base = run
+    out = tmp_path / "run"
+    shutil.copytree(base, out)
+    assert main(["contrast", str(out), "--correction", "holm", "--alpha", "0.1", "-q"]) == 0
+    assert main(["contrast", str(out), "--redundancy", "none", "-q"]) == 0
+    settings = _summary(out)["stages"]["contrast"]["settings"]
+    assert (settings["correction"], settings["alpha"], settings["redundancy"]) == (
+        "holm", 0.1, None)
+    # a flag given with the default value still counts as given
+    assert main(["contrast", str(out), "--correction", "bh", "-q"]) == 0
+    s = _summary(out)
+    assert s["stages"]["contrast"]["settings"]["correction"] == "bh"
+    assert s["method"]["correction"] == "bh" and s["method"]["alpha"] == 0.1

@@ -117,37 +117,43 @@ def restore_frame(frame):
     return frame
 
 
-def _holds_carriage_return(frame):
+def _text_columns(frame):
+    """(position, column) of the columns that can hold text."""
     import pandas as pd
-    if any(isinstance(c, str) and "\r" in c for c in frame.columns):
-        return True
     for k in range(frame.shape[1]):
         s = frame.iloc[:, k]
-        if (s.dtype == object or pd.api.types.is_string_dtype(s)) and s.map(
-                lambda v: isinstance(v, str) and "\r" in v).any():
-            return True
-    return False
+        if s.dtype == object or pd.api.types.is_string_dtype(s):
+            yield k, s
+
+
+def _holds_carriage_return(frame):
+    if any(isinstance(c, str) and "\r" in c for c in frame.columns):
+        return True
+    return any(s.astype("string").str.contains("\r", regex=False).fillna(False).any()
+               for _k, s in _text_columns(frame))
 
 
 def _neutralised(frame):
     """A copy of ``frame`` whose risky text cells and column names are neutralised
     (``frame`` itself when nothing needs changing)."""
-    import pandas as pd
     out = None
     cols = [neutralise(c) if isinstance(c, str) else c for c in frame.columns]
     if cols != list(frame.columns):
         out = frame.copy()
         out.columns = cols
-    for k, col in enumerate(frame.columns):
-        s = frame.iloc[:, k]
-        if not (s.dtype == object or pd.api.types.is_string_dtype(s)):
+    for k, s in _text_columns(frame):
+        # candidates by their first character (vectorised), then the exact rule
+        first = s.astype("string").str[:1]
+        cand = first.isin(list("'=+-@\t\r")).fillna(False).to_numpy(bool)
+        if not cand.any():
             continue
-        risky = s.map(lambda v: isinstance(v, str) and v[:1] in "'=+-@\t\r"
-                      and neutralise(v) != v)
-        if risky.any():
-            if out is None:
-                out = frame.copy()
-            fixed = s.astype(object).copy()
-            fixed[risky.to_numpy()] = s[risky.to_numpy()].map(neutralise)
-            out.isetitem(k, fixed)
+        values = s.to_numpy(object)
+        fixed = [neutralise(v) if isinstance(v, str) else v for v in values[cand]]
+        if all(a is b for a, b in zip(fixed, values[cand])):
+            continue
+        if out is None:
+            out = frame.copy()
+        values = values.copy()
+        values[cand] = fixed
+        out.isetitem(k, values)
     return frame if out is None else out

@@ -63,13 +63,11 @@ def add_arguments(parser):
                         "(needs --sequences; default: sequence)")
     add_option(g, "transitions", "exclude_pauses", action=argparse.BooleanOptionalAction,
                help="transitions skip pause tokens (default: {default})")
-    # which options were given: re-running in an output folder keeps the record's values
-    defaults = {}
+    # remember which options were given: re-running in an output folder keeps the
+    # record's values for the others
     for action in parser._actions:
         if action.dest in _FROM_RECORD:
-            defaults[action.dest] = action.default
-            action.default = argparse.SUPPRESS
-    parser.set_defaults(_option_defaults=defaults)
+            action.__class__ = _remembered(type(action))
 
 
 def run(args):
@@ -130,17 +128,22 @@ def _contrast(ps, db, groups, opts, n_jobs=1):
                     unit=opts["unit"], n_jobs=n_jobs)
 
 
+def _remembered(cls):
+    """``cls`` (an argparse action class) that also notes in the namespace that its
+    option was given (argparse calls an action only for options on the command line)."""
+    def __call__(self, parser, namespace, values, option_string=None):
+        cls.__call__(self, parser, namespace, values, option_string)
+        given = set(getattr(namespace, "_given", ()))
+        given.add(self.dest)
+        namespace._given = given
+    return type(f"Remembered{cls.__name__}", (cls,), {"__call__": __call__})
+
+
 def _resolved(args, recorded):
     """Option values: given on the command line, else the folder's record, else default."""
-    out = {}
-    for dest, name in _FROM_RECORD.items():
-        if hasattr(args, dest):
-            out[dest] = getattr(args, dest)
-        elif name in recorded:
-            out[dest] = recorded[name]
-        else:
-            out[dest] = args._option_defaults[dest]
-    return out
+    given = getattr(args, "_given", set())
+    return {dest: getattr(args, dest) if dest in given or name not in recorded
+            else recorded[name] for dest, name in _FROM_RECORD.items()}
 
 
 def _run_folder(args, run_folder_of):
