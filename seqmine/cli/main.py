@@ -67,27 +67,42 @@ def build_parser():
 
 
 class _StopSignals:
-    """While a command runs, SIGTERM interrupts it like Ctrl-C (SIGINT) does, so the
-    clean-up code runs: temporary folders are removed, worker pools shut down, the
-    previous output stays. Outside the main thread nothing is changed."""
+    """While a command runs, SIGINT (Ctrl-C) and SIGTERM interrupt it with
+    KeyboardInterrupt, so the clean-up code runs: temporary folders are removed, worker
+    pools shut down, the previous output stays. The signal is remembered, so that an
+    interrupt a library turned into another error (pandas reports a read cut short by
+    Ctrl-C as a parser error) is still reported as the interrupt it was. Outside the
+    main thread nothing is changed."""
+
+    _SIGNALS = (signal.SIGINT, signal.SIGTERM)
 
     def __init__(self):
-        self.terminated = False
-        self._before = None
+        self.received = None
+        self._before = {}
 
     def _handler(self, signum, frame):
-        self.terminated = True
+        self.received = signum
         raise KeyboardInterrupt
 
     def __enter__(self):
         if threading.current_thread() is threading.main_thread():
-            self._before = signal.signal(signal.SIGTERM, self._handler)
+            for sig in self._SIGNALS:
+                self._before[sig] = signal.signal(sig, self._handler)
         return self
 
     def __exit__(self, *exc):
-        if self._before is not None:
-            signal.signal(signal.SIGTERM, self._before)
+        for sig, before in self._before.items():
+            signal.signal(sig, before)
         return False
+
+    def report(self):
+        """The exit status and line of an interrupted run."""
+        if self.received == signal.SIGTERM:
+            print("seqmine: terminated (SIGTERM); nothing half-written was left behind",
+                  file=sys.stderr)
+            return 128 + signal.SIGTERM
+        print("seqmine: interrupted; nothing half-written was left behind", file=sys.stderr)
+        return 128 + signal.SIGINT
 
 
 def _show_warning(message, category, filename, lineno, file=None, line=None):
@@ -118,41 +133,37 @@ def main(argv=None):
             if not debug:
                 warnings.showwarning = _show_warning
             return int(args._run(args) or 0)
-    except SeqmineInputError as exc:
-        if debug:
-            raise
-        print(f"seqmine: error: {_one_line(exc)}", file=sys.stderr)
-        return 2
+    except KeyboardInterrupt:
+        return stop.report()
     except BrokenPipeError:
         # the reader went away (e.g. 'seqmine watch ... | head'): stop quietly
         import os
         devnull = os.open(os.devnull, os.O_WRONLY)
         os.dup2(devnull, sys.stdout.fileno())
         return 0
-    except KeyboardInterrupt:
-        if stop.terminated:
-            print("seqmine: terminated (SIGTERM); nothing half-written was left behind",
-                  file=sys.stderr)
-            return 128 + signal.SIGTERM
-        print("seqmine: interrupted; nothing half-written was left behind", file=sys.stderr)
-        return 130
-    except OSError as exc:
-        if debug or not exc.filename:
+    except Exception as exc:
+        if stop.received is not None:  # an interrupt a library reported as another error
+            return stop.report()
+        if debug:
             raise
+        return _report_error(exc)
+
+
+def _report_error(exc):
+    """One line on standard error for an error that ended a command; its exit status."""
+    if isinstance(exc, SeqmineInputError):
+        print(f"seqmine: error: {_one_line(exc)}", file=sys.stderr)
+        return 2
+    if isinstance(exc, OSError) and exc.filename:
         print(f"seqmine: error: {exc.filename}: {exc.strerror or type(exc).__name__}; check "
               f"the path and its permissions.", file=sys.stderr)
         return 2
-    except SeqmineError as exc:
-        if debug:
-            raise
+    if isinstance(exc, SeqmineError):
         print(f"seqmine: error: {_one_line(exc)}", file=sys.stderr)
         return 1
-    except Exception as exc:  # internal error: say so, point to --debug
-        if debug:
-            raise
-        print(f"seqmine: internal error: {type(exc).__name__}: {_one_line(exc)} "
-              f"(re-run with --debug for the traceback and report it)", file=sys.stderr)
-        return 1
+    print(f"seqmine: internal error: {type(exc).__name__}: {_one_line(exc)} "
+          f"(re-run with --debug for the traceback and report it)", file=sys.stderr)
+    return 1
 
 
 if __name__ == "__main__":  # pragma: no cover
