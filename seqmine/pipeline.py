@@ -5,6 +5,7 @@ from __future__ import annotations
 import contextlib
 import os
 import time
+import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -15,11 +16,13 @@ from ._util.csvio import write_csv
 from ._util.jsonio import write_json
 from ._util.progress import quiet_mode, stage_line
 from ._util.warnlog import WarningLog, collect_warnings
-from .errors import DataFileError, ParameterError
-from .inputs.outcomes import Grouping, match_learners
+from .config import DEFAULT_CONFIG
+from .errors import DataFileError, ParameterError, SeqmineWarning
+from .inputs.outcomes import Grouping, match_learners, reconcile_learner_ids
 
-__all__ = ["Prepared", "prepare_sequences", "pseudonymize_inputs", "analyze", "AnalysisResult",
-           "warnings_frame", "MIN_GROUP_LEARNERS", "order_patterns", "merge_summary", "mine_summary",
+__all__ = ["Prepared", "prepare_sequences", "pseudonymize_inputs", "reconcile_inputs",
+           "analyze", "AnalysisResult", "warnings_frame", "MIN_GROUP_LEARNERS",
+           "LOPSIDED_RATIO", "contrast_unit", "order_patterns", "merge_summary", "mine_summary",
            "contrast_summary", "phases_summary", "validation_summary",
            "validation_pattern_params", "public_config", "run_folder_of", "rerun_stage",
            "recorded_names", "stage_output_folder", "own_stage_folder"]
@@ -29,6 +32,10 @@ _EXECUTION_KEYS = ("n_jobs", "scheduler")
 
 #: Fewest learners a group may have before the run stops with a message.
 MIN_GROUP_LEARNERS = 2
+
+#: A two-group numeric split whose smaller group has fewer than this share of the
+#: larger group's learners is reported (``lopsided_groups``; our rule).
+LOPSIDED_RATIO = 2 / 3
 
 
 @dataclass
@@ -87,8 +94,12 @@ def prepare_sequences(load_result, outcomes, *, encoder, grouping=None, grouping
                 f"Group {name!r} has {per.get(name, 0)} learner(s) with events (at least "
                 f"{min_group_learners} needed); check the outcomes or choose another "
                 f"--grouping rule.")
+    _warn_about_matching(load_result, outcomes, grouping, report, names)
     db = encoder.fit(load_result.events).transform(load_result.events, groups=mapping,
                                                    group_names=names)
+    if hasattr(load_result, "time_settings"):
+        # how live events must be read to match (the watcher follows it)
+        db.encoding["time"] = load_result.time_settings()
     summary = dict(load_result.summary())
     summary.update({
         "sequences": int(db.n_sequences),
@@ -108,6 +119,9 @@ def prepare_sequences(load_result, outcomes, *, encoder, grouping=None, grouping
         "learners_between_cut_points": len(report["no_group"]),
         "pause_edges_seconds": [float(e) for e in encoder.edges_],
         "pause_labels": list(encoder.labels_),
+        "encoding": dict(db.encoding),
+        "learners_with_several_sequences": int(
+            (pd.Series(db.learners).value_counts() > 1).sum()) if db.n_sequences else 0,
     })
     if "gain" in outcomes.columns:
         g = pd.Series(outcomes["gain"].to_numpy(float), index=outcomes["learner"].to_numpy())
@@ -116,6 +130,67 @@ def prepare_sequences(load_result, outcomes, *, encoder, grouping=None, grouping
     return Prepared(db=db, events=load_result.events, outcomes=outcomes, groups=groups,
                     rejects=load_result.rejects, summary=summary, encoder=encoder,
                     grouping=grouping)
+
+
+def reconcile_inputs(loaded, outcomes, *, match_ids=DEFAULT_CONFIG["outcomes"]["match_ids"],
+                     key=None):
+    """Match learner ids between the files (:func:`reconcile_learner_ids`), then replace
+    them by keyed hashes when ``key`` is given (:func:`pseudonymize_inputs`)."""
+    loaded.events, outcomes = reconcile_learner_ids(
+        loaded.events, outcomes, match_ids, events_source=str(loaded.path or "events"),
+        outcomes_source=str(outcomes.attrs.get("path") or "outcomes"))
+    if match_ids != "exact":
+        loaded.events = loaded.events.sort_values(["learner", "time"], kind="mergesort") \
+            .reset_index(drop=True)
+    if key is not None:
+        loaded, outcomes = pseudonymize_inputs(loaded, outcomes, key)
+    return loaded, outcomes
+
+
+def contrast_unit(unit, db):
+    """The contrast unit: ``"auto"`` is ``"learner"`` when some learner has several
+    sequences (sessions), so each learner counts once, else ``"sequence"``."""
+    if unit != "auto":
+        return unit
+    return "learner" if len(np.unique(db.learners)) < db.n_sequences else "sequence"
+
+
+def _warn_about_matching(load_result, outcomes, grouping, report, names):
+    """``learners_without_events``, ``learners_without_outcome`` and ``lopsided_groups``."""
+    ev_path = str(getattr(load_result, "path", "") or "the events")
+    oc_path = str(outcomes.attrs.get("path") or "the outcomes")
+    for ids, code, text in (
+            (report["outcomes_without_events"], "learners_without_events",
+             "learner(s) in {oc} have no usable events in {ev} (e.g. {ex}); they take no "
+             "part in the analysis. Check the ids and rejects.csv."),
+            (report["events_without_outcome"], "learners_without_outcome",
+             "learner(s) with events in {ev} have no row in {oc} (e.g. {ex}); their events "
+             "are encoded but belong to no group.")):
+        if ids:
+            ex = ", ".join(repr(str(x)) for x in ids[:3])
+            warnings.warn(SeqmineWarning(
+                f"{len(ids):,} " + text.format(oc=oc_path, ev=ev_path, ex=ex),
+                code=code, count=len(ids)), stacklevel=3)
+    per = report["learners_per_group"]
+    if grouping.rule in ("median", "fraction") and len(names) == 2:
+        sizes = [per.get(n, 0) for n in names]
+        if max(sizes) and min(sizes) < LOPSIDED_RATIO * max(sizes):
+            cut = getattr(grouping, "thresholds_", {})
+            value = "gain" if "gain" in outcomes.columns else "score"
+            ties = ""
+            if value in outcomes.columns and cut:
+                v = outcomes[value].to_numpy(float)
+                n_tied = int(np.sum(np.isin(v, [cut["low"], cut["high"]])))
+                if n_tied > 1:
+                    ties = (f"; {n_tied} learners share the cut point "
+                            f"{cut['low']:g}{'' if cut['low'] == cut['high'] else ' or ' + format(cut['high'], 'g')}"
+                            f" and the rule puts them all on one side")
+            warnings.warn(SeqmineWarning(
+                f"The {grouping.rule} split gives groups of unequal size ("
+                + ", ".join(f"{n} {k}" for n, k in zip(names, sizes))
+                + f" learners with events){ties}; consider --grouping thresholds with cut "
+                f"points of your own, or a finer outcome.",
+                code="lopsided_groups", count=max(sizes) - min(sizes)), stacklevel=3)
 
 
 def pseudonymize_inputs(loaded, outcomes, key):
@@ -493,7 +568,9 @@ def _preflight(cfg):
     read or written."""
     from .encoding.encoder import encoder_from_settings
     from .inputs.privacy import read_key
+    from .inputs.clock import resolve_timezone
     encoder_from_settings(cfg["encode"])._check_params()
+    resolve_timezone(cfg["events"]["timezone"])
     if cfg["privacy"]["pseudonymize_key"]:
         read_key(cfg["privacy"]["pseudonymize_key"])
     if cfg["validate"]["enabled"]:
@@ -546,12 +623,14 @@ def _analyze(ev, oc, staging, cfg, *, log):
                    ("learner", "time", "action", "session", "target", "channel")}
         loaded = load_events(ev[0], columns=columns, format=ev_cfg["format"],
                              delimiter=ev_cfg["delimiter"], encoding=ev_cfg["encoding"],
-                             duplicates=ev_cfg["duplicates"], max_bytes=ev_cfg["max_bytes"])
+                             duplicates=ev_cfg["duplicates"], max_bytes=ev_cfg["max_bytes"],
+                             time_unit=ev_cfg["time_unit"], timezone=ev_cfg["timezone"],
+                             decimal_comma=ev_cfg["decimal_comma"])
         outcomes = load_outcomes(oc[0], columns={
             k: oc_cfg[f"{k}_column"] for k in ("learner", "pre", "post", "max", "score", "label")},
-            max_score=oc_cfg["max_score"])
-        if key is not None:
-            loaded, outcomes = pseudonymize_inputs(loaded, outcomes, key)
+            max_score=oc_cfg["max_score"], decimal_comma=ev_cfg["decimal_comma"])
+        loaded, outcomes = reconcile_inputs(loaded, outcomes, match_ids=oc_cfg["match_ids"],
+                                            key=key)
         load_inputs.update(events=_input_entry(ev), outcomes=_input_entry(oc))
         write_csv(loaded.rejects, out / "rejects.csv")
         files.append(out / "rejects.csv")
@@ -586,15 +665,16 @@ def _analyze(ev, oc, staging, cfg, *, log):
         save_patternset(patternset, out / "patternset")
         owned += merge_summary(summary, mine_summary(patternset, mine_cfg))
     alpha = float(con_cfg["alpha"])
+    unit = contrast_unit(con_cfg.get("unit", "auto"), db)
     with run.stage("contrast", "scoring patterns", {**con_cfg, "seed": seed}) as owned:
         table = contrast(patternset, db, correction=con_cfg["correction"], alpha=con_cfg["alpha"],
                          n_permutations=con_cfg["n_permutations"], random_state=seed,
                          n_bootstrap=con_cfg["n_bootstrap"], redundancy=con_cfg["redundancy"],
-                         n_jobs=jobs, scheduler=scheduler)
+                         n_jobs=jobs, scheduler=scheduler, unit=unit)
         table = order_patterns(table)
         write_csv(table, out / "patterns.csv")
         files.append(out / "patterns.csv")
-        owned += merge_summary(summary, contrast_summary(table, con_cfg))
+        owned += merge_summary(summary, contrast_summary(table, con_cfg, unit))
     with run.stage("transitions", "transitions", cfg["transitions"]):
         trans = transitions(db, exclude_pauses=cfg["transitions"]["exclude_pauses"])
         write_csv(trans, out / "transitions.csv")
@@ -721,9 +801,10 @@ def mine_summary(patternset, mine_cfg):
                        "max_length": mine_cfg["max_length"], "max_gap": mine_cfg["max_gap"]}}
 
 
-def contrast_summary(table, con_cfg):
+def contrast_summary(table, con_cfg, unit="sequence"):
     """The summary keys the contrast stage owns (counts of significant patterns and the
-    statements of the method section)."""
+    statements of the method section); ``unit`` is what was compared (``sequence`` or
+    ``learner``)."""
     alpha = float(con_cfg["alpha"])
     significant = table[table["q_value"] <= alpha]
     distinct = (int((significant["redundant_of"].fillna("") == "").sum())
@@ -732,9 +813,9 @@ def contrast_summary(table, con_cfg):
         "patterns_significant": int(len(significant)),
         "patterns_significant_distinct": distinct,
         "method": {
-            "presence_test": "Fisher's exact test (two-sided) on presence per sequence",
+            "presence_test": f"Fisher's exact test (two-sided) on presence per {unit}",
             "rate_test": "Mann-Whitney U on occurrences per 100 tokens",
-            "correction": con_cfg["correction"], "alpha": alpha,
+            "correction": con_cfg["correction"], "alpha": alpha, "unit": unit,
             "n_permutations": int(con_cfg["n_permutations"]),
             "n_bootstrap": int(con_cfg["n_bootstrap"]),
         },

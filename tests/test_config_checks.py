@@ -66,6 +66,14 @@ def test_max_bytes_flag_must_be_finite(tmp_path, capsys, value, fragment):
     assert not (tmp_path / "out").exists()
 
 
+def test_the_rules_offer_the_stages_own_choices():
+    from seqmine.config import OPTION_RULES
+    from seqmine.inputs.clock import TIME_UNITS
+    from seqmine.inputs.outcomes import MATCH_ID_RULES
+    assert set(OPTION_RULES["events.time_unit"][1][0]) == set(TIME_UNITS)
+    assert set(OPTION_RULES["outcomes.match_ids"][1][0]) == set(MATCH_ID_RULES)
+
+
 def test_every_option_has_a_rule():
     from seqmine.config import DEFAULT_CONFIG, OPTION_RULES
     keys = {f"{s}.{k}" if isinstance(v, dict) else s

@@ -15,7 +15,8 @@ File layout (version 1)::
     {"format": "seqmine-detectors", "version": 1,
      "notice": "...",
      "encoding": {template, mapping, collapse_repeats, unit, session_gap,
-                  pause: {strategy, edges, labels, implicit, ...}},
+                  pause: {strategy, edges, labels, implicit, ...},
+                  time: {unit: "s"|"ms"|"us", timezone: IANA name|null}},
      "vocabulary": [action symbols seen offline],
      "matching": {"max_gap": int|null, "max_window": int|null, "skip_pauses": bool},
      "groups": {"names": [...], "strong": str, "weak": str, "sizes": {name: int}},
@@ -46,6 +47,7 @@ from .._util.checks import check_int, check_number
 from .._util.outdir import open_new
 from .._util.text import TERMINAL_UNSAFE
 from ..config import DEFAULT_CONFIG
+from ..encoding.pauses import pause_ranges
 from ..encoding.sequences import PAUSE_PREFIX
 from ..errors import ColumnError, DataFileError, ParameterError, SeqmineWarning
 from ..mining.patterns import is_subsequence, pattern_id, pattern_tokens
@@ -284,6 +286,7 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
     enc.setdefault("pause", {"strategy": "none", "edges": [], "labels": [], "implicit": []})
     pause = enc.get("pause") or {}
     known = set(vocabulary or []) | {PAUSE_PREFIX + lab for lab in pause.get("labels", [])}
+    ranges = pause_ranges(enc)
     detectors = []
     for k, row in enumerate(selected_rows.to_dict("records")):
         tokens = pattern_tokens(row, known)
@@ -305,6 +308,9 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
             "effects": {c: _finite_or_none(row.get(c)) for c in _EFFECT_COLUMNS if c in row},
             "stability": _finite_or_none(row.get("stability")),
         }
+        shown = {t: ranges[t] for t in tokens if t in ranges}
+        if shown:
+            evidence["pause_ranges"] = shown
         absence = None
         if direction == "encourage":
             absence = {"after_events": _int_or_none(absence_after_events),
@@ -316,7 +322,7 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
             "direction": direction,
             "favours": fav,
             "evidence": evidence,
-            "hint": default_hint(tokens, direction),
+            "hint": default_hint(tokens, direction, ranges),
             "priority": 1,
             "absence": absence,
             "enabled": True,
@@ -371,21 +377,26 @@ def export_detectors(contrast_table, db, constraints=None, *, max_q=_DEFAULTS["m
     rows = select_detectors(contrast_table, effect=effect, **dict(selection, lengths=lengths))
     return build_detectors(
         rows, db.encoding, constraints, group_names=db.group_names, strong=strong, weak=weak,
-        group_sizes=db.group_sizes().tolist(),
+        group_sizes=[len(set(db.learners[db.groups == g].tolist()))
+                     for g in range(len(db.group_names))],
         vocabulary=[v for v, p in zip(db.vocab, db.is_pause) if not p], effect=effect,
         absence_after_events=absence_after_events, absence_after_seconds=absence_after_seconds,
         selection=selection)
 
 
-def default_hint(tokens, direction):
+def default_hint(tokens, direction, pause_ranges=None):
     """Neutral placeholder hint text for a detector (to be rewritten by educators).
+
+    ``pause_ranges`` (token -> range text, see
+    :func:`seqmine.encoding.pauses.pause_ranges`) puts each pause's range beside it.
 
     Examples
     --------
-    >>> default_hint(["set_light", "pause:long", "reset"], "discourage")
-    "Suggest (review before use): the sequence 'set_light, long pause, reset' was more common among weak learners; consider prompting a different next step."
+    >>> default_hint(["set_light", "pause:long", "reset"], "discourage",
+    ...              {"pause:long": "17 s or more"})
+    "Suggest (review before use): the sequence 'set_light, long pause (17 s or more), reset' was more common among weak learners; consider prompting a different next step."
     """
-    words = ", ".join(_readable(t) for t in tokens)
+    words = ", ".join(_readable(t, pause_ranges) for t in tokens)
     if direction == "discourage":
         return (f"Suggest (review before use): the sequence '{words}' was more common among "
                 f"weak learners; consider prompting a different next step.")
@@ -538,6 +549,11 @@ def _validate_encoding(enc, fail):
     gap = enc.get("session_gap")
     if gap is not None and not (_is_finite_real(gap) and gap > 0):
         fail("encoding.session_gap", f"{gap!r} must be a number of seconds > 0 or null.")
+    clock = enc.get("time", {})
+    if not isinstance(clock, dict) or clock.get("unit", "s") not in ("s", "ms", "us") or not (
+            clock.get("timezone") is None or isinstance(clock.get("timezone"), str)):
+        fail("encoding.time", "must be an object with unit ('s', 'ms' or 'us') and timezone "
+                              "(an IANA name or null).")
     pause = enc.get("pause", {"strategy": "none"})
     if not isinstance(pause, dict):
         fail("encoding.pause", "must be an object with strategy, edges, labels and implicit.")
@@ -662,9 +678,11 @@ def _length_mask(lens, lengths):
     return np.isin(lens, sorted(allowed))
 
 
-def _readable(token):
+def _readable(token, ranges=None):
     if token.startswith(PAUSE_PREFIX):
-        return f"{token[len(PAUSE_PREFIX):].replace('_', ' ')} pause"
+        words = f"{token[len(PAUSE_PREFIX):].replace('_', ' ')} pause"
+        span = (ranges or {}).get(token)
+        return f"{words} ({span})" if span else words
     return token
 
 

@@ -29,6 +29,7 @@ from ..config import DEFAULT_CONFIG
 from ..errors import DataFileError
 from . import html as hx
 from . import sections as sec
+from .datachecks import DATA_CHECKS_CSS, report_pause_ranges
 from .examples import build_examples
 from .html import esc
 
@@ -503,6 +504,15 @@ def _alpha(summary):
 
 
 def _page(d, *, examples, max_patterns, max_examples):
+    token = hx.PAUSE_RANGES.set(report_pause_ranges(d))
+    try:
+        return _page_body(d, examples=examples, max_patterns=max_patterns,
+                          max_examples=max_examples)
+    finally:
+        hx.PAUSE_RANGES.reset(token)
+
+
+def _page_body(d, *, examples, max_patterns, max_examples):
     figs = hx.FigureIds()
     parts = [
         sec.section_intro(d),
@@ -527,6 +537,6 @@ def _page(d, *, examples, max_patterns, max_examples):
         "style-src 'unsafe-inline'; base-uri 'none'; form-action 'none'\">\n"
         "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n"
         "<meta name=\"referrer\" content=\"no-referrer\">\n"
-        f"<title>{hx.PAGE_TITLE}</title>\n<style>\n{hx.CSS}</style>\n</head>\n<body>\n"
+        f"<title>{hx.PAGE_TITLE}</title>\n<style>\n{hx.CSS}{DATA_CHECKS_CSS}</style>\n</head>\n<body>\n"
         f"<main>\n{body}\n</main>\n<footer>{footer}</footer>\n</body>\n</html>\n"
     )

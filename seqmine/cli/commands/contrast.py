@@ -58,9 +58,10 @@ def add_arguments(parser):
     g.add_argument("--rate-unit", choices=("tokens", "actions", "count"), default=None,
                    help="rates per 100 tokens, per 100 actions or raw counts (default: "
                         "tokens with --sequences, else count)")
-    g.add_argument("--unit", choices=("sequence", "learner"), default="sequence",
-                   help="unit of analysis; 'learner' merges each learner's sessions first "
-                        "(needs --sequences; default: sequence)")
+    add_option(g, "contrast", "unit", choices=("auto", "sequence", "learner"),
+               help="unit of analysis; 'learner' merges each learner's sessions first "
+                    "(needs --sequences); 'auto' is 'learner' when some learner has several "
+                    "sequences, so each learner counts once (default: {default})")
     add_option(g, "transitions", "exclude_pauses", action=argparse.BooleanOptionalAction,
                help="transitions skip pause tokens (default: {default})")
     # remember which options were given: re-running in an output folder keeps the
@@ -159,7 +160,13 @@ def _run_in_folder(args, folder):
     from ..._util.runrecord import read_summary
     from ...encoding.sequences import SequenceDB
     from ...mining.miner import load_patternset
-    from ...pipeline import contrast_summary, order_patterns, own_stage_folder, rerun_stage
+    from ...pipeline import (
+        contrast_summary,
+        contrast_unit,
+        order_patterns,
+        own_stage_folder,
+        rerun_stage,
+    )
     from ...scoring.contrast import pairwise_contrast
 
     ps_dir = own_stage_folder(folder, "mine", args.patterns)
@@ -189,14 +196,16 @@ def _run_in_folder(args, folder):
                 st.path / pw_name)
         return contrast_summary(table, {
             "correction": opts["correction"], "alpha": opts["alpha"],
-            "n_permutations": opts["permutations"], "n_bootstrap": opts["bootstrap"]}), table
+            "n_permutations": opts["permutations"], "n_bootstrap": opts["bootstrap"]},
+            contrast_unit(opts["unit"], db)), table
 
     examples = stages.get("examples") or {}
     table, target, removed = rerun_stage(
         folder, "contrast", NAME, work, settings=settings, config_section="contrast",
         config_values={"correction": opts["correction"], "alpha": opts["alpha"],
                        "n_permutations": opts["permutations"],
-                       "n_bootstrap": opts["bootstrap"], "redundancy": opts["redundancy"]})
+                       "n_bootstrap": opts["bootstrap"], "redundancy": opts["redundancy"],
+                       "unit": opts["unit"]})
     messages = [f"wrote {len(table)} patterns to {target / name} "
                 f"({int((table['favours'].fillna('') != '').sum())} with q <= {opts['alpha']} "
                 f"by {opts['correction']})"]

@@ -28,18 +28,18 @@ def run(args):
     from ..._util.jsonio import write_json
     from ..._util.outdir import writing_folder
     from ..._util.runrecord import RunRecord, file_input, new_files, snapshot
+    from ..._util.warnlog import collect_warnings
     from ...inputs.privacy import key_fingerprint, read_key
     from ...inputs.sources import STDIN, STDIN_NAME, regular_input
-    from ...pipeline import prepare_sequences, recorded_names
+    from ...pipeline import prepare_sequences, recorded_names, warnings_frame
 
     out = Path(args.out)
     key = read_key(args.pseudonymize) if args.pseudonymize else None
-    max_bytes = args.max_bytes
     with writing_folder(out, "--out", inputs=[args.events, args.outcomes, args.mapping,
                                               args.pseudonymize],
                         owned=recorded_names(out)) as st, \
-            regular_input(args.events, "events", max_bytes=max_bytes) as ev, \
-            regular_input(args.outcomes, "outcomes") as oc:
+            regular_input(args.events, "events", max_bytes=args.max_bytes) as ev, \
+            regular_input(args.outcomes, "outcomes") as oc, collect_warnings() as log:
         record = RunRecord(NAME)
         before = snapshot(st.path)
         loaded, outcomes = _options.pseudonymize_inputs(
@@ -61,10 +61,11 @@ def run(args):
         record.done("encode", settings=encoder.get_params() | {
             "mapping": args.mapping, "grouping": prepared.grouping.rule},
             inputs={"load": {"stage": "load"}}, outputs=new_files(st.path, before))
-        summary = dict(prepared.summary, pseudonymized=key is not None)
+        summary = dict(prepared.summary, pseudonymized=key is not None, warnings=log.as_list())
         write_json(st.path / "summary.json", record.apply(summary))
     if not args.quiet:
         s = prepared.summary
         print(f"encoded {s['sequences']} sequences ({s['tokens']} tokens) from "
               f"{s['rows_kept']} of {s['rows_in']} rows; {s['rows_rejected']} rejected -> {out}")
+    _options.print_warnings(warnings_frame(log))
     return 0
