@@ -82,7 +82,7 @@ def is_gzip(path):
 def uncompressed_size(path, size):
     """Bytes after decompression (the gzip trailer's size, or a tenfold guess when the
     trailer cannot be right); ``size`` for plain files."""
-    if not is_gzip(path):
+    if not is_gzip(path) or size < 4:  # too short for a trailer: reading it will say so
         return size
     with open(path, "rb") as fh:
         fh.seek(-4, 2)
