@@ -25,7 +25,7 @@ __all__ = ["Prepared", "prepare_sequences", "pseudonymize_inputs", "reconcile_in
            "LOPSIDED_RATIO", "contrast_unit", "order_patterns", "merge_summary", "mine_summary",
            "contrast_summary", "phases_summary", "validation_summary",
            "validation_pattern_params", "public_config", "run_folder_of", "rerun_stage",
-           "recorded_names", "stage_output_folder", "own_stage_folder"]
+           "recorded_names", "stage_output_folder", "own_stage_folder", "target_run_folder"]
 
 #: Configuration keys that only say where work runs (left out of summary.json).
 _EXECUTION_KEYS = ("n_jobs", "scheduler")
@@ -433,6 +433,23 @@ def run_folder_of(path):
         if folder.is_dir() and not folder.is_symlink() and has_record(read_summary(folder)):
             return folder
     return None
+
+
+def target_run_folder(source=None, out=None, *, out_is_folder=False):
+    """The output folder a sub-command re-runs its stage in, or None (it then writes
+    ordinary files): ``source`` (its input argument) when that is an output folder with
+    a run record, else the one ``out`` is or lies in (with ``out_is_folder``: only when
+    ``out`` is that folder itself)."""
+    if source is not None:
+        given = Path(source)
+        if given.is_dir() and run_folder_of(given) == given.absolute():
+            return given.absolute()
+    if out is None:
+        return None
+    folder = run_folder_of(out)
+    if out_is_folder and folder != Path(out).absolute():
+        return None
+    return folder
 
 
 def recorded_names(folder):

@@ -73,10 +73,10 @@ def add_arguments(parser):
 def run(args):
     """Run ``seqmine contrast`` (quiet mode is set by the command line per call)."""
     from ...encoding.sequences import SequenceDB
-    from ...pipeline import run_folder_of
+    from ...pipeline import target_run_folder
     from ...scoring.contrast import pairwise_contrast
     from ...scoring.transitions import transitions
-    folder = _run_folder(args, run_folder_of)
+    folder = target_run_folder(args.patterns, args.out)
     if folder is not None:
         return _run_in_folder(args, folder)
     if args.out is None:
@@ -144,14 +144,6 @@ def _resolved(args, recorded):
     given = getattr(args, "_given", set())
     return {dest: getattr(args, dest) if dest in given or name not in recorded
             else recorded[name] for dest, name in _FROM_RECORD.items()}
-
-
-def _run_folder(args, run_folder_of):
-    """The output folder this call re-runs the contrast of, or None (file mode)."""
-    given = Path(args.patterns)
-    if given.is_dir() and run_folder_of(given) == given.absolute():
-        return given.absolute()
-    return run_folder_of(args.out) if args.out else None
 
 
 def _run_in_folder(args, folder):

@@ -81,12 +81,8 @@ def run(args):
     """Run ``seqmine detectors``."""
     from ...detection.detectors import save_detectors
     from ...encoding.sequences import SequenceDB
-    from ...pipeline import run_folder_of
-    given = Path(args.table)
-    folder = (given.absolute() if given.is_dir() and run_folder_of(given) == given.absolute()
-              else None)
-    if folder is None and args.out is not None:
-        folder = run_folder_of(args.out)
+    from ...pipeline import target_run_folder
+    folder = target_run_folder(args.table, args.out)
     if folder is not None:
         return _run_in_folder(args, folder)
     if args.out is None or args.sequences is None:

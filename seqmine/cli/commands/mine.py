@@ -37,14 +37,10 @@ def run(args):
     """Run the command; returns the exit status."""
     from ...encoding.sequences import SequenceDB
     from ...mining.miner import mine, save_patternset
-    from ...pipeline import run_folder_of
+    from ...pipeline import target_run_folder
 
     params = _options.mining_params(args)
-    given = Path(args.sequences)
-    folder = (given.absolute() if given.is_dir() and run_folder_of(given) == given.absolute()
-              else None)
-    if folder is None and args.out is not None:
-        folder = run_folder_of(args.out)
+    folder = target_run_folder(args.sequences, args.out)
     if folder is not None:
         return _run_in_folder(args, folder, params)
     if args.out is None:

@@ -49,19 +49,14 @@ def run(args):
     from ..._util.outdir import writing_folder
     from ..._util.parallel import effective_jobs
     from ...encoding.sequences import SequenceDB
-    from ...pipeline import run_folder_of
+    from ...pipeline import target_run_folder
 
     jobs = effective_jobs(args.jobs, notify=True)
-    given = Path(args.sequences)
-    folder = (given.absolute() if (given / "summary.json").is_file()
-              and run_folder_of(given) == given.absolute() else None)
-    if folder is None and args.out is not None and run_folder_of(args.out) == \
-            Path(args.out).absolute():
-        folder = run_folder_of(args.out)
+    folder = target_run_folder(args.sequences, args.out, out_is_folder=True)
     if folder is not None:
         return _run_in_folder(args, folder, jobs)
     if args.out is None:
-        raise ParameterError("--out DIR is needed unless SEQDB_DIR is an output folder of "
+        raise ParameterError("--out DIR is needed unless SEQUENCES_DIR is an output folder of "
                              "'seqmine encode' or 'seqmine analyze'.")
     db = SequenceDB.load(args.sequences)
     result = _fit(db, args, jobs)

@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-from pathlib import Path
-
 from ...errors import ParameterError
 from ._options import OnOffAction, add_option
 
@@ -30,15 +28,13 @@ def add_arguments(parser):
 
 def run(args):
     """Render the report and print where it is."""
-    from ...pipeline import rerun_stage, run_folder_of
+    from ...pipeline import rerun_stage, target_run_folder
     from ...reporting.render import render_report
 
     if args.max_patterns < 1:
         raise ParameterError(
             f"--max-patterns must be a whole number of at least 1. Got {args.max_patterns}.")
-    given = Path(args.out_dir)
-    folder = given.absolute() if given.is_dir() and run_folder_of(given) == \
-        given.absolute() else None
+    folder = target_run_folder(args.out_dir)
     if folder is None:  # a folder without a run record: rendered from its files
         path = render_report(args.out_dir, examples=args.examples,
                              max_patterns=args.max_patterns)

@@ -63,7 +63,7 @@ def run(args):
     from ..._util.outdir import writing_folder
     from ..._util.parallel import effective_jobs
     from ...inputs.sources import regular_input
-    from ...pipeline import recorded_names, run_folder_of
+    from ...pipeline import recorded_names, target_run_folder
     from ...validation.crossval import default_featurizers, validate
 
     fractions = args.fractions
@@ -77,7 +77,7 @@ def run(args):
     jobs = effective_jobs(args.jobs, notify=True) if args.scheduler in (
         None, "local") else args.jobs
     out = Path(args.out)
-    folder = run_folder_of(out) if run_folder_of(out) == out.absolute() else None
+    folder = target_run_folder(out=out, out_is_folder=True)
     with regular_input(args.events, "events", max_bytes=args.max_bytes) as ev, \
             regular_input(args.outcomes, "outcomes") as oc:
         if folder is not None:
