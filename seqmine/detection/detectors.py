@@ -21,7 +21,7 @@ File layout (version 1)::
      "matching": {"max_gap": int|null, "max_window": int|null, "skip_pauses": bool},
      "groups": {"names": [...], "strong": str, "weak": str, "sizes": {name: int}},
      "selection": {the filters used},
-     "detectors": [{"id", "tokens", "direction", "favours", "evidence", "hint",
+     "detectors": [{"id", "pattern_id", "tokens", "direction", "favours", "evidence", "hint",
                     "priority", "absence": {"after_events", "after_seconds"} | null,
                     "enabled", "notes"}]}
 
@@ -35,6 +35,7 @@ import difflib
 import json
 import math
 import numbers
+import re
 import string
 import warnings
 from pathlib import Path
@@ -43,11 +44,13 @@ import numpy as np
 import pandas as pd
 
 from .._util.checks import check_int, check_number
+from .._util.outdir import open_new
+from .._util.text import TERMINAL_UNSAFE
 from ..config import DEFAULT_CONFIG
 from ..encoding.pauses import pause_ranges
 from ..encoding.sequences import PAUSE_PREFIX
 from ..errors import ColumnError, DataFileError, ParameterError, SeqmineWarning
-from ..mining.patterns import PATTERN_SEPARATOR, is_subsequence
+from ..mining.patterns import is_subsequence, pattern_id, pattern_tokens
 
 __all__ = [
     "DETECTORS_FORMAT",
@@ -84,9 +87,13 @@ _TEMPLATE_FIELDS = ("action", "target", "channel", "session")
 _PAUSE_STRATEGIES = ("quantile", "fixed", "learner_quantile", "none")
 _TOP_KEYS = {"format", "version", "notice", "encoding", "vocabulary", "matching", "groups",
              "selection", "detectors", "created_by"}
-_DETECTOR_KEYS = {"id", "tokens", "direction", "favours", "evidence", "hint", "priority",
-                  "absence", "enabled", "notes"}
+_DETECTOR_KEYS = {"id", "pattern_id", "tokens", "direction", "favours", "evidence", "hint",
+                  "priority", "absence", "enabled", "notes"}
 _MATCHING_KEYS = {"max_gap", "max_window", "skip_pauses"}
+#: Longest detector id accepted.
+MAX_ID_LENGTH = 100
+# nothing in an id may move a terminal's cursor or reorder text
+_UNSAFE_ID = re.compile(TERMINAL_UNSAFE)
 
 
 # ====================================================================== selection
@@ -187,7 +194,7 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
                if missing == [effect] else "")
         raise ColumnError(f"The contrast table lacks column(s) {', '.join(missing)}.{fix}")
     t = contrast_table.reset_index(drop=True)
-    pats = [_split_pattern(p) for p in t["pattern"]]
+    pats = [tuple(pattern_tokens(r)) for r in t.to_dict("records")]
     lens = np.array([len(p) for p in pats], dtype=np.int64)
     favours = t["favours"].astype(object).where(t["favours"].notna(), "").astype(str).str.strip()
     q = pd.to_numeric(t["q_value"], errors="coerce").to_numpy(float)
@@ -327,7 +334,7 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
     ranges = pause_ranges(enc)
     detectors = []
     for k, row in enumerate(selected_rows.to_dict("records")):
-        tokens = _split_pattern(row["pattern"], known)
+        tokens = pattern_tokens(row, known)
         fav = "" if _is_missing(row.get("favours")) else str(row["favours"]).strip()
         if fav == weak:
             direction = "discourage"
@@ -360,6 +367,7 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
                        "after_seconds": _finite_or_none(absence_after_seconds)}
         detectors.append({
             "id": f"D{k + 1:03d}",
+            "pattern_id": _row_id(row, tokens),
             "tokens": tokens,
             "direction": direction,
             "favours": fav,
@@ -462,7 +470,8 @@ def save_detectors(detectors, path):
     validate_detectors(detectors, source=str(path))
     text = json.dumps(_plain(detectors), indent=2, ensure_ascii=False, allow_nan=False)
     path.parent.mkdir(parents=True, exist_ok=True)
-    path.write_text(text + "\n", encoding="utf-8")
+    with open_new(path) as fh:
+        fh.write(text + "\n")
     return path
 
 
@@ -640,6 +649,13 @@ def _validate_detector(d, k, pause_ok, labels, seen, fail):
     did = d["id"]
     if not isinstance(did, str) or not did.strip():
         fail(f"{at}.id", f"{did!r} must be a non-empty string.")
+    if _UNSAFE_ID.search(did) or did != did.strip() or len(did) > MAX_ID_LENGTH:
+        fail(f"{at}.id", f"{did!r} must be at most {MAX_ID_LENGTH} printable characters "
+                         f"without control characters or surrounding spaces (it is printed "
+                         f"on terminals), e.g. 'D001' or 'too-many-resets'.")
+    pid = d.get("pattern_id")
+    if pid is not None and (not isinstance(pid, str) or _UNSAFE_ID.search(pid)):
+        fail(f"{at}.pattern_id", f"{pid!r} must be a pattern id from patterns.csv or null.")
     if did in seen:
         fail(f"{at}.id", f"{did!r} is also the id of detectors[{seen[did]}]; ids must be unique.")
     seen[did] = k
@@ -692,39 +708,12 @@ def _unknown_keys(obj, allowed, at, fail):
             fail(f"{at}.{key}" if at else str(key), f"unknown field; {hint}")
 
 
-def _split_pattern(text, known=None):
-    """Tokens of a pattern written as ``"a > b"``.
-
-    Token names may themselves contain ``>`` (e.g. ``menu>open``); the separator is
-    ``" > "`` with its spaces. When ``known`` token names are given, a name that
-    contains the separator itself is recognised too.
-    """
-    if isinstance(text, (list, tuple)):
-        return [str(t) for t in text]
-    pieces = str(text).split(PATTERN_SEPARATOR)
-    if known:
-        seg = _segment(pieces, known)
-        if seg is not None:
-            return seg
-    parts = [p.strip() for p in pieces]
-    if not parts or any(p == "" for p in parts):
-        raise ParameterError(f"Pattern {text!r} has an empty token; patterns are token names "
-                             f"joined by {PATTERN_SEPARATOR!r}.")
-    return parts
-
-
-def _segment(pieces, known):
-    """Split ``pieces`` (the text cut at every separator) into known tokens, or None."""
-    n = len(pieces)
-    best = [None] * (n + 1)  # best[i]: a segmentation of pieces[i:]
-    best[n] = []
-    for i in range(n - 1, -1, -1):
-        for j in range(i + 1, n + 1):
-            tok = PATTERN_SEPARATOR.join(pieces[i:j])
-            if tok in known and best[j] is not None:
-                best[i] = [tok] + best[j]
-                break
-    return best[0]
+def _row_id(row, tokens):
+    """The row's ``pattern_id`` (tables before pattern ids: computed from the tokens)."""
+    pid = row.get("pattern_id")
+    if isinstance(pid, str) and pid.strip():
+        return pid.strip()
+    return pattern_id(tokens)
 
 
 def _length_mask(lens, lengths):

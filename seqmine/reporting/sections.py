@@ -31,18 +31,18 @@ from .html import (
     _metric_head,
     _missing,
     _ordered,
-    _pattern_label,
     _pct,
     _plural,
     _section,
     _significant,
-    _split,
     _str_list,
     _table,
     _true,
     config_of,
     counts_of,
     esc,
+    row_excerpts,
+    row_tokens,
     lookup,
     top_patterns,
 )
@@ -149,7 +149,7 @@ def _strongest(sig, groups):
         sup = [f"{esc(h)} {_pct(r[f'support_{h}'])}" for h in groups
                if f"support_{h}" in r.index]
         items.append(f"Most reliable pattern more common among {_group_label(g, groups)}: "
-                     f"{_chips(_split(r['pattern']))}"
+                     f"{_chips(row_tokens(r))}"
                      + (f" (in {', '.join(sup)} of sequences)" if sup else "") + ".")
     return items
 
@@ -283,18 +283,18 @@ def _cards(rows, sup_cols, groups, d, figs, ex_map, examples, max_examples):
     out = []
     if sup_cols and len(rows):
         out.append(_plots.svg_support_bars(
-            [_pattern_label(p) for p in rows["pattern"]],
+            [" → ".join(row_tokens(r)) for _, r in rows.iterrows()],
             {g: rows[c].to_numpy(float) for g, c in sup_cols}, fig_id=figs()))
     for rank, (_, row) in enumerate(rows.iterrows(), start=1):
         out.append(_pattern_card(rank, row, sup_cols, groups, d["alpha"],
-                                 ex_map.get(str(row["pattern"])), examples, max_examples))
+                                 row_excerpts(ex_map, row), examples, max_examples))
     return out
 
 
 def _volume_only_table(rows, groups, total):
     heads = ["pattern"] + [f"share {g}" for g in groups] + ["q (before)", "q (at equal "
                                                             "activity)", "more in"]
-    body = [[_chips(_split(r["pattern"]))] + [_pct(r.get(f"support_{g}")) for g in groups]
+    body = [[_chips(row_tokens(r))] + [_pct(r.get(f"support_{g}")) for g in groups]
             + [_fmt_p(r.get("q_value")), _fmt_p(r.get("q_volume")),
                _group_label(r["favours"], groups) if str(r.get("favours") or "") else ""]
             for _, r in rows.iterrows()]
@@ -618,8 +618,13 @@ def section_method(d):
     out = [_h2("method")]
     items = []
 
+    recorded = isinstance(summary.get("stages"), dict)
+
     def add(label, key, fmt=esc):
-        v = lookup(summary, key)
+        # with a run record, only the statements of stages that ran (kept in method and
+        # at the top level by the record), never a configured value of a stage that did not
+        v = ((summary.get("method") or {}).get(key, summary.get(key)) if recorded
+             else lookup(summary, key))
         if v is not None and v != "":
             items.append(f"<li><b>{label}:</b> {fmt(v)}</li>")
 

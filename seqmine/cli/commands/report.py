@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-
 from ...errors import ParameterError
 from ._options import OnOffAction, add_option
 
@@ -29,11 +28,26 @@ def add_arguments(parser):
 
 def run(args):
     """Render the report and print where it is."""
+    from ...pipeline import rerun_stage, target_run_folder
     from ...reporting.render import render_report
+
     if args.max_patterns < 1:
         raise ParameterError(
             f"--max-patterns must be a whole number of at least 1. Got {args.max_patterns}.")
-    path = render_report(args.out_dir, examples=args.examples, max_patterns=args.max_patterns)
+    folder = target_run_folder(args.out_dir)
+    if folder is None:  # a folder without a run record: rendered from its files
+        path = render_report(args.out_dir, examples=args.examples,
+                             max_patterns=args.max_patterns)
+    else:
+        def work(st):
+            page = render_report(st.path, examples=args.examples,
+                                 max_patterns=args.max_patterns)
+            return {}, page.name
+
+        name, target, _ = rerun_stage(folder, "report", NAME, work,
+                                      settings={"examples": args.examples,
+                                                "max_patterns": args.max_patterns})
+        path = target / name
     if not args.quiet:
         print(f"Report written to {path}")
     return 0
