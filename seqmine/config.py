@@ -56,10 +56,11 @@ DEFAULT_CONFIG = {
     "phases": {"enabled": True, "min_states": 2, "max_states": 5, "restarts": 3,
                "max_iter": 100, "criterion": "bic", "heldout_folds": 3,
                "permutations": 19, "max_sequences": None},
-    "validate": {"enabled": True, "folds": 5,
+    "validate": {"enabled": True, "folds": 5, "repeats": 3, "hmm_repeats": 1,
                  "fractions": [0.1, 0.25, 0.5, 0.75, 1.0], "bootstrap": 500,
                  "top_patterns": 30, "hmm": {}, "max_learners": None},
-    "detectors": {"max_q": 0.05, "min_stability": 0.5, "max_detectors": 20},
+    "detectors": {"max_q": 0.05, "min_stability": 0.5, "max_detectors": 20,
+                  "encourage_share": 0.5, "absence_quantile": 0.75, "examples": True},
     "report": {"examples": True, "top_patterns": 15},
     "privacy": {"pseudonymize_key": None},
 }

@@ -305,6 +305,7 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
             "stability_resamples": int(con_cfg["stability_resamples"]),
             "min_support": mine_cfg["min_support"], "max_length": mine_cfg["max_length"],
             "max_gap": mine_cfg["max_gap"], "folds": cfg["validate"]["folds"],
+            "repeats": cfg["validate"]["repeats"], "hmm_repeats": cfg["validate"]["hmm_repeats"],
         },
         "sequence_lengths": {name: _describe(db.lengths[db.groups == g].astype(float))
                              for g, name in enumerate(db.group_names)},
@@ -352,17 +353,26 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
                                         hmm_params=dict(va_cfg.get("hmm") or {}))
             va_events, va_outcomes = _sample_learners(prepared.events, prepared.outcomes,
                                                       va_cfg.get("max_learners"), seed)
+            # the groups are the labels being predicted: the grouping fitted once on the
+            # outcome table (prepare_sequences) is used unchanged in every fold
             validation = validate(
                 va_events, va_outcomes, folds=int(va_cfg["folds"]),
-                fractions=va_cfg["fractions"], grouping=clone(grouping),
+                n_repeats=int(va_cfg["repeats"]), n_repeats_hmm=int(va_cfg["hmm_repeats"]),
+                fractions=va_cfg["fractions"], grouping=prepared.grouping,
                 encoder=clone(encoder), featurizers=feats, n_bootstrap=int(va_cfg["bootstrap"]),
                 alpha=alpha, seed=seed, n_jobs=jobs, scheduler=scheduler)
             write_csv(validation.metrics, out / "early_prediction.csv")
             files.append(out / "early_prediction.csv")
             digest = validation.summary()
             summary["early_prediction"] = {k: digest[k] for k in (
-                "earliest_fraction", "earliest_fraction_sustained") if k in digest}
-            summary["early_prediction"]["learners_sampled"] = int(va_events["learner"].nunique())
+                "earliest_fraction", "earliest_fraction_sustained", "beats_baseline")
+                if k in digest}
+            summary["early_prediction"].update(
+                learners_sampled=int(va_events["learner"].nunique()),
+                learners_scored=int(validation.settings["n_learners"]),
+                folds=int(va_cfg["folds"]), repeats=int(validation.settings["repeats"]),
+                repeats_hmm=int(validation.settings["repeats_hmm"]),
+                groups_fixed_once=True)
 
     # 6. detectors
     de_cfg = cfg["detectors"]
@@ -370,10 +380,18 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
         from .detection.detectors import export_detectors, save_detectors
         doc = export_detectors(table, db, patternset.constraints, max_q=float(de_cfg["max_q"]),
                                min_stability=float(de_cfg["min_stability"]),
-                               max_detectors=int(de_cfg["max_detectors"]))
+                               max_detectors=int(de_cfg["max_detectors"]),
+                               encourage_share=de_cfg["encourage_share"],
+                               absence_quantile=float(de_cfg["absence_quantile"]),
+                               absence_after_events="auto" if de_cfg["absence_quantile"]
+                               else None,
+                               examples=bool(de_cfg["examples"]), seed=seed)
         save_detectors(doc, out / "detectors.json")
         files.append(out / "detectors.json")
         summary["detectors"] = len(doc.get("detectors", []))
+        summary["detectors_by_direction"] = {
+            d: sum(x["direction"] == d for x in doc.get("detectors", []))
+            for d in ("encourage", "discourage")}
 
     # 7. examples and report
     if cfg["report"]["examples"]:

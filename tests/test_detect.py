@@ -201,7 +201,7 @@ INVALID = [
     (_set(["format"], "other"), r"format: is 'other', expected 'seqmine-detectors'"),
     (_set(["version"], "1"), r"version: '1' is not a detectors file version"),
     (_set(["version"], 0), r"version: 0 is not a detectors file version"),
-    (_set(["version"], 2), r"version 2 is newer than this seqmine reads \(version 1\); upgrade"),
+    (_set(["version"], 3), r"version 3 is newer than this seqmine reads \(version 2\); upgrade"),
     (_set(["detectrs"], []), r"detectrs: unknown field; did you mean 'detectors'\?"),
     (_set(["zzz"], 1), r"zzz: unknown field; allowed: created_by, detectors, encoding"),
     (_del(["matching"]), r"matching: is missing; export the detectors again"),

@@ -95,7 +95,18 @@ def test_detectors_command_without_sequence_db(run_dir, capsys):
 
 def test_export_detectors_matches_the_two_steps(run_dir):
     db = SequenceDB.load(run_dir / "sequences")
-    doc = export_detectors(_table(), db, {"max_gap": 1}, absence_after_seconds=600)
+    doc = export_detectors(_table(), db, {"max_gap": 1}, absence_after_seconds=600,
+                           absence_after_events=None)
     assert [d["id"] for d in doc["detectors"]] == ["D001", "D002"]
     assert doc["detectors"][1]["absence"] == {"after_events": None, "after_seconds": 600.0}
+    # by default the absence rule comes from the data: the one strong sequence completes
+    # 'set_light > advance_week > measure_height > pause:long' at its 3rd action event
+    # (counted by hand; the pause token is not an event)
+    doc = export_detectors(_table(), db, {"max_gap": 1})
+    assert doc["detectors"][1]["absence"] == {"after_events": 3, "after_seconds": None}
+    ex = doc["detectors"][1]["example"]
+    assert ex["group"] == "strong" and [e["token"] for e in ex["events"] if e["matched"]] == [
+        "set_light", "advance_week", "measure_height", "pause:long"]
+    assert doc["detectors"][1]["pause_seconds"] == {"pause:long": [30.0, None]}
+    assert "long pause (30 s or more)" in doc["detectors"][1]["hint"]
     assert doc["selection"]["max_q"] == 0.05 and doc["selection"]["effect"] == "cohens_h"

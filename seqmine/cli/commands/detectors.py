@@ -63,6 +63,12 @@ def add_arguments(parser):
                    help="name of the strong group (default: 'strong' or the first group)")
     g.add_argument("--weak-group", default=None, metavar="NAME",
                    help="name of the weak group (default: 'weak' or the second group)")
+    g.add_argument("--encourage-share", type=_share, default=0.5, metavar="S",
+                   help="share of the detectors that encourage (patterns of the strong "
+                        "group), 0-1; slots one direction cannot fill go to the other; "
+                        "'none' = no balance (default 0.5)")
+    g.add_argument("--no-examples", dest="examples", action="store_false",
+                   help="leave out the short example excerpt of each detector")
     g = parser.add_argument_group("matching and absence rules")
     g.add_argument("--max-gap", type=_opt_int, default=argparse.SUPPRESS, metavar="N",
                    help="override the pattern set's max gap ('none' = unlimited)")
@@ -70,9 +76,11 @@ def add_arguments(parser):
                    help="override the pattern set's max window ('none' = unlimited)")
     g.add_argument("--skip-pauses", choices=("yes", "no"), default=None,
                    help="override whether pauses count toward gaps and windows")
-    g.add_argument("--absence-events", type=int, default=None, metavar="N",
-                   help="encourage detectors also fire when the pattern has not been shown "
-                        "after N events of a sequence (default: off)")
+    g.add_argument("--absence-events", type=_absence, default="auto", metavar="N",
+                   help="encourage detectors hint when the pattern has not been shown after "
+                        "N events of a sequence; 'auto' (default) takes, per detector, the "
+                        "point by which 3 in 4 learners of the strong group who showed it "
+                        "had shown it; 'off' switches it off")
     g.add_argument("--absence-seconds", type=float, default=None, metavar="S",
                    help="... or after S seconds of a sequence (default: off)")
 
@@ -99,6 +107,7 @@ def run(args):
         effect=args.effect, min_stability=args.min_stability, lengths=lengths, groups=groups,
         max_detectors=args.max_detectors, drop_redundant=not args.keep_redundant,
         strong=args.strong_group, weak=args.weak_group,
+        encourage_share=args.encourage_share, examples=args.examples,
         absence_after_events=args.absence_events, absence_after_seconds=args.absence_seconds)
     doc["selection"].update(source=str(table_path), constraints_from=source)
     out = save_detectors(doc, args.out)
@@ -108,6 +117,36 @@ def run(args):
               f"{len(doc['detectors']) - n_dis} encourage) from {len(table)} patterns to {out}; "
               f"review every hint text before use")
     return 0
+
+
+def _share(text):
+    t = str(text).strip().lower()
+    if t in ("none", "off"):
+        return None
+    try:
+        v = float(t)
+    except ValueError:
+        v = float("nan")
+    if not 0 <= v <= 1:
+        raise ParameterError(f"--encourage-share must be a number from 0 to 1 or 'none'. "
+                             f"Got {text!r} instead.")
+    return v
+
+
+def _absence(text):
+    t = str(text).strip().lower()
+    if t == "auto":
+        return "auto"
+    if t in ("none", "off"):
+        return None
+    try:
+        v = int(t)
+    except ValueError:
+        v = 0
+    if v < 1:
+        raise ParameterError(f"--absence-events must be a whole number >= 1, 'auto' or "
+                             f"'off'. Got {text!r} instead.")
+    return v
 
 
 def _opt_int(text):

@@ -21,8 +21,11 @@ DESCRIPTION = (
     "detector firing to standard output: type, learner, detector, kind (occurrence or "
     "absence), direction, time, event_times, sequence, occurrence, priority, suppressed, "
     "reason and hint. Occurrence firings count exactly like the offline instance counts; "
-    "'suppressed' marks hints held back by the cool-down or outranked by another firing "
-    "of the same event. A bad event (malformed JSON, missing field, bad time, out of "
+    "'suppressed' marks hints held back by the cool-down, outranked by another firing "
+    "of the same event, over the per-sequence limit of absence hints, or completed "
+    "encourage patterns (not hinted unless --encourage-hints). Default delivery: "
+    "discourage detectors hint when their pattern occurs, encourage detectors when their "
+    "pattern is missing at its absence point. A bad event (malformed JSON, missing field, bad time, out of "
     "order beyond the tolerance, duplicate) gets one error line on standard error and "
     "is skipped; processing continues. Exit status 2 only for an unusable detectors file, a missing events file "
     "or a bad option."
@@ -48,6 +51,9 @@ def add_arguments(parser):
                         help="print only firings whose hint is delivered (not suppressed)")
     parser.add_argument("--encourage-hints", action="store_true",
                         help="deliver completed encourage patterns as hints too (e.g. praise)")
+    parser.add_argument("--max-absence-hints", type=_opt_count, default=2, metavar="N",
+                        help="most hints per sequence from encourage detectors whose pattern "
+                             "is missing (absence rules); 'none' = no limit (default 2)")
     parser.add_argument("--keep-duplicates", action="store_true",
                         help="process exact duplicate events instead of rejecting them")
     parser.add_argument("--times", choices=("auto", "seconds", "iso"), default="auto",
@@ -66,6 +72,7 @@ def run(args):
     watcher = Watcher(args.detectors, cooldown_seconds=args.cooldown, idle_timeout=idle,
                       out_of_order_tolerance=args.tolerance,
                       hint_on_encourage=args.encourage_hints,
+                      max_absence_hints=args.max_absence_hints,
                       reject_duplicates=not args.keep_duplicates)
     pseudo = _pseudonymizer(args.pseudonymize) if args.pseudonymize else None
     err = sys.stderr
@@ -176,4 +183,18 @@ def _idle(text):
         raise ParameterError(f"--idle-timeout takes seconds or 'none'. Got {text!r} instead.") from None
     if not v > 0:
         raise ParameterError(f"--idle-timeout must be > 0 seconds or 'none'. Got {text!r} instead.")
+    return v
+
+
+def _opt_count(text):
+    t = str(text).strip().lower()
+    if t in ("none", "off"):
+        return None
+    try:
+        v = int(t)
+    except ValueError:
+        v = -1
+    if v < 0:
+        raise ParameterError(f"--max-absence-hints must be a whole number >= 0 or 'none'. "
+                             f"Got {text!r} instead.")
     return v
