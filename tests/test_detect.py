@@ -84,6 +84,36 @@ def test_select_options():
     assert "set_light > set_water > advance_week" not in select_detectors(t)["pattern"].tolist()
 
 
+def test_select_ranks_by_the_volume_adjusted_evidence_when_present():
+    t = _table()
+    base = select_detectors(t, min_stability=0, drop_redundant=False)["pattern"].tolist()
+    assert base[0] == "set_light > set_water > advance_week"  # largest |h| first
+    # with q_volume the ranking follows it (smallest first), effect size breaking ties
+    t["q_volume"] = [0.04, 0.001, 0.001, 0.01, 0.5, 0.002, 0.9]
+    got = select_detectors(t, min_stability=0, drop_redundant=False)["pattern"].tolist()
+    assert got == ["set_light > advance_week > measure_height > pause:long",
+                   "set_light > set_water", "measure_height > pause:long", "paint_pot",
+                   "set_light > set_water > advance_week"]
+
+
+def test_group_shares_split_the_slots_and_hand_unfilled_ones_on():
+    t = pd.DataFrame({"pattern": [f"w{i}" for i in range(6)] + ["s0", "s1"],
+                      "q_value": 0.01, "cohens_h": [0.9, 0.8, 0.7, 0.6, 0.5, 0.4, 0.3, 0.2],
+                      "favours": ["weak"] * 6 + ["strong"] * 2})
+    pick = lambda n, shares: select_detectors(  # noqa: E731
+        t, min_stability=0, max_detectors=n, group_shares=shares)["pattern"].tolist()
+    assert pick(4, None) == ["w0", "w1", "w2", "w3"]
+    assert pick(4, {"strong": 0.5, "weak": 0.5}) == ["w0", "w1", "s0", "s1"]
+    # 5 slots at 50/50: quotas 2.5/2.5, the remainder goes to the first group by name
+    # ('strong'), which has only 2 rows, so its third slot goes to the best weak row left
+    assert pick(5, {"strong": 1, "weak": 1}) == ["w0", "w1", "w2", "s0", "s1"]
+    assert pick(3, {"strong": 1, "weak": 0}) == ["w0", "s0", "s1"]
+    with pytest.raises(ParameterError, match="'group_shares' of select_detectors must be"):
+        pick(3, {"strong": -1, "weak": 1})
+    with pytest.raises(ParameterError, match="add up to 0"):
+        pick(3, {"strong": 0, "weak": 0})
+
+
 def test_select_messages():
     with pytest.raises(ColumnError, match=r"lacks column\(s\) stability.*min_stability=0"):
         select_detectors(_table().drop(columns="stability"))

@@ -76,6 +76,10 @@ def test_detectors_command_options_override(run_dir, capsys):
     (["patterns.csv", "--max-q", "3"], r"'max_q' parameter of select_detectors must be in"),
     (["patterns.csv", "--strong-group", "top"], "'strong' group 'top' of build_detectors"),
     (["patterns.csv", "--max-gap", "-2"], "invalid _opt_int value"),
+    (["patterns.csv", "--encourage-share", "2"],
+     "--encourage-share: must be a number from 0 to 1 or 'none'"),
+    (["patterns.csv", "--absence-events", "0"],
+     "--absence-events: must be a whole number >= 1 or 'auto'"),
 ])
 def test_detectors_command_errors_exit_2(run_dir, capsys, args, message):
     argv = ["detectors"] + [str(run_dir / a) if a.endswith((".csv", "sequences")) else a
@@ -91,6 +95,24 @@ def test_detectors_command_without_sequence_db(run_dir, capsys):
     assert main(["detectors", str(run_dir / "patterns.csv"), "--sequences", str(run_dir / "nope"),
                  "--out", str(run_dir / "x.json")]) == 2
     assert "not a sequence database folder" in capsys.readouterr().err
+
+
+def test_detectors_command_balance_and_examples_options(run_dir):
+    # one distinct candidate per direction (the others are nested or unstable)
+    out = run_dir / "d.json"
+    base = ["detectors", str(run_dir / "patterns.csv"), "--sequences", str(run_dir / "sequences"),
+            "--out", str(out), "-q"]
+    assert main(base + ["--max-detectors", "1", "--encourage-share", "0"]) == 0
+    assert [d["direction"] for d in load_detectors(out)["detectors"]] == ["discourage"]
+    assert main(base + ["--max-detectors", "1", "--encourage-share", "1"]) == 0
+    assert [d["direction"] for d in load_detectors(out)["detectors"]] == ["encourage"]
+    # a slot one direction cannot fill goes to the other
+    assert main(base + ["--max-detectors", "2", "--encourage-share", "1", "--no-examples",
+                        "--absence-events", "off"]) == 0
+    dets = load_detectors(out)["detectors"]
+    assert sorted(d["direction"] for d in dets) == ["discourage", "encourage"]
+    assert not any("example" in d for d in dets)
+    assert [d["absence"]["after_events"] for d in dets if d["direction"] == "encourage"] == [None]
 
 
 def test_export_detectors_matches_the_two_steps(run_dir):

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import argparse
 import sys
 
 from ...encoding.encoder import encoder_from_settings
@@ -12,7 +13,7 @@ from ...inputs.outcomes import Grouping, load_outcomes
 __all__ = ["add_event_options", "add_outcome_options", "add_encoding_options",
            "events_from_args", "outcomes_from_args", "grouping_from_args",
            "encoder_from_args", "parse_float_list", "add_privacy_option",
-           "pseudonymize_inputs", "print_warnings"]
+           "pseudonymize_inputs", "print_warnings", "number_or_word"]
 
 
 def parse_float_list(text, option):
@@ -23,6 +24,42 @@ def parse_float_list(text, option):
         return [float(x) for x in str(text).split(",") if x.strip()]
     except ValueError:
         raise ParameterError(f"{option} takes comma-separated numbers, e.g. 5,30; got {text!r}.") from None
+
+
+def number_or_word(option, kind=int, *, minimum=None, maximum=None, words=None):
+    """An argparse ``type``: a number of ``kind`` in [minimum, maximum], or a word.
+
+    ``words`` maps accepted words to their values (default: ``none`` and ``off`` ->
+    None). argparse prints the message after the option's name.
+
+    Examples
+    --------
+    >>> share = number_or_word("--share", float, minimum=0, maximum=1)
+    >>> share("0.25"), share("none")
+    (0.25, None)
+    """
+    words = {"none": None, "off": None} if words is None else words
+
+    def convert(text):
+        t = str(text).strip().lower()
+        if t in words:
+            return words[t]
+        try:
+            v = kind(t)
+            ok = (minimum is None or v >= minimum) and (maximum is None or v <= maximum)
+        except ValueError:
+            ok = False
+        if not ok:
+            what = "a whole number" if kind is int else "a number"
+            rng = (f" from {minimum:g} to {maximum:g}" if minimum is not None and maximum
+                   is not None else f" >= {minimum:g}" if minimum is not None else "")
+            names = " or ".join(repr(w) for w in words)
+            raise argparse.ArgumentTypeError(f"must be {what}{rng}" + (
+                f" or {names}" if names else "") + f"; got {text!r}")
+        return v
+
+    convert.__name__ = option.lstrip("-").replace("-", "_")
+    return convert
 
 
 def add_event_options(p):

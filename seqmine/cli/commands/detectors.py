@@ -12,6 +12,7 @@ from ..._util.progress import is_quiet
 from ...detection.detectors import export_detectors, save_detectors
 from ...encoding.sequences import SequenceDB
 from ...errors import DataFileError, ParameterError
+from ._options import number_or_word
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -63,7 +64,8 @@ def add_arguments(parser):
                    help="name of the strong group (default: 'strong' or the first group)")
     g.add_argument("--weak-group", default=None, metavar="NAME",
                    help="name of the weak group (default: 'weak' or the second group)")
-    g.add_argument("--encourage-share", type=_share, default=0.5, metavar="S",
+    g.add_argument("--encourage-share", default=0.5, metavar="S",
+                   type=number_or_word("--encourage-share", float, minimum=0, maximum=1),
                    help="share of the detectors that encourage (patterns of the strong "
                         "group), 0-1; slots one direction cannot fill go to the other; "
                         "'none' = no balance (default 0.5)")
@@ -76,7 +78,9 @@ def add_arguments(parser):
                    help="override the pattern set's max window ('none' = unlimited)")
     g.add_argument("--skip-pauses", choices=("yes", "no"), default=None,
                    help="override whether pauses count toward gaps and windows")
-    g.add_argument("--absence-events", type=_absence, default="auto", metavar="N",
+    g.add_argument("--absence-events", default="auto", metavar="N",
+                   type=number_or_word("--absence-events", int, minimum=1,
+                                       words={"auto": "auto", "off": None, "none": None}),
                    help="encourage detectors hint when the pattern has not been shown after "
                         "N events of a sequence; 'auto' (default) takes, per detector, the "
                         "point by which 3 in 4 learners of the strong group who showed it "
@@ -117,36 +121,6 @@ def run(args):
               f"{len(doc['detectors']) - n_dis} encourage) from {len(table)} patterns to {out}; "
               f"review every hint text before use")
     return 0
-
-
-def _share(text):
-    t = str(text).strip().lower()
-    if t in ("none", "off"):
-        return None
-    try:
-        v = float(t)
-    except ValueError:
-        v = float("nan")
-    if not 0 <= v <= 1:
-        raise ParameterError(f"--encourage-share must be a number from 0 to 1 or 'none'. "
-                             f"Got {text!r} instead.")
-    return v
-
-
-def _absence(text):
-    t = str(text).strip().lower()
-    if t == "auto":
-        return "auto"
-    if t in ("none", "off"):
-        return None
-    try:
-        v = int(t)
-    except ValueError:
-        v = 0
-    if v < 1:
-        raise ParameterError(f"--absence-events must be a whole number >= 1, 'auto' or "
-                             f"'off'. Got {text!r} instead.")
-    return v
 
 
 def _opt_int(text):

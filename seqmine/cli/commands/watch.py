@@ -9,6 +9,7 @@ from pathlib import Path
 
 from ...detection.watcher import EventError, Watcher
 from ...errors import DataFileError, ParameterError
+from ._options import number_or_word
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -51,7 +52,8 @@ def add_arguments(parser):
                         help="print only firings whose hint is delivered (not suppressed)")
     parser.add_argument("--encourage-hints", action="store_true",
                         help="deliver completed encourage patterns as hints too (e.g. praise)")
-    parser.add_argument("--max-absence-hints", type=_opt_count, default=2, metavar="N",
+    parser.add_argument("--max-absence-hints", default=2, metavar="N",
+                        type=number_or_word("--max-absence-hints", int, minimum=0),
                         help="most hints per sequence from encourage detectors whose pattern "
                              "is missing (absence rules); 'none' = no limit (default 2)")
     parser.add_argument("--keep-duplicates", action="store_true",
@@ -185,16 +187,3 @@ def _idle(text):
         raise ParameterError(f"--idle-timeout must be > 0 seconds or 'none'. Got {text!r} instead.")
     return v
 
-
-def _opt_count(text):
-    t = str(text).strip().lower()
-    if t in ("none", "off"):
-        return None
-    try:
-        v = int(t)
-    except ValueError:
-        v = -1
-    if v < 0:
-        raise ParameterError(f"--max-absence-hints must be a whole number >= 0 or 'none'. "
-                             f"Got {text!r} instead.")
-    return v
