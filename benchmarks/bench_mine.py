@@ -125,10 +125,8 @@ def _processed(stats):
 def worker_reference(spec):
     from prefixspan import PrefixSpan
 
-    from seqmine._util.progress import set_quiet
     from seqmine.mining import miner as mine_mod
 
-    set_quiet(True)
     tokens, lengths, groups = generate(spec["tokens"])
     db = make_db(tokens, lengths, groups, grouped=False)
     minsup = int(np.ceil(spec["support"] * db.n_sequences))
@@ -164,10 +162,8 @@ def worker_reference(spec):
 
 
 def worker_scaling(spec):
-    from seqmine._util.progress import set_quiet
     from seqmine.mining import miner as mine_mod
 
-    set_quiet(True)
     tokens, lengths, groups = generate(spec["tokens"])
     db = make_db(tokens, lengths, groups, grouped=True)
     del tokens
@@ -175,7 +171,7 @@ def worker_scaling(spec):
     floor_w = min(floor_w, _timed(lambda: np.bincount(db.tokens, minlength=len(db.vocab)))[1])
     kw = dict(spec["options"])
     ps, w, c = _timed(lambda: mine_mod.mine(db, max_length=4, max_patterns=10 ** 7, **kw))
-    from seqmine.mining._search import LAST_STATS as stats
+    stats = ps.search_stats
     processed = _processed(stats)
     return {
         "tokens": int(db.n_tokens), "sequences": int(db.n_sequences),

@@ -32,7 +32,7 @@ from scipy import stats
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from seqmine._util.progress import set_quiet  # noqa: E402
+from seqmine._util.progress import quiet_mode  # noqa: E402
 from seqmine.mining.patterns import PatternSet  # noqa: E402
 from seqmine.scoring.contrast import contrast  # noqa: E402
 from seqmine.scoring.permutation import westfall_young_minp, westfall_young_rates  # noqa: E402
@@ -109,6 +109,11 @@ def semi_naive_unit_cost(counts, labels, n_patterns, n_perm, seed):
 
 
 def main(argv=None):
+    with quiet_mode():
+        return _main(argv)
+
+
+def _main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="small problem (seconds)")
     parser.add_argument("--learners", type=int, default=None)
@@ -121,7 +126,6 @@ def main(argv=None):
                         help="result file (default benchmarks/results/permutation.json, "
                              "permutation_quick.json with --quick)")
     args = parser.parse_args(argv)
-    set_quiet(True)
     n = args.learners or (2_000 if args.quick else 10_000)
     m = args.patterns or (2_000 if args.quick else 10_000)
     b = args.permutations or (200 if args.quick else 1_000)

@@ -25,7 +25,7 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from seqmine._util.progress import set_quiet  # noqa: E402
+from seqmine._util.progress import quiet_mode  # noqa: E402
 from seqmine.encoding.sequences import SequenceDB  # noqa: E402
 from seqmine.phases import (  # noqa: E402
     GroupHMMClassifier,
@@ -80,11 +80,15 @@ def timed(fn):
 
 
 def main(argv=None):
+    with quiet_mode():
+        return _main(argv)
+
+
+def _main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="smaller data (smoke test)")
     ap.add_argument("--out", default=str(Path(__file__).with_name("results") / "phases.json"))
     args = ap.parse_args(argv)
-    set_quiet(True)
     results = {"python": platform.python_version(), "machine": platform.machine(),
                "cpu_count": os.cpu_count(), "quick": args.quick,
                "load_average_at_start": list(os.getloadavg()), "runs": {}}

@@ -12,6 +12,7 @@ import copy
 import difflib
 from pathlib import Path
 
+from ._util.checks import check_jobs
 from .errors import DataFileError, ParameterError
 
 try:  # Python >= 3.11
@@ -19,7 +20,30 @@ try:  # Python >= 3.11
 except ModuleNotFoundError:  # pragma: no cover - Python 3.10
     import tomli as tomllib
 
-__all__ = ["DEFAULT_CONFIG", "load_config", "merge_config", "default_config"]
+__all__ = ["DEFAULT_CONFIG", "load_config", "merge_config", "default_config", "EVENT_ROLES",
+           "CONTRAST_CORRECTIONS", "CLASSIFIERS", "DEFAULT_FRACTIONS"]
+
+# ---- option vocabularies: kept here (no heavy imports) so the command line can offer
+# them as choices without importing pandas, scipy or scikit-learn
+
+#: Event-log column roles and whether each is required.
+EVENT_ROLES = {"learner": True, "time": True, "action": True,
+               "session": False, "target": False, "channel": False}
+
+#: Multiple-comparison corrections of the contrast table.
+CONTRAST_CORRECTIONS = ("bh", "holm", "westfall-young")
+
+#: Early-prediction classifier name -> featurizers whose columns it uses (``()`` = majority).
+CLASSIFIERS = {
+    "pattern": ("pattern",),
+    "hmm": ("hmm",),
+    "frequency_pause": ("frequency_pause",),
+    "fusion": ("pattern", "hmm", "frequency_pause"),
+    "majority": (),
+}
+
+#: Observed fractions of each held-out sequence used by default in ``validate``.
+DEFAULT_FRACTIONS = (0.1, 0.2, 0.25, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0)
 
 #: Defaults of every option, by section. ``None`` means "not set / automatic".
 DEFAULT_CONFIG = {
@@ -104,9 +128,11 @@ def merge_config(base, overrides, source="configuration"):
                 out[key][sub] = _check_type(source, f"{key}.{sub}", DEFAULT_CONFIG[key].get(sub), v)
         else:
             value = _check_type(source, key, DEFAULT_CONFIG.get(key), value)
-            if key == "jobs" and not (value >= 1 or value == -1):
-                raise ParameterError(f"{source}: option 'jobs' must be a positive whole number "
-                                     f"or -1 (all cores); got {value!r}.")
+            if key == "jobs":
+                try:
+                    check_jobs(value, key)
+                except ParameterError as exc:
+                    raise ParameterError(f"{source}: {exc}") from None
             out[key] = value
     return out
 

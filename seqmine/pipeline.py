@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import contextlib
-import sys
 import time
 from dataclasses import dataclass, field
 
@@ -12,7 +11,7 @@ import pandas as pd
 
 from ._util.csvio import write_csv
 from ._util.jsonio import write_json
-from ._util.progress import is_quiet
+from ._util.progress import quiet_mode, stage_line
 from ._util.warnlog import WarningLog, collect_warnings
 from .errors import DataFileError, ParameterError
 from .inputs.outcomes import Grouping, match_learners
@@ -204,14 +203,15 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
 
     cfg = config or default_config()
     log = WarningLog()
-    with using_scheduler(cfg.get("scheduler"), int(cfg["jobs"])), collect_warnings(log):
-        return _analyze(events_path, outcomes_path, out_dir, cfg, quiet=quiet, log=log)
+    # quiet=False leaves the caller's setting (the command line's --quiet) in force
+    with (quiet_mode(True) if quiet else contextlib.nullcontext()), \
+            using_scheduler(cfg.get("scheduler"), int(cfg["jobs"])), collect_warnings(log):
+        return _analyze(events_path, outcomes_path, out_dir, cfg, log=log)
 
 
-def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, log):
+def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
     from pathlib import Path
 
-    from ._util.progress import set_quiet
     from .config import default_config
     from .encoding.encoder import encoder_from_settings
     from .inputs.load import load_events
@@ -223,8 +223,6 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
     from .scoring.contrast import contrast
     from .scoring.transitions import transitions
 
-    if quiet:
-        set_quiet(True)
     cfg = config or default_config()
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
@@ -260,7 +258,7 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False, l
     seed = int(cfg["seed"])
     jobs = int(cfg["jobs"])
     scheduler = cfg.get("scheduler") or None
-    stages = _Stages(quiet=quiet)
+    stages = _Stages()
     stages.seconds["loading and encoding"] = round(time.perf_counter() - t_load, 3)
 
     # 3. mine and score
@@ -452,14 +450,12 @@ def _order_patterns(table):
 class _Stages:
     """Times each stage and shows which one runs (to stderr, unless quiet)."""
 
-    def __init__(self, quiet=False):
-        self.quiet = quiet
+    def __init__(self):
         self.seconds = {}
 
     @contextlib.contextmanager
     def __call__(self, name):
-        if not (self.quiet or is_quiet()):
-            print(f"seqmine: {name} ...", file=sys.stderr, flush=True)
+        stage_line(f"{name} ...")
         t0 = time.perf_counter()
         yield
         self.seconds[name] = round(time.perf_counter() - t0, 3)

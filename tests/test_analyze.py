@@ -4,8 +4,8 @@ import json
 
 import pandas as pd
 import pytest
-from seqmine.cli.main import main
 
+from seqmine.cli.main import main
 from seqmine.config import load_config
 from seqmine.demo_data import planted_patterns, write_greenhouse
 from seqmine.errors import ParameterError

@@ -17,8 +17,8 @@ import time
 import numpy as np
 import pandas as pd
 import pytest
-from seqmine.cli.main import main
 
+from seqmine.cli.main import main
 from seqmine.encoding.sequences import SequenceDB
 from seqmine.inputs.load import load_events
 
@@ -421,7 +421,7 @@ CONFIG_CASES = {
     "template-unclosed": ('[encode]\ntemplate = "{action"\n', ["malformed"]),
     "bad-delimiter": ('[events]\ndelimiter = ";;"\n', ["one character"]),
     "bad-encoding": ('[events]\nencoding = "klingon"\n', ["'klingon'"]),
-    "zero-jobs": ("jobs = 0\n", ["option 'jobs'", "-1 (all cores)"]),
+    "zero-jobs": ("jobs = 0\n", ["bad.toml", "'jobs' parameter", "-1 (all cores)"]),
     "missing-key-file": ('[privacy]\npseudonymize_key = "nokey.txt"\n', ["nokey.txt", "not found"]),
 }
 
@@ -443,7 +443,7 @@ def test_jobs_flag_checked_before_any_work(tmp_path, capsys):
     oc = _write(tmp_path / "outcomes.csv", OUTCOMES)
     rc, _, err = _run(capsys, ["analyze", ev, "--outcomes", oc, "--out", tmp_path / "o", "-q",
                                "--jobs", "0"])
-    assert_one_error(rc, err, "command line", "option 'jobs'")
+    assert_one_error(rc, err, "command line", "'jobs' parameter", "-1 (all cores)")
     assert not (tmp_path / "o").exists()
 
 

@@ -3,6 +3,7 @@
 import json
 
 import pytest
+
 from seqmine.cli.main import main
 
 GOOD_EVENTS = "learner,time,action\n" + "".join(

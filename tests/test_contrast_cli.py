@@ -6,10 +6,10 @@ import numpy as np
 import pandas as pd
 import pytest
 from _contrast_helpers import PATTERNS, brute_patternset, random_db  # noqa: E402
+
+from seqmine._util.progress import is_quiet, quiet_mode
 from seqmine.cli.commands.contrast import read_patternset
 from seqmine.cli.main import main
-
-from seqmine._util.progress import is_quiet, set_quiet
 from seqmine.mining.miner import save_patternset
 from seqmine.scoring.contrast import contrast
 from seqmine.scoring.transitions import TRANSITION_COLUMNS
@@ -32,11 +32,8 @@ def workdir(tmp_path):
 def test_contrast_command_writes_tables(workdir, capsys):
     tmp, db, ps = workdir
     was_quiet = is_quiet()
-    set_quiet(False)
-    try:
+    with quiet_mode(False):
         _check_command_writes_tables(tmp, db, ps, capsys)
-    finally:
-        set_quiet(was_quiet)
     assert is_quiet() == was_quiet
 
 
@@ -115,10 +112,8 @@ def test_permutation_benchmark_runs_in_tiny_mode(tmp_path):
     spec.loader.exec_module(bench)
     out = tmp_path / "perm.json"
     was_quiet = is_quiet()
-    try:
-        assert bench.main(["--learners", "120", "--patterns", "50", "--permutations", "20",
-                           "--out", str(out)]) == 0
-    finally:
-        set_quiet(was_quiet)
+    assert bench.main(["--learners", "120", "--patterns", "50", "--permutations", "20",
+                       "--out", str(out)]) == 0
+    assert is_quiet() == was_quiet
     result = json.loads(out.read_text())
     assert result["patterns"] == 50 and result["speedup_vs_naive"] > 0

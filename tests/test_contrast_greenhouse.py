@@ -10,7 +10,11 @@ import numpy as np
 import pytest
 import scipy.sparse as sp
 
+from seqmine.encoding.encoder import Encoder
+from seqmine.inputs.load import load_events
+from seqmine.inputs.outcomes import load_outcomes
 from seqmine.mining.patterns import PatternSet
+from seqmine.pipeline import prepare_sequences
 from seqmine.scoring.contrast import contrast
 from seqmine.scoring.transitions import transitions
 
@@ -37,13 +41,9 @@ def _contiguous_counts(db, pattern_ids):
 
 @pytest.fixture(scope="module")
 def greenhouse():
-    pipeline = pytest.importorskip("seqmine.pipeline")
-    from seqmine.encoding.encoder import Encoder
-    from seqmine.inputs.load import load_events
-    from seqmine.inputs.outcomes import load_outcomes
 
     truth = json.loads((DATA / "ground_truth.json").read_text(encoding="utf-8"))
-    prepared = pipeline.prepare_sequences(load_events(DATA / "events.csv"),
+    prepared = prepare_sequences(load_events(DATA / "events.csv"),
                                           load_outcomes(DATA / "outcomes.csv"),
                                           encoder=Encoder())
     db = prepared.db

@@ -21,14 +21,16 @@ from seqmine.scoring.effects import (
 
 # ----------------------------------------------------------------- Fisher exact
 def test_fisher_tea_tasting():
-    # Fisher (1935), lady tasting tea: [[3, 1], [1, 3]] two-sided p = 17/35;
-    # [[4, 0], [0, 4]] two-sided p = 2/70 (CHECK_VALUES.md, computed).
+    # Fisher (1935), The Design of Experiments, ch. II, the lady tasting tea: of the
+    # C(8, 4) = 70 ways to pick 4 cups, 1 gets all right and 16 get three right, so
+    # [[3, 1], [1, 3]] has two-sided p = 34/70 = 17/35 and [[4, 0], [0, 4]] 2/70
+    # (computed by hand from these counts).
     assert fisher_exact_many(3, 1, 1, 3) == pytest.approx(17 / 35, rel=1e-12)
     assert fisher_exact_many(4, 0, 0, 4) == pytest.approx(2 / 70, rel=1e-12)
 
 
 def test_fisher_scipy_doc_tables():
-    # scipy.stats.fisher_exact documentation tables (from memory, recomputed).
+    # scipy.stats.fisher_exact documentation tables (from memory, recomputed with scipy).
     p = fisher_exact_many([8, 6], [2, 2], [1, 1], [5, 4])
     np.testing.assert_allclose(p, [0.034965034965, 0.102564102564], rtol=1e-9)
 
@@ -72,7 +74,7 @@ def test_fisher_empty_margin_gives_one():
 def test_odds_ratio_scipy_doc_values_and_haldane():
     # Sample odds ratios of the scipy documentation tables: 20.0 and 12.0 (from memory).
     np.testing.assert_allclose(odds_ratio_haldane([8, 6], [2, 2], [1, 1], [5, 4]), [20.0, 12.0])
-    # Tea tasting sample OR 9.0 (CHECK_VALUES.md).
+    # Tea tasting table of Fisher (1935), [[3, 1], [1, 3]]: sample OR = 3*3 / (1*1) = 9.0.
     assert odds_ratio_haldane(3, 1, 1, 3) == pytest.approx(9.0)
     # Haldane-Anscombe: a zero cell adds 0.5 to every cell of that table only.
     assert odds_ratio_haldane(5, 0, 2, 3) == pytest.approx(5.5 * 3.5 / (0.5 * 2.5))
@@ -91,8 +93,11 @@ def test_growth_rate_edge_cases():
 
 
 # ---------------------------------------------------------------- Mann-Whitney
-def test_mannwhitney_conover_example():
-    # scipy docs (Conover's data): U = 17, exact two-sided p = 0.1111111 (CHECK_VALUES.md).
+def test_mannwhitney_shier_example():
+    # Shier (2004), "Statistics: 2.3 The Mann-Whitney U Test", Mathematics Learning
+    # Support Centre, as used in the scipy.stats.mannwhitneyu documentation Examples:
+    # ages at diagnosis [19, 22, 16, 29, 24] (men) and [20, 11, 17, 12] (women) give
+    # U_M = 17 and p = 0.11; the exact two-sided p is 1/9 (scipy's value there).
     x = np.array([19, 22, 16, 29, 24, 20, 11, 17, 12], float)[:, None]
     u, p = mannwhitney_sparse(sp.csc_matrix(x), [True] * 5 + [False] * 4)
     assert u[0] == 17.0

@@ -6,21 +6,11 @@ import json
 import re
 
 import pytest
-from seqmine.cli.main import main
 from test_detect import ENCODING, _table
 
+from seqmine.cli.main import main
 from seqmine.detection.detectors import export_detectors, load_detectors
 from seqmine.encoding.sequences import SequenceDB
-
-
-@pytest.fixture(autouse=True)
-def _restore_quiet():
-    # 'seqmine ... -q' switches progress output off process-wide; undo it after each test
-    from seqmine._util.progress import is_quiet, set_quiet
-
-    before = is_quiet()
-    yield
-    set_quiet(before)
 
 
 @pytest.fixture

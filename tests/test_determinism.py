@@ -8,8 +8,8 @@ configuration shown in the report).
 """
 
 import pytest
-from seqmine.cli.main import main
 
+from seqmine.cli.main import main
 from seqmine.demo_data import write_greenhouse
 
 FAST_TOML = """
@@ -83,13 +83,11 @@ def test_quiet_is_quiet_with_worker_processes():
     # -q silences progress bars in worker processes too (they start with their own
     # switch); checked through the parallel helper the early-prediction folds use
     from seqmine._util.parallel import parallel_map
-    from seqmine._util.progress import set_quiet
-    set_quiet(True)
-    try:
+    from seqmine._util.progress import quiet_mode
+    with quiet_mode(True):
         assert parallel_map(_bar_in_worker, [1, 2], jobs=2) == [True, True]
-    finally:
-        set_quiet(False)
-    assert parallel_map(_bar_in_worker, [1, 2], jobs=2) == [False, False]
+    with quiet_mode(False):
+        assert parallel_map(_bar_in_worker, [1, 2], jobs=2) == [False, False]
 
 
 def _bar_in_worker(_):

@@ -7,10 +7,10 @@ import shlex
 from pathlib import Path
 
 import pytest
-from seqmine.cli.main import build_parser
 
 import seqmine.detection.watcher
 import seqmine.errors
+from seqmine.cli.main import build_parser
 from seqmine.config import DEFAULT_CONFIG, load_config
 
 ROOT = Path(__file__).resolve().parents[1]

@@ -11,6 +11,7 @@ from sklearn.pipeline import make_pipeline
 
 from seqmine.encoding.sequences import SequenceDB
 from seqmine.errors import NotFittedError, ParameterError
+from seqmine.phases import GroupHMMClassifier
 from seqmine.validation.features import (
     FrequencyPauseFeaturizer,
     HMMLikelihoodFeaturizer,
@@ -148,24 +149,35 @@ def test_group_codes_keep_database_order():
 
 
 # ---------------------------------------------------------------------------- HMM
+def _as_hmmlearn(model):
+    """The same categorical HMM as an hmmlearn model (reference library)."""
+    ref = CategoricalHMM(n_components=model.n_states, n_features=len(model.vocab))
+    ref.startprob_ = model.startprob
+    ref.transmat_ = model.transmat
+    ref.emissionprob_ = model.emissionprob
+    return ref
+
+
 def test_hmm_featurizer_llr_equals_hmmlearn_scores():
     db, y = _db(n=16)
-    f = HMMLikelihoodFeaturizer(n_states=2, n_restarts=1, n_iter=10, backend="hmmlearn").fit(db, y)
+    f = HMMLikelihoodFeaturizer(n_states=2, n_restarts=1, n_iter=10).fit(db, y)
     X = f.transform(db)
     assert X.shape == (db.n_sequences, 1)
+    assert isinstance(f.models_, GroupHMMClassifier)
+    # reference: hmmlearn's CategoricalHMM.score of each group's fitted parameters
+    refs = [_as_hmmlearn(m) for m in f.models_.models_]
     for i in range(db.n_sequences):
         s = db.sequence(i).reshape(-1, 1).astype(int)
-        ll = [m.score(s) for m in f.models_]
-        assert X[i, 0] == pytest.approx((ll[1] - ll[0]) / len(s))
+        ll = [ref.score(s) for ref in refs]
+        assert X[i, 0] == pytest.approx((ll[1] - ll[0]) / len(s), rel=1e-9)
     # per-token ratio separates the groups on training data
     assert X[y == "y", 0].mean() > X[y == "x", 0].mean()
-    assert isinstance(f.models_[0], CategoricalHMM)
     assert f.get_feature_names_out().tolist() == ["hmm_llr_y_vs_x"]
 
 
 def test_hmm_featurizer_unseen_tokens_and_empty_sequences():
     db, y = _db(n=12)
-    f = HMMLikelihoodFeaturizer(n_states=2, n_restarts=1, n_iter=5, backend="hmmlearn").fit(db, y)
+    f = HMMLikelihoodFeaturizer(n_states=2, n_restarts=1, n_iter=5).fit(db, y)
     other = SequenceDB.from_lists([["a", "b", "c"], ["zz", "a", "b", "c", "zz"], []],
                                   vocab=["zz", "a", "b", "c"])
     X = f.transform(other)
@@ -176,17 +188,14 @@ def test_hmm_featurizer_unseen_tokens_and_empty_sequences():
 
 def test_hmm_featurizer_is_deterministic_and_checks_params():
     db, y = _db(n=12)
-    a = HMMLikelihoodFeaturizer(n_states=2, n_iter=5, seed=3, backend="hmmlearn").fit(db, y)
-    b = HMMLikelihoodFeaturizer(n_states=2, n_iter=5, seed=3, backend="hmmlearn").fit(db, y)
+    a = HMMLikelihoodFeaturizer(n_states=2, n_iter=5, seed=3).fit(db, y)
+    b = HMMLikelihoodFeaturizer(n_states=2, n_iter=5, seed=3).fit(db, y)
     np.testing.assert_array_equal(a.transform(db), b.transform(db))
     with pytest.raises(ParameterError, match="'n_states' parameter of HMMLikelihoodFeaturizer"):
         HMMLikelihoodFeaturizer(n_states=0).fit(db, y)
-    with pytest.raises(ParameterError, match="'backend' parameter"):
-        HMMLikelihoodFeaturizer(backend="gpu").fit(db, y)
 
 
 def test_pattern_featurizer_with_the_real_stages_and_their_options():
-    pytest.importorskip("seqmine.scoring.contrast")
     db, y = _db()
     f = PatternFeaturizer(max_length=3, min_length=2, start_with_action=True,
                           correction="westfall-young", n_permutations=200, top_k=50).fit(db, y)

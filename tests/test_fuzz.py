@@ -21,8 +21,8 @@ import pandas as pd
 import pytest
 from hypothesis import HealthCheck, event, given, settings
 from hypothesis import strategies as st
-from seqmine.cli.main import main
 
+from seqmine.cli.main import main
 from seqmine.detection.detectors import load_detectors, validate_detectors
 from seqmine.detection.watcher import EventError, Watcher
 from seqmine.encoding.encoder import Encoder

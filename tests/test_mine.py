@@ -7,9 +7,9 @@ import numpy as np
 import pandas as pd
 import pytest
 from prefixspan import PrefixSpan
-from seqmine.cli.main import main
 
 import seqmine.mining.miner as mine_module
+from seqmine.cli.main import main
 from seqmine.encoding.sequences import SequenceDB
 from seqmine.errors import DataFileError, ParameterError, PatternExplosionError
 from seqmine.mining.miner import (
@@ -34,9 +34,9 @@ def _int_patterns(ps):
 
 # ---------------------------------------------------------------- worked examples
 def test_single_symbol_worked_example():
-    # Source: README of a general-purpose PrefixSpan package on the package index
-    # (database and the 14 frequent patterns at min support 2); see shared
-    # CHECK_VALUES.md, recomputed there by brute force.
+    # Source: README of the prefixspan package on PyPI (Chuancong Gao, PrefixSpan-py,
+    # version 0.5.2, "API Usage": the database and the 14 frequent patterns that
+    # ps.frequent(2) prints); recomputed by brute-force enumeration.
     seqs = [[0, 1, 2, 3, 4], [1, 1, 1, 3, 4], [2, 1, 2, 2, 0], [1, 1, 1, 2, 2]]
     expected = {(0,): 2, (1,): 4, (1, 2): 3, (1, 2, 2): 2, (1, 3): 2, (1, 3, 4): 2,
                 (1, 4): 2, (1, 1): 2, (1, 1, 1): 2, (2,): 3, (2, 2): 2, (3,): 2,
@@ -314,3 +314,18 @@ def test_more_than_64_symbols_uses_the_lookup_path():
     assert _int_patterns(ps) == expected
     again = match(db, ps.patterns)
     assert (again.counts != ps.counts).nnz == 0
+
+
+def test_search_statistics_belong_to_their_result():
+    # The work counters travel with the result (no module-level state): a second
+    # search leaves the first result's counters alone.
+    db = _ints_db([[0, 1, 2, 3, 4], [1, 1, 1, 3, 4], [2, 1, 2, 2, 0], [1, 1, 1, 2, 2]])
+    first = mine(db, min_support=2, max_length=None)
+    before = json.dumps(first.search_stats, sort_keys=True)
+    mine(db, min_support=4, max_length=1)
+    assert json.dumps(first.search_stats, sort_keys=True) == before
+    levels = first.search_stats["levels"]
+    assert [lv["frequent"] for lv in levels if lv["frequent"]] == np.bincount(
+        first.lengths).tolist()[1:]
+    assert first.search_stats["instance_counts"] > 0
+    assert match(db, ["1 > 2"]).search_stats["levels"][0]["length"] == 1

@@ -18,14 +18,15 @@ def test_bh_paper_example_rejects_four():
     # Benjamini & Hochberg (1995): BH at 0.05 rejects the 4 smallest.
     q = adjust_pvalues(BH1995, "bh")
     assert int((q <= 0.05).sum()) == 4
-    # Adjusted values computed with statsmodels multipletests (CHECK_VALUES.md).
+    # Adjusted values computed with statsmodels multipletests(method="fdr_bh").
     expected = [0.0015, 0.003, 0.0095, 0.035625, 0.0603, 0.063857, 0.063857, 0.0645,
                 0.0765, 0.486, 0.581182, 0.714875, 0.753231, 0.813214, 1.0]
     np.testing.assert_allclose(q, expected, atol=5e-7)
 
 
 def test_holm_paper_example_rejects_three():
-    # Holm on the BH (1995) p-values rejects 3 (computed; CHECK_VALUES.md).
+    # Holm (1979) step-down on the BH (1995) p-values rejects 3; adjusted values
+    # computed with statsmodels multipletests(method="holm").
     q = adjust_pvalues(BH1995, "holm")
     assert int((q <= 0.05).sum()) == 3
     expected = [0.0015, 0.0056, 0.0247, 0.114, 0.2211, 0.278, 0.278, 0.278, 0.3213] + [1.0] * 6

@@ -14,8 +14,9 @@ from seqmine.inputs.outcomes import (
 
 
 def test_gain_worked_values():
-    # Source: Hake (1998), <g> = (%post - %pre) / (100 - %pre); on raw scores the same
-    # value (Bao 2006): pre 12/30 -> post 21/30 gives 0.5, as 40% -> 70% does.
+    # Source: Hake (1998), Am. J. Phys. 66(1), 64-74: <g> = (%post - %pre) / (100 - %pre);
+    # on raw scores the same value (Bao 2006, Am. J. Phys. 74(10), 917): pre 12/30 ->
+    # post 21/30 gives 0.5, as 40% -> 70% does.
     assert normalized_gain(12, 21, 30) == pytest.approx(0.5)
     assert normalized_gain(40, 70, 100) == pytest.approx(0.5)
     # Hake's class averages (from memory): traditional 0.23, interactive engagement 0.48

@@ -3,7 +3,6 @@
 import json
 
 from seqmine.cli.main import main
-
 from seqmine.encoding.sequences import SequenceDB
 
 

@@ -17,8 +17,10 @@ from seqmine.phases import PhaseModel, _hmm, fit_phase_model, name_state
 
 # --------------------------------------------------------------------------------------
 # Ice-cream example, Jurafsky & Martin, Speech and Language Processing, 3rd ed. draft,
-# Appendix A (parameters as transcribed in public code, PDF not read; see
-# shared CHECK_VALUES.md). States H=0, C=1; observations "1","2","3" -> ids 0,1,2.
+# Appendix A "Hidden Markov Models" (parameters as transcribed in public code; the book
+# itself was not read, so treat them as from memory). The probabilities below were
+# recomputed by enumerating every state path (see _brute_force).
+# States H=0, C=1; observations "1","2","3" -> ids 0,1,2.
 ICE_PI = [0.8, 0.2]
 ICE_A = [[0.6, 0.4], [0.5, 0.5]]
 ICE_B = [[0.2, 0.4, 0.4], [0.5, 0.4, 0.1]]
@@ -48,8 +50,9 @@ def test_ice_cream_viterbi_jm3():
 
 
 def test_ice_cream_second_edition():
-    # J&M 2nd ed. transitions A = [[.7, .3], [.4, .6]]: P(3 1 3) = 0.026264,
-    # Viterbi H H H with 0.012544 (CHECK_VALUES.md, computed)
+    # Jurafsky & Martin, Speech and Language Processing, 2nd ed. (2009), the HMM chapter:
+    # transitions A = [[.7, .3], [.4, .6]] (from memory). P(3 1 3) = 0.026264 and
+    # Viterbi H H H with 0.012544, computed by enumerating the 8 state paths.
     m = ice_cream([[0.7, 0.3], [0.4, 0.6]])
     assert math.isclose(math.exp(m.score([ICE_313])), 0.026264, rel_tol=1e-9)
     logprob, states = m.decode([ICE_313])
@@ -58,9 +61,10 @@ def test_ice_cream_second_edition():
 
 
 def test_wikipedia_rainy_sunny_viterbi():
-    # Older Wikipedia "Viterbi algorithm" example (CHECK_VALUES.md): Rainy=0, Sunny=1;
-    # walk=0, shop=1, clean=2. Forward 0.033612; Viterbi S R R with 0.01344 (the value
-    # hmmlearn's own tests assert).
+    # Rainy/Sunny example of the English Wikipedia article "Viterbi algorithm" (older
+    # revisions; from memory): Rainy=0, Sunny=1; walk=0, shop=1, clean=2. Forward
+    # 0.033612 (computed by path enumeration); Viterbi S R R with 0.01344, the value
+    # hmmlearn's own test suite asserts for this model.
     m = PhaseModel.from_parameters([0.6, 0.4], [[0.7, 0.3], [0.4, 0.6]],
                                    [[0.1, 0.4, 0.5], [0.6, 0.3, 0.1]], ["walk", "shop", "clean"])
     assert math.isclose(math.exp(m.score([[0, 1, 2]])), 0.033612, rel_tol=1e-9)
@@ -70,8 +74,9 @@ def test_wikipedia_rainy_sunny_viterbi():
 
 
 def test_stamp_revealing_introduction():
-    # Stamp, "A Revealing Introduction to Hidden Markov Models" (values from memory,
-    # recomputed in CHECK_VALUES.md): P(O) = 0.0096296, Viterbi (1, 1, 1, 0), 0.0028224
+    # Stamp (2004), "A Revealing Introduction to Hidden Markov Models", San Jose State
+    # University, the temperature / tree-ring example (values from memory; recomputed by
+    # enumerating the 16 state paths): P(O) = 0.0096296, Viterbi (1, 1, 1, 0), 0.0028224
     m = PhaseModel.from_parameters([0.6, 0.4], [[0.7, 0.3], [0.4, 0.6]],
                                    [[0.1, 0.4, 0.5], [0.7, 0.2, 0.1]])
     assert math.isclose(math.exp(m.score([[0, 1, 0, 2]])), 0.0096296, rel_tol=1e-4)
@@ -82,8 +87,9 @@ def test_stamp_revealing_introduction():
 
 def test_bic_ice_cream_check_value_and_hmmlearn():
     m = ice_cream()
-    # BIC = -2 log L + k ln n, k = (N-1) + N(N-1) + N(M-1) = 7 for N=2, M=3;
-    # on "3 1 3": log L = -3.555678, BIC = 14.801642 (CHECK_VALUES.md, computed)
+    # BIC = -2 log L + k ln n (Schwarz 1978), k = (N-1) + N(N-1) + N(M-1) = 7 for N=2,
+    # M=3; on "3 1 3": log L = ln 0.028562 = -3.555678 (the J&M forward value above) and
+    # BIC = 7.111356 + 7 ln 3 = 14.801642 (computed by hand)
     assert m.n_free_parameters == 7
     assert math.isclose(m.score([ICE_313]), -3.555678, abs_tol=1e-6)
     assert math.isclose(m.bic([ICE_313]), 14.801642, abs_tol=1e-6)
@@ -97,7 +103,8 @@ def test_bic_ice_cream_check_value_and_hmmlearn():
 
 @pytest.mark.parametrize("n, m, k", [(2, 3, 7), (3, 4, 17), (1, 5, 4), (4, 2, 19)])
 def test_free_parameter_count(n, m, k):
-    # (N-1) + N(N-1) + N(M-1): N=2, M=3 -> 7; N=3, M=4 -> 17 (CHECK_VALUES.md)
+    # Free parameters of a categorical HMM: start (N-1) + transitions N(N-1) + emissions
+    # N(M-1), the count hmmlearn's CategoricalHMM uses for its bic (computed by hand)
     assert _hmm.n_free_parameters(n, m) == k
 
 
@@ -196,7 +203,9 @@ def test_state_names_dwell_and_graph(tmp_path):
         [0.5, 0.5], [[0.75, 0.25], [0.02, 0.98]],
         [[0.45, 0.45, 0.1], [0.05, 0.05, 0.9]], ["measure_height", "pause:long", "paint_pot"])
     assert m.state_names == ["measure_height + pause:long", "paint_pot"]
-    np.testing.assert_allclose(m.dwell_times, [4.0, 50.0])  # 1 / (1 - a_ii)
+    # expected stay in a state, 1 / (1 - a_ii) (geometric durations; Rabiner 1989,
+    # Proc. IEEE 77(2), section II, from memory): 1/0.25 = 4 and 1/0.02 = 50
+    np.testing.assert_allclose(m.dwell_times, [4.0, 50.0])
     desc = m.describe_states()
     assert desc["top_tokens"].iloc[1] == "paint_pot 0.900; measure_height 0.050; pause:long 0.050"
     g = m.to_graph(threshold=0.05)

@@ -16,8 +16,8 @@ import re
 import numpy as np
 import pandas as pd
 import pytest
-from seqmine.cli.main import main
 
+from seqmine.cli.main import main
 from seqmine.demo_data import write_greenhouse
 
 KEY_A = "3f9c1e0b7a5d42c8e6f1a9b0c7d3e5f2"

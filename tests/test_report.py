@@ -9,8 +9,8 @@ import pandas as pd
 import pytest
 from browser_helper import check_report_scripts
 from report_fixture import HOSTILE, write_output_folder
-from seqmine.cli.main import main
 
+from seqmine.cli.main import main
 from seqmine.errors import DataFileError
 from seqmine.reporting import plots as _plots
 from seqmine.reporting.render import OUTPUT_FILES, REPORT_FILE, _read_csv, render_report

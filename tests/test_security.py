@@ -14,8 +14,8 @@ from pathlib import Path
 import pandas as pd
 import pytest
 from browser_helper import CHROMIUM, check_report_scripts, load_page, start_tags
-from seqmine.cli.main import main
 
+from seqmine.cli.main import main
 from seqmine.demo_data import write_greenhouse
 
 HOSTILE = {

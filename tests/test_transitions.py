@@ -19,8 +19,10 @@ from seqmine.scoring.transitions import (
 
 
 def test_adjusted_residuals_agresti_worked_table():
-    # Agresti (2007), party identification by gender; residuals from memory and equal
-    # to statsmodels (CHECK_VALUES.md): row 1 +2.2932, +0.4648, -2.6178; row 2 negated.
+    # Agresti (2007), An Introduction to Categorical Data Analysis, 2nd ed., section 2.4,
+    # party identification by gender (table and residuals from memory; the residuals
+    # equal statsmodels Table.standardized_resids): row 1 +2.2932, +0.4648, -2.6178;
+    # row 2 negated.
     z = adjusted_residuals([[279, 73, 225], [165, 47, 191]])
     np.testing.assert_allclose(z[0], [2.2932, 0.4648, -2.6178], atol=5e-5)
     np.testing.assert_allclose(z[1], -z[0], atol=1e-12)
@@ -36,7 +38,8 @@ def test_adjusted_residuals_equal_statsmodels_on_random_tables():
 
 
 def test_yules_q_worked_tables():
-    # Definition Q = (ad - bc)/(ad + bc) = (OR - 1)/(OR + 1); values in CHECK_VALUES.md.
+    # Yule (1900): Q = (ad - bc)/(ad + bc) = (OR - 1)/(OR + 1). Computed by hand from the
+    # odds ratios 9, 20 and 33: 8/10, 19/21 = 0.904762, 32/34 = 0.941176.
     np.testing.assert_allclose(yules_q([3, 8, 30], [1, 2, 10], [1, 1, 5], [3, 5, 55]),
                                [0.8, 0.904762, 0.941176], atol=5e-7)
     assert np.isnan(yules_q(0, 0, 3, 4))

@@ -15,6 +15,7 @@ from _validate_toys import (
 )
 
 from seqmine.errors import ParameterError
+from seqmine.mining.miner import match, mine
 from seqmine.validation.crossval import (
     CLASSIFIERS,
     _FoldRunner,
@@ -97,8 +98,7 @@ def test_earliest_fraction_rules():
 
 
 def _real_miner():
-    mine = pytest.importorskip("seqmine.mining.miner")
-    return dict(TOY, miner=mine.mine, matcher=mine.match)
+    return dict(TOY, miner=mine, matcher=match)
 
 
 @pytest.mark.parametrize("steps", [lambda: TOY, _real_miner], ids=["brute-force", "miner"])

@@ -6,27 +6,18 @@ import numpy as np
 import pandas as pd
 import pytest
 
-pytest.importorskip("seqmine.mining.miner")
-pytest.importorskip("seqmine.scoring.contrast")
-
-from seqmine.cli.main import main  # noqa: E402
-
-from seqmine.demo_data import generate_greenhouse, write_greenhouse  # noqa: E402
-from seqmine.encoding.encoder import Encoder  # noqa: E402
-from seqmine.inputs.load import parse_times  # noqa: E402
-from seqmine.inputs.outcomes import Grouping, normalized_gain  # noqa: E402
-from seqmine.validation.crossval import default_featurizers, validate  # noqa: E402
+from seqmine.cli.main import main
+from seqmine.demo_data import generate_greenhouse, write_greenhouse
+from seqmine.encoding.encoder import Encoder
+from seqmine.inputs.load import parse_times
+from seqmine.inputs.outcomes import Grouping, normalized_gain
+from seqmine.phases import GroupHMMClassifier
+from seqmine.validation.crossval import default_featurizers, validate
+from seqmine.validation.features import HMMLikelihoodFeaturizer
 
 FAST_HMM = dict(n_states=2, n_restarts=1, n_iter=20)
 
 
-@pytest.fixture(autouse=True)
-def _restore_quiet():
-    # the command line's --quiet switches progress output off process-wide
-    from seqmine._util.progress import is_quiet, set_quiet
-    before = is_quiet()
-    yield
-    set_quiet(before)
 
 
 def _greenhouse(n, seed):
@@ -108,7 +99,7 @@ def test_cli_writes_the_tables(small_files, tmp_path):
     (("--fractions", "a,b"), r"--fractions takes comma-separated numbers"),
     (("--folds", "40"), r"There are 30 learners but 40 folds"),
     (("--classifiers", "pattern,svm"), r"--classifiers: unknown name 'svm'"),
-    (("--jobs", "0"), r"'n_jobs' parameter of validate must be >= 1 or -1"),
+    (("--jobs", "0"), r"'n_jobs' parameter of validate must be a positive int or -1"),
 ])
 def test_cli_bad_options_exit_2_with_one_line(small_files, tmp_path, capsys, extra, msg):
     code = _cli(small_files, tmp_path / "x", *extra)
@@ -123,17 +114,14 @@ def test_cli_folds_and_loo_are_exclusive(small_files, tmp_path, capsys):
     assert "not allowed with argument" in capsys.readouterr().err
 
 
-def test_hmm_featurizer_uses_the_phase_models_when_available():
-    phases = pytest.importorskip("seqmine.phases")
-    from seqmine.validation.features import HMMLikelihoodFeaturizer
+def test_hmm_featurizer_uses_the_phase_models():
     ev, oc = _greenhouse(30, seed=2)
     g = Grouping().fit(oc)
     enc = Encoder().fit(ev)
     labels = pd.Series(g.transform(oc).to_numpy(), index=oc["learner"])
     db = enc.transform(ev, groups=labels.to_dict(), group_names=g.group_names_)
     f = HMMLikelihoodFeaturizer(n_states=2, n_restarts=1, n_iter=10).fit(db, None)
-    assert f.backend_ == "phases"
-    assert isinstance(f.models_, phases.GroupHMMClassifier)
+    assert isinstance(f.models_, GroupHMMClassifier)
     ll = f.models_.log_likelihoods(db)
     np.testing.assert_allclose(f.transform(db)[:, 0],
                                (ll[:, 1] - ll[:, 0]) / np.maximum(db.lengths, 1))

@@ -232,6 +232,30 @@ def test_no_learner_spans_two_folds(spec, folds, seed):
     assert (seen == 1).all()
 
 
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.integers(1, 4), min_size=2, max_size=30), st.integers(2, 5),
+       st.integers(0, 3))
+def test_unstratified_folds_keep_learners_together(sessions, folds, seed):
+    # Without labels (held-out scoring of phase models): learners dealt into folds of
+    # sizes that differ by at most one learner.
+    learners = np.array([f"L{i}" for i, k in enumerate(sessions) for _ in range(k)])
+    if len(sessions) < folds:
+        with pytest.raises(ParameterError, match=f"{len(sessions)} learners but {folds} folds"):
+            learner_splits(learners, folds=folds, seed=seed)
+        return
+    split = learner_splits(learners, folds=folds, seed=seed)
+    assert len(split) == folds
+    seen = np.zeros(len(learners), dtype=int)
+    sizes = []
+    for tr, te in split:
+        assert set(learners[tr]).isdisjoint(learners[te])
+        seen[te] += 1
+        sizes.append(len(set(learners[te])))
+    assert (seen == 1).all() and max(sizes) - min(sizes) <= 1
+    assert [te.tolist() for _, te in split] == [
+        te.tolist() for _, te in learner_splits(learners, folds=folds, seed=seed)]
+
+
 def test_leave_one_learner_out_keeps_sessions_together():
     learners = ["a", "a", "b", "c", "c", "c"]
     split = learner_splits(learners, ["x", "x", "y", "x", "x", "x"], loo=True)

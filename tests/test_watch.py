@@ -8,21 +8,11 @@ import json
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from seqmine.cli.main import main
 
+from seqmine.cli.main import main
 from seqmine.detection.detectors import save_detectors
 from seqmine.detection.watcher import EventError, Firing, Watcher, parse_event_time
 from seqmine.errors import DataFileError, ParameterError
-
-
-@pytest.fixture(autouse=True)
-def _restore_quiet():
-    # 'seqmine ... -q' switches progress output off process-wide; undo it after each test
-    from seqmine._util.progress import is_quiet, set_quiet
-
-    before = is_quiet()
-    yield
-    set_quiet(before)
 
 
 def _doc(dets=None, encoding=None, matching=None, **extra):

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 from collections import Counter
 
-import pytest
 from _watch_reference import (
     brute_instance_count,
     max_disjoint,
@@ -15,6 +14,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from seqmine.detection.watcher import EventError, Watcher
+from seqmine.mining.miner import match
 
 ACTIONS = ["set", "run", "measure", "paint", "reset"]
 LABELS = ["short", "medium", "long"]
@@ -224,14 +224,13 @@ def test_watcher_counts_equal_counts_on_the_encoders_token_stream(case):
 
 def _match_counts(db, doc):
     """Offline counts from the miner's matcher on the Encoder's SequenceDB."""
-    mine = pytest.importorskip("seqmine.mining.miner", reason="seqmine.mining.miner (the miner) is not merged yet")
     m = doc["matching"]
     index = {v: i for i, v in enumerate(db.vocab)}
     usable = [d for d in doc["detectors"] if all(t in index for t in d["tokens"])]
     counts = Counter()
     if not usable or db.n_sequences == 0:
         return counts
-    ps = mine.match(db, [tuple(index[t] for t in d["tokens"]) for d in usable],
+    ps = match(db, [tuple(index[t] for t in d["tokens"]) for d in usable],
                     max_gap=m["max_gap"], max_window=m["max_window"], skip_pauses=m["skip_pauses"])
     mat = ps.counts.tocoo()
     for i, j, v in zip(mat.row, mat.col, mat.data):

@@ -8,8 +8,8 @@ from collections import Counter
 from pathlib import Path
 
 import pytest
-from seqmine.cli.main import main
 
+from seqmine.cli.main import main
 from seqmine.detection.detectors import (
     build_detectors,
     load_detectors,
@@ -28,14 +28,6 @@ pytestmark = pytest.mark.skipif(not (DEMO / "events.csv").is_file(),
                                 reason="demo data set not present")
 
 
-@pytest.fixture(autouse=True)
-def _restore_quiet():
-    # 'seqmine ... -q' switches progress output off process-wide; undo it after each test
-    from seqmine._util.progress import is_quiet, set_quiet
-
-    before = is_quiet()
-    yield
-    set_quiet(before)
 
 
 def _offline_counts(db, doc):

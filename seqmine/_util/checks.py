@@ -10,6 +10,7 @@ from ..errors import ColumnError, ParameterError
 __all__ = [
     "check_fraction",
     "check_int",
+    "check_jobs",
     "check_number",
     "check_choice",
     "check_columns",
@@ -55,6 +56,27 @@ def check_int(value, name, where="", *, minimum=None, maximum=None, allow_none=F
         none = " or None" if allow_none else ""
         raise ParameterError(
             f"The '{name}' parameter{_owner(where)} must be an int{extra}{none}. "
+            f"Got {value!r} instead."
+        )
+    return int(value)
+
+
+def check_jobs(value, name="n_jobs", where=""):
+    """Return ``value`` as int if it is a number of worker processes: >= 1, or -1 for all cores.
+
+    Examples
+    --------
+    >>> check_jobs(-1), check_jobs(2)
+    (-1, 2)
+    >>> check_jobs(0, "n_jobs", "validate")
+    Traceback (most recent call last):
+    ...
+    seqmine.errors.ParameterError: The 'n_jobs' parameter of validate must be a positive int or -1 (all cores). Got 0 instead.
+    """
+    ok = isinstance(value, numbers.Integral) and not isinstance(value, bool)
+    if not ok or not (value >= 1 or value == -1):
+        raise ParameterError(
+            f"The '{name}' parameter{_owner(where)} must be a positive int or -1 (all cores). "
             f"Got {value!r} instead."
         )
     return int(value)

@@ -10,11 +10,13 @@ from __future__ import annotations
 
 import contextlib
 import functools
+import os
 
 from ..errors import ParameterError
-from .progress import is_quiet, set_quiet
+from .checks import check_jobs
+from .progress import is_quiet, quiet_mode
 
-__all__ = ["parallel_map", "using_scheduler"]
+__all__ = ["parallel_map", "using_scheduler", "n_workers"]
 
 #: Clients opened by :func:`using_scheduler`, innermost last: (scheduler, client).
 _ACTIVE = []
@@ -43,16 +45,30 @@ def parallel_map(func, items, *, jobs=1, scheduler=None):
     [2, 3, 1]
     """
     items = list(items)
+    if jobs is not None:
+        jobs = check_jobs(jobs, "jobs")
     if not scheduler and (jobs is None or jobs == 1 or len(items) <= 1):
         return [func(x) for x in items]
     # worker processes start with default settings: carry the quiet switch over
     func = functools.partial(_call_with_quiet, func, is_quiet())
     if scheduler:
         return _dask_map(func, items, scheduler, jobs)
-    if not isinstance(jobs, int) or jobs == 0 or jobs < -1:
-        raise ParameterError(f"The 'jobs' parameter must be a positive int or -1. Got {jobs!r} instead.")
     from joblib import Parallel, delayed
     return list(Parallel(n_jobs=jobs)(delayed(func)(x) for x in items))
+
+
+def n_workers(jobs, where=""):
+    """The number of worker processes ``jobs`` stands for: -1 = every core, None = 1.
+
+    Examples
+    --------
+    >>> n_workers(3), n_workers(None), n_workers(-1) >= 1
+    (3, 1, True)
+    """
+    if jobs is None:
+        return 1
+    jobs = check_jobs(jobs, "jobs", where)
+    return max(1, os.cpu_count() or 1) if jobs == -1 else jobs
 
 
 @contextlib.contextmanager
@@ -60,8 +76,8 @@ def using_scheduler(scheduler, jobs=1):
     """Connect to a Dask cluster once for a block of work.
 
     Inside the block, :func:`parallel_map` calls with the same ``scheduler`` reuse the
-    connection (a ``"local"`` cluster is started once, not per call) and joblib's
-    ``Parallel`` (hidden Markov model restarts) runs on the cluster too. With
+    connection (a ``"local"`` cluster is started once, not per call) and calls without a
+    scheduler but with ``jobs > 1`` (hidden Markov model restarts) run on the cluster too. With
     ``scheduler=None`` nothing happens.
 
     Parameters
@@ -100,12 +116,8 @@ def using_scheduler(scheduler, jobs=1):
 
 
 def _call_with_quiet(func, quiet, item):
-    before = is_quiet()
-    set_quiet(quiet)
-    try:
+    with quiet_mode(quiet):
         return func(item)
-    finally:
-        set_quiet(before)
 
 
 def _connect(scheduler, jobs, stack):

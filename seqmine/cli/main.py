@@ -13,7 +13,7 @@ import pkgutil
 import sys
 import warnings
 
-from .._util.progress import is_quiet, set_quiet
+from .._util.progress import quiet_mode
 from .._version import __version__
 from ..errors import SeqmineError, SeqmineInputError
 from . import commands
@@ -74,10 +74,9 @@ def main(argv=None):
         parser.print_help()
         return 2
     debug = getattr(args, "debug", False)
-    was_quiet = is_quiet()
-    set_quiet(bool(getattr(args, "quiet", False)))  # per invocation, restored below
     try:
-        with warnings.catch_warnings():
+        # quiet mode for this invocation only (a context setting, restored on return)
+        with quiet_mode(bool(getattr(args, "quiet", False))), warnings.catch_warnings():
             # every warning is shown, as one line, whatever ran before in this process
             warnings.simplefilter("always")
             if not debug:
@@ -108,8 +107,6 @@ def main(argv=None):
         print(f"seqmine: internal error: {type(exc).__name__}: {_one_line(exc)} "
               f"(re-run with --debug for the traceback and report it)", file=sys.stderr)
         return 1
-    finally:
-        set_quiet(was_quiet)
 
 
 if __name__ == "__main__":  # pragma: no cover

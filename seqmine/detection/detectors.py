@@ -68,7 +68,7 @@ from .._util.checks import check_int, check_number
 from ..encoding.sequences import PAUSE_PREFIX
 from ..errors import ColumnError, DataFileError, ParameterError, SeqmineWarning
 from ..mining.excerpts import build_examples, find_occurrence
-from ..mining.patterns import PATTERN_SEPARATOR
+from ..mining.patterns import PATTERN_SEPARATOR, is_subsequence
 
 __all__ = [
     "DETECTORS_FORMAT",
@@ -237,8 +237,8 @@ def select_detectors(contrast_table, *, max_q=0.05, min_effect=0.2, effect="cohe
     # one behaviour, one detector: drop rows nested in a better one of the same group
     distinct = []
     for i in order:
-        if drop_redundant and any(fav[j] == fav[i] and (_is_subsequence(pats[j], pats[i])
-                                                        or _is_subsequence(pats[i], pats[j]))
+        if drop_redundant and any(fav[j] == fav[i] and (is_subsequence(pats[j], pats[i])
+                                                        or is_subsequence(pats[i], pats[j]))
                                   for j in distinct):
             continue
         distinct.append(i)
@@ -258,7 +258,7 @@ def _check_shares(shares, where):
                              f"{shares!r} instead.")
     out = {}
     for g, v in shares.items():
-        x = _num(v)
+        x = _finite_or_none(v)
         if x is None or x < 0:
             raise ParameterError(f"The share of group {g!r} in 'group_shares' of {where} must "
                                  f"be a number >= 0. Got {v!r} instead.")
@@ -358,8 +358,8 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
         raise ColumnError(f"{where}: the selected rows need columns 'pattern' and 'favours'.")
     constraints = dict(constraints or {})
     matching = {
-        "max_gap": _opt_int(constraints.get("max_gap")),
-        "max_window": _opt_int(constraints.get("max_window")),
+        "max_gap": _int_or_none(constraints.get("max_gap")),
+        "max_window": _int_or_none(constraints.get("max_window")),
         "skip_pauses": bool(constraints.get("skip_pauses", False)),
     }
     if group_sizes is not None and not isinstance(group_sizes, dict):
@@ -379,7 +379,7 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
     for k, row in enumerate(selected_rows.to_dict("records")):
         tokens = _split_pattern(row["pattern"], known)
         pauses = pause_seconds(tokens, edges, labels)
-        fav = "" if _missing(row.get("favours")) else str(row["favours"]).strip()
+        fav = "" if _is_missing(row.get("favours")) else str(row["favours"]).strip()
         if fav == weak:
             direction = "discourage"
         elif fav == strong:
@@ -389,30 +389,30 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
                 f"{where}: row {k} ({row['pattern']!r}) favours {fav or 'no group'!r}, neither "
                 f"the strong ({strong!r}) nor the weak ({weak!r}) group; filter it out first.")
         evidence = {
-            "support": {g: _num(row.get(f"support_{g}")) for g in group_names
+            "support": {g: _finite_or_none(row.get(f"support_{g}")) for g in group_names
                         if f"support_{g}" in row},
-            "rate": {g: _num(row.get(f"rate_{g}")) for g in group_names
+            "rate": {g: _finite_or_none(row.get(f"rate_{g}")) for g in group_names
                      if f"rate_{g}" in row},
             "n": dict(group_sizes) if group_sizes else {},
-            "p_value": _num(row.get("p_value")),
-            "q_value": _num(row.get("q_value")),
+            "p_value": _finite_or_none(row.get("p_value")),
+            "q_value": _finite_or_none(row.get("q_value")),
         }
         if not evidence["rate"]:
             del evidence["rate"]
         for col in _EVIDENCE_COLUMNS[2:]:
             if col in row and col != "stability":
-                evidence[col] = _num(row.get(col))
+                evidence[col] = _finite_or_none(row.get(col))
         if "evidence" in row:
-            evidence["kind"] = "" if _missing(row["evidence"]) else str(row["evidence"])
-        evidence["effects"] = {c: _num(row.get(c)) for c in _EFFECT_COLUMNS if c in row}
-        evidence["stability"] = _num(row.get("stability"))
+            evidence["kind"] = "" if _is_missing(row["evidence"]) else str(row["evidence"])
+        evidence["effects"] = {c: _finite_or_none(row.get(c)) for c in _EFFECT_COLUMNS if c in row}
+        evidence["stability"] = _finite_or_none(row.get("stability"))
         absence = None
         if direction == "encourage":
             after = absence_after_events
             if isinstance(after, dict):
                 after = after.get(str(row["pattern"]))
-            absence = {"after_events": _opt_int(after),
-                       "after_seconds": _num(absence_after_seconds)}
+            absence = {"after_events": _int_or_none(after),
+                       "after_seconds": _finite_or_none(absence_after_seconds)}
         det = {
             "id": f"D{k + 1:03d}",
             "tokens": tokens,
@@ -506,11 +506,11 @@ def export_detectors(contrast_table, db, constraints=None, *, max_q=0.05, min_ef
                      ranking="q_volume, then |effect|" if "q_volume" in contrast_table.columns
                      else "|effect|, then q_value")
     constraints = dict(constraints or {})
-    match_kw = {"max_gap": _opt_int(constraints.get("max_gap")),
-                "max_window": _opt_int(constraints.get("max_window")),
+    match_kw = {"max_gap": _int_or_none(constraints.get("max_gap")),
+                "max_window": _int_or_none(constraints.get("max_window")),
                 "skip_pauses": bool(constraints.get("skip_pauses", False))}
     names = [str(p) for p in rows["pattern"]]
-    favours = [("" if _missing(f) else str(f)) for f in rows["favours"]]
+    favours = [("" if _is_missing(f) else str(f)) for f in rows["favours"]]
     after = absence_after_events
     if isinstance(after, str):
         if after != "auto":
@@ -779,7 +779,7 @@ def _validate_encoding(enc, fail):
     if unit not in ("learner", "session"):
         fail("encoding.unit", f"{unit!r} must be 'learner' or 'session'.")
     gap = enc.get("session_gap")
-    if gap is not None and not (_is_num(gap) and gap > 0):
+    if gap is not None and not (_is_finite_real(gap) and gap > 0):
         fail("encoding.session_gap", f"{gap!r} must be a number of seconds > 0 or null.")
     pause = enc.get("pause", {"strategy": "none"})
     if not isinstance(pause, dict):
@@ -790,7 +790,7 @@ def _validate_encoding(enc, fail):
     edges = pause.get("edges", [])
     labels = pause.get("labels", [])
     implicit = pause.get("implicit", [])
-    if not isinstance(edges, list) or not all(_is_num(e) for e in edges):
+    if not isinstance(edges, list) or not all(_is_finite_real(e) for e in edges):
         fail("encoding.pause.edges", "must be a list of finite numbers of seconds.")
     # quantile edges of tied gaps can be equal (the bin between them stays empty);
     # hand-set (fixed) edges must be strictly ascending, as the Encoder requires
@@ -859,8 +859,8 @@ def _validate_detector(d, k, pause_ok, labels, seen, fail):
         if not isinstance(ps, dict):
             fail(f"{at}.pause_seconds", "must be an object: pause token -> [from, to] seconds.")
         for tok, span in ps.items():
-            if not (isinstance(span, list) and len(span) == 2 and _is_num(span[0])
-                    and (span[1] is None or _is_num(span[1]))):
+            if not (isinstance(span, list) and len(span) == 2 and _is_finite_real(span[0])
+                    and (span[1] is None or _is_finite_real(span[1]))):
                 fail(f"{at}.pause_seconds.{tok}", f"{span!r} must be [from, to] in seconds "
                                                    f"(to may be null).")
     ab = d.get("absence")
@@ -870,7 +870,7 @@ def _validate_detector(d, k, pause_ok, labels, seen, fail):
         ev, sec = ab.get("after_events"), ab.get("after_seconds")
         if ev is not None and (not _is_int(ev) or ev < 1):
             fail(f"{at}.absence.after_events", f"{ev!r} must be an integer >= 1 or null.")
-        if sec is not None and not (_is_num(sec) and sec > 0):
+        if sec is not None and not (_is_finite_real(sec) and sec > 0):
             fail(f"{at}.absence.after_seconds", f"{sec!r} must be a number > 0 or null.")
         if direction == "discourage" and (ev is not None or sec is not None):
             fail(f"{at}.absence", "absence rules apply to encourage detectors only; set it "
@@ -920,13 +920,6 @@ def _segment(pieces, known):
     return best[0]
 
 
-def _is_subsequence(short, long):
-    if len(short) > len(long):
-        return False
-    it = iter(long)
-    return all(any(x == y for y in it) for x in short)
-
-
 def _length_mask(lens, lengths):
     if isinstance(lengths, numbers.Integral):
         return lens == int(lengths)
@@ -968,11 +961,11 @@ def _strong_weak(group_names, strong=None, weak=None):
     return strong, weak
 
 
-def _missing(v):
+def _is_missing(v):
     return v is None or (isinstance(v, float) and math.isnan(v))
 
 
-def _num(v):
+def _finite_or_none(v):
     """A finite float or None (JSON has no NaN/inf)."""
     if v is None or isinstance(v, bool):
         return None
@@ -983,7 +976,7 @@ def _num(v):
     return f if math.isfinite(f) else None
 
 
-def _opt_int(v):
+def _int_or_none(v):
     if v is None or (isinstance(v, float) and math.isnan(v)):
         return None
     return int(v)
@@ -993,7 +986,8 @@ def _is_int(v):
     return isinstance(v, numbers.Integral) and not isinstance(v, bool)
 
 
-def _is_num(v):
+def _is_finite_real(v):
+    """True for a finite real number (not a boolean, not a string), as the schema wants."""
     return (isinstance(v, numbers.Real) and not isinstance(v, bool)
             and math.isfinite(float(v)))
 
@@ -1011,7 +1005,7 @@ def _plain(obj):
     if isinstance(obj, np.integer):
         return int(obj)
     if isinstance(obj, (float, np.floating)):
-        return _num(obj)
+        return _finite_or_none(obj)
     return obj
 
 

@@ -62,13 +62,14 @@ is therefore at most one small tuple per trie node, whatever the constraints.
 from __future__ import annotations
 
 import math
-import re
 from bisect import bisect_right
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from pathlib import Path
 
 from .._util.checks import check_int, check_number
+from .._util.isotime import parse_iso_datetime
+from .._util.text import has_control_characters
 from ..encoding.sequences import PAUSE_PREFIX
 from ..errors import SeqmineInputError
 from .detectors import load_detectors, validate_detectors
@@ -77,7 +78,6 @@ __all__ = ["Watcher", "Firing", "EventError", "parse_event_time"]
 
 _T_MAX = 4102444800.0  # 2100-01-01T00:00:00Z in Unix seconds (the loader's upper bound)
 _MAX_ACTION_LENGTH = 200  # the loader's default limit
-_CONTROL = re.compile(r"[\x00-\x08\x0b-\x1f\x7f]")
 _NEG_INF = float("-inf")
 
 
@@ -172,7 +172,7 @@ def parse_event_time(value):
             kind = "numeric"
         except ValueError:
             try:
-                dt = datetime.fromisoformat(s)
+                dt = parse_iso_datetime(s)
             except ValueError:
                 raise EventError(f"time {value!r} is neither ISO 8601 nor numeric seconds") from None
             if dt.tzinfo is None:
@@ -739,9 +739,8 @@ def _text(value, name):
         raise EventError(f"field {name!r} must be a string, got {type(value).__name__}")
     if not s:
         raise EventError(f"field {name!r} is empty")
-    if not s.isprintable():
-        if _CONTROL.search(s):
-            raise EventError(f"field {name!r} contains control characters")
+    if not s.isprintable() and has_control_characters(s):  # isprintable: a quick pre-test
+        raise EventError(f"field {name!r} contains control characters")
     if name == "action" and len(s) > _MAX_ACTION_LENGTH:
         raise EventError(f"the action is {len(s)} characters long (limit {_MAX_ACTION_LENGTH})")
     return s

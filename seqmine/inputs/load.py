@@ -11,7 +11,10 @@ line is not counted; for xAPI and JSON Lines, the first statement / line).
 
 from __future__ import annotations
 
+import codecs
+import io
 import json
+import mmap
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -20,6 +23,9 @@ import numpy as np
 import pandas as pd
 
 from .._util.checks import check_choice, check_columns
+from .._util.isotime import iso_seconds
+from .._util.text import CONTROL_CHARACTERS
+from ..config import EVENT_ROLES
 from ..errors import ColumnError, DataFileError, ParameterError
 
 __all__ = [
@@ -33,8 +39,6 @@ __all__ = [
 ]
 
 #: Column roles of an event table and whether they are required.
-EVENT_ROLES = {"learner": True, "time": True, "action": True,
-               "session": False, "target": False, "channel": False}
 
 #: Reject reason codes written to ``rejects.csv``.
 REJECT_REASONS = {
@@ -66,7 +70,6 @@ _DEFAULT_LIMITS = (DEFAULT_MAX_BYTES, 20_000_000_000)  # the API's and the comma
 _EPOCH = pd.Timestamp("1970-01-01", tz="UTC")
 _T_MIN = 0.0
 _T_MAX = (pd.Timestamp("2100-01-01", tz="UTC") - _EPOCH).total_seconds()
-_CONTROL = r"[\x00-\x08\x0b-\x1f\x7f]"
 _FORMATS = ("csv", "tsv", "parquet", "jsonl", "xapi")
 
 
@@ -243,9 +246,23 @@ def parse_times(values, *, source="time"):
     rest = ~missing & ~is_num
     iso = np.full(n, np.nan)
     if rest.any():
-        parsed = pd.to_datetime(s[rest], format="ISO8601", utc=True, errors="coerce")
-        secs = ((parsed - _EPOCH) / pd.Timedelta(seconds=1)).to_numpy(dtype=float)
-        iso[np.flatnonzero(rest)] = secs
+        # naive and zoned strings parsed apart: pandas before 3 gives naive strings the
+        # offset of the zoned ones when both are in one call
+        zoned = s.str.contains(r"\d{2}:\d{2}(?::\d{2}(?:[.,]\d+)?)?\s*(?:[Zz]|[+-]\d{2}(?::?\d{2})?)\s*$",
+                               na=False).to_numpy(dtype=bool)
+        for part in (rest & zoned, rest & ~zoned):
+            if part.any():
+                parsed = pd.to_datetime(s[part], format="ISO8601", utc=True, errors="coerce")
+                iso[np.flatnonzero(part)] = ((parsed - _EPOCH) / pd.Timedelta(seconds=1)
+                                             ).to_numpy(dtype=float)
+        # pandas before 3 parses in nanoseconds (years 1677-2262 only): read the others
+        # with the standard library so that they are reported as out of range, not garbled
+        looks_iso = s.str.match(r"\s*[+-]?\d{4}-\d{2}-\d{2}", na=False).to_numpy(dtype=bool)
+        for i in np.flatnonzero(rest & np.isnan(iso) & looks_iso):
+            try:
+                iso[i] = iso_seconds(s.iat[i])
+            except (ValueError, OverflowError):
+                pass
     is_iso = ~np.isnan(iso)
     kind = "iso" if is_iso.sum() > is_num.sum() else "numeric"
     reason[~missing & ~is_num & ~is_iso] = "bad_time"
@@ -307,6 +324,31 @@ def _guess_format(path):
     return "csv"
 
 
+def _without_nul(path, encoding):
+    """``path``, or its bytes with NUL replaced by U+0001 when the file holds NUL bytes.
+
+    pandas' C parser (before pandas 3) ends a field at a NUL byte, which would silently
+    shorten a value such as ``open\x00chart``; as U+0001 the row keeps its length and is
+    rejected as ``control_characters`` like any other control character. Only for
+    encodings in which NUL is the single byte 0 (UTF-16 files contain NUL bytes anyway).
+    """
+    try:
+        name = codecs.lookup(encoding).name
+    except LookupError:
+        return path
+    if ("\x00".encode("utf-8" if name == "utf-8-sig" else name) != b"\x00"):
+        return path
+    with open(path, "rb") as fh:
+        try:
+            view = mmap.mmap(fh.fileno(), 0, access=mmap.ACCESS_READ)
+        except (ValueError, OSError):  # empty file, or not mappable (pipe)
+            return path
+        with view:
+            if view.find(b"\x00") == -1:
+                return path
+            return io.BytesIO(view[:].replace(b"\x00", b"\x01"))
+
+
 def _read_delimited(path, fmt, delimiter, encoding):
     enc = "utf-8-sig" if encoding.lower().replace("_", "-") in ("utf-8", "utf8") else encoding
     try:
@@ -323,8 +365,9 @@ def _read_delimited(path, fmt, delimiter, encoding):
         counts = {c: header.count(c) for c in (",", "\t", ";", "|")}
         if counts.get(sep, 0) == 0 and max(counts.values()) > 0:
             sep = max(counts, key=counts.get)
+    source = _without_nul(path, enc)
     try:
-        df = pd.read_csv(path, sep=sep, dtype=str, keep_default_na=False, na_values=[],
+        df = pd.read_csv(source, sep=sep, dtype=str, keep_default_na=False, na_values=[],
                          encoding=enc, skip_blank_lines=True, engine="c")
     except UnicodeDecodeError:
         raise DataFileError(_decode_message(path, encoding)) from None
@@ -574,8 +617,9 @@ def _validate(raw, cols, path, duplicates, max_action_length):
     checks = [
         ("missing_learner", (lser == "").to_numpy()),
         ("missing_action", (aser == "").to_numpy()),
-        ("control_characters", (lser.str.contains(_CONTROL, regex=True)
-                                | aser.str.contains(_CONTROL, regex=True)).to_numpy(dtype=bool)),
+        ("control_characters", (lser.str.contains(CONTROL_CHARACTERS, regex=True)
+                                | aser.str.contains(CONTROL_CHARACTERS, regex=True)
+                                ).to_numpy(dtype=bool)),
         ("action_too_long", (aser.str.len() > max_action_length).to_numpy(dtype=bool)),
     ]
     for code, mask in checks:

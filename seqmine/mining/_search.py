@@ -23,10 +23,6 @@ MAX_CANDIDATE_CELLS = 2**26
 
 __all__ = []  # private module
 
-#: Work counters of the last search (read by benchmarks/bench_mine.py).
-LAST_STATS = {}
-
-
 def search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_fn,
            max_length, max_patterns, cons, with_counts=True):
     """Level-wise bulk projection.
@@ -34,7 +30,10 @@ def search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_f
     Returns ``levels`` (index 0 = the root) with per-level node arrays ``parent``,
     ``sym``, ``suffix``, ``pats`` (local symbols), ``support`` (n, G), ``child_in``
     (table of level k-1 ids x symbols -> level k ids), ``target``; and the instance
-    count triples per block ``(n_seq, [(level, node, local seq, count), ...])``.
+    count triples per block ``(n_seq, [(level, node, local seq, count), ...])``; and
+    the work counters of this search, ``{"mode", "n_blocks", "levels": [{"length",
+    "candidates", "frequent", "occurrences_extended", "occurrences_kept"}, ...],
+    "instance_counts"}``.
     """
     n_sym = len(alphabet)
     lut = np.full(len(db.vocab), -1, dtype=np.int32)
@@ -50,8 +49,7 @@ def search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_f
                 target=np.zeros(1, bool))
     levels = [root]
     steps = [None]                   # steps[j] = (plan, new_id): level j-1 -> level j
-    LAST_STATS.clear()
-    LAST_STATS.update(mode=mode, n_blocks=len(blocks), levels=[])
+    stats = dict(mode=mode, n_blocks=len(blocks), levels=[])
     triples = [(block.n_seq, []) for block in blocks]
     stored = mode == "gap"
     occ = [None] * len(blocks)
@@ -130,7 +128,7 @@ def search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_f
             counts = counts[flat]
             keep = keep_fn(k + 1, counts[:, :G], flat)
             new_flat = flat[keep]
-            LAST_STATS["levels"].append(dict(
+            stats["levels"].append(dict(
                 length=k + 1, candidates=int(len(flat)), frequent=int(len(new_flat)),
                 occurrences_extended=int(n_in),
                 occurrences_kept=int(counts[keep].sum())))
@@ -195,8 +193,8 @@ def search(db, *, alphabet, gidx, G, mode, level1, allowed_fn, keep_fn, target_f
                 block.release()
     finally:
         bar.close()
-    LAST_STATS["instance_counts"] = int(sum(len(t[1]) for _, trip in triples for t in trip))
-    return levels, triples
+    stats["instance_counts"] = int(sum(len(t[1]) for _, trip in triples for t in trip))
+    return levels, triples, stats
 
 
 def node_offsets(levels):

@@ -33,7 +33,7 @@ from .._util.jsonio import json_default
 from ..encoding.sequences import SequenceDB
 from ..errors import DataFileError, ParameterError
 from ._search import assemble_counts, build_trie, node_offsets, search
-from .patterns import PatternSet, parse_pattern
+from .patterns import PatternSet, is_subsequence, parse_pattern
 
 __all__ = ["mine", "match", "pattern_table", "save_patternset", "load_patternset",
            "DEFAULT_MAX_PATTERNS"]
@@ -176,7 +176,7 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
             ok &= ~is_pause_local[lev["sym"]]
         return ok
 
-    levels, triples = search(
+    levels, triples, stats = search(
         db, alphabet=alphabet, gidx=gidx, G=G, mode=mode, level1=level1,
         allowed_fn=allowed_fn, keep_fn=keep_fn, target_fn=target_fn,
         max_length=max_length, max_patterns=max_patterns,
@@ -214,7 +214,7 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
     return PatternSet(
         patterns=[pats[i] for i in idx], vocab=list(db.vocab), is_pause=db.is_pause.copy(),
         group_names=names, group_sizes=sizes, support_counts=support[idx],
-        counts=counts, seq_groups=seq_groups, constraints=constraints)
+        counts=counts, seq_groups=seq_groups, constraints=constraints, search_stats=stats)
 
 
 def match(db, patterns, *, max_gap=None, max_window=None, skip_pauses=False):
@@ -275,7 +275,7 @@ def match(db, patterns, *, max_gap=None, max_window=None, skip_pauses=False):
     def target_fn(k, lev):
         return trie[k]["is_pattern"]
 
-    levels, triples = search(
+    levels, triples, stats = search(
         db, alphabet=alphabet, gidx=gidx, G=G, mode=mode, level1=trie[1]["sym"],
         allowed_fn=allowed_fn, keep_fn=keep_fn, target_fn=target_fn,
         max_length=len(trie) - 1, max_patterns=None, cons=engine_cons)
@@ -288,7 +288,7 @@ def match(db, patterns, *, max_gap=None, max_window=None, skip_pauses=False):
         patterns=[tuple(int(t) for t in p) for p in pats], vocab=list(db.vocab),
         is_pause=db.is_pause.copy(), group_names=names, group_sizes=sizes,
         support_counts=support[nodes], counts=counts, seq_groups=seq_groups,
-        constraints=constraints)
+        constraints=constraints, search_stats=stats)
 
 
 def pattern_table(ps):
@@ -588,17 +588,12 @@ def _superpattern_flags_slow(pats, support):
     not_maximal = np.zeros(n, dtype=bool)
     for i, p in enumerate(pats):
         for j, q in enumerate(pats):
-            if len(q) > len(p) and _is_subsequence(p, q):
+            if len(q) > len(p) and is_subsequence(p, q):
                 not_maximal[i] = True
                 if np.array_equal(support[i], support[j]):
                     not_closed[i] = True
                     break
     return not_closed, not_maximal
-
-
-def _is_subsequence(p, q):
-    it = iter(q)
-    return all(any(x == y for y in it) for x in p)
 
 
 def _first_item_ids(first_items, db):

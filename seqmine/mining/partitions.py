@@ -14,8 +14,8 @@ import numpy as np
 import scipy.sparse as sp
 
 from .._util.checks import check_int
-from .._util.parallel import parallel_map
-from .._util.progress import is_quiet, set_quiet
+from .._util.parallel import n_workers, parallel_map
+from .._util.progress import quiet_mode
 from ..encoding.sequences import SequenceDB
 from ..errors import ParameterError, PatternExplosionError
 from .miner import DEFAULT_MAX_PATTERNS, _superpattern_flags, mine
@@ -85,7 +85,7 @@ def mine_parallel(db, *, jobs=1, scheduler=None, partitions=None, min_support=0.
         mw = check_int(params["max_window"], "max_window", where, minimum=1)
         if mw < min_length:
             return mine(db, **kwargs)   # raises the miner's own message
-    workers = _workers(jobs)
+    workers = n_workers(jobs, where)
     n_parts = check_int(partitions, "partitions", where, minimum=1, allow_none=True)
     parts = _partition_first_items(db, n_parts or 2 * workers)
     slim = _slim(db)
@@ -97,15 +97,6 @@ def mine_parallel(db, *, jobs=1, scheduler=None, partitions=None, min_support=0.
 
 
 # --------------------------------------------------------------------- helpers
-def _workers(jobs):
-    if jobs is None or jobs == 1:
-        return 1
-    if jobs == -1:
-        import os
-        return max(1, os.cpu_count() or 1)
-    return check_int(jobs, "jobs", "mine", minimum=1)
-
-
 def _partition_first_items(db, n_parts):
     """Token ids split into at most ``n_parts`` groups of similar total frequency."""
     freq = np.bincount(db.tokens, minlength=len(db.vocab)).astype(np.int64)
@@ -135,12 +126,8 @@ def _mine_partition(task):
                     learners=np.full(n_seq, "", dtype=object),
                     sessions=np.full(n_seq, "", dtype=object),
                     groups=groups, group_names=group_names)
-    quiet = is_quiet()
-    set_quiet(True)      # one bar per partition would interleave
-    try:
+    with quiet_mode():  # one bar per partition would interleave
         return mine(db, first_items=part, **kwargs)
-    finally:
-        set_quiet(quiet)
 
 
 def _serial_key(ps):

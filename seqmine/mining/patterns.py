@@ -32,7 +32,7 @@ import scipy.sparse as sp
 
 from ..errors import ParameterError
 
-__all__ = ["PatternSet", "PATTERN_SEPARATOR", "format_pattern", "parse_pattern"]
+__all__ = ["PatternSet", "PATTERN_SEPARATOR", "format_pattern", "parse_pattern", "is_subsequence"]
 
 #: Separator between tokens in a pattern's readable name (``a > b > c``).
 PATTERN_SEPARATOR = " > "
@@ -41,6 +41,20 @@ PATTERN_SEPARATOR = " > "
 def format_pattern(pattern, vocab):
     """Readable name of a pattern given as token ids."""
     return PATTERN_SEPARATOR.join(vocab[t] for t in pattern)
+
+
+def is_subsequence(short, long):
+    """True when ``short`` occurs in ``long`` in order, gaps allowed (no constraints).
+
+    Examples
+    --------
+    >>> is_subsequence(("a", "c"), ("a", "b", "c")), is_subsequence(("c", "a"), ("a", "b", "c"))
+    (True, False)
+    """
+    if len(short) > len(long):
+        return False
+    it = iter(long)
+    return all(any(x == y for y in it) for x in short)
 
 
 def parse_pattern(text, vocab):
@@ -82,6 +96,11 @@ class PatternSet:
     constraints : dict
         The matching constraints (``max_gap``, ``max_window``, ``skip_pauses``, ...)
         and mining thresholds used.
+    search_stats : dict, optional
+        Work counters of the search that produced the set (blocks, candidates and
+        occurrences per level, instance counts), as returned by the private search;
+        empty for sets read from a file or assembled from pieces. Not compared and
+        not saved.
     """
 
     patterns: list
@@ -93,6 +112,7 @@ class PatternSet:
     counts: sp.csr_matrix
     seq_groups: np.ndarray
     constraints: dict = field(default_factory=dict)
+    search_stats: dict = field(default_factory=dict, compare=False, repr=False)
 
     def __post_init__(self):
         self.patterns = [tuple(int(t) for t in p) for p in self.patterns]

@@ -15,14 +15,13 @@ Public API
 from .classify import GroupHMMClassifier
 from .compare import (
                       align_states,
-                      bh_adjust,
                       compare_state_paths,
                       compare_transitions,
                       model_distance,
                       path_measures,
                       state_paths_db,
 )
-from .fitting import fit_phase_model, learner_folds, parse_state_range, select_n_states
+from .fitting import fit_phase_model, parse_state_range, select_n_states
 from .model import PhaseModel, name_state
 from .plot import plot_phase_model
 from .run import PhaseResult, fit_phases, load_phase_models
@@ -35,7 +34,6 @@ __all__ = [
     "name_state",
     "fit_phase_model",
     "select_n_states",
-    "learner_folds",
     "parse_state_range",
     "compare_state_paths",
     "path_measures",
@@ -43,7 +41,6 @@ __all__ = [
     "compare_transitions",
     "model_distance",
     "state_paths_db",
-    "bh_adjust",
     "GroupHMMClassifier",
     "plot_phase_model",
 ]

@@ -45,7 +45,7 @@ class GroupHMMClassifier(ClassifierMixin, BaseEstimator):
     prior : {"empirical", "uniform"}
         Class prior: share of training sequences, or equal.
     n_jobs : int
-        joblib workers for the restarts.
+        Worker processes for the restarts (``-1`` = all cores).
 
     Attributes
     ----------

@@ -11,6 +11,7 @@ from scipy.stats import mannwhitneyu
 from .._util.checks import check_fraction, check_int
 from ..encoding.sequences import SequenceDB
 from ..errors import ParameterError
+from ..scoring.multitest import adjust_pvalues
 from .model import PhaseModel  # noqa: F401  (used by the doctests)
 
 __all__ = [
@@ -20,7 +21,6 @@ __all__ = [
     "compare_transitions",
     "model_distance",
     "state_paths_db",
-    "bh_adjust",
 ]
 
 _MEASURE_COLUMNS = ["measure", "state", "to_state", "state_name", "to_state_name",
@@ -149,7 +149,7 @@ def compare_state_paths(model, db, states=None, *, groups=None, alpha=0.05):
                     row.update(u_statistic=u, cliffs_delta=2.0 * u / (len(a) * len(b)) - 1.0,
                                p_value=float(res.pvalue))
             block.append(row)
-        q = bh_adjust([r["p_value"] for r in block])
+        q = adjust_pvalues([r["p_value"] for r in block], "bh")
         for r, qq in zip(block, q):
             r["q_value"] = float(qq)
             fav = ""
@@ -284,30 +284,6 @@ def state_paths_db(model, db, states):
                       source_rows=db.source_rows.copy(), learners=db.learners.copy(),
                       sessions=db.sessions.copy(), groups=db.groups.copy(),
                       group_names=list(db.group_names), encoding=encoding)
-
-
-def bh_adjust(p_values):
-    """Benjamini--Hochberg adjusted p-values (step-up); NaN passes through.
-
-    Examples
-    --------
-    >>> bh_adjust([0.01, 0.04, 0.03, float("nan")]).round(4).tolist()
-    [0.03, 0.04, 0.04, nan]
-    """
-    p = np.asarray(p_values, dtype=np.float64)
-    out = np.full(p.shape, np.nan)
-    ok = ~np.isnan(p)
-    m = int(ok.sum())
-    if m == 0:
-        return out
-    pv = p[ok]
-    order = np.argsort(pv, kind="stable")
-    ranked = pv[order] * m / np.arange(1, m + 1)
-    ranked = np.minimum.accumulate(ranked[::-1])[::-1]
-    adj = np.empty(m)
-    adj[order] = np.minimum(ranked, 1.0)
-    out[ok] = adj
-    return out
 
 
 # ----------------------------------------------------------------- helpers

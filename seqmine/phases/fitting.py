@@ -7,15 +7,16 @@ import warnings
 
 import numpy as np
 import pandas as pd
-from joblib import Parallel, delayed
 
-from .._util.checks import check_int, check_number
+from .._util.checks import check_int, check_jobs, check_number
+from .._util.folds import learner_splits
+from .._util.parallel import parallel_map
 from ..encoding.sequences import SequenceDB
 from ..errors import ParameterError, SeqmineWarning
 from . import _hmm
 from .model import PhaseModel
 
-__all__ = ["fit_phase_model", "select_n_states", "learner_folds", "parse_state_range"]
+__all__ = ["fit_phase_model", "select_n_states", "parse_state_range"]
 
 #: Default additive emission smoothing (see :func:`_hmm.apply_emission_floor`).
 DEFAULT_EMISSION_FLOOR = 1e-4
@@ -40,7 +41,7 @@ def fit_phase_model(sequences, *, n_states=3, n_restarts=5, seed=0, n_jobs=1, n_
     n_restarts : int
     seed : int
     n_jobs : int
-        joblib workers (``-1`` = all cores).
+        Worker processes (``-1`` = all cores; see :func:`seqmine._util.parallel.parallel_map`).
     n_iter : int
         Maximum EM iterations per restart.
     tol : float
@@ -65,7 +66,7 @@ def fit_phase_model(sequences, *, n_states=3, n_restarts=5, seed=0, n_jobs=1, n_
     X, lengths, vocab = _arrays(sequences, vocab)
     n_states = check_int(n_states, "n_states", "fit_phase_model", minimum=1)
     n_restarts = check_int(n_restarts, "n_restarts", "fit_phase_model", minimum=1)
-    n_jobs = _check_jobs(n_jobs, "fit_phase_model")
+    n_jobs = check_jobs(n_jobs, "n_jobs", "fit_phase_model")
     emission_floor = check_number(emission_floor, "emission_floor", "fit_phase_model",
                                   minimum=0)
     _check_supported(n_states, len(vocab), len(X), label)
@@ -98,7 +99,7 @@ def select_n_states(sequences, *, n_states=range(2, 7), n_restarts=5, n_folds=3,
     X, lengths, vocab = _arrays(sequences, vocab)
     counts = parse_state_range(n_states)
     n_restarts = check_int(n_restarts, "n_restarts", "select_n_states", minimum=1)
-    n_jobs = _check_jobs(n_jobs, "select_n_states")
+    n_jobs = check_jobs(n_jobs, "n_jobs", "select_n_states")
     n_folds = check_int(n_folds, "n_folds", "select_n_states", minimum=0)
     if n_folds == 1:
         raise ParameterError("The 'n_folds' parameter of select_n_states must be 0 (no "
@@ -121,8 +122,8 @@ def select_n_states(sequences, *, n_states=range(2, 7), n_restarts=5, n_folds=3,
     tasks = [(n, r) for n in counts for r in range(n_restarts)]
     fold_of = None
     if n_folds:
-        fold_of = learner_folds(learners if learners is not None else
-                                np.arange(len(lengths)).astype(str), n_folds, seed)
+        fold_of = _learner_folds(learners if learners is not None else
+                                 np.arange(len(lengths)).astype(str), n_folds, seed)
         tasks_cv = [(n, r, f) for f in range(n_folds) for n in counts for r in range(n_restarts)]
     # all fits in one parallel batch
     offsets = np.zeros(len(lengths) + 1, dtype=np.int64)
@@ -173,28 +174,25 @@ def select_n_states(sequences, *, n_states=range(2, 7), n_restarts=5, n_folds=3,
     return table, models
 
 
-def learner_folds(learners, n_folds, seed):
-    """Fold number of each sequence; all sequences of one learner share a fold.
-
-    Learners (sorted distinct identifiers) are shuffled with a seeded generator and
-    dealt round-robin into ``n_folds`` folds.
+def _learner_folds(learners, n_folds, seed):
+    """Fold number of each sequence for held-out scoring; a learner's sequences share one.
 
     Examples
     --------
-    >>> learner_folds(["a", "b", "a", "c"], 2, 0).tolist()
+    >>> _learner_folds(["a", "b", "a", "c"], 2, 0).tolist()
     [1, 0, 1, 0]
     """
-    learners = np.asarray(learners).astype(str)
-    uniq, inv = np.unique(learners, return_inverse=True)
-    if len(uniq) < n_folds:
+    n_learners = len(np.unique(np.asarray(learners).astype(str)))
+    if n_learners < n_folds:
         raise ParameterError(
             f"Held-out scoring needs at least {n_folds} learners (one per fold) but the data "
-            f"has {len(uniq)}; lower 'n_folds' (0 switches held-out scoring off).")
-    rng = np.random.default_rng(_hmm.derive_seed(seed, 7919))
-    perm = rng.permutation(len(uniq))
-    fold_of_learner = np.empty(len(uniq), dtype=np.int64)
-    fold_of_learner[perm] = np.arange(len(uniq)) % n_folds
-    return fold_of_learner[inv]
+            f"has {n_learners}; lower 'n_folds' (0 switches held-out scoring off).")
+    fold_of = np.empty(len(learners), dtype=np.int64)
+    splits = learner_splits(learners, folds=n_folds, seed=_hmm.derive_seed(seed, 7919),
+                            where="select_n_states")
+    for f, (_, test) in enumerate(splits):
+        fold_of[test] = f
+    return fold_of
 
 
 def parse_state_range(value):
@@ -252,14 +250,6 @@ def _arrays(sequences, vocab=None):
     return X, lengths, list(vocab)
 
 
-def _check_jobs(n_jobs, where):
-    n_jobs = check_int(n_jobs, "n_jobs", where)
-    if n_jobs == 0:
-        raise ParameterError(f"The 'n_jobs' parameter of {where} must be a positive int or "
-                             f"-1 (all cores). Got 0 instead.")
-    return n_jobs
-
-
 def _check_supported(n_states, n_symbols, n_tokens, label):
     k = _hmm.n_free_parameters(n_states, n_symbols)
     if k >= n_tokens:
@@ -276,7 +266,8 @@ def _take(X, offsets, lengths, idx):
     return Xs, lens
 
 
-def _fit_job(X, lengths, n_symbols, n_states, seed, kwargs):
+def _fit_job(call):
+    X, lengths, n_symbols, n_states, seed, kwargs = call
     return _hmm.fit_restart(X, lengths, n_states, n_symbols, seed, **kwargs)
 
 
@@ -284,9 +275,7 @@ def _parallel(jobs, n_symbols, seed, purpose, n_jobs, **kwargs):
     """Run ``(X, lengths, n_states, restart, fold)`` fits; order of results = order of jobs."""
     calls = [(X, lengths, n_symbols, n, _hmm.derive_seed(seed, purpose, n, fold, r), kwargs)
              for X, lengths, n, r, fold in jobs]
-    if n_jobs == 1 or len(calls) <= 1:
-        return [_fit_job(*c) for c in calls]
-    return Parallel(n_jobs=n_jobs)(delayed(_fit_job)(*c) for c in calls)
+    return parallel_map(_fit_job, calls, jobs=n_jobs)
 
 
 def _run(X, lengths, n_symbols, tasks, seed, purpose, fold, n_jobs, **kwargs):

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 import hashlib
 import json
 import re
@@ -10,11 +11,11 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
-from joblib import Parallel, delayed
 
-from .._util.checks import check_choice, check_fraction, check_int, check_number
+from .._util.checks import check_choice, check_fraction, check_int, check_jobs, check_number
 from .._util.csvio import write_csv
 from .._util.jsonio import write_json
+from .._util.parallel import parallel_map
 from .._util.progress import progress
 from ..encoding.sequences import SequenceDB
 from ..errors import ParameterError
@@ -28,7 +29,6 @@ from .compare import (
 )
 from .fitting import (
     DEFAULT_EMISSION_FLOOR,
-    _check_jobs,
     fit_phase_model,
     parse_state_range,
     select_n_states,
@@ -190,7 +190,7 @@ def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, crit
         Baum--Welch restarts per fit (seeded; best log-likelihood wins).
     seed : int
     n_jobs : int
-        joblib workers for restarts, state counts and permutations; results equal
+        Worker processes for restarts, state counts and permutations; results equal
         the serial run.
     criterion : {"bic", "heldout"}
     n_folds : int
@@ -229,7 +229,7 @@ def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, crit
         raise ParameterError(f"fit_phases needs a SequenceDB; got {type(db).__name__}.")
     counts = parse_state_range(n_states)
     n_restarts = check_int(n_restarts, "n_restarts", where, minimum=1)
-    n_jobs = _check_jobs(n_jobs, where)
+    n_jobs = check_jobs(n_jobs, "n_jobs", where)
     seed = check_int(seed, "seed", where, minimum=0)
     criterion = check_choice(criterion, "criterion", ("bic", "heldout"), where)
     n_folds = check_int(n_folds, "n_folds", where, minimum=0)
@@ -379,12 +379,9 @@ def _distance_with_reference(data, models, ga, gb, pair_no, n_states, n_restarts
         for p in range(n_permutations):
             rng = np.random.default_rng(_hmm.derive_seed(seed, 31337, pair_no, p))
             labelings.append(rng.permutation(is_a))
-        calls = [delayed(_warm_distance)(data, members, mask, start, dseed, distance_tokens,
-                                         fit_kw) for mask in labelings]
-        if n_jobs == 1:
-            stats = [c[0](*c[1], **c[2]) for c in calls]
-        else:
-            stats = Parallel(n_jobs=n_jobs)(calls)
+        stats = parallel_map(functools.partial(_warm_distance, data, members, start=start,
+                                               dseed=dseed, distance_tokens=distance_tokens,
+                                               fit_kw=fit_kw), labelings, jobs=n_jobs)
         observed, ref = stats[0], np.asarray(stats[1:])
         row.update(test_statistic=float(observed), permutation_mean=float(ref.mean()),
                    permutation_max=float(ref.max()),

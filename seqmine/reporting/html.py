@@ -14,6 +14,7 @@ from html import escape
 
 import numpy as np
 
+from .._util.text import replace_control_characters
 from . import plots as _plots
 
 __all__ = ["esc", "lookup", "config_of", "counts_of", "group_names_of", "top_patterns",
@@ -24,7 +25,6 @@ PAGE_TITLE = "seqmine report: behaviour patterns and outcomes"
 #: How the report writes a pattern: the tokens joined as in patterns.csv.
 PATTERN_SEPARATOR = " > "
 _SEP = PATTERN_SEPARATOR
-_CONTROL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f]")
 _CORRECTIONS = {
     "bh": "Benjamini–Hochberg false discovery rate",
     "fdr_bh": "Benjamini–Hochberg false discovery rate",
@@ -160,7 +160,7 @@ def esc(value, max_chars=400):
     >>> esc('<script>alert("x")</script>')
     '&lt;script&gt;alert(&quot;x&quot;)&lt;/script&gt;'
     """
-    s = _CONTROL.sub("\ufffd", str(value))
+    s = replace_control_characters(str(value), keep_layout=True)
     if len(s) > max_chars:
         s = s[: max_chars - 1] + "…"
     return escape(s, quote=True)
@@ -345,13 +345,13 @@ def _five_numbers(obj):
         return {}
     out = {}
     for g, v in obj.items():
-        if isinstance(v, dict) and all(_is_num(v.get(k)) for k in ("min", "q1", "median", "q3",
+        if isinstance(v, dict) and all(_is_finite(v.get(k)) for k in ("min", "q1", "median", "q3",
                                                                      "max")):
             out[str(g)] = {k: float(v[k]) for k in ("min", "q1", "median", "q3", "max")}
-            if _is_num(v.get("n")):
+            if _is_finite(v.get("n")):
                 out[str(g)]["n"] = v["n"]
         elif isinstance(v, list):
-            x = np.asarray([_num(t) for t in v], dtype=float)
+            x = np.asarray([_as_float(t) for t in v], dtype=float)
             x = x[np.isfinite(x)]
             if x.size:
                 q = np.quantile(x, [0, 0.25, 0.5, 0.75, 1])
@@ -363,13 +363,13 @@ def _five_numbers(obj):
 def _describe_grouping(v):
     """Readable rule of the outcome groups (``summary.json`` ``grouping``)."""
     if isinstance(v, dict) and v.get("rule") in _RULES and all(
-            _is_num(v.get(k)) for k in ("low", "high")):
+            _is_finite(v.get(k)) for k in ("low", "high")):
         return esc(_RULES[v["rule"]].format(low=_fmt(v["low"], 2), high=_fmt(v["high"], 2)))
     if isinstance(v, dict) and v.get("rule") == "label":
         return "the groups named in the outcome table's label column"
     if isinstance(v, dict):
         rule = v.get("rule")
-        rest = [f"{esc(k)} {_fmt(x, 3) if _is_num(x) else esc(x)}"
+        rest = [f"{esc(k)} {_fmt(x, 3) if _is_finite(x) else esc(x)}"
                 for k, x in v.items() if k != "rule"]
         text = f"rule: {esc(rule)}" if rule is not None else ""
         return "; ".join([t for t in [text, ", ".join(rest)] if t]) or "–"
@@ -479,7 +479,8 @@ def _str_list(v, n):
     return None
 
 
-def _is_num(v):
+def _is_finite(v):
+    """True when ``v`` converts to a finite float (numbers and numeric strings, not booleans)."""
     if isinstance(v, bool):
         return False
     try:
@@ -488,7 +489,8 @@ def _is_num(v):
         return False
 
 
-def _num(v, default=math.nan):
+def _as_float(v, default=math.nan):
+    """``float(v)`` (infinities kept), or ``default`` for booleans and non-numbers."""
     if isinstance(v, bool):
         return default
     try:
@@ -498,19 +500,19 @@ def _num(v, default=math.nan):
 
 
 def _int(v):
-    x = _num(v)
+    x = _as_float(v)
     return f"{int(round(x)):,}" if math.isfinite(x) else "–"
 
 
 def _fmt(v, digits):
-    x = _num(v)
+    x = _as_float(v)
     if not math.isfinite(x):
         return "–" if not (isinstance(x, float) and math.isinf(x)) else ("∞" if x > 0 else "−∞")
     return f"{x:,.{digits}f}"
 
 
 def _fmt_p(v):
-    x = _num(v)
+    x = _as_float(v)
     if not math.isfinite(x):
         return "–"
     if x < 0.001:
@@ -519,12 +521,12 @@ def _fmt_p(v):
 
 
 def _pct(v):
-    x = _num(v)
+    x = _as_float(v)
     return f"{100 * x:.0f}%" if math.isfinite(x) else "–"
 
 
 def _duration(seconds):
-    s = _num(seconds)
+    s = _as_float(seconds)
     if not math.isfinite(s):
         return "–"
     if s < 60:

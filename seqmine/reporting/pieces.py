@@ -13,6 +13,7 @@ import numpy as np
 
 from . import plots as _plots
 from .html import (
+    _as_float,
     _chip,
     _chips,
     _clock,
@@ -21,9 +22,8 @@ from .html import (
     _fmt_p,
     _group_label,
     _int,
-    _is_num,
+    _is_finite,
     _missing,
-    _num,
     _ordered,
     _pct,
     _plural,
@@ -42,7 +42,7 @@ def _pattern_card(rank, row, sup_cols, groups, alpha, excerpts, examples, max_ex
     out = ['<article class="card">',
            f'<h3><span class="rank">{rank}.</span>{_chips(tokens)}</h3>']
     fav = str(row.get("favours", "") or "")
-    q = _num(row.get("q_value"))
+    q = _as_float(row.get("q_value"))
     if fav:
         out.append(f"<p>More common among {_group_label(fav, groups)} learners.</p>")
     elif math.isfinite(q) and q > alpha:
@@ -50,7 +50,7 @@ def _pattern_card(rank, row, sup_cols, groups, alpha, excerpts, examples, max_ex
     if sup_cols:
         out.append('<div class="bars">')
         for g, c in sup_cols:
-            v = _num(row[c])
+            v = _as_float(row[c])
             width = f"{100 * min(max(v, 0.0), 1.0):.1f}" if math.isfinite(v) else "0"
             color = _plots.PALETTE[groups.index(g) % len(_plots.PALETTE)]
             out.append(f"<span>{esc(g)}</span><div class=\"bar\"><span style=\"width:{width}%;"
@@ -81,18 +81,18 @@ def _excerpt(ex, groups):
     if ex.get("group"):
         who += f" · {_group_label(ex['group'], groups)}"
     events = [e for e in (ex.get("events") or []) if isinstance(e, dict)]
-    t0 = next((_num(e.get("time")) for e in events if math.isfinite(_num(e.get("time")))), None)
+    t0 = next((_as_float(e.get("time")) for e in events if math.isfinite(_as_float(e.get("time")))), None)
     cells = []
     for e in events:
         if "elided" in e:
-            cells.append(f'<span class="gap">… {_plural(_num(e["elided"], 0), "token")} '
+            cells.append(f'<span class="gap">… {_plural(_as_float(e["elided"], 0), "token")} '
                          "…</span>")
             continue
         tok = str(e.get("token", e.get("action", "?")))
         hit = e.get("matched") is True
-        t = _num(e.get("time"))
+        t = _as_float(e.get("time"))
         when = _clock(t - t0) if t0 is not None and math.isfinite(t) else ""
-        gap = _num(e.get("pause"))
+        gap = _as_float(e.get("pause"))
         if tok.startswith("pause:") and math.isfinite(gap):
             when = _duration(gap)
         mark = " ✓" if hit else ""
@@ -136,8 +136,8 @@ def _detector_card(i, det, groups, show_example=True):
     pauses = det.get("pause_seconds")
     if isinstance(pauses, dict):
         for tok, span in pauses.items():
-            if isinstance(span, list) and len(span) == 2 and _is_num(span[0]):
-                lo, hi = _num(span[0]), _num(span[1])
+            if isinstance(span, list) and len(span) == 2 and _is_finite(span[0]):
+                lo, hi = _as_float(span[0]), _as_float(span[1])
                 text = (f"{_duration(lo)} or more" if not math.isfinite(hi) else
                         f"{_duration(lo)} to under {_duration(hi)}")
                 facts.append(f"<span>{_chip(tok)} = {text}</span>")
@@ -165,9 +165,9 @@ def _when_it_hints(det, direction):
         return "Hints when the pattern <b>occurs</b>."
     absence = det.get("absence") if isinstance(det.get("absence"), dict) else {}
     when = []
-    if _is_num(absence.get("after_events")):
+    if _is_finite(absence.get("after_events")):
         when.append(f"{_int(absence['after_events'])} events")
-    if _is_num(absence.get("after_seconds")):
+    if _is_finite(absence.get("after_seconds")):
         when.append(_duration(absence["after_seconds"]))
     if when:
         return ("Hints when the pattern has <b>not occurred</b> after "
@@ -219,7 +219,7 @@ def _flatten(obj, prefix=(), depth=0):
 
 
 def _evidence_value(key, v):
-    if isinstance(v, bool) or not _is_num(v):
+    if isinstance(v, bool) or not _is_finite(v):
         if isinstance(v, float) and math.isnan(v) or v is None:
             return "–"
         return esc(v if not isinstance(v, (dict, list)) else json.dumps(v, sort_keys=True))
@@ -256,9 +256,9 @@ def _transition_figure(sub, g, figs, max_tokens=16):
     for _, r in sub.iterrows():
         a, b = str(r["from"]), str(r["to"])
         if a in idx and b in idx:
-            m[idx[a], idx[b]] = _num(r["adjusted_residual"])
+            m[idx[a], idx[b]] = _as_float(r["adjusted_residual"])
             if "count" in sub.columns:
-                c[idx[a], idx[b]] = _num(r["count"])
+                c[idx[a], idx[b]] = _as_float(r["count"])
     svg = _plots.svg_residual_heatmap(m, keep, keep, title=f"Adjusted residuals: {g}",
                                       fig_id=figs(),
                                       counts=c if "count" in sub.columns else None)
@@ -321,7 +321,7 @@ def _state_selection(inp, used=None):
                 row.append(_fmt(r[c], 0 if c == "n_states" else 1))
         notes = [{"best_bic": "lowest BIC", "best_heldout": "best held-out",
                   "chosen": "chosen"}[c] for c in marks if _true(r[c])]
-        if _is_num(used) and _num(r.get("n_states")) == _num(used):
+        if _is_finite(used) and _as_float(r.get("n_states")) == _as_float(used):
             notes.append("used")
         row.append(esc(", ".join(dict.fromkeys(notes))))
         rows.append(row)
@@ -357,8 +357,8 @@ def _occupancy(inp, groups, figs):
             else str(r["state"])
     states = list(dict.fromkeys(str(x) for x in sub["state"]))
     first = {st: sub[sub["state"].astype(str) == st].iloc[0] for st in states}
-    means = {str(ga): [_num(first[st]["mean_a"]) for st in states],
-             str(gb): [_num(first[st]["mean_b"]) for st in states]}
+    means = {str(ga): [_as_float(first[st]["mean_a"]) for st in states],
+             str(gb): [_as_float(first[st]["mean_b"]) for st in states]}
     out = [head, _plots.svg_occupancy([label[st] for st in states], means, fig_id=figs())]
     extra = [c for c in ("cliffs_delta", "q_value", "favours") if c in sub.columns]
     rows = []
@@ -398,7 +398,7 @@ def _rejects(inp, counts):
     head = "<h3>Rejected rows</h3>"
     by_reason = counts.get("rejects_by_reason")
     if not inp.ok and isinstance(by_reason, dict) and by_reason:
-        ranked = sorted(by_reason.items(), key=lambda kv: (-_num(kv[1], 0.0), str(kv[0])))
+        ranked = sorted(by_reason.items(), key=lambda kv: (-_as_float(kv[1], 0.0), str(kv[0])))
         return head + _missing(inp.note) + _reason_table(ranked)
     if not inp.ok:
         return head + _missing(inp.note)
@@ -449,7 +449,7 @@ def _pause_bins(summary):
     head = "<h3>Pause bins</h3>"
     if not pause:
         return head + _missing("pause bins not recorded in summary.json")
-    edges = [_num(e) for e in _list(pause.get("edges"))]
+    edges = [_as_float(e) for e in _list(pause.get("edges"))]
     labels = [str(x) for x in _list(pause.get("labels"))]
     implicit = {str(x) for x in _list(pause.get("implicit"))}
     if not all(math.isfinite(e) for e in edges) or edges != sorted(edges):

@@ -25,6 +25,8 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.colors import LinearSegmentedColormap
 from matplotlib.figure import Figure
 
+from .._util.text import replace_control_characters
+
 __all__ = [
     "PALETTE",
     "clean_label",
@@ -67,7 +69,6 @@ _RC = {
     "path.simplify": False,
 }
 _METADATA = {"Date": None, "Creator": None, "Format": None, "Type": None}
-_CONTROL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f]")
 
 
 def clean_label(text, max_chars=48):
@@ -94,7 +95,7 @@ def clean_label(text, max_chars=48):
     >>> clean_label("x" * 10, max_chars=5)
     'xxxx…'
     """
-    s = _CONTROL.sub("\ufffd", str(text))
+    s = replace_control_characters(str(text), keep_layout=True)
     s = " ".join(s.split())
     if len(s) > max_chars:
         s = s[: max_chars - 1] + "…"

@@ -21,7 +21,7 @@ from .html import (
     _h2,
     _int,
     _missing,
-    _num,
+    _as_float,
     _pct,
     _plural,
     _section,
@@ -89,7 +89,7 @@ def prediction_glance(d):
     others = [classifier_label(n) for n in at["classifier"].iloc[1:]]
     spread = _range_words(best, "balanced_accuracy")
     base = (f"; majority baseline accuracy {_fmt(best['baseline_accuracy'], 2)}"
-            if "baseline_accuracy" in best.index and math.isfinite(_num(
+            if "baseline_accuracy" in best.index and math.isfinite(_as_float(
                 best["baseline_accuracy"])) else "")
     also = (f" ({'also ' + ', '.join(esc(o) for o in others)})" if others else "")
     return [f"Early recognition: the <b>{esc(classifier_label(best['classifier']))}</b> "
@@ -177,18 +177,18 @@ def _record(d):
 
 def _repeats(d, df):
     rec = _record(d)
-    r = _num(rec.get("repeats"))
+    r = _as_float(rec.get("repeats"))
     if not math.isfinite(r) and "n_repeats" in df.columns:
-        r = _num(df["n_repeats"].max())
+        r = _as_float(df["n_repeats"].max())
     return int(r) if math.isfinite(r) else None
 
 
 def _design_words(d, df):
     """'5 folds x 3 repetitions' (or what is known of it)."""
     rec = _record(d)
-    folds = _num(rec.get("folds"))
+    folds = _as_float(rec.get("folds"))
     if not math.isfinite(folds):
-        folds = _num((d["summary"].value or {}).get("method", {}).get("folds")
+        folds = _as_float((d["summary"].value or {}).get("method", {}).get("folds")
                      if isinstance((d["summary"].value or {}).get("method"), dict) else None)
     reps = _repeats(d, df)
     parts = []
@@ -205,8 +205,8 @@ def _design_paragraph(d, df):
     out = []
     grouping = summary.get("grouping")
     scored = rec.get("learners_scored")
-    n = _num(scored) if scored is not None else (
-        _num(df["n_learners"].max()) if "n_learners" in df.columns else math.nan)
+    n = _as_float(scored) if scored is not None else (
+        _as_float(df["n_learners"].max()) if "n_learners" in df.columns else math.nan)
     if rec.get("groups_fixed_once"):
         rule = f" ({_describe_grouping(grouping)})" if grouping is not None else ""
         who = f"all {_int(n)} learners with a group" if math.isfinite(n) else "every learner " \
@@ -216,11 +216,11 @@ def _design_paragraph(d, df):
                    f"table{rule} and kept in every fold, so {who} were scored.")
     reps = _repeats(d, df)
     if reps and reps > 1:
-        hmm = _num(rec.get("repeats_hmm"))
+        hmm = _as_float(rec.get("repeats_hmm"))
         fewer = ""
         if "n_repeats" in df.columns:
             less = sorted({classifier_label(c) for c, r in zip(df["classifier"], df["n_repeats"])
-                           if _num(r) < reps})
+                           if _as_float(r) < reps})
             if less:
                 k = int(hmm) if math.isfinite(hmm) else int(df["n_repeats"].min())
                 fewer = (f" The {', '.join(esc(x) for x in less)} classifier"
@@ -244,8 +244,8 @@ def _bounds(sub, metric):
 
 
 def _range_words(row, metric):
-    lo, hi = _num(row.get(f"{metric}_min")), _num(row.get(f"{metric}_max"))
-    reps = _num(row.get("n_repeats"))
+    lo, hi = _as_float(row.get(f"{metric}_min")), _as_float(row.get(f"{metric}_max"))
+    reps = _as_float(row.get("n_repeats"))
     if math.isfinite(lo) and math.isfinite(hi) and math.isfinite(reps) and reps > 1:
         return f" (range {_fmt(lo, 2)}–{_fmt(hi, 2)} over {int(reps)} repetitions)"
     return ""

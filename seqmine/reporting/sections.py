@@ -16,6 +16,7 @@ from . import plots as _plots
 from .html import (
     _CORRECTIONS,
     _SECTIONS,
+    _as_float,
     _chips,
     _describe_grouping,
     _five_numbers,
@@ -23,10 +24,9 @@ from .html import (
     _group_label,
     _h2,
     _int,
-    _is_num,
+    _is_finite,
     _matrix,
     _missing,
-    _num,
     _ordered,
     _pattern_label,
     _pct,
@@ -157,7 +157,7 @@ def section_overview(d, figs):
                        ("Rows rejected", "rows_rejected")]:
         v = counts.get(key)
         if v is not None:
-            share = f" ({_pct(_num(v) / _num(rin))})" if key != "rows_in" and _num(rin) else ""
+            share = f" ({_pct(_as_float(v) / _as_float(rin))})" if key != "rows_in" and _as_float(rin) else ""
             rows.append([esc(label), f'<td class="num">{_int(v)}{share}</td>'])
     for label, key in [("Learners with events", "learners"),
                        ("Learners without an outcome group", "learners_without_group"),
@@ -167,8 +167,8 @@ def section_overview(d, figs):
             rows.append([esc(label), f'<td class="num">{_int(counts[key])}</td>'])
     if rows:
         out.append(_table(["", "count"], rows, raw_cells=True))
-    if None not in (rin, kept, rej) and all(_is_num(x) for x in (rin, kept, rej)):
-        if _num(rin) == _num(kept) + _num(rej):
+    if None not in (rin, kept, rej) and all(_is_finite(x) for x in (rin, kept, rej)):
+        if _as_float(rin) == _as_float(kept) + _as_float(rej):
             out.append("<p>Row accounting reconciles: every input row was either used or "
                        "rejected with a reason.</p>")
         else:
@@ -281,7 +281,7 @@ def section_phases(d, figs):
     if not models:
         out.append(_missing(d["models_note"]))
     psum = d["phases_summary"].value or {}
-    if _is_num(psum.get("n_states")):
+    if _is_finite(psum.get("n_states")):
         crit = psum.get("criterion")
         out.append(f"<p>Every model has {_int(psum['n_states'])} phases"
                    + (f" (count chosen by {esc(crit)})" if crit else "") + ".</p>")
@@ -383,7 +383,7 @@ def section_detectors(d, *, examples=True):
     if isinstance(matching, dict):
         parts = []
         gap = matching.get("max_gap")
-        if _is_num(gap) and _num(gap) == 0:
+        if _is_finite(gap) and _as_float(gap) == 0:
             parts.append("the steps of a pattern follow each other directly")
         elif gap is not None:
             parts.append(f"at most {esc(gap)} other tokens between two steps")
@@ -498,5 +498,5 @@ def section_cautions(d):
 
 def _priority(value):
     """Sort key of a detector priority: its number, or last when not a finite number."""
-    x = _num(value, math.inf)
+    x = _as_float(value, math.inf)
     return x if math.isfinite(x) else math.inf

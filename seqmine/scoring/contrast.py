@@ -10,6 +10,7 @@ import pandas as pd
 import scipy.sparse as sp
 
 from .._util.checks import check_choice, check_fraction, check_int
+from ..config import CONTRAST_CORRECTIONS
 from ..errors import ParameterError, SeqmineWarning
 from ..mining.patterns import PatternSet
 from .effects import (
@@ -44,7 +45,6 @@ MIN_GROUP_SIZE = 2
 #: have little power (common practice, not a published threshold).
 SMALL_GROUP_SIZE = 5
 #: Values of the ``correction`` parameter.
-CONTRAST_CORRECTIONS = ("bh", "holm", "westfall-young")
 
 _RATE_UNITS = ("tokens", "actions", "count")
 _ORDERS = ("significance", "length")

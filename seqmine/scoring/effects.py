@@ -121,7 +121,8 @@ def mannwhitney_sparse(x, first):
 
     Examples
     --------
-    Conover's data from the scipy documentation: U = 17, exact p = 0.1111.
+    The worked example of Shier (2004), also in the scipy documentation: U = 17,
+    exact p = 0.1111.
 
     >>> import scipy.sparse as sp
     >>> v = np.array([[19, 22, 16, 29, 24, 20, 11, 17, 12]], float).T

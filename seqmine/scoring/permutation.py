@@ -7,6 +7,7 @@ import scipy.sparse as sp
 from scipy import special, stats
 
 from .._util.checks import check_int
+from .._util.parallel import n_workers, parallel_map
 from .._util.progress import progress
 from ..errors import ParameterError
 from .effects import (
@@ -283,7 +284,6 @@ def _step_down_minp(raw, pfunc, labels, n_permutations, seed, batch, jobs=1, sch
         exceed = _exceed_counts((pfunc, labels, rng.bit_generator.state, n_permutations, batch,
                                  order, threshold, True))
     else:
-        from .._util.parallel import parallel_map
         tasks = []
         for start, stop in _chunks(n_permutations, jobs):
             tasks.append((pfunc, labels, rng.bit_generator.state, stop - start, batch, order,
@@ -322,8 +322,7 @@ def _exceed_counts(task):
 
 def _chunks(n, jobs):
     """Contiguous ranges covering ``0 .. n-1``: two per worker (for balance)."""
-    import os
-    workers = (os.cpu_count() or 1) if jobs in (None, -1) else max(int(jobs), 1)
+    workers = n_workers(jobs)
     k = max(1, min(n, 2 * workers))
     edges = np.linspace(0, n, k + 1).round().astype(np.int64)
     return [(int(a), int(b)) for a, b in zip(edges[:-1], edges[1:]) if b > a]

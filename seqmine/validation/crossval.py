@@ -24,12 +24,13 @@ import pandas as pd
 from sklearn.base import clone
 from sklearn.dummy import DummyClassifier
 from sklearn.linear_model import LogisticRegression
-from sklearn.model_selection import StratifiedKFold
 from sklearn.pipeline import FeatureUnion, make_pipeline
 from sklearn.preprocessing import StandardScaler
 
-from .._util.checks import check_choice, check_fraction, check_int, check_number
+from .._util.checks import check_choice, check_fraction, check_int, check_jobs, check_number
+from ..config import CLASSIFIERS, DEFAULT_FRACTIONS
 from .._util.csvio import write_csv
+from .._util.folds import learner_splits
 from .._util.jsonio import write_json
 from .._util.parallel import parallel_map
 from .._util.progress import progress
@@ -54,17 +55,6 @@ __all__ = [
     "HMM_CLASSIFIERS",
 ]
 
-#: Observed fractions of each held-out sequence used by default.
-DEFAULT_FRACTIONS = (0.1, 0.2, 0.25, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0)
-
-#: Classifier name -> featurizers whose columns it uses (``()`` = majority class).
-CLASSIFIERS = {
-    "pattern": ("pattern",),
-    "hmm": ("hmm",),
-    "frequency_pause": ("frequency_pause",),
-    "fusion": ("pattern", "hmm", "frequency_pause"),
-    "majority": (),
-}
 
 #: Classifiers that use the HMM featurizer (the expensive one; see ``n_repeats_hmm``).
 HMM_CLASSIFIERS = tuple(n for n, f in CLASSIFIERS.items() if "hmm" in f)
@@ -184,12 +174,9 @@ def validate(events, outcomes, *, folds=5, n_repeats=DEFAULT_CONFIG["validate"][
     check_fraction(alpha, "alpha", where, high_inclusive=False)
     check_number(C, "C", where, minimum=0, strict=True)
     check_choice(train_on, "train_on", ("full", "matched"), where)
-    check_int(n_jobs, "n_jobs", where, minimum=-1)
+    check_jobs(n_jobs, "n_jobs", where)
     n_repeats = check_int(n_repeats, "n_repeats", where, minimum=1)
     n_repeats_hmm = check_int(n_repeats_hmm, "n_repeats_hmm", where, minimum=1)
-    if n_jobs == 0:
-        raise ParameterError("The 'n_jobs' parameter of validate must be >= 1 or -1. Got 0 "
-                             "instead.")
     names = list(CLASSIFIERS) if classifiers is None else list(classifiers)
     for n in names:
         if n not in CLASSIFIERS:
@@ -427,80 +414,6 @@ class ValidationResult:
         }
         write_json(folder / "validation_folds.json", info, indent=1)
         return folder
-
-
-def learner_splits(learners, labels, *, folds=5, loo=False, seed=0):
-    """Split samples into folds so that no learner spans two folds.
-
-    Parameters
-    ----------
-    learners : array-like of str, shape (n_samples,)
-        Learner of each sample; a learner may have several samples (sessions).
-    labels : array-like, shape (n_samples,)
-        Group of each sample, used to stratify (the first sample of a learner
-        gives the learner's label).
-    folds : int, default 5
-        Number of stratified folds over learners (ignored when ``loo``).
-    loo : bool, default False
-        One fold per learner.
-    seed : int, default 0
-        Shuffles learners before the stratified split.
-
-    Returns
-    -------
-    list of (ndarray, ndarray)
-        ``(train_indices, test_indices)`` into the samples, one pair per fold.
-
-    Examples
-    --------
-    >>> learners = ["a", "a", "b", "c", "d", "e", "f"]
-    >>> labels = ["x", "x", "x", "x", "y", "y", "y"]
-    >>> for tr, te in learner_splits(learners, labels, folds=3):
-    ...     print(" ".join(sorted(set(np.asarray(learners)[te]))))
-    c e
-    b f
-    a d
-    """
-    where = "learner_splits"
-    learners = np.asarray(learners, dtype=object).astype(str)
-    labels = np.asarray(labels, dtype=object)
-    if len(labels) != len(learners):
-        raise ParameterError(f"learners has {len(learners)} entries but labels has "
-                             f"{len(labels)}; give one label per sample.")
-    uniq, first, inverse = np.unique(learners, return_index=True, return_inverse=True)
-    n = len(uniq)
-    if loo:
-        if n < 2:
-            raise ParameterError(f"Leave-one-learner-out needs at least 2 learners; got {n}.")
-        test_sets = [np.array([i]) for i in range(n)]
-    else:
-        folds = check_int(folds, "folds", where, minimum=2)
-        if n < folds:
-            raise ParameterError(
-                f"There are {n} learners but {folds} folds were asked for; use at most "
-                f"{n} folds (--folds {max(n, 2)}) or leave-one-learner-out (--loo).")
-        lab = np.array([str(v) for v in labels[first]], dtype=object)
-        names, counts = np.unique(lab, return_counts=True)
-        if len(names) < 2:
-            raise ParameterError(
-                f"All {n} learners are in group {names[0]!r}; cross-validation needs learners "
-                f"of at least two groups.")
-        small = int(np.argmin(counts))
-        if counts[small] < folds:
-            raise ParameterError(
-                f"Group {names[small]!r} has {counts[small]} learners, fewer than the {folds} "
-                f"folds, so some fold would hold one group only; use at most "
-                f"{counts[small]} folds (--folds {max(int(counts[small]), 2)}) or "
-                f"leave-one-learner-out (--loo).")
-        skf = StratifiedKFold(n_splits=folds, shuffle=True, random_state=seed)
-        test_sets = [te for _, te in skf.split(np.zeros(n), lab)]
-    out = []
-    for te_l in test_sets:
-        in_test = np.zeros(n, dtype=bool)
-        in_test[te_l] = True
-        test_mask = in_test[inverse]
-        out.append((np.flatnonzero(~test_mask), np.flatnonzero(test_mask)))
-    return out
 
 
 def default_featurizers(*, seed=0, pattern_params=None, hmm_params=None):

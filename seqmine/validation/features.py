@@ -25,7 +25,10 @@ from sklearn.base import BaseEstimator, TransformerMixin
 from .._util.checks import check_choice, check_fraction, check_int, check_number
 from ..encoding.sequences import SequenceDB
 from ..errors import NotFittedError, ParameterError
+from ..mining.miner import match, mine
 from ..mining.patterns import PATTERN_SEPARATOR
+from ..phases.classify import GroupHMMClassifier
+from ..scoring.contrast import contrast
 
 __all__ = [
     "PatternFeaturizer",
@@ -149,7 +152,7 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
         db = _as_db(X, where)
         codes, names = group_codes(db, y)
         db = db.with_groups(codes, names)
-        miner = self.miner or _default_miner()
+        miner = self.miner or mine
         scorer = self.scorer or _ContrastScorer(self.correction, self.alpha, self.seed,
                                                 self.n_permutations)
         options = {k: True for k in ("start_with_action", "end_with_action", "closed",
@@ -180,7 +183,7 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
         out = np.zeros((db.n_sequences, len(self.patterns_)))
         if present and db.n_sequences:
             ids = [tuple(index[t] for t in self.patterns_[i]) for i in present]
-            matcher = self.matcher or _default_matcher()
+            matcher = self.matcher or match
             matched = matcher(db, ids, max_gap=self.max_gap, max_window=self.max_window,
                               skip_pauses=self.skip_pauses)
             out[:, present] = np.asarray(matched.counts.todense(), dtype=float)
@@ -299,8 +302,9 @@ class HMMLikelihoodFeaturizer(TransformerMixin, BaseEstimator):
     """Log-likelihood ratio of each sequence under group-specific hidden Markov models.
 
     ``fit`` trains one categorical HMM per group on that group's training
-    sequences (Baum–Welch, ``n_restarts`` random starts, best log-likelihood
-    kept). ``transform`` returns, for each group ``g`` other than the first,
+    sequences with :class:`seqmine.phases.GroupHMMClassifier` (Baum–Welch,
+    ``n_restarts`` random starts, best log-likelihood kept); this class is a thin
+    adapter that turns its log-likelihoods into features. ``transform`` returns, for each group ``g`` other than the first,
     ``(log L_g(s) - log L_0(s)) / len(s)``: the log-likelihood ratio per token,
     which stays on one scale whether the whole sequence or only its beginning is
     seen. Empty sequences get 0. Tokens not in the training vocabulary are left
@@ -316,18 +320,14 @@ class HMMLikelihoodFeaturizer(TransformerMixin, BaseEstimator):
         Emission probability floor (added, then renormalised), so a token rare in
         one group does not give an infinite ratio.
     seed : int, default 0
-    backend : {"auto", "phases", "hmmlearn"}, default "auto"
-        ``"phases"`` uses :class:`seqmine.phases.GroupHMMClassifier` (this class is
-        then a thin adapter); ``"hmmlearn"`` fits
-        :class:`hmmlearn.hmm.CategoricalHMM` models directly; ``"auto"`` prefers
-        the former when it is installed.
 
     Attributes
     ----------
     vocab_ : list of str
         Training vocabulary (symbol ``i`` of the models).
-    models_ : object
-        The fitted group models (a GroupHMMClassifier or a list of hmmlearn models).
+    models_ : GroupHMMClassifier
+        The fitted group models (``models_.models_[g]`` is the
+        :class:`~seqmine.phases.PhaseModel` of group ``g``).
     group_names_ : list of str
 
     Examples
@@ -340,14 +340,12 @@ class HMMLikelihoodFeaturizer(TransformerMixin, BaseEstimator):
     ((12, 1), True)
     """
 
-    def __init__(self, *, n_states=3, n_restarts=2, n_iter=50, smoothing=1e-3, seed=0,
-                 backend="auto"):
+    def __init__(self, *, n_states=3, n_restarts=2, n_iter=50, smoothing=1e-3, seed=0):
         self.n_states = n_states
         self.n_restarts = n_restarts
         self.n_iter = n_iter
         self.smoothing = smoothing
         self.seed = seed
-        self.backend = backend
 
     def fit(self, X, y=None):
         """Fit one HMM per group on the training sequences."""
@@ -356,7 +354,6 @@ class HMMLikelihoodFeaturizer(TransformerMixin, BaseEstimator):
         check_int(self.n_restarts, "n_restarts", where, minimum=1)
         check_int(self.n_iter, "n_iter", where, minimum=1)
         check_number(self.smoothing, "smoothing", where, minimum=0, strict=True)
-        backend = check_choice(self.backend, "backend", ("auto", "phases", "hmmlearn"), where)
         db = _as_db(X, where)
         codes, names = group_codes(db, y)
         self.vocab_ = list(db.vocab)
@@ -366,23 +363,11 @@ class HMMLikelihoodFeaturizer(TransformerMixin, BaseEstimator):
                 raise ParameterError(
                     f"HMMLikelihoodFeaturizer: group {names[g]!r} has no non-empty training "
                     f"sequence; every group needs data to fit its model.")
-        if backend == "auto":
-            backend = "phases" if _phases_classifier() is not None else "hmmlearn"
-        self.backend_ = backend
-        if backend == "phases":
-            cls = _phases_classifier()
-            if cls is None:
-                raise ParameterError("backend='phases' needs seqmine.phases; use 'hmmlearn'.")
-            # class names "0", "1", ... keep the group order (classes_ are sorted)
-            labels = np.array([f"{c:06d}" for c in codes], dtype=object)
-            self.models_ = cls(n_states=self.n_states, n_restarts=self.n_restarts,
-                               seed=self.seed, n_iter=self.n_iter,
-                               emission_floor=self.smoothing).fit(db, labels)
-        else:
-            by_group = [[db.sequence(i) for i in np.flatnonzero(codes == g)
-                         if db.lengths[i] > 0] for g in range(len(names))]
-            self.models_ = [self._fit_one(seqs, len(self.vocab_), g)
-                            for g, seqs in enumerate(by_group)]
+        # class names "000000", "000001", ... keep the group order (classes_ are sorted)
+        labels = np.array([f"{c:06d}" for c in codes], dtype=object)
+        self.models_ = GroupHMMClassifier(n_states=self.n_states, n_restarts=self.n_restarts,
+                                          seed=self.seed, n_iter=self.n_iter,
+                                          emission_floor=self.smoothing).fit(db, labels)
         return self
 
     def log_likelihoods(self, X):
@@ -398,14 +383,7 @@ class HMMLikelihoodFeaturizer(TransformerMixin, BaseEstimator):
         sym = sym[known]
         offsets = np.concatenate([[0], np.cumsum(lengths)])
         seqs = [sym[offsets[i]: offsets[i + 1]] for i in range(db.n_sequences)]
-        if self.backend_ == "phases":
-            ll = np.asarray(self.models_.log_likelihoods(seqs), dtype=float)
-        else:
-            ll = np.zeros((db.n_sequences, len(self.models_)))
-            for i in np.flatnonzero(lengths > 0):
-                s = seqs[i].reshape(-1, 1)
-                for g, model in enumerate(self.models_):
-                    ll[i, g] = model.score(s, [len(s)])
+        ll = np.asarray(self.models_.log_likelihoods(seqs), dtype=float)
         return ll, lengths
 
     def transform(self, X):
@@ -419,25 +397,6 @@ class HMMLikelihoodFeaturizer(TransformerMixin, BaseEstimator):
         _check_fitted(self, "models_")
         g0 = self.group_names_[0]
         return np.array([f"hmm_llr_{g}_vs_{g0}" for g in self.group_names_[1:]], dtype=object)
-
-    def _fit_one(self, seqs, n_symbols, g):
-        from hmmlearn.hmm import CategoricalHMM
-
-        data = np.concatenate(seqs).reshape(-1, 1).astype(np.int64)
-        lengths = [len(s) for s in seqs]
-        ss = np.random.SeedSequence([int(self.seed), g])
-        best, best_ll = None, -np.inf
-        for child in ss.spawn(self.n_restarts):
-            rs = int(child.generate_state(1)[0])
-            model = CategoricalHMM(n_components=self.n_states, n_iter=self.n_iter,
-                                   random_state=rs, n_features=n_symbols, tol=1e-3)
-            model.fit(data, lengths)
-            ll = model.score(data, lengths)
-            if ll > best_ll:
-                best, best_ll = model, ll
-        em = best.emissionprob_ + self.smoothing
-        best.emissionprob_ = em / em.sum(axis=1, keepdims=True)
-        return best
 
 
 # --------------------------------------------------------------------- helpers
@@ -536,26 +495,6 @@ def _check_fitted(est, attr):
             f"This {type(est).__name__} is not fitted yet; call 'fit' with training data first.")
 
 
-def _phases_classifier():
-    try:
-        from ..phases import GroupHMMClassifier  # noqa: PLC0415 (stage written separately)
-    except ImportError:
-        return None
-    return GroupHMMClassifier
-
-
-def _default_miner():
-    from ..mining.miner import mine  # noqa: PLC0415 (stage written separately)
-
-    return mine
-
-
-def _default_matcher():
-    from ..mining.miner import match  # noqa: PLC0415
-
-    return match
-
-
 class _ContrastScorer:
     """Calls :func:`seqmine.scoring.contrast.contrast` with fixed options (picklable)."""
 
@@ -566,8 +505,6 @@ class _ContrastScorer:
         self.n_permutations = n_permutations
 
     def __call__(self, patterns, db):
-        from ..scoring.contrast import contrast  # noqa: PLC0415
-
         return contrast(patterns, db, correction=self.correction, alpha=self.alpha,
                         seed=self.seed, n_permutations=self.n_permutations,
                         stability_resamples=0, redundancy=None)

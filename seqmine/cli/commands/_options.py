@@ -5,10 +5,8 @@ from __future__ import annotations
 import argparse
 import sys
 
-from ...encoding.encoder import encoder_from_settings
+from ...config import EVENT_ROLES
 from ...errors import ParameterError
-from ...inputs.load import EVENT_ROLES, load_events
-from ...inputs.outcomes import Grouping, load_outcomes
 
 __all__ = ["add_event_options", "add_outcome_options", "add_encoding_options",
            "events_from_args", "outcomes_from_args", "grouping_from_args",
@@ -120,6 +118,7 @@ def add_encoding_options(p):
 
 
 def events_from_args(args, path):
+    from ...inputs.load import load_events
     columns = {role: getattr(args, f"{role}_column") for role in EVENT_ROLES}
     return load_events(path, columns=columns, format=args.format, delimiter=args.delimiter,
                        encoding=args.encoding,
@@ -128,6 +127,7 @@ def events_from_args(args, path):
 
 
 def outcomes_from_args(args):
+    from ...inputs.outcomes import load_outcomes
     cols = {"learner": args.outcome_learner_column, "pre": args.pre_column,
             "post": args.post_column, "max": args.max_column, "score": args.score_column,
             "label": args.label_column}
@@ -135,11 +135,13 @@ def outcomes_from_args(args):
 
 
 def grouping_from_args(args, outcomes):
+    from ...inputs.outcomes import Grouping
     rule = args.grouping or ("label" if outcomes.attrs.get("outcome_kind") == "label" else "median")
     return Grouping(rule, fraction=args.group_fraction, low=args.low, high=args.high)
 
 
 def encoder_from_args(args):
+    from ...encoding.encoder import encoder_from_settings
     return encoder_from_settings({
         "template": args.template, "mapping": args.mapping,
         "collapse_repeats": args.collapse_repeats, "pause_strategy": args.pause_strategy,

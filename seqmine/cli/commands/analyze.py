@@ -4,9 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from ...config import default_config, load_config, merge_config
-from ...inputs.load import EVENT_ROLES
-from ...pipeline import analyze
+from ...config import EVENT_ROLES, default_config, load_config, merge_config
 from . import _options
 from ._options import print_warnings
 
@@ -128,6 +126,7 @@ def config_from_args(args, parser_defaults):
 
 
 def run(args):
+    from ...pipeline import analyze
     cfg = config_from_args(args, args._defaults)
     result = analyze(args.events, args.outcomes, args.out, cfg, quiet=args.quiet)
     if not args.quiet:

@@ -6,11 +6,8 @@ from pathlib import Path
 
 from ..._util.csvio import write_csv
 from ..._util.progress import is_quiet
-from ...encoding.sequences import SequenceDB
+from ...config import CONTRAST_CORRECTIONS
 from ...errors import DataFileError, ParameterError
-from ...mining.miner import load_patternset
-from ...scoring.contrast import CONTRAST_CORRECTIONS, contrast, pairwise_contrast
-from ...scoring.transitions import transitions
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run", "read_patternset"]
 
@@ -69,6 +66,9 @@ def add_arguments(parser):
 
 
 def run(args):
+    from ...encoding.sequences import SequenceDB
+    from ...scoring.contrast import contrast, pairwise_contrast
+    from ...scoring.transitions import transitions
     """Run ``seqmine contrast`` (quiet mode is set by the command line per call)."""
     ps = read_patternset(args.patterns)
     db = SequenceDB.load(args.seqdb) if args.seqdb else None
@@ -108,6 +108,7 @@ def run(args):
 
 
 def read_patternset(path):
+    from ...mining.miner import load_patternset
     """Read a pattern set folder written by ``seqmine mine`` (or the path of its CSV)."""
     folder = Path(path)
     if folder.suffix.lower() == ".csv":

@@ -6,8 +6,6 @@ import tempfile
 from pathlib import Path
 
 from ...config import default_config
-from ...demo_data import EVENTS_FILE, OUTCOMES_FILE, write_greenhouse
-from ...pipeline import analyze
 from ._options import print_warnings
 
 NAME = "demo"
@@ -29,6 +27,8 @@ def add_arguments(p):
 
 
 def run(args):
+    from ...demo_data import EVENTS_FILE, OUTCOMES_FILE, write_greenhouse
+    from ...pipeline import analyze
     cfg = default_config()
     cfg["jobs"] = args.jobs
     if (SHIPPED / EVENTS_FILE).is_file() and (SHIPPED / OUTCOMES_FILE).is_file():

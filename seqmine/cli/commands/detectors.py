@@ -6,11 +6,7 @@ import argparse
 import json
 from pathlib import Path
 
-import pandas as pd
-
 from ..._util.progress import is_quiet
-from ...detection.detectors import export_detectors, save_detectors
-from ...encoding.sequences import SequenceDB
 from ...errors import DataFileError, ParameterError
 from ._options import number_or_word
 
@@ -90,6 +86,10 @@ def add_arguments(parser):
 
 
 def run(args):
+    import pandas as pd
+
+    from ...detection.detectors import export_detectors, save_detectors
+    from ...encoding.sequences import SequenceDB
     """Run ``seqmine detectors``."""
     table_path = Path(args.table)
     if not table_path.is_file():

@@ -6,7 +6,6 @@ import json
 from pathlib import Path
 
 from ..._util.csvio import write_csv
-from ...pipeline import prepare_sequences
 from . import _options
 
 NAME = "encode"
@@ -27,6 +26,7 @@ def add_arguments(p):
 
 
 def run(args):
+    from ...pipeline import prepare_sequences
     out = Path(args.out)
     loaded, outcomes = _options.pseudonymize_inputs(
         args, _options.events_from_args(args, args.events), _options.outcomes_from_args(args))

@@ -6,7 +6,6 @@ import sys
 from pathlib import Path
 
 from ..._util.progress import is_quiet
-from ...encoding.sequences import SequenceDB
 from ...errors import ParameterError
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
@@ -83,6 +82,7 @@ def add_arguments(parser):
 
 def run(args):
     """Run the command; returns the exit status."""
+    from ...encoding.sequences import SequenceDB
     from ...mining.miner import DEFAULT_MAX_PATTERNS, mine, save_patternset
     db = SequenceDB.load(args.seqdb)
     ps = mine(db, min_support=_support(args.min_support), min_length=args.min_length,

@@ -6,7 +6,6 @@ import sys
 from pathlib import Path
 
 from ..._util.progress import is_quiet
-from ...encoding.sequences import SequenceDB
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -43,6 +42,7 @@ def add_arguments(parser):
 
 def run(args):
     """Run ``seqmine phases``; quiet mode is set per call by the command line."""
+    from ...encoding.sequences import SequenceDB
     from ...phases import fit_phases
 
     db = SequenceDB.load(args.seqdb)

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 from ...errors import ParameterError
-from ...reporting.render import render_report
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -27,6 +26,7 @@ def add_arguments(parser):
 
 
 def run(args):
+    from ...reporting.render import render_report
     """Render the report and print where it is."""
     if args.max_patterns < 1:
         raise ParameterError(

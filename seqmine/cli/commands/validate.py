@@ -4,14 +4,8 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from ...config import DEFAULT_CONFIG
+from ...config import CLASSIFIERS, DEFAULT_CONFIG, DEFAULT_FRACTIONS
 from ...errors import ParameterError
-from ...validation.crossval import (
-    CLASSIFIERS,
-    DEFAULT_FRACTIONS,
-    default_featurizers,
-    validate,
-)
 from . import _options
 
 NAME = "validate"
@@ -79,6 +73,7 @@ def add_arguments(p):
 
 
 def run(args):
+    from ...validation.crossval import default_featurizers, validate
     fractions = _options.parse_float_list(args.fractions, "--fractions")
     if not fractions:
         raise ParameterError("--fractions needs at least one number in (0, 1], e.g. 0.25,0.5,1.")

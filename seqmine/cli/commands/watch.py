@@ -7,7 +7,6 @@ import os
 import sys
 from pathlib import Path
 
-from ...detection.watcher import EventError, Watcher
 from ...errors import DataFileError, ParameterError
 from ._options import number_or_word
 
@@ -69,6 +68,7 @@ def add_arguments(parser):
 
 
 def run(args):
+    from ...detection.watcher import Watcher
     """Run ``seqmine watch``."""
     idle = _idle(args.idle_timeout)
     watcher = Watcher(args.detectors, cooldown_seconds=args.cooldown, idle_timeout=idle,
@@ -109,6 +109,7 @@ def run(args):
 
 
 def _loop(stream, name, interactive, watcher, out, err, args, hints_only, pseudo):
+    from ...detection.watcher import EventError
     """Read, process and write every line; bad events get one line on ``err``."""
     for lineno, line in enumerate(stream, 1):
         if not line.strip():
@@ -154,7 +155,7 @@ def _write(out, firings, watcher, times, hints_only):
 def _pseudonymizer(key_path):
     """learner -> pseudonym (as in the offline analysis); other values pass unchanged,
     so the watcher rejects them exactly as it would without the option."""
-    from ...detection.watcher import _CONTROL
+    from ..._util.text import has_control_characters
     from ...inputs.privacy import pseudonymize, read_key
 
     key = read_key(key_path)
@@ -164,7 +165,7 @@ def _pseudonymizer(key_path):
         if type(value) is not str:
             return value
         s = value.strip()
-        if not s or _CONTROL.search(s):
+        if not s or has_control_characters(s):
             return value
         p = cache.get(s)
         if p is None:
