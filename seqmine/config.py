@@ -85,7 +85,7 @@ DEFAULT_CONFIG = {
                  "top_patterns": 30, "hmm": {}, "max_learners": None},
     "detectors": {"max_q": 0.05, "min_stability": 0.5, "max_detectors": 20,
                   "encourage_share": 0.5, "absence_quantile": 0.75, "examples": True},
-    "report": {"examples": True, "top_patterns": 15},
+    "report": {"examples": True, "top_patterns": 15, "explorer_rows": 5000},
     "privacy": {"pseudonymize_key": None},
 }
 

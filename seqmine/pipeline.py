@@ -410,7 +410,8 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
     files.append(out / "summary.json")
     with stages("report"):
         report = render_report(out, examples=bool(cfg["report"]["examples"]),
-                               max_patterns=int(cfg["report"]["top_patterns"]))
+                               max_patterns=int(cfg["report"]["top_patterns"]),
+                               explorer_rows=int(cfg["report"]["explorer_rows"]))
         files.append(report)
     return AnalysisResult(out_dir=out, summary=summary, files=files, warnings=list(log))
 

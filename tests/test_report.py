@@ -431,9 +431,20 @@ def test_repetitions_and_fixed_groups_are_stated(tmp_path):
     glance = text.split('class="keybox"')[1].split("</div>")[0]
     assert ("balanced accuracy of 0.63 (range 0.59–0.66 over 3 repetitions); majority baseline "
             "accuracy 0.50 (5-fold cross-validation × 3 repetitions)") in glance
-    assert ("decided once from the outcome table (top and bottom shares of the outcome (at or "
-            "above 0.45; at or below 0.10); learners between get no group) and kept in every "
-            "fold, so all 40 learners with a group were scored") in text
-    assert "The action frequencies and pauses classifier ran in 1 repetition only" in text
+    assert ("decided once from the outcome table by the rule: top and bottom shares of the "
+            "outcome, at or above 0.45 and at or below 0.10; the learners between get no "
+            "group. The same groups were kept in every fold, so all 40 learners with a group "
+            "were scored") in text
+    assert "Run in 1 repetition only: <i>action frequencies and pauses</i>" in text
     assert "<th class=num>balanced accuracy range</th>" in text
     assert "<td class=num>0.59–0.66</td>" in text
+
+
+def test_explorer_holds_at_most_explorer_rows_patterns(folder, capsys):
+    text = render_report(folder, explorer_rows=2).read_text(encoding="utf-8")
+    data = re.search(r'id="explorer-data">(.*?)</script>', text, flags=re.S).group(1)
+    assert len(json.loads(data)["rows"]) == 2
+    n = len(pd.read_csv(folder / "patterns.csv"))
+    assert f"The table holds the first 2 of {n} patterns" in text
+    assert main(["report", str(folder), "--explorer-rows", "0"]) == 2
+    assert "--explorer-rows must be a whole number of at least 1" in capsys.readouterr().err

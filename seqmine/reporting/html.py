@@ -377,12 +377,12 @@ def _describe_grouping(v):
 
 
 _RULES = {
-    "median": "median split of the outcome at {low} (learners above it form the better "
-              "group)",
-    "fraction": "top and bottom shares of the outcome (at or above {high}; at or below "
-                "{low}); learners between get no group",
-    "thresholds": "fixed cut points (at or above {high}; below {low}); learners between get "
-                  "no group",
+    "median": "median split of the outcome at {low}, the learners above it forming the "
+              "better group",
+    "fraction": "top and bottom shares of the outcome, at or above {high} and at or below "
+                "{low}; the learners between get no group",
+    "thresholds": "fixed cut points, at or above {high} and below {low}; the learners "
+                  "between get no group",
 }
 
 

@@ -208,12 +208,13 @@ def _design_paragraph(d, df):
     n = _as_float(scored) if scored is not None else (
         _as_float(df["n_learners"].max()) if "n_learners" in df.columns else math.nan)
     if rec.get("groups_fixed_once"):
-        rule = f" ({_describe_grouping(grouping)})" if grouping is not None else ""
-        who = f"all {_int(n)} learners with a group" if math.isfinite(n) else "every learner " \
-                                                                                "with a group"
+        rule = f" by the rule: {_describe_grouping(grouping)}" if grouping is not None else ""
+        who = (f"all {_int(n)} learners with a group" if math.isfinite(n)
+               else "every learner with a group")
         out.append(f"<b>Groups fixed once.</b> The outcome groups are what is predicted, not "
                    f"something learnt from the logs: they were decided once from the outcome "
-                   f"table{rule} and kept in every fold, so {who} were scored.")
+                   f"table{rule}. The same groups were kept in every fold, so {who} were "
+                   "scored.")
     reps = _repeats(d, df)
     if reps and reps > 1:
         hmm = _as_float(rec.get("repeats_hmm"))
@@ -223,9 +224,9 @@ def _design_paragraph(d, df):
                            if _as_float(r) < reps})
             if less:
                 k = int(hmm) if math.isfinite(hmm) else int(df["n_repeats"].min())
-                fewer = (f" The {', '.join(esc(x) for x in less)} classifier"
-                         f"{'s' if len(less) > 1 else ''} ran in {_plural(k, 'repetition')} "
-                         "only (fitting phase models in every fold costs most; raise "
+                names = " and ".join(f"<i>{esc(x)}</i>" for x in less)
+                fewer = (f" Run in {_plural(k, 'repetition')} only: {names} (fitting phase "
+                         "models in every fold costs most; raise "
                          "<code>validate.hmm_repeats</code> for more).")
         out.append(f"<b>Repeated cross-validation.</b> The learners were dealt into folds "
                    f"{reps} times with fresh shuffles ({esc(_design_words(d, df))}). Each value "

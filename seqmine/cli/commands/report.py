@@ -12,7 +12,8 @@ DESCRIPTION = (
     "Write OUT_DIR/report.html from the files a previous 'seqmine analyze' run left in "
     "OUT_DIR (summary.json, patterns.csv, transitions.csv, phases/, early_prediction.csv, "
     "detectors.json, examples.json). Sections whose file is missing say so. The page is "
-    "self-contained: it opens offline and loads nothing from the network."
+    "self-contained: it opens offline and loads nothing from the network; its one script, "
+    "the pattern explorer's, is allowed by its hash in the page's Content-Security-Policy."
 )
 
 
@@ -23,6 +24,9 @@ def add_arguments(parser):
                         help="leave example excerpts from the log out of the report")
     parser.add_argument("--max-patterns", type=int, default=12, metavar="N",
                         help="differential patterns shown in detail (default: 12)")
+    parser.add_argument("--explorer-rows", type=int, default=5000, metavar="N",
+                        help="most patterns placed in the pattern explorer, the most reliable "
+                             "first; patterns.csv has them all (default: 5000)")
 
 
 def run(args):
@@ -31,7 +35,11 @@ def run(args):
     if args.max_patterns < 1:
         raise ParameterError(
             f"--max-patterns must be a whole number of at least 1. Got {args.max_patterns}.")
-    path = render_report(args.out_dir, examples=args.examples, max_patterns=args.max_patterns)
+    if args.explorer_rows < 1:
+        raise ParameterError(
+            f"--explorer-rows must be a whole number of at least 1. Got {args.explorer_rows}.")
+    path = render_report(args.out_dir, examples=args.examples, max_patterns=args.max_patterns,
+                         explorer_rows=args.explorer_rows)
     if not args.quiet:
         print(f"Report written to {path}")
     return 0
