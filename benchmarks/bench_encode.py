@@ -65,7 +65,7 @@ def main(argv=None):
         for n_learners in sizes:
             folder = Path(tmp) / f"g{n_learners}"
             t0 = time.perf_counter()
-            paths = write_greenhouse(folder, n_learners, seed=7)
+            paths = write_greenhouse(folder, n_learners, random_state=7)
             gen = time.perf_counter() - t0
             floor = run_stage(paths["events"], "read_csv")
             load = run_stage(paths["events"], "load")

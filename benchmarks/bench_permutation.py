@@ -138,7 +138,7 @@ def _main(argv=None):
           f"({counts.nnz:,} non-zeros), generated in {gen_s:.1f} s", flush=True)
 
     t0 = time.perf_counter()
-    raw, adj = westfall_young_minp(counts, labels, n_permutations=b, seed=args.seed)
+    raw, adj = westfall_young_minp(counts, labels, n_permutations=b, random_state=args.seed)
     wy_s = time.perf_counter() - t0
     unit_fast = wy_s / (m * b)
     rss_wy = _peak_mb()
@@ -147,7 +147,7 @@ def _main(argv=None):
 
     t0 = time.perf_counter()
     westfall_young_rates(sequence_rates_matrix(counts), labels, n_permutations=b,
-                         seed=args.seed)
+                         random_state=args.seed)
     wy_rates_s = time.perf_counter() - t0
     print(f"Westfall-Young min-P on the rank test of rates, {b} permutations: "
           f"{wy_rates_s:.2f} s", flush=True)
@@ -191,7 +191,7 @@ def _main(argv=None):
                         seq_groups=labels)
         lengths = np.full(n, 100)
         t0 = time.perf_counter()
-        contrast(ps, lengths=lengths, correction="bh", stability_resamples=100,
+        contrast(ps, lengths=lengths, correction="bh", n_bootstrap=100,
                  redundancy=None)
         bh_s = time.perf_counter() - t0
         print(f"whole contrast table (Fisher, Mann-Whitney, effect sizes, BH, 100 bootstrap "
@@ -199,7 +199,7 @@ def _main(argv=None):
         result["contrast_bh_stability100_seconds"] = bh_s
         sub = ps.select(np.arange(min(m, 2_000)))
         t0 = time.perf_counter()
-        contrast(sub, lengths=lengths, correction="bh", stability_resamples=0, redundancy=0.9)
+        contrast(sub, lengths=lengths, correction="bh", n_bootstrap=0, redundancy=0.9)
         red_s = time.perf_counter() - t0
         print(f"contrast with redundancy pass on {sub.n_patterns} patterns: {red_s:.2f} s",
               flush=True)

@@ -65,7 +65,7 @@ def make_db(n_per_group, mean_length, seed):
     seqs, groups = [], []
     for k, gen in enumerate(greenhouse_generators()):
         lengths = np.maximum(rng.poisson(mean_length, size=n_per_group), 2)
-        X, _ = gen.sample(lengths, seed=seed + 1 + k)
+        X, _ = gen.sample(lengths, random_state=seed + 1 + k)
         off = np.concatenate([[0], np.cumsum(lengths)])
         seqs += [[ACTIONS[t] for t in X[off[i]:off[i + 1]]] for i in range(n_per_group)]
         groups += [gen.label] * n_per_group
@@ -98,18 +98,18 @@ def _main(argv=None):
     n_demo = 60 if args.quick else 150
     demo = make_db(n_demo, 100, seed=1)
     print(f"demo-like data: {demo.n_sequences} learners, {demo.n_tokens} tokens")
-    res, t = timed(lambda: fit_phases(demo, n_states="2-6", n_restarts=5, seed=0, n_jobs=1,
-                                      n_folds=3, n_permutations=19))
+    res, t = timed(lambda: fit_phases(demo, n_states="2-6", n_restarts=5, random_state=0, n_jobs=1,
+                                      n_splits=3, n_permutations=19))
     runs["demo_fit_phases_defaults"] = {
         "learners": demo.n_sequences, "tokens": demo.n_tokens, "seconds": t,
         "chosen_states": res.n_states, "settings": "states 2-6, 5 restarts, 3 folds, 19 permutations"}
     print(f"  fit_phases (defaults, serial): {t:.1f} s, chose {res.n_states} states")
-    res2, t2 = timed(lambda: fit_phases(demo, n_states="2-6", n_restarts=5, seed=0, n_jobs=2,
-                                        n_folds=3, n_permutations=19))
+    res2, t2 = timed(lambda: fit_phases(demo, n_states="2-6", n_restarts=5, random_state=0, n_jobs=2,
+                                        n_splits=3, n_permutations=19))
     same = all(res.models[k].equals(res2.models[k]) for k in res.models)
     runs["demo_fit_phases_jobs2"] = {"seconds": t2, "speedup": t / t2, "identical": same}
     print(f"  fit_phases (n_jobs=2): {t2:.1f} s (x{t / t2:.2f}), identical={same}")
-    _, t3 = timed(lambda: fit_phases(demo, n_states="2-6", n_restarts=5, seed=0, n_folds=0,
+    _, t3 = timed(lambda: fit_phases(demo, n_states="2-6", n_restarts=5, random_state=0, n_splits=0,
                                      n_permutations=0))
     runs["demo_fit_phases_no_cv_no_perm"] = {"seconds": t3}
     print(f"  fit_phases without held-out folds and permutations: {t3:.1f} s")
@@ -120,17 +120,17 @@ def _main(argv=None):
     strong = big.subset(np.flatnonzero(big.groups == 0))
     print(f"large groups: {big.n_tokens} tokens ({strong.n_tokens} in one group, "
           f"{strong.n_sequences} sequences)")
-    m, t = timed(lambda: fit_phase_model(strong, n_states=4, n_restarts=5, seed=0))
+    m, t = timed(lambda: fit_phase_model(strong, n_states=4, n_restarts=5, random_state=0))
     runs["group_100k_fit_4_states_5_restarts"] = {
         "tokens": strong.n_tokens, "sequences": strong.n_sequences, "seconds": t,
         "seconds_per_restart": t / 5, "em_iterations_best": m.info["n_iter"]}
     print(f"  one group, 4 states, 5 restarts: {t:.1f} s ({t / 5:.2f} s per restart)")
-    m2, t2 = timed(lambda: fit_phase_model(strong, n_states=4, n_restarts=5, seed=0, n_jobs=2))
+    m2, t2 = timed(lambda: fit_phase_model(strong, n_states=4, n_restarts=5, random_state=0, n_jobs=2))
     runs["group_100k_fit_jobs2"] = {"seconds": t2, "speedup": t / t2,
                                     "identical": m.equals(m2)}
     print(f"  same with n_jobs=2: {t2:.1f} s (x{t / t2:.2f}), identical={m.equals(m2)}")
-    res, t = timed(lambda: fit_phases(big, n_states="2-6", n_restarts=3, seed=0, n_jobs=2,
-                                      n_folds=0, n_permutations=0))
+    res, t = timed(lambda: fit_phases(big, n_states="2-6", n_restarts=3, random_state=0, n_jobs=2,
+                                      n_splits=0, n_permutations=0))
     runs["two_groups_100k_fit_phases"] = {
         "tokens": big.n_tokens, "seconds": t, "chosen_states": res.n_states,
         "settings": "states 2-6, 3 restarts, no folds, no permutations, n_jobs=2"}
@@ -147,7 +147,7 @@ def _main(argv=None):
         "max_abs_difference": abs(ours - ref)}
     print(f"  log-likelihood of {len(X)} tokens: ours {t_ours * 1000:.1f} ms, hmmlearn "
           f"{t_ref * 1000:.1f} ms (x{t_ref / t_ours:.1f}), |diff| {abs(ours - ref):.2e}")
-    clf, t = timed(lambda: GroupHMMClassifier(n_states=4, n_restarts=3, seed=0).fit(big))
+    clf, t = timed(lambda: GroupHMMClassifier(n_states=4, n_restarts=3, random_state=0).fit(big))
     part = big.cut(0.3)
     _, tp = timed(lambda: clf.predict_proba(part))
     acc = float((clf.predict(part) == np.array(big.group_names)[big.groups]).mean())

@@ -42,9 +42,10 @@ DATA = HERE / ".data"
 EVENTS_PER_LEARNER = 100   # write_greenhouse draws 60-150 events per learner
 
 LARGE_CONFIG = {
-    "phases": {"min_states": 3, "max_states": 3, "restarts": 1, "max_iter": 20,
+    "phases": {"min_states": 3, "max_states": 3, "n_restarts": 1, "n_iter": 20,
                "max_sequences": 2000},
-    "validate": {"folds": 2, "fractions": [0.5, 1.0], "bootstrap": 100, "max_learners": 5000},
+    "validate": {"n_splits": 2, "fractions": [0.5, 1.0], "n_bootstrap": 100,
+                 "max_learners": 5000},
 }
 
 #: Memory model of ``analyze`` (large-data configuration, jobs=1): peak resident memory
@@ -131,7 +132,7 @@ def run_size(n_events, config_name, jobs=1, scheduler=None, fmt=None, out_root=N
     """Run ``analyze`` once in a subprocess; returns the measurement dict."""
     cfg = dict(LARGE_CONFIG) if config_name == "large" else {}
     fmt = fmt or ("parquet" if config_name == "large" else "csv")
-    cfg["jobs"] = jobs
+    cfg["n_jobs"] = jobs
     if scheduler:
         cfg["scheduler"] = scheduler
     ev, oc = dataset(n_events, fmt)

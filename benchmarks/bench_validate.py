@@ -28,7 +28,7 @@ ROOT = Path(__file__).resolve().parents[1]
 
 def main():
     p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    p.add_argument("--folds", type=int, default=5)
+    p.add_argument("--splits", type=int, default=5)
     p.add_argument("--jobs", type=int, default=2)
     p.add_argument("--fractions", default="0.1,0.25,0.5,0.75,1")
     args = p.parse_args()
@@ -40,24 +40,24 @@ def main():
     results = {}
     for jobs in sorted({1, args.jobs}):
         t0 = time.perf_counter()
-        results[jobs] = validate(events, outcomes, folds=args.folds, fractions=fractions,
-                                 n_jobs=jobs, seed=0)
+        results[jobs] = validate(events, outcomes, n_splits=args.splits, fractions=fractions,
+                                 n_jobs=jobs, random_state=0)
         timings[jobs] = time.perf_counter() - t0
     r = results[1]
     same = all(results[j].to_frame().equals(r.to_frame()) for j in results)
     # the cost of the repetitions: one split against the default, CPU seconds of this
     # process (the serial path), each run twice in alternation
     va = DEFAULT_CONFIG["validate"]
-    settings = {"one split": (1, 1), "default": (va["repeats"], va["hmm_repeats"])}
+    settings = {"one split": (1, 1), "default": (va["n_repeats"], va["n_repeats_hmm"])}
     cpu = {k: [] for k in settings}
     for _ in range(2):
         for name, (rep, rep_hmm) in settings.items():
             t0 = time.process_time()
-            validate(events, outcomes, folds=args.folds, fractions=fractions, n_jobs=1,
-                     seed=0, n_repeats=rep, n_repeats_hmm=rep_hmm)
+            validate(events, outcomes, n_splits=args.splits, fractions=fractions, n_jobs=1,
+                     random_state=0, n_repeats=rep, n_repeats_hmm=rep_hmm)
             cpu[name].append(time.process_time() - t0)
     repeats = {
-        "settings": {k: {"repeats": v[0], "hmm_repeats": v[1]} for k, v in settings.items()},
+        "settings": {k: {"n_repeats": v[0], "n_repeats_hmm": v[1]} for k, v in settings.items()},
         "cpu_seconds": {k: round(min(v), 2) for k, v in cpu.items()},
         "ratio_default_to_one_split": round(min(cpu["default"]) / min(cpu["one split"]), 2),
         "load_average": [round(x, 2) for x in os.getloadavg()],
@@ -74,7 +74,7 @@ def main():
             for row in part.itertuples() if row.fraction in (0.25, 0.5, 1.0)}
     out = {
         "learners": int(r.settings["n_learners"]), "events": int(len(events)),
-        "folds": args.folds, "fractions": fractions,
+        "folds": args.splits, "fractions": fractions,
         "seconds": {f"jobs={j}": round(t, 2) for j, t in timings.items()},
         "parallel_identical_to_serial": bool(same),
         "repetitions": repeats,

@@ -151,7 +151,7 @@ def main(argv=None):
     ap.add_argument("--out", default=str(HERE / "results" / "watch.json"))
     args = ap.parse_args(argv)
 
-    data = generate_greenhouse(n_learners=args.learners, seed=args.seed)
+    data = generate_greenhouse(n_learners=args.learners, random_state=args.seed)
     events = data.events.copy()
     if str(events["time"].dtype).startswith("datetime"):
         events["time"] = events["time"].dt.strftime("%Y-%m-%dT%H:%M:%SZ")

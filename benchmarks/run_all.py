@@ -49,7 +49,7 @@ BENCHMARKS = {
                     "permutation_quick.json"),
     "phases": ("bench_phases.py", [], ["--quick", "--out", "results/phases_quick.json"],
                "phases.json", "phases_quick.json"),
-    "validate": ("bench_validate.py", [], ["--folds", "3"], "validate.json",
+    "validate": ("bench_validate.py", [], ["--splits", "3"], "validate.json",
                  "validate_quick.json"),
     "watch": ("bench_watch.py", [], ["--repeat", "1", "--detectors", "10,100",
                                      "--out", "results/watch_quick.json"],

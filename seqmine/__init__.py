@@ -50,7 +50,8 @@ _LAZY = {
     "save_detectors": "detection.detectors", "load_detectors": "detection.detectors", "validate_detectors": "detection.detectors",
     "Watcher": "detection.watcher", "Firing": "detection.watcher", "EventError": "detection.watcher",
     # report, pipeline, data, privacy, configuration
-    "render_report": "reporting.render", "analyze": "pipeline", "load_config": "config",
+    "render_report": "reporting.render", "analyze": "pipeline", "AnalysisResult": "pipeline",
+    "load_config": "config",
     "generate_greenhouse": "demo_data", "write_greenhouse": "demo_data",
     "planted_patterns": "demo_data", "pseudonymize": "inputs.privacy",
 }

@@ -20,8 +20,9 @@ try:  # Python >= 3.11
 except ModuleNotFoundError:  # pragma: no cover - Python 3.10
     import tomli as tomllib
 
-__all__ = ["DEFAULT_CONFIG", "load_config", "merge_config", "default_config", "EVENT_ROLES",
-           "CONTRAST_CORRECTIONS", "CLASSIFIERS", "DEFAULT_FRACTIONS"]
+__all__ = ["DEFAULT_CONFIG", "load_config", "merge_config", "default_config", "default_value",
+           "EVENT_ROLES", "CONTRAST_CORRECTIONS", "CLASSIFIERS", "DEFAULT_FRACTIONS",
+           "NONE_ALLOWED"]
 
 # ---- option vocabularies: kept here (no heavy imports) so the command line can offer
 # them as choices without importing pandas, scipy or scikit-learn
@@ -42,13 +43,15 @@ CLASSIFIERS = {
     "majority": (),
 }
 
-#: Observed fractions of each held-out sequence used by default in ``validate``.
-DEFAULT_FRACTIONS = (0.1, 0.2, 0.25, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0)
-
-#: Defaults of every option, by section. ``None`` means "not set / automatic".
+#: Defaults of every option, by section: the one source of defaults. The Python API
+#: (``mine``, ``contrast``, ``fit_phases``, ``validate``, ``Encoder``, ...), every
+#: sub-command's flags and ``analyze`` take theirs from here (a test checks that they
+#: agree). Keys are the Python parameter names; ``seed`` is the command-line and file
+#: name of the API's ``random_state``. ``None`` means "not set / automatic / no limit"
+#: (written ``"none"`` in a TOML file).
 DEFAULT_CONFIG = {
     "seed": 20261202,
-    "jobs": 1,
+    "n_jobs": 1,
     "scheduler": None,
     "events": {
         "learner_column": "learner", "time_column": "time", "action_column": "action",
@@ -74,25 +77,44 @@ DEFAULT_CONFIG = {
     },
     "contrast": {
         "correction": "bh", "alpha": 0.05, "n_permutations": 1000,
-        "stability_resamples": 100, "redundancy_jaccard": 0.9,
+        "n_bootstrap": 100, "redundancy": 0.9,
     },
-    "transitions": {"include_pauses": True},
-    "phases": {"enabled": True, "min_states": 2, "max_states": 5, "restarts": 3,
-               "max_iter": 100, "criterion": "bic", "heldout_folds": 3,
-               "permutations": 19, "max_sequences": None},
-    "validate": {"enabled": True, "folds": 5, "repeats": 3, "hmm_repeats": 1,
-                 "fractions": [0.1, 0.25, 0.5, 0.75, 1.0], "bootstrap": 500,
-                 "top_patterns": 30, "hmm": {}, "max_learners": None},
-    "detectors": {"max_q": 0.05, "min_stability": 0.5, "max_detectors": 20,
-                  "encourage_share": 0.5, "absence_quantile": 0.75, "examples": True},
-    "report": {"examples": True, "top_patterns": 15, "explorer_rows": 5000},
+    "transitions": {"exclude_pauses": False},
+    "phases": {"enabled": True, "min_states": 2, "max_states": 5, "n_restarts": 3,
+               "n_iter": 100, "criterion": "bic", "n_splits": 3,
+               "n_permutations": 19, "max_sequences": None},
+    "validate": {"enabled": True, "n_splits": 5, "n_repeats": 3, "n_repeats_hmm": 1,
+                 "fractions": [0.1, 0.25, 0.5, 0.75, 1.0], "n_bootstrap": 500,
+                 "top_k": 30, "hmm": {}, "max_learners": None},
+    "detectors": {"max_q": 0.05, "min_effect": 0.2, "effect": "cohens_h",
+                  "min_stability": 0.5, "max_detectors": 20, "encourage_share": 0.5,
+                  "absence_quantile": 0.75, "examples": True},
+    "report": {"examples": True, "max_patterns": 15, "explorer_rows": 5000},
     "privacy": {"pseudonymize_key": None},
 }
+
+
+#: Observed fractions of each held-out sequence used by default in ``validate``.
+DEFAULT_FRACTIONS = tuple(DEFAULT_CONFIG["validate"]["fractions"])
 
 
 def default_config():
     """A deep copy of :data:`DEFAULT_CONFIG`."""
     return copy.deepcopy(DEFAULT_CONFIG)
+
+
+def default_value(section, key=None):
+    """The default of one option (a copy), as API signatures and flags use it.
+
+    Examples
+    --------
+    >>> default_value("mine", "min_support")
+    0.2
+    >>> default_value("seed")
+    20261202
+    """
+    value = DEFAULT_CONFIG[section] if key is None else DEFAULT_CONFIG[section][key]
+    return copy.deepcopy(value)
 
 
 def load_config(path):
@@ -112,8 +134,18 @@ def load_config(path):
     return merge_config(default_config(), data, source=str(path))
 
 
+#: Options that take ``"none"`` (no limit / switched off) besides a number, though their
+#: default is a number; a negative number is refused with a pointer to ``"none"``.
+NONE_ALLOWED = {("mine", "max_gap"), ("mine", "max_length"), ("mine", "max_window"),
+                ("contrast", "redundancy"), ("detectors", "max_detectors")}
+
+
 def merge_config(base, overrides, source="configuration"):
-    """Merge ``overrides`` into a copy of ``base``, rejecting unknown keys."""
+    """Merge ``overrides`` into a copy of ``base``, rejecting unknown keys.
+
+    The string ``"none"`` (any case) stands for ``None`` (TOML has no null) in options
+    whose default is ``None`` or that are listed in :data:`NONE_ALLOWED`.
+    """
     out = copy.deepcopy(base)
     for key, value in (overrides or {}).items():
         if key not in out:
@@ -125,16 +157,31 @@ def merge_config(base, overrides, source="configuration"):
                 if sub not in out[key]:
                     raise ParameterError(_unknown(source, f"{key}.{sub}",
                                                   [f"{key}.{k}" for k in out[key]]))
-                out[key][sub] = _check_type(source, f"{key}.{sub}", DEFAULT_CONFIG[key].get(sub), v)
+                out[key][sub] = _check_value(source, key, sub, v)
         else:
-            value = _check_type(source, key, DEFAULT_CONFIG.get(key), value)
-            if key == "jobs":
+            value = _check_value(source, None, key, value)
+            if key == "n_jobs":
                 try:
                     check_jobs(value, key)
                 except ParameterError as exc:
                     raise ParameterError(f"{source}: {exc}") from None
             out[key] = value
     return out
+
+
+def _check_value(source, section, key, value):
+    """``value`` of option ``section.key`` checked against its default's kind, with
+    ``"none"`` read as None where allowed."""
+    default = DEFAULT_CONFIG[key] if section is None else DEFAULT_CONFIG[section].get(key)
+    name = key if section is None else f"{section}.{key}"
+    optional = default is None or (section, key) in NONE_ALLOWED
+    if optional and isinstance(value, str) and value.strip().lower() == "none":
+        return None
+    value = _check_type(source, name, default, value)
+    if (section, key) in NONE_ALLOWED and value is not None and value < 0:
+        raise ParameterError(f"{source}: option '{name}' must be 0 or more, or \"none\" for "
+                             f"no limit; got {value!r}.")
+    return value
 
 
 def _check_type(source, key, default, value):

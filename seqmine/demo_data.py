@@ -59,6 +59,8 @@ FORMAT_VERSION = 1
 EVENTS_FILE = "events.csv"
 OUTCOMES_FILE = "outcomes.csv"
 GROUND_TRUTH_FILE = "ground_truth.json"
+#: Seed the shipped data set (``datasets/greenhouse``) was generated with.
+SHIPPED_SEED = 20261202
 
 # ---------------------------------------------------------------------------------
 # Generator parameters (all written into the ground truth).
@@ -156,15 +158,16 @@ class GreenhouseData:
     learners: pd.DataFrame = field(repr=False)
 
 
-def generate_greenhouse(n_learners=300, *, seed=20261202, events_per_learner=(60, 150),
-                        start="2026-03-02T09:00:00Z", sessions=False):
+def generate_greenhouse(n_learners=300, *, random_state=SHIPPED_SEED,
+                        events_per_learner=(60, 150), start="2026-03-02T09:00:00Z",
+                        sessions=False):
     """Generate a synthetic greenhouse event log with planted behaviours.
 
     Parameters
     ----------
     n_learners : int, default 300
         Number of learners.
-    seed : int, default 20261202
+    random_state : int, default 20261202
         Seed of the random generator; the same seed gives the same data.
     events_per_learner : (int, int), default (60, 150)
         Inclusive range of the number of events per learner (drawn uniformly).
@@ -215,7 +218,7 @@ def generate_greenhouse(n_learners=300, *, seed=20261202, events_per_learner=(60
 
     Examples
     --------
-    >>> data = generate_greenhouse(20, seed=1)
+    >>> data = generate_greenhouse(20, random_state=1)
     >>> list(data.events.columns), list(data.outcomes.columns)
     (['learner', 'time', 'action', 'target'], ['learner', 'pre', 'post', 'max'])
     >>> data.events["learner"].nunique()
@@ -224,7 +227,7 @@ def generate_greenhouse(n_learners=300, *, seed=20261202, events_per_learner=(60
     ['advance_week', 'measure_height', 'pause:long']
     """
     n = check_int(n_learners, "n_learners", "generate_greenhouse", minimum=1)
-    seed = check_int(seed, "seed", "generate_greenhouse", minimum=0)
+    seed = check_int(random_state, "random_state", "generate_greenhouse", minimum=0)
     lo, hi = _check_range(events_per_learner)
     t0 = _check_start(start)
     if not isinstance(sessions, (bool, np.bool_)):
@@ -284,8 +287,9 @@ def generate_greenhouse(n_learners=300, *, seed=20261202, events_per_learner=(60
                           learners=learners)
 
 
-def write_greenhouse(folder, n_learners=300, *, seed=20261202, events_per_learner=(60, 150),
-                     start="2026-03-02T09:00:00Z", sessions=False, events_format="csv"):
+def write_greenhouse(folder, n_learners=300, *, random_state=SHIPPED_SEED,
+                     events_per_learner=(60, 150), start="2026-03-02T09:00:00Z",
+                     sessions=False, events_format="csv"):
     """Generate a greenhouse data set and write it to ``folder``.
 
     Writes ``events.csv`` (or ``events.jsonl`` / ``events.parquet``), ``outcomes.csv``
@@ -298,7 +302,7 @@ def write_greenhouse(folder, n_learners=300, *, seed=20261202, events_per_learne
     folder : str or Path
         Output folder (created if missing; existing files of the same names are
         replaced).
-    n_learners, seed, events_per_learner, start, sessions
+    n_learners, random_state, events_per_learner, start, sessions
         As in :func:`generate_greenhouse`.
     events_format : {"csv", "jsonl", "parquet"}, default "csv"
         File format of the events (Parquet needs pyarrow).
@@ -312,7 +316,7 @@ def write_greenhouse(folder, n_learners=300, *, seed=20261202, events_per_learne
     --------
     >>> import tempfile
     >>> with tempfile.TemporaryDirectory() as d:
-    ...     paths = write_greenhouse(d, 5, seed=3)
+    ...     paths = write_greenhouse(d, 5, random_state=3)
     ...     sorted(p.name for p in paths.values())
     ['events.csv', 'ground_truth.json', 'outcomes.csv']
     """
@@ -320,7 +324,7 @@ def write_greenhouse(folder, n_learners=300, *, seed=20261202, events_per_learne
         raise ParameterError(
             "The 'events_format' parameter of write_greenhouse must be one of 'csv', "
             f"'jsonl', 'parquet'. Got {events_format!r} instead.")
-    data = generate_greenhouse(n_learners, seed=seed, events_per_learner=events_per_learner,
+    data = generate_greenhouse(n_learners, random_state=random_state, events_per_learner=events_per_learner,
                                start=start, sessions=sessions)
     folder = Path(folder)
     try:
@@ -361,7 +365,7 @@ def planted_patterns(ground_truth, *, variants=False):
 
     Examples
     --------
-    >>> gt = generate_greenhouse(30, seed=2).ground_truth
+    >>> gt = generate_greenhouse(30, random_state=2).ground_truth
     >>> planted_patterns(gt)[["behaviour", "direction", "pattern"]].iloc[0].tolist()
     ['controlled_comparison', 'strong', 'advance_week > measure_height > pause:long']
     """

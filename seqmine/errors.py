@@ -6,12 +6,15 @@ them into a one-line message and exit status 2; anything else is an internal err
 (exit status 1).
 """
 
+import argparse
+
 __all__ = [
     "SeqmineError",
     "SeqmineInputError",
     "DataFileError",
     "ColumnError",
     "ParameterError",
+    "OptionValueError",
     "PatternExplosionError",
     "NotFittedError",
     "SeqmineWarning",
@@ -40,6 +43,14 @@ class ColumnError(SeqmineInputError):
 
 class ParameterError(SeqmineInputError):
     """An option or parameter has an invalid value."""
+
+
+class OptionValueError(ParameterError, argparse.ArgumentTypeError):
+    """A command-line option value that cannot be read (e.g. ``--max-gap x``).
+
+    Raised by the value parsers of the command line; argparse reports it as one line
+    naming the option.
+    """
 
 
 class PatternExplosionError(SeqmineInputError):

@@ -3,8 +3,10 @@
 from __future__ import annotations
 
 import contextlib
+import os
 import time
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -17,10 +19,10 @@ from .errors import DataFileError, ParameterError
 from .inputs.outcomes import Grouping, match_learners
 
 __all__ = ["Prepared", "prepare_sequences", "pseudonymize_inputs", "analyze", "AnalysisResult",
-           "MIN_GROUP_LEARNERS"]
+           "warnings_frame", "MIN_GROUP_LEARNERS"]
 
 #: Configuration keys that only say where work runs (left out of summary.json).
-_EXECUTION_KEYS = ("jobs", "scheduler")
+_EXECUTION_KEYS = ("n_jobs", "scheduler")
 
 #: Fewest learners a group may have before the run stops with a message.
 MIN_GROUP_LEARNERS = 2
@@ -139,14 +141,76 @@ def _describe(values):
 
 
 # ---------------------------------------------------------------------- analyze
-@dataclass
+@dataclass(repr=False)
 class AnalysisResult:
-    """What :func:`analyze` wrote and the headline counts."""
+    """What :func:`analyze` computed and wrote: the result tables as pandas DataFrames
+    (the same content as the files), the summary and the file paths.
+
+    Attributes
+    ----------
+    out_dir : pathlib.Path
+        The output folder.
+    summary : dict
+        The content of ``summary.json`` (plus ``stage_seconds``, the wall-clock time of
+        each stage, which the file leaves out).
+    files : list of pathlib.Path
+        The files and folders written, in the order they were written.
+    patterns : pandas.DataFrame
+        The contrast table (``patterns.csv``): one row per mined pattern, most useful first.
+    transitions : pandas.DataFrame
+        The lag-1 transition table (``transitions.csv``).
+    phases : seqmine.phases.PhaseResult or None
+        The phase models and their tables (``selection``, ``states``,
+        ``path_comparison``, ``alignment``, ``aligned_transitions``, ``distances``,
+        ``excluded``); written to ``phases/``. None when phases were switched off.
+    early_prediction : pandas.DataFrame or None
+        Early-prediction metrics per classifier and fraction (``early_prediction.csv``);
+        None when validation was switched off.
+    detectors : pandas.DataFrame
+        One row per exported detector (the ``detectors`` list of ``detectors.json``).
+    rejects : pandas.DataFrame
+        Event rows that could not be used, with the reason (``rejects.csv``).
+    warnings : pandas.DataFrame
+        Each distinct warning of the run: ``code``, ``message``, ``count`` (as in
+        ``summary.json``).
+    """
 
     out_dir: object
     summary: dict
     files: list
-    warnings: list = field(default_factory=list)
+    patterns: pd.DataFrame = None
+    transitions: pd.DataFrame = None
+    phases: object = None
+    early_prediction: pd.DataFrame = None
+    detectors: pd.DataFrame = None
+    rejects: pd.DataFrame = None
+    warnings: pd.DataFrame = field(default_factory=lambda: warnings_frame([]))
+
+    @property
+    def report(self):
+        """Path of ``report.html`` (None if it was not written)."""
+        return next((Path(f) for f in self.files if str(f).endswith("report.html")), None)
+
+    def __repr__(self):
+        s = self.summary
+        groups = ", ".join(f"{g} {n}" for g, n in (s.get("sequences_per_group") or {}).items())
+        lines = [f"AnalysisResult(out_dir={str(self.out_dir)!r})",
+                 f"  {s.get('sequences', 0)} sequences ({groups}); "
+                 f"{s.get('patterns_mined', 0)} patterns mined, "
+                 f"{s.get('patterns_significant', 0)} significant; "
+                 f"{s.get('detectors', 0)} detectors; {len(self.warnings)} warning(s)"]
+        tables = [(name, getattr(self, name)) for name in
+                  ("patterns", "transitions", "early_prediction", "detectors", "rejects",
+                   "warnings")]
+        shapes = ", ".join(f"{name} {t.shape[0]}x{t.shape[1]}" for name, t in tables
+                           if isinstance(t, pd.DataFrame))
+        lines.append(f"  tables: {shapes}")
+        if self.phases is not None:
+            lines.append(f"  phases: {self.phases.n_states} states, models "
+                         f"{', '.join(self.phases.models)}")
+        if self.report is not None:
+            lines.append(f"  report: {self.report}")
+        return "\n".join(lines)
 
     def message(self):
         """One-paragraph description for the command line."""
@@ -160,6 +224,22 @@ class AnalysisResult:
         if rep:
             lines.append(f"Report: {rep[0]}")
         return "\n".join(lines)
+
+
+def warnings_frame(records):
+    """The warnings of a run (:class:`~seqmine._util.warnlog.RunWarning` records or
+    ``{"code", "message", "count"}`` dicts) as a DataFrame with those three columns.
+
+    Examples
+    --------
+    >>> warnings_frame([{"code": "tied_times", "message": "Ties.", "count": 3}])
+             code message  count
+    0  tied_times   Ties.      3
+    """
+    rows = [r if isinstance(r, dict) else r.as_dict() for r in records]
+    frame = pd.DataFrame(rows, columns=["code", "message", "count"])
+    frame["count"] = frame["count"].astype("Int64")
+    return frame
 
 
 def _versions():
@@ -177,9 +257,12 @@ def _versions():
 
 
 def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
-    """Run the whole pipeline and write the output folder.
+    """Run the whole pipeline, write the output folder and return the results.
 
-    With ``config["jobs"] > 1`` mining partitions, Westfall-Young permutation
+    The same as ``seqmine analyze EVENTS --outcomes OUTCOMES --out OUT_DIR``: with the
+    same settings the files are byte-identical.
+
+    With ``config["n_jobs"] > 1`` mining partitions, Westfall-Young permutation
     batches, phase-model fits and validation folds run in local processes; with
     ``config["scheduler"]`` (a Dask address or ``"local"``) on a Dask cluster,
     connected once for the whole run. The outputs are identical to a serial run.
@@ -189,30 +272,40 @@ def analyze(events_path, outcomes_path, out_dir, config=None, *, quiet=False):
     events_path, outcomes_path : str or Path
     out_dir : str or Path
         Created if missing; the contract files in it are replaced.
-    config : dict, optional
-        A configuration as from :func:`seqmine.config.load_config`; defaults otherwise.
+    config : dict, str or Path, optional
+        Settings over the defaults (:data:`seqmine.config.DEFAULT_CONFIG`): a nested
+        dict with only the keys to change, e.g. ``{"mine": {"min_support": 0.3}}``, a
+        whole configuration (:func:`seqmine.config.load_config`), or the path of a TOML
+        file. Unknown keys are errors that name the closest valid key.
     quiet : bool
-        No progress bars.
+        No progress bars or stage lines.
 
     Returns
     -------
     AnalysisResult
+        The result tables as DataFrames, the summary and the paths of the files.
     """
     from ._util.parallel import using_scheduler
-    from .config import default_config
 
-    cfg = config or default_config()
+    cfg = _settings(config)
     log = WarningLog()
     # quiet=False leaves the caller's setting (the command line's --quiet) in force
     with (quiet_mode(True) if quiet else contextlib.nullcontext()), \
-            using_scheduler(cfg.get("scheduler"), int(cfg["jobs"])), collect_warnings(log):
+            using_scheduler(cfg.get("scheduler"), int(cfg["n_jobs"])), collect_warnings(log):
         return _analyze(events_path, outcomes_path, out_dir, cfg, log=log)
 
 
-def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
-    from pathlib import Path
+def _settings(config):
+    """The configuration of a run: defaults, a TOML file, or a (partial) dict over them."""
+    from .config import default_config, load_config, merge_config
+    if config is None:
+        return default_config()
+    if isinstance(config, (str, os.PathLike)):
+        return load_config(config)
+    return merge_config(default_config(), config, source="analyze(config=...)")
 
-    from .config import default_config
+
+def _analyze(events_path, outcomes_path, out_dir, cfg, *, log):
     from .encoding.encoder import encoder_from_settings
     from .inputs.load import load_events
     from .inputs.outcomes import load_outcomes
@@ -223,7 +316,6 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
     from .scoring.contrast import contrast
     from .scoring.transitions import transitions
 
-    cfg = config or default_config()
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     files = []
@@ -256,17 +348,15 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
     db.save(out / "sequences")
     summary = dict(prepared.summary)
     seed = int(cfg["seed"])
-    jobs = int(cfg["jobs"])
+    jobs = int(cfg["n_jobs"])
     scheduler = cfg.get("scheduler") or None
     stages = _Stages()
     stages.seconds["loading and encoding"] = round(time.perf_counter() - t_load, 3)
 
     # 3. mine and score
     mine_cfg, con_cfg = cfg["mine"], cfg["contrast"]
-    if mine_cfg["max_gap"] is not None and mine_cfg["max_gap"] < 0:  # -1 = no limit
-        mine_cfg = dict(mine_cfg, max_gap=None)
     with stages("mining patterns"):
-        patternset = mine_parallel(db, jobs=jobs, scheduler=scheduler,
+        patternset = mine_parallel(db, n_jobs=jobs, scheduler=scheduler,
                           min_support=mine_cfg["min_support"],
                           min_length=mine_cfg["min_length"], max_length=mine_cfg["max_length"],
                           max_gap=mine_cfg["max_gap"], max_window=mine_cfg["max_window"],
@@ -277,15 +367,14 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
         save_patternset(patternset, out / "patternset")
     with stages("scoring patterns"):
         table = contrast(patternset, db, correction=con_cfg["correction"], alpha=con_cfg["alpha"],
-                         n_permutations=con_cfg["n_permutations"], seed=seed,
-                         stability_resamples=con_cfg["stability_resamples"],
-                         redundancy=con_cfg["redundancy_jaccard"], jobs=jobs,
-                         scheduler=scheduler)
+                         n_permutations=con_cfg["n_permutations"], random_state=seed,
+                         n_bootstrap=con_cfg["n_bootstrap"], redundancy=con_cfg["redundancy"],
+                         n_jobs=jobs, scheduler=scheduler)
         table = _order_patterns(table)
         write_csv(table, out / "patterns.csv")
         files.append(out / "patterns.csv")
     with stages("transitions"):
-        trans = transitions(db, exclude_pauses=not cfg["transitions"]["include_pauses"])
+        trans = transitions(db, exclude_pauses=cfg["transitions"]["exclude_pauses"])
         write_csv(trans, out / "transitions.csv")
         files.append(out / "transitions.csv")
     alpha = float(con_cfg["alpha"])
@@ -300,10 +389,11 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
             "rate_test": "Mann-Whitney U on occurrences per 100 tokens",
             "correction": con_cfg["correction"], "alpha": alpha,
             "n_permutations": int(con_cfg["n_permutations"]),
-            "stability_resamples": int(con_cfg["stability_resamples"]),
+            "n_bootstrap": int(con_cfg["n_bootstrap"]),
             "min_support": mine_cfg["min_support"], "max_length": mine_cfg["max_length"],
-            "max_gap": mine_cfg["max_gap"], "folds": cfg["validate"]["folds"],
-            "repeats": cfg["validate"]["repeats"], "hmm_repeats": cfg["validate"]["hmm_repeats"],
+            "max_gap": mine_cfg["max_gap"], "n_splits": cfg["validate"]["n_splits"],
+            "n_repeats": cfg["validate"]["n_repeats"],
+            "n_repeats_hmm": cfg["validate"]["n_repeats_hmm"],
         },
         "sequence_lengths": {name: _describe(db.lengths[db.groups == g].astype(float))
                              for g, name in enumerate(db.group_names)},
@@ -311,17 +401,18 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
 
     # 4. phases of work
     ph_cfg = cfg["phases"]
+    phases = validation = None
     if ph_cfg["enabled"]:
         from .phases import fit_phases
         with stages("phase models"):
             phase_db = _sample_sequences(db, ph_cfg.get("max_sequences"), seed)
             phases = fit_phases(phase_db,
                                 n_states=range(ph_cfg["min_states"], ph_cfg["max_states"] + 1),
-                                n_restarts=ph_cfg["restarts"], seed=seed,
+                                n_restarts=ph_cfg["n_restarts"], random_state=seed,
                                 n_jobs=-1 if scheduler else jobs,
-                                n_iter=ph_cfg["max_iter"], criterion=ph_cfg["criterion"],
-                                n_folds=ph_cfg["heldout_folds"],
-                                n_permutations=ph_cfg["permutations"])
+                                n_iter=ph_cfg["n_iter"], criterion=ph_cfg["criterion"],
+                                n_splits=ph_cfg["n_splits"],
+                                n_permutations=ph_cfg["n_permutations"])
             phases.save(out / "phases")
             files.append(out / "phases")
             summary["phases"] = {"n_states": int(phases.n_states),
@@ -334,7 +425,7 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
 
         from .validation.crossval import default_featurizers, validate
         from .validation.features import HMMLikelihoodFeaturizer
-        allowed = set(HMMLikelihoodFeaturizer().get_params()) - {"seed"}
+        allowed = set(HMMLikelihoodFeaturizer().get_params()) - {"random_state"}
         unknown = sorted(set(va_cfg.get("hmm") or {}) - allowed)
         if unknown:
             raise ParameterError(
@@ -345,20 +436,21 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
             "start_with_action", "end_with_action", "max_patterns")}
         pattern_params.update(correction="bh" if con_cfg["correction"] == "westfall-young"
                               else con_cfg["correction"], alpha=alpha,
-                              top_k=int(va_cfg["top_patterns"]))
+                              top_k=int(va_cfg["top_k"]))
         with stages("early prediction"):
-            feats = default_featurizers(seed=seed, pattern_params=pattern_params,
+            feats = default_featurizers(random_state=seed, pattern_params=pattern_params,
                                         hmm_params=dict(va_cfg.get("hmm") or {}))
             va_events, va_outcomes = _sample_learners(prepared.events, prepared.outcomes,
                                                       va_cfg.get("max_learners"), seed)
             # the groups are the labels being predicted: the grouping fitted once on the
             # outcome table (prepare_sequences) is used unchanged in every fold
             validation = validate(
-                va_events, va_outcomes, folds=int(va_cfg["folds"]),
-                n_repeats=int(va_cfg["repeats"]), n_repeats_hmm=int(va_cfg["hmm_repeats"]),
+                va_events, va_outcomes, n_splits=int(va_cfg["n_splits"]),
+                n_repeats=int(va_cfg["n_repeats"]), n_repeats_hmm=int(va_cfg["n_repeats_hmm"]),
                 fractions=va_cfg["fractions"], grouping=prepared.grouping,
-                encoder=clone(encoder), featurizers=feats, n_bootstrap=int(va_cfg["bootstrap"]),
-                alpha=alpha, seed=seed, n_jobs=jobs, scheduler=scheduler)
+                encoder=clone(encoder), featurizers=feats,
+                n_bootstrap=int(va_cfg["n_bootstrap"]), alpha=alpha, random_state=seed,
+                n_jobs=jobs, scheduler=scheduler)
             write_csv(validation.metrics, out / "early_prediction.csv")
             files.append(out / "early_prediction.csv")
             digest = validation.summary()
@@ -368,8 +460,9 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
             summary["early_prediction"].update(
                 learners_sampled=int(va_events["learner"].nunique()),
                 learners_scored=int(validation.settings["n_learners"]),
-                folds=int(va_cfg["folds"]), repeats=int(validation.settings["repeats"]),
-                repeats_hmm=int(validation.settings["repeats_hmm"]),
+                n_splits=int(va_cfg["n_splits"]),
+                n_repeats=int(validation.settings["n_repeats"]),
+                n_repeats_hmm=int(validation.settings["n_repeats_hmm"]),
                 groups_fixed_once=True)
 
     # 6. detectors
@@ -377,13 +470,14 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
     with stages("detectors"):
         from .detection.detectors import export_detectors, save_detectors
         doc = export_detectors(table, db, patternset.constraints, max_q=float(de_cfg["max_q"]),
+                               min_effect=float(de_cfg["min_effect"]), effect=de_cfg["effect"],
                                min_stability=float(de_cfg["min_stability"]),
-                               max_detectors=int(de_cfg["max_detectors"]),
+                               max_detectors=de_cfg["max_detectors"],
                                encourage_share=de_cfg["encourage_share"],
                                absence_quantile=float(de_cfg["absence_quantile"]),
                                absence_after_events="auto" if de_cfg["absence_quantile"]
                                else None,
-                               examples=bool(de_cfg["examples"]), seed=seed)
+                               examples=bool(de_cfg["examples"]), random_state=seed)
         save_detectors(doc, out / "detectors.json")
         files.append(out / "detectors.json")
         summary["detectors"] = len(doc.get("detectors", []))
@@ -395,9 +489,9 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
     if cfg["report"]["examples"]:
         c = patternset.constraints
         files.append(write_examples(
-            out, db, table, max_patterns=int(cfg["report"]["top_patterns"]), alpha=alpha,
+            out, db, table, max_patterns=int(cfg["report"]["max_patterns"]), alpha=alpha,
             max_gap=c.get("max_gap"), max_window=c.get("max_window"),
-            skip_pauses=bool(c.get("skip_pauses", False)), seed=seed))
+            skip_pauses=bool(c.get("skip_pauses", False)), random_state=seed))
     summary["seed"] = seed
     # execution settings change where the work runs, never the results: they are left
     # out so that summary.json is identical whatever --jobs / --scheduler was used
@@ -410,10 +504,14 @@ def _analyze(events_path, outcomes_path, out_dir, config=None, *, log):
     files.append(out / "summary.json")
     with stages("report"):
         report = render_report(out, examples=bool(cfg["report"]["examples"]),
-                               max_patterns=int(cfg["report"]["top_patterns"]),
+                               max_patterns=int(cfg["report"]["max_patterns"]),
                                explorer_rows=int(cfg["report"]["explorer_rows"]))
         files.append(report)
-    return AnalysisResult(out_dir=out, summary=summary, files=files, warnings=list(log))
+    return AnalysisResult(
+        out_dir=out, summary=summary, files=files, patterns=table, transitions=trans,
+        phases=phases, early_prediction=None if validation is None else validation.metrics,
+        detectors=pd.DataFrame(doc.get("detectors", [])), rejects=loaded.rejects,
+        warnings=warnings_frame(log))
 
 
 def _sample_sequences(db, limit, seed):

@@ -60,8 +60,8 @@ def write_output_folder(folder, *, hostile=False, examples=True, drop=()):
         "pseudonymized": False,
         "configuration": {"mine": {"min_support": 0.2, "max_length": 4, "max_gap": 1},
                           "contrast": {"correction": "bh", "alpha": 0.05,
-                                       "n_permutations": 1000, "stability_resamples": 100},
-                          "validate": {"folds": 5}, "note": reset},
+                                       "n_permutations": 1000, "n_bootstrap": 100},
+                          "validate": {"n_splits": 5}, "note": reset},
         "versions": {"seqmine": "0.1.0", "numpy": "2.x"},
     }
     files = {}

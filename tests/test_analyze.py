@@ -16,14 +16,14 @@ seed = 11
 [phases]
 min_states = 2
 max_states = 3
-restarts = 1
-max_iter = 30
+n_restarts = 1
+n_iter = 30
 [validate]
-folds = 3
-bootstrap = 100
+n_splits = 3
+n_bootstrap = 100
 fractions = [0.5, 1.0]
 [contrast]
-stability_resamples = 20
+n_bootstrap = 20
 """
 
 CONTRACT_FILES = ["summary.json", "rejects.csv", "patterns.csv", "transitions.csv", "phases",
@@ -33,7 +33,7 @@ CONTRACT_FILES = ["summary.json", "rejects.csv", "patterns.csv", "transitions.cs
 @pytest.fixture(scope="module")
 def runs(tmp_path_factory):
     base = tmp_path_factory.mktemp("analyze")
-    paths = write_greenhouse(base / "data", 160, seed=5)
+    paths = write_greenhouse(base / "data", 160, random_state=5)
     cfg = base / "fast.toml"
     cfg.write_text(FAST_TOML, encoding="utf-8")
     outs = []
@@ -108,7 +108,7 @@ def test_flags_override_config(tmp_path, capsys):
     p.write_text("[mine]\nmin_support = 0.3\nmax_length = 3\n", encoding="utf-8")
     args = build_parser().parse_args(["analyze", "e.csv", "--outcomes", "o.csv", "--out", "x",
                                       "--config", str(p), "--max-length", "5"])
-    cfg = config_from_args(args, args._defaults)
+    cfg = config_from_args(args)
     assert cfg["mine"]["min_support"] == 0.3      # from the file
     assert cfg["mine"]["max_length"] == 5         # the flag wins
     assert cfg["mine"]["max_gap"] == 0            # default
@@ -122,11 +122,11 @@ def test_a_flag_equal_to_its_default_still_overrides_the_file(tmp_path):
     p.write_text("[mine]\nmin_support = 0.3\n", encoding="utf-8")
     args = build_parser().parse_args(["analyze", "e.csv", "--outcomes", "o.csv", "--out", "x",
                                       "--config", str(p), "--min-support", "0.2"])
-    assert config_from_args(args, args._defaults)["mine"]["min_support"] == 0.2
+    assert config_from_args(args)["mine"]["min_support"] == 0.2
 
 
 def test_unknown_hmm_option_is_a_user_error(tmp_path, capsys):
-    paths = write_greenhouse(tmp_path / "d", 30, seed=2)
+    paths = write_greenhouse(tmp_path / "d", 30, random_state=2)
     cfg = tmp_path / "c.toml"
     cfg.write_text("[phases]\nenabled = false\n[validate.hmm]\nn_statez = 3\n", encoding="utf-8")
     code = main(["analyze", str(paths["events"]), "--outcomes", str(paths["outcomes"]),

@@ -238,9 +238,9 @@ def test_duplicate_events(tmp_path, capsys):
     summary, rejects = accounting(*encode(tmp_path, capsys, BASE + dupes))
     assert summary["rejects_by_reason"] == {"duplicate_event": 3}
     assert rejects["detail"].tolist() == ["same as row 1", "same as row 2", "same as row 1"]
-    # --keep-duplicates keeps them all
+    # --duplicates keep keeps them all
     summary, rejects = accounting(*encode(tmp_path, capsys, BASE + dupes,
-                                          extra=["--keep-duplicates"]))
+                                          extra=["--duplicates", "keep"]))
     assert summary["rows_kept"] == N_BASE + 3
 
 
@@ -421,7 +421,7 @@ CONFIG_CASES = {
     "template-unclosed": ('[encode]\ntemplate = "{action"\n', ["malformed"]),
     "bad-delimiter": ('[events]\ndelimiter = ";;"\n', ["one character"]),
     "bad-encoding": ('[events]\nencoding = "klingon"\n', ["'klingon'"]),
-    "zero-jobs": ("jobs = 0\n", ["bad.toml", "'jobs' parameter", "-1 (all cores)"]),
+    "zero-jobs": ("n_jobs = 0\n", ["bad.toml", "'n_jobs' parameter", "-1 (all cores)"]),
     "missing-key-file": ('[privacy]\npseudonymize_key = "nokey.txt"\n', ["nokey.txt", "not found"]),
 }
 
@@ -443,7 +443,7 @@ def test_jobs_flag_checked_before_any_work(tmp_path, capsys):
     oc = _write(tmp_path / "outcomes.csv", OUTCOMES)
     rc, _, err = _run(capsys, ["analyze", ev, "--outcomes", oc, "--out", tmp_path / "o", "-q",
                                "--jobs", "0"])
-    assert_one_error(rc, err, "command line", "'jobs' parameter", "-1 (all cores)")
+    assert_one_error(rc, err, "command line", "'n_jobs' parameter", "-1 (all cores)")
     assert not (tmp_path / "o").exists()
 
 
@@ -460,7 +460,7 @@ FAST = ["--no-phases", "--no-validate", "-q"]
 def test_analyze_keeps_row_accounting_with_bad_rows(tmp_path, capsys):
     # a config with a byte-order mark, duplicate/controls/long/out-of-range rows, and
     # timings so regular that quantile pause edges tie (a former export failure)
-    cfg = _write(tmp_path / "c.toml", "\ufeff[contrast]\nstability_resamples = 5\n")
+    cfg = _write(tmp_path / "c.toml", "\ufeff[contrast]\nn_bootstrap = 5\n")
     extra = ("L1,500\nL1,501,open\x07chart\nL1,1e13,open_chart\n" + BASE.splitlines()[3] + "\n")
     ev = _write(tmp_path / "events.csv", BASE + extra)
     oc = _write(tmp_path / "outcomes.csv", OUTCOMES + "GHOST,1,5,10\n")

@@ -59,7 +59,7 @@ CASES = [
     ("missing outcomes file", dict(outcomes=None), "outcomes file not found"),
     ("unknown template field", dict(extra=["--template", "{colour}"]), "allowed fields"),
     ("bad pause thresholds", dict(extra=["--pause-strategy", "fixed", "--pause-thresholds", "5,x"]),
-     "--pause-thresholds takes comma-separated numbers"),
+     "--pause-thresholds: expected comma-separated numbers"),
     ("descending pause thresholds", dict(extra=["--pause-strategy", "fixed", "--pause-thresholds",
                                                 "30,5"]), "strictly ascending"),
     ("fixed without thresholds", dict(extra=["--pause-strategy", "fixed"]), "needs pause_thresholds"),

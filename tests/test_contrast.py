@@ -43,7 +43,7 @@ def random_patternset(n_seq=60, n_pat=30, seed=0, effect=None, n_groups=2, densi
 def test_columns_match_output_contract():
     db = random_db()
     ps = brute_patternset(db, PATTERNS)
-    df = contrast(ps, db, stability_resamples=10)
+    df = contrast(ps, db, n_bootstrap=10)
     assert list(df.columns) == [
         "pattern", "length", "support_strong", "support_weak", "rate_strong", "rate_weak",
         "p_value", "q_value", "favours", "risk_difference", "odds_ratio", "log_odds_ratio",
@@ -57,7 +57,7 @@ def test_columns_match_output_contract():
 def test_statistics_equal_references_row_by_row():
     db = random_db(n=50, seed=3)
     ps = brute_patternset(db, PATTERNS)
-    df = contrast(ps, db, stability_resamples=0, redundancy=None).set_index("pattern")
+    df = contrast(ps, db, n_bootstrap=0, redundancy=None).set_index("pattern")
     counts = ps.counts.toarray()
     rates = counts / db.lengths[:, None] * 100
     s, w = db.groups == 0, db.groups == 1
@@ -87,7 +87,7 @@ def test_statistics_equal_references_row_by_row():
 
 def test_planted_difference_is_found_in_the_right_direction():
     ps = random_patternset(n_seq=120, n_pat=20, seed=1, effect={3: 0.5, 7: -0.25})
-    df = contrast(ps, stability_resamples=50, seed=4).set_index("pattern")
+    df = contrast(ps, n_bootstrap=50, random_state=4).set_index("pattern")
     assert df.loc["t3", "favours"] == "g0" and df.loc["t7", "favours"] == "g1"
     assert df.loc["t3", "stability"] > 0.9
     assert df.loc["t3", "odds_ratio"] > 1 > df.loc["t7", "odds_ratio"]
@@ -100,16 +100,16 @@ def test_planted_difference_is_found_in_the_right_direction():
 
 def test_favours_only_when_significant():
     ps = random_patternset(n_seq=80, seed=2, effect={0: 0.6})
-    df = contrast(ps, stability_resamples=0, alpha=0.05)
+    df = contrast(ps, n_bootstrap=0, alpha=0.05)
     assert np.all((df["favours"] != "") == (df["q_value"] <= 0.05))
-    df = contrast(ps, stability_resamples=0, alpha=1e-12)
+    df = contrast(ps, n_bootstrap=0, alpha=1e-12)
     assert (df["favours"] == "").all()
 
 
 def test_same_seed_same_table_and_groups_order_flips_signs():
     db = random_db(n=40, seed=8)
     ps = brute_patternset(db, PATTERNS)
-    kw = dict(correction="westfall-young", n_permutations=99, stability_resamples=20, seed=5)
+    kw = dict(correction="westfall-young", n_permutations=99, n_bootstrap=20, random_state=5)
     a, b = contrast(ps, db, **kw), contrast(ps, db, **kw)
     pd.testing.assert_frame_equal(a, b)
     flip = contrast(ps, db, groups=["weak", "strong"], **kw).set_index("pattern")
@@ -127,9 +127,9 @@ def test_rate_units():
     np.testing.assert_allclose(sequence_rates(ps, db.lengths).toarray().ravel()[:4],
                                [100 / 3, 50.0, 25.0, 0.0])
     with pytest.warns(SeqmineWarning, match="fewer than 5"):
-        tok = contrast(ps, db, stability_resamples=0)
+        tok = contrast(ps, db, n_bootstrap=0)
     with pytest.warns(SeqmineWarning, match="fewer than 5"):
-        act = contrast(ps, db, rate_unit="actions", stability_resamples=0)
+        act = contrast(ps, db, rate_unit="actions", n_bootstrap=0)
     # tokens: x rows have 100/3 and 25 -> mean 29.1667; actions: 50 and 100/3
     assert tok["rate_x"].iloc[0] == pytest.approx((100 / 3 + 25) / 2)
     assert act["rate_x"].iloc[0] == pytest.approx((50 + 100 / 3) / 2)
@@ -171,7 +171,7 @@ def test_westfall_young_equals_brute_force_loop():
     ps = random_patternset(n_seq=24, n_pat=6, seed=7, effect={0: 0.5, 1: 0.3})
     pres = ps.presence().toarray()
     labels = ps.seq_groups
-    raw, adj = westfall_young_minp(ps.presence(), labels, n_permutations=150, seed=3,
+    raw, adj = westfall_young_minp(ps.presence(), labels, n_permutations=150, random_state=3,
                                    batch_size=7)
     ref_raw, ref_adj = _brute_force_minp(pres, labels, 150, 3)
     np.testing.assert_allclose(raw, ref_raw, rtol=1e-8)
@@ -183,7 +183,7 @@ def test_westfall_young_single_pattern_matches_exact_permutation_distribution():
     # permutation p-value P(p* <= p_obs), here enumerated over all C(12, 6) labellings.
     pres = np.array([1, 1, 1, 1, 1, 0, 1, 0, 0, 0, 1, 0])[:, None]
     labels = np.array([0] * 6 + [1] * 6)
-    raw, adj = westfall_young_minp(sp.csr_matrix(pres), labels, n_permutations=4000, seed=2)
+    raw, adj = westfall_young_minp(sp.csr_matrix(pres), labels, n_permutations=4000, random_state=2)
     hits = total = 0
     for first in itertools.combinations(range(12), 6):
         lab = np.ones(12, int)
@@ -200,9 +200,9 @@ def test_westfall_young_single_pattern_matches_exact_permutation_distribution():
 
 def test_westfall_young_batch_independent_and_bounded():
     ps = random_patternset(n_seq=50, n_pat=40, seed=9, effect={2: 0.5})
-    r1, a1 = westfall_young_minp(ps.presence(), ps.seq_groups, n_permutations=60, seed=1,
+    r1, a1 = westfall_young_minp(ps.presence(), ps.seq_groups, n_permutations=60, random_state=1,
                                  batch_size=60)
-    r2, a2 = westfall_young_minp(ps.presence(), ps.seq_groups, n_permutations=60, seed=1,
+    r2, a2 = westfall_young_minp(ps.presence(), ps.seq_groups, n_permutations=60, random_state=1,
                                  batch_size=7)
     np.testing.assert_array_equal(a1, a2)
     assert np.all((a1 >= 1 / 61) & (a1 <= 1))
@@ -213,7 +213,7 @@ def test_westfall_young_batch_independent_and_bounded():
 
 def test_westfall_young_more_groups_uses_chi_square():
     ps = random_patternset(n_seq=60, n_pat=10, seed=4, n_groups=3, effect={0: 0.6})
-    raw, adj = westfall_young_minp(ps.presence(), ps.seq_groups, n_permutations=99, seed=0)
+    raw, adj = westfall_young_minp(ps.presence(), ps.seq_groups, n_permutations=99, random_state=0)
     counts = np.stack([ps.support_counts[:, g] for g in range(3)])
     ref = [stats.chi2_contingency(np.stack([counts[:, j], ps.group_sizes - counts[:, j]], 1),
                                   correction=False).pvalue for j in range(10)]
@@ -228,8 +228,8 @@ def test_bootstrap_equals_brute_force_replay():
     labels = ps.seq_groups
     frac = [pres[labels == g].mean(axis=0) for g in (0, 1)]
     direction = np.sign(frac[0] - frac[1]).astype(int)
-    got = bootstrap_significance(ps.presence(), labels, direction, n_resamples=25, alpha=0.1,
-                                 seed=6, batch_size=4)
+    got = bootstrap_significance(ps.presence(), labels, direction, n_bootstrap=25, alpha=0.1,
+                                 random_state=6, batch_size=4)
     rng = np.random.default_rng([6, 1])
     members = [np.flatnonzero(labels == g) for g in (0, 1)]
     hits = np.zeros(5)
@@ -268,14 +268,14 @@ def test_redundant_duplicate_points_to_shorter_equal_pattern():
         + [["set_light", "reset"]] * 2, groups=["strong"] * 5 + ["weak"] * 7)
     ps = brute_patternset(db, [("advance_week", "measure_height"), ("measure_height",),
                                ("reset",), ("set_light",)])
-    df = contrast(ps, db, stability_resamples=0, redundancy=0.9).set_index("pattern")
+    df = contrast(ps, db, n_bootstrap=0, redundancy=0.9).set_index("pattern")
     # identical supporting sets and p-values: the shorter pattern is kept
     assert df.loc["advance_week > measure_height", "redundant_of"] == "measure_height"
     assert df.loc["measure_height", "redundant_of"] == ""
     assert df.loc["set_light", "redundant_of"] == ""
-    dropped = contrast(ps, db, stability_resamples=0, drop_redundant=True)
+    dropped = contrast(ps, db, n_bootstrap=0, drop_redundant=True)
     assert "advance_week > measure_height" not in set(dropped["pattern"])
-    none = contrast(ps, db, stability_resamples=0, redundancy=None)
+    none = contrast(ps, db, n_bootstrap=0, redundancy=None)
     assert (none["redundant_of"] == "").all()
 
 
@@ -289,7 +289,7 @@ def test_prune_order_decides_which_is_kept():
 def test_three_groups_omnibus_and_pairwise():
     db = random_db(n=60, seed=5, n_groups=3)
     ps = brute_patternset(db, PATTERNS)
-    df = contrast(ps, db, stability_resamples=10).set_index("pattern")
+    df = contrast(ps, db, n_bootstrap=10).set_index("pattern")
     for col in ("chi2", "cramers_v", "kruskal_h", "support_middle"):
         assert col in df.columns
     counts = ps.counts.toarray()
@@ -309,7 +309,7 @@ def test_three_groups_omnibus_and_pairwise():
     assert len(pw) == 3 * len(PATTERNS)
     assert list(pw[["group_a", "group_b"]].drop_duplicates().itertuples(index=False, name=None)) \
         == [("strong", "weak"), ("strong", "middle"), ("weak", "middle")]
-    two = contrast(ps, db, groups=["strong", "middle"], stability_resamples=0).set_index("pattern")
+    two = contrast(ps, db, groups=["strong", "middle"], n_bootstrap=0).set_index("pattern")
     sub = pw[(pw.group_a == "strong") & (pw.group_b == "middle")].set_index("pattern")
     np.testing.assert_allclose(sub["p_value"], two.loc[sub.index, "p_value"])
     np.testing.assert_allclose(sub["cliffs_delta"], two.loc[sub.index, "cliffs_delta"])
@@ -332,7 +332,7 @@ def test_tiny_group_is_refused_and_small_group_warned():
     db = SequenceDB.from_lists([["a", "b"]] * 6 + [["b"]] * 3, groups=["strong"] * 6 + ["weak"] * 3)
     ps = brute_patternset(db, [("a",)])
     with pytest.warns(SeqmineWarning, match=r"Group\(s\) 'weak' have fewer than 5"):
-        df = contrast(ps, db, stability_resamples=5)
+        df = contrast(ps, db, n_bootstrap=5)
     assert df["p_value"].iloc[0] == pytest.approx(stats.fisher_exact([[6, 0], [0, 3]]).pvalue)
 
 
@@ -381,9 +381,9 @@ def test_ungrouped_sequences_are_left_out():
     groups[:6] = -1
     db2 = db.with_groups(groups, db.group_names)
     ps2 = brute_patternset(db2, PATTERNS)
-    df2 = contrast(ps2, db2, stability_resamples=0, redundancy=None)
+    df2 = contrast(ps2, db2, n_bootstrap=0, redundancy=None)
     sub = db.subset(np.arange(6, 40))
-    df = contrast(brute_patternset(sub, PATTERNS), sub, stability_resamples=0, redundancy=None)
+    df = contrast(brute_patternset(sub, PATTERNS), sub, n_bootstrap=0, redundancy=None)
     pd.testing.assert_frame_equal(df, df2, check_like=False)
 
 
@@ -430,8 +430,8 @@ def test_learner_unit_merges_sessions():
     db = _session_db()
     ps = brute_patternset(db, PATTERNS)
     with pytest.warns(SeqmineWarning, match="Some learners have several sequences"):
-        contrast(ps, db, stability_resamples=0)
-    got = contrast(ps, db, unit="learner", stability_resamples=20, correction="westfall-young",
+        contrast(ps, db, n_bootstrap=0)
+    got = contrast(ps, db, unit="learner", n_bootstrap=20, correction="westfall-young",
                    n_permutations=50)
     # reference: merge by hand, loop over learners
     names = list(dict.fromkeys(db.learners))
@@ -443,7 +443,7 @@ def test_learner_unit_merges_sessions():
     ref_ps = PatternSet(patterns=ps.patterns, vocab=ps.vocab, is_pause=ps.is_pause,
                         group_names=ps.group_names, group_sizes=np.bincount(lgroups),
                         support_counts=sup, counts=sp.csr_matrix(merged), seq_groups=lgroups)
-    ref = contrast(ref_ps, lengths=lengths, stability_resamples=20,
+    ref = contrast(ref_ps, lengths=lengths, n_bootstrap=20,
                    correction="westfall-young", n_permutations=50)
     ref.attrs, got.attrs = {}, {}
     pd.testing.assert_frame_equal(got, ref)
@@ -476,7 +476,7 @@ def test_westfall_young_rates_equals_brute_force_loop(n_groups):
     rates = sequence_rates(ps, np.arange(30) % 7 + 3)
     dense = rates.toarray()
     labels = ps.seq_groups
-    raw, adj = westfall_young_rates(rates, labels, n_permutations=40, seed=8, batch_size=9)
+    raw, adj = westfall_young_rates(rates, labels, n_permutations=40, random_state=8, batch_size=9)
 
     def pvals(lab):
         if n_groups == 2:
@@ -497,6 +497,6 @@ def test_westfall_young_rates_equals_brute_force_loop(n_groups):
     np.testing.assert_allclose(raw, ref_raw, rtol=1e-10)
     np.testing.assert_allclose(adj, ref_adj, atol=1e-12)
     table = contrast(ps, lengths=np.arange(30) % 7 + 3, correction="westfall-young",
-                     n_permutations=40, seed=8, stability_resamples=0, redundancy=None)
+                     n_permutations=40, random_state=8, n_bootstrap=0, redundancy=None)
     np.testing.assert_allclose(table.set_index("pattern").loc[[f"t{j}" for j in range(6)],
                                                               "q_rate"], ref_adj, atol=1e-12)

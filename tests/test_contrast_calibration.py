@@ -39,7 +39,7 @@ def test_westfall_young_controls_familywise_rate_under_null():
         pres = _overlapping_presence(rng, 50)
         labels = rng.permutation(np.repeat([0, 1], 25))
         raw, adj = westfall_young_minp(sp.csr_matrix(pres.astype(np.int8)), labels,
-                                       n_permutations=199, seed=s)
+                                       n_permutations=199, random_state=s)
         hits_wy += bool(np.any(adj <= ALPHA))
         hits_raw += bool(np.any(raw <= ALPHA))
     assert hits_wy <= _upper(n_sets)
@@ -83,6 +83,6 @@ def test_westfall_young_rates_controls_familywise_rate_under_null():
         counts = pres * rng.integers(1, 5, size=pres.shape)
         rates = sp.csr_matrix(counts / rng.integers(20, 60, size=(50, 1)) * 100)
         labels = rng.permutation(np.repeat([0, 1], 25))
-        _, adj = westfall_young_rates(rates, labels, n_permutations=199, seed=s)
+        _, adj = westfall_young_rates(rates, labels, n_permutations=199, random_state=s)
         hits += bool(np.any(adj <= ALPHA))
     assert hits <= _upper(n_sets)

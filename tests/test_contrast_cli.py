@@ -38,24 +38,24 @@ def test_contrast_command_writes_tables(workdir, capsys):
 
 
 def _check_command_writes_tables(tmp, db, ps, capsys):
-    rc = main(["contrast", str(tmp / "mined"), "--seqdb", str(tmp / "seqdb"), "--out",
+    rc = main(["contrast", str(tmp / "mined"), "--sequences", str(tmp / "seqdb"), "--out",
                str(tmp / "out" / "patterns.csv"), "--transitions", str(tmp / "out" / "t.csv"),
                "--correction", "westfall-young", "--permutations", "99", "--seed", "3",
-               "--stability-resamples", "10"])
+               "--bootstrap", "10"])
     assert rc == 0
     assert "wrote 8 patterns" in capsys.readouterr().out
     got = pd.read_csv(tmp / "out" / "patterns.csv", keep_default_na=False)
-    ref = contrast(ps, db, correction="westfall-young", n_permutations=99, seed=3,
-                   stability_resamples=10)
+    ref = contrast(ps, db, correction="westfall-young", n_permutations=99, random_state=3,
+                   n_bootstrap=10)
     assert list(got.columns) == list(ref.columns)
     np.testing.assert_allclose(got["q_value"].astype(float), ref["q_value"])
     assert list(got["favours"]) == list(ref["favours"])
     tr = pd.read_csv(tmp / "out" / "t.csv")
     assert list(tr.columns) == TRANSITION_COLUMNS
     # same input and seed: byte-identical output
-    main(["contrast", str(tmp / "mined"), "--seqdb", str(tmp / "seqdb"), "-q", "--out",
+    main(["contrast", str(tmp / "mined"), "--sequences", str(tmp / "seqdb"), "-q", "--out",
           str(tmp / "again.csv"), "--correction", "westfall-young", "--permutations", "99",
-          "--seed", "3", "--stability-resamples", "10"])
+          "--seed", "3", "--bootstrap", "10"])
     assert (tmp / "again.csv").read_bytes() == (tmp / "out" / "patterns.csv").read_bytes()
 
 
@@ -74,13 +74,13 @@ def test_user_errors_exit_2_with_one_line(workdir, capsys):
     assert rc == 2 and "no such pattern set folder" in err and err.count("\n") == 1
     rc = main(["contrast", str(tmp / "mined"), "--out", str(tmp / "p.csv"), "--transitions",
                str(tmp / "t.csv")])
-    assert rc == 2 and "--transitions needs --seqdb" in capsys.readouterr().err
+    assert rc == 2 and "--transitions needs --sequences" in capsys.readouterr().err
     rc = main(["contrast", str(tmp / "mined"), "--out", str(tmp / "p.csv"), "--groups",
                "strong,best"])
     assert rc == 2 and "Group 'best' of contrast is not among" in capsys.readouterr().err
     rc = main(["contrast", str(tmp / "mined"), "--out", str(tmp / "p.csv"), "--redundancy",
                "lots"])
-    assert rc == 2 and "--redundancy must be a Jaccard threshold" in capsys.readouterr().err
+    assert rc == 2 and "--redundancy: expected a number or 'none'" in capsys.readouterr().err
     rc = main(["contrast", str(tmp / "seqdb"), "--out", str(tmp / "p.csv")])
     assert rc == 2 and "not a pattern set folder" in capsys.readouterr().err
     rc = main(["contrast", str(tmp / "mined"), "--out", str(tmp / "p.csv"), "--pairwise",
@@ -93,9 +93,9 @@ def test_three_groups_pairwise_file(tmp_path):
     ps = brute_patternset(db, PATTERNS)
     db.save(tmp_path / "seqdb")
     _write_patternset(ps, tmp_path / "mined")
-    rc = main(["contrast", str(tmp_path / "mined"), "--seqdb", str(tmp_path / "seqdb"), "-q",
+    rc = main(["contrast", str(tmp_path / "mined"), "--sequences", str(tmp_path / "seqdb"), "-q",
                "--out", str(tmp_path / "p.csv"), "--pairwise", str(tmp_path / "pw.csv"),
-               "--stability-resamples", "0"])
+               "--bootstrap", "0"])
     assert rc == 0
     assert "chi2" in pd.read_csv(tmp_path / "p.csv").columns
     assert len(pd.read_csv(tmp_path / "pw.csv")) == 3 * len(PATTERNS)

@@ -62,8 +62,8 @@ def greenhouse():
 @pytest.mark.parametrize("correction", ["bh", "westfall-young"])
 def test_planted_behaviours_come_out_in_the_right_direction(greenhouse, correction):
     db, ps, behaviours = greenhouse
-    table = contrast(ps, db, correction=correction, n_permutations=499, seed=1,
-                     stability_resamples=50).set_index("pattern")
+    table = contrast(ps, db, correction=correction, n_permutations=499, random_state=1,
+                     n_bootstrap=50).set_index("pattern")
     for b in behaviours:
         row = table.loc[" > ".join(b["key_pattern"])]
         expected = "" if b["direction"] == "neutral" else b["direction"]

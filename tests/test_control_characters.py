@@ -1,7 +1,6 @@
 """The one control-character rule: the same characters are rejected by the loader and
 the live watcher, and the rule is Unicode's general category Cc."""
 
-import csv
 import re
 import sys
 import unicodedata
@@ -48,11 +47,9 @@ def _watcher_rejects(text):
 def test_loader_and_watcher_reject_the_same_characters(tmp_path, char):
     action = f"set{char}light"
     path = tmp_path / "events.csv"
-    with open(path, "w", encoding="utf-8", newline="") as f:
-        out = csv.writer(f)
-        out.writerow(["learner", "time", "action"])
-        out.writerow(["L1", "1", action])
-        out.writerow(["L1", "2", "reset"])
+    # written by hand: the csv module of Python 3.10 cannot write a NUL character
+    quoted = '"' + action.replace('"', '""') + '"'
+    path.write_bytes(f"learner,time,action\nL1,1,{quoted}\nL1,2,reset\n".encode("utf-8"))
     res = load_events(path)
     loader_rejects = "control_characters" in set(res.rejects["reason"])
     expected = unicodedata.category(char) == "Cc"

@@ -83,7 +83,7 @@ def median_split(outcomes):
 
 @pytest.fixture(scope="module")
 def small():
-    return generate_greenhouse(300, seed=SHIPPED_SEED)
+    return generate_greenhouse(300, random_state=SHIPPED_SEED)
 
 
 @pytest.fixture(scope="module")
@@ -101,9 +101,9 @@ def shipped_tokens(shipped_events):
 
 
 def test_same_seed_same_data_other_seed_differs():
-    a = generate_greenhouse(40, seed=5)
-    b = generate_greenhouse(40, seed=5)
-    c = generate_greenhouse(40, seed=6)
+    a = generate_greenhouse(40, random_state=5)
+    b = generate_greenhouse(40, random_state=5)
+    c = generate_greenhouse(40, random_state=6)
     assert isinstance(a, GreenhouseData)
     pd.testing.assert_frame_equal(a.events, b.events)
     pd.testing.assert_frame_equal(a.outcomes, b.outcomes)
@@ -113,17 +113,17 @@ def test_same_seed_same_data_other_seed_differs():
 
 @pytest.mark.parametrize("fmt", ["csv", "jsonl"])
 def test_written_files_byte_identical(tmp_path, fmt):
-    p1 = write_greenhouse(tmp_path / "a", 25, seed=9, events_format=fmt)
-    p2 = write_greenhouse(tmp_path / "b", 25, seed=9, events_format=fmt)
+    p1 = write_greenhouse(tmp_path / "a", 25, random_state=9, events_format=fmt)
+    p2 = write_greenhouse(tmp_path / "b", 25, random_state=9, events_format=fmt)
     for role in ("events", "outcomes", "ground_truth"):
         assert p1[role].read_bytes() == p2[role].read_bytes()
     assert p1["events"].name == f"events.{fmt}"
 
 
 def test_jsonl_and_parquet_hold_same_events(tmp_path):
-    write_greenhouse(tmp_path, 12, seed=4, events_format="jsonl")
-    write_greenhouse(tmp_path, 12, seed=4, events_format="parquet")
-    write_greenhouse(tmp_path, 12, seed=4, events_format="csv")
+    write_greenhouse(tmp_path, 12, random_state=4, events_format="jsonl")
+    write_greenhouse(tmp_path, 12, random_state=4, events_format="parquet")
+    write_greenhouse(tmp_path, 12, random_state=4, events_format="csv")
     csv = pd.read_csv(tmp_path / "events.csv", dtype=str)
     jl = pd.read_json(tmp_path / "events.jsonl", lines=True, dtype=str)
     pq = pd.read_parquet(tmp_path / "events.parquet")
@@ -134,7 +134,7 @@ def test_jsonl_and_parquet_hold_same_events(tmp_path):
 
 
 def test_shipped_files_regenerate_byte_identical(tmp_path):
-    paths = write_greenhouse(tmp_path, SHIPPED_N, seed=SHIPPED_SEED)
+    paths = write_greenhouse(tmp_path, SHIPPED_N, random_state=SHIPPED_SEED)
     for role, path in paths.items():
         shipped = SHIPPED / path.name
         assert shipped.read_bytes() == path.read_bytes(), f"{shipped} differs ({role})"
@@ -157,7 +157,7 @@ def test_ground_truth_json_is_plain_and_sorted():
 
 @pytest.mark.parametrize("rng_", [(60, 150), (20, 25), (9, 9)])
 def test_event_counts_within_range(rng_):
-    d = generate_greenhouse(60, seed=2, events_per_learner=rng_)
+    d = generate_greenhouse(60, random_state=2, events_per_learner=rng_)
     sizes = d.events.groupby("learner").size()
     assert len(sizes) == 60
     assert sizes.min() >= rng_[0] and sizes.max() <= rng_[1]
@@ -201,7 +201,7 @@ def test_outcomes_valid(small):
 
 @pytest.mark.parametrize("n", [1, 99, 4000])
 def test_pre_equals_max_rare_planted_and_left_out_of_groups(n):
-    d = generate_greenhouse(n, seed=11, events_per_learner=(10, 12))
+    d = generate_greenhouse(n, random_state=11, events_per_learner=(10, 12))
     o = d.outcomes.set_index("learner")
     full = o.index[o["pre"] == o["max"]]
     planted = int(np.floor(0.005 * n + 0.5))
@@ -253,7 +253,7 @@ def test_tokenised_counts_match_planted_episodes(small):
 
 
 def test_planted_rates_as_configured():
-    d = generate_greenhouse(2000, seed=3)
+    d = generate_greenhouse(2000, random_state=3)
     params = d.ground_truth["generator"]["parameters"]
     per100 = d.learners["n_events"].to_numpy() / 100.0
     for b in BEHAVIOURS:
@@ -338,7 +338,7 @@ def test_planted_behaviours_detectable_in_shipped_data(shipped_events, shipped_t
 @pytest.mark.parametrize("kwargs, match", [
     ({"n_learners": 0}, r"'n_learners' parameter of generate_greenhouse must be an int >= 1"),
     ({"n_learners": 2.5}, r"'n_learners'.*Got 2.5"),
-    ({"seed": -1}, r"'seed' parameter"),
+    ({"random_state": -1}, r"'random_state' parameter"),
     ({"events_per_learner": (50, 40)}, r"'events_per_learner'.*8 <= low <= high"),
     ({"events_per_learner": (3, 10)}, r"'events_per_learner'.*Got \(3, 10\)"),
     ({"events_per_learner": 100}, r"'events_per_learner'.*pair of ints"),
@@ -356,9 +356,9 @@ def test_bad_events_format(tmp_path):
 
 
 def test_start_zone_handled():
-    a = generate_greenhouse(5, seed=1, start="2026-03-02T10:00:00+01:00")
-    b = generate_greenhouse(5, seed=1, start="2026-03-02T09:00:00Z")
-    c = generate_greenhouse(5, seed=1, start="2026-03-02T09:00:00")
+    a = generate_greenhouse(5, random_state=1, start="2026-03-02T10:00:00+01:00")
+    b = generate_greenhouse(5, random_state=1, start="2026-03-02T09:00:00Z")
+    c = generate_greenhouse(5, random_state=1, start="2026-03-02T09:00:00")
     pd.testing.assert_frame_equal(a.events, b.events)
     pd.testing.assert_frame_equal(b.events, c.events)
 
@@ -401,8 +401,8 @@ def test_planted_patterns_bad_input(tmp_path):
 
 
 def test_sessions_split_between_episodes_one_week_later():
-    plain = generate_greenhouse(200, seed=8)
-    split = generate_greenhouse(200, seed=8, sessions=True)
+    plain = generate_greenhouse(200, random_state=8)
+    split = generate_greenhouse(200, random_state=8, sessions=True)
     ev = split.events
     assert list(ev.columns) == ["learner", "time", "action", "target", "session"]
     assert set(ev["session"]) == {"s1", "s2"}
@@ -475,10 +475,10 @@ def test_pause_contexts_follow_configured_lognormals(small):
 
 
 def test_ground_truth_is_a_private_copy():
-    a = generate_greenhouse(5, seed=1)
+    a = generate_greenhouse(5, random_state=1)
     a.ground_truth["generator"]["parameters"]["score_max"] = 999
     a.ground_truth["generator"]["parameters"]["gain_coefficients"]["decorating"] = 9.0
-    b = generate_greenhouse(5, seed=1)
+    b = generate_greenhouse(5, random_state=1)
     assert b.ground_truth["generator"]["parameters"]["score_max"] == 20
     assert b.ground_truth["generator"]["parameters"]["gain_coefficients"]["decorating"] < 0
     assert (b.outcomes["max"] == 20).all()

@@ -49,8 +49,8 @@ def test_detectors_command_writes_a_valid_file(run_dir, capsys):
 
 def test_detectors_command_options_override(run_dir, capsys):
     out = run_dir / "d.json"
-    assert main(["detectors", str(run_dir / "patterns.csv"), "--seqdb", str(run_dir / "sequences"),
-                 "--out", str(out), "--max-gap", "none", "--max-window", "3", "--skip-pauses", "no",
+    assert main(["detectors", str(run_dir / "patterns.csv"), "--sequences", str(run_dir / "sequences"),
+                 "--out", str(out), "--max-gap", "none", "--max-window", "3", "--no-skip-pauses",
                  "--favours", "weak", "--min-length", "2", "--keep-redundant", "-q"]) == 0
     doc = load_detectors(out)
     assert doc["matching"] == {"max_gap": None, "max_window": 3, "skip_pauses": False}
@@ -65,11 +65,11 @@ def test_detectors_command_options_override(run_dir, capsys):
     (["patterns.csv", "--effect", "hedges_g"], r"lacks column\(s\) hedges_g"),
     (["patterns.csv", "--max-q", "3"], r"'max_q' parameter of select_detectors must be in"),
     (["patterns.csv", "--strong-group", "top"], "'strong' group 'top' of build_detectors"),
-    (["patterns.csv", "--max-gap", "-2"], "invalid _opt_int value"),
+    (["patterns.csv", "--max-gap", "-2"], "--max-gap: expected a whole number >= 0 or 'none'"),
     (["patterns.csv", "--encourage-share", "2"],
-     "--encourage-share: must be a number from 0 to 1 or 'none'"),
+     r"'encourage_share' parameter of export_detectors must be in \[0, 1\]"),
     (["patterns.csv", "--absence-events", "0"],
-     "--absence-events: must be a whole number >= 1 or 'auto'"),
+     "--absence-events: expected a whole number >= 1, 'auto' or 'none'"),
 ])
 def test_detectors_command_errors_exit_2(run_dir, capsys, args, message):
     argv = ["detectors"] + [str(run_dir / a) if a.endswith((".csv", "sequences")) else a
@@ -98,7 +98,7 @@ def test_detectors_command_balance_and_examples_options(run_dir):
     assert [d["direction"] for d in load_detectors(out)["detectors"]] == ["encourage"]
     # a slot one direction cannot fill goes to the other
     assert main(base + ["--max-detectors", "2", "--encourage-share", "1", "--no-examples",
-                        "--absence-events", "off"]) == 0
+                        "--absence-events", "none"]) == 0
     dets = load_detectors(out)["detectors"]
     assert sorted(d["direction"] for d in dets) == ["discourage", "encourage"]
     assert not any("example" in d for d in dets)

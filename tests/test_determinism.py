@@ -2,9 +2,8 @@
 
 ``seqmine analyze`` runs three times on the same small greenhouse data (every stage
 on, with a fast configuration): twice with ``--jobs 1`` and once with ``--jobs 2``.
-Every output file must be byte-identical; the only allowed difference between the
-``--jobs`` values is the recorded ``jobs`` setting itself (in summary.json and the
-configuration shown in the report).
+Every output file must be byte-identical (``n_jobs`` and ``scheduler`` are left out of
+summary.json).
 """
 
 import pytest
@@ -16,15 +15,15 @@ FAST_TOML = """
 [phases]
 min_states = 2
 max_states = 3
-restarts = 2
-max_iter = 10
+n_restarts = 2
+n_iter = 10
 [validate]
-folds = 2
+n_splits = 2
 fractions = [0.5, 1.0]
-bootstrap = 20
-top_patterns = 5
+n_bootstrap = 20
+top_k = 5
 [contrast]
-stability_resamples = 10
+n_bootstrap = 10
 """
 CONTRACT = ["patterns.csv", "transitions.csv", "detectors.json", "summary.json",
             "early_prediction.csv", "report.html", "rejects.csv", "examples.json"]
@@ -34,7 +33,7 @@ CONTRACT = ["patterns.csv", "transitions.csv", "detectors.json", "summary.json",
 def runs(tmp_path_factory):
     root = tmp_path_factory.mktemp("det")
     d = root / "data"
-    write_greenhouse(d, n_learners=36, seed=5, events_per_learner=(15, 35))
+    write_greenhouse(d, n_learners=36, random_state=5, events_per_learner=(15, 35))
     # a few bad rows, so the rejects path is part of the comparison
     with open(d / "events.csv", "a", encoding="utf-8") as fh:
         fh.write("L0001,not-a-time,set_light\nL0002,2026-03-02T09:00:00Z,\n")
@@ -76,7 +75,7 @@ def test_jobs_do_not_change_outputs(runs):
     assert sorted(a) == sorted(j)
     differ = [n for n in a if a[n] != j[n]]
     assert differ == []
-    assert b'"jobs"' not in j["summary.json"]
+    assert b'"n_jobs"' not in j["summary.json"]
 
 
 def test_quiet_is_quiet_with_worker_processes():
@@ -85,9 +84,9 @@ def test_quiet_is_quiet_with_worker_processes():
     from seqmine._util.parallel import parallel_map
     from seqmine._util.progress import quiet_mode
     with quiet_mode(True):
-        assert parallel_map(_bar_in_worker, [1, 2], jobs=2) == [True, True]
+        assert parallel_map(_bar_in_worker, [1, 2], n_jobs=2) == [True, True]
     with quiet_mode(False):
-        assert parallel_map(_bar_in_worker, [1, 2], jobs=2) == [False, False]
+        assert parallel_map(_bar_in_worker, [1, 2], n_jobs=2) == [False, False]
 
 
 def _bar_in_worker(_):

@@ -8,6 +8,11 @@ import numpy as np
 import pandas as pd
 import pytest
 
+# The cluster's own sockets are sometimes closed late (at interpreter shutdown of a
+# worker); that is Dask's housekeeping, not ours, so its resource warnings are not errors.
+pytestmark = [pytest.mark.filterwarnings("ignore::ResourceWarning"),
+              pytest.mark.filterwarnings("ignore::pytest.PytestUnraisableExceptionWarning")]
+
 distributed = pytest.importorskip(
     "distributed", reason="the Dask tests need the optional 'distributed' package "
                           "(pip install \"seqmine[distributed]\")")
@@ -47,17 +52,17 @@ def test_tasks_run_on_the_two_workers_in_order(scheduler):
 ])
 def test_mining_on_the_cluster_equals_serial(scheduler, kw):
     db = _random_db(np.random.default_rng(21), n_seq=150, n_sym=6)
-    assert_same_patternset(mine_parallel(db, scheduler=scheduler, jobs=2, **kw),
+    assert_same_patternset(mine_parallel(db, scheduler=scheduler, n_jobs=2, **kw),
                            mine(db, **kw))
 
 
 def test_westfall_young_on_the_cluster_equals_serial(scheduler):
     db = _random_db(np.random.default_rng(9), n_seq=90, n_sym=5)
     ps = mine(db, min_support=0.1, max_length=3)
-    kw = dict(correction="westfall-young", n_permutations=150, seed=5, stability_resamples=5,
+    kw = dict(correction="westfall-young", n_permutations=150, random_state=5, n_bootstrap=5,
               batch_size=20)
     serial = contrast(ps, db, **kw)
-    on_dask = contrast(ps, db, scheduler=scheduler, jobs=2, **kw)
+    on_dask = contrast(ps, db, scheduler=scheduler, n_jobs=2, **kw)
     pd.testing.assert_frame_equal(serial, on_dask)
     assert (serial["q_value"] < 1).any()   # the permutations did decide something
 
@@ -68,7 +73,7 @@ def test_validation_folds_on_the_cluster_equal_serial(scheduler):
     from seqmine.validation.crossval import default_featurizers, validate
 
     ev, oc = planted_data(30, seed=4)
-    kw = dict(folds=3, fractions=[0.5, 1.0], n_bootstrap=50, grouping=Grouping(),
+    kw = dict(n_splits=3, fractions=[0.5, 1.0], n_bootstrap=50, grouping=Grouping(),
               encoder=Encoder(), classifiers=["frequency_pause"],
               featurizers={"frequency_pause": default_featurizers()["frequency_pause"]})
     serial = validate(ev, oc, **kw)
@@ -81,10 +86,10 @@ def test_phase_restarts_on_the_cluster_equal_serial(scheduler):
     from seqmine.phases import fit_phase_model
 
     db = _random_db(np.random.default_rng(2), n_seq=20, n_sym=4)
-    with using_scheduler(scheduler, jobs=2) as client:
+    with using_scheduler(scheduler, n_jobs=2) as client:
         assert client is not None
-        on_dask = fit_phase_model(db, n_states=2, n_restarts=3, seed=2, n_jobs=-1, n_iter=20)
-    assert on_dask.equals(fit_phase_model(db, n_states=2, n_restarts=3, seed=2, n_iter=20))
+        on_dask = fit_phase_model(db, n_states=2, n_restarts=3, random_state=2, n_jobs=-1, n_iter=20)
+    assert on_dask.equals(fit_phase_model(db, n_states=2, n_restarts=3, random_state=2, n_iter=20))
 
 
 def test_one_connection_serves_every_call_inside_using_scheduler(scheduler, monkeypatch):
@@ -105,15 +110,15 @@ def test_analyze_on_the_cluster_writes_the_serial_outputs(scheduler, tmp_path):
     from seqmine.demo_data import write_greenhouse
     from seqmine.pipeline import analyze
 
-    write_greenhouse(tmp_path / "data", 60, seed=3)
+    write_greenhouse(tmp_path / "data", 60, random_state=3)
     base = {"contrast": {"correction": "westfall-young", "n_permutations": 60,
-                         "stability_resamples": 10},
-            "phases": {"min_states": 2, "max_states": 2, "restarts": 2, "max_iter": 10},
-            "validate": {"folds": 2, "fractions": [1.0], "bootstrap": 20}}
+                         "n_bootstrap": 10},
+            "phases": {"min_states": 2, "max_states": 2, "n_restarts": 2, "n_iter": 10},
+            "validate": {"n_splits": 2, "fractions": [1.0], "n_bootstrap": 20}}
     ev, oc = tmp_path / "data" / "events.csv", tmp_path / "data" / "outcomes.csv"
     analyze(ev, oc, tmp_path / "serial", merge_config(default_config(), base), quiet=True)
     analyze(ev, oc, tmp_path / "dask", merge_config(default_config(), dict(
-        base, jobs=2, scheduler=scheduler)), quiet=True)
+        base, n_jobs=2, scheduler=scheduler)), quiet=True)
     for name in ("patterns.csv", "transitions.csv", "early_prediction.csv", "detectors.json",
                  "examples.json"):
         assert (tmp_path / "serial" / name).read_bytes() == (tmp_path / "dask" / name).read_bytes()

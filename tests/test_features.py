@@ -188,8 +188,8 @@ def test_hmm_featurizer_unseen_tokens_and_empty_sequences():
 
 def test_hmm_featurizer_is_deterministic_and_checks_params():
     db, y = _db(n=12)
-    a = HMMLikelihoodFeaturizer(n_states=2, n_iter=5, seed=3).fit(db, y)
-    b = HMMLikelihoodFeaturizer(n_states=2, n_iter=5, seed=3).fit(db, y)
+    a = HMMLikelihoodFeaturizer(n_states=2, n_iter=5, random_state=3).fit(db, y)
+    b = HMMLikelihoodFeaturizer(n_states=2, n_iter=5, random_state=3).fit(db, y)
     np.testing.assert_array_equal(a.transform(db), b.transform(db))
     with pytest.raises(ParameterError, match="'n_states' parameter of HMMLikelihoodFeaturizer"):
         HMMLikelihoodFeaturizer(n_states=0).fit(db, y)
@@ -197,8 +197,9 @@ def test_hmm_featurizer_is_deterministic_and_checks_params():
 
 def test_pattern_featurizer_with_the_real_stages_and_their_options():
     db, y = _db()
-    f = PatternFeaturizer(max_length=3, min_length=2, start_with_action=True,
-                          correction="westfall-young", n_permutations=200, top_k=50).fit(db, y)
+    f = PatternFeaturizer(min_support=0.1, max_length=3, min_length=2, start_with_action=True,
+                          skip_pauses=False, correction="westfall-young", n_permutations=200,
+                          top_k=50).fit(db, y)
     assert f.patterns_ and all(len(p) >= 2 and not p[0].startswith("pause:")
                                for p in f.patterns_)
     assert ("a", "b", "c") in f.patterns_

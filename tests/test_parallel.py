@@ -8,8 +8,9 @@ from hypothesis import strategies as st
 
 from seqmine.encoding.sequences import SequenceDB
 from seqmine.errors import ParameterError, PatternExplosionError
-from seqmine.mining.miner import mine
-from seqmine.mining.partitions import _partition_first_items, mine_parallel
+from seqmine.mining.partitions import _partition_first_items
+
+from _unconstrained import mine, mine_parallel  # noqa: I001  (tests/ helper)
 
 
 def test_first_items_restricts_the_first_item_only():
@@ -67,7 +68,7 @@ def test_pattern_limit_counts_every_frequent_pattern_like_the_serial_miner():
 def test_local_processes_equal_serial():
     db = _random_db(np.random.default_rng(11), n_seq=200, n_sym=6)
     kw = dict(min_support=0.1, max_length=4, skip_pauses=True, closed=True)
-    assert_same_patternset(mine_parallel(db, jobs=2, **kw), mine(db, **kw))
+    assert_same_patternset(mine_parallel(db, n_jobs=2, **kw), mine(db, **kw))
 
 
 # ------------------------------------------------------------ permutation batches
@@ -86,11 +87,11 @@ def test_permutation_chunks_equal_the_serial_stream_in_process(monkeypatch, jobs
     import seqmine._util.parallel as par
     from seqmine.scoring.permutation import westfall_young_minp, westfall_young_rates
     monkeypatch.setattr(par, "parallel_map",
-                        lambda f, items, jobs=1, scheduler=None: [f(x) for x in items])
+                        lambda f, items, n_jobs=1, scheduler=None: [f(x) for x in items])
     x, labels = _presence_problem(4)
     for fn in (westfall_young_minp, westfall_young_rates):
-        raw_s, adj_s = fn(x, labels, n_permutations=97, seed=7, batch_size=10)
-        raw_p, adj_p = fn(x, labels, n_permutations=97, seed=7, batch_size=13, jobs=jobs)
+        raw_s, adj_s = fn(x, labels, n_permutations=97, random_state=7, batch_size=10)
+        raw_p, adj_p = fn(x, labels, n_permutations=97, random_state=7, batch_size=13, n_jobs=jobs)
         np.testing.assert_array_equal(raw_s, raw_p)
         np.testing.assert_array_equal(adj_s, adj_p)
 
@@ -99,9 +100,9 @@ def test_contrast_westfall_young_in_local_processes_equals_serial():
     from seqmine.scoring.contrast import contrast
     db = _random_db(np.random.default_rng(8), n_seq=80, n_sym=5)
     ps = mine(db, min_support=0.1, max_length=3)
-    kw = dict(correction="westfall-young", n_permutations=120, seed=3, stability_resamples=5)
+    kw = dict(correction="westfall-young", n_permutations=120, random_state=3, n_bootstrap=5)
     serial = contrast(ps, db, **kw)
-    parallel = contrast(ps, db, jobs=2, **kw)
+    parallel = contrast(ps, db, n_jobs=2, **kw)
     assert serial.equals(parallel)
     assert serial["q_value"].notna().all()
 
@@ -111,10 +112,10 @@ def test_scheduler_flag_reaches_the_configuration():
     from seqmine.cli.main import build_parser
     args = build_parser().parse_args(["analyze", "ev.csv", "--outcomes", "oc.csv", "--out", "o",
                                       "--jobs", "2", "--scheduler", "tcp://10.0.0.5:8786"])
-    cfg = config_from_args(args, args._defaults)
-    assert cfg["scheduler"] == "tcp://10.0.0.5:8786" and cfg["jobs"] == 2
+    cfg = config_from_args(args)
+    assert cfg["scheduler"] == "tcp://10.0.0.5:8786" and cfg["n_jobs"] == 2
     args = build_parser().parse_args(["analyze", "ev.csv", "--outcomes", "oc.csv", "--out", "o"])
-    assert config_from_args(args, args._defaults)["scheduler"] is None
+    assert config_from_args(args)["scheduler"] is None
 
 
 def test_large_data_samples_are_seeded_ordered_and_optional():

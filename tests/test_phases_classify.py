@@ -26,7 +26,7 @@ def _generators():
 def _db(n=30, length=50, seed=7):
     seqs = []
     for k, gen in enumerate(_generators()):
-        X, _ = gen.sample([length] * n, seed=seed + k)
+        X, _ = gen.sample([length] * n, random_state=seed + k)
         seqs += [[VOCAB[t] for t in X[i * length:(i + 1) * length]] for i in range(n)]
     return SequenceDB.from_lists(seqs, groups=["strong"] * n + ["weak"] * n, vocab=VOCAB)
 
@@ -34,7 +34,7 @@ def _db(n=30, length=50, seed=7):
 @pytest.fixture(scope="module")
 def fitted():
     train = _db(seed=7)
-    return GroupHMMClassifier(n_states=3, n_restarts=5, seed=0).fit(train)
+    return GroupHMMClassifier(n_states=3, n_restarts=5, random_state=0).fit(train)
 
 
 def _oracle_accuracy(db):
@@ -75,7 +75,7 @@ def test_list_input_and_sklearn_tools():
     db = _db(n=20, length=50)
     X = [db.sequence(i) for i in range(db.n_sequences)]
     y = np.array(db.group_names)[db.groups]
-    clf = GroupHMMClassifier(n_states=3, n_restarts=4, seed=1, prior="uniform")
+    clf = GroupHMMClassifier(n_states=3, n_restarts=4, random_state=1, prior="uniform")
     assert clone(clf).get_params() == clf.get_params()
     scores = cross_val_score(clf, X, y, cv=2)
     assert scores.mean() > 0.7
@@ -105,13 +105,13 @@ def test_classifier_errors():
 
 def test_state_count_chosen_per_group_by_bic():
     db = _db(n=15, length=40)
-    clf = GroupHMMClassifier(n_states="1-3", n_restarts=2, seed=0).fit(db)
+    clf = GroupHMMClassifier(n_states="1-3", n_restarts=2, random_state=0).fit(db)
     assert clf.n_states_ == [m.n_states for m in clf.models_]
     for k, m in enumerate(clf.models_):
         # the chosen model has the lowest BIC of the counts tried on its group's data
         sub = db.subset(np.flatnonzero(db.groups == k))
         bics = []
         for n in (1, 2, 3):
-            single = GroupHMMClassifier(n_states=n, n_restarts=2, seed=0).fit(db).models_[k]
+            single = GroupHMMClassifier(n_states=n, n_restarts=2, random_state=0).fit(db).models_[k]
             bics.append(single.bic(sub))
         assert m.n_states == 1 + int(np.argmin(bics))

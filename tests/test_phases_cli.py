@@ -18,14 +18,14 @@ def _write_db(path):
 def test_cli_writes_phases_folder(tmp_path, capsys):
     _write_db(tmp_path / "db")
     rc = main(["phases", str(tmp_path / "db"), "--out", str(tmp_path / "out"), "--states", "1-2",
-               "--restarts", "2", "--seed", "1", "--folds", "2", "--permutations", "2"])
+               "--restarts", "2", "--seed", "1", "--splits", "2", "--permutations", "2"])
     cap = capsys.readouterr()
     assert rc == 0
     assert "phase models written to" in cap.out
     assert "1 sequences shorter than 2 tokens left out" in cap.err
     folder = tmp_path / "out" / "phases"
     summary = json.loads((folder / "phases.json").read_text())
-    assert summary["n_excluded"] == 1 and summary["params"]["seed"] == 1
+    assert summary["n_excluded"] == 1 and summary["params"]["random_state"] == 1
     assert set(summary["models"]) == {"pooled", "strong", "weak"}
     sel = (folder / "state_selection.csv").read_text().splitlines()
     assert sel[0].startswith("model,n_states,n_parameters") and len(sel) == 3
@@ -37,7 +37,7 @@ def test_cli_jobs_equal_serial(tmp_path, capsys):
     for jobs in ("1", "2"):
         out = tmp_path / f"out{jobs}"
         rc = main(["phases", str(tmp_path / "db"), "--out", str(out), "--states", "2",
-                   "--restarts", "2", "--folds", "0", "--permutations", "0", "--jobs", jobs,
+                   "--restarts", "2", "--splits", "0", "--permutations", "0", "--jobs", jobs,
                    "-q"])
         assert rc == 0
         outs.append(out / "phases")
@@ -64,7 +64,7 @@ def test_cli_user_errors(tmp_path, capsys):
 def test_cli_hints_at_top_of_range(tmp_path, capsys):
     _write_db(tmp_path / "db")
     rc = main(["phases", str(tmp_path / "db"), "--out", str(tmp_path / "out"), "--states", "1-2",
-               "--restarts", "1", "--folds", "0", "--permutations", "0"])
+               "--restarts", "1", "--splits", "0", "--permutations", "0"])
     assert rc == 0
     summary = json.loads((tmp_path / "out" / "phases" / "phases.json").read_text())
     err = capsys.readouterr().err

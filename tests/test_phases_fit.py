@@ -44,7 +44,7 @@ def _sample_db(n=60, length=60, seed=1):
     gen_s, gen_w = _generators()
     seqs = []
     for k, gen in enumerate((gen_s, gen_w)):
-        X, _ = gen.sample([length] * n, seed=seed + k)
+        X, _ = gen.sample([length] * n, random_state=seed + k)
         seqs += [[VOCAB[t] for t in X[i * length:(i + 1) * length]] for i in range(n)]
     return SequenceDB.from_lists(seqs, groups=["strong"] * n + ["weak"] * n, vocab=VOCAB)
 
@@ -60,7 +60,7 @@ def _small_db():
 @pytest.mark.slow
 def test_recovery_of_two_generators():
     db = _sample_db()
-    res = fit_phases(db, n_states="2-4", n_restarts=3, n_folds=0, n_permutations=4, seed=0,
+    res = fit_phases(db, n_states="2-4", n_restarts=3, n_splits=0, n_permutations=4, random_state=0,
                      distance_tokens=5000)
     # 1. BIC picks the generators' state count
     assert res.n_states == 3
@@ -107,9 +107,9 @@ def test_recovery_of_two_generators():
 # --------------------------------------------------------------- reproducibility
 def test_same_seed_same_result_and_different_seed_runs():
     db = _small_db()
-    kw = dict(n_states="1-2", n_restarts=2, n_folds=2, n_permutations=2, distance_tokens=500)
-    a = fit_phases(db, seed=3, **kw)
-    b = fit_phases(db, seed=3, **kw)
+    kw = dict(n_states="1-2", n_restarts=2, n_splits=2, n_permutations=2, distance_tokens=500)
+    a = fit_phases(db, random_state=3, **kw)
+    b = fit_phases(db, random_state=3, **kw)
     for k in a.models:
         assert a.models[k].equals(b.models[k])
     pd.testing.assert_frame_equal(a.selection, b.selection)
@@ -120,20 +120,20 @@ def test_same_seed_same_result_and_different_seed_runs():
 
 def test_parallel_equals_serial():
     db = _sample_db(n=12, length=30)
-    kw = dict(n_states=[2, 3], n_restarts=2, n_folds=2, seed=5, learners=db.learners)
+    kw = dict(n_states=[2, 3], n_restarts=2, n_splits=2, random_state=5, learners=db.learners)
     t1, m1 = select_n_states(db, n_jobs=1, **kw)
     t2, m2 = select_n_states(db, n_jobs=2, **kw)
     pd.testing.assert_frame_equal(t1, t2)
     for n in m1:
         assert m1[n].equals(m2[n])
-    f1 = fit_phase_model(db, n_states=2, n_restarts=3, seed=2, n_jobs=1)
-    f2 = fit_phase_model(db, n_states=2, n_restarts=3, seed=2, n_jobs=2)
+    f1 = fit_phase_model(db, n_states=2, n_restarts=3, random_state=2, n_jobs=1)
+    f2 = fit_phase_model(db, n_states=2, n_restarts=3, random_state=2, n_jobs=2)
     assert f1.equals(f2)
 
 
 def test_restarts_pick_best_loglik():
     db = _sample_db(n=10, length=30)
-    m = fit_phase_model(db, n_states=3, n_restarts=4, seed=0)
+    m = fit_phase_model(db, n_states=3, n_restarts=4, random_state=0)
     lls = m.info["restart_logliks"]
     assert len(lls) == 4 and m.log_likelihood == max(lls)
     assert m.info["best_restart"] == int(np.argmax(lls))
@@ -158,7 +158,7 @@ def test_em_improves_on_its_start():
 # ------------------------------------------------------------- selection (BIC)
 def test_selection_table_bic_formula():
     db = _sample_db(n=8, length=25)
-    table, models = select_n_states(db, n_states=[1, 2], n_restarts=1, n_folds=2, seed=0,
+    table, models = select_n_states(db, n_states=[1, 2], n_restarts=1, n_splits=2, random_state=0,
                                     learners=db.learners)
     for row in table.itertuples(index=False):
         k = (row.n_states - 1) + row.n_states * (row.n_states - 1) + row.n_states * 5
@@ -186,7 +186,7 @@ def test_path_measures_hand_worked():
 
 def test_compare_state_paths_matches_scipy():
     db = _small_db()
-    m = fit_phase_model(db, n_states=2, n_restarts=1, seed=0)
+    m = fit_phase_model(db, n_states=2, n_restarts=1, random_state=0)
     _, states = m.decode(db)
     table = compare_state_paths(m, db, states)
     occ, _, _ = path_measures(states, db.lengths, 2)
@@ -216,10 +216,10 @@ def test_align_states_recovers_a_permutation():
 # ------------------------------------------------------ Juang-Rabiner distance
 def test_model_distance_properties():
     gen_s, gen_w = _generators()
-    same = model_distance(gen_s, gen_s, n_tokens=3000, seed=0)
+    same = model_distance(gen_s, gen_s, n_tokens=3000, random_state=0)
     assert same["d_ab"] == 0.0 and same["symmetric"] == 0.0  # D(l, l) = 0
-    ab = model_distance(gen_s, gen_w, n_tokens=3000, seed=0)
-    ba = model_distance(gen_w, gen_s, n_tokens=3000, seed=0)
+    ab = model_distance(gen_s, gen_w, n_tokens=3000, random_state=0)
+    ba = model_distance(gen_w, gen_s, n_tokens=3000, random_state=0)
     assert ab["symmetric"] == ba["symmetric"]  # symmetrised
     assert ab["d_ab"] > 0 and ab["d_ba"] > 0  # different models
 
@@ -230,7 +230,7 @@ def test_model_distance_equals_kl_for_one_state_models():
     b1, b2 = [0.5, 0.3, 0.2], [0.2, 0.2, 0.6]
     m1 = PhaseModel.from_parameters([1.0], [[1.0]], [b1])
     m2 = PhaseModel.from_parameters([1.0], [[1.0]], [b2])
-    d = model_distance(m1, m2, lengths=[100], n_tokens=200_000, seed=1)
+    d = model_distance(m1, m2, lengths=[100], n_tokens=200_000, random_state=1)
     assert d["d_ab"] == pytest.approx(entropy(b2, b1), abs=0.01)
     assert d["d_ba"] == pytest.approx(entropy(b1, b2), abs=0.01)
 
@@ -241,7 +241,7 @@ def test_state_db_and_state_paths_table(tmp_path):
     short = SequenceDB.from_lists(
         [db.decode(i) for i in range(db.n_sequences)] + [["reset"]],
         groups=["strong"] * 5 + ["weak"] * 6, vocab=db.vocab, pause_tokens=["pause:long"])
-    res = fit_phases(short, n_states=2, n_restarts=1, n_folds=0, n_permutations=0)
+    res = fit_phases(short, n_states=2, n_restarts=1, n_splits=0, n_permutations=0)
     sdb = res.state_db
     assert sdb.n_sequences == 10 and sdb.n_tokens == db.n_tokens
     assert all(v.startswith(("S1:", "S2:")) for v in sdb.vocab)
@@ -269,7 +269,7 @@ def test_state_db_and_state_paths_table(tmp_path):
 # ------------------------------------------------------------------ bad input
 def test_token_unseen_in_one_group_keeps_floor_probability():
     db = _small_db()  # "pause:long" only in strong; "paint_pot", "reset" only in weak
-    res = fit_phases(db, n_states=2, n_restarts=1, n_folds=0, n_permutations=0)
+    res = fit_phases(db, n_states=2, n_restarts=1, n_splits=0, n_permutations=0)
     assert res.unseen_tokens["strong"] == ["paint_pot", "reset", "set_water"]
     assert res.unseen_tokens["weak"] == ["advance_week", "measure_height", "pause:long"]
     strong = res.models["strong"]
@@ -287,12 +287,12 @@ def test_all_sequences_too_short():
 def test_state_range_larger_than_data():
     db = _small_db()  # 45 tokens, 7 symbols
     with pytest.raises(ParameterError, match="cannot support 6 states: that model has 71 free"):
-        fit_phases(db, n_states="6-8", n_folds=0)
+        fit_phases(db, n_states="6-8", n_splits=0)
     with pytest.warns(SeqmineWarning, match=r"State counts \[5, 6\] .* capped at 4 states"):
-        table, _ = select_n_states(db, n_states="3-6", n_restarts=1, n_folds=0)
+        table, _ = select_n_states(db, n_states="3-6", n_restarts=1, n_splits=0)
     assert table["n_states"].tolist() == [3, 4]
     with pytest.raises(ParameterError, match="The strong data .* cannot support 4 states"):
-        fit_phases(db, n_states=4, n_restarts=1, n_folds=0)
+        fit_phases(db, n_states=4, n_restarts=1, n_splits=0)
 
 
 @pytest.mark.parametrize("kwargs, message", [
@@ -301,9 +301,9 @@ def test_state_range_larger_than_data():
     ({"n_states": 2.5}, r"must be an int, a range or a list of ints"),
     ({"n_restarts": 0}, r"The 'n_restarts' parameter of fit_phases must be an int >= 1"),
     ({"criterion": "aic"}, r"'criterion' parameter of fit_phases must be one of 'bic', 'heldout'"),
-    ({"criterion": "heldout", "n_folds": 0}, r"criterion='heldout' needs n_folds >= 2"),
+    ({"criterion": "heldout", "n_splits": 0}, r"criterion='heldout' needs n_splits >= 2"),
     ({"min_length": 1}, r"'min_length' parameter of fit_phases must be an int >= 2"),
-    ({"n_folds": 20}, r"needs at least 20 learners .* has 10"),
+    ({"n_splits": 20}, r"needs at least 20 learners .* has 10"),
     ({"n_jobs": 0}, r"'n_jobs' parameter of fit_phases must be a positive int or -1"),
     ({"groups": ["middle"]}, r"Group 'middle' is not in the data \(groups: strong, weak\)"),
 ])
@@ -322,7 +322,7 @@ def test_bad_database_argument():
 def test_group_named_pooled_is_refused():
     db = SequenceDB.from_lists([["a", "b"]] * 4, groups=["pooled", "weak"] * 2)
     with pytest.raises(ParameterError, match="A group is named 'pooled'"):
-        fit_phases(db, n_states=1, n_permutations=0, n_folds=0)
+        fit_phases(db, n_states=1, n_permutations=0, n_splits=0)
 
 
 def test_permutation_reference_under_the_null():
@@ -332,10 +332,10 @@ def test_permutation_reference_under_the_null():
     gen, _ = _generators()
     p_values = []
     for k in range(3):
-        X, _ = gen.sample([40] * 40, seed=100 + k)
+        X, _ = gen.sample([40] * 40, random_state=100 + k)
         seqs = [[VOCAB[t] for t in X[i * 40:(i + 1) * 40]] for i in range(40)]
         db = SequenceDB.from_lists(seqs, groups=["strong", "weak"] * 20, vocab=VOCAB)
-        res = fit_phases(db, n_states=3, n_restarts=2, n_folds=0, n_permutations=9, seed=1,
+        res = fit_phases(db, n_states=3, n_restarts=2, n_splits=0, n_permutations=9, random_state=1,
                          distance_tokens=4000)
         d = res.distances.iloc[0]
         assert d["test_statistic"] < 3 * d["permutation_mean"]
@@ -346,14 +346,14 @@ def test_permutation_reference_under_the_null():
 
 def test_no_groups_gives_pooled_model_only():
     db = SequenceDB.from_lists([["a", "b", "a"], ["b", "a", "b", "b"]] * 3)
-    res = fit_phases(db, n_states=1, n_restarts=1, n_folds=0)
+    res = fit_phases(db, n_states=1, n_restarts=1, n_splits=0)
     assert list(res.models) == ["pooled"]
     assert res.path_comparison.empty and res.distances.empty and res.alignment.empty
 
 
 def test_heldout_criterion_uses_heldout_column():
     db = _sample_db(n=10, length=30)
-    res = fit_phases(db, n_states=[1, 2, 3], n_restarts=1, n_folds=2, criterion="heldout",
+    res = fit_phases(db, n_states=[1, 2, 3], n_restarts=1, n_splits=2, criterion="heldout",
                      n_permutations=0)
     sel = res.selection
     best = sel.loc[sel["heldout_loglik"].idxmax(), "n_states"]
@@ -375,5 +375,5 @@ def test_restarts_on_a_dask_cluster_equal_serial():
     except Exception as exc:  # the cluster itself, not our code, failed to start
         pytest.skip(f"could not start an in-process Dask cluster: {exc!r}")
     with cluster, distributed.Client(cluster), joblib.parallel_config(backend="dask"):
-        on_dask = fit_phase_model(db, n_states=2, n_restarts=3, seed=2, n_jobs=2)
-    assert on_dask.equals(fit_phase_model(db, n_states=2, n_restarts=3, seed=2))
+        on_dask = fit_phase_model(db, n_states=2, n_restarts=3, random_state=2, n_jobs=2)
+    assert on_dask.equals(fit_phase_model(db, n_states=2, n_restarts=3, random_state=2))

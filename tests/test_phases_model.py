@@ -180,18 +180,18 @@ def test_empty_and_impossible_sequences():
 def test_sampling_matches_model_frequencies():
     # 1-state model: tokens are i.i.d. draws from the emission row
     m = PhaseModel.from_parameters([1.0], [[1.0]], [[0.2, 0.5, 0.3]])
-    X, S = m.sample([1000] * 20, seed=3)
+    X, S = m.sample([1000] * 20, random_state=3)
     freq = np.bincount(X, minlength=3) / len(X)
     np.testing.assert_allclose(freq, [0.2, 0.5, 0.3], atol=0.015)
     assert set(S.tolist()) == {0}
-    X2, _ = m.sample([1000] * 20, seed=3)
+    X2, _ = m.sample([1000] * 20, random_state=3)
     assert np.array_equal(X, X2)
 
 
 def test_sampled_transitions_follow_matrix():
     A = np.array([[0.9, 0.1], [0.3, 0.7]])
     m = PhaseModel.from_parameters([0.5, 0.5], A, [[0.5, 0.5], [0.5, 0.5]])
-    _, S = m.sample([20000], seed=1)
+    _, S = m.sample([20000], random_state=1)
     counts = np.zeros((2, 2))
     np.add.at(counts, (S[:-1], S[1:]), 1)
     np.testing.assert_allclose(counts / counts.sum(axis=1, keepdims=True), A, atol=0.02)
@@ -227,7 +227,7 @@ def test_json_round_trip(tmp_path):
     db = SequenceDB.from_lists([["set_light", "advance_week", "measure_height", "pause:long"],
                                 ["paint_pot", "paint_pot", "reset"]] * 8,
                                pause_tokens=["pause:long"])
-    m = fit_phase_model(db, n_states=2, n_restarts=2, seed=4, label="pooled")
+    m = fit_phase_model(db, n_states=2, n_restarts=2, random_state=4, label="pooled")
     path = m.save(tmp_path / "m.json")
     back = PhaseModel.load(path)
     assert back.equals(m)
@@ -275,7 +275,7 @@ def test_lean_estep_equals_stock_hmmlearn():
                                      [[0.6, 0.2, 0.1, 0.1], [0.1, 0.6, 0.2, 0.1],
                                       [0.1, 0.1, 0.2, 0.6]])
     lengths = np.array([1, 7, 30, 12, 2, 25] * 5)
-    X, _ = gen.sample(lengths, seed=5)
+    X, _ = gen.sample(lengths, random_state=5)
     start = _hmm.start_point(X, 3, 4, seed=2)
     fits = []
     for cls in (CategoricalHMM, _hmm._LeanCategoricalHMM):
@@ -301,7 +301,7 @@ def test_plot_phase_model_draws_states_and_edges(tmp_path):
 
     db = SequenceDB.from_lists([["set_light", "advance_week", "measure_height"],
                                 ["paint_pot", "reset", "paint_pot"]] * 6)
-    m = fit_phase_model(db, n_states=2, n_restarts=1, seed=0, label="pooled")
+    m = fit_phase_model(db, n_states=2, n_restarts=1, random_state=0, label="pooled")
     fig = plot_phase_model(m, threshold=0.01)
     texts = [t.get_text() for t in fig.axes[0].texts]
     assert any(t.startswith("S1\n" + m.state_names[0]) for t in texts)

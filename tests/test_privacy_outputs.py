@@ -27,15 +27,15 @@ FAST_TOML = """
 [phases]
 min_states = 2
 max_states = 2
-restarts = 1
-max_iter = 5
+n_restarts = 1
+n_iter = 5
 [validate]
-folds = 2
+n_splits = 2
 fractions = [0.5, 1.0]
-bootstrap = 10
-top_patterns = 5
+n_bootstrap = 10
+top_k = 5
 [contrast]
-stability_resamples = 5
+n_bootstrap = 5
 """
 
 
@@ -46,7 +46,7 @@ def raw_id(i):
 @pytest.fixture(scope="module")
 def data(tmp_path_factory):
     d = tmp_path_factory.mktemp("priv")
-    write_greenhouse(d, n_learners=30, seed=7, events_per_learner=(15, 30))
+    write_greenhouse(d, n_learners=30, random_state=7, events_per_learner=(15, 30))
     ids = {}
     for name in ("events.csv", "outcomes.csv"):
         df = pd.read_csv(d / name, dtype=str, keep_default_na=False)
@@ -232,7 +232,7 @@ def test_no_examples_means_no_log_excerpts(data, runs, tmp_path, capsys):
 
 @pytest.mark.parametrize("command, extra", [
     ("encode", []),
-    ("validate", ["--folds", "2", "--fractions", "1", "--bootstrap", "10",
+    ("validate", ["--splits", "2", "--fractions", "1", "--bootstrap", "10",
                   "--classifiers", "pattern", "--hmm-states", "2"]),
 ])
 def test_encode_and_validate_pseudonymize_too(data, runs, tmp_path, capsys, command, extra):

@@ -424,7 +424,7 @@ def test_repetitions_and_fixed_groups_are_stated(tmp_path):
     ep.to_csv(folder / "early_prediction.csv", index=False)
     summary = json.loads((folder / "summary.json").read_text())
     summary["grouping"] = {"rule": "fraction", "low": 0.1, "high": 0.45}
-    summary["early_prediction"] = {"folds": 5, "repeats": 3, "repeats_hmm": 1,
+    summary["early_prediction"] = {"n_splits": 5, "n_repeats": 3, "n_repeats_hmm": 1,
                                    "learners_scored": 40, "groups_fixed_once": True}
     (folder / "summary.json").write_text(json.dumps(summary))
     text = render_report(folder).read_text(encoding="utf-8")

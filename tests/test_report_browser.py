@@ -119,9 +119,9 @@ def demo_report(tmp_path_factory):
     """The report of the shipped greenhouse demo data (fast phase and validation
     settings; every section is produced)."""
     cfg = default_config()
-    cfg["phases"].update(max_states=3, restarts=1, max_iter=30)
-    cfg["validate"].update(folds=3, repeats=2, bootstrap=100, fractions=[0.25, 0.5, 1.0])
-    cfg["contrast"]["stability_resamples"] = 30
+    cfg["phases"].update(max_states=3, n_restarts=1, n_iter=30)
+    cfg["validate"].update(n_splits=3, n_repeats=2, n_bootstrap=100, fractions=[0.25, 0.5, 1.0])
+    cfg["contrast"]["n_bootstrap"] = 30
     out = tmp_path_factory.mktemp("demo")
     analyze(DEMO / "events.csv", DEMO / "outcomes.csv", out, cfg, quiet=True)
     return out

@@ -80,7 +80,7 @@ def test_build_examples_layout_and_groups():
 
 def test_long_stretches_are_elided():
     db = _db()
-    ex = build_examples(db, ["a > b"], favours=["w"], context=1, max_span=4)
+    ex = build_examples(db, ["a > b"], favours=["w"], max_gap=None, context=1, max_span=4)
     events = [e for x in ex["patterns"]["a > b"] for e in x["events"]
               if x["learner"] == "L3"]
     assert {"elided": 4} in events
@@ -89,7 +89,7 @@ def test_long_stretches_are_elided():
 
 def test_build_examples_is_deterministic_and_checks_input():
     db = _db()
-    assert build_examples(db, ["a > b"], seed=3) == build_examples(db, ["a > b"], seed=3)
+    assert build_examples(db, ["a > b"], random_state=3) == build_examples(db, ["a > b"], random_state=3)
     with pytest.raises(ParameterError, match="'favours' has 1 entries for 2 patterns"):
         build_examples(db, ["a", "b"], favours=["s"])
     with pytest.raises(ParameterError, match="per_pattern"):

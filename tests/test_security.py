@@ -30,12 +30,12 @@ FAST_TOML = """
 [phases]
 min_states = 2
 max_states = 2
-restarts = 1
-max_iter = 5
+n_restarts = 1
+n_iter = 5
 [validate]
 enabled = false
 [contrast]
-stability_resamples = 5
+n_bootstrap = 5
 [mine]
 min_support = 0.3
 max_length = 3
@@ -48,7 +48,7 @@ _BAD_TAGS = {"script", "img", "iframe", "object", "embed", "link", "base", "form
 def hostile_run(tmp_path_factory):
     root = tmp_path_factory.mktemp("sec")
     d = root / "data"
-    write_greenhouse(d, n_learners=40, seed=11, events_per_learner=(20, 40))
+    write_greenhouse(d, n_learners=40, random_state=11, events_per_learner=(20, 40))
     ev = pd.read_csv(d / "events.csv", dtype=str, keep_default_na=False)
     ev["action"] = ev["action"].replace(HOSTILE)
     ev.to_csv(d / "events.csv", index=False)

@@ -29,17 +29,18 @@ TOY = dict(miner=ngram_mine, matcher=ngram_match, scorer=fisher_scorer, max_gap=
 
 
 def _feats(seed=0, **pattern):
-    return default_featurizers(seed=seed, pattern_params={**TOY, **pattern},
+    return default_featurizers(random_state=seed, pattern_params={**TOY, **pattern},
                                hmm_params=dict(n_states=2, n_restarts=1, n_iter=10))
 
 
 def _run(ev, oc, **kw):
-    kw.setdefault("folds", 3)
+    kw.setdefault("n_splits", 3)
     kw.setdefault("fractions", [0.25, 0.5, 1.0])
     kw.setdefault("n_bootstrap", 200)
     kw.setdefault("n_repeats", 1)
+    kw.setdefault("random_state", 0)
     kw.setdefault("grouping", MedianGrouping())
-    feats = kw.pop("featurizers", None) or _feats(kw.get("seed", 0))
+    feats = kw.pop("featurizers", None) or _feats(kw["random_state"])
     return validate(ev, oc, encoder=QuantileEncoder(), featurizers=feats, **kw)
 
 
@@ -107,7 +108,7 @@ def test_planted_pattern_in_held_out_learners_only_is_never_selected(steps):
     grouping = MedianGrouping().fit(oc)
     lab = grouping.transform(oc)
     learners = np.array(sorted(oc["learner"]))
-    split = learner_splits(learners, lab[learners].to_numpy(), folds=3, seed=0)
+    split = learner_splits(learners, lab[learners].to_numpy(), n_splits=3, random_state=0)
     held0 = learners[split[0][1]]
     target = [lr for lr in held0 if lab[lr] == "weak"]
     # plant 'open_guide open_guide' at the end of the fold-0 held-out weak learners only
@@ -188,7 +189,7 @@ def test_repeated_splits_deal_learners_anew_and_hmm_classifiers_repeat_less():
     t = three.to_frame()
     assert (t["accuracy_min"] <= t["accuracy"] + 1e-12).all()
     assert (t["accuracy_max"] >= t["accuracy"] - 1e-12).all()
-    assert three.settings["repeats"] == 3 and three.settings["repeats_hmm"] == 1
+    assert three.settings["n_repeats"] == 3 and three.settings["n_repeats_hmm"] == 1
 
 
 def test_parallel_folds_give_identical_results():
@@ -223,7 +224,7 @@ def test_save_and_summary(planted_result, tmp_path):
     assert list(t.columns) == list(planted_result.to_frame().columns)
     assert len(pd.read_csv(out / "early_prediction_long.csv")) == len(planted_result.to_long())
     info = json.loads((out / "validation_folds.json").read_text())
-    assert len(info["folds"]) == 3 and info["settings"]["seed"] == 0
+    assert len(info["folds"]) == 3 and info["settings"]["random_state"] == 0
     assert info["earliest_fraction"]["pattern"] == planted_result.earliest_fraction()["pattern"]
     digest = json.loads(json.dumps(planted_result.summary()))
     assert digest["accuracy"]["pattern"]["0.5"] == pytest.approx(
@@ -270,7 +271,7 @@ def test_fold_runner_rejects_a_training_fold_with_one_group(planted):
     ({"fractions": [0.5, 1.5]}, r"Cut fraction 1\.5 is outside \(0, 1\]"),
     ({"fractions": [0]}, r"Cut fraction 0 is outside \(0, 1\]"),
     ({"fractions": []}, r"fractions is empty"),
-    ({"folds": 61}, r"There are 60 learners but 61 folds"),
+    ({"n_splits": 61}, r"There are 60 learners but 61 folds"),
     ({"classifiers": ["svm"]}, r"Unknown classifier 'svm'"),
     ({"n_jobs": 0}, r"'n_jobs' parameter of validate"),
 ])
@@ -287,7 +288,7 @@ def test_validate_group_smaller_than_folds(planted):
     with pytest.raises(ParameterError, match=r"Group 'strong' has 2 learners, fewer than the "
                                              r"3 folds, so some fold would hold one group only"):
         validate(ev, oc, grouping=_TopTwo(), encoder=QuantileEncoder(), featurizers=_feats(),
-                 folds=3)
+                 n_splits=3)
 
 
 class _TopTwo(MedianGrouping):
@@ -305,7 +306,7 @@ def test_folds_on_a_local_dask_cluster_give_identical_results():
     from seqmine.inputs.outcomes import Grouping
 
     ev, oc = planted_data(30, seed=4)
-    kw = dict(folds=3, fractions=[0.5, 1.0], n_bootstrap=50, grouping=Grouping(),
+    kw = dict(n_splits=3, fractions=[0.5, 1.0], n_bootstrap=50, grouping=Grouping(),
               encoder=Encoder(), classifiers=["frequency_pause"],
               featurizers={"frequency_pause": default_featurizers()["frequency_pause"]})
     serial = validate(ev, oc, **kw)
@@ -327,7 +328,7 @@ def test_leave_one_learner_out_and_its_baseline_artefact():
                  grouping=_FixedLabels(), encoder=QuantileEncoder(), featurizers=_feats(),
                  classifiers=["frequency_pause"])
     assert r.to_frame().query("classifier == 'majority'")["accuracy"].item() == 0.0
-    assert r.settings["repeats"] == 1  # leave-one-out has one split only
+    assert r.settings["n_repeats"] == 1  # leave-one-out has one split only
 
 
 class _FixedLabels:

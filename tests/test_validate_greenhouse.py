@@ -21,7 +21,7 @@ FAST_HMM = dict(n_states=2, n_restarts=1, n_iter=20)
 
 
 def _greenhouse(n, seed):
-    d = generate_greenhouse(n, seed=seed)
+    d = generate_greenhouse(n, random_state=seed)
     ev = d.events.assign(time=parse_times(d.events["time"])[0])
     oc = d.outcomes.assign(gain=normalized_gain(d.outcomes["pre"], d.outcomes["post"],
                                                 d.outcomes["max"]))
@@ -36,9 +36,9 @@ def greenhouse_data():
 @pytest.fixture(scope="module")
 def greenhouse_result(greenhouse_data):
     ev, oc = greenhouse_data
-    return validate(ev, oc, folds=3, n_repeats=1, fractions=[0.25, 0.5, 1.0], n_bootstrap=300,
+    return validate(ev, oc, n_splits=3, n_repeats=1, fractions=[0.25, 0.5, 1.0], n_bootstrap=300,
                     grouping=Grouping(), encoder=Encoder(),
-                    featurizers=default_featurizers(seed=0, hmm_params=FAST_HMM))
+                    featurizers=default_featurizers(random_state=0, hmm_params=FAST_HMM))
 
 
 def test_pattern_classifier_beats_majority_before_the_session_ends(greenhouse_result):
@@ -72,12 +72,12 @@ def test_pause_edges_are_learned_on_training_events_only(greenhouse_data, greenh
 @pytest.fixture(scope="module")
 def small_files(tmp_path_factory):
     folder = tmp_path_factory.mktemp("gh")
-    return write_greenhouse(folder, 30, seed=3)
+    return write_greenhouse(folder, 30, random_state=3)
 
 
 def _cli(paths, out, *extra):
     return main(["validate", str(paths["events"]), "--outcomes", str(paths["outcomes"]),
-                 "--out", str(out), "--quiet", "--folds", "3", "--fractions", "0.5,1",
+                 "--out", str(out), "--quiet", "--splits", "3", "--fractions", "0.5,1",
                  "--bootstrap", "50", "--hmm-states", "2", "--repeats", "2", *extra])
 
 
@@ -96,8 +96,8 @@ def test_cli_writes_the_tables(small_files, tmp_path):
 
 @pytest.mark.parametrize("extra, msg", [
     (("--fractions", "0.5,1.2"), r"Cut fraction 1\.2 is outside \(0, 1\]"),
-    (("--fractions", "a,b"), r"--fractions takes comma-separated numbers"),
-    (("--folds", "40"), r"There are 30 learners but 40 folds"),
+    (("--fractions", "a,b"), r"--fractions: expected comma-separated numbers"),
+    (("--splits", "40"), r"There are 30 learners but 40 folds"),
     (("--classifiers", "pattern,svm"), r"--classifiers: unknown name 'svm'"),
     (("--jobs", "0"), r"'n_jobs' parameter of validate must be a positive int or -1"),
 ])
@@ -137,10 +137,10 @@ def test_greenhouse_with_shuffled_gains_gives_no_classifier_an_edge():
         ev, oc = _greenhouse(60, seed=200 + seed)
         rng = np.random.default_rng(seed)
         oc = oc.assign(gain=rng.permutation(oc["gain"].to_numpy()))
-        r = validate(ev, oc, folds=3, n_repeats=1, fractions=[0.5, 1.0], n_bootstrap=50,
-                     seed=seed,
+        r = validate(ev, oc, n_splits=3, n_repeats=1, fractions=[0.5, 1.0], n_bootstrap=50,
+                     random_state=seed,
                      grouping=Grouping(), encoder=Encoder(),
-                     featurizers=default_featurizers(seed=seed, hmm_params=FAST_HMM))
+                     featurizers=default_featurizers(random_state=seed, hmm_params=FAST_HMM))
         t = r.to_frame()
         models = t[t.classifier != "majority"]
         rejections += int(models["beats_baseline"].sum())
@@ -151,7 +151,7 @@ def test_greenhouse_with_shuffled_gains_gives_no_classifier_an_edge():
 
 
 def test_several_sessions_per_learner_stay_in_one_fold_and_are_pooled():
-    d = generate_greenhouse(45, seed=11, sessions=True)
+    d = generate_greenhouse(45, random_state=11, sessions=True)
     ev = d.events.assign(time=parse_times(d.events["time"])[0])
     oc = d.outcomes.assign(gain=normalized_gain(d.outcomes["pre"], d.outcomes["post"],
                                                 d.outcomes["max"]))
@@ -160,7 +160,7 @@ def test_several_sessions_per_learner_stay_in_one_fold_and_are_pooled():
     multi = pd.Series(db.learners).value_counts()
     assert (multi > 1).any()  # some learners have two sessions
     with pytest.warns(Warning, match="several sequences per learner|independent"):
-        r = validate(ev, oc, folds=3, n_repeats=1, fractions=[0.5, 1.0], n_bootstrap=50,
+        r = validate(ev, oc, n_splits=3, n_repeats=1, fractions=[0.5, 1.0], n_bootstrap=50,
                      grouping=Grouping(),
                      encoder=enc, featurizers=default_featurizers(hmm_params=FAST_HMM))
     p = r.predictions

@@ -49,7 +49,7 @@ def _predictions(seed, n=40, k=2, names=GROUPS):
 def test_point_metrics_equal_scikit_learn(seed):
     # reference: scikit-learn's own metric implementations
     preds = _predictions(seed)
-    table = early_prediction_table(preds, GROUPS, n_bootstrap=50, seed=seed)
+    table = early_prediction_table(preds, GROUPS, n_bootstrap=50, random_state=seed)
     for (name, frac), part in preds.groupby(["classifier", "fraction"]):
         row = table[(table.classifier == name) & (table.fraction == frac)].iloc[0]
         y, p = part["group"], part["predicted"]
@@ -132,7 +132,7 @@ def _repeated(seed, n_repeats, n=40):
 def test_repeated_metrics_are_means_over_repetitions_with_their_range():
     # reference: scikit-learn on each repetition separately, then mean / min / max
     preds = _repeated(11, 3)
-    table = early_prediction_table(preds, GROUPS, n_bootstrap=50, seed=1)
+    table = early_prediction_table(preds, GROUPS, n_bootstrap=50, random_state=1)
     for (name, frac), part in preds.groupby(["classifier", "fraction"]):
         row = table[(table.classifier == name) & (table.fraction == frac)].iloc[0]
         per = [balanced_accuracy_score(r["group"], r["predicted"])
@@ -184,13 +184,13 @@ def test_a_classifier_with_fewer_repetitions_is_compared_on_its_own():
 
 def test_bootstrap_is_seeded_and_intervals_bracket_the_estimate():
     preds = _predictions(4)
-    t1 = early_prediction_table(preds, GROUPS, n_bootstrap=200, seed=9)
-    t2 = early_prediction_table(preds, GROUPS, n_bootstrap=200, seed=9)
+    t1 = early_prediction_table(preds, GROUPS, n_bootstrap=200, random_state=9)
+    t2 = early_prediction_table(preds, GROUPS, n_bootstrap=200, random_state=9)
     pd.testing.assert_frame_equal(t1, t2)
     for m in ["accuracy", "balanced_accuracy", "roc_auc"]:
         assert (t1[f"{m}_low"] <= t1[m] + 1e-12).all()
         assert (t1[f"{m}_high"] >= t1[m] - 1e-12).all()
-    t3 = early_prediction_table(preds, GROUPS, n_bootstrap=200, seed=10)
+    t3 = early_prediction_table(preds, GROUPS, n_bootstrap=200, random_state=10)
     assert not np.allclose(t1["accuracy_low"], t3["accuracy_low"])
 
 
@@ -216,9 +216,9 @@ def test_no_learner_spans_two_folds(spec, folds, seed):
     per_group = pd.Series([w for _, w in spec]).value_counts()
     if len(per_group) < 2 or per_group.min() < folds:
         with pytest.raises(ParameterError, match="folds|at least two groups"):
-            learner_splits(learners, labels, folds=folds, seed=seed)
+            learner_splits(learners, labels, n_splits=folds, random_state=seed)
         return
-    split = learner_splits(learners, labels, folds=folds, seed=seed)
+    split = learner_splits(learners, labels, n_splits=folds, random_state=seed)
     assert len(split) == folds
     seen = np.zeros(len(learners), dtype=int)
     for tr, te in split:
@@ -241,9 +241,9 @@ def test_unstratified_folds_keep_learners_together(sessions, folds, seed):
     learners = np.array([f"L{i}" for i, k in enumerate(sessions) for _ in range(k)])
     if len(sessions) < folds:
         with pytest.raises(ParameterError, match=f"{len(sessions)} learners but {folds} folds"):
-            learner_splits(learners, folds=folds, seed=seed)
+            learner_splits(learners, n_splits=folds, random_state=seed)
         return
-    split = learner_splits(learners, folds=folds, seed=seed)
+    split = learner_splits(learners, n_splits=folds, random_state=seed)
     assert len(split) == folds
     seen = np.zeros(len(learners), dtype=int)
     sizes = []
@@ -253,7 +253,7 @@ def test_unstratified_folds_keep_learners_together(sessions, folds, seed):
         sizes.append(len(set(learners[te])))
     assert (seen == 1).all() and max(sizes) - min(sizes) <= 1
     assert [te.tolist() for _, te in split] == [
-        te.tolist() for _, te in learner_splits(learners, folds=folds, seed=seed)]
+        te.tolist() for _, te in learner_splits(learners, n_splits=folds, random_state=seed)]
 
 
 def test_leave_one_learner_out_keeps_sessions_together():
@@ -263,11 +263,11 @@ def test_leave_one_learner_out_keeps_sessions_together():
 
 
 @pytest.mark.parametrize("learners, labels, kw, msg", [
-    (["a", "b", "c"], ["x", "y", "x"], {"folds": 5}, r"3 learners but 5 folds"),
-    (["a", "b", "c", "d"], ["x", "x", "x", "x"], {"folds": 2}, r"group 'x'; cross-validation"),
-    (["a", "b", "c", "d", "e", "f"], ["x", "x", "x", "x", "x", "y"], {"folds": 3},
+    (["a", "b", "c"], ["x", "y", "x"], {"n_splits": 5}, r"3 learners but 5 folds"),
+    (["a", "b", "c", "d"], ["x", "x", "x", "x"], {"n_splits": 2}, r"group 'x'; cross-validation"),
+    (["a", "b", "c", "d", "e", "f"], ["x", "x", "x", "x", "x", "y"], {"n_splits": 3},
      r"Group 'y' has 1 learners, fewer than the 3 folds"),
-    (["a", "b"], ["x", "y"], {"folds": 1}, r"'folds' parameter of learner_splits must be an int >= 2"),
+    (["a", "b"], ["x", "y"], {"n_splits": 1}, r"'n_splits' parameter of learner_splits must be an int >= 2"),
     (["a"], ["x"], {"loo": True}, r"at least 2 learners"),
 ])
 def test_fold_errors(learners, labels, kw, msg):

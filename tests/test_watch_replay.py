@@ -24,7 +24,7 @@ def demo_run(tmp_path_factory):
     cfg = default_config()
     cfg["phases"]["enabled"] = False
     cfg["validate"]["enabled"] = False
-    cfg["contrast"]["stability_resamples"] = 30
+    cfg["contrast"]["n_bootstrap"] = 30
     out = tmp_path_factory.mktemp("replay")
     analyze(DEMO / "events.csv", DEMO / "outcomes.csv", out, cfg, quiet=True)
     return out

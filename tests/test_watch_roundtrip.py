@@ -72,7 +72,7 @@ def test_demo_round_trip_counts_equal_offline(tmp_path):
     prepared = prepare_sequences(loaded, outcomes, encoder=Encoder(implicit_pauses=("short",)))
     db = prepared.db
     ps = mine(db, min_support=0.15, max_length=4, max_gap=1, skip_pauses=True)
-    table = contrast(ps, db, stability_resamples=20, seed=0)
+    table = contrast(ps, db, n_bootstrap=20, random_state=0)
     rows = select_detectors(table, min_stability=0.5, max_detectors=30)
     assert len(rows) >= 3, "the demo data should yield a few significant, stable patterns"
     doc = build_detectors(rows, db.encoding, ps.constraints, group_names=db.group_names,
@@ -100,8 +100,8 @@ def test_demo_round_trip_through_the_command_line(tmp_path, capsys):
                  "--out", str(out), "-q"]) == 0
     assert main(["mine", str(out / "sequences"), "--out", str(out / "patterns"),
                  "--min-support", "0.15", "--max-gap", "1", "--skip-pauses", "-q"]) == 0
-    assert main(["contrast", str(out / "patterns"), "--seqdb", str(out / "sequences"),
-                 "--out", str(out / "patterns.csv"), "--stability-resamples", "20", "-q"]) == 0
+    assert main(["contrast", str(out / "patterns"), "--sequences", str(out / "sequences"),
+                 "--out", str(out / "patterns.csv"), "--bootstrap", "20", "-q"]) == 0
     assert main(["detectors", str(out / "patterns.csv"), "--sequences", str(out / "sequences"),
                  "--patterns", str(out / "patterns"), "--out", str(out / "detectors.json"),
                  "-q"]) == 0

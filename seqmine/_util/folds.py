@@ -5,7 +5,7 @@ and held-out scoring of phase models (:func:`seqmine.phases.select_n_states`). L
 not samples, are split with scikit-learn: :class:`~sklearn.model_selection.StratifiedKFold`
 over one row per learner when group labels are given (each fold holds each group's
 learners in proportion), :class:`~sklearn.model_selection.KFold` otherwise; then each
-learner's samples follow it. The same ``seed`` gives the same folds.
+learner's samples follow it. The same ``random_state`` gives the same folds.
 """
 
 from __future__ import annotations
@@ -18,7 +18,7 @@ from .checks import check_int
 __all__ = ["learner_splits"]
 
 
-def learner_splits(learners, labels=None, *, folds=5, loo=False, seed=0,
+def learner_splits(learners, labels=None, *, n_splits=5, loo=False, random_state=0,
                    where="learner_splits"):
     """Split samples into folds so that no learner spans two folds.
 
@@ -29,11 +29,11 @@ def learner_splits(learners, labels=None, *, folds=5, loo=False, seed=0,
     labels : array-like, shape (n_samples,), optional
         Group of each sample, used to stratify (the first sample of a learner
         gives the learner's label). Without labels the folds are not stratified.
-    folds : int, default 5
+    n_splits : int, default 5
         Number of folds over learners (ignored when ``loo``).
     loo : bool, default False
         One fold per learner.
-    seed : int, default 0
+    random_state : int, default 0
         Shuffles learners before the split.
     where : str, default "learner_splits"
         The function named in error messages.
@@ -47,12 +47,12 @@ def learner_splits(learners, labels=None, *, folds=5, loo=False, seed=0,
     --------
     >>> learners = ["a", "a", "b", "c", "d", "e", "f"]
     >>> labels = ["x", "x", "x", "x", "y", "y", "y"]
-    >>> for tr, te in learner_splits(learners, labels, folds=3):
+    >>> for tr, te in learner_splits(learners, labels, n_splits=3):
     ...     print(" ".join(sorted(set(np.asarray(learners)[te]))))
     c e
     b f
     a d
-    >>> [te.tolist() for _, te in learner_splits(["a", "b", "a", "c"], folds=2)]
+    >>> [te.tolist() for _, te in learner_splits(["a", "b", "a", "c"], n_splits=2)]
     [[1, 3], [0, 2]]
     """
     from sklearn.model_selection import KFold, StratifiedKFold
@@ -71,13 +71,13 @@ def learner_splits(learners, labels=None, *, folds=5, loo=False, seed=0,
             raise ParameterError(f"Leave-one-learner-out needs at least 2 learners; got {n}.")
         test_sets = [np.array([i]) for i in range(n)]
     else:
-        folds = check_int(folds, "folds", where, minimum=2)
+        folds = check_int(n_splits, "n_splits", where, minimum=2)
         if n < folds:
             raise ParameterError(
                 f"There are {n} learners but {folds} folds were asked for; use at most "
-                f"{n} folds (--folds {max(n, 2)}) or leave-one-learner-out (--loo).")
+                f"{n} folds (--splits {max(n, 2)}) or leave-one-learner-out (--loo).")
         if labels is None:
-            split = KFold(n_splits=folds, shuffle=True, random_state=seed)
+            split = KFold(n_splits=folds, shuffle=True, random_state=random_state)
             test_sets = [te for _, te in split.split(np.zeros(n))]
         else:
             lab = np.array([str(v) for v in labels[first]], dtype=object)
@@ -91,9 +91,9 @@ def learner_splits(learners, labels=None, *, folds=5, loo=False, seed=0,
                 raise ParameterError(
                     f"Group {names[small]!r} has {counts[small]} learners, fewer than the "
                     f"{folds} folds, so some fold would hold one group only; use at most "
-                    f"{counts[small]} folds (--folds {max(int(counts[small]), 2)}) or "
+                    f"{counts[small]} folds (--splits {max(int(counts[small]), 2)}) or "
                     f"leave-one-learner-out (--loo).")
-            split = StratifiedKFold(n_splits=folds, shuffle=True, random_state=seed)
+            split = StratifiedKFold(n_splits=folds, shuffle=True, random_state=random_state)
             test_sets = [te for _, te in split.split(np.zeros(n), lab)]
     out = []
     for te_l in test_sets:

@@ -1,6 +1,6 @@
 """One way to run independent tasks: serially, in local processes, or on a Dask cluster.
 
-``jobs=1`` runs in this process; ``jobs=N`` uses N local worker processes (joblib);
+``n_jobs=1`` runs in this process; ``n_jobs=N`` uses N local worker processes (joblib);
 ``scheduler="tcp://host:8786"`` (or ``"local"`` for a local Dask cluster) sends the same
 tasks to Dask distributed (``pip install "seqmine[distributed]"``). Results always come
 back in task order, so the output does not depend on where the tasks ran.
@@ -22,7 +22,7 @@ __all__ = ["parallel_map", "using_scheduler", "n_workers"]
 _ACTIVE = []
 
 
-def parallel_map(func, items, *, jobs=1, scheduler=None):
+def parallel_map(func, items, *, n_jobs=1, scheduler=None):
     """``[func(x) for x in items]``, possibly in parallel; order is preserved.
 
     Parameters
@@ -30,10 +30,10 @@ def parallel_map(func, items, *, jobs=1, scheduler=None):
     func : callable
         A module-level function (it is sent to other processes).
     items : iterable
-    jobs : int
+    n_jobs : int
         Local worker processes (1 = serial; -1 = all cores).
     scheduler : str, optional
-        Dask scheduler address, or ``"local"`` for a local cluster with ``jobs`` workers.
+        Dask scheduler address, or ``"local"`` for a local cluster with ``n_jobs`` workers.
 
     Returns
     -------
@@ -45,46 +45,46 @@ def parallel_map(func, items, *, jobs=1, scheduler=None):
     [2, 3, 1]
     """
     items = list(items)
-    if jobs is not None:
-        jobs = check_jobs(jobs, "jobs")
-    if not scheduler and (jobs is None or jobs == 1 or len(items) <= 1):
+    if n_jobs is not None:
+        n_jobs = check_jobs(n_jobs, "n_jobs")
+    if not scheduler and (n_jobs is None or n_jobs == 1 or len(items) <= 1):
         return [func(x) for x in items]
     # worker processes start with default settings: carry the quiet switch over
     func = functools.partial(_call_with_quiet, func, is_quiet())
     if scheduler:
-        return _dask_map(func, items, scheduler, jobs)
+        return _dask_map(func, items, scheduler, n_jobs)
     from joblib import Parallel, delayed
-    return list(Parallel(n_jobs=jobs)(delayed(func)(x) for x in items))
+    return list(Parallel(n_jobs=n_jobs)(delayed(func)(x) for x in items))
 
 
-def n_workers(jobs, where=""):
-    """The number of worker processes ``jobs`` stands for: -1 = every core, None = 1.
+def n_workers(n_jobs, where=""):
+    """The number of worker processes ``n_jobs`` stands for: -1 = every core, None = 1.
 
     Examples
     --------
     >>> n_workers(3), n_workers(None), n_workers(-1) >= 1
     (3, 1, True)
     """
-    if jobs is None:
+    if n_jobs is None:
         return 1
-    jobs = check_jobs(jobs, "jobs", where)
-    return max(1, os.cpu_count() or 1) if jobs == -1 else jobs
+    n_jobs = check_jobs(n_jobs, "n_jobs", where)
+    return max(1, os.cpu_count() or 1) if n_jobs == -1 else n_jobs
 
 
 @contextlib.contextmanager
-def using_scheduler(scheduler, jobs=1):
+def using_scheduler(scheduler, n_jobs=1):
     """Connect to a Dask cluster once for a block of work.
 
     Inside the block, :func:`parallel_map` calls with the same ``scheduler`` reuse the
     connection (a ``"local"`` cluster is started once, not per call) and calls without a
-    scheduler but with ``jobs > 1`` (hidden Markov model restarts) run on the cluster too. With
+    scheduler but with ``n_jobs > 1`` (hidden Markov model restarts) run on the cluster too. With
     ``scheduler=None`` nothing happens.
 
     Parameters
     ----------
     scheduler : str or None
         Dask scheduler address or ``"local"``.
-    jobs : int
+    n_jobs : int
         Workers of a ``"local"`` cluster.
 
     Yields
@@ -106,7 +106,7 @@ def using_scheduler(scheduler, jobs=1):
     import joblib
     stack = contextlib.ExitStack()
     with stack:
-        client = _connect(scheduler, jobs, stack)
+        client = _connect(scheduler, n_jobs, stack)
         _ACTIVE.append((scheduler, client))
         try:
             with joblib.parallel_config(backend="dask"):
@@ -120,7 +120,7 @@ def _call_with_quiet(func, quiet, item):
         return func(item)
 
 
-def _connect(scheduler, jobs, stack):
+def _connect(scheduler, n_jobs, stack):
     """A Client for ``scheduler`` whose shutdown is registered on ``stack``."""
     try:
         from distributed import Client, LocalCluster
@@ -129,7 +129,7 @@ def _connect(scheduler, jobs, stack):
             "Running on a Dask cluster needs the distributed extra: "
             "pip install \"seqmine[distributed]\".") from None
     if scheduler == "local":
-        n = jobs if isinstance(jobs, int) and jobs > 0 else 2
+        n = n_jobs if isinstance(n_jobs, int) and n_jobs > 0 else 2
         cluster = stack.enter_context(LocalCluster(
             n_workers=n, threads_per_worker=1, processes=True, dashboard_address=":0"))
         return stack.enter_context(Client(cluster))
@@ -142,10 +142,10 @@ def _connect(scheduler, jobs, stack):
     return stack.enter_context(client)
 
 
-def _dask_map(func, items, scheduler, jobs):
+def _dask_map(func, items, scheduler, n_jobs):
     for active, client in reversed(_ACTIVE):
         if active == scheduler:
             return client.gather(client.map(func, items, pure=False))
     with contextlib.ExitStack() as stack:
-        client = _connect(scheduler, jobs, stack)
+        client = _connect(scheduler, n_jobs, stack)
         return client.gather(client.map(func, items, pure=False))

@@ -32,16 +32,25 @@ def _command_modules():
     return sorted(mods, key=lambda m: (rank.get(m.NAME, len(rank)), m.NAME))
 
 
+class _Parser(argparse.ArgumentParser):
+    """argparse with one-line errors: the option, what is wrong, where the help is."""
+
+    def error(self, message):
+        print(f"seqmine: error: {_one_line(message)} (see '{self.prog} --help')",
+              file=sys.stderr)
+        self.exit(2)
+
+
 def build_parser():
     """The argument parser with every sub-command."""
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="seqmine",
         description=("Find ordered behaviour patterns that separate strong from weak "
                      "learners in interaction logs, and turn them into live detectors."),
         epilog="Run 'seqmine COMMAND --help' for the options of one command.",
     )
     parser.add_argument("--version", action="version", version=f"seqmine {__version__}")
-    common = argparse.ArgumentParser(add_help=False)
+    common = _Parser(add_help=False)
     common.add_argument("--debug", action="store_true", help="show tracebacks on errors")
     common.add_argument("-q", "--quiet", action="store_true",
                         help="no progress bars or messages (for scripts)")
@@ -50,8 +59,7 @@ def build_parser():
         p = sub.add_parser(mod.NAME, help=mod.HELP, description=getattr(mod, "DESCRIPTION", mod.HELP),
                            parents=[common])
         mod.add_arguments(p)
-        # the defaults let a command tell which flags were given (config overrides)
-        p.set_defaults(_run=mod.run, _defaults={a.dest: a.default for a in p._actions})
+        p.set_defaults(_run=mod.run)
     return parser
 
 

@@ -65,6 +65,7 @@ import numpy as np
 import pandas as pd
 
 from .._util.checks import check_int, check_number
+from ..config import DEFAULT_CONFIG
 from ..encoding.sequences import PAUSE_PREFIX
 from ..errors import ColumnError, DataFileError, ParameterError, SeqmineWarning
 from ..mining.excerpts import build_examples, find_occurrence
@@ -109,14 +110,19 @@ _DETECTOR_KEYS = {"id", "tokens", "direction", "favours", "evidence", "hint", "p
 _EVIDENCE_COLUMNS = ("p_value", "q_value", "p_volume", "q_volume", "p_order", "q_order",
                      "q_rate", "stability", "replication")
 #: Default quantile of the absence rule of encourage detectors (see absence_thresholds).
-ABSENCE_QUANTILE = 0.75
+ABSENCE_QUANTILE = DEFAULT_CONFIG["detectors"]["absence_quantile"]
 _MATCHING_KEYS = {"max_gap", "max_window", "skip_pauses"}
 
 
 # ====================================================================== selection
-def select_detectors(contrast_table, *, max_q=0.05, min_effect=0.2, effect="cohens_h",
-                     min_stability=0.5, lengths=None, groups=None, max_detectors=50,
-                     drop_redundant=True, group_shares=None):
+_DEFAULTS = DEFAULT_CONFIG["detectors"]
+
+
+def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
+                     min_effect=_DEFAULTS["min_effect"], effect=_DEFAULTS["effect"],
+                     min_stability=_DEFAULTS["min_stability"], lengths=None, groups=None,
+                     max_detectors=_DEFAULTS["max_detectors"], drop_redundant=True,
+                     group_shares=None):
     """Choose the contrast-table rows worth exporting as detectors.
 
     A row is kept when it favours a group, its ``q_value <= max_q``, the absolute
@@ -155,6 +161,7 @@ def select_detectors(contrast_table, *, max_q=0.05, min_effect=0.2, effect="cohe
     groups : str or list of str, optional
         Only patterns favouring these groups.
     max_detectors : int >= 1, optional
+        At most this many rows (default 20); None = no limit.
     drop_redundant : bool
     group_shares : dict, optional
         Favoured group -> share of the slots (non-negative numbers, scaled to add up
@@ -446,12 +453,15 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
     return doc
 
 
-def export_detectors(contrast_table, db, constraints=None, *, max_q=0.05, min_effect=0.2,
-                     effect="cohens_h", min_stability=0.5, lengths=None, groups=None,
-                     max_detectors=50, drop_redundant=True, strong=None, weak=None,
-                     encourage_share=0.5, absence_after_events="auto",
-                     absence_quantile=ABSENCE_QUANTILE, absence_after_seconds=None,
-                     examples=True, seed=0):
+def export_detectors(contrast_table, db, constraints=None, *, max_q=_DEFAULTS["max_q"],
+                     min_effect=_DEFAULTS["min_effect"], effect=_DEFAULTS["effect"],
+                     min_stability=_DEFAULTS["min_stability"], lengths=None, groups=None,
+                     max_detectors=_DEFAULTS["max_detectors"], drop_redundant=True,
+                     strong=None, weak=None, encourage_share=_DEFAULTS["encourage_share"],
+                     absence_after_events="auto",
+                     absence_quantile=_DEFAULTS["absence_quantile"],
+                     absence_after_seconds=None, examples=_DEFAULTS["examples"],
+                     random_state=DEFAULT_CONFIG["seed"]):
     """Select rows of a contrast table and build the detectors document in one step.
 
     Parameters
@@ -479,7 +489,7 @@ def export_detectors(contrast_table, db, constraints=None, *, max_q=0.05, min_ef
     absence_quantile : float in (0, 1], default 0.75
     examples : bool, default True
         Store one short excerpt per detector (from a sequence of the favoured group).
-    seed : int, default 0
+    random_state : int, default 20261202
         Seed of the order in which sequences are searched for examples.
 
     Returns
@@ -525,7 +535,7 @@ def export_detectors(contrast_table, db, constraints=None, *, max_q=0.05, min_ef
     excerpts = None
     if examples and names:
         found = build_examples(db, names, favours=favours, per_pattern=1, context=1,
-                               max_span=8, seed=seed, **match_kw)["patterns"]
+                               max_span=8, random_state=random_state, **match_kw)["patterns"]
         excerpts = {n: (found.get(n) or [None])[0] for n in names}
     return build_detectors(
         rows, db.encoding, constraints, group_names=db.group_names, strong=strong, weak=weak,

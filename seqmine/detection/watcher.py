@@ -129,7 +129,8 @@ class Firing:
     hint: str = ""
     suppressed: bool = False
     reason: str = None
-    _index: int = field(default=-1, repr=False, compare=False)
+    #: position of the detector in the file (set by the watcher; not a parameter)
+    _index: int = field(default=-1, init=False, repr=False, compare=False)
 
     def to_dict(self, iso_times=False):
         """Plain JSON record (``type`` = ``"firing"``); times as ISO 8601 if asked."""
@@ -639,21 +640,22 @@ class Watcher:
             if times is None:
                 if limit is not None and st.abs_hints >= limit:
                     f = Firing(learner, ids[d], "absence", t, (), label, 0, dirs[d], prios[d],
-                               hints[d], True, "limit", d)
+                               hints[d], True, "limit")
                 else:
                     f = Firing(learner, ids[d], "absence", t, (), label, 0, dirs[d], prios[d],
-                               hints[d], held[0], held[1], d)
+                               hints[d], held[0], held[1])
                     cands.append(f)
             else:
                 occ = counts.get(d, 0) + 1
                 counts[d] = occ
                 if hintable[d]:
                     f = Firing(learner, ids[d], "occurrence", t, times, label, occ, dirs[d],
-                               prios[d], hints[d], held[0], held[1], d)
+                               prios[d], hints[d], held[0], held[1])
                     cands.append(f)
                 else:
                     f = Firing(learner, ids[d], "occurrence", t, times, label, occ, dirs[d],
-                               prios[d], hints[d], True, "no_hint", d)
+                               prios[d], hints[d], True, "no_hint")
+            f._index = d
             out.append(f)
         self.stats["firings"] += len(out)
         if cooling or not cands:

@@ -30,6 +30,7 @@ import pandas as pd
 from sklearn.base import BaseEstimator
 
 from .._util.checks import check_choice, check_int, check_number
+from ..config import DEFAULT_CONFIG
 from ..errors import DataFileError, NotFittedError, ParameterError
 from .sequences import PAUSE_PREFIX, SequenceDB, smallest_int_dtype
 
@@ -97,6 +98,10 @@ def load_mapping(path):
     return dict(zip(actions, symbols))
 
 
+#: Defaults of the encoding options (the ``[encode]`` section of the configuration).
+_DEFAULTS = DEFAULT_CONFIG["encode"]
+
+
 class Encoder(BaseEstimator):
     """Turn an event table into a :class:`SequenceDB` with pause tokens.
 
@@ -145,9 +150,12 @@ class Encoder(BaseEstimator):
     ['set', 'run', 'pause:long', 'measure', 'run']
     """
 
-    def __init__(self, template="{action}", *, mapping=None, collapse_repeats=False,
-                 pause_strategy="quantile", pause_bins=3, pause_thresholds=None,
-                 implicit_pauses=("shortest",), unit="learner", session_gap=None):
+    def __init__(self, template=_DEFAULTS["template"], *, mapping=_DEFAULTS["mapping"],
+                 collapse_repeats=_DEFAULTS["collapse_repeats"],
+                 pause_strategy=_DEFAULTS["pause_strategy"], pause_bins=_DEFAULTS["pause_bins"],
+                 pause_thresholds=_DEFAULTS["pause_thresholds"],
+                 implicit_pauses=tuple(_DEFAULTS["implicit_pauses"]), unit=_DEFAULTS["unit"],
+                 session_gap=_DEFAULTS["session_gap"]):
         self.template = template
         self.mapping = mapping
         self.collapse_repeats = collapse_repeats

@@ -25,7 +25,7 @@ import pandas as pd
 from .._util.checks import check_choice, check_columns
 from .._util.isotime import iso_seconds
 from .._util.text import CONTROL_CHARACTERS
-from ..config import EVENT_ROLES
+from ..config import DEFAULT_CONFIG, EVENT_ROLES
 from ..errors import ColumnError, DataFileError, ParameterError
 
 __all__ = [
@@ -59,7 +59,7 @@ REJECT_REASONS = {
 MAX_ACTION_LENGTH = 200
 
 #: Largest input file read without ``max_bytes`` raised (bytes).
-DEFAULT_MAX_BYTES = 20_000_000_000
+DEFAULT_MAX_BYTES = DEFAULT_CONFIG["events"]["max_bytes"]
 
 #: Working memory per byte of input while loading and encoding (measured 25-40x on
 #: CSV logs; see docs/reliability.md). With the default ``max_bytes``, a file that
@@ -126,8 +126,11 @@ class LoadResult:
         }
 
 
-def load_events(path, *, columns=None, format=None, delimiter=None, encoding="utf-8",
-                duplicates="reject", max_action_length=MAX_ACTION_LENGTH,
+def load_events(path, *, columns=None, format=DEFAULT_CONFIG["events"]["format"],
+                delimiter=DEFAULT_CONFIG["events"]["delimiter"],
+                encoding=DEFAULT_CONFIG["events"]["encoding"],
+                duplicates=DEFAULT_CONFIG["events"]["duplicates"],
+                max_action_length=MAX_ACTION_LENGTH,
                 max_bytes=DEFAULT_MAX_BYTES):
     """Read an event log, validate every row and return kept and rejected rows.
 

@@ -21,6 +21,7 @@ import pandas as pd
 from sklearn.base import BaseEstimator
 
 from .._util.checks import check_choice, check_columns, check_fraction
+from ..config import DEFAULT_CONFIG
 from ..errors import DataFileError, ParameterError
 
 __all__ = [
@@ -227,7 +228,8 @@ class Grouping(BaseEstimator):
     ['weak', 'strong', 'weak', 'strong']
     """
 
-    def __init__(self, rule="median", *, fraction=1 / 3, low=None, high=None,
+    def __init__(self, rule="median", *, fraction=DEFAULT_CONFIG["outcomes"]["fraction"],
+                 low=DEFAULT_CONFIG["outcomes"]["low"], high=DEFAULT_CONFIG["outcomes"]["high"],
                  names=DEFAULT_GROUP_NAMES, value="auto"):
         self.rule = rule
         self.fraction = fraction

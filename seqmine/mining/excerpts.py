@@ -15,14 +15,19 @@ import math
 import numpy as np
 
 from .._util.checks import check_int
+from ..config import DEFAULT_CONFIG
 from ..errors import ParameterError
 from .patterns import PATTERN_SEPARATOR
 
 __all__ = ["build_examples", "find_occurrence"]
 
 
-def build_examples(db, patterns, *, favours=None, max_gap=None, max_window=None,
-                   skip_pauses=False, per_pattern=2, context=2, max_span=16, seed=0):
+_MINE = DEFAULT_CONFIG["mine"]
+
+
+def build_examples(db, patterns, *, favours=None, max_gap=_MINE["max_gap"],
+                   max_window=_MINE["max_window"], skip_pauses=_MINE["skip_pauses"],
+                   per_pattern=2, context=2, max_span=16, random_state=DEFAULT_CONFIG["seed"]):
     """Excerpts of real sequences showing where each pattern occurs.
 
     Parameters
@@ -33,7 +38,8 @@ def build_examples(db, patterns, *, favours=None, max_gap=None, max_window=None,
     favours : list of str, optional
         Per pattern, the group to draw examples from (``""`` = any grouped sequence).
     max_gap, max_window, skip_pauses
-        Matching constraints, as used for mining (see :mod:`seqmine.mining.patterns`).
+        Matching constraints, as used for mining (see :mod:`seqmine.mining.patterns`;
+        defaults as in :func:`seqmine.mining.miner.mine`).
     per_pattern : int, default 2
         Excerpts per pattern (fewer when fewer sequences contain it).
     context : int, default 2
@@ -41,7 +47,7 @@ def build_examples(db, patterns, *, favours=None, max_gap=None, max_window=None,
     max_span : int, default 16
         Longer stretches between matched tokens are shortened to ``context`` tokens
         on each side, with an ``{"elided": n}`` marker in between.
-    seed : int, default 0
+    random_state : int, default 20261202
         Seed of the order in which sequences are tried.
 
     Returns
@@ -71,7 +77,7 @@ def build_examples(db, patterns, *, favours=None, max_gap=None, max_window=None,
             f"build_examples: 'favours' has {len(favours)} entries for {len(patterns)} "
             f"patterns; give one group name (or '') per pattern.")
     index = {v: i for i, v in enumerate(db.vocab)}
-    rng = np.random.default_rng(seed)
+    rng = np.random.default_rng(random_state)
     order = rng.permutation(db.n_sequences)
     groups = np.asarray(db.groups)
     out = {}

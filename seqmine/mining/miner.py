@@ -30,6 +30,7 @@ import scipy.sparse as sp
 from .._util.checks import check_int
 from .._util.csvio import write_csv
 from .._util.jsonio import json_default
+from ..config import DEFAULT_CONFIG
 from ..encoding.sequences import SequenceDB
 from ..errors import DataFileError, ParameterError
 from ._search import assemble_counts, build_trie, node_offsets, search
@@ -39,7 +40,9 @@ __all__ = ["mine", "match", "pattern_table", "save_patternset", "load_patternset
            "DEFAULT_MAX_PATTERNS"]
 
 #: Default limit on the number of frequent patterns before mining stops.
-DEFAULT_MAX_PATTERNS = 200_000
+DEFAULT_MAX_PATTERNS = DEFAULT_CONFIG["mine"]["max_patterns"]
+#: Defaults of the mining options (the ``[mine]`` section of the configuration).
+_DEFAULTS = DEFAULT_CONFIG["mine"]
 
 _PS_FORMAT = "seqmine-patternset"
 _PS_VERSION = 1
@@ -49,10 +52,13 @@ _IMPLIED_GAP_WINDOW = 16
 _MAX_BULK_SUBSET_LENGTH = 12
 
 
-def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_window=None,
-         skip_pauses=False, start_with_action=False, end_with_action=False, closed=False,
-         maximal=False, max_patterns=DEFAULT_MAX_PATTERNS, instance_counts=True,
-         first_items=None):
+def mine(db, *, min_support=_DEFAULTS["min_support"], min_length=_DEFAULTS["min_length"],
+         max_length=_DEFAULTS["max_length"], max_gap=_DEFAULTS["max_gap"],
+         max_window=_DEFAULTS["max_window"], skip_pauses=_DEFAULTS["skip_pauses"],
+         start_with_action=_DEFAULTS["start_with_action"],
+         end_with_action=_DEFAULTS["end_with_action"], closed=_DEFAULTS["closed"],
+         maximal=_DEFAULTS["maximal"], max_patterns=DEFAULT_MAX_PATTERNS,
+         instance_counts=True, first_items=None):
     """Mine ordered patterns that are frequent in at least one group.
 
     Parameters
@@ -113,13 +119,21 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
 
     Examples
     --------
+    The defaults (those of ``seqmine analyze``) look for contiguous runs of 2 to 4
+    items:
+
     >>> db = SequenceDB.from_lists([["a", "b", "c"], ["a", "c"], ["b", "c"]])
-    >>> ps = mine(db, min_support=2, max_length=2)
+    >>> mine(db, min_support=2).names
+    ['b > c']
+
+    Single items and any gap between items:
+
+    >>> ps = mine(db, min_support=2, min_length=1, max_length=2, max_gap=None)
     >>> ps.names
     ['a', 'b', 'c', 'a > c', 'b > c']
     >>> ps.support_counts[:, 0].tolist()
     [2, 2, 3, 2, 2]
-    >>> mine(db, min_support=1, min_length=2, max_length=2).names
+    >>> mine(db, min_support=1, max_length=2, max_gap=None).names
     ['a > b', 'a > c', 'b > c']
     """
     where = "mine"
@@ -217,7 +231,8 @@ def mine(db, *, min_support=0.1, min_length=1, max_length=4, max_gap=None, max_w
         counts=counts, seq_groups=seq_groups, constraints=constraints, search_stats=stats)
 
 
-def match(db, patterns, *, max_gap=None, max_window=None, skip_pauses=False):
+def match(db, patterns, *, max_gap=_DEFAULTS["max_gap"], max_window=_DEFAULTS["max_window"],
+          skip_pauses=_DEFAULTS["skip_pauses"]):
     """Find given patterns in a database with the miner's exact semantics.
 
     Parameters
@@ -332,7 +347,7 @@ def save_patternset(ps, folder, *, table_name="patterns.csv"):
     >>> import tempfile
     >>> db = SequenceDB.from_lists([["a", "b"], ["b", "a", "b"]])
     >>> with tempfile.TemporaryDirectory() as tmp:
-    ...     folder = save_patternset(mine(db, min_support=2), tmp)
+    ...     folder = save_patternset(mine(db, min_support=2, min_length=1), tmp)
     ...     sorted(p.name for p in folder.iterdir())
     ...     load_patternset(folder).names
     ['counts.npz', 'patterns.csv', 'patternset.json']

@@ -16,6 +16,7 @@ import scipy.sparse as sp
 from .._util.checks import check_int
 from .._util.parallel import n_workers, parallel_map
 from .._util.progress import quiet_mode
+from ..config import DEFAULT_CONFIG
 from ..encoding.sequences import SequenceDB
 from ..errors import ParameterError, PatternExplosionError
 from .miner import DEFAULT_MAX_PATTERNS, _superpattern_flags, mine
@@ -24,15 +25,20 @@ from .patterns import PatternSet
 __all__ = ["mine_parallel"]
 
 
-def mine_parallel(db, *, jobs=1, scheduler=None, partitions=None, min_support=0.1,
-                  min_length=1, max_length=4, closed=False, maximal=False,
-                  end_with_action=False, max_patterns=DEFAULT_MAX_PATTERNS, **params):
+_DEFAULTS = DEFAULT_CONFIG["mine"]
+
+
+def mine_parallel(db, *, n_jobs=DEFAULT_CONFIG["n_jobs"], scheduler=None, partitions=None,
+                  min_support=_DEFAULTS["min_support"], min_length=_DEFAULTS["min_length"],
+                  max_length=_DEFAULTS["max_length"], closed=_DEFAULTS["closed"],
+                  maximal=_DEFAULTS["maximal"], end_with_action=_DEFAULTS["end_with_action"],
+                  max_patterns=DEFAULT_MAX_PATTERNS, **params):
     """:func:`seqmine.mining.miner.mine` with the search split by first item; identical output.
 
     Parameters
     ----------
     db : SequenceDB
-    jobs : int
+    n_jobs : int
         Local worker processes (1 = serial, -1 = all cores); with ``scheduler``, the
         number of workers of a ``"local"`` cluster.
     scheduler : str, optional
@@ -60,14 +66,15 @@ def mine_parallel(db, *, jobs=1, scheduler=None, partitions=None, min_support=0.
     Examples
     --------
     >>> db = SequenceDB.from_lists([["a", "b", "c"], ["a", "c"], ["b", "c"]])
-    >>> mine_parallel(db, min_support=2, max_length=2, partitions=2).names
+    >>> mine_parallel(db, min_support=2, min_length=1, max_length=2, max_gap=None,
+    ...               partitions=2).names
     ['a', 'b', 'c', 'a > c', 'b > c']
     """
     where = "mine"
     kwargs = dict(min_support=min_support, min_length=min_length, max_length=max_length,
                   closed=closed, maximal=maximal, end_with_action=end_with_action,
                   max_patterns=max_patterns, **params)
-    serial = (jobs is None or jobs == 1) and not scheduler and partitions is None
+    serial = (n_jobs is None or n_jobs == 1) and not scheduler and partitions is None
     if serial:
         return mine(db, **kwargs)
     if not isinstance(db, SequenceDB):
@@ -85,13 +92,13 @@ def mine_parallel(db, *, jobs=1, scheduler=None, partitions=None, min_support=0.
         mw = check_int(params["max_window"], "max_window", where, minimum=1)
         if mw < min_length:
             return mine(db, **kwargs)   # raises the miner's own message
-    workers = n_workers(jobs, where)
+    workers = n_workers(n_jobs, where)
     n_parts = check_int(partitions, "partitions", where, minimum=1, allow_none=True)
     parts = _partition_first_items(db, n_parts or 2 * workers)
     slim = _slim(db)
     part_kw = dict(kwargs, min_length=1, end_with_action=False, closed=False, maximal=False)
     pieces = parallel_map(_mine_partition, [(slim, p, part_kw) for p in parts],
-                          jobs=jobs, scheduler=scheduler)
+                          n_jobs=n_jobs, scheduler=scheduler)
     return _merge(db, pieces, min_length=min_length, end_with_action=bool(end_with_action),
                   closed=bool(closed), maximal=bool(maximal), max_patterns=max_patterns)
 

@@ -7,14 +7,15 @@ from scipy.special import logsumexp
 from sklearn.base import BaseEstimator, ClassifierMixin
 
 from .._util.checks import check_choice, check_int, check_number
+from ..config import DEFAULT_CONFIG
 from ..encoding.sequences import SequenceDB
 from ..errors import NotFittedError, ParameterError
 from . import _hmm
 from .fitting import (
     DEFAULT_EMISSION_FLOOR,
-    fit_phase_model,
+    _fit_phase_model,
+    _select_n_states,
     parse_state_range,
-    select_n_states,
 )
 
 __all__ = ["GroupHMMClassifier"]
@@ -36,7 +37,7 @@ class GroupHMMClassifier(ClassifierMixin, BaseEstimator):
         count is chosen by BIC on its own training sequences.
     n_restarts : int
         Baum--Welch restarts per model.
-    seed : int
+    random_state : int
     n_iter : int
     tol : float
         Per-token EM convergence threshold.
@@ -69,18 +70,20 @@ class GroupHMMClassifier(ClassifierMixin, BaseEstimator):
     --------
     >>> db = SequenceDB.from_lists([["a", "a", "b"]] * 6 + [["b", "b", "a"]] * 6,
     ...                            groups=["x"] * 6 + ["y"] * 6)
-    >>> clf = GroupHMMClassifier(n_states=2, n_restarts=2, seed=0).fit(db)
+    >>> clf = GroupHMMClassifier(n_states=2, n_restarts=2, random_state=0).fit(db)
     >>> clf.classes_.tolist()
     ['x', 'y']
     >>> clf.predict(db).tolist() == ["x"] * 6 + ["y"] * 6
     True
     """
 
-    def __init__(self, *, n_states=3, n_restarts=3, seed=0, n_iter=200, tol=1e-4,
-                 emission_floor=DEFAULT_EMISSION_FLOOR, prior="empirical", n_jobs=1):
+    def __init__(self, *, n_states=3, n_restarts=DEFAULT_CONFIG["phases"]["n_restarts"],
+                 random_state=DEFAULT_CONFIG["seed"], n_iter=DEFAULT_CONFIG["phases"]["n_iter"],
+                 tol=1e-4, emission_floor=DEFAULT_EMISSION_FLOOR, prior="empirical",
+                 n_jobs=DEFAULT_CONFIG["n_jobs"]):
         self.n_states = n_states
         self.n_restarts = n_restarts
-        self.seed = seed
+        self.random_state = random_state
         self.n_iter = n_iter
         self.tol = tol
         self.emission_floor = emission_floor
@@ -104,14 +107,14 @@ class GroupHMMClassifier(ClassifierMixin, BaseEstimator):
         for k, c in enumerate(classes):
             members = [s for s, lab in zip(seqs, labels) if lab == c]
             counts.append(len(members))
-            kw = dict(n_restarts=n_restarts, seed=self.seed, n_jobs=self.n_jobs,
+            kw = dict(n_restarts=n_restarts, random_state=self.random_state, n_jobs=self.n_jobs,
                       n_iter=self.n_iter, tol=self.tol, emission_floor=self.emission_floor,
-                      vocab=vocab, label=str(c), _purpose=100 + k)
+                      vocab=vocab, label=str(c), stream=100 + k)
             if len(state_counts) == 1:
-                models.append(fit_phase_model(members, n_states=state_counts[0], **kw))
+                models.append(_fit_phase_model(members, n_states=state_counts[0], **kw))
             else:
-                table, by_count = select_n_states(members, n_states=state_counts, n_folds=0,
-                                                  **kw)
+                table, by_count = _select_n_states(members, n_states=state_counts, n_splits=0,
+                                                   learners=None, **kw)
                 best = int(table.loc[table["best_bic"], "n_states"].iloc[0])
                 models.append(by_count[best])
         counts = np.asarray(counts, dtype=np.float64)

@@ -9,6 +9,7 @@ from scipy.spatial.distance import jensenshannon
 from scipy.stats import mannwhitneyu
 
 from .._util.checks import check_fraction, check_int
+from ..config import DEFAULT_CONFIG
 from ..encoding.sequences import SequenceDB
 from ..errors import ParameterError
 from ..scoring.multitest import adjust_pvalues
@@ -224,7 +225,8 @@ def compare_transitions(model_a, model_b, alignment=None):
     return pd.DataFrame(rows)
 
 
-def model_distance(model_a, model_b, *, lengths=None, n_tokens=20000, seed=0):
+def model_distance(model_a, model_b, *, lengths=None, n_tokens=20000,
+                   random_state=DEFAULT_CONFIG["seed"]):
     """Juang & Rabiner (1985) distance between two models, estimated by sampling.
 
     ``D(l1, l2) = (1/T) [log P(O2 | l2) - log P(O2 | l1)]`` with ``O2`` sampled from
@@ -240,7 +242,7 @@ def model_distance(model_a, model_b, *, lengths=None, n_tokens=20000, seed=0):
         sequence lengths); default one sequence of ``n_tokens``.
     n_tokens : int
         At least this many tokens are sampled from each model.
-    seed : int
+    random_state : int
 
     Returns
     -------
@@ -257,7 +259,7 @@ def model_distance(model_a, model_b, *, lengths=None, n_tokens=20000, seed=0):
     d = {}
     for key, src, other in (("d_ab", model_b, model_a), ("d_ba", model_a, model_b)):
         # the same stream for both directions makes the symmetric value exactly symmetric
-        rng = np.random.default_rng(seed)
+        rng = np.random.default_rng(random_state)
         lens = _draw_lengths(lengths, n_tokens, rng)
         X, _ = src.sample(lens, rng)
         T = float(len(X))

@@ -11,6 +11,7 @@ import pandas as pd
 from .._util.checks import check_int, check_jobs, check_number
 from .._util.folds import learner_splits
 from .._util.parallel import parallel_map
+from ..config import DEFAULT_CONFIG
 from ..encoding.sequences import SequenceDB
 from ..errors import ParameterError, SeqmineWarning
 from . import _hmm
@@ -20,15 +21,19 @@ __all__ = ["fit_phase_model", "select_n_states", "parse_state_range"]
 
 #: Default additive emission smoothing (see :func:`_hmm.apply_emission_floor`).
 DEFAULT_EMISSION_FLOOR = 1e-4
+_DEFAULTS = DEFAULT_CONFIG["phases"]
 
 
-def fit_phase_model(sequences, *, n_states=3, n_restarts=5, seed=0, n_jobs=1, n_iter=200,
-                    tol=1e-4, emission_floor=DEFAULT_EMISSION_FLOOR, vocab=None,
-                    label="model", _purpose=0):
+def fit_phase_model(sequences, *, n_states=3, n_restarts=_DEFAULTS["n_restarts"],
+                    random_state=DEFAULT_CONFIG["seed"], n_jobs=DEFAULT_CONFIG["n_jobs"],
+                    n_iter=_DEFAULTS["n_iter"], tol=1e-4,
+                    emission_floor=DEFAULT_EMISSION_FLOOR, vocab=None, label="model"):
     """Fit one categorical HMM by Baum--Welch with several random restarts.
 
     Each restart starts from a random point drawn from a seed derived from
-    ``(seed, purpose, n_states, restart)``; the restart with the highest
+    ``(random_state, stream, n_states, restart)`` (stream 0 here; the pooled and
+    group models of :func:`~seqmine.phases.fit_phases` use their own streams); the
+    restart with the highest
     log-likelihood wins (ties: the lowest restart number). Restarts run in
     parallel with ``n_jobs`` and give the same result as a serial run. States of
     the winner are put in a canonical order: decreasing expected occupancy.
@@ -39,7 +44,7 @@ def fit_phase_model(sequences, *, n_states=3, n_restarts=5, seed=0, n_jobs=1, n_
         Token ids; with a list, ``vocab`` (or the largest id) fixes the vocabulary.
     n_states : int
     n_restarts : int
-    seed : int
+    random_state : int
     n_jobs : int
         Worker processes (``-1`` = all cores; see :func:`seqmine._util.parallel.parallel_map`).
     n_iter : int
@@ -59,10 +64,19 @@ def fit_phase_model(sequences, *, n_states=3, n_restarts=5, seed=0, n_jobs=1, n_
     Examples
     --------
     >>> db = SequenceDB.from_lists([["a", "a", "b", "b"], ["a", "b", "b", "b"]] * 5)
-    >>> m = fit_phase_model(db, n_states=2, n_restarts=2, seed=1)
+    >>> m = fit_phase_model(db, n_states=2, n_restarts=2, random_state=1)
     >>> m.n_states, m.vocab
     (2, ['a', 'b'])
     """
+    return _fit_phase_model(sequences, n_states=n_states, n_restarts=n_restarts,
+                            random_state=random_state, n_jobs=n_jobs, n_iter=n_iter, tol=tol,
+                            emission_floor=emission_floor, vocab=vocab, label=label, stream=0)
+
+
+def _fit_phase_model(sequences, *, n_states, n_restarts, random_state, n_jobs, n_iter, tol,
+                     emission_floor, vocab, label, stream):
+    """:func:`fit_phase_model` drawing its restarts from random stream ``stream``."""
+    seed = random_state
     X, lengths, vocab = _arrays(sequences, vocab)
     n_states = check_int(n_states, "n_states", "fit_phase_model", minimum=1)
     n_restarts = check_int(n_restarts, "n_restarts", "fit_phase_model", minimum=1)
@@ -71,17 +85,20 @@ def fit_phase_model(sequences, *, n_states=3, n_restarts=5, seed=0, n_jobs=1, n_
                                   minimum=0)
     _check_supported(n_states, len(vocab), len(X), label)
     tasks = [(n_states, r) for r in range(n_restarts)]
-    fits = _run(X, lengths, len(vocab), tasks, seed, _purpose, 0, n_jobs,
+    fits = _run(X, lengths, len(vocab), tasks, seed, stream, 0, n_jobs,
                 n_iter=n_iter, tol=tol, emission_floor=emission_floor)
     return _best_model(fits, X, lengths, vocab, label, emission_floor, seed, n_restarts)
 
 
-def select_n_states(sequences, *, n_states=range(2, 7), n_restarts=5, n_folds=3, seed=0,
-                    n_jobs=1, n_iter=200, tol=1e-4, emission_floor=DEFAULT_EMISSION_FLOOR,
-                    learners=None, vocab=None, label="pooled", _purpose=0):
+def select_n_states(sequences, *,
+                    n_states=range(_DEFAULTS["min_states"], _DEFAULTS["max_states"] + 1),
+                    n_restarts=_DEFAULTS["n_restarts"], n_splits=_DEFAULTS["n_splits"],
+                    random_state=DEFAULT_CONFIG["seed"], n_jobs=DEFAULT_CONFIG["n_jobs"],
+                    n_iter=_DEFAULTS["n_iter"], tol=1e-4, emission_floor=DEFAULT_EMISSION_FLOOR,
+                    learners=None, vocab=None, label="pooled"):
     """Fit every state count in a range; score it by BIC and held-out log-likelihood.
 
-    Held-out log-likelihood: learners are split into ``n_folds`` folds (sequences of
+    Held-out log-likelihood: learners are split into ``n_splits`` folds (sequences of
     one learner stay together); for each fold a model is fitted (with restarts) on
     the other folds and scores the fold's sequences. State counts whose free
     parameters reach the number of tokens are dropped with a :class:`SeqmineWarning`.
@@ -96,13 +113,23 @@ def select_n_states(sequences, *, n_states=range(2, 7), n_restarts=5, n_folds=3,
     models : dict int -> PhaseModel
         The model fitted on all sequences for each state count.
     """
+    return _select_n_states(sequences, n_states=n_states, n_restarts=n_restarts,
+                            n_splits=n_splits, random_state=random_state, n_jobs=n_jobs,
+                            n_iter=n_iter, tol=tol, emission_floor=emission_floor,
+                            learners=learners, vocab=vocab, label=label, stream=0)
+
+
+def _select_n_states(sequences, *, n_states, n_restarts, n_splits, random_state, n_jobs, n_iter,
+                     tol, emission_floor, learners, vocab, label, stream):
+    """:func:`select_n_states` drawing its restarts from random stream ``stream``."""
+    seed, n_folds = random_state, n_splits
     X, lengths, vocab = _arrays(sequences, vocab)
     counts = parse_state_range(n_states)
     n_restarts = check_int(n_restarts, "n_restarts", "select_n_states", minimum=1)
     n_jobs = check_jobs(n_jobs, "n_jobs", "select_n_states")
-    n_folds = check_int(n_folds, "n_folds", "select_n_states", minimum=0)
+    n_folds = check_int(n_folds, "n_splits", "select_n_states", minimum=0)
     if n_folds == 1:
-        raise ParameterError("The 'n_folds' parameter of select_n_states must be 0 (no "
+        raise ParameterError("The 'n_splits' parameter of select_n_states must be 0 (no "
                              "held-out score) or at least 2. Got 1 instead.")
     M = len(vocab)
     supported = [n for n in counts if _hmm.n_free_parameters(n, M) < len(X)]
@@ -135,7 +162,7 @@ def select_n_states(sequences, *, n_states=range(2, 7), n_restarts=5, n_folds=3,
             idx = np.flatnonzero(fold_of != f)
             train_sets.append(_take(X, offsets, lengths, idx))
         jobs += [(train_sets[f][0], train_sets[f][1], n, r, f + 1) for n, r, f in tasks_cv]
-    fits = _parallel(jobs, M, seed, _purpose, n_jobs, n_iter=n_iter, tol=tol,
+    fits = _parallel(jobs, M, seed, stream, n_jobs, n_iter=n_iter, tol=tol,
                      emission_floor=emission_floor)
     full = fits[:len(tasks)]
     cv = fits[len(tasks):]
@@ -174,7 +201,7 @@ def select_n_states(sequences, *, n_states=range(2, 7), n_restarts=5, n_folds=3,
     return table, models
 
 
-def _learner_folds(learners, n_folds, seed):
+def _learner_folds(learners, n_splits, random_state):
     """Fold number of each sequence for held-out scoring; a learner's sequences share one.
 
     Examples
@@ -183,12 +210,13 @@ def _learner_folds(learners, n_folds, seed):
     [1, 0, 1, 0]
     """
     n_learners = len(np.unique(np.asarray(learners).astype(str)))
-    if n_learners < n_folds:
+    if n_learners < n_splits:
         raise ParameterError(
-            f"Held-out scoring needs at least {n_folds} learners (one per fold) but the data "
-            f"has {n_learners}; lower 'n_folds' (0 switches held-out scoring off).")
+            f"Held-out scoring needs at least {n_splits} learners (one per fold) but the data "
+            f"has {n_learners}; lower 'n_splits' (0 switches held-out scoring off).")
     fold_of = np.empty(len(learners), dtype=np.int64)
-    splits = learner_splits(learners, folds=n_folds, seed=_hmm.derive_seed(seed, 7919),
+    splits = learner_splits(learners, n_splits=n_splits,
+                            random_state=_hmm.derive_seed(random_state, 7919),
                             where="select_n_states")
     for f, (_, test) in enumerate(splits):
         fold_of[test] = f
@@ -275,7 +303,7 @@ def _parallel(jobs, n_symbols, seed, purpose, n_jobs, **kwargs):
     """Run ``(X, lengths, n_states, restart, fold)`` fits; order of results = order of jobs."""
     calls = [(X, lengths, n_symbols, n, _hmm.derive_seed(seed, purpose, n, fold, r), kwargs)
              for X, lengths, n, r, fold in jobs]
-    return parallel_map(_fit_job, calls, jobs=n_jobs)
+    return parallel_map(_fit_job, calls, n_jobs=n_jobs)
 
 
 def _run(X, lengths, n_symbols, tasks, seed, purpose, fold, n_jobs, **kwargs):

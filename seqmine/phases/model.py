@@ -11,6 +11,7 @@ import networkx as nx
 import numpy as np
 import pandas as pd
 
+from ..config import DEFAULT_CONFIG
 from ..encoding.sequences import SequenceDB
 from ..errors import DataFileError, ParameterError
 from . import _hmm
@@ -190,9 +191,13 @@ class PhaseModel:
         X, lengths = self._as_arrays(sequences, lengths)
         return _hmm.viterbi(self.startprob, self.transmat, self.emissionprob, X, lengths)
 
-    def sample(self, lengths, seed=0):
-        """Sample sequences of the given lengths; returns ``(X, states)`` concatenated."""
-        rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
+    def sample(self, lengths, random_state=DEFAULT_CONFIG["seed"]):
+        """Sample sequences of the given lengths; returns ``(X, states)`` concatenated.
+
+        ``random_state`` is a seed or a ``numpy.random.Generator`` (drawn from in place).
+        """
+        rng = (random_state if isinstance(random_state, np.random.Generator)
+               else np.random.default_rng(random_state))
         return _hmm.sample_sequences(self.startprob, self.transmat, self.emissionprob,
                                      lengths, rng)
 

@@ -17,6 +17,7 @@ from .._util.csvio import write_csv
 from .._util.jsonio import write_json
 from .._util.parallel import parallel_map
 from .._util.progress import progress
+from ..config import DEFAULT_CONFIG
 from ..encoding.sequences import SequenceDB
 from ..errors import ParameterError
 from . import _hmm
@@ -29,13 +30,15 @@ from .compare import (
 )
 from .fitting import (
     DEFAULT_EMISSION_FLOOR,
-    fit_phase_model,
+    _fit_phase_model,
+    _select_n_states,
     parse_state_range,
-    select_n_states,
 )
 from .model import PhaseModel
 
 __all__ = ["fit_phases", "PhaseResult", "load_phase_models"]
+
+_DEFAULTS = DEFAULT_CONFIG["phases"]
 
 _FORMAT = "seqmine-phases"
 _VERSION = 1
@@ -161,17 +164,20 @@ class PhaseResult:
         return folder
 
 
-def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, criterion="bic",
-               n_folds=3, min_length=2, groups=None, n_iter=200, tol=1e-4,
-               emission_floor=DEFAULT_EMISSION_FLOOR, n_permutations=19,
-               distance_tokens=20000, edge_threshold=0.05, alpha=0.05):
+def fit_phases(db, *, n_states=range(_DEFAULTS["min_states"], _DEFAULTS["max_states"] + 1),
+               n_restarts=_DEFAULTS["n_restarts"], random_state=DEFAULT_CONFIG["seed"],
+               n_jobs=DEFAULT_CONFIG["n_jobs"], criterion=_DEFAULTS["criterion"],
+               n_splits=_DEFAULTS["n_splits"], min_length=2, groups=None,
+               n_iter=_DEFAULTS["n_iter"], tol=1e-4, emission_floor=DEFAULT_EMISSION_FLOOR,
+               n_permutations=_DEFAULTS["n_permutations"], distance_tokens=20000,
+               edge_threshold=0.05, alpha=DEFAULT_CONFIG["contrast"]["alpha"]):
     """Fit phase models (HMMs) pooled and per outcome group, and compare the groups.
 
     1. Sequences shorter than ``min_length`` tokens are left out (listed in
        ``excluded``).
     2. The pooled model is fitted for every state count in ``n_states``; the count
        with the lowest BIC (``criterion="bic"``) or the highest held-out
-       log-likelihood over ``n_folds`` learner folds (``"heldout"``) is used for
+       log-likelihood over ``n_splits`` learner folds (``"heldout"``) is used for
        every model. Both scores are reported in ``selection``.
     3. One model per group at that state count; every model shares the full
        vocabulary (tokens unseen in a group keep the emission floor).
@@ -188,12 +194,12 @@ def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, crit
     n_states : int, range, list of int or str like ``"2-6"``
     n_restarts : int
         Baum--Welch restarts per fit (seeded; best log-likelihood wins).
-    seed : int
+    random_state : int
     n_jobs : int
         Worker processes for restarts, state counts and permutations; results equal
         the serial run.
     criterion : {"bic", "heldout"}
-    n_folds : int
+    n_splits : int
         Learner folds for the held-out score (0 = off).
     min_length : int
         Shortest sequence used (at least 2).
@@ -220,7 +226,7 @@ def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, crit
     --------
     >>> db = SequenceDB.from_lists([["a", "b", "a", "b", "c"]] * 6 + [["c", "c", "a", "b"]] * 6,
     ...                            groups=["strong"] * 6 + ["weak"] * 6)
-    >>> res = fit_phases(db, n_states=2, n_restarts=1, n_folds=0, n_permutations=0)
+    >>> res = fit_phases(db, n_states=2, n_restarts=1, n_splits=0, n_permutations=0)
     >>> sorted(res.models), res.n_states
     (['pooled', 'strong', 'weak'], 2)
     """
@@ -230,17 +236,17 @@ def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, crit
     counts = parse_state_range(n_states)
     n_restarts = check_int(n_restarts, "n_restarts", where, minimum=1)
     n_jobs = check_jobs(n_jobs, "n_jobs", where)
-    seed = check_int(seed, "seed", where, minimum=0)
+    seed = check_int(random_state, "random_state", where, minimum=0)
     criterion = check_choice(criterion, "criterion", ("bic", "heldout"), where)
-    n_folds = check_int(n_folds, "n_folds", where, minimum=0)
+    n_folds = check_int(n_splits, "n_splits", where, minimum=0)
     min_length = check_int(min_length, "min_length", where, minimum=2)
     n_permutations = check_int(n_permutations, "n_permutations", where, minimum=0)
     distance_tokens = check_int(distance_tokens, "distance_tokens", where, minimum=100)
     emission_floor = check_number(emission_floor, "emission_floor", where, minimum=0)
     edge_threshold = check_fraction(edge_threshold, "edge_threshold", where)
     if criterion == "heldout" and n_folds < 2:
-        raise ParameterError("criterion='heldout' needs n_folds >= 2 (held-out scoring); "
-                             "set n_folds or use criterion='bic'.")
+        raise ParameterError("criterion='heldout' needs n_splits >= 2 (held-out scoring); "
+                             "set n_splits or use criterion='bic'.")
     keep = db.lengths >= min_length
     excluded = pd.DataFrame({"sequence": np.flatnonzero(~keep),
                              "learner": db.learners[~keep], "session": db.sessions[~keep],
@@ -255,9 +261,9 @@ def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, crit
     fit_kw = dict(n_iter=n_iter, tol=tol, emission_floor=emission_floor)
 
     bar = progress(total=3 + len(group_list), desc="phases")
-    selection, by_count = select_n_states(
-        data, n_states=counts, n_restarts=n_restarts, n_folds=n_folds, seed=seed,
-        n_jobs=n_jobs, learners=data.learners, label="pooled", _purpose=0, **fit_kw)
+    selection, by_count = _select_n_states(
+        data, n_states=counts, n_restarts=n_restarts, n_splits=n_folds, random_state=seed,
+        n_jobs=n_jobs, learners=data.learners, vocab=None, label="pooled", stream=0, **fit_kw)
     col = "best_bic" if criterion == "bic" else "best_heldout"
     chosen = int(selection.loc[selection[col], "n_states"].iloc[0])
     selection["selected"] = selection["n_states"] == chosen
@@ -269,8 +275,9 @@ def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, crit
         sub = data.subset(np.flatnonzero(data.groups == gi))
         present = np.bincount(sub.tokens.astype(np.int64), minlength=len(data.vocab)) > 0
         unseen[g] = [t for t, p in zip(data.vocab, present) if not p]
-        models[g] = fit_phase_model(sub, n_states=chosen, n_restarts=n_restarts, seed=seed,
-                                    n_jobs=n_jobs, label=g, _purpose=1 + gi, **fit_kw)
+        models[g] = _fit_phase_model(sub, n_states=chosen, n_restarts=n_restarts,
+                                     random_state=seed, n_jobs=n_jobs, vocab=None, label=g,
+                                     stream=1 + gi, **fit_kw)
         bar.update(1)
     pooled = models["pooled"]
     _, states = pooled.decode(data)
@@ -302,8 +309,9 @@ def fit_phases(db, *, n_states=range(2, 7), n_restarts=5, seed=0, n_jobs=1, crit
     bar.update(1)
     bar.close()
     state_tables = pd.concat([m.describe_states() for m in models.values()], ignore_index=True)
-    params = {"n_states": counts, "n_restarts": n_restarts, "seed": seed, "criterion": criterion,
-              "n_folds": n_folds, "min_length": min_length, "groups": group_list,
+    params = {"n_states": counts, "n_restarts": n_restarts, "random_state": seed,
+              "criterion": criterion, "n_splits": n_folds, "min_length": min_length,
+              "groups": group_list,
               "n_iter": n_iter, "tol": tol, "emission_floor": emission_floor,
               "n_permutations": n_permutations, "distance_tokens": distance_tokens,
               "edge_threshold": edge_threshold, "alpha": alpha}
@@ -367,7 +375,7 @@ def _distance_with_reference(data, models, ga, gb, pair_no, n_states, n_restarts
     lengths = data.lengths[members]
     dseed = _hmm.derive_seed(seed, 4242, pair_no)
     d = model_distance(models[ga], models[gb], lengths=lengths, n_tokens=distance_tokens,
-                       seed=dseed)
+                       random_state=dseed)
     row = {"group_a": ga, "group_b": gb, **d, "test_statistic": np.nan,
            "n_permutations": n_permutations, "permutation_mean": np.nan,
            "permutation_max": np.nan, "p_value": np.nan}
@@ -381,7 +389,7 @@ def _distance_with_reference(data, models, ga, gb, pair_no, n_states, n_restarts
             labelings.append(rng.permutation(is_a))
         stats = parallel_map(functools.partial(_warm_distance, data, members, start=start,
                                                dseed=dseed, distance_tokens=distance_tokens,
-                                               fit_kw=fit_kw), labelings, jobs=n_jobs)
+                                               fit_kw=fit_kw), labelings, n_jobs=n_jobs)
         observed, ref = stats[0], np.asarray(stats[1:])
         row.update(test_statistic=float(observed), permutation_mean=float(ref.mean()),
                    permutation_max=float(ref.max()),
@@ -401,7 +409,7 @@ def _warm_distance(data, members, is_a, start, dseed, distance_tokens, fit_kw):
         fitted.append(PhaseModel(fit["startprob"], fit["transmat"], fit["emissionprob"],
                                  list(data.vocab)))
     d = model_distance(fitted[0], fitted[1], lengths=data.lengths[members],
-                       n_tokens=distance_tokens, seed=dseed)
+                       n_tokens=distance_tokens, random_state=dseed)
     return d["symmetric"]
 
 

@@ -22,13 +22,14 @@ import math
 
 import numpy as np
 
+from ..config import DEFAULT_CONFIG
 from . import plots as _plots
 from .html import _h2, _missing, _section, esc, label_of
 
 __all__ = ["section_explorer", "EXPLORER_SCRIPT", "script_hash", "explorer_columns"]
 
 #: Rows placed in the page at most (the most reliable first); patterns.csv has all.
-DEFAULT_MAX_ROWS = 5000
+DEFAULT_MAX_ROWS = DEFAULT_CONFIG["report"]["explorer_rows"]
 
 #: Optional columns of patterns.csv shown when present, with their kind.
 _OPTIONAL = [("cohens_h", "num2"), ("risk_difference", "num2"), ("q_value", "p"),

@@ -177,7 +177,7 @@ def _record(d):
 
 def _repeats(d, df):
     rec = _record(d)
-    r = _as_float(rec.get("repeats"))
+    r = _as_float(rec.get("n_repeats"))
     if not math.isfinite(r) and "n_repeats" in df.columns:
         r = _as_float(df["n_repeats"].max())
     return int(r) if math.isfinite(r) else None
@@ -186,10 +186,10 @@ def _repeats(d, df):
 def _design_words(d, df):
     """'5 folds x 3 repetitions' (or what is known of it)."""
     rec = _record(d)
-    folds = _as_float(rec.get("folds"))
+    folds = _as_float(rec.get("n_splits"))
     if not math.isfinite(folds):
-        folds = _as_float((d["summary"].value or {}).get("method", {}).get("folds")
-                     if isinstance((d["summary"].value or {}).get("method"), dict) else None)
+        method = (d["summary"].value or {}).get("method")
+        folds = _as_float(method.get("n_splits") if isinstance(method, dict) else None)
     reps = _repeats(d, df)
     parts = []
     if math.isfinite(folds):
@@ -217,7 +217,7 @@ def _design_paragraph(d, df):
                    "scored.")
     reps = _repeats(d, df)
     if reps and reps > 1:
-        hmm = _as_float(rec.get("repeats_hmm"))
+        hmm = _as_float(rec.get("n_repeats_hmm"))
         fewer = ""
         if "n_repeats" in df.columns:
             less = sorted({classifier_label(c) for c, r in zip(df["classifier"], df["n_repeats"])
@@ -227,7 +227,7 @@ def _design_paragraph(d, df):
                 names = " and ".join(f"<i>{esc(x)}</i>" for x in less)
                 fewer = (f" Run in {_plural(k, 'repetition')} only: {names} (fitting phase "
                          "models in every fold costs most; raise "
-                         "<code>validate.hmm_repeats</code> for more).")
+                         "<code>validate.n_repeats_hmm</code> for more).")
         out.append(f"<b>Repeated cross-validation.</b> The learners were dealt into folds "
                    f"{reps} times with fresh shuffles ({esc(_design_words(d, df))}). Each value "
                    "is the mean over the repetitions; <i>range</i> gives the lowest and "

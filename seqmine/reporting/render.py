@@ -25,6 +25,7 @@ from pathlib import Path
 import pandas as pd
 
 from .._version import __version__
+from ..config import DEFAULT_CONFIG
 from ..errors import DataFileError
 from . import html as hx
 from . import sections as sec
@@ -99,14 +100,14 @@ SUMMARY_KEYS = {
     "method.correction": "'bh', 'holm' or 'westfall-young'",
     "method.alpha": "threshold on q values",
     "method.n_permutations": "permutations for Westfall-Young",
-    "method.stability_resamples": "bootstrap resamples behind stability",
+    "method.n_bootstrap": "bootstrap resamples behind stability",
     "method.min_support": "minimum support in at least one group",
     "method.max_length": "longest pattern mined",
     "method.max_gap": "largest gap (tokens) between pattern items",
-    "method.folds": "learner-level cross-validation folds of early prediction",
-    "method.repeats": "repetitions of the k-fold split of early prediction",
-    "early_prediction": "{folds, repeats, repeats_hmm, learners_scored, groups_fixed_once, "
-                        "beats_baseline, earliest_fraction}",
+    "method.n_splits": "learner-level cross-validation folds of early prediction",
+    "method.n_repeats": "repetitions of the k-fold split of early prediction",
+    "early_prediction": "{n_splits, n_repeats, n_repeats_hmm, learners_scored, "
+                        "groups_fixed_once, beats_baseline, earliest_fraction}",
     "pseudonymized": "true when learner identifiers were replaced by keyed hashes",
     "configuration": "effective configuration, shown verbatim (also accepted: config)",
     "versions": "{package: version}",
@@ -233,11 +234,12 @@ EXAMPLE_KEYS = {
     "excerpt.events": "list of {time (s), token (or action), pause (s to next, optional), matched (bool)}",
 }
 
-_DEFAULT_ALPHA = 0.05
+_DEFAULT_ALPHA = DEFAULT_CONFIG["contrast"]["alpha"]
 
 
-def render_report(out_dir, *, examples=True, max_patterns=12, max_examples=2,
-                  explorer_rows=DEFAULT_MAX_ROWS):
+def render_report(out_dir, *, examples=DEFAULT_CONFIG["report"]["examples"],
+                  max_patterns=DEFAULT_CONFIG["report"]["max_patterns"], max_examples=2,
+                  explorer_rows=DEFAULT_CONFIG["report"]["explorer_rows"]):
     """Write ``report.html`` into an output folder, from the files in it.
 
     Parameters
@@ -247,7 +249,7 @@ def render_report(out_dir, *, examples=True, max_patterns=12, max_examples=2,
     examples : bool, default True
         Show example excerpts from ``examples.json`` (switch off to keep log
         excerpts out of the report).
-    max_patterns : int, default 12
+    max_patterns : int, default 15
         Differential patterns shown in detail.
     max_examples : int, default 2
         Excerpts shown per pattern.
@@ -307,15 +309,15 @@ def write_examples(out_dir, db, patterns, **kwargs):
         ``patterns.csv`` as a table (its top rows by q are used: significant,
         non-redundant, at most ``max_patterns``) or a list of readable patterns.
     **kwargs
-        ``max_patterns`` (default 12), ``alpha`` (default 0.05), and the options of
+        ``max_patterns`` (default 15), ``alpha`` (default 0.05), and the options of
         :func:`build_examples` (matching constraints, ``per_pattern``, ``context``,
-        ``seed``...).
+        ``random_state``...).
 
     Returns
     -------
     pathlib.Path
     """
-    max_patterns = kwargs.pop("max_patterns", 12)
+    max_patterns = kwargs.pop("max_patterns", DEFAULT_CONFIG["report"]["max_patterns"])
     alpha = kwargs.pop("alpha", _DEFAULT_ALPHA)
     if isinstance(patterns, pd.DataFrame):
         df = patterns

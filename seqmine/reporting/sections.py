@@ -430,11 +430,11 @@ def section_method(d):
     add("Threshold on q", "alpha")
     if str(lookup(summary, "correction") or "").lower().startswith("westfall"):
         add("Permutations", "n_permutations")
-    add("Bootstrap resamples behind stability", "stability_resamples")
-    add("Cross-validation folds (early prediction)", "folds")
-    add("Repetitions of the cross-validation (classifiers using phase models)", "repeats",
-        lambda v: esc(v) + (f" ({esc(lookup(summary, 'hmm_repeats'))})"
-                            if lookup(summary, "hmm_repeats") is not None else ""))
+    add("Bootstrap resamples behind stability", "n_bootstrap")
+    add("Cross-validation folds (early prediction)", "n_splits")
+    add("Repetitions of the cross-validation (classifiers using phase models)", "n_repeats",
+        lambda v: esc(v) + (f" ({esc(lookup(summary, 'n_repeats_hmm'))})"
+                            if lookup(summary, "n_repeats_hmm") is not None else ""))
     items.append("<li><b>Patterns</b> were mined by prefix projection (PrefixSpan) and kept "
                  "when frequent in at least one group. <b>Transitions</b>: lag-1 counts with "
                  "adjusted residuals and Yule's Q. <b>Phases</b>: hidden Markov models with "

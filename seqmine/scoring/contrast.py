@@ -10,7 +10,7 @@ import pandas as pd
 import scipy.sparse as sp
 
 from .._util.checks import check_choice, check_fraction, check_int
-from ..config import CONTRAST_CORRECTIONS
+from ..config import CONTRAST_CORRECTIONS, DEFAULT_CONFIG
 from ..errors import ParameterError, SeqmineWarning
 from ..mining.patterns import PatternSet
 from .effects import (
@@ -47,13 +47,16 @@ SMALL_GROUP_SIZE = 5
 #: Values of the ``correction`` parameter.
 
 _RATE_UNITS = ("tokens", "actions", "count")
+_DEFAULTS = DEFAULT_CONFIG["contrast"]
 _ORDERS = ("significance", "length")
 
 
-def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", alpha=0.05,
-             n_permutations=1000, seed=0, stability_resamples=100, redundancy=0.9,
+def contrast(patterns, db=None, *, lengths=None, groups=None,
+             correction=_DEFAULTS["correction"], alpha=_DEFAULTS["alpha"],
+             n_permutations=_DEFAULTS["n_permutations"], random_state=DEFAULT_CONFIG["seed"],
+             n_bootstrap=_DEFAULTS["n_bootstrap"], redundancy=_DEFAULTS["redundancy"],
              redundancy_order="significance", drop_redundant=False, rate_unit=None,
-             unit="sequence", batch_size=None, jobs=1, scheduler=None):
+             unit="sequence", batch_size=None, n_jobs=DEFAULT_CONFIG["n_jobs"], scheduler=None):
     """Score every pattern for how it separates outcome groups.
 
     Parameters
@@ -78,9 +81,9 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
         level of the stability resamples.
     n_permutations : int
         Permutations for ``"westfall-young"``.
-    seed : int
+    random_state : int
         Seed of the permutations and bootstrap resamples (same seed, same table).
-    stability_resamples : int
+    n_bootstrap : int
         Stratified bootstrap resamples for ``stability`` (0 = skip, column NaN).
     redundancy : float or None
         Jaccard threshold on supporting-sequence sets for ``redundant_of``
@@ -102,8 +105,8 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
         and permutations and resamples move whole learners.
     batch_size : int, optional
         Permutations/resamples per sparse product (memory bound).
-    jobs, scheduler
-        Westfall-Young permutations in ``jobs`` local processes or on a Dask cluster
+    n_jobs, scheduler
+        Westfall-Young permutations in ``n_jobs`` local processes or on a Dask cluster
         (``"local"`` or an address); the table is identical to the serial run.
 
     Returns
@@ -173,7 +176,7 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
     >>> ps = PatternSet(patterns=[(0, 1), (1, 0)], vocab=db.vocab, is_pause=db.is_pause,
     ...                 group_names=db.group_names, group_sizes=db.group_sizes(),
     ...                 support_counts=[[6, 0], [0, 6]], counts=counts, seq_groups=db.groups)
-    >>> table = contrast(ps, db, stability_resamples=20)
+    >>> table = contrast(ps, db, n_bootstrap=20)
     >>> table[["pattern", "support_strong", "support_weak", "favours"]]
       pattern  support_strong  support_weak favours
     0   a > b             1.0           0.0  strong
@@ -186,9 +189,8 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
     correction = check_choice(correction, "correction", CONTRAST_CORRECTIONS, "contrast")
     alpha = check_fraction(alpha, "alpha", "contrast")
     n_permutations = check_int(n_permutations, "n_permutations", "contrast", minimum=1)
-    seed = check_int(seed, "seed", "contrast", minimum=0)
-    stability_resamples = check_int(stability_resamples, "stability_resamples", "contrast",
-                                    minimum=0)
+    random_state = check_int(random_state, "random_state", "contrast", minimum=0)
+    n_bootstrap = check_int(n_bootstrap, "n_bootstrap", "contrast", minimum=0)
     if redundancy is not None:
         redundancy = check_fraction(redundancy, "redundancy", "contrast")
     redundancy_order = check_choice(redundancy_order, "redundancy_order", _ORDERS, "contrast")
@@ -217,13 +219,15 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
                  "cramers_v": np.sqrt(chi / sizes.sum()), "kruskal_h": h, "p_rate": p_rate}
 
     if correction == "westfall-young":
-        _, q = westfall_young_minp(pres, labels, n_permutations=n_permutations, seed=seed,
-                                   batch_size=batch_size, jobs=jobs, scheduler=scheduler)
+        _, q = westfall_young_minp(pres, labels, n_permutations=n_permutations,
+                                   random_state=random_state, batch_size=batch_size,
+                                   n_jobs=n_jobs, scheduler=scheduler)
     else:
         q = adjust_pvalues(p, correction)
     if correction == "westfall-young":
         _, q_rate = westfall_young_rates(rates, labels, n_permutations=n_permutations,
-                                         seed=seed, batch_size=batch_size, jobs=jobs,
+                                         random_state=random_state, batch_size=batch_size,
+                                         n_jobs=n_jobs,
                                          scheduler=scheduler)
     else:
         q_rate = adjust_pvalues(stats["p_rate"], correction)
@@ -237,10 +241,10 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
         fav_ok = q <= alpha
     favours = np.where(fav_ok, np.array(names, dtype=object)[fav_idx], "")
 
-    if stability_resamples > 0:
+    if n_bootstrap > 0:
         stability = bootstrap_significance(pres, labels, direction,
-                                           n_resamples=stability_resamples, alpha=alpha,
-                                           seed=seed, batch_size=batch_size)
+                                           n_bootstrap=n_bootstrap, alpha=alpha,
+                                           random_state=random_state, batch_size=batch_size)
     else:
         stability = np.full(m, np.nan)
 
@@ -272,7 +276,7 @@ def contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh", a
     df = df.iloc[np.argsort(p, kind="stable")].reset_index(drop=True)
     if drop_redundant:
         df = df[df["redundant_of"] == ""].reset_index(drop=True)
-    df.attrs.update(_attrs(prep, correction, alpha, n_permutations, seed, stability_resamples,
+    df.attrs.update(_attrs(prep, correction, alpha, n_permutations, random_state, n_bootstrap,
                            redundancy))
     return df
 
@@ -585,9 +589,9 @@ def _empty_frame(table, names, correction):
     return df
 
 
-def _attrs(prep, correction, alpha, n_permutations, seed, stability_resamples, redundancy):
+def _attrs(prep, correction, alpha, n_permutations, random_state, n_bootstrap, redundancy):
     return {"groups": list(prep["names"]), "correction": correction, "alpha": alpha,
             "n_permutations": n_permutations if correction == "westfall-young" else 0,
-            "seed": seed, "stability_resamples": stability_resamples,
+            "random_state": random_state, "n_bootstrap": n_bootstrap,
             "redundancy": redundancy, "rate_unit": prep["rate_unit"],
             "n_sequences": int(len(prep["labels"])), "unit": prep.get("unit", "sequence")}

@@ -9,6 +9,7 @@ from scipy import special, stats
 from .._util.checks import check_int
 from .._util.parallel import n_workers, parallel_map
 from .._util.progress import progress
+from ..config import DEFAULT_CONFIG
 from ..errors import ParameterError
 from .effects import (
     FISHER_RTOL,
@@ -24,10 +25,12 @@ __all__ = ["westfall_young_minp", "westfall_young_rates", "bootstrap_significanc
 
 #: Default budget of entries of one (patterns x permutations) batch.
 _BATCH_ENTRIES = 2_000_000
+_CONTRAST = DEFAULT_CONFIG["contrast"]
 
 
-def westfall_young_minp(presence, labels, *, n_permutations=1000, seed=0, batch_size=None,
-                        jobs=1, scheduler=None):
+def westfall_young_minp(presence, labels, *, n_permutations=_CONTRAST["n_permutations"],
+                        random_state=DEFAULT_CONFIG["seed"], batch_size=None,
+                        n_jobs=DEFAULT_CONFIG["n_jobs"], scheduler=None):
     """Westfall-Young step-down min-P adjusted p-values for all patterns at once.
 
     Parameters
@@ -38,15 +41,15 @@ def westfall_young_minp(presence, labels, *, n_permutations=1000, seed=0, batch_
         Group index ``0 .. k-1`` of each sequence (``k >= 2``).
     n_permutations : int
         Number of label permutations ``B``.
-    seed : int
+    random_state : int
         Seed of ``numpy.random.default_rng``; permutation ``b`` (``b = 0 .. B-1``) is
         ``rng.permutation(labels)`` drawn in that order, so the result does not depend
         on ``batch_size``.
     batch_size : int, optional
         Permutations handled per sparse product; default keeps
         ``n_patterns * batch_size`` near two million entries.
-    jobs, scheduler
-        Run contiguous chunks of the permutation stream in ``jobs`` local processes
+    n_jobs, scheduler
+        Run contiguous chunks of the permutation stream in ``n_jobs`` local processes
         or on a Dask cluster (see :func:`seqmine._util.parallel.parallel_map`). Each chunk
         starts from the generator state the serial run has there, so the
         permutations, and the result, are identical to the serial run.
@@ -78,7 +81,8 @@ def westfall_young_minp(presence, labels, *, n_permutations=1000, seed=0, batch_
     --------
     >>> import scipy.sparse as sp
     >>> pres = sp.csr_matrix(np.array([[1, 0], [1, 1], [1, 0], [0, 1], [0, 1], [0, 0]]))
-    >>> raw, adj = westfall_young_minp(pres, [0, 0, 0, 1, 1, 1], n_permutations=200, seed=1)
+    >>> raw, adj = westfall_young_minp(pres, [0, 0, 0, 1, 1, 1], n_permutations=200,
+    ...                             random_state=1)
     >>> raw.round(3).tolist()
     [0.1, 1.0]
     >>> bool(adj[0] >= raw[0])
@@ -95,13 +99,14 @@ def westfall_young_minp(presence, labels, *, n_permutations=1000, seed=0, batch_
     pfunc = _pvalue_function(pt, sizes)
     raw = pfunc(_group_counts(pt, labels[:, None], n_groups))[:, 0]
     adjusted = _step_down_minp(raw, lambda perm: pfunc(_group_counts(pt, perm, n_groups)),
-                               labels, n_permutations, seed, _batch_size(batch_size, m),
-                               jobs=jobs, scheduler=scheduler)
+                               labels, n_permutations, random_state,
+                               _batch_size(batch_size, m), n_jobs=n_jobs, scheduler=scheduler)
     return raw, adjusted
 
 
-def westfall_young_rates(rates, labels, *, n_permutations=1000, seed=0, batch_size=None,
-                         jobs=1, scheduler=None):
+def westfall_young_rates(rates, labels, *, n_permutations=_CONTRAST["n_permutations"],
+                         random_state=DEFAULT_CONFIG["seed"], batch_size=None,
+                         n_jobs=DEFAULT_CONFIG["n_jobs"], scheduler=None):
     """Westfall-Young step-down min-P adjustment of the rank test on rates.
 
     Parameters
@@ -110,7 +115,7 @@ def westfall_young_rates(rates, labels, *, n_permutations=1000, seed=0, batch_si
         Non-negative per-sequence rates (absent entries are 0).
     labels : array_like of int, shape (n_sequences,)
         Group index ``0 .. k-1`` of each sequence (``k >= 2``).
-    n_permutations, seed, batch_size, jobs, scheduler
+    n_permutations, random_state, batch_size, n_jobs, scheduler
         As in :func:`westfall_young_minp` (the same seed draws the same permutations).
 
     Returns
@@ -189,8 +194,8 @@ def westfall_young_rates(rates, labels, *, n_permutations=1000, seed=0, batch_si
             return np.where(ties > 0, stats.chi2.sf(h, n_groups - 1), 1.0)
 
     raw = pfunc(labels[:, None])[:, 0]
-    adjusted = _step_down_minp(raw, pfunc, labels, n_permutations, seed,
-                               _batch_size(batch_size, m), jobs=jobs, scheduler=scheduler)
+    adjusted = _step_down_minp(raw, pfunc, labels, n_permutations, random_state,
+                               _batch_size(batch_size, m), n_jobs=n_jobs, scheduler=scheduler)
     return raw, adjusted
 
 
@@ -206,8 +211,10 @@ def presence_pvalues(presence, labels):
     return chi2_presence(counts[:, :, 0], sizes)[1]
 
 
-def bootstrap_significance(presence, labels, direction, *, n_resamples=100, alpha=0.05,
-                           seed=0, batch_size=None):
+def bootstrap_significance(presence, labels, direction, *,
+                           n_bootstrap=_CONTRAST["n_bootstrap"],
+                           alpha=_CONTRAST["alpha"],
+                           random_state=DEFAULT_CONFIG["seed"], batch_size=None):
     """Share of stratified bootstrap resamples in which each pattern is significant.
 
     Parameters
@@ -220,13 +227,13 @@ def bootstrap_significance(presence, labels, direction, *, n_resamples=100, alph
         (group 0 minus group 1); for more groups the index of the group with the
         highest support. A pattern with direction 0 (two groups, no difference)
         scores 0.
-    n_resamples : int
+    n_bootstrap : int
         Number of resamples ``R``. Each draws, within every group, as many sequences
         as the group has, with replacement (stratified bootstrap).
     alpha : float
         Nominal (uncorrected) level.
-    seed : int
-        Resamples come from ``rng = numpy.random.default_rng([seed, 1])``: for
+    random_state : int
+        Resamples come from ``rng = numpy.random.default_rng([random_state, 1])``: for
         resample ``r = 0 .. R-1`` and group ``g = 0 .. k-1`` in turn,
         ``rng.choice(members_g, size=n_g, replace=True)`` (independent of batching).
 
@@ -236,7 +243,7 @@ def bootstrap_significance(presence, labels, direction, *, n_resamples=100, alph
         Fraction of resamples in which the raw presence test (Fisher for two groups,
         chi-square otherwise) has p <= ``alpha`` *and* the direction matches.
     """
-    n_resamples = check_int(n_resamples, "stability_resamples", "contrast", minimum=1)
+    n_resamples = check_int(n_bootstrap, "n_bootstrap", "contrast", minimum=1)
     labels = np.asarray(labels, dtype=np.int64)
     direction = np.asarray(direction, dtype=np.int64)
     pt, sizes = _prepare(presence, labels)
@@ -246,7 +253,7 @@ def bootstrap_significance(presence, labels, direction, *, n_resamples=100, alph
     if m == 0:
         return np.zeros(0)
     members = [np.flatnonzero(labels == g) for g in range(n_groups)]
-    rng = np.random.default_rng([seed, 1])
+    rng = np.random.default_rng([random_state, 1])
     batch = _batch_size(batch_size, m)
     n = len(labels)
     done = 0
@@ -274,23 +281,23 @@ def bootstrap_significance(presence, labels, direction, *, n_resamples=100, alph
 
 
 # --------------------------------------------------------------------- helpers
-def _step_down_minp(raw, pfunc, labels, n_permutations, seed, batch, jobs=1, scheduler=None):
+def _step_down_minp(raw, pfunc, labels, n_permutations, seed, batch, n_jobs=1, scheduler=None):
     """Westfall-Young algorithm 2.8 given ``pfunc(permuted labels (n, nb)) -> (m, nb)``."""
     m = len(raw)
     order = np.argsort(raw, kind="stable")
     threshold = raw[order][:, None] * (1.0 + FISHER_RTOL)
     rng = np.random.default_rng(seed)
-    if (jobs is None or jobs == 1) and not scheduler:
+    if (n_jobs is None or n_jobs == 1) and not scheduler:
         exceed = _exceed_counts((pfunc, labels, rng.bit_generator.state, n_permutations, batch,
                                  order, threshold, True))
     else:
         tasks = []
-        for start, stop in _chunks(n_permutations, jobs):
+        for start, stop in _chunks(n_permutations, n_jobs):
             tasks.append((pfunc, labels, rng.bit_generator.state, stop - start, batch, order,
                           threshold, False))
             for _ in range(stop - start):   # advance exactly as the chunk will
                 rng.permutation(labels)
-        exceed = np.sum(parallel_map(_exceed_counts, tasks, jobs=jobs, scheduler=scheduler),
+        exceed = np.sum(parallel_map(_exceed_counts, tasks, n_jobs=n_jobs, scheduler=scheduler),
                         axis=0)
     adj_sorted = np.maximum.accumulate((exceed + 1.0) / (n_permutations + 1.0))
     adjusted = np.empty(m)

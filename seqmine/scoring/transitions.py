@@ -7,6 +7,7 @@ import pandas as pd
 from scipy import stats
 
 from .._util.checks import check_choice
+from ..config import DEFAULT_CONFIG
 from ..errors import ParameterError
 from .effects import fisher_exact_many
 from .multitest import adjust_pvalues
@@ -32,7 +33,8 @@ TRANSITION_COLUMNS = [
 ]
 
 
-def transitions(db, *, exclude_pauses=False, structural_zeros="auto", correction="bh"):
+def transitions(db, *, exclude_pauses=DEFAULT_CONFIG["transitions"]["exclude_pauses"],
+                structural_zeros="auto", correction="bh"):
     """Lag-1 transition table per group with adjusted residuals and a group test.
 
     Parameters
@@ -141,7 +143,7 @@ def transitions(db, *, exclude_pauses=False, structural_zeros="auto", correction
     return pd.concat(frames, ignore_index=True)[TRANSITION_COLUMNS]
 
 
-def transition_counts(db, *, exclude_pauses=False):
+def transition_counts(db, *, exclude_pauses=DEFAULT_CONFIG["transitions"]["exclude_pauses"]):
     """Lag-1 transition counts per group.
 
     Parameters

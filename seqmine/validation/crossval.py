@@ -28,13 +28,12 @@ from sklearn.pipeline import FeatureUnion, make_pipeline
 from sklearn.preprocessing import StandardScaler
 
 from .._util.checks import check_choice, check_fraction, check_int, check_jobs, check_number
-from ..config import CLASSIFIERS, DEFAULT_FRACTIONS
 from .._util.csvio import write_csv
-from .._util.folds import learner_splits
+from .._util.folds import learner_splits as _learner_splits
 from .._util.jsonio import write_json
 from .._util.parallel import parallel_map
 from .._util.progress import progress
-from ..config import DEFAULT_CONFIG
+from ..config import CLASSIFIERS, DEFAULT_CONFIG, DEFAULT_FRACTIONS
 from ..errors import ParameterError
 from .features import (
     FrequencyPauseFeaturizer,
@@ -55,16 +54,19 @@ __all__ = [
     "HMM_CLASSIFIERS",
 ]
 
+_DEFAULTS = DEFAULT_CONFIG["validate"]
+_SEED = DEFAULT_CONFIG["seed"]
 
 #: Classifiers that use the HMM featurizer (the expensive one; see ``n_repeats_hmm``).
 HMM_CLASSIFIERS = tuple(n for n, f in CLASSIFIERS.items() if "hmm" in f)
 
-
-def validate(events, outcomes, *, folds=5, n_repeats=DEFAULT_CONFIG["validate"]["repeats"],
-             n_repeats_hmm=DEFAULT_CONFIG["validate"]["hmm_repeats"], loo=False,
-             fractions=DEFAULT_FRACTIONS, grouping=None, encoder=None, featurizers=None,
-             classifiers=None, C=1.0, train_on="full", n_bootstrap=1000, confidence=0.95,
-             alpha=0.05, seed=0, n_jobs=1, scheduler=None):
+def validate(events, outcomes, *, n_splits=_DEFAULTS["n_splits"],
+             n_repeats=_DEFAULTS["n_repeats"], n_repeats_hmm=_DEFAULTS["n_repeats_hmm"],
+             loo=False, fractions=DEFAULT_FRACTIONS, grouping=None, encoder=None,
+             featurizers=None, classifiers=None, C=1.0, train_on="full",
+             n_bootstrap=_DEFAULTS["n_bootstrap"], confidence=0.95,
+             alpha=DEFAULT_CONFIG["contrast"]["alpha"], random_state=_SEED,
+             n_jobs=DEFAULT_CONFIG["n_jobs"], scheduler=None):
     """Cross-validate the discovery pipeline by learner and measure early prediction.
 
     Parameters
@@ -74,7 +76,7 @@ def validate(events, outcomes, *, folds=5, n_repeats=DEFAULT_CONFIG["validate"][
         ``load_events(...).events`` (a LoadResult is accepted too).
     outcomes : pandas.DataFrame
         Outcome table with a ``learner`` column, as from ``load_outcomes``.
-    folds : int, default 5
+    n_splits : int, default 5
         Number of stratified folds (ignored when ``loo``).
     n_repeats : int >= 1, default 3
         The k-fold split is repeated this many times with fresh shuffles (repeated
@@ -90,7 +92,7 @@ def validate(events, outcomes, *, folds=5, n_repeats=DEFAULT_CONFIG["validate"][
         Leave one learner out instead of k folds (see Notes on the baseline).
     fractions : sequence of float in (0, 1]
         Observed fractions of each held-out sequence (of its action events, see
-        :meth:`SequenceDB.cut`).
+        :meth:`SequenceDB.cut`); default :data:`DEFAULT_FRACTIONS`.
     grouping : estimator, optional
         Outcome grouping with ``fit(outcomes)``, ``transform(outcomes)`` (learner ->
         group name, NaN = none) and ``group_names_``. It is fitted once on the whole
@@ -112,12 +114,12 @@ def validate(events, outcomes, *, folds=5, n_repeats=DEFAULT_CONFIG["validate"][
         fraction the classifiers (not the discovery steps) are re-trained on the
         training sequences cut to the same fraction, so training and test see
         equally long beginnings.
-    n_bootstrap : int, default 1000
+    n_bootstrap : int, default 500
         Bootstrap resamples of the held-out learners for the confidence intervals.
     confidence : float, default 0.95
     alpha : float, default 0.05
         Level of the one-sided test against the majority baseline.
-    seed : int, default 0
+    random_state : int, default 20261202
         Seeds the fold splits, the featurizers and the bootstrap.
     n_jobs : int, default 1
         Folds (of all repetitions) run in this many local processes (joblib; -1 = all cores); results are
@@ -157,8 +159,8 @@ def validate(events, outcomes, *, folds=5, n_repeats=DEFAULT_CONFIG["validate"][
     Learners with events but no outcome, or whose outcome gives no group (e.g. the
     middle of a ``fraction`` split), take no part.
 
-    *Repetitions.* Repetition 0 uses ``seed`` for the shuffle of the stratified
-    split, repetition ``r`` a seed derived from ``(seed, r)``; a different
+    *Repetitions.* Repetition 0 uses ``random_state`` for the shuffle of the stratified
+    split, repetition ``r`` a seed derived from ``(random_state, r)``; a different
     assignment of learners to folds (for example after pseudonymization renamed
     them) moves single-split results, and the spread over repetitions shows by how
     much.
@@ -186,7 +188,8 @@ def validate(events, outcomes, *, folds=5, n_repeats=DEFAULT_CONFIG["validate"][
         names.append("majority")
     grouping = grouping if grouping is not None else _default_grouping()
     encoder = encoder if encoder is not None else _default_encoder()
-    featurizers = featurizers if featurizers is not None else default_featurizers(seed=seed)
+    featurizers = (featurizers if featurizers is not None
+                   else default_featurizers(random_state=random_state))
     needed = sorted({f for n in names for f in CLASSIFIERS[n]})
     missing = [f for f in needed if f not in featurizers]
     if missing:
@@ -215,8 +218,9 @@ def validate(events, outcomes, *, folds=5, n_repeats=DEFAULT_CONFIG["validate"][
     learners = np.array(sorted(lr for lr, g in groups.items()
                                if lr in has_events and not pd.isna(g)), dtype=object)
     labels = np.array([str(groups[lr]) for lr in learners], dtype=object)
-    splits = [learner_splits(learners, labels, folds=folds, loo=loo,
-                             seed=_repeat_seed(seed, r)) for r in range(n_repeats)]
+    splits = [learner_splits(learners, labels, n_splits=n_splits, loo=loo,
+                             random_state=_repeat_seed(random_state, r))
+              for r in range(n_repeats)]
     cheap = [n for n in names if n not in HMM_CLASSIFIERS]
     jobs = [(r, k, learners[tr], learners[te], names if r < n_repeats_hmm else cheap)
             for r, split in enumerate(splits) for k, (tr, te) in enumerate(split)]
@@ -226,14 +230,15 @@ def validate(events, outcomes, *, folds=5, n_repeats=DEFAULT_CONFIG["validate"][
     if n_jobs == 1 and not scheduler:
         outs = [run(job) for job in progress(jobs, desc="folds", unit="fold")]
     else:
-        outs = parallel_map(run, jobs, jobs=n_jobs, scheduler=scheduler)
+        outs = parallel_map(run, jobs, n_jobs=n_jobs, scheduler=scheduler)
     predictions = pd.concat([o["predictions"] for o in outs], ignore_index=True)
     order = {n: i for i, n in enumerate(names)}
     predictions = predictions.sort_values(
         ["classifier", "repeat", "fraction", "learner"], key=lambda s: s.map(order)
         if s.name == "classifier" else s, kind="mergesort", ignore_index=True)
     metrics = early_prediction_table(predictions, group_names, n_bootstrap=n_bootstrap,
-                                     confidence=confidence, alpha=alpha, seed=seed)
+                                     confidence=confidence, alpha=alpha,
+                                     random_state=random_state)
     fold_table = pd.DataFrame({
         "learner": np.concatenate([learners[te] for split in splits for _, te in split]),
         "repeat": np.concatenate([np.full(len(te), r) for r, split in enumerate(splits)
@@ -242,12 +247,12 @@ def validate(events, outcomes, *, folds=5, n_repeats=DEFAULT_CONFIG["validate"][
                                 for k, (_, te) in enumerate(split)]),
     }).sort_values(["repeat", "learner"], kind="mergesort", ignore_index=True)
     settings = {
-        "folds": None if loo else int(folds), "loo": bool(loo),
-        "repeats": int(n_repeats), "repeats_hmm": int(n_repeats_hmm),
+        "n_splits": None if loo else int(n_splits), "loo": bool(loo),
+        "n_repeats": int(n_repeats), "n_repeats_hmm": int(n_repeats_hmm),
         "fractions": list(fractions), "classifiers": names, "C": float(C),
         "train_on": train_on,
         "n_bootstrap": int(n_bootstrap), "confidence": float(confidence),
-        "alpha": float(alpha), "seed": int(seed),
+        "alpha": float(alpha), "random_state": int(random_state),
         "test": "one-sided sign test on per-learner correctness vs majority (exact "
                 "McNemar with one repetition)",
         "grouping": _grouping_record(grouping),
@@ -416,7 +421,45 @@ class ValidationResult:
         return folder
 
 
-def default_featurizers(*, seed=0, pattern_params=None, hmm_params=None):
+def learner_splits(learners, labels=None, *, n_splits=_DEFAULTS["n_splits"], loo=False,
+                   random_state=_SEED):
+    """Split samples into folds so that no learner spans two folds, as :func:`validate`
+    does (stratified by ``labels`` when given).
+
+    Parameters
+    ----------
+    learners : array-like of str, shape (n_samples,)
+        Learner of each sample; a learner may have several samples (sessions).
+    labels : array-like, shape (n_samples,), optional
+        Group of each sample, used to stratify (the first sample of a learner gives the
+        learner's label).
+    n_splits : int, default 5
+        Number of folds over learners (ignored when ``loo``).
+    loo : bool, default False
+        One fold per learner.
+    random_state : int, default 20261202
+        Shuffles learners before the split.
+
+    Returns
+    -------
+    list of (ndarray, ndarray)
+        ``(train_indices, test_indices)`` into the samples, one pair per fold.
+
+    Examples
+    --------
+    >>> learners = ["a", "a", "b", "c", "d", "e", "f"]
+    >>> labels = ["x", "x", "x", "x", "y", "y", "y"]
+    >>> for tr, te in learner_splits(learners, labels, n_splits=3, random_state=0):
+    ...     print(" ".join(sorted(set(np.asarray(learners)[te]))))
+    c e
+    b f
+    a d
+    """
+    return _learner_splits(learners, labels, n_splits=n_splits, loo=loo,
+                           random_state=random_state)
+
+
+def default_featurizers(*, random_state=_SEED, pattern_params=None, hmm_params=None):
     """The three featurizers compared by :func:`validate`, unfitted.
 
     Returns
@@ -427,13 +470,13 @@ def default_featurizers(*, seed=0, pattern_params=None, hmm_params=None):
         :class:`FrequencyPauseFeaturizer`.
     """
     return {
-        "pattern": PatternFeaturizer(seed=seed, **(pattern_params or {})),
-        "hmm": HMMLikelihoodFeaturizer(seed=seed, **(hmm_params or {})),
+        "pattern": PatternFeaturizer(random_state=random_state, **(pattern_params or {})),
+        "hmm": HMMLikelihoodFeaturizer(random_state=random_state, **(hmm_params or {})),
         "frequency_pause": FrequencyPauseFeaturizer(),
     }
 
 
-def make_classifier(name, *, featurizers=None, C=1.0, seed=0):
+def make_classifier(name, *, featurizers=None, C=1.0, random_state=_SEED):
     """A scikit-learn Pipeline equivalent to one classifier of :func:`validate`.
 
     Features of the named featurizers are stacked (:class:`FeatureUnion`),
@@ -453,7 +496,8 @@ def make_classifier(name, *, featurizers=None, C=1.0, seed=0):
         raise ParameterError(f"Unknown classifier {name!r}; choose from {', '.join(CLASSIFIERS)}.")
     if name == "majority":
         return DummyClassifier(strategy="most_frequent")
-    feats = featurizers if featurizers is not None else default_featurizers(seed=seed)
+    feats = (featurizers if featurizers is not None
+             else default_featurizers(random_state=random_state))
     union = FeatureUnion([(f, clone(feats[f])) for f in CLASSIFIERS[name]])
     return make_pipeline(union, StandardScaler(), _logistic(C))
 

@@ -23,12 +23,17 @@ import pandas as pd
 from sklearn.base import BaseEstimator, TransformerMixin
 
 from .._util.checks import check_choice, check_fraction, check_int, check_number
+from ..config import DEFAULT_CONFIG
 from ..encoding.sequences import SequenceDB
 from ..errors import NotFittedError, ParameterError
 from ..mining.miner import match, mine
 from ..mining.patterns import PATTERN_SEPARATOR
 from ..phases.classify import GroupHMMClassifier
 from ..scoring.contrast import contrast
+
+_MINE = DEFAULT_CONFIG["mine"]
+_CONTRAST = DEFAULT_CONFIG["contrast"]
+_SEED = DEFAULT_CONFIG["seed"]
 
 __all__ = [
     "PatternFeaturizer",
@@ -47,14 +52,16 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
     (``scorer``, default :func:`seqmine.scoring.contrast.contrast`) and selection
     (:func:`select_patterns`). ``transform`` counts the selected patterns in any
     database with ``matcher`` (default :func:`seqmine.mining.miner.match`), using the same
-    gap/window constraints as mining.
+    gap/window constraints as mining. The mining, scoring and selection defaults are
+    those of ``seqmine analyze`` (the ``[mine]``, ``[contrast]`` and ``[validate]``
+    sections of :data:`seqmine.config.DEFAULT_CONFIG`).
 
     Parameters
     ----------
-    min_support : float in (0, 1], default 0.1
+    min_support : float in (0, 1], default 0.2
         Mining threshold: a pattern is kept when at least this share of the
         sequences of at least one group contain it.
-    min_length, max_length : int, default 1 and 3
+    min_length, max_length : int, default 2 and 4
         Pattern length limits for mining.
     max_gap : int or None, default 0
         Occurrence constraint (see :mod:`seqmine.mining.patterns`), used for mining and
@@ -63,12 +70,14 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
         which makes long patterns behave much like action frequencies.
     max_window : int or None, default None
         Span limit in tokens.
-    skip_pauses : bool, default False
+    skip_pauses : bool, default True
         Pause tokens do not count towards gaps and windows.
-    start_with_action, end_with_action, closed, maximal : bool, default False
+    start_with_action : bool, default True
+    end_with_action, closed, maximal : bool, default False
         Further mining filters, passed to the miner only when switched on.
     max_patterns : int or None, default None
-        Pattern-explosion guard of the miner (None = the miner's default).
+        Pattern-explosion guard of the miner (None = the miner's default,
+        ``DEFAULT_CONFIG["mine"]["max_patterns"]``).
     correction : str, default "bh"
         Multiple-testing correction passed to the scorer.
     n_permutations : int, default 1000
@@ -81,7 +90,7 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
         ``"count"``: non-overlapping instance count of each pattern per sequence;
         ``"rate"``: that count per 100 tokens of the sequence (comparable between a
         full training sequence and the first part of a held-out one).
-    seed : int, default 0
+    random_state : int, default 20261202
         Passed to the scorer (permutation tests).
     miner, matcher, scorer : callable or None
         Pluggable discovery steps. ``miner(db, **constraints)`` returns a
@@ -116,11 +125,16 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
     [[33.3, 33.3], [0.0, 0.0]]
     """
 
-    def __init__(self, *, min_support=0.1, min_length=1, max_length=3, max_gap=0,
-                 max_window=None, skip_pauses=False, start_with_action=False,
-                 end_with_action=False, closed=False, maximal=False, max_patterns=None,
-                 correction="bh", alpha=0.05, n_permutations=1000, top_k=30,
-                 value="rate", seed=0, miner=None, matcher=None, scorer=None):
+    def __init__(self, *, min_support=_MINE["min_support"], min_length=_MINE["min_length"],
+                 max_length=_MINE["max_length"], max_gap=_MINE["max_gap"],
+                 max_window=_MINE["max_window"], skip_pauses=_MINE["skip_pauses"],
+                 start_with_action=_MINE["start_with_action"],
+                 end_with_action=_MINE["end_with_action"], closed=_MINE["closed"],
+                 maximal=_MINE["maximal"], max_patterns=None,
+                 correction=_CONTRAST["correction"], alpha=_CONTRAST["alpha"],
+                 n_permutations=_CONTRAST["n_permutations"],
+                 top_k=DEFAULT_CONFIG["validate"]["top_k"], value="rate", random_state=_SEED,
+                 miner=None, matcher=None, scorer=None):
         self.min_support = min_support
         self.min_length = min_length
         self.max_length = max_length
@@ -137,7 +151,7 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
         self.n_permutations = n_permutations
         self.top_k = top_k
         self.value = value
-        self.seed = seed
+        self.random_state = random_state
         self.miner = miner
         self.matcher = matcher
         self.scorer = scorer
@@ -153,8 +167,8 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
         codes, names = group_codes(db, y)
         db = db.with_groups(codes, names)
         miner = self.miner or mine
-        scorer = self.scorer or _ContrastScorer(self.correction, self.alpha, self.seed,
-                                                self.n_permutations)
+        scorer = self.scorer or _ContrastScorer(self.correction, self.alpha,
+                                                self.random_state, self.n_permutations)
         options = {k: True for k in ("start_with_action", "end_with_action", "closed",
                                      "maximal") if getattr(self, k)}
         if self.max_patterns is not None:
@@ -319,7 +333,7 @@ class HMMLikelihoodFeaturizer(TransformerMixin, BaseEstimator):
     smoothing : float > 0, default 1e-3
         Emission probability floor (added, then renormalised), so a token rare in
         one group does not give an infinite ratio.
-    seed : int, default 0
+    random_state : int, default 20261202
 
     Attributes
     ----------
@@ -340,12 +354,13 @@ class HMMLikelihoodFeaturizer(TransformerMixin, BaseEstimator):
     ((12, 1), True)
     """
 
-    def __init__(self, *, n_states=3, n_restarts=2, n_iter=50, smoothing=1e-3, seed=0):
+    def __init__(self, *, n_states=3, n_restarts=2, n_iter=50, smoothing=1e-3,
+                 random_state=_SEED):
         self.n_states = n_states
         self.n_restarts = n_restarts
         self.n_iter = n_iter
         self.smoothing = smoothing
-        self.seed = seed
+        self.random_state = random_state
 
     def fit(self, X, y=None):
         """Fit one HMM per group on the training sequences."""
@@ -366,7 +381,7 @@ class HMMLikelihoodFeaturizer(TransformerMixin, BaseEstimator):
         # class names "000000", "000001", ... keep the group order (classes_ are sorted)
         labels = np.array([f"{c:06d}" for c in codes], dtype=object)
         self.models_ = GroupHMMClassifier(n_states=self.n_states, n_restarts=self.n_restarts,
-                                          seed=self.seed, n_iter=self.n_iter,
+                                          random_state=self.random_state, n_iter=self.n_iter,
                                           emission_floor=self.smoothing).fit(db, labels)
         return self
 
@@ -400,7 +415,8 @@ class HMMLikelihoodFeaturizer(TransformerMixin, BaseEstimator):
 
 
 # --------------------------------------------------------------------- helpers
-def select_patterns(scores, *, alpha=0.05, top_k=30):
+def select_patterns(scores, *, alpha=_CONTRAST["alpha"],
+                    top_k=DEFAULT_CONFIG["validate"]["top_k"]):
     """Choose patterns from a contrast table: significant first, smallest p-values.
 
     Parameters
@@ -498,13 +514,13 @@ def _check_fitted(est, attr):
 class _ContrastScorer:
     """Calls :func:`seqmine.scoring.contrast.contrast` with fixed options (picklable)."""
 
-    def __init__(self, correction, alpha, seed, n_permutations):
+    def __init__(self, correction, alpha, random_state, n_permutations):
         self.correction = correction
         self.alpha = alpha
-        self.seed = seed
+        self.random_state = random_state
         self.n_permutations = n_permutations
 
     def __call__(self, patterns, db):
         return contrast(patterns, db, correction=self.correction, alpha=self.alpha,
-                        seed=self.seed, n_permutations=self.n_permutations,
-                        stability_resamples=0, redundancy=None)
+                        random_state=self.random_state, n_permutations=self.n_permutations,
+                        n_bootstrap=0, redundancy=None)

@@ -11,13 +11,16 @@ import numpy as np
 import pandas as pd
 from scipy.stats import binomtest
 
+from ..config import DEFAULT_CONFIG
 from ..errors import ParameterError
 
 __all__ = ["early_prediction_table", "metric_names"]
 
 
-def early_prediction_table(predictions, group_names, *, n_bootstrap=1000, confidence=0.95,
-                           alpha=0.05, seed=0):
+def early_prediction_table(predictions, group_names, *,
+                           n_bootstrap=DEFAULT_CONFIG["validate"]["n_bootstrap"],
+                           confidence=0.95, alpha=DEFAULT_CONFIG["contrast"]["alpha"],
+                           random_state=DEFAULT_CONFIG["seed"]):
     """Metrics per classifier x fraction with bootstrap intervals and the baseline test.
 
     Parameters
@@ -37,7 +40,7 @@ def early_prediction_table(predictions, group_names, *, n_bootstrap=1000, confid
         Percentile interval level.
     alpha : float
         Level of the test against the majority baseline.
-    seed : int
+    random_state : int
 
     Returns
     -------
@@ -124,7 +127,7 @@ def early_prediction_table(predictions, group_names, *, n_bootstrap=1000, confid
     first = cells[(classifiers[0], fractions[0], repeats[classifiers[0]][0])]
     learners = first["learner"].to_numpy()
     n = len(learners)
-    rng = np.random.default_rng(seed)
+    rng = np.random.default_rng(random_state)
     boot = rng.integers(0, n, size=(n_bootstrap, n))
     weights = _bootstrap_weights(boot, n)
     q = (1 - confidence) / 2

@@ -1,128 +1,304 @@
-"""Option groups shared by several sub-commands, and their conversion to API objects."""
+"""Option groups shared by several sub-commands, and their conversion to API objects.
+
+Every option that has a configuration key is declared with :func:`add_option`: its
+default comes from :data:`seqmine.config.DEFAULT_CONFIG` (the one source of defaults)
+and the action remembers the key, so ``seqmine analyze`` can map the flags given on
+the command line back onto the configuration. The flag is the key with ``_`` written
+as ``-`` and a leading ``n_`` dropped (``n_permutations`` -> ``--permutations``);
+the few exceptions are listed in :data:`FLAG_EXCEPTIONS`. "No limit" is written
+``none`` wherever an option has one.
+"""
 
 from __future__ import annotations
 
 import argparse
 import sys
 
-from ...config import EVENT_ROLES
-from ...errors import ParameterError
+from ...config import CONTRAST_CORRECTIONS, DEFAULT_CONFIG, EVENT_ROLES
+from ...errors import OptionValueError
 
-__all__ = ["add_event_options", "add_outcome_options", "add_encoding_options",
+__all__ = ["add_option", "flag_for", "FLAG_EXCEPTIONS", "add_event_options",
+           "add_outcome_options", "add_encoding_options", "add_mining_options",
+           "add_contrast_options", "add_execution_options", "add_sequences_option",
            "events_from_args", "outcomes_from_args", "grouping_from_args",
-           "encoder_from_args", "parse_float_list", "add_privacy_option",
-           "pseudonymize_inputs", "print_warnings", "number_or_word"]
+           "encoder_from_args", "mining_params", "add_privacy_option",
+           "pseudonymize_inputs", "print_warnings", "int_or_none", "float_or_none",
+           "support_value", "float_list", "label_list", "NONE_WORD", "shown"]
+
+#: How "no limit" / "not set" is written on the command line and in TOML files.
+NONE_WORD = "none"
+
+#: Configuration keys whose flag is not :func:`flag_for` of the key: the reason is
+#: clarity (two sections share a key name, or the key is a switch).
+FLAG_EXCEPTIONS = {
+    ("outcomes", "learner_column"): "--outcome-learner-column",  # --learner-column: events
+    ("outcomes", "fraction"): "--group-fraction",  # beside validate's --fractions
+    ("phases", "enabled"): "--no-phases",
+    ("phases", "min_states"): "--states",          # one range, e.g. 2-5
+    ("phases", "max_states"): "--states",
+    ("validate", "enabled"): "--no-validate",
+    ("validate", "hmm"): "--hmm-states",           # sets validate.hmm.n_states
+    ("privacy", "pseudonymize_key"): "--pseudonymize",
+}
 
 
-def parse_float_list(text, option):
-    """``"5,30"`` -> ``[5.0, 30.0]`` with a message naming the option."""
-    if text is None or text == "":
+def flag_for(section, key):
+    """The flag of a configuration key: ``("contrast", "n_permutations")`` ->
+    ``"--permutations"`` (see :data:`FLAG_EXCEPTIONS`)."""
+    if (section, key) in FLAG_EXCEPTIONS:
+        return FLAG_EXCEPTIONS[(section, key)]
+    name = key[2:] if key.startswith("n_") else key
+    return "--" + name.replace("_", "-")
+
+
+def config_default(section, key):
+    """``DEFAULT_CONFIG[section][key]`` (``section=None``: a top-level key)."""
+    return DEFAULT_CONFIG[key] if section is None else DEFAULT_CONFIG[section][key]
+
+
+def shown(value):
+    """A default as the command line writes it: ``none``, ``on``/``off``, ``a,b``."""
+    if value is None:
+        return NONE_WORD
+    if isinstance(value, bool):
+        return "on" if value else "off"
+    if isinstance(value, (list, tuple)):
+        return ",".join(shown(v) for v in value)
+    if isinstance(value, float):
+        return f"{value:g}"
+    return str(value)
+
+
+def add_option(group, section, key, *, flag=None, to_config=None, help="", **kwargs):
+    """Add the option of configuration key ``section.key`` (``section=None``: top level).
+
+    The default is the configuration's (unless ``default=`` is given, e.g. a text form
+    parsed by ``type``); ``{default}`` in ``help`` is replaced by it as the command line
+    writes it. ``to_config`` converts the parsed value back to the configuration form.
+    """
+    value = config_default(section, key)
+    kwargs.setdefault("default", value)
+    text = help.replace("{default}", shown(value))
+    action = group.add_argument(flag or flag_for(section, key), help=text, **kwargs)
+    action.config_key = (section, key)
+    action.to_config = to_config
+    return action
+
+
+# ----------------------------------------------------------------- value parsers
+def int_or_none(text):
+    """A whole number, or ``none`` (no limit)."""
+    t = str(text).strip().lower()
+    if t == NONE_WORD:
         return None
     try:
-        return [float(x) for x in str(text).split(",") if x.strip()]
+        return int(t)
     except ValueError:
-        raise ParameterError(f"{option} takes comma-separated numbers, e.g. 5,30; got {text!r}.") from None
+        raise OptionValueError(
+            f"expected a whole number or 'none' (no limit); got {text!r}") from None
 
 
-def number_or_word(option, kind=int, *, minimum=None, maximum=None, words=None):
-    """An argparse ``type``: a number of ``kind`` in [minimum, maximum], or a word.
+def float_or_none(text):
+    """A number, or ``none`` (switched off)."""
+    t = str(text).strip().lower()
+    if t == NONE_WORD:
+        return None
+    try:
+        return float(t)
+    except ValueError:
+        raise OptionValueError(
+            f"expected a number or 'none'; got {text!r}") from None
 
-    ``words`` maps accepted words to their values (default: ``none`` and ``off`` ->
-    None). argparse prints the message after the option's name.
 
-    Examples
-    --------
-    >>> share = number_or_word("--share", float, minimum=0, maximum=1)
-    >>> share("0.25"), share("none")
-    (0.25, None)
-    """
-    words = {"none": None, "off": None} if words is None else words
+def support_value(text):
+    """A fraction of a group's sequences ('0.2') or a count of sequences ('5')."""
+    t = str(text).strip()
+    try:
+        if any(c in t for c in ".eE"):
+            return float(t)
+        return int(t)
+    except ValueError:
+        raise OptionValueError(
+            f"expected a fraction in (0, 1] such as 0.2 or a count of sequences such as 5; "
+            f"got {text!r}") from None
 
-    def convert(text):
-        t = str(text).strip().lower()
-        if t in words:
-            return words[t]
-        try:
-            v = kind(t)
-            ok = (minimum is None or v >= minimum) and (maximum is None or v <= maximum)
-        except ValueError:
-            ok = False
-        if not ok:
-            what = "a whole number" if kind is int else "a number"
-            rng = (f" from {minimum:g} to {maximum:g}" if minimum is not None and maximum
-                   is not None else f" >= {minimum:g}" if minimum is not None else "")
-            names = " or ".join(repr(w) for w in words)
-            raise argparse.ArgumentTypeError(f"must be {what}{rng}" + (
-                f" or {names}" if names else "") + f"; got {text!r}")
-        return v
 
-    convert.__name__ = option.lstrip("-").replace("-", "_")
-    return convert
+def float_list(text):
+    """``"5,30"`` -> ``[5.0, 30.0]``; ``""`` or ``none`` -> None."""
+    t = str(text).strip()
+    if t == "" or t.lower() == NONE_WORD:
+        return None
+    try:
+        return [float(x) for x in t.split(",") if x.strip()]
+    except ValueError:
+        raise OptionValueError(
+            f"expected comma-separated numbers, e.g. 5,30; got {text!r}") from None
+
+
+def label_list(text):
+    """``"short,medium"`` -> ``["short", "medium"]``; ``""`` -> ``[]``."""
+    return [x.strip() for x in str(text or "").split(",") if x.strip()]
+
+
+# ----------------------------------------------------------------- option groups
+def add_execution_options(p, *, scheduler=True):
+    """``--seed``, ``--jobs`` (and ``--scheduler``)."""
+    add_option(p, None, "seed", type=int, metavar="S",
+               help="random seed (the random_state of the Python API; default: {default})")
+    add_option(p, None, "n_jobs", type=int, metavar="N",
+               help="parallel processes, -1 = all cores; results equal the serial run "
+                    "(default: {default})")
+    if scheduler:
+        add_option(p, None, "scheduler", metavar="ADDRESS",
+                   help="run the parallel parts on a Dask cluster: tcp://host:8786, or "
+                        "'local' for a local cluster with --jobs workers (needs "
+                        "pip install \"seqmine[distributed]\")")
+
+
+def add_sequences_option(p, *, positional=True, required=True):
+    """The sequence database folder written by 'seqmine encode' (``SEQUENCES_DIR`` or
+    ``--sequences DIR``)."""
+    text = "sequence database folder written by 'seqmine encode' (OUT/sequences)"
+    if positional:
+        p.add_argument("sequences", metavar="SEQUENCES_DIR", help=text)
+    else:
+        p.add_argument("--sequences", metavar="DIR", default=None, required=required,
+                       help=text)
 
 
 def add_event_options(p):
     g = p.add_argument_group("event log columns and format")
     for role in EVENT_ROLES:
-        g.add_argument(f"--{role}-column", metavar="NAME", default=None,
-                       help=f"column holding the {role} (default: {role})")
-    g.add_argument("--format", choices=["csv", "tsv", "parquet", "jsonl", "xapi"], default=None,
-                   help="input format (default: from the file extension)")
-    g.add_argument("--delimiter", default=None, help="CSV delimiter (default: sniffed)")
-    g.add_argument("--encoding", default="utf-8", help="text encoding (default: utf-8)")
-    g.add_argument("--keep-duplicates", action="store_true",
-                   help="keep exact duplicate events instead of rejecting them")
-    g.add_argument("--max-bytes", type=float, default=20e9,
-                   help="refuse event files larger than this many bytes (default: 2e10)")
+        add_option(g, "events", f"{role}_column", metavar="NAME",
+                   help=f"column holding the {role} (default: {{default}})")
+    add_option(g, "events", "format", choices=["csv", "tsv", "parquet", "jsonl", "xapi"],
+               help="input format (default: from the file extension)")
+    add_option(g, "events", "delimiter", metavar="CHAR", help="CSV delimiter (default: sniffed)")
+    add_option(g, "events", "encoding", metavar="NAME", help="text encoding (default: {default})")
+    add_duplicates_option(g, what="exact duplicate events")
+    add_option(g, "events", "max_bytes", type=_whole_number, metavar="N",
+               help="refuse event files larger than this many bytes (default: {default})")
+
+
+def add_duplicates_option(g, *, what):
+    add_option(g, "events", "duplicates", choices=["reject", "keep"],
+               help=f"reject {what} (default) or keep them")
+
+
+def _whole_number(text):
+    try:
+        value = float(text)
+    except ValueError:
+        value = None
+    if value is None or not value.is_integer():
+        raise OptionValueError(f"expected a whole number such as 2e10; got {text!r}")
+    return int(value)
 
 
 def add_outcome_options(p, required=True):
     g = p.add_argument_group("outcomes and groups")
     g.add_argument("--outcomes", required=required, metavar="FILE",
                    help="CSV with learner,pre,post,max (gain) or learner,score or learner,label")
-    g.add_argument("--outcome-learner-column", default=None, metavar="NAME")
-    g.add_argument("--pre-column", default=None, metavar="NAME")
-    g.add_argument("--post-column", default=None, metavar="NAME")
-    g.add_argument("--max-column", default=None, metavar="NAME")
-    g.add_argument("--score-column", default=None, metavar="NAME")
-    g.add_argument("--label-column", default=None, metavar="NAME")
-    g.add_argument("--max-score", type=float, default=None,
-                   help="maximum score when the outcomes have no max column")
-    g.add_argument("--grouping", choices=["median", "fraction", "thresholds", "label"],
-                   default=None, help="how groups are formed (default: median split on the "
-                   "gain or score; label when the outcomes have a label column)")
-    g.add_argument("--group-fraction", type=float, default=1 / 3,
-                   help="top/bottom share for --grouping fraction (default: 1/3)")
-    g.add_argument("--low", type=float, default=None, help="below this: weak (thresholds rule)")
-    g.add_argument("--high", type=float, default=None, help="at or above this: strong (thresholds rule)")
+    for role in ("learner", "pre", "post", "max", "score", "label"):
+        add_option(g, "outcomes", f"{role}_column", metavar="NAME",
+                   help=f"outcomes column holding the {role} (default: {{default}})")
+    add_option(g, "outcomes", "max_score", type=float, metavar="X",
+               help="maximum score when the outcomes have no max column")
+    add_option(g, "outcomes", "grouping", choices=["median", "fraction", "thresholds", "label"],
+               help="how groups are formed (default: median split on the gain or score; "
+                    "label when the outcomes have a label column)")
+    add_option(g, "outcomes", "fraction", type=float, metavar="F",
+               help="top/bottom share for --grouping fraction (default: 1/3)")
+    add_option(g, "outcomes", "low", type=float, metavar="X", help="below this: weak (thresholds rule)")
+    add_option(g, "outcomes", "high", type=float, metavar="X",
+               help="at or above this: strong (thresholds rule)")
 
 
 def add_encoding_options(p):
     g = p.add_argument_group("encoding")
-    g.add_argument("--template", default="{action}",
-                   help="symbol template, e.g. '{action}' or '{action}:{target}'")
-    g.add_argument("--mapping", default=None, metavar="FILE",
-                   help="CSV action,symbol to rename/merge (same symbol) or drop (empty symbol)")
-    g.add_argument("--collapse-repeats", action="store_true", help="merge immediate repeats")
-    g.add_argument("--pause-strategy", choices=["quantile", "fixed", "learner_quantile", "none"],
-                   default="quantile", help="how pause bins are set (default: quantile)")
-    g.add_argument("--pause-bins", type=int, default=3, help="number of pause bins (default: 3)")
-    g.add_argument("--pause-thresholds", default=None, metavar="S1,S2",
-                   help="bin edges in seconds for --pause-strategy fixed")
-    g.add_argument("--implicit-pauses", default="shortest", metavar="LABELS",
-                   help="pause bins that emit no token: labels such as short,medium, or "
-                        "'shortest' for the first bin (default: shortest; '' for none)")
-    g.add_argument("--unit", choices=["learner", "session"], default="learner",
-                   help="one sequence per learner or per session (default: learner)")
-    g.add_argument("--session-gap", type=float, default=None,
-                   help="with --unit session: a gap longer than this (s) starts a new session")
+    add_option(g, "encode", "template", metavar="TEMPLATE",
+               help="symbol template, e.g. '{action}' or '{action}:{target}' (default: "
+                    "{default})")
+    add_option(g, "encode", "mapping", metavar="FILE",
+               help="CSV action,symbol to rename/merge (same symbol) or drop (empty symbol)")
+    add_option(g, "encode", "collapse_repeats", action=argparse.BooleanOptionalAction,
+               help="merge immediate repeats (default: {default})")
+    add_option(g, "encode", "pause_strategy",
+               choices=["quantile", "fixed", "learner_quantile", "none"],
+               help="how pause bins are set (default: {default})")
+    add_option(g, "encode", "pause_bins", type=int, metavar="N", help="number of pause bins (default: {default})")
+    add_option(g, "encode", "pause_thresholds", type=float_list, metavar="S1,S2",
+               help="bin edges in seconds for --pause-strategy fixed")
+    add_option(g, "encode", "implicit_pauses", type=label_list, metavar="LABELS",
+               default=shown(config_default("encode", "implicit_pauses")),
+               help="pause bins that emit no token: labels such as short,medium, or "
+                    "'shortest' for the first bin (default: {default}; '' for none)")
+    add_option(g, "encode", "unit", choices=["learner", "session"],
+               help="one sequence per learner or per session (default: {default})")
+    add_option(g, "encode", "session_gap", type=float, metavar="S",
+               help="with --unit session: a gap longer than this (s) starts a new session")
+
+
+def add_mining_options(p, title="mining"):
+    """The options of :func:`seqmine.mining.miner.mine` (the ``[mine]`` section)."""
+    g = p.add_argument_group(title)
+    add_option(g, "mine", "min_support", type=support_value, metavar="S",
+               help="share of a group's sequences (e.g. 0.2) or a count of sequences "
+                    "(e.g. 5) a pattern must reach in at least one group (default: {default})")
+    add_option(g, "mine", "min_length", type=int, metavar="N",
+               help="shortest pattern reported (default: {default})")
+    add_option(g, "mine", "max_length", type=int_or_none, metavar="N",
+               help="longest pattern reported, or 'none' (default: {default})")
+    add_option(g, "mine", "max_gap", type=int_or_none, metavar="N",
+               help="most tokens between consecutive items, 0 = contiguous, 'none' = no "
+                    "limit (default: {default})")
+    add_option(g, "mine", "max_window", type=int_or_none, metavar="N",
+               help="largest span of an occurrence in tokens, or 'none' (default: {default})")
+    add_option(g, "mine", "skip_pauses", action=argparse.BooleanOptionalAction,
+               help="pause tokens do not count toward gaps and windows, so 'a > b' also "
+                    "matches a, pause, b (default: {default})")
+    add_option(g, "mine", "start_with_action", action=argparse.BooleanOptionalAction,
+               help="report only patterns whose first item is an action (default: {default})")
+    add_option(g, "mine", "end_with_action", action=argparse.BooleanOptionalAction,
+               help="report only patterns whose last item is an action (default: {default})")
+    add_option(g, "mine", "closed", action=argparse.BooleanOptionalAction,
+               help="drop patterns contained in a longer one with the same support in every "
+                    "group (default: {default})")
+    add_option(g, "mine", "maximal", action=argparse.BooleanOptionalAction,
+               help="drop patterns contained in a longer reported pattern (default: {default})")
+    add_option(g, "mine", "max_patterns", type=int, metavar="N",
+               help="stop when more frequent patterns than N are found (default: {default})")
+    return g
+
+
+def mining_params(args):
+    """The :func:`~seqmine.mining.miner.mine` keyword arguments of the parsed flags."""
+    return {key: getattr(args, key) for key in DEFAULT_CONFIG["mine"] if hasattr(args, key)}
+
+
+def add_contrast_options(p, title="pattern statistics"):
+    """The options of :func:`seqmine.scoring.contrast.contrast` that have a
+    configuration key (the ``[contrast]`` section)."""
+    g = p.add_argument_group(title)
+    add_option(g, "contrast", "correction", choices=CONTRAST_CORRECTIONS,
+               help="multiple-comparison control of q_value (default: {default})")
+    add_option(g, "contrast", "alpha", type=float, metavar="A",
+               help="significance level: 'favours' is set when q <= A (default: {default})")
+    add_option(g, "contrast", "n_permutations", type=int, metavar="N",
+               help="label permutations for westfall-young (default: {default})")
+    add_option(g, "contrast", "n_bootstrap", type=int, metavar="N",
+               help="bootstrap resamples for the stability column, 0 = skip "
+                    "(default: {default})")
+    add_option(g, "contrast", "redundancy", type=float_or_none, metavar="J",
+               help="Jaccard threshold for redundancy marks, or 'none' (default: {default})")
+    return g
 
 
 def events_from_args(args, path):
     from ...inputs.load import load_events
     columns = {role: getattr(args, f"{role}_column") for role in EVENT_ROLES}
     return load_events(path, columns=columns, format=args.format, delimiter=args.delimiter,
-                       encoding=args.encoding,
-                       duplicates="keep" if args.keep_duplicates else "reject",
+                       encoding=args.encoding, duplicates=args.duplicates,
                        max_bytes=args.max_bytes)
 
 
@@ -142,20 +318,13 @@ def grouping_from_args(args, outcomes):
 
 def encoder_from_args(args):
     from ...encoding.encoder import encoder_from_settings
-    return encoder_from_settings({
-        "template": args.template, "mapping": args.mapping,
-        "collapse_repeats": args.collapse_repeats, "pause_strategy": args.pause_strategy,
-        "pause_bins": args.pause_bins,
-        "pause_thresholds": parse_float_list(args.pause_thresholds, "--pause-thresholds"),
-        "implicit_pauses": [x.strip() for x in (args.implicit_pauses or "").split(",")
-                            if x.strip()],
-        "unit": args.unit, "session_gap": args.session_gap})
+    return encoder_from_settings({key: getattr(args, key) for key in DEFAULT_CONFIG["encode"]})
 
 
 def add_privacy_option(p):
-    p.add_argument("--pseudonymize", metavar="KEY_FILE", default=None,
-                   help="replace learner identifiers in every output by a keyed hash "
-                        "(HMAC-SHA256; the same key gives the same pseudonyms as analyze)")
+    add_option(p, "privacy", "pseudonymize_key", metavar="KEY_FILE",
+               help="replace learner identifiers in every output by a keyed hash "
+                    "(HMAC-SHA256; the same key gives the same pseudonyms in every command)")
 
 
 def pseudonymize_inputs(args, loaded, outcomes):
@@ -171,8 +340,9 @@ def pseudonymize_inputs(args, loaded, outcomes):
     return replace(loaded, outcomes, read_key(key_path))
 
 
-def print_warnings(records):
-    """Each warning a run recorded, once, as one line on standard error (also when quiet:
-    a warning says what the run assumed, which scripts need to know too)."""
-    for w in records:
-        print(f"seqmine: warning [{w.code}]: {w.message}", file=sys.stderr)
+def print_warnings(frame):
+    """Each warning a run recorded (``AnalysisResult.warnings``), once, as one line on
+    standard error (also when quiet: a warning says what the run assumed, which scripts
+    need to know too)."""
+    for code, message in zip(frame["code"], frame["message"]):
+        print(f"seqmine: warning [{code}]: {message}", file=sys.stderr)

@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import argparse
 
-from ...config import EVENT_ROLES, default_config, load_config, merge_config
+from ...config import default_config, load_config, merge_config
 from . import _options
-from ._options import print_warnings
+from ._options import add_option, print_warnings
 
 NAME = "analyze"
 HELP = "run every stage on your event log and outcomes and write the output folder"
@@ -14,120 +14,64 @@ DESCRIPTION = ("Load and validate the events and outcomes, encode, mine ordered 
                "score those that differ between outcome groups, compare transitions and "
                "phase models, measure early prediction, export detectors and write "
                "report.html. Options come from the defaults, then --config FILE (TOML), "
-               "then the flags given here.")
-
-# (argparse dest, config section, config key, converter)
-_FLAG_TO_CONFIG = [
-    *[(f"{role}_column", "events", f"{role}_column", None) for role in EVENT_ROLES],
-    ("format", "events", "format", None),
-    ("delimiter", "events", "delimiter", None),
-    ("encoding", "events", "encoding", None),
-    ("keep_duplicates", "events", "duplicates", lambda v: "keep" if v else "reject"),
-    ("max_bytes", "events", "max_bytes", int),
-    ("outcome_learner_column", "outcomes", "learner_column", None),
-    ("pre_column", "outcomes", "pre_column", None),
-    ("post_column", "outcomes", "post_column", None),
-    ("max_column", "outcomes", "max_column", None),
-    ("score_column", "outcomes", "score_column", None),
-    ("label_column", "outcomes", "label_column", None),
-    ("max_score", "outcomes", "max_score", None),
-    ("grouping", "outcomes", "grouping", None),
-    ("group_fraction", "outcomes", "fraction", None),
-    ("low", "outcomes", "low", None),
-    ("high", "outcomes", "high", None),
-    ("template", "encode", "template", None),
-    ("mapping", "encode", "mapping", None),
-    ("collapse_repeats", "encode", "collapse_repeats", None),
-    ("pause_strategy", "encode", "pause_strategy", None),
-    ("pause_bins", "encode", "pause_bins", None),
-    ("pause_thresholds", "encode", "pause_thresholds",
-     lambda v: _options.parse_float_list(v, "--pause-thresholds")),
-    ("implicit_pauses", "encode", "implicit_pauses",
-     lambda v: [x.strip() for x in (v or "").split(",") if x.strip()]),
-    ("unit", "encode", "unit", None),
-    ("session_gap", "encode", "session_gap", None),
-    ("min_support", "mine", "min_support", None),
-    ("min_length", "mine", "min_length", None),
-    ("max_length", "mine", "max_length", None),
-    ("max_gap", "mine", "max_gap", lambda v: None if v < 0 else v),
-    ("max_window", "mine", "max_window", None),
-    ("count_pauses", "mine", "skip_pauses", lambda v: not v),
-    ("max_patterns", "mine", "max_patterns", None),
-    ("correction", "contrast", "correction", None),
-    ("permutations", "contrast", "n_permutations", None),
-    ("alpha", "contrast", "alpha", None),
-    ("folds", "validate", "folds", None),
-    ("no_phases", "phases", "enabled", lambda v: not v),
-    ("no_validate", "validate", "enabled", lambda v: not v),
-    ("no_examples", "report", "examples", lambda v: not v),
-    ("pseudonymize", "privacy", "pseudonymize_key", None),
-]
+               "then the flags given here; every flag sets the configuration key it is "
+               "named after (--permutations: [contrast] n_permutations, --bootstrap: "
+               "[contrast] n_bootstrap, --splits: [validate] n_splits).")
 
 
 def add_arguments(p):
     p.add_argument("events", metavar="EVENTS", help="event log (CSV, TSV, Parquet, JSONL or xAPI JSON)")
     p.add_argument("--out", required=True, metavar="DIR", help="output folder (created)")
     p.add_argument("--config", metavar="FILE", default=None, help="TOML file with options")
-    p.add_argument("--seed", type=int, default=None, help="random seed (default: 20261202)")
-    p.add_argument("--jobs", type=int, default=None, help="parallel processes (default: 1)")
-    p.add_argument("--scheduler", metavar="ADDRESS", default=None,
-                   help="run the parallel parts on a Dask cluster: tcp://host:8786, or 'local' "
-                        "for a local cluster with --jobs workers (needs "
-                        "pip install \"seqmine[distributed]\")")
-    p.add_argument("--pseudonymize", metavar="KEY_FILE", default=None,
-                   help="replace learner identifiers in every output by a keyed hash")
+    _options.add_execution_options(p)
+    _options.add_privacy_option(p)
     _options.add_event_options(p)
     _options.add_outcome_options(p)
     _options.add_encoding_options(p)
-    g = p.add_argument_group("mining and statistics")
-    g.add_argument("--min-support", type=float, default=0.2,
-                   help="minimum share of a group's sequences (default: 0.2)")
-    g.add_argument("--min-length", type=int, default=2, help="shortest pattern (default: 2)")
-    g.add_argument("--max-length", type=int, default=4, help="longest pattern (default: 4)")
-    g.add_argument("--max-gap", type=int, default=0,
-                   help="tokens allowed between pattern items; -1 = unlimited (default: 0, "
-                        "i.e. consecutive)")
-    g.add_argument("--max-window", type=int, default=None, help="longest span in tokens")
-    g.add_argument("--count-pauses", action="store_true",
-                   help="pause tokens count in gaps (default: they do not, so 'a > b' also "
-                        "matches a, pause, b)")
-    g.add_argument("--max-patterns", type=int, default=200_000,
-                   help="stop when more patterns would be mined (default: 200000)")
-    g.add_argument("--correction", choices=["bh", "holm", "westfall-young"], default="bh",
-                   help="multiple-comparison control (default: bh)")
-    g.add_argument("--permutations", type=int, default=1000,
-                   help="permutations for westfall-young (default: 1000)")
-    g.add_argument("--alpha", type=float, default=0.05, help="significance level (default: 0.05)")
-    g.add_argument("--folds", type=int, default=5, help="cross-validation folds (default: 5)")
-    g.add_argument("--no-phases", action="store_true", help="skip the hidden Markov models")
-    g.add_argument("--no-validate", action="store_true", help="skip the early-prediction check")
-    g.add_argument("--no-examples", action="store_true",
-                   help="no log excerpts in the report")
+    _options.add_mining_options(p)
+    g = _options.add_contrast_options(p)
+    add_option(g, "transitions", "exclude_pauses", action=argparse.BooleanOptionalAction,
+               help="transitions skip pause tokens (default: {default})")
+    g = p.add_argument_group("later stages")
+    add_option(g, "validate", "n_splits", type=int, metavar="K",
+               help="learner folds of the early-prediction check (default: {default})")
+    add_option(g, "validate", "n_repeats", type=int, metavar="R",
+               help="repetitions of the fold split, each with a fresh shuffle "
+                    "(default: {default})")
+    add_option(g, "phases", "enabled", action="store_true", default=False,
+               to_config=lambda v: not v, help="skip the hidden Markov models")
+    add_option(g, "validate", "enabled", action="store_true", default=False,
+               to_config=lambda v: not v, help="skip the early-prediction check")
+    add_option(g, "report", "examples", action=argparse.BooleanOptionalAction,
+               help="log excerpts in the report (default: {default})")
     # A flag overrides the configuration only when it is given: no parser defaults.
     keep = {"help", "events", "out", "outcomes", "config", "debug", "quiet"}
     for action in p._actions:
         if action.dest not in keep:
             action.default = argparse.SUPPRESS
+    p.set_defaults(_config_flags=[(a.dest, a.config_key, a.to_config) for a in p._actions
+                                  if hasattr(a, "config_key")])
 
 
-def config_from_args(args, parser_defaults):
+def config_from_args(args):
     """Defaults < --config file < flags given on the command line."""
     cfg = load_config(args.config) if getattr(args, "config", None) else default_config()
     over = {}
-    for dest, section, key, conv in _FLAG_TO_CONFIG:
+    for dest, (section, key), conv in args._config_flags:
         if not hasattr(args, dest):  # not given on the command line
             continue
         value = getattr(args, dest)
-        over.setdefault(section, {})[key] = conv(value) if conv else value
-    for key in ("seed", "jobs", "scheduler"):
-        if getattr(args, key, None) is not None:
-            over[key] = getattr(args, key)
+        value = conv(value) if conv else value
+        if section is None:
+            over[key] = value
+        else:
+            over.setdefault(section, {})[key] = value
     return merge_config(cfg, over, source="command line")
 
 
 def run(args):
     from ...pipeline import analyze
-    cfg = config_from_args(args, args._defaults)
+    cfg = config_from_args(args)
     result = analyze(args.events, args.outcomes, args.out, cfg, quiet=args.quiet)
     if not args.quiet:
         print(result.message())

@@ -2,12 +2,14 @@
 
 from __future__ import annotations
 
+import argparse
 from pathlib import Path
 
 from ..._util.csvio import write_csv
 from ..._util.progress import is_quiet
-from ...config import CONTRAST_CORRECTIONS
 from ...errors import DataFileError, ParameterError
+from . import _options
+from ._options import add_option
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run", "read_patternset"]
 
@@ -18,7 +20,7 @@ DESCRIPTION = (
     "separates the outcome groups: per-group support and rate, Fisher's exact test on "
     "presence, Mann-Whitney U on rates, effect sizes, multiple-comparison control "
     "(Benjamini-Hochberg, Holm or a Westfall-Young permutation test), bootstrap stability "
-    "and redundancy marks. With --transitions (needs --seqdb) also writes the lag-1 "
+    "and redundancy marks. With --transitions (needs --sequences) also writes the lag-1 "
     "transition table with adjusted residuals. Findings are correlational."
 )
 
@@ -27,61 +29,48 @@ def add_arguments(parser):
     """Options of ``seqmine contrast``."""
     parser.add_argument("patterns", metavar="PATTERNS_DIR",
                         help="pattern set folder written by 'seqmine mine' (or its .csv table)")
-    parser.add_argument("--seqdb", metavar="DIR", default=None,
-                        help="sequence database folder the patterns were mined on (gives "
-                             "sequence lengths for rates; needed for --transitions)")
+    _options.add_sequences_option(parser, positional=False, required=False)
     parser.add_argument("--out", required=True, metavar="CSV", help="contrast table to write")
     parser.add_argument("--transitions", metavar="CSV", default=None,
-                        help="also write the lag-1 transition table here")
+                        help="also write the lag-1 transition table here (needs --sequences)")
     parser.add_argument("--pairwise", metavar="CSV", default=None,
                         help="with more than two groups, also write pairwise comparisons here")
     parser.add_argument("--groups", metavar="A,B", default=None,
                         help="comma-separated group names to compare (default: all groups)")
-    parser.add_argument("--correction", choices=CONTRAST_CORRECTIONS, default="bh",
-                        help="multiple-comparison control of q_value (default bh)")
-    parser.add_argument("--alpha", type=float, default=0.05, metavar="A",
-                        help="level for 'favours' and stability (default 0.05)")
-    parser.add_argument("--permutations", type=int, default=1000, metavar="N",
-                        help="label permutations for westfall-young (default 1000)")
-    parser.add_argument("--seed", type=int, default=0, metavar="S",
-                        help="seed of permutations and resamples (default 0)")
-    parser.add_argument("--stability-resamples", type=int, default=100, metavar="N",
-                        help="bootstrap resamples for the stability column, 0 = skip "
-                             "(default 100)")
-    parser.add_argument("--redundancy", default="0.9", metavar="J",
-                        help="Jaccard threshold for redundancy marks, or 'none' (default 0.9)")
-    parser.add_argument("--redundancy-order", choices=("significance", "length"),
-                        default="significance",
-                        help="which of two near-duplicates is kept (default significance)")
-    parser.add_argument("--drop-redundant", action="store_true",
-                        help="leave redundant patterns out of the table")
-    parser.add_argument("--rate-unit", choices=("tokens", "actions", "count"), default=None,
-                        help="rates per 100 tokens, per 100 actions or raw counts (default: "
-                             "tokens with --seqdb, else count)")
-    parser.add_argument("--unit", choices=("sequence", "learner"), default="sequence",
-                        help="unit of analysis; 'learner' merges each learner's sessions "
-                             "first (needs --seqdb; default sequence)")
-    parser.add_argument("--exclude-pauses", action="store_true",
-                        help="transitions skip pause tokens")
+    _options.add_execution_options(parser, scheduler=False)
+    g = _options.add_contrast_options(parser)
+    g.add_argument("--redundancy-order", choices=("significance", "length"),
+                   default="significance",
+                   help="which of two near-duplicates is kept (default: significance)")
+    g.add_argument("--drop-redundant", action="store_true",
+                   help="leave redundant patterns out of the table")
+    g.add_argument("--rate-unit", choices=("tokens", "actions", "count"), default=None,
+                   help="rates per 100 tokens, per 100 actions or raw counts (default: "
+                        "tokens with --sequences, else count)")
+    g.add_argument("--unit", choices=("sequence", "learner"), default="sequence",
+                   help="unit of analysis; 'learner' merges each learner's sessions first "
+                        "(needs --sequences; default: sequence)")
+    add_option(g, "transitions", "exclude_pauses", action=argparse.BooleanOptionalAction,
+               help="transitions skip pause tokens (default: {default})")
 
 
 def run(args):
+    """Run ``seqmine contrast`` (quiet mode is set by the command line per call)."""
     from ...encoding.sequences import SequenceDB
     from ...scoring.contrast import contrast, pairwise_contrast
     from ...scoring.transitions import transitions
-    """Run ``seqmine contrast`` (quiet mode is set by the command line per call)."""
     ps = read_patternset(args.patterns)
-    db = SequenceDB.load(args.seqdb) if args.seqdb else None
+    db = SequenceDB.load(args.sequences) if args.sequences else None
     if args.transitions and db is None:
-        raise ParameterError("--transitions needs --seqdb DIR (the sequence database folder).")
-    redundancy = _redundancy(args.redundancy)
+        raise ParameterError("--transitions needs --sequences DIR (the sequence database "
+                             "folder).")
     groups = [g.strip() for g in args.groups.split(",")] if args.groups else None
     table = contrast(ps, db, groups=groups, correction=args.correction, alpha=args.alpha,
-                     n_permutations=args.permutations, seed=args.seed,
-                     stability_resamples=args.stability_resamples, redundancy=redundancy,
+                     n_permutations=args.permutations, random_state=args.seed,
+                     n_bootstrap=args.bootstrap, redundancy=args.redundancy,
                      redundancy_order=args.redundancy_order,
                      drop_redundant=args.drop_redundant, rate_unit=args.rate_unit,
-                     unit=args.unit)
+                     unit=args.unit, n_jobs=args.jobs)
     out = _writable(args.out, "--out")
     write_csv(table, out)
     messages = [f"wrote {len(table)} patterns to {out} "
@@ -108,26 +97,15 @@ def run(args):
 
 
 def read_patternset(path):
-    from ...mining.miner import load_patternset
     """Read a pattern set folder written by ``seqmine mine`` (or the path of its CSV)."""
+    from ...mining.miner import load_patternset
     folder = Path(path)
     if folder.suffix.lower() == ".csv":
         folder = folder.parent
     if not folder.exists():
         raise DataFileError(f"{folder}: no such pattern set folder; create it with "
-                            f"'seqmine mine SEQDB_DIR --out {folder}'.")
+                            f"'seqmine mine SEQUENCES_DIR --out {folder}'.")
     return load_patternset(folder)
-
-
-def _redundancy(text):
-    t = str(text).strip().lower()
-    if t in ("none", "off", "0"):
-        return None
-    try:
-        return float(t)
-    except ValueError:
-        raise ParameterError(f"--redundancy must be a Jaccard threshold in (0, 1] such as 0.9, "
-                             f"or 'none'. Got {text!r} instead.") from None
 
 
 def _writable(path, option):

@@ -6,7 +6,7 @@ import tempfile
 from pathlib import Path
 
 from ...config import default_config
-from ._options import print_warnings
+from ._options import add_option, print_warnings
 
 NAME = "demo"
 HELP = "run the whole pipeline on the shipped greenhouse demo data"
@@ -23,14 +23,15 @@ SHIPPED = Path(__file__).resolve().parents[2] / "datasets" / "greenhouse"
 def add_arguments(p):
     p.add_argument("--out", default="seqmine-demo", metavar="DIR",
                    help="output folder (default: ./seqmine-demo)")
-    p.add_argument("--jobs", type=int, default=1, help="parallel processes (default: 1)")
+    add_option(p, None, "n_jobs", type=int, metavar="N",
+               help="parallel processes, -1 = all cores (default: {default})")
 
 
 def run(args):
     from ...demo_data import EVENTS_FILE, OUTCOMES_FILE, write_greenhouse
     from ...pipeline import analyze
     cfg = default_config()
-    cfg["jobs"] = args.jobs
+    cfg["n_jobs"] = args.jobs
     if (SHIPPED / EVENTS_FILE).is_file() and (SHIPPED / OUTCOMES_FILE).is_file():
         result = analyze(SHIPPED / EVENTS_FILE, SHIPPED / OUTCOMES_FILE, args.out, cfg,
                          quiet=args.quiet)

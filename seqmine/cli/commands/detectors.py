@@ -7,8 +7,9 @@ import json
 from pathlib import Path
 
 from ..._util.progress import is_quiet
-from ...errors import DataFileError, ParameterError
-from ._options import number_or_word
+from ...errors import DataFileError, OptionValueError
+from . import _options
+from ._options import add_option
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -32,65 +33,64 @@ def add_arguments(parser):
     """Options of ``seqmine detectors``."""
     parser.add_argument("table", metavar="CONTRAST_CSV",
                         help="contrast table (patterns.csv) written by 'seqmine contrast'")
-    parser.add_argument("--sequences", "--seqdb", dest="sequences", required=True, metavar="DIR",
-                        help="sequence database folder written by 'seqmine encode' (its "
-                             "encoding is copied into the detectors file)")
+    _options.add_sequences_option(parser, positional=False)
     parser.add_argument("--patterns", metavar="DIR", default=None,
                         help="pattern set folder written by 'seqmine mine' (gives the matching "
                              "constraints; default: a patternset.json beside the table)")
     parser.add_argument("--out", required=True, metavar="JSON", help="detectors file to write")
     g = parser.add_argument_group("selection")
-    g.add_argument("--max-q", type=float, default=0.05, metavar="Q",
-                   help="largest q value kept (default 0.05)")
-    g.add_argument("--effect", default="cohens_h", metavar="COLUMN",
-                   help="effect-size column for filtering and ranking (default cohens_h)")
-    g.add_argument("--min-effect", type=float, default=0.2, metavar="E",
-                   help="smallest |effect| kept (default 0.2, Cohen's 'small' h)")
-    g.add_argument("--min-stability", type=float, default=0.5, metavar="S",
-                   help="smallest stability kept, 0 = no check (default 0.5)")
+    add_option(g, "detectors", "max_q", type=float, metavar="Q",
+               help="largest q value kept (default: {default})")
+    add_option(g, "detectors", "effect", metavar="COLUMN",
+               help="effect-size column for filtering and ranking (default: {default})")
+    add_option(g, "detectors", "min_effect", type=float, metavar="E",
+               help="smallest |effect| kept (default: {default}, Cohen's 'small' h)")
+    add_option(g, "detectors", "min_stability", type=float, metavar="S",
+               help="smallest stability kept, 0 = no check (default: {default})")
     g.add_argument("--min-length", type=int, default=None, metavar="N")
     g.add_argument("--max-length", type=int, default=None, metavar="N")
     g.add_argument("--favours", default=None, metavar="GROUPS",
                    help="comma-separated groups whose patterns are kept (default: all)")
-    g.add_argument("--max-detectors", type=int, default=50, metavar="N",
-                   help="most detectors written (default 50)")
+    add_option(g, "detectors", "max_detectors", type=_options.int_or_none, metavar="N",
+               help="most detectors written, or 'none' (default: {default})")
     g.add_argument("--keep-redundant", action="store_true",
                    help="keep patterns contained in (or containing) a better one")
     g.add_argument("--strong-group", default=None, metavar="NAME",
                    help="name of the strong group (default: 'strong' or the first group)")
     g.add_argument("--weak-group", default=None, metavar="NAME",
                    help="name of the weak group (default: 'weak' or the second group)")
-    g.add_argument("--encourage-share", default=0.5, metavar="S",
-                   type=number_or_word("--encourage-share", float, minimum=0, maximum=1),
-                   help="share of the detectors that encourage (patterns of the strong "
-                        "group), 0-1; slots one direction cannot fill go to the other; "
-                        "'none' = no balance (default 0.5)")
-    g.add_argument("--no-examples", dest="examples", action="store_false",
-                   help="leave out the short example excerpt of each detector")
+    add_option(g, "detectors", "encourage_share", type=_options.float_or_none, metavar="S",
+               help="share of the detectors that encourage (patterns of the strong group), "
+                    "0-1; slots one direction cannot fill go to the other; 'none' = no "
+                    "balance (default: {default})")
+    add_option(g, "detectors", "examples", action=argparse.BooleanOptionalAction,
+               help="one short example excerpt per detector (default: {default})")
     g = parser.add_argument_group("matching and absence rules")
     g.add_argument("--max-gap", type=_opt_int, default=argparse.SUPPRESS, metavar="N",
-                   help="override the pattern set's max gap ('none' = unlimited)")
+                   help="override the pattern set's max gap ('none' = no limit)")
     g.add_argument("--max-window", type=_opt_int, default=argparse.SUPPRESS, metavar="N",
-                   help="override the pattern set's max window ('none' = unlimited)")
-    g.add_argument("--skip-pauses", choices=("yes", "no"), default=None,
-                   help="override whether pauses count toward gaps and windows")
-    g.add_argument("--absence-events", default="auto", metavar="N",
-                   type=number_or_word("--absence-events", int, minimum=1,
-                                       words={"auto": "auto", "off": None, "none": None}),
+                   help="override the pattern set's max window ('none' = no limit)")
+    g.add_argument("--skip-pauses", action=argparse.BooleanOptionalAction, default=None,
+                   help="override whether pause tokens count toward gaps and windows "
+                        "(default: as the pattern set was mined)")
+    g.add_argument("--absence-events", type=_absence_events, default="auto", metavar="N",
                    help="encourage detectors hint when the pattern has not been shown after "
-                        "N events of a sequence; 'auto' (default) takes, per detector, the "
-                        "point by which 3 in 4 learners of the strong group who showed it "
-                        "had shown it; 'off' switches it off")
+                        "N events of a sequence; 'auto' (default) sets it per detector from "
+                        "the data (see --absence-quantile); 'none' switches it off")
+    add_option(g, "detectors", "absence_quantile", type=float, metavar="Q",
+               help="with --absence-events auto: the point by which this share of the "
+                    "strong group's learners who showed the pattern had shown it "
+                    "(default: {default})")
     g.add_argument("--absence-seconds", type=float, default=None, metavar="S",
                    help="... or after S seconds of a sequence (default: off)")
 
 
 def run(args):
+    """Run ``seqmine detectors``."""
     import pandas as pd
 
     from ...detection.detectors import export_detectors, save_detectors
     from ...encoding.sequences import SequenceDB
-    """Run ``seqmine detectors``."""
     table_path = Path(args.table)
     if not table_path.is_file():
         raise DataFileError(f"{table_path}: contrast table not found; create it with "
@@ -112,7 +112,8 @@ def run(args):
         max_detectors=args.max_detectors, drop_redundant=not args.keep_redundant,
         strong=args.strong_group, weak=args.weak_group,
         encourage_share=args.encourage_share, examples=args.examples,
-        absence_after_events=args.absence_events, absence_after_seconds=args.absence_seconds)
+        absence_after_events=args.absence_events, absence_quantile=args.absence_quantile,
+        absence_after_seconds=args.absence_seconds)
     doc["selection"].update(source=str(table_path), constraints_from=source)
     out = save_detectors(doc, args.out)
     if not is_quiet():
@@ -123,16 +124,20 @@ def run(args):
     return 0
 
 
+def _absence_events(text):
+    """``auto``, ``none`` or a whole number of events >= 1."""
+    if str(text).strip().lower() == "auto":
+        return "auto"
+    v = _options.int_or_none(text)
+    if v is not None and v < 1:
+        raise OptionValueError(f"expected a whole number >= 1, 'auto' or 'none'; got {text!r}")
+    return v
+
+
 def _opt_int(text):
-    t = str(text).strip().lower()
-    if t in ("none", "off"):
-        return None
-    try:
-        v = int(t)
-    except ValueError:
-        raise ParameterError(f"Expected a whole number or 'none'. Got {text!r} instead.") from None
-    if v < 0:
-        raise ParameterError(f"Expected a whole number >= 0 or 'none'. Got {text!r} instead.")
+    v = _options.int_or_none(text)
+    if v is not None and v < 0:
+        raise OptionValueError(f"expected a whole number >= 0 or 'none'; got {text!r}")
     return v
 
 
@@ -162,5 +167,5 @@ def _constraints(args, table_path):
     if hasattr(args, "max_window"):
         out["max_window"] = args.max_window
     if args.skip_pauses is not None:
-        out["skip_pauses"] = args.skip_pauses == "yes"
+        out["skip_pauses"] = bool(args.skip_pauses)
     return out, source

@@ -6,6 +6,9 @@ import sys
 from pathlib import Path
 
 from ..._util.progress import is_quiet
+from ...config import DEFAULT_CONFIG
+from . import _options
+from ._options import add_option
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -20,24 +23,23 @@ DESCRIPTION = (
 
 
 def add_arguments(parser):
-    """Options of ``seqmine phases``."""
-    parser.add_argument("seqdb", metavar="SEQDB_DIR",
-                        help="sequence database folder written by 'seqmine encode'")
+    """Options of ``seqmine phases`` (defaults: the ``[phases]`` configuration section)."""
+    _options.add_sequences_option(parser)
     parser.add_argument("--out", required=True, metavar="DIR",
                         help="output folder; results go to DIR/phases/")
-    parser.add_argument("--states", default="2-6", metavar="RANGE",
-                        help="state counts to try: '3', '2-6' or '2,3,5' (default 2-6)")
-    parser.add_argument("--restarts", type=int, default=5, metavar="N",
-                        help="Baum-Welch restarts per fit (default 5)")
-    parser.add_argument("--seed", type=int, default=0, metavar="S", help="random seed (default 0)")
-    parser.add_argument("--jobs", type=int, default=1, metavar="N",
-                        help="parallel workers; results equal the serial run (default 1)")
-    parser.add_argument("--criterion", choices=("bic", "heldout"), default="bic",
-                        help="how the state count is chosen (default bic)")
-    parser.add_argument("--folds", type=int, default=3, metavar="K",
-                        help="learner folds for the held-out log-likelihood; 0 = off (default 3)")
-    parser.add_argument("--permutations", type=int, default=19, metavar="N",
-                        help="label permutations for the model-distance reference (default 19)")
+    ph = DEFAULT_CONFIG["phases"]
+    parser.add_argument("--states", default=f"{ph['min_states']}-{ph['max_states']}",
+                        metavar="RANGE",
+                        help="state counts to try: '3', '2-6' or '2,3,5' (default: %(default)s)")
+    add_option(parser, "phases", "n_restarts", type=int, metavar="N",
+               help="Baum-Welch restarts per fit (default: {default})")
+    _options.add_execution_options(parser, scheduler=False)
+    add_option(parser, "phases", "criterion", choices=("bic", "heldout"),
+               help="how the state count is chosen (default: {default})")
+    add_option(parser, "phases", "n_splits", type=int, metavar="K",
+               help="learner folds for the held-out log-likelihood; 0 = off (default: {default})")
+    add_option(parser, "phases", "n_permutations", type=int, metavar="N",
+               help="label permutations for the model-distance reference (default: {default})")
 
 
 def run(args):
@@ -45,10 +47,10 @@ def run(args):
     from ...encoding.sequences import SequenceDB
     from ...phases import fit_phases
 
-    db = SequenceDB.load(args.seqdb)
-    result = fit_phases(db, n_states=args.states, n_restarts=args.restarts, seed=args.seed,
-                        n_jobs=args.jobs, criterion=args.criterion, n_folds=args.folds,
-                        n_permutations=args.permutations)
+    db = SequenceDB.load(args.sequences)
+    result = fit_phases(db, n_states=args.states, n_restarts=args.restarts,
+                        random_state=args.seed, n_jobs=args.jobs, criterion=args.criterion,
+                        n_splits=args.splits, n_permutations=args.permutations)
     folder = result.save(Path(args.out) / "phases")
     if not is_quiet():
         msg = [f"phases: {result.n_states} states ({result.params['criterion']}), "

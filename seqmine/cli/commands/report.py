@@ -2,7 +2,10 @@
 
 from __future__ import annotations
 
+import argparse
+
 from ...errors import ParameterError
+from ._options import add_option
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -20,18 +23,18 @@ DESCRIPTION = (
 def add_arguments(parser):
     """Options of ``seqmine report``."""
     parser.add_argument("out_dir", metavar="OUT_DIR", help="output folder of 'seqmine analyze'")
-    parser.add_argument("--no-examples", dest="examples", action="store_false",
-                        help="leave example excerpts from the log out of the report")
-    parser.add_argument("--max-patterns", type=int, default=12, metavar="N",
-                        help="differential patterns shown in detail (default: 12)")
-    parser.add_argument("--explorer-rows", type=int, default=5000, metavar="N",
-                        help="most patterns placed in the pattern explorer, the most reliable "
-                             "first; patterns.csv has them all (default: 5000)")
+    add_option(parser, "report", "examples", action=argparse.BooleanOptionalAction,
+               help="example excerpts from the log in the report (default: {default})")
+    add_option(parser, "report", "max_patterns", type=int, metavar="N",
+               help="differential patterns shown in detail (default: {default})")
+    add_option(parser, "report", "explorer_rows", type=int, metavar="N",
+               help="most patterns placed in the pattern explorer, the most reliable first; "
+                    "patterns.csv has them all (default: {default})")
 
 
 def run(args):
-    from ...reporting.render import render_report
     """Render the report and print where it is."""
+    from ...reporting.render import render_report
     if args.max_patterns < 1:
         raise ParameterError(
             f"--max-patterns must be a whole number of at least 1. Got {args.max_patterns}.")

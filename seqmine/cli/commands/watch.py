@@ -8,7 +8,7 @@ import sys
 from pathlib import Path
 
 from ...errors import DataFileError, ParameterError
-from ._options import number_or_word
+from . import _options
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -51,12 +51,11 @@ def add_arguments(parser):
                         help="print only firings whose hint is delivered (not suppressed)")
     parser.add_argument("--encourage-hints", action="store_true",
                         help="deliver completed encourage patterns as hints too (e.g. praise)")
-    parser.add_argument("--max-absence-hints", default=2, metavar="N",
-                        type=number_or_word("--max-absence-hints", int, minimum=0),
+    parser.add_argument("--max-absence-hints", type=_options.int_or_none, default=2,
+                        metavar="N",
                         help="most hints per sequence from encourage detectors whose pattern "
-                             "is missing (absence rules); 'none' = no limit (default 2)")
-    parser.add_argument("--keep-duplicates", action="store_true",
-                        help="process exact duplicate events instead of rejecting them")
+                             "is missing (absence rules); 'none' = no limit (default: 2)")
+    _options.add_duplicates_option(parser, what="exact duplicate events")
     parser.add_argument("--times", choices=("auto", "seconds", "iso"), default="auto",
                         help="time format of the output (default: as the input)")
     parser.add_argument("--pseudonymize", metavar="KEY_FILE", default=None,
@@ -68,14 +67,14 @@ def add_arguments(parser):
 
 
 def run(args):
-    from ...detection.watcher import Watcher
     """Run ``seqmine watch``."""
+    from ...detection.watcher import Watcher
     idle = _idle(args.idle_timeout)
     watcher = Watcher(args.detectors, cooldown_seconds=args.cooldown, idle_timeout=idle,
                       out_of_order_tolerance=args.tolerance,
                       hint_on_encourage=args.encourage_hints,
                       max_absence_hints=args.max_absence_hints,
-                      reject_duplicates=not args.keep_duplicates)
+                      reject_duplicates=args.duplicates == "reject")
     pseudo = _pseudonymizer(args.pseudonymize) if args.pseudonymize else None
     err = sys.stderr
     out = sys.stdout
@@ -109,8 +108,8 @@ def run(args):
 
 
 def _loop(stream, name, interactive, watcher, out, err, args, hints_only, pseudo):
-    from ...detection.watcher import EventError
     """Read, process and write every line; bad events get one line on ``err``."""
+    from ...detection.watcher import EventError
     for lineno, line in enumerate(stream, 1):
         if not line.strip():
             continue
