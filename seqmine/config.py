@@ -57,17 +57,19 @@ DEFAULT_CONFIG = {
         "learner_column": "learner", "time_column": "time", "action_column": "action",
         "session_column": "session", "target_column": "target", "channel_column": "channel",
         "format": None, "delimiter": None, "encoding": "utf-8", "duplicates": "reject",
-        "max_bytes": 20_000_000_000,
+        "max_bytes": 20_000_000_000, "time_unit": "auto", "timezone": None,
+        "decimal_comma": False,
     },
     "outcomes": {
         "learner_column": "learner", "pre_column": "pre", "post_column": "post",
         "max_column": "max", "score_column": "score", "label_column": "label",
         "max_score": None, "grouping": None, "fraction": 1 / 3, "low": None, "high": None,
+        "match_ids": "exact",
     },
     "encode": {
         "template": "{action}", "mapping": None, "collapse_repeats": False,
         "pause_strategy": "quantile", "pause_bins": 3, "pause_thresholds": None,
-        "implicit_pauses": ["shortest"], "unit": "learner", "session_gap": None,
+        "implicit_pauses": ["shortest"], "unit": "session", "session_gap": 1800.0,
     },
     "mine": {
         "min_support": 0.2, "min_length": 2, "max_length": 4, "max_gap": 0,
@@ -77,7 +79,7 @@ DEFAULT_CONFIG = {
     },
     "contrast": {
         "correction": "bh", "alpha": 0.05, "n_permutations": 1000,
-        "n_bootstrap": 100, "redundancy": 0.9,
+        "n_bootstrap": 100, "redundancy": 0.9, "unit": "auto",
     },
     "transitions": {"exclude_pauses": False},
     "phases": {"enabled": True, "min_states": 2, "max_states": 5, "n_restarts": 3,
@@ -137,6 +139,7 @@ def load_config(path):
 #: Options that take ``"none"`` (no limit / switched off) besides a number, though their
 #: default is a number; a negative number is refused with a pointer to ``"none"``.
 NONE_ALLOWED = {("mine", "max_gap"), ("mine", "max_length"), ("mine", "max_window"),
+                ("encode", "session_gap"),
                 ("contrast", "redundancy"), ("detectors", "max_detectors")}
 
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 import contextlib
 import os
 import time
+import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -15,17 +16,23 @@ from ._util.csvio import write_csv
 from ._util.jsonio import write_json
 from ._util.progress import quiet_mode, stage_line
 from ._util.warnlog import WarningLog, collect_warnings
-from .errors import DataFileError, ParameterError
-from .inputs.outcomes import Grouping, match_learners
+from .config import DEFAULT_CONFIG
+from .errors import DataFileError, ParameterError, SeqmineWarning
+from .inputs.outcomes import Grouping, match_learners, reconcile_learner_ids
 
-__all__ = ["Prepared", "prepare_sequences", "pseudonymize_inputs", "analyze", "AnalysisResult",
-           "warnings_frame", "MIN_GROUP_LEARNERS"]
+__all__ = ["Prepared", "prepare_sequences", "pseudonymize_inputs", "reconcile_inputs",
+           "analyze", "AnalysisResult", "warnings_frame", "MIN_GROUP_LEARNERS",
+           "LOPSIDED_RATIO", "contrast_unit"]
 
 #: Configuration keys that only say where work runs (left out of summary.json).
 _EXECUTION_KEYS = ("n_jobs", "scheduler")
 
 #: Fewest learners a group may have before the run stops with a message.
 MIN_GROUP_LEARNERS = 2
+
+#: A two-group numeric split whose smaller group has fewer than this share of the
+#: larger group's learners is reported (``lopsided_groups``; our rule).
+LOPSIDED_RATIO = 2 / 3
 
 
 @dataclass
@@ -84,8 +91,12 @@ def prepare_sequences(load_result, outcomes, *, encoder, grouping=None, grouping
                 f"Group {name!r} has {per.get(name, 0)} learner(s) with events (at least "
                 f"{min_group_learners} needed); check the outcomes or choose another "
                 f"--grouping rule.")
+    _warn_about_matching(load_result, outcomes, grouping, report, names)
     db = encoder.fit(load_result.events).transform(load_result.events, groups=mapping,
                                                    group_names=names)
+    if hasattr(load_result, "time_settings"):
+        # how live events must be read to match (the watcher follows it)
+        db.encoding["time"] = load_result.time_settings()
     summary = dict(load_result.summary())
     summary.update({
         "sequences": int(db.n_sequences),
@@ -105,6 +116,9 @@ def prepare_sequences(load_result, outcomes, *, encoder, grouping=None, grouping
         "learners_between_cut_points": len(report["no_group"]),
         "pause_edges_seconds": [float(e) for e in encoder.edges_],
         "pause_labels": list(encoder.labels_),
+        "encoding": dict(db.encoding),
+        "learners_with_several_sequences": int(
+            (pd.Series(db.learners).value_counts() > 1).sum()) if db.n_sequences else 0,
     })
     if "gain" in outcomes.columns:
         g = pd.Series(outcomes["gain"].to_numpy(float), index=outcomes["learner"].to_numpy())
@@ -113,6 +127,67 @@ def prepare_sequences(load_result, outcomes, *, encoder, grouping=None, grouping
     return Prepared(db=db, events=load_result.events, outcomes=outcomes, groups=groups,
                     rejects=load_result.rejects, summary=summary, encoder=encoder,
                     grouping=grouping)
+
+
+def reconcile_inputs(loaded, outcomes, *, match_ids=DEFAULT_CONFIG["outcomes"]["match_ids"],
+                     key=None):
+    """Match learner ids between the files (:func:`reconcile_learner_ids`), then replace
+    them by keyed hashes when ``key`` is given (:func:`pseudonymize_inputs`)."""
+    loaded.events, outcomes = reconcile_learner_ids(
+        loaded.events, outcomes, match_ids, events_source=str(loaded.path or "events"),
+        outcomes_source=str(outcomes.attrs.get("path") or "outcomes"))
+    if match_ids != "exact":
+        loaded.events = loaded.events.sort_values(["learner", "time"], kind="mergesort") \
+            .reset_index(drop=True)
+    if key is not None:
+        loaded, outcomes = pseudonymize_inputs(loaded, outcomes, key)
+    return loaded, outcomes
+
+
+def contrast_unit(unit, db):
+    """The contrast unit: ``"auto"`` is ``"learner"`` when some learner has several
+    sequences (sessions), so each learner counts once, else ``"sequence"``."""
+    if unit != "auto":
+        return unit
+    return "learner" if len(np.unique(db.learners)) < db.n_sequences else "sequence"
+
+
+def _warn_about_matching(load_result, outcomes, grouping, report, names):
+    """``learners_without_events``, ``learners_without_outcome`` and ``lopsided_groups``."""
+    ev_path = str(getattr(load_result, "path", "") or "the events")
+    oc_path = str(outcomes.attrs.get("path") or "the outcomes")
+    for ids, code, text in (
+            (report["outcomes_without_events"], "learners_without_events",
+             "learner(s) in {oc} have no usable events in {ev} (e.g. {ex}); they take no "
+             "part in the analysis. Check the ids and rejects.csv."),
+            (report["events_without_outcome"], "learners_without_outcome",
+             "learner(s) with events in {ev} have no row in {oc} (e.g. {ex}); their events "
+             "are encoded but belong to no group.")):
+        if ids:
+            ex = ", ".join(repr(str(x)) for x in ids[:3])
+            warnings.warn(SeqmineWarning(
+                f"{len(ids):,} " + text.format(oc=oc_path, ev=ev_path, ex=ex),
+                code=code, count=len(ids)), stacklevel=3)
+    per = report["learners_per_group"]
+    if grouping.rule in ("median", "fraction") and len(names) == 2:
+        sizes = [per.get(n, 0) for n in names]
+        if max(sizes) and min(sizes) < LOPSIDED_RATIO * max(sizes):
+            cut = getattr(grouping, "thresholds_", {})
+            value = "gain" if "gain" in outcomes.columns else "score"
+            ties = ""
+            if value in outcomes.columns and cut:
+                v = outcomes[value].to_numpy(float)
+                n_tied = int(np.sum(np.isin(v, [cut["low"], cut["high"]])))
+                if n_tied > 1:
+                    ties = (f"; {n_tied} learners share the cut point "
+                            f"{cut['low']:g}{'' if cut['low'] == cut['high'] else ' or ' + format(cut['high'], 'g')}"
+                            f" and the rule puts them all on one side")
+            warnings.warn(SeqmineWarning(
+                f"The {grouping.rule} split gives groups of unequal size ("
+                + ", ".join(f"{n} {k}" for n, k in zip(names, sizes))
+                + f" learners with events){ties}; consider --grouping thresholds with cut "
+                f"points of your own, or a finer outcome.",
+                code="lopsided_groups", count=max(sizes) - min(sizes)), stacklevel=3)
 
 
 def pseudonymize_inputs(loaded, outcomes, key):
@@ -327,13 +402,15 @@ def _analyze(events_path, outcomes_path, out_dir, cfg, *, log):
                ("learner", "time", "action", "session", "target", "channel")}
     loaded = load_events(events_path, columns=columns, format=ev_cfg["format"],
                          delimiter=ev_cfg["delimiter"], encoding=ev_cfg["encoding"],
-                         duplicates=ev_cfg["duplicates"], max_bytes=ev_cfg["max_bytes"])
+                         duplicates=ev_cfg["duplicates"], max_bytes=ev_cfg["max_bytes"],
+                         time_unit=ev_cfg["time_unit"], timezone=ev_cfg["timezone"],
+                         decimal_comma=ev_cfg["decimal_comma"])
     outcomes = load_outcomes(outcomes_path, columns={
         k: oc_cfg[f"{k}_column"] for k in ("learner", "pre", "post", "max", "score", "label")},
-        max_score=oc_cfg["max_score"])
+        max_score=oc_cfg["max_score"], decimal_comma=ev_cfg["decimal_comma"])
     key_path = cfg["privacy"]["pseudonymize_key"]
-    if key_path:
-        loaded, outcomes = pseudonymize_inputs(loaded, outcomes, read_key(key_path))
+    loaded, outcomes = reconcile_inputs(loaded, outcomes, match_ids=oc_cfg["match_ids"],
+                                        key=read_key(key_path) if key_path else None)
 
     # 2. group and encode
     rule = oc_cfg["grouping"] or ("label" if outcomes.attrs.get("outcome_kind") == "label"
@@ -366,10 +443,11 @@ def _analyze(events_path, outcomes_path, out_dir, cfg, *, log):
                           maximal=mine_cfg["maximal"], max_patterns=mine_cfg["max_patterns"])
         save_patternset(patternset, out / "patternset")
     with stages("scoring patterns"):
+        unit = contrast_unit(con_cfg.get("unit", "auto"), db)
         table = contrast(patternset, db, correction=con_cfg["correction"], alpha=con_cfg["alpha"],
                          n_permutations=con_cfg["n_permutations"], random_state=seed,
                          n_bootstrap=con_cfg["n_bootstrap"], redundancy=con_cfg["redundancy"],
-                         n_jobs=jobs, scheduler=scheduler)
+                         n_jobs=jobs, scheduler=scheduler, unit=unit)
         table = _order_patterns(table)
         write_csv(table, out / "patterns.csv")
         files.append(out / "patterns.csv")
@@ -385,9 +463,9 @@ def _analyze(events_path, outcomes_path, out_dir, cfg, *, log):
         "patterns_significant_distinct": int((significant["redundant_of"].fillna("") == "").sum())
         if "redundant_of" in significant else int(len(significant)),
         "method": {
-            "presence_test": "Fisher's exact test (two-sided) on presence per sequence",
+            "presence_test": f"Fisher's exact test (two-sided) on presence per {unit}",
             "rate_test": "Mann-Whitney U on occurrences per 100 tokens",
-            "correction": con_cfg["correction"], "alpha": alpha,
+            "correction": con_cfg["correction"], "alpha": alpha, "unit": unit,
             "n_permutations": int(con_cfg["n_permutations"]),
             "n_bootstrap": int(con_cfg["n_bootstrap"]),
             "min_support": mine_cfg["min_support"], "max_length": mine_cfg["max_length"],

@@ -430,7 +430,10 @@ def test_learner_unit_merges_sessions():
     db = _session_db()
     ps = brute_patternset(db, PATTERNS)
     with pytest.warns(SeqmineWarning, match="Some learners have several sequences"):
-        contrast(ps, db, n_bootstrap=0)
+        contrast(ps, db, n_bootstrap=0, unit="sequence")
+    # the default (unit="auto") merges a learner's sessions: each learner counts once
+    pd.testing.assert_frame_equal(contrast(ps, db, n_bootstrap=0),
+                                  contrast(ps, db, n_bootstrap=0, unit="learner"))
     got = contrast(ps, db, unit="learner", n_bootstrap=20, correction="westfall-young",
                    n_permutations=50)
     # reference: merge by hand, loop over learners

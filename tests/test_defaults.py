@@ -70,7 +70,11 @@ API_DEFAULTS = [
       for k in DEFAULT_CONFIG["detectors"] if k not in _EXPORT_ONLY],
     *[("encoding.encoder.Encoder", k, "encode", k) for k in DEFAULT_CONFIG["encode"]],
     *[("inputs.load.load_events", k, "events", k) for k in
-      ("format", "delimiter", "encoding", "duplicates", "max_bytes")],
+      ("format", "delimiter", "encoding", "duplicates", "max_bytes", "time_unit", "timezone",
+       "decimal_comma")],
+    ("inputs.outcomes.load_outcomes", "decimal_comma", "events", "decimal_comma"),
+    ("inputs.outcomes.reconcile_learner_ids", "match_ids", "outcomes", "match_ids"),
+    ("pipeline.reconcile_inputs", "match_ids", "outcomes", "match_ids"),
     *[("inputs.outcomes.Grouping", k, "outcomes", k) for k in ("fraction", "low", "high")],
     *[("reporting.render.render_report", k, "report", k) for k in ("examples", "max_patterns",
                                                                     "explorer_rows")],

@@ -119,6 +119,6 @@ def test_export_detectors_matches_the_two_steps(run_dir):
     ex = doc["detectors"][1]["example"]
     assert ex["group"] == "strong" and [e["token"] for e in ex["events"] if e["matched"]] == [
         "set_light", "advance_week", "measure_height", "pause:long"]
-    assert doc["detectors"][1]["pause_seconds"] == {"pause:long": [30.0, None]}
+    assert doc["detectors"][1]["evidence"]["pause_ranges"] == {"pause:long": "30 s or more"}
     assert "long pause (30 s or more)" in doc["detectors"][1]["hint"]
     assert doc["selection"]["max_q"] == 0.05 and doc["selection"]["effect"] == "cohens_h"

@@ -15,14 +15,15 @@ File layout (version 1)::
     {"format": "seqmine-detectors", "version": 1,
      "notice": "...",
      "encoding": {template, mapping, collapse_repeats, unit, session_gap,
-                  pause: {strategy, edges, labels, implicit, ...}},
+                  pause: {strategy, edges, labels, implicit, ...},
+                  time: {unit: "s"|"ms"|"us", timezone: IANA name|null}},
      "vocabulary": [action symbols seen offline],
      "matching": {"max_gap": int|null, "max_window": int|null, "skip_pauses": bool},
      "groups": {"names": [...], "strong": str, "weak": str, "sizes": {name: int}},
      "selection": {the filters used},
      "detectors": [{"id", "tokens", "direction", "favours", "evidence", "hint",
                     "priority", "absence": {"after_events", "after_seconds"} | null,
-                    "enabled", "notes", "pause_seconds", "example"}]}
+                    "enabled", "notes", "example"}]}
 
 Priority: a smaller number is delivered first (1 = most important).
 
@@ -39,8 +40,8 @@ Hints worth piloting
 * **Contents.** Each detector's ``evidence`` holds the support (share of sequences)
   and rate (occurrences per 100 tokens) per group, the group sizes, p and q values
   (also the volume- and order-adjusted ones and the evidence class when present),
-  effect sizes, stability and replication; ``pause_seconds`` gives the length in
-  seconds of every pause token of the pattern; ``example`` is one short excerpt of a
+  effect sizes, stability and replication, and the range in seconds of every pause
+  token of the pattern (``pause_ranges``); ``example`` is one short excerpt of a
   sequence from the favoured group (the learner id as stored in the sequences:
   pseudonymized when the run was given a key).
 * **Delivery.** Discourage detectors hint when the pattern occurs. Encourage
@@ -66,6 +67,7 @@ import pandas as pd
 
 from .._util.checks import check_int, check_number
 from ..config import DEFAULT_CONFIG
+from ..encoding.pauses import pause_ranges
 from ..encoding.sequences import PAUSE_PREFIX
 from ..errors import ColumnError, DataFileError, ParameterError, SeqmineWarning
 from ..mining.excerpts import build_examples, find_occurrence
@@ -83,14 +85,12 @@ __all__ = [
     "validate_detectors",
     "default_hint",
     "absence_thresholds",
-    "pause_seconds",
 ]
 
 #: Value of the ``format`` field of every detectors file.
 DETECTORS_FORMAT = "seqmine-detectors"
 #: Newest detectors file version this seqmine reads and writes (version 2 added the
-#: optional ``pause_seconds`` and ``example`` of each detector; version 1 files are
-#: read as they are).
+#: optional ``example`` of each detector; version 1 files are read as they are).
 DETECTORS_VERSION = 2
 #: Caution copied into every detectors file.
 DETECTOR_NOTICE = (
@@ -105,7 +105,7 @@ _PAUSE_STRATEGIES = ("quantile", "fixed", "learner_quantile", "none")
 _TOP_KEYS = {"format", "version", "notice", "encoding", "vocabulary", "matching", "groups",
              "selection", "detectors", "created_by"}
 _DETECTOR_KEYS = {"id", "tokens", "direction", "favours", "evidence", "hint", "priority",
-                  "absence", "enabled", "notes", "pause_seconds", "example"}
+                  "absence", "enabled", "notes", "example"}
 #: Optional contrast-table columns copied into a detector's evidence when present.
 _EVIDENCE_COLUMNS = ("p_value", "q_value", "p_volume", "q_volume", "p_order", "q_order",
                      "q_rate", "stability", "replication")
@@ -380,12 +380,10 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
     enc.setdefault("pause", {"strategy": "none", "edges": [], "labels": [], "implicit": []})
     pause = enc.get("pause") or {}
     known = set(vocabulary or []) | {PAUSE_PREFIX + lab for lab in pause.get("labels", [])}
-    edges = [float(e) for e in pause.get("edges", [])]
-    labels = list(pause.get("labels", []))
+    ranges = pause_ranges(enc)
     detectors = []
     for k, row in enumerate(selected_rows.to_dict("records")):
         tokens = _split_pattern(row["pattern"], known)
-        pauses = pause_seconds(tokens, edges, labels)
         fav = "" if _is_missing(row.get("favours")) else str(row["favours"]).strip()
         if fav == weak:
             direction = "discourage"
@@ -413,6 +411,9 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
             evidence["kind"] = "" if _is_missing(row["evidence"]) else str(row["evidence"])
         evidence["effects"] = {c: _finite_or_none(row.get(c)) for c in _EFFECT_COLUMNS if c in row}
         evidence["stability"] = _finite_or_none(row.get("stability"))
+        shown = {t: ranges[t] for t in tokens if t in ranges}
+        if shown:
+            evidence["pause_ranges"] = shown
         absence = None
         if direction == "encourage":
             after = absence_after_events
@@ -426,13 +427,11 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
             "direction": direction,
             "favours": fav,
             "evidence": evidence,
-            "hint": default_hint(tokens, direction, pauses),
+            "hint": default_hint(tokens, direction, ranges),
             "priority": 1,
             "absence": absence,
             "enabled": True,
         }
-        if pauses:
-            det["pause_seconds"] = pauses
         example = (examples or {}).get(str(row["pattern"]))
         if example:
             det["example"] = _plain(example)
@@ -539,7 +538,8 @@ def export_detectors(contrast_table, db, constraints=None, *, max_q=_DEFAULTS["m
         excerpts = {n: (found.get(n) or [None])[0] for n in names}
     return build_detectors(
         rows, db.encoding, constraints, group_names=db.group_names, strong=strong, weak=weak,
-        group_sizes=db.group_sizes().tolist(),
+        group_sizes=[len(set(db.learners[db.groups == g].tolist()))
+                     for g in range(len(db.group_names))],
         vocabulary=[v for v, p in zip(db.vocab, db.is_pause) if not p], effect=effect,
         absence_after_events=after, absence_after_seconds=absence_after_seconds,
         selection=selection, examples=excerpts)
@@ -607,39 +607,19 @@ def absence_thresholds(db, patterns, favours, *, quantile=ABSENCE_QUANTILE, max_
     return out
 
 
-def pause_seconds(tokens, edges, labels):
-    """Length in seconds, ``[from, to]`` (``to`` None = no upper end), of each pause token.
-
-    Examples
-    --------
-    >>> pause_seconds(["set_light", "pause:medium", "pause:long"], [6.0, 19.0],
-    ...               ["short", "medium", "long"])
-    {'pause:medium': [6.0, 19.0], 'pause:long': [19.0, None]}
-    """
-    bounds = [0.0, *[float(e) for e in edges], None]
-    out = {}
-    for t in tokens:
-        if t.startswith(PAUSE_PREFIX) and t[len(PAUSE_PREFIX):] in labels:
-            i = labels.index(t[len(PAUSE_PREFIX):])
-            if i + 1 < len(bounds):
-                out[t] = [bounds[i], bounds[i + 1]]
-    return out
-
-
-def default_hint(tokens, direction, pauses=None):
+def default_hint(tokens, direction, pause_ranges=None):
     """Neutral placeholder hint text for a detector (to be rewritten by educators).
 
-    ``pauses`` (from :func:`pause_seconds`) adds the length of each pause in seconds.
+    ``pause_ranges`` (token -> range text, see
+    :func:`seqmine.encoding.pauses.pause_ranges`) puts each pause's range beside it.
 
     Examples
     --------
-    >>> default_hint(["set_light", "pause:long", "reset"], "discourage")
-    "Suggest (review before use): the sequence 'set_light, long pause, reset' was more common among weak learners; consider prompting a different next step."
-    >>> default_hint(["measure_height", "pause:long"], "encourage",
-    ...              {"pause:long": [19.0, None]})
-    "Suggest (review before use): the sequence 'measure_height, long pause (19 s or more)' was more common among strong learners; consider prompting the learner to try it."
+    >>> default_hint(["set_light", "pause:long", "reset"], "discourage",
+    ...              {"pause:long": "17 s or more"})
+    "Suggest (review before use): the sequence 'set_light, long pause (17 s or more), reset' was more common among weak learners; consider prompting a different next step."
     """
-    words = ", ".join(_readable(t, (pauses or {}).get(t)) for t in tokens)
+    words = ", ".join(_readable(t, pause_ranges) for t in tokens)
     if direction == "discourage":
         return (f"Suggest (review before use): the sequence '{words}' was more common among "
                 f"weak learners; consider prompting a different next step.")
@@ -791,6 +771,11 @@ def _validate_encoding(enc, fail):
     gap = enc.get("session_gap")
     if gap is not None and not (_is_finite_real(gap) and gap > 0):
         fail("encoding.session_gap", f"{gap!r} must be a number of seconds > 0 or null.")
+    clock = enc.get("time", {})
+    if not isinstance(clock, dict) or clock.get("unit", "s") not in ("s", "ms", "us") or not (
+            clock.get("timezone") is None or isinstance(clock.get("timezone"), str)):
+        fail("encoding.time", "must be an object with unit ('s', 'ms' or 'us') and timezone "
+                              "(an IANA name or null).")
     pause = enc.get("pause", {"strategy": "none"})
     if not isinstance(pause, dict):
         fail("encoding.pause", "must be an object with strategy, edges, labels and implicit.")
@@ -864,15 +849,6 @@ def _validate_detector(d, k, pause_ok, labels, seen, fail):
         fail(f"{at}.evidence", "must be an object.")
     if d.get("example") is not None and not isinstance(d["example"], dict):
         fail(f"{at}.example", "must be an object (one excerpt) or null.")
-    ps = d.get("pause_seconds")
-    if ps is not None:
-        if not isinstance(ps, dict):
-            fail(f"{at}.pause_seconds", "must be an object: pause token -> [from, to] seconds.")
-        for tok, span in ps.items():
-            if not (isinstance(span, list) and len(span) == 2 and _is_finite_real(span[0])
-                    and (span[1] is None or _is_finite_real(span[1]))):
-                fail(f"{at}.pause_seconds.{tok}", f"{span!r} must be [from, to] in seconds "
-                                                   f"(to may be null).")
     ab = d.get("absence")
     if ab is not None:
         if not isinstance(ab, dict) or set(ab) - {"after_events", "after_seconds"}:
@@ -946,20 +922,12 @@ def _length_mask(lens, lengths):
     return np.isin(lens, sorted(allowed))
 
 
-def _readable(token, seconds=None):
+def _readable(token, ranges=None):
     if token.startswith(PAUSE_PREFIX):
-        text = f"{token[len(PAUSE_PREFIX):].replace('_', ' ')} pause"
-        if seconds:
-            lo, hi = seconds
-            span = (f"{_secs(lo)} or more" if hi is None else
-                    f"under {_secs(hi)}" if not lo else f"{_secs(lo)} to {_secs(hi)}")
-            text += f" ({span})"
-        return text
+        words = f"{token[len(PAUSE_PREFIX):].replace('_', ' ')} pause"
+        span = (ranges or {}).get(token)
+        return f"{words} ({span})" if span else words
     return token
-
-
-def _secs(x):
-    return f"{x:g} s" if x < 60 else f"{x / 60:.3g} min"
 
 
 def _strong_weak(group_names, strong=None, weak=None):

@@ -72,6 +72,7 @@ from .._util.isotime import parse_iso_datetime
 from .._util.text import has_control_characters
 from ..encoding.sequences import PAUSE_PREFIX
 from ..errors import SeqmineInputError
+from ..inputs.clock import TIME_UNITS, resolve_timezone
 from .detectors import load_detectors, validate_detectors
 
 __all__ = ["Watcher", "Firing", "EventError", "parse_event_time"]
@@ -144,11 +145,14 @@ class Firing:
         }
 
 
-def parse_event_time(value):
+def parse_event_time(value, per_second=1, zone=None):
     """Parse one event time to ``(seconds, kind)`` like the offline loader.
 
-    Numbers and numeric strings are seconds (kind ``"numeric"``); other strings are
-    ISO 8601 (kind ``"iso"``; no zone means UTC). Raises :class:`EventError`.
+    Numbers and numeric strings count ``1 / per_second`` seconds (kind ``"numeric"``;
+    ``per_second`` is 1000 for milliseconds); other strings are ISO 8601 (kind
+    ``"iso"``; no zone means UTC, or local time of ``zone``, a
+    :class:`zoneinfo.ZoneInfo`, read with ``fold=0`` at a daylight-saving change as
+    the loader does). Raises :class:`EventError`.
 
     Examples
     --------
@@ -156,6 +160,8 @@ def parse_event_time(value):
     (1767225610.0, 'iso')
     >>> parse_event_time(12)
     (12.0, 'numeric')
+    >>> parse_event_time(1767225610123, per_second=1000)
+    (1767225610.123, 'numeric')
     """
     tv = type(value)
     if tv is float or tv is int:
@@ -177,7 +183,7 @@ def parse_event_time(value):
             except ValueError:
                 raise EventError(f"time {value!r} is neither ISO 8601 nor numeric seconds") from None
             if dt.tzinfo is None:
-                dt = dt.replace(tzinfo=timezone.utc)
+                dt = dt.replace(tzinfo=zone or timezone.utc)
             f = dt.timestamp()
             kind = "iso"
             if f < 0 or f > _T_MAX:
@@ -185,6 +191,8 @@ def parse_event_time(value):
             return f, kind
     else:
         raise EventError(f"time {value!r} is neither ISO 8601 nor numeric seconds")
+    if per_second != 1:
+        f = f / per_second
     if not (-_T_MAX <= f <= _T_MAX):  # also catches NaN and infinities
         raise EventError(f"time {value!r} is not a finite number of seconds before 2100")
     return f, kind
@@ -326,7 +334,7 @@ class Watcher:
             else:
                 learner = _text(learner, "learner")
                 action = _text(action, "action")
-            t, kind = parse_event_time(traw)
+            t, kind = parse_event_time(traw, self._per_second, self._zone)
             if kind != self._time_kind:
                 if self._time_kind is None:
                     self._time_kind = kind
@@ -387,12 +395,14 @@ class Watcher:
             sym = self._template.format_map({"action": action, "target": target,
                                              "channel": channel, "session": session})
         fired = []
+        us = round(t * 1e6)  # gaps in whole microseconds, as offline
         if st.n_events == 0 or (unit_session and (
                 session != st.session
-                or (self._session_gap is not None and t - st.last_time > self._session_gap))):
+                or (self._session_gap_us is not None and us - st.last_us > self._session_gap_us))):
             self._new_sequence(st, t, session if unit_session else "")
         elif self._collapse and sym == st.prev_sym:
             st.last_time = t
+            st.last_us = us
             st.n_events += 1
             self.stats["collapsed"] += 1
             if self._has_absence:
@@ -400,7 +410,7 @@ class Watcher:
             return self._deliver(st, learner, t, fired) if fired else fired
         else:
             if self._pauses:
-                ptok = self._pause_tok[bisect_right(self._edges, t - st.last_time)]
+                ptok = self._pause_tok[bisect_right(self._edges_us, us - st.last_us)]
                 if ptok is not None:
                     self._advance(st, ptok, self._pause_counted, st.prev_tok_time, fired)
         tok = self._sym_id.get(sym, -1)
@@ -412,6 +422,7 @@ class Watcher:
         self._advance(st, tok, True, t, fired)
         st.prev_sym = sym
         st.last_time = t
+        st.last_us = us
         st.prev_tok_time = t
         st.n_events += 1
         if self._has_absence:
@@ -464,10 +475,15 @@ class Watcher:
         self._unit_session = enc.get("unit", "learner") == "session"
         gap = enc.get("session_gap")
         self._session_gap = None if gap is None else float(gap)
+        self._session_gap_us = None if gap is None else round(float(gap) * 1e6)
+        clock = enc.get("time") or {}
+        self._per_second = TIME_UNITS.get(clock.get("unit") or "s") or 1
+        self._zone = resolve_timezone(clock.get("timezone"), "encoding.time.timezone")
         pause = enc.get("pause") or {}
         labels = list(pause.get("labels", []))
         implicit = set(pause.get("implicit", []))
         self._edges = [float(e) for e in pause.get("edges", [])]
+        self._edges_us = [round(e * 1e6) for e in self._edges]
         self._pauses = pause.get("strategy", "none") != "none" and bool(labels)
         if pause.get("strategy") == "learner_quantile":
             self.notes.append("the encoding bins pauses by each learner's own quantiles, which "
@@ -700,7 +716,8 @@ class Watcher:
 class _Learner:
     """Per-learner state: encoder position, partial matches, hint bookkeeping."""
 
-    __slots__ = ("raw_time", "last_time", "prev_tok_time", "prev_sym", "dup_time", "dup_first", "dup_keys",
+    __slots__ = ("raw_time", "last_time", "last_us", "prev_tok_time", "prev_sym", "dup_time",
+                 "dup_first", "dup_keys",
                  "seq", "session", "label", "pos", "c", "nodes", "last_end", "n_events",
                  "start_time", "abs_e", "abs_s", "abs_done", "abs_retry", "abs_hints", "counts",
                  "last_hint", "hint_times")
@@ -708,6 +725,7 @@ class _Learner:
     def __init__(self):
         self.raw_time = _NEG_INF
         self.last_time = _NEG_INF
+        self.last_us = 0
         self.prev_tok_time = _NEG_INF
         self.prev_sym = None
         self.dup_time = _NEG_INF

@@ -7,9 +7,10 @@ Token-stream rule (the live watcher follows it exactly)
    entirely (they do not split pauses).
 3. The symbol of an event is the template filled from its columns
    (``{action}``, ``{target}``, ``{channel}``, ``{session}``).
-4. With ``unit="session"`` a new sequence starts when the session column changes or
-   the gap to the previous event exceeds ``session_gap`` seconds; no pause token
-   is emitted across that boundary.
+4. With ``unit="session"`` (the default) a new sequence starts when the session column
+   changes or the gap to the previous event exceeds ``session_gap`` seconds (30
+   minutes by default, a common inactivity timeout in web analytics; ``None`` turns
+   the rule off); no pause token is emitted across that boundary.
 5. With ``collapse_repeats`` an event whose symbol equals the previous kept event's
    symbol in the same sequence is merged into it: no token; the run's end time
    becomes the merged event's time.
@@ -18,11 +19,19 @@ Token-stream rule (the live watcher follows it exactly)
    ``np.searchsorted(edges, gap, side="right")`` (bins are ``[edge_k, edge_k+1)``)
    and, unless the bin's label is implicit, the token ``pause:<label>`` follows the
    event. Pause tokens carry the time and source row of the event they follow.
+
+Gaps (for pauses and for the session rule) are whole microseconds, differences of
+:func:`seqmine.inputs.clock.to_microseconds` of the event times, and edges are compared
+in microseconds too: a gap exactly on an edge always lands in the upper bin. How
+``quantile`` edges are chosen (each learner weighs the same, on the gap values the
+clock can express, fewer bins when it cannot support them) is in
+:mod:`seqmine.encoding.pauses`.
 """
 
 from __future__ import annotations
 
 import string
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -31,33 +40,20 @@ from sklearn.base import BaseEstimator
 
 from .._util.checks import check_choice, check_int, check_number
 from ..config import DEFAULT_CONFIG
-from ..errors import DataFileError, NotFittedError, ParameterError
+from ..errors import DataFileError, NotFittedError, ParameterError, SeqmineWarning
+from ..inputs.clock import to_microseconds
+from .pauses import learner_weighted_edges, pause_labels, pause_ranges
 from .sequences import PAUSE_PREFIX, SequenceDB, smallest_int_dtype
 
 __all__ = ["Encoder", "encode", "encoder_from_settings", "load_mapping", "pause_labels",
-           "TEMPLATE_FIELDS"]
+           "TEMPLATE_FIELDS", "DEFAULT_SESSION_GAP"]
 
 #: Event columns a symbol template may use.
 TEMPLATE_FIELDS = ("action", "target", "channel", "session")
 
-_LABELS = {
-    1: ["any"],
-    2: ["short", "long"],
-    3: ["short", "medium", "long"],
-    4: ["short", "medium", "long", "very_long"],
-    5: ["very_short", "short", "medium", "long", "very_long"],
-}
-
-
-def pause_labels(n_bins):
-    """Readable names of ``n_bins`` pause bins, shortest first.
-
-    Examples
-    --------
-    >>> pause_labels(3)
-    ['short', 'medium', 'long']
-    """
-    return list(_LABELS.get(n_bins, [f"p{i + 1}" for i in range(n_bins)]))
+#: Inactivity (seconds) after which a new sequence starts by default: 30 minutes, a
+#: common practice for sessions in web analytics (from the configuration defaults).
+DEFAULT_SESSION_GAP = DEFAULT_CONFIG["encode"]["session_gap"]
 
 
 def load_mapping(path):
@@ -114,21 +110,28 @@ class Encoder(BaseEstimator):
     collapse_repeats : bool
         Merge immediate repeats of a symbol.
     pause_strategy : {"quantile", "fixed", "learner_quantile", "none"}
-        ``quantile``: bin edges at the quantiles of all gaps of the fitted events;
-        ``fixed``: ``pause_thresholds`` seconds; ``learner_quantile``: each learner's
-        own quantiles (fast and slow learners become comparable; the global edges are
-        still learned for live use); ``none``: no pause tokens.
+        ``quantile``: edges split the gaps of the fitted events into bins of equal
+        weight, each learner weighing the same, on the gap values the clock can express
+        (see :mod:`seqmine.encoding.pauses`); ``fixed``: ``pause_thresholds`` seconds;
+        ``learner_quantile``: each learner's own such edges (fast and slow learners
+        become comparable; the global edges are still learned for live use); ``none``:
+        no pause tokens.
     pause_bins : int
-        Number of bins for the quantile strategies.
+        Number of bins asked for by the quantile strategies. When the gaps take too
+        few distinct values (a coarse clock), fewer bins are used, or none, and a
+        ``pause_bins_reduced`` warning says so.
     pause_thresholds : sequence of float, optional
-        Ascending edges in seconds for ``fixed`` (n edges -> n + 1 bins).
+        Ascending positive edges in seconds for ``fixed`` (n edges -> n + 1 bins).
     implicit_pauses : sequence of str
         Bin labels that emit no token. ``"shortest"`` names the first bin whatever
         its label (the default), so the quickest gaps stay implicit for any bin count.
-    unit : {"learner", "session"}
-        What one sequence is.
-    session_gap : float, optional
-        With ``unit="session"``, a gap longer than this (seconds) starts a new sequence.
+    unit : {"session", "learner"}
+        What one sequence is: a session (the default; see ``session_gap``) or all of a
+        learner's events.
+    session_gap : float or None, default 1800
+        With ``unit="session"``, a gap longer than this (seconds) starts a new sequence
+        (30 minutes: a common practice for sessions in web analytics); ``None``: only
+        a change of the session column does.
 
     Attributes
     ----------
@@ -148,6 +151,9 @@ class Encoder(BaseEstimator):
     >>> db = Encoder(pause_strategy="fixed", pause_thresholds=[10]).fit_transform(ev)
     >>> db.decode(0)
     ['set', 'run', 'pause:long', 'measure', 'run']
+    >>> ev.loc[2:, "time"] += 3600  # an hour away: a second session
+    >>> Encoder(pause_strategy="fixed", pause_thresholds=[10]).fit_transform(ev).n_sequences
+    2
     """
 
     def __init__(self, template=_DEFAULTS["template"], *, mapping=_DEFAULTS["mapping"],
@@ -184,7 +190,8 @@ class Encoder(BaseEstimator):
             if not th:
                 raise ParameterError(
                     "pause_strategy='fixed' needs pause_thresholds, e.g. --pause-thresholds 5,30.")
-            th = [check_number(t, "pause_thresholds", "Encoder", minimum=0) for t in th]
+            th = [check_number(t, "pause_thresholds", "Encoder", minimum=0, strict=True)
+                  for t in th]
             if any(b <= a for a, b in zip(th, th[1:])):
                 raise ParameterError(
                     f"pause_thresholds must be strictly ascending seconds; got {list(th)}.")
@@ -196,25 +203,30 @@ class Encoder(BaseEstimator):
         fields = self._check_params()
         ev = _apply_mapping(_prepare(events, fields), self.mapping)
         sym, seq_id, keep_first, run_end = self._symbols_and_runs(ev, fields)
-        gaps, has_next = _gaps(ev["time"].to_numpy(float), seq_id, keep_first, run_end)
+        gaps, has_next = _gaps(ev["time_us"].to_numpy(), seq_id, keep_first, run_end)
+        gap_learners = ev["learner"].to_numpy(object)[np.flatnonzero(keep_first)][has_next]
         gaps = gaps[has_next]
         n_bins = self.pause_bins
+        reduced = False
         if self.pause_strategy == "fixed":
             edges = np.asarray(self.pause_thresholds, dtype=float)
         elif self.pause_strategy == "none":
             edges = np.zeros(0)
         else:
-            qs = np.arange(1, n_bins) / n_bins
-            edges = np.quantile(gaps, qs) if len(gaps) else np.zeros(len(qs))
+            edges = learner_weighted_edges(gaps, gap_learners, n_bins) / 1e6
+            reduced = len(edges) < n_bins - 1
         self.edges_ = np.asarray(edges, dtype=float)
         self.labels_ = pause_labels(len(self.edges_) + 1) if self.pause_strategy != "none" else []
         implicit = [self.labels_[0] if p == "shortest" and self.labels_ else p
                     for p in (self.implicit_pauses or ())]
-        unknown = [p for p in implicit if p not in self.labels_]
+        asked = pause_labels(len(self.edges_) + 1 if not reduced else n_bins)
+        unknown = [p for p in self.implicit_pauses or () if p != "shortest" and p not in asked]
         if unknown and self.pause_strategy != "none":
             raise ParameterError(
                 f"implicit_pauses {unknown} are not pause bin labels; the labels are "
-                f"{self.labels_}.")
+                f"{asked}.")
+        if reduced and len(self.edges_) == 0:
+            implicit = list(self.labels_)  # one bin: a pause token would say nothing
         self.implicit_ = [p for p in self.labels_ if p in implicit]
         kept_syms = sorted(set(sym[keep_first].tolist()))
         pause_toks = [PAUSE_PREFIX + lab for lab in self.labels_ if lab not in self.implicit_]
@@ -238,6 +250,8 @@ class Encoder(BaseEstimator):
                 "bins": int(n_bins),
             },
         }
+        if reduced:
+            _warn_reduced(gaps, n_bins, self.encoding_)
         return self
 
     def transform(self, events, groups=None, group_names=None):
@@ -263,7 +277,7 @@ class Encoder(BaseEstimator):
         ev = _apply_mapping(_prepare(events, fields), self.mapping)
         times = ev["time"].to_numpy(float)
         sym, seq_id, keep_first, run_end = self._symbols_and_runs(ev, fields)
-        gaps, has_next = _gaps(times, seq_id, keep_first, run_end)
+        gaps, has_next = _gaps(ev["time_us"].to_numpy(), seq_id, keep_first, run_end)
         kidx = np.flatnonzero(keep_first)
         ksym = sym[kidx]
         kseq = seq_id[kidx]
@@ -385,7 +399,7 @@ class Encoder(BaseEstimator):
                 sym = col if sym is None else sym + col
         sym = sym.to_numpy(dtype=object) if sym is not None else np.full(len(ev), "", dtype=object)
         learner = ev["learner"].to_numpy(object)
-        times = ev["time"].to_numpy(float)
+        times = ev["time_us"].to_numpy()
         new_seq = np.ones(len(ev), dtype=bool)
         if len(ev) > 1:
             new_seq[1:] = learner[1:] != learner[:-1]
@@ -393,7 +407,8 @@ class Encoder(BaseEstimator):
                 sess = ev["session"].to_numpy(object)
                 new_seq[1:] |= sess[1:] != sess[:-1]
                 if self.session_gap is not None:
-                    new_seq[1:] |= (times[1:] - times[:-1]) > float(self.session_gap)
+                    limit = to_microseconds(float(self.session_gap))
+                    new_seq[1:] |= (times[1:] - times[:-1]) > limit
         seq_id = np.cumsum(new_seq) - 1
         keep_first = np.ones(len(ev), dtype=bool)
         if self.collapse_repeats and len(ev) > 1:
@@ -404,25 +419,34 @@ class Encoder(BaseEstimator):
         return sym, seq_id, keep_first, run_end
 
     def _bin(self, gaps, has_next, kept_learners):
+        """Bin of each gap (whole microseconds) against edges in microseconds."""
         if self.pause_strategy != "learner_quantile":
-            return np.searchsorted(self.edges_, gaps, side="right")
-        # per-learner quantile edges from the learner's own gaps
-        # per-learner quantile edges from the learner's own gaps
+            return np.searchsorted(to_microseconds(self.edges_), gaps, side="right")
+        # each learner's own edges, chosen like the global ones; a learner whose gaps
+        # support fewer bins leaves the upper ones empty
+        n_edges = len(self.edges_)
         bins = np.zeros(len(gaps), dtype=np.int64)
-        qs = np.arange(1, self.pause_bins) / self.pause_bins
         idx = np.flatnonzero(has_next)
         df = pd.DataFrame({"learner": kept_learners[idx], "gap": gaps[idx]})
         for _who, part in df.groupby("learner", sort=False):
             g = part["gap"].to_numpy()
-            e = np.quantile(g, qs)
+            e = learner_weighted_edges(g, np.zeros(len(g)), n_edges + 1)
+            e = np.concatenate([e, np.full(n_edges - len(e), np.iinfo(np.int64).max)])
             bins[idx[part.index.to_numpy()]] = np.searchsorted(e, g, side="right")
         return bins
 
 
 def encoder_from_settings(settings):
     """An unfitted :class:`Encoder` from plain settings (the ``[encode]`` configuration
-    section): ``mapping`` is a mapping-file path, ``implicit_pauses`` a list."""
+    section): ``mapping`` is a mapping-file path, ``implicit_pauses`` a list,
+    ``session_gap`` may be ``"none"``."""
     params = dict(settings)
+    if isinstance(params.get("session_gap"), str):
+        if params["session_gap"].strip().lower() not in ("none", "off"):
+            raise ParameterError(
+                f"session_gap must be a number of seconds or 'none'; got "
+                f"{params['session_gap']!r}.")
+        params["session_gap"] = None
     mapping = params.pop("mapping", None)
     implicit = tuple(params.pop("implicit_pauses", None) or ())
     return Encoder(mapping=load_mapping(mapping) if mapping else None,
@@ -472,6 +496,7 @@ def _prepare(events, fields):
             f"The events table has {int(bad.sum())} missing or infinite time(s) (first at source "
             f"row {int(ev['source_row'].to_numpy()[bad][0])}); load the log with load_events, "
             f"which rejects such rows.")
+    ev["time_us"] = to_microseconds(ev["time"].to_numpy(float))
     return ev.sort_values(["learner", "time"], kind="mergesort").reset_index(drop=True)
 
 
@@ -484,14 +509,32 @@ def _apply_mapping(ev, mapping):
 
 
 def _gaps(times, seq_id, keep_first, run_end):
-    """Gap after each kept event to the next kept event of the same sequence."""
+    """Gap (whole microseconds) after each kept event to the next kept event of the same
+    sequence; ``times`` and ``run_end`` are whole microseconds."""
     kidx = np.flatnonzero(keep_first)
     kseq = seq_id[kidx]
     has_next = np.zeros(len(kidx), dtype=bool)
     if len(kidx) > 1:
         has_next[:-1] = kseq[1:] == kseq[:-1]
-    gaps = np.zeros(len(kidx), dtype=float)
+    gaps = np.zeros(len(kidx), dtype=np.int64)
     if len(kidx) > 1:
         nxt = times[kidx[1:]]
         gaps[:-1] = nxt - run_end[:-1]
-    return np.where(has_next, gaps, 0.0), has_next
+    return np.where(has_next, gaps, 0), has_next
+
+
+def _warn_reduced(gaps, n_bins, encoding):
+    """``pause_bins_reduced``: fewer bins than asked because the gaps take few values."""
+    values = np.unique(gaps)
+    shown = ", ".join(f"{v / 1e6:g} s" for v in values[:4]) + (" ..." if len(values) > 4 else "")
+    pause = encoding["pause"]
+    if len(pause["edges"]) == 0:
+        used = "no pause tokens are written"
+    else:
+        ranges = pause_ranges(encoding)
+        used = (f"{len(pause['labels'])} bins are used: "
+                + "; ".join(f"{tok} {text}" for tok, text in ranges.items()))
+    warnings.warn(SeqmineWarning(
+        f"The gaps within sequences take {len(values)} distinct value(s) ({shown or 'none'}), "
+        f"too few for {n_bins} pause bins on this clock; {used}.",
+        code="pause_bins_reduced", count=n_bins - len(pause["labels"])), stacklevel=3)

@@ -4,18 +4,24 @@ Supported inputs: CSV/TSV (delimiter sniffed when the header does not split),
 Parquet (needs pyarrow: ``pip install seqmine[parquet]``), JSON Lines, and
 learning-activity statements in the open xAPI JSON form (actor -> learner,
 verb -> action, object -> target, timestamp -> time, context.registration -> session).
+Text formats may be gzip-compressed (``.csv.gz`` ...); they are read directly.
 
 Row numbers: ``source_row`` 1 is the first data record of the file (the header
-line is not counted; for xAPI and JSON Lines, the first statement / line).
+line is not counted; for xAPI and JSON Lines, the first statement / line). A record
+with the wrong number of fields is rejected (``bad_fields``) and its detail names its
+physical line in the file (the header is line 1).
+
+Times: see :mod:`seqmine.inputs.clock` (units, local zones, what the clock can tell).
+What the loader noticed or assumed is raised as :class:`~seqmine.errors.SeqmineWarning`
+with a code: ``time_unit_assumed``, ``ambiguous_local_times``, ``missing_local_times``,
+``coarse_times``, ``tied_times``, ``duplicates_at_coarse_resolution``, ``many_rejected``
+and ``heavy_learner``.
 """
 
 from __future__ import annotations
 
-import codecs
-import io
-import json
-import mmap
 import os
+import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -23,10 +29,11 @@ import numpy as np
 import pandas as pd
 
 from .._util.checks import check_choice, check_columns
-from .._util.isotime import iso_seconds
 from .._util.text import CONTROL_CHARACTERS
 from ..config import DEFAULT_CONFIG, EVENT_ROLES
-from ..errors import ColumnError, DataFileError, ParameterError
+from ..errors import ColumnError, DataFileError, ParameterError, SeqmineWarning
+from . import readers
+from .clock import TIED_SHARE_WARNING, TIME_UNITS, diagnose_clock, read_times, resolve_timezone
 
 __all__ = [
     "LoadResult",
@@ -36,16 +43,17 @@ __all__ = [
     "REJECT_REASONS",
     "MAX_ACTION_LENGTH",
     "MEMORY_PER_INPUT_BYTE",
+    "MANY_REJECTED_SHARE",
+    "HEAVY_LEARNER_RATIO",
 ]
-
-#: Column roles of an event table and whether they are required.
 
 #: Reject reason codes written to ``rejects.csv``.
 REJECT_REASONS = {
+    "bad_fields": "the record has more or fewer fields than the header (the detail names its line)",
     "missing_learner": "the learner identifier is empty",
     "missing_action": "the action is empty",
     "missing_time": "the time is empty",
-    "bad_time": "the time is neither ISO 8601 nor numeric seconds",
+    "bad_time": "the time is neither ISO 8601 nor a number",
     "mixed_time_format": "the time format differs from the rest of the column",
     "time_out_of_range": "the time lies before 1970 or after 2100 (or is not finite)",
     "control_characters": "the learner or action contains control characters",
@@ -58,6 +66,13 @@ REJECT_REASONS = {
 #: Longest accepted action name (characters); longer names are rejected.
 MAX_ACTION_LENGTH = 200
 
+#: Share of rejected rows above which a run warns (``many_rejected``).
+MANY_REJECTED_SHARE = 0.10
+
+#: A learner with more than this many times the median number of events per learner
+#: (and at least 1,000 events) is reported (``heavy_learner``).
+HEAVY_LEARNER_RATIO = 20
+
 #: Largest input file read without ``max_bytes`` raised (bytes).
 DEFAULT_MAX_BYTES = DEFAULT_CONFIG["events"]["max_bytes"]
 
@@ -67,10 +82,13 @@ DEFAULT_MAX_BYTES = DEFAULT_CONFIG["events"]["max_bytes"]
 MEMORY_PER_INPUT_BYTE = 40
 _DEFAULT_LIMITS = (DEFAULT_MAX_BYTES, 20_000_000_000)  # the API's and the command line's
 
-_EPOCH = pd.Timestamp("1970-01-01", tz="UTC")
-_T_MIN = 0.0
-_T_MAX = (pd.Timestamp("2100-01-01", tz="UTC") - _EPOCH).total_seconds()
-_FORMATS = ("csv", "tsv", "parquet", "jsonl", "xapi")
+_FORMATS = readers.FORMATS
+#: Clock resolutions too coarse to order a learner's actions within a session.
+_COARSE = ("minute", "hour", "day")
+#: Fewest consecutive event pairs before the clock is judged (tiny logs say little).
+_MIN_PAIRS = 50
+_MIN_ROWS_FOR_SHARE = 20
+_HEAVY_MIN_EVENTS = 1000
 
 
 @dataclass
@@ -81,8 +99,8 @@ class LoadResult:
     ----------
     events : DataFrame
         Columns ``learner, time, action, session, target, channel, source_row``;
-        ``time`` is float seconds (Unix epoch for ISO 8601 input); sorted by learner
-        then time, stable on ties (file order).
+        ``time`` is float seconds (Unix epoch for ISO 8601 and epoch numbers); sorted by
+        learner then time, stable on ties (file order).
     rejects : DataFrame
         Columns ``source_row, reason, detail``; one row per unusable input row.
     n_input : int
@@ -92,6 +110,10 @@ class LoadResult:
     n_out_of_order : int
         Rows whose time was earlier than the previous row of the same learner in
         file order (they were sorted into place, not dropped).
+    clock : dict
+        How times were read and what the clock can tell: ``time_unit``,
+        ``time_unit_assumed``, ``timezone``, ``ambiguous_local_times``,
+        ``missing_local_times``, ``resolution``, ``resolution_seconds``, ``tied_share``.
     """
 
     events: pd.DataFrame
@@ -101,6 +123,7 @@ class LoadResult:
     time_kind: str = "numeric"
     n_out_of_order: int = 0
     notes: list = field(default_factory=list)
+    clock: dict = field(default_factory=dict)
 
     @property
     def n_kept(self):
@@ -112,6 +135,11 @@ class LoadResult:
         """Rows rejected."""
         return len(self.rejects)
 
+    def time_settings(self):
+        """How live events must be read to match this log: ``{"unit", "timezone"}``."""
+        return {"unit": self.clock.get("time_unit") or "s",
+                "timezone": self.clock.get("timezone")}
+
     def summary(self):
         """Row accounting as a plain dict."""
         reasons = self.rejects["reason"].value_counts().sort_index()
@@ -122,6 +150,7 @@ class LoadResult:
             "rejects_by_reason": {str(k): int(v) for k, v in reasons.items()},
             "rows_out_of_order": int(self.n_out_of_order),
             "time_kind": self.time_kind,
+            "clock": dict(self.clock),
             "learners": int(self.events["learner"].nunique()) if len(self.events) else 0,
         }
 
@@ -131,18 +160,22 @@ def load_events(path, *, columns=None, format=DEFAULT_CONFIG["events"]["format"]
                 encoding=DEFAULT_CONFIG["events"]["encoding"],
                 duplicates=DEFAULT_CONFIG["events"]["duplicates"],
                 max_action_length=MAX_ACTION_LENGTH,
-                max_bytes=DEFAULT_MAX_BYTES):
+                max_bytes=DEFAULT_MAX_BYTES,
+                time_unit=DEFAULT_CONFIG["events"]["time_unit"],
+                timezone=DEFAULT_CONFIG["events"]["timezone"],
+                decimal_comma=DEFAULT_CONFIG["events"]["decimal_comma"]):
     """Read an event log, validate every row and return kept and rejected rows.
 
     Parameters
     ----------
     path : str or Path
-        The events file.
+        The events file (text formats may be gzip-compressed).
     columns : dict, optional
         Column name for each role (``learner``, ``time``, ``action``, ``session``,
         ``target``, ``channel``); defaults are the role names.
     format : {"csv", "tsv", "parquet", "jsonl", "xapi"}, optional
-        Guessed from the extension when omitted (``.json`` holding statements is xAPI).
+        Guessed from the extension when omitted (``.json`` holding statements is xAPI;
+        a ``.gz`` ending is looked through).
     delimiter : str, optional
         CSV delimiter; sniffed from the header when omitted.
     encoding : str
@@ -153,6 +186,14 @@ def load_events(path, *, columns=None, format=DEFAULT_CONFIG["events"]["format"]
         Longer action names are rejected (``action_too_long``).
     max_bytes : int
         Files larger than this fail at once with a message naming the option.
+    time_unit : {"auto", "s", "ms", "us"}
+        What a numeric time stands for; ``auto`` recognises epoch milliseconds and
+        microseconds and relative milliseconds and says so (``time_unit_assumed``).
+    timezone : str, optional
+        IANA zone (e.g. ``"Europe/Berlin"``) of ISO 8601 times written without a zone;
+        default UTC. Daylight-saving rule: see :mod:`seqmine.inputs.clock`.
+    decimal_comma : bool
+        Read numeric times written with a decimal comma (``12,5``).
 
     Returns
     -------
@@ -170,6 +211,8 @@ def load_events(path, *, columns=None, format=DEFAULT_CONFIG["events"]["format"]
     [[4, 'missing_learner']]
     """
     check_choice(duplicates, "duplicates", ("reject", "keep"), "load_events")
+    check_choice(time_unit, "time_unit", tuple(TIME_UNITS), "load_events")
+    resolve_timezone(timezone)
     if delimiter in ("\\t", "tab", "TAB"):  # a tab typed on a command line
         delimiter = "\t"
     if delimiter is not None and (not isinstance(delimiter, str) or len(delimiter) != 1
@@ -190,33 +233,38 @@ def load_events(path, *, columns=None, format=DEFAULT_CONFIG["events"]["format"]
             f"{path}: {size:,} bytes is above the {int(max_bytes):,}-byte limit; "
             f"split the log by learners or raise the limit with --max-bytes.")
     if max_bytes in _DEFAULT_LIMITS:
-        _check_memory(path, size)
-    fmt = format or _guess_format(path)
+        _check_memory(path, readers.uncompressed_size(path, size))
+    fmt = format or readers.guess_format(path)
     check_choice(fmt, "format", _FORMATS, "load_events")
     if fmt in ("csv", "tsv"):
-        raw = _read_delimited(path, fmt, delimiter, encoding)
+        raw = readers.read_delimited(path, fmt, delimiter, encoding)
     elif fmt == "parquet":
-        raw = _read_parquet(path)
+        raw = readers.read_parquet(path)
     elif fmt == "jsonl":
-        raw = _read_jsonl(path, encoding)
+        raw = readers.read_jsonl(path, encoding)
     else:
-        raw = _read_xapi(path, encoding)
-    return _validate(raw, cols, path, duplicates, max_action_length)
+        raw = readers.read_xapi(path, encoding)
+    times = {"time_unit": time_unit, "timezone": timezone, "decimal_comma": decimal_comma}
+    return _validate(raw, cols, path, duplicates, max_action_length, times)
 
 
-def parse_times(values, *, source="time"):
+def parse_times(values, *, source="time", time_unit="auto", timezone=None):
     """Parse a column of times to float seconds.
 
-    Accepts numeric seconds or ISO 8601 (with or without zone; times without a
-    zone are taken as UTC, times with one are converted to UTC). When the column
-    mixes both forms, the form of the majority wins and the others are marked
-    ``mixed_time_format``.
+    Accepts numbers or ISO 8601 (with or without zone; times without a zone are taken
+    as UTC, or as local times of ``timezone``; times with one are converted to UTC).
+    When the column mixes both forms, the form of the majority wins and the others are
+    marked ``mixed_time_format``. Numbers are seconds unless ``time_unit`` says
+    otherwise or, with ``"auto"``, they are clearly milliseconds or microseconds since
+    1970 (see :mod:`seqmine.inputs.clock`).
 
     Parameters
     ----------
     values : array-like of str
     source : str
         Name used in messages.
+    time_unit : {"auto", "s", "ms", "us"}
+    timezone : str, optional
 
     Returns
     -------
@@ -230,78 +278,11 @@ def parse_times(values, *, source="time"):
     >>> (float(s[1] - s[0]), list(r), k)
     (0.0, [None, None, 'bad_time'], 'iso')
     """
-    s = (values if isinstance(values, pd.Series) else
-         pd.Series(np.asarray(values, dtype=object))).astype("string").str.strip()
-    n = len(s)
-    fast = _fast_iso(s)
-    if fast is not None:
-        reason = np.full(n, None, dtype=object)
-        out = (fast < _T_MIN) | (fast > _T_MAX)
-        reason[out] = "time_out_of_range"
-        fast[out] = np.nan
-        return fast, reason, "iso"
-    seconds = np.full(n, np.nan)
-    reason = np.full(n, None, dtype=object)
-    missing = (s.isna() | (s == "")).to_numpy()
-    reason[missing] = "missing_time"
-    num = pd.to_numeric(s.where(~pd.Series(missing)), errors="coerce").to_numpy(dtype=float)
-    is_num = ~np.isnan(num) & ~missing
-    rest = ~missing & ~is_num
-    iso = np.full(n, np.nan)
-    if rest.any():
-        # naive and zoned strings parsed apart: pandas before 3 gives naive strings the
-        # offset of the zoned ones when both are in one call
-        zoned = s.str.contains(r"\d{2}:\d{2}(?::\d{2}(?:[.,]\d+)?)?\s*(?:[Zz]|[+-]\d{2}(?::?\d{2})?)\s*$",
-                               na=False).to_numpy(dtype=bool)
-        for part in (rest & zoned, rest & ~zoned):
-            if part.any():
-                parsed = pd.to_datetime(s[part], format="ISO8601", utc=True, errors="coerce")
-                iso[np.flatnonzero(part)] = ((parsed - _EPOCH) / pd.Timedelta(seconds=1)
-                                             ).to_numpy(dtype=float)
-        # pandas before 3 parses in nanoseconds (years 1677-2262 only): read the others
-        # with the standard library so that they are reported as out of range, not garbled
-        looks_iso = s.str.match(r"\s*[+-]?\d{4}-\d{2}-\d{2}", na=False).to_numpy(dtype=bool)
-        for i in np.flatnonzero(rest & np.isnan(iso) & looks_iso):
-            try:
-                iso[i] = iso_seconds(s.iat[i])
-            except (ValueError, OverflowError):
-                pass
-    is_iso = ~np.isnan(iso)
-    kind = "iso" if is_iso.sum() > is_num.sum() else "numeric"
-    reason[~missing & ~is_num & ~is_iso] = "bad_time"
-    if kind == "iso":
-        seconds[is_iso] = iso[is_iso]
-        reason[is_num] = "mixed_time_format"
-        out = is_iso & ((iso < _T_MIN) | (iso > _T_MAX))
-    else:
-        seconds[is_num] = num[is_num]
-        reason[is_iso] = "mixed_time_format"
-        out = is_num & (~np.isfinite(num) | (np.abs(num) > _T_MAX))
-    reason[out] = "time_out_of_range"
-    seconds[reason != None] = np.nan  # noqa: E711  (elementwise comparison)
-    return seconds, reason, kind
+    tc = read_times(values, time_unit=time_unit, timezone=timezone, source=source)
+    return tc.seconds, tc.reason, tc.kind
 
 
 # ---------------------------------------------------------------- internals
-_FAST_ISO = r"\d{4}-\d{2}-\d{2}(?:[T ]\d{2}:\d{2}(?::\d{2}(?:\.\d{1,9})?)?)?Z?"
-
-
-def _fast_iso(s):
-    """Seconds for a column that is all UTC/naive ISO 8601 (the common case), else None.
-
-    numpy parses such strings about ten times faster than the general ISO 8601 path;
-    anything else (offsets, gaps, other forms) goes the general way.
-    """
-    if len(s) == 0 or not s.str.fullmatch(_FAST_ISO).all():
-        return None
-    text = s.str.removesuffix("Z").str.replace(" ", "T", regex=False)
-    try:
-        stamps = np.array(text.to_numpy(dtype=object).astype(str), dtype="datetime64[ns]")
-    except ValueError:
-        return None
-    return (stamps - np.datetime64("1970-01-01T00:00:00", "ns")) / np.timedelta64(1, "s")
-
-
 def _resolve_columns(columns):
     cols = {role: role for role in EVENT_ROLES}
     if columns:
@@ -312,138 +293,6 @@ def _resolve_columns(columns):
                 f"{', '.join(EVENT_ROLES)}.")
         cols.update({k: v for k, v in columns.items() if v})
     return cols
-
-
-def _guess_format(path):
-    name = path.name.lower()
-    if name.endswith((".tsv", ".tab")):
-        return "tsv"
-    if name.endswith((".parquet", ".pq")):
-        return "parquet"
-    if name.endswith((".jsonl", ".ndjson")):
-        return "jsonl"
-    if name.endswith(".json"):
-        return "xapi"
-    return "csv"
-
-
-def _without_nul(path, encoding):
-    """``path``, or its bytes with NUL replaced by U+0001 when the file holds NUL bytes.
-
-    pandas' C parser (before pandas 3) ends a field at a NUL byte, which would silently
-    shorten a value such as ``open\x00chart``; as U+0001 the row keeps its length and is
-    rejected as ``control_characters`` like any other control character. Only for
-    encodings in which NUL is the single byte 0 (UTF-16 files contain NUL bytes anyway).
-    """
-    try:
-        name = codecs.lookup(encoding).name
-    except LookupError:
-        return path
-    if ("\x00".encode("utf-8" if name == "utf-8-sig" else name) != b"\x00"):
-        return path
-    with open(path, "rb") as fh:
-        try:
-            view = mmap.mmap(fh.fileno(), 0, access=mmap.ACCESS_READ)
-        except (ValueError, OSError):  # empty file, or not mappable (pipe)
-            return path
-        with view:
-            if view.find(b"\x00") == -1:
-                return path
-            return io.BytesIO(view[:].replace(b"\x00", b"\x01"))
-
-
-def _read_delimited(path, fmt, delimiter, encoding):
-    enc = "utf-8-sig" if encoding.lower().replace("_", "-") in ("utf-8", "utf8") else encoding
-    try:
-        with open(path, encoding=enc, newline="") as fh:
-            header = fh.readline()
-    except UnicodeDecodeError:
-        raise DataFileError(_decode_message(path, encoding)) from None
-    except LookupError:
-        raise ParameterError(f"Unknown text encoding {encoding!r}; use e.g. utf-8 or latin-1.") from None
-    if not header.strip():
-        raise DataFileError(f"{path}: the first line (header) is empty; the file needs a header row.")
-    sep = delimiter or ("\t" if fmt == "tsv" else ",")
-    if delimiter is None:
-        counts = {c: header.count(c) for c in (",", "\t", ";", "|")}
-        if counts.get(sep, 0) == 0 and max(counts.values()) > 0:
-            sep = max(counts, key=counts.get)
-    source = _without_nul(path, enc)
-    try:
-        df = pd.read_csv(source, sep=sep, dtype=str, keep_default_na=False, na_values=[],
-                         encoding=enc, skip_blank_lines=True, engine="c")
-    except UnicodeDecodeError:
-        raise DataFileError(_decode_message(path, encoding)) from None
-    except pd.errors.EmptyDataError:
-        raise DataFileError(f"{path}: no columns found; is the file empty?") from None
-    except pd.errors.ParserError as exc:
-        msg = " ".join(str(exc).split())
-        raise DataFileError(
-            f"{path}: malformed {fmt.upper()} ({msg}); fix the quoting or the number of "
-            f"fields on that line, or pass --delimiter.") from None
-    df.columns = [str(c).strip() for c in df.columns]
-    return df
-
-
-def _read_parquet(path):
-    try:
-        import pyarrow.parquet as pq
-    except ImportError:
-        raise DataFileError(
-            f"{path}: reading Parquet needs pyarrow; install it with "
-            f"'pip install seqmine[parquet]'.") from None
-    try:
-        pf = pq.ParquetFile(path)
-        # read by row groups to keep peak memory near one group plus the result
-        parts = [pf.read_row_group(i).to_pandas() for i in range(pf.num_row_groups)]
-    except Exception as exc:  # pyarrow raises several unrelated types
-        raise DataFileError(f"{path}: not a readable Parquet file ({type(exc).__name__}).") from None
-    df = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame()
-    return _stringify(df)
-
-
-def _stringify(df):
-    out = {}
-    for c in df.columns:
-        col = df[c]
-        if pd.api.types.is_datetime64_any_dtype(col):
-            aware = getattr(col.dt, "tz", None) is not None
-            # zone-aware times are written in UTC ("Z"); naive ones stay naive (= UTC)
-            vals = (col.dt.tz_convert("UTC") if aware else col).dt.strftime(
-                "%Y-%m-%dT%H:%M:%S.%f") + ("Z" if aware else "")
-            out[str(c)] = vals.fillna("")
-        else:
-            out[str(c)] = col.astype("string").fillna("").astype(str)
-    return pd.DataFrame(out)
-
-
-def _iter_lines(path, encoding):
-    enc = "utf-8-sig" if encoding.lower().replace("_", "-") in ("utf-8", "utf8") else encoding
-    try:
-        with open(path, encoding=enc) as fh:
-            for line in fh:
-                yield line
-    except UnicodeDecodeError:
-        raise DataFileError(_decode_message(path, encoding)) from None
-
-
-def _read_jsonl(path, encoding):
-    records, bad = [], []
-    row = 0
-    for line in _iter_lines(path, encoding):
-        if not line.strip():
-            continue
-        row += 1
-        obj = _json_or_none(line)
-        if not isinstance(obj, dict):
-            bad.append(row)
-            records.append({})
-        else:
-            records.append({str(k): ("" if v is None else str(v)) for k, v in obj.items()
-                            if not isinstance(v, (dict, list))})
-    df = _frame(records)
-    df.attrs["bad_rows"] = {r: "bad_json" for r in bad}
-    return df
 
 
 def _physical_memory():
@@ -473,122 +322,20 @@ def _check_memory(path, size):
             f"available; split the log by learners, or pass --max-bytes to load it anyway.")
 
 
-def _json_or_none(line):
-    """The parsed line, or None when it is not JSON Python can hold (also integers
-    past the 4300-digit conversion limit and nesting past the recursion limit)."""
-    try:
-        return json.loads(line)
-    except (ValueError, RecursionError):
-        return None
-
-
-def _frame(records):
-    """One row per record, even when every record is empty (unreadable lines)."""
-    if not records:
-        return pd.DataFrame()
-    return pd.DataFrame(records, index=pd.RangeIndex(len(records))).fillna("")
-
-
-def _decode_message(path, encoding):
-    """One-line message naming the first line of ``path`` that is not ``encoding`` text."""
-    where = ""
-    try:
-        with open(path, "rb") as fh:
-            for lineno, raw in enumerate(fh, 1):
-                try:
-                    raw.decode(encoding)
-                except UnicodeDecodeError as exc:
-                    where = f" (line {lineno}, byte {exc.start + 1} of that line)"
-                    break
-    except (OSError, LookupError):  # pragma: no cover - the first read already worked
-        pass
-    return (f"{path}: not valid {encoding} text{where}; re-save the file as UTF-8 or pass "
-            f"--encoding (e.g. latin-1).")
-
-
-def _xapi_text(value):
-    """Readable text of an xAPI language map or identifier."""
-    if isinstance(value, dict):
-        for key in ("en-US", "en", "und"):
-            if value.get(key):
-                return str(value[key])
-        for v in value.values():
-            if v:
-                return str(v)
-        return ""
-    return "" if value is None else str(value)
-
-
-def _last_segment(iri):
-    iri = str(iri or "").rstrip("/")
-    for sep in ("/", "#", ":"):
-        if sep in iri:
-            iri = iri.rsplit(sep, 1)[1]
-    return iri
-
-
-def _xapi_actor(actor):
-    if not isinstance(actor, dict):
-        return ""
-    acc = actor.get("account")
-    if isinstance(acc, dict) and acc.get("name"):
-        return str(acc["name"])
-    for key in ("mbox", "mbox_sha1sum", "openid", "name"):
-        if actor.get(key):
-            v = str(actor[key])
-            return v[len("mailto:"):] if v.startswith("mailto:") else v
-    return ""
-
-
-def _read_xapi(path, encoding):
-    text = "".join(_iter_lines(path, encoding))
-    try:
-        doc = json.loads(text)
-        statements = doc.get("statements", []) if isinstance(doc, dict) else doc
-        if isinstance(doc, dict) and "statements" not in doc:
-            statements = [doc]
-    except (ValueError, RecursionError):  # not one JSON document: try one per line
-        statements = [_json_or_none(line) for line in text.splitlines() if line.strip()]
-    if not isinstance(statements, list):
-        raise DataFileError(f"{path}: expected a JSON array of xAPI statements.")
-    records, bad = [], {}
-    for i, st in enumerate(statements, start=1):
-        if not isinstance(st, dict):
-            bad[i] = "bad_json"
-            records.append({})
-            continue
-        verb = st.get("verb") if isinstance(st.get("verb"), dict) else {}
-        obj = st.get("object") if isinstance(st.get("object"), dict) else {}
-        ctx = st.get("context") if isinstance(st.get("context"), dict) else {}
-        definition = obj.get("definition") if isinstance(obj.get("definition"), dict) else {}
-        action = _xapi_text(verb.get("display")) or _last_segment(verb.get("id"))
-        target = _xapi_text(definition.get("name")) or _last_segment(obj.get("id"))
-        rec = {
-            "learner": _xapi_actor(st.get("actor")),
-            "action": action,
-            "time": str(st.get("timestamp") or ""),
-            "target": target,
-            "session": str(ctx.get("registration") or ""),
-            "channel": "",
-        }
-        if not (rec["learner"] and rec["action"] and rec["time"]):
-            bad[i] = "bad_statement"
-        records.append(rec)
-    df = _frame(records)
-    df.attrs["bad_rows"] = bad
-    return df
-
-
-def _validate(raw, cols, path, duplicates, max_action_length):
+def _validate(raw, cols, path, duplicates, max_action_length, times):
     n = len(raw)
     if n == 0:
         raise DataFileError(f"{path}: no data rows below the header; export the event log again.")
-    bad_rows = dict(raw.attrs.get("bad_rows", {}))
+    bad_rows = {r: (v if isinstance(v, tuple) else (v, ""))
+                for r, v in dict(raw.attrs.get("bad_rows", {})).items()}
     present = list(raw.columns)
     if bad_rows and len(bad_rows) == n:
+        first = bad_rows[min(bad_rows)]
         raise DataFileError(
             f"{path}: none of the {n} records could be read "
-            f"({sorted(set(bad_rows.values()))[0]}); check the file format.")
+            f"({sorted({c for c, _d in bad_rows.values()})[0]}"
+            f"{'; ' + first[1] if first[1] else ''}); check the file format"
+            f"{' and --delimiter' if first[0] == 'bad_fields' else ''}.")
     required = [cols[r] for r, req in EVENT_ROLES.items() if req]
     try:
         check_columns(present, required, str(path), option_hint="--{col}-column")
@@ -611,12 +358,19 @@ def _validate(raw, cols, path, duplicates, max_action_length):
     learner, action = lser.to_numpy(dtype=object), aser.to_numpy(dtype=object)
     session, target, channel = (col(r).to_numpy(dtype=object) for r in ("session", "target", "channel"))
     source_row = np.arange(1, n + 1, dtype=np.int64)
-    seconds, reason, kind = parse_times(col("time"), source=cols["time"])
-    detail = np.full(n, "", dtype=object)
+    unreadable = np.zeros(n, dtype=bool)
+    unreadable[np.array(sorted(bad_rows), dtype=np.int64) - 1] = True
+    tcol = col("time")
+    if unreadable.any():  # their (empty) cells must not count as missing times
+        tcol = tcol.where(~pd.Series(unreadable), "0")
+    tc = read_times(tcol, learners=learner, source=cols["time"], path=str(path), **times)
+    seconds, reason, detail = tc.seconds, tc.reason, tc.detail
     # one reason per row: unreadable records first, then the time problems found by
-    # parse_times, then the learner/action checks below in their listed order
-    for r, code in bad_rows.items():
+    # read_times, then the learner/action checks below in their listed order
+    for r, (code, text) in bad_rows.items():
         reason[r - 1] = code
+        detail[r - 1] = text
+    seconds[unreadable] = np.nan
     checks = [
         ("missing_learner", (lser == "").to_numpy()),
         ("missing_action", (aser == "").to_numpy()),
@@ -630,6 +384,7 @@ def _validate(raw, cols, path, duplicates, max_action_length):
     m = reason == "action_too_long"
     detail[m] = [f"{len(a)} characters > {max_action_length}" for a in action[m]]
     ok = pd.isna(reason)
+    n_dup = 0
     if duplicates == "reject" and ok.any():
         idx = np.flatnonzero(ok)
         key = pd.DataFrame({"l": learner[idx], "t": seconds[idx], "a": action[idx],
@@ -642,9 +397,8 @@ def _validate(raw, cols, path, duplicates, max_action_length):
             reason[didx] = "duplicate_event"
             detail[didx] = [f"same as row {r}" for r in first_row[dup]]
             ok[didx] = False
+            n_dup = int(dup.sum())
     bad = ~ok
-    detail[reason == "mixed_time_format"] = (
-        f"the column is mostly {'ISO 8601' if kind == 'iso' else 'numeric seconds'}")
     events = pd.DataFrame({
         "learner": pd.array(learner[ok], dtype=object),
         "time": seconds[ok],
@@ -667,9 +421,77 @@ def _validate(raw, cols, path, duplicates, max_action_length):
         top = rejects["reason"].value_counts().index[0]
         raise DataFileError(
             f"{path}: all {n} rows were rejected (most often: {top} - "
-            f"{REJECT_REASONS.get(top, top)}); check the column options and the time format.")
+            f"{REJECT_REASONS.get(top, top)}); {_all_rejected_hint(top, tc, times)}")
+    clock = {"time_unit": tc.unit, "time_unit_assumed": bool(tc.unit_assumed),
+             "timezone": tc.timezone, "ambiguous_local_times": tc.n_ambiguous,
+             "missing_local_times": tc.n_missing}
+    clock.update(diagnose_clock(events["learner"].to_numpy(object), events["time"].to_numpy(float)))
+    _warn_about_load(path, cols, tc, clock, events, rejects, n, n_dup)
     return LoadResult(events=events, rejects=rejects, n_input=n, path=os.fspath(path),
-                      time_kind=kind, n_out_of_order=n_ooo)
+                      time_kind=tc.kind, n_out_of_order=n_ooo, clock=clock)
+
+
+def _all_rejected_hint(top, tc, times):
+    if top == "time_out_of_range" and tc.kind == "numeric" and times["time_unit"] != "auto":
+        return ("the numbers do not fit the unit given with --time-unit; try --time-unit "
+                "auto, or s, ms or us.")
+    return "check the column options and the time format."
+
+
+def _warn_about_load(path, cols, tc, clock, events, rejects, n, n_dup):
+    """The loader's warnings (codes in the module docstring)."""
+    def warn(code, message, count=None):
+        warnings.warn(SeqmineWarning(message, code=code, count=count), stacklevel=4)
+
+    if tc.unit_assumed:
+        warn("time_unit_assumed", f"{path}: {tc.unit_assumed}", len(events))
+    if tc.n_ambiguous:
+        warn("ambiguous_local_times",
+             f"{path}: {tc.n_ambiguous:,} local time(s) fall in the hour repeated when "
+             f"{tc.timezone} leaves daylight-saving time; each was read as its first "
+             f"occurrence (the offset before the change).", tc.n_ambiguous)
+    if tc.n_missing:
+        warn("missing_local_times",
+             f"{path}: {tc.n_missing:,} local time(s) fall in the hour skipped when "
+             f"{tc.timezone} starts daylight-saving time; each was read with the offset "
+             f"before the change (02:30 becomes 03:30).", tc.n_missing)
+    res = clock["resolution"]
+    judged = clock["pairs"] >= _MIN_PAIRS
+    if judged and res in _COARSE:
+        warn("coarse_times",
+             f"{path}: times in column '{cols['time']}' are recorded to the {res}; gaps "
+             f"shorter than a {res} cannot be measured, and actions within the same "
+             f"{res} keep their file order.", len(events))
+    if judged and clock["tied_share"] > TIED_SHARE_WARNING:
+        warn("tied_times",
+             f"{path}: {clock['tied_share']:.0%} of consecutive events of a learner share "
+             f"their time stamp ({clock['tied_pairs']:,} of {clock['pairs']:,} pairs); "
+             f"their order is the file order, so 'ordered' patterns among them follow the "
+             f"export, not the learner.", clock["tied_pairs"])
+    if judged and n_dup and (res in _COARSE or (res == "second" and n_dup >= 0.01 * n)):
+        warn("duplicates_at_coarse_resolution",
+             f"{path}: {n_dup:,} row(s) were rejected as duplicates, but the clock only "
+             f"records whole {res}s, so separate actions in the same {res} look identical; "
+             f"if they are separate actions, pass --duplicates keep.", n_dup)
+    if n >= _MIN_ROWS_FOR_SHARE and len(rejects) > MANY_REJECTED_SHARE * n:
+        top = rejects["reason"].value_counts()
+        warn("many_rejected",
+             f"{path}: {len(rejects):,} of {n:,} rows ({len(rejects) / n:.0%}) were "
+             f"rejected, most often {top.index[0]} ({int(top.iloc[0]):,} rows); see "
+             f"rejects.csv.", len(rejects))
+    per = events["learner"].value_counts(sort=False)
+    if len(per) >= 3:
+        med = float(per.median())
+        heavy = per[(per >= _HEAVY_MIN_EVENTS) & (per > HEAVY_LEARNER_RATIO * med)]
+        if len(heavy):
+            top_learner = heavy.sort_values(ascending=False, kind="mergesort").index[0]
+            warn("heavy_learner",
+                 f"{path}: learner {str(top_learner)!r} has {int(heavy[top_learner]):,} "
+                 f"events, {heavy[top_learner] / med:,.0f} times the median of {med:,.0f} "
+                 f"per learner ({len(heavy)} such learner(s)); pause bins weigh every "
+                 f"learner equally, but such a learner dominates mining time and "
+                 f"transition counts; check whether it is a test account or a script.",
+                 len(heavy))
 
 
 def _count_out_of_order(events):

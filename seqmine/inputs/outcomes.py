@@ -14,6 +14,7 @@ kept as they are.
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 
 import numpy as np
@@ -29,8 +30,19 @@ __all__ = [
     "load_outcomes",
     "Grouping",
     "match_learners",
+    "canonical_learner_ids",
+    "reconcile_learner_ids",
     "DEFAULT_GROUP_NAMES",
+    "MATCH_ID_RULES",
 ]
+
+#: How learner identifiers of the events and the outcomes are matched: ``exact``
+#: (identical text; near matches stop the run with examples), ``numeric`` (ids that are
+#: whole numbers match whatever their leading zeros or decimal ``.0``: 1 = 01 = 1.0).
+MATCH_ID_RULES = ("exact", "numeric")
+
+_DECIMAL_COMMA = r"[+-]?\d+,\d+"
+_WHOLE_NUMBER = re.compile(r"[+-]?0*(\d+)(?:\.0*)?")
 
 #: Group names of the two-group rules: better outcomes first.
 DEFAULT_GROUP_NAMES = ("strong", "weak")
@@ -67,7 +79,8 @@ def normalized_gain(pre, post, maximum):
     return g
 
 
-def load_outcomes(path, *, columns=None, kind="auto", max_score=None, delimiter=None):
+def load_outcomes(path, *, columns=None, kind="auto", max_score=None, delimiter=None,
+                  decimal_comma=DEFAULT_CONFIG["events"]["decimal_comma"]):
     """Read and check an outcomes table.
 
     Parameters
@@ -82,6 +95,9 @@ def load_outcomes(path, *, columns=None, kind="auto", max_score=None, delimiter=
     max_score : float, optional
         Maximum score when the table has no ``max`` column.
     delimiter : str, optional
+    decimal_comma : bool
+        Read scores written with a decimal comma (``0,5``). Without it such scores stop
+        the load with a message that shows them.
 
     Returns
     -------
@@ -156,15 +172,15 @@ def load_outcomes(path, *, columns=None, kind="auto", max_score=None, delimiter=
         out["label"] = lab.to_numpy(dtype=object)
     elif kind == "score":
         check_columns(df.columns, [roles["score"]], str(path), "--score-column")
-        out["score"] = _numeric(df[roles["score"]], roles["score"], path, rows)
+        out["score"] = _numeric(df[roles["score"]], roles["score"], path, rows, decimal_comma)
     else:
         need = [roles["pre"], roles["post"]] + ([] if max_score is not None else [roles["max"]])
         check_columns(df.columns, need, str(path),
                       "--{col}-column (or give --max-score for a fixed maximum)")
-        pre = _numeric(df[roles["pre"]], roles["pre"], path, rows)
-        post = _numeric(df[roles["post"]], roles["post"], path, rows)
+        pre = _numeric(df[roles["pre"]], roles["pre"], path, rows, decimal_comma)
+        post = _numeric(df[roles["post"]], roles["post"], path, rows, decimal_comma)
         mx = (np.full(len(df), float(max_score)) if max_score is not None
-              else _numeric(df[roles["max"]], roles["max"], path, rows))
+              else _numeric(df[roles["max"]], roles["max"], path, rows, decimal_comma))
         for name, vals in ((roles["pre"], pre), (roles["post"], post)):
             over = vals > mx
             if over.any():
@@ -178,11 +194,21 @@ def load_outcomes(path, *, columns=None, kind="auto", max_score=None, delimiter=
         out["pre"], out["post"], out["max"] = pre, post, mx
         out["gain"] = normalized_gain(pre, post, mx)
     out.attrs["outcome_kind"] = kind
+    out.attrs["path"] = str(path)
     return out
 
 
-def _numeric(series, name, path, rows):
+def _numeric(series, name, path, rows, decimal_comma=False):
     s = series.astype(str).str.strip()
+    comma = s.str.fullmatch(_DECIMAL_COMMA).to_numpy(dtype=bool)
+    if comma.any() and decimal_comma:
+        s = s.where(~comma, s.str.replace(",", ".", regex=False))
+    elif comma.any():
+        shown = ", ".join(f"row {rows[i]}: {s.iloc[i]!r}" for i in np.flatnonzero(comma)[:3])
+        raise DataFileError(
+            f"{path}: column '{name}' has {int(comma.sum())} number(s) written with a decimal "
+            f"comma ({shown}); re-save the file with decimal points (0.5) or pass "
+            f"--decimal-comma.")
     vals = pd.to_numeric(s, errors="coerce").to_numpy(dtype=float)
     bad = ~np.isfinite(vals)
     if bad.any():
@@ -344,3 +370,85 @@ def match_learners(events, outcomes, groups):
         "learners_per_group": {str(k): int(v) for k, v in sorted(per_group.items())},
     }
     return mapping, report
+
+
+def canonical_learner_ids(values):
+    """Ids that are whole numbers written as their plain integer (``01``, ``1.0`` -> ``1``).
+
+    Other ids are returned unchanged.
+
+    Examples
+    --------
+    >>> canonical_learner_ids(["01", "40.0", "+7", "L01", "1.5"]).tolist()
+    ['1', '40', '7', 'L01', '1.5']
+    """
+    s = pd.Series(np.asarray(values, dtype=object)).astype(str)
+    m = s.str.fullmatch(_WHOLE_NUMBER.pattern)
+    digits = s.str.extract(_WHOLE_NUMBER.pattern + "$", expand=False)
+    neg = s.str.startswith("-") & (digits.fillna("").str.strip("0") != "")
+    out = np.where(m, np.where(neg, "-", "") + digits.fillna(""), s)
+    return pd.Series(out, dtype=object).to_numpy(dtype=object)
+
+
+def reconcile_learner_ids(events, outcomes, match_ids=DEFAULT_CONFIG["outcomes"]["match_ids"], *,
+                          events_source="events", outcomes_source="outcomes"):
+    """Events and outcomes with learner ids matched by ``match_ids``; near matches stop.
+
+    With ``match_ids="numeric"`` both tables' ids become :func:`canonical_learner_ids`.
+    Then, among the ids found in only one of the tables, any pair that differs only in
+    how the id is written (leading zeros, a decimal ``.0``, letter case, surrounding
+    white space) stops the run: reading them as different learners would silently
+    lose both.
+
+    Returns
+    -------
+    events, outcomes : DataFrame
+
+    Raises
+    ------
+    DataFileError
+        Naming examples from both files and the fix.
+
+    Examples
+    --------
+    >>> ev = pd.DataFrame({"learner": ["01", "02"]})
+    >>> oc = pd.DataFrame({"learner": ["1", "2"]})
+    >>> reconcile_learner_ids(ev, oc, "numeric")[0]["learner"].tolist()
+    ['1', '2']
+    """
+    check_choice(match_ids, "match_ids", MATCH_ID_RULES, "reconcile_learner_ids")
+    if match_ids == "numeric":
+        events = events.assign(learner=canonical_learner_ids(events["learner"]))
+        kind = outcomes.attrs.get("outcome_kind")
+        attrs = dict(outcomes.attrs)
+        outcomes = outcomes.assign(learner=canonical_learner_ids(outcomes["learner"]))
+        outcomes.attrs.update(attrs, outcome_kind=kind)
+        dup = outcomes["learner"].duplicated(keep=False)
+        if dup.any():
+            raise DataFileError(
+                f"{outcomes_source}: with --match-ids numeric the ids "
+                f"{sorted(map(str, outcomes['learner'][dup].unique()))[:3]} stand for more "
+                f"than one row; keep one outcome row per learner.")
+    ev_ids = pd.unique(events["learner"].astype(str))
+    oc_ids = pd.unique(outcomes["learner"].astype(str))
+    only_ev = sorted(set(ev_ids) - set(oc_ids))
+    only_oc = sorted(set(oc_ids) - set(ev_ids))
+    if not only_ev or not only_oc:
+        return events, outcomes
+    def key(ids):
+        return pd.Series(canonical_learner_ids([i.strip() for i in ids])).str.casefold().tolist()
+    oc_by_key = {}
+    for k, i in zip(key(only_oc), only_oc):
+        oc_by_key.setdefault(k, i)
+    pairs = [(e, oc_by_key[k]) for k, e in zip(key(only_ev), only_ev) if k in oc_by_key]
+    if not pairs:
+        return events, outcomes
+    shown = ", ".join(f"events {e!r} vs outcomes {o!r}" for e, o in pairs[:3])
+    numeric = all(canonical_learner_ids([e])[0] == canonical_learner_ids([o])[0]
+                  for e, o in pairs)
+    fix = ("make the ids identical in both files, or pass --match-ids numeric to read 1, "
+           "01 and 1.0 as the same learner" if numeric and match_ids == "exact" else
+           "make the ids identical in both files (same case and spelling)")
+    raise DataFileError(
+        f"{events_source} and {outcomes_source}: {len(pairs)} learner id(s) almost match "
+        f"but differ in how they are written ({shown}); {fix}.")

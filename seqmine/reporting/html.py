@@ -8,6 +8,7 @@ formatted here, never taken as text from the files.
 
 from __future__ import annotations
 
+import contextvars
 import math
 import re
 from html import escape
@@ -250,6 +251,11 @@ def _h2(sid):
 
 
 def _section(sid, parts):
+    parts = list(parts)
+    ranges = PAUSE_RANGES.get()
+    if sid in _PAUSE_KEY_SECTIONS and ranges:
+        parts.append('<p class="note">Pause tokens: ' + "; ".join(
+            f"{esc(tok)} = {esc(text)}" for tok, text in ranges.items()) + ".</p>")
     return f'<section class="sec-{sid}">\n' + "\n".join(p for p in parts if p) + "\n</section>"
 
 
@@ -275,10 +281,20 @@ def _table(heads, rows, *, raw_cells=False, num_cols=()):
             f"<tbody>{''.join(body)}</tbody></table></div>")
 
 
+#: Pause token -> its range in seconds, for the page being written (set by render).
+PAUSE_RANGES = contextvars.ContextVar("pause_ranges", default={})
+
+#: Sections whose figures name pause tokens: they end with a key to the ranges.
+_PAUSE_KEY_SECTIONS = ("patterns", "explorer", "transitions", "phases")
+
+
 def _chip(tok):
     tok = str(tok)
-    cls = "tok pause" if tok.startswith("pause:") else "tok"
-    return f'<span class="{cls}">{esc(tok, max_chars=120)}</span>'
+    if not tok.startswith("pause:"):
+        return f'<span class="tok">{esc(tok, max_chars=120)}</span>'
+    span = PAUSE_RANGES.get().get(tok)
+    extra = f'<small class="range">{esc(span)}</small>' if span else ""
+    return f'<span class="tok pause">{esc(tok, max_chars=120)}{extra}</span>'
 
 
 def _chips(tokens):

@@ -133,14 +133,6 @@ def _detector_card(i, det, groups, show_example=True):
         facts.append(f"<span>priority <b>{esc(det['priority'])}</b></span>")
     if det.get("favours"):
         facts.append(f"<span>more common among {_group_label(det['favours'], groups)}</span>")
-    pauses = det.get("pause_seconds")
-    if isinstance(pauses, dict):
-        for tok, span in pauses.items():
-            if isinstance(span, list) and len(span) == 2 and _is_finite(span[0]):
-                lo, hi = _as_float(span[0]), _as_float(span[1])
-                text = (f"{_duration(lo)} or more" if not math.isfinite(hi) else
-                        f"{_duration(lo)} to under {_duration(hi)}")
-                facts.append(f"<span>{_chip(tok)} = {text}</span>")
     for key in ("max_gap", "max_window"):
         if det.get(key) is not None:
             facts.append(f"<span>{esc(label_of(key))} <b>{esc(det[key])}</b></span>")
@@ -179,7 +171,8 @@ def _when_it_hints(det, direction):
 def _evidence_block(ev, groups):
     """Per-group supports and rates as a small table, the other evidence as a line."""
     per = {k: ev.get(k) for k in ("n", "support", "rate") if isinstance(ev.get(k), dict)}
-    rest = {k: v for k, v in ev.items() if k not in per}
+    # pause ranges are shown in the token chips themselves
+    rest = {k: v for k, v in ev.items() if k not in per and k != "pause_ranges"}
     out = []
     names = _ordered([g for d in per.values() for g in d], groups)
     if names:

@@ -29,6 +29,7 @@ from ..config import DEFAULT_CONFIG
 from ..errors import DataFileError
 from . import html as hx
 from . import sections as sec
+from .datachecks import DATA_CHECKS_CSS, report_pause_ranges
 from .examples import build_examples
 from .explorer import DEFAULT_MAX_ROWS, EXPLORER_SCRIPT, script_hash, section_explorer, swatch_css
 from .html import esc
@@ -221,7 +222,6 @@ DETECTOR_KEYS = {
     "absence": "{after_events, after_seconds}: encourage detectors fire when absent",
     "evidence": "object of evidence values (support, rate, n, p_value, q_value, effects, "
                 "stability, ...)",
-    "pause_seconds": "{pause token: [from, to]} seconds",
     "example": "one excerpt {learner, group, events}",
     "notes": "free text for reviewers",
 }
@@ -472,6 +472,15 @@ def _alpha(summary):
 
 
 def _page(d, *, examples, max_patterns, max_examples, explorer_rows=DEFAULT_MAX_ROWS):
+    token = hx.PAUSE_RANGES.set(report_pause_ranges(d))
+    try:
+        return _page_body(d, examples=examples, max_patterns=max_patterns,
+                          max_examples=max_examples, explorer_rows=explorer_rows)
+    finally:
+        hx.PAUSE_RANGES.reset(token)
+
+
+def _page_body(d, *, examples, max_patterns, max_examples, explorer_rows):
     figs = hx.FigureIds()
     explorer = section_explorer(d, max_rows=explorer_rows)
     scripted = 'id="explorer-data"' in explorer
@@ -501,7 +510,8 @@ def _page(d, *, examples, max_patterns, max_examples, explorer_rows=DEFAULT_MAX_
         f"{script_src}style-src 'unsafe-inline'; base-uri 'none'; form-action 'none'\">\n"
         "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n"
         "<meta name=\"referrer\" content=\"no-referrer\">\n"
-        f"<title>{hx.PAGE_TITLE}</title>\n<style>\n{hx.CSS}{swatch_css()}</style>\n</head>\n"
+        f"<title>{hx.PAGE_TITLE}</title>\n<style>\n{hx.CSS}{DATA_CHECKS_CSS}{swatch_css()}"
+        "</style>\n</head>\n"
         f"<body>\n<main>\n{body}\n</main>\n<footer>{footer}</footer>\n{script}</body>\n"
         "</html>\n"
     )

@@ -13,6 +13,7 @@ import math
 import numpy as np
 
 from . import plots as _plots
+from .datachecks import data_checks_box
 from .html import (
     _CORRECTIONS,
     _SECTIONS,
@@ -67,6 +68,7 @@ def section_intro(d):
            "in one outcome group than in another, how they unfold over time, and how early a "
            "struggling learner can be recognised. Every number here is read from the files "
            "in this folder.</p>", f'<nav class="toc"><b>Contents</b><ol>{toc}</ol></nav>']
+    out.append(data_checks_box(d))  # what the run assumed, above any finding
     out.append(_key_findings(d))
     out.append("</header>")
     return "\n".join(out)

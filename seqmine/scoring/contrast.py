@@ -56,7 +56,8 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
              n_permutations=_DEFAULTS["n_permutations"], random_state=DEFAULT_CONFIG["seed"],
              n_bootstrap=_DEFAULTS["n_bootstrap"], redundancy=_DEFAULTS["redundancy"],
              redundancy_order="significance", drop_redundant=False, rate_unit=None,
-             unit="sequence", batch_size=None, n_jobs=DEFAULT_CONFIG["n_jobs"], scheduler=None):
+             unit=_DEFAULTS["unit"], batch_size=None, n_jobs=DEFAULT_CONFIG["n_jobs"],
+             scheduler=None):
     """Score every pattern for how it separates outcome groups.
 
     Parameters
@@ -98,11 +99,13 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
         Rates are instance counts per 100 tokens of the sequence (pauses included),
         per 100 action tokens (needs ``db``), or raw instance counts per sequence.
         Default: ``"tokens"`` when lengths are known, else ``"count"``.
-    unit : {"sequence", "learner"}
+    unit : {"auto", "sequence", "learner"}
         Unit of analysis. ``"learner"`` (needs ``db``) first merges each learner's
         sequences (sessions): instance counts and lengths are summed, a pattern is
         present when it occurs in any of them; supports are then shares of learners
-        and permutations and resamples move whole learners.
+        and permutations and resamples move whole learners. ``"auto"`` (the default)
+        is ``"learner"`` when ``db`` shows several sequences for some learner, else
+        ``"sequence"``, so each learner counts once.
     batch_size : int, optional
         Permutations/resamples per sparse product (memory bound).
     n_jobs, scheduler
@@ -153,11 +156,11 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
     highest-priority such pattern. Chains do not propagate: a pattern close only to
     a redundant pattern stays kept.
 
-    *Units.* Sequences are the units of analysis (one per learner when encoding by
-    learner); permutations and resamples move whole sequences. When ``db`` shows
-    several sequences per learner and ``unit="sequence"``, a SeqmineWarning says that
-    they are treated as independent; ``unit="learner"`` merges them first. Findings
-    are correlational.
+    *Units.* The learner is the unit: with one sequence per learner the sequences are
+    the units and permutations and resamples move whole sequences; with several
+    (sessions), ``unit="auto"`` merges each learner's first. When ``db`` shows several
+    sequences per learner and ``unit="sequence"``, a SeqmineWarning says that they are
+    treated as independent. Findings are correlational.
 
     References
     ----------
@@ -282,7 +285,7 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
 
 
 def pairwise_contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh",
-                      alpha=0.05, rate_unit=None, unit="sequence"):
+                      alpha=0.05, rate_unit=None, unit="auto"):
     """Two-group comparisons of every pair of groups, as one long table.
 
     Parameters
@@ -371,8 +374,12 @@ def sequence_rates(patterns, lengths=None, *, per=100.0):
 
 # --------------------------------------------------------------------- helpers
 def _prepare_unit(patterns, db, lengths, groups, rate_unit, unit, where):
-    """:func:`_prepare` after merging sequences into learners when ``unit='learner'``."""
-    check_choice(unit, "unit", ("sequence", "learner"), where)
+    """:func:`_prepare` after merging sequences into learners when ``unit='learner'``
+    (or ``'auto'`` and some learner has several sequences)."""
+    check_choice(unit, "unit", ("auto", "sequence", "learner"), where)
+    if unit == "auto":
+        repeated = db is not None and len(np.unique(db.learners)) < db.n_sequences
+        unit = "learner" if repeated else "sequence"
     if unit == "sequence":
         prep = _prepare(patterns, db, lengths, groups, rate_unit, where)
         prep["patterns"] = patterns

@@ -23,6 +23,7 @@ __all__ = ["add_option", "flag_for", "FLAG_EXCEPTIONS", "add_event_options",
            "events_from_args", "outcomes_from_args", "grouping_from_args",
            "encoder_from_args", "mining_params", "add_privacy_option",
            "pseudonymize_inputs", "print_warnings", "int_or_none", "float_or_none",
+           "seconds_or_none",
            "support_value", "float_list", "label_list", "NONE_WORD", "shown"]
 
 #: How "no limit" / "not set" is written on the command line and in TOML files.
@@ -86,6 +87,21 @@ def add_option(group, section, key, *, flag=None, to_config=None, help="", **kwa
 
 
 # ----------------------------------------------------------------- value parsers
+def seconds_or_none(text):
+    """A positive number of seconds, or ``none`` (switched off)."""
+    t = str(text).strip().lower()
+    if t == NONE_WORD:
+        return None
+    try:
+        value = float(t)
+    except ValueError:
+        value = float("nan")
+    if not 0 < value < float("inf"):
+        raise OptionValueError(
+            f"expected a positive number of seconds (e.g. 1800) or 'none'; got {text!r}")
+    return value
+
+
 def int_or_none(text):
     """A whole number, or ``none`` (no limit)."""
     t = str(text).strip().lower()
@@ -178,6 +194,16 @@ def add_event_options(p):
     add_duplicates_option(g, what="exact duplicate events")
     add_option(g, "events", "max_bytes", type=_whole_number, metavar="N",
                help="refuse event files larger than this many bytes (default: {default})")
+    add_option(g, "events", "time_unit", choices=["auto", "s", "ms", "us"],
+               help="what a numeric time stands for; auto recognises milliseconds and "
+                    "microseconds since 1970 and relative milliseconds, and says so "
+                    "(default: {default})")
+    add_option(g, "events", "timezone", metavar="NAME",
+               help="IANA time zone of ISO 8601 times written without a zone, e.g. "
+                    "Europe/Berlin (default: UTC)")
+    add_option(g, "events", "decimal_comma", action=argparse.BooleanOptionalAction,
+               help="numbers in the events and the outcomes are written with a decimal "
+                    "comma, 12,5 (default: {default})")
 
 
 def add_duplicates_option(g, *, what):
@@ -212,6 +238,10 @@ def add_outcome_options(p, required=True):
     add_option(g, "outcomes", "low", type=float, metavar="X", help="below this: weak (thresholds rule)")
     add_option(g, "outcomes", "high", type=float, metavar="X",
                help="at or above this: strong (thresholds rule)")
+    add_option(g, "outcomes", "match_ids", choices=["exact", "numeric"],
+               help="how learner ids of the events and the outcomes match: exact text (ids "
+                    "that almost match stop the run), or numeric (1, 01 and 1.0 are one "
+                    "learner) (default: {default})")
 
 
 def add_encoding_options(p):
@@ -234,9 +264,11 @@ def add_encoding_options(p):
                help="pause bins that emit no token: labels such as short,medium, or "
                     "'shortest' for the first bin (default: {default}; '' for none)")
     add_option(g, "encode", "unit", choices=["learner", "session"],
-               help="one sequence per learner or per session (default: {default})")
-    add_option(g, "encode", "session_gap", type=float, metavar="S",
-               help="with --unit session: a gap longer than this (s) starts a new session")
+               help="one sequence per session or per learner (default: {default})")
+    add_option(g, "encode", "session_gap", type=seconds_or_none, metavar="S",
+               help="with --unit session: more seconds without an action than this start a "
+                    "new sequence, 'none' = only a change of the session column (default: "
+                    "{default}, i.e. 30 minutes)")
 
 
 def add_mining_options(p, title="mining"):
@@ -299,7 +331,8 @@ def events_from_args(args, path):
     columns = {role: getattr(args, f"{role}_column") for role in EVENT_ROLES}
     return load_events(path, columns=columns, format=args.format, delimiter=args.delimiter,
                        encoding=args.encoding, duplicates=args.duplicates,
-                       max_bytes=args.max_bytes)
+                       max_bytes=args.max_bytes, time_unit=args.time_unit,
+                       timezone=args.timezone, decimal_comma=args.decimal_comma)
 
 
 def outcomes_from_args(args):
@@ -307,7 +340,8 @@ def outcomes_from_args(args):
     cols = {"learner": args.outcome_learner_column, "pre": args.pre_column,
             "post": args.post_column, "max": args.max_column, "score": args.score_column,
             "label": args.label_column}
-    return load_outcomes(args.outcomes, columns=cols, max_score=args.max_score)
+    return load_outcomes(args.outcomes, columns=cols, max_score=args.max_score,
+                         decimal_comma=getattr(args, "decimal_comma", False))
 
 
 def grouping_from_args(args, outcomes):
@@ -328,16 +362,19 @@ def add_privacy_option(p):
 
 
 def pseudonymize_inputs(args, loaded, outcomes):
-    """Events and outcomes with learner identifiers replaced, when --pseudonymize is given.
+    """Events and outcomes with learner ids matched (--match-ids) and replaced by keyed
+    hashes when --pseudonymize is given.
 
     Done right after loading (as ``seqmine analyze`` does), so no output sees a raw id.
     """
+    from ...pipeline import reconcile_inputs
     key_path = getattr(args, "pseudonymize", None)
-    if not key_path:
-        return loaded, outcomes
-    from ...inputs.privacy import read_key
-    from ...pipeline import pseudonymize_inputs as replace
-    return replace(loaded, outcomes, read_key(key_path))
+    key = None
+    if key_path:
+        from ...inputs.privacy import read_key
+        key = read_key(key_path)
+    return reconcile_inputs(loaded, outcomes, match_ids=getattr(args, "match_ids", "exact"),
+                            key=key)
 
 
 def print_warnings(frame):

@@ -47,9 +47,10 @@ def add_arguments(parser):
     g.add_argument("--rate-unit", choices=("tokens", "actions", "count"), default=None,
                    help="rates per 100 tokens, per 100 actions or raw counts (default: "
                         "tokens with --sequences, else count)")
-    g.add_argument("--unit", choices=("sequence", "learner"), default="sequence",
-                   help="unit of analysis; 'learner' merges each learner's sessions first "
-                        "(needs --sequences; default: sequence)")
+    add_option(g, "contrast", "unit", choices=("auto", "sequence", "learner"),
+               help="unit of analysis; 'learner' merges each learner's sessions first "
+                    "(needs --sequences); 'auto' is 'learner' when some learner has several "
+                    "sequences, so each learner counts once (default: {default})")
     add_option(g, "transitions", "exclude_pauses", action=argparse.BooleanOptionalAction,
                help="transitions skip pause tokens (default: {default})")
 

@@ -26,21 +26,25 @@ def add_arguments(p):
 
 
 def run(args):
-    from ...pipeline import prepare_sequences
+    from ..._util.warnlog import collect_warnings
+    from ...pipeline import prepare_sequences, warnings_frame
     out = Path(args.out)
-    loaded, outcomes = _options.pseudonymize_inputs(
-        args, _options.events_from_args(args, args.events), _options.outcomes_from_args(args))
-    prepared = prepare_sequences(
-        loaded, outcomes,
-        grouping_factory=lambda o: _options.grouping_from_args(args, o),
-        encoder=_options.encoder_from_args(args))
+    with collect_warnings() as log:
+        loaded, outcomes = _options.pseudonymize_inputs(
+            args, _options.events_from_args(args, args.events), _options.outcomes_from_args(args))
+        prepared = prepare_sequences(
+            loaded, outcomes,
+            grouping_factory=lambda o: _options.grouping_from_args(args, o),
+            encoder=_options.encoder_from_args(args))
     out.mkdir(parents=True, exist_ok=True)
     prepared.db.save(out / "sequences")
     write_csv(prepared.rejects, out / "rejects.csv")
-    (out / "summary.json").write_text(json.dumps(prepared.summary, indent=2, sort_keys=True) + "\n",
+    summary = dict(prepared.summary, warnings=log.as_list())
+    (out / "summary.json").write_text(json.dumps(summary, indent=2, sort_keys=True) + "\n",
                                       encoding="utf-8")
     if not args.quiet:
         s = prepared.summary
         print(f"encoded {s['sequences']} sequences ({s['tokens']} tokens) from "
               f"{s['rows_kept']} of {s['rows_in']} rows; {s['rows_rejected']} rejected -> {out}")
+    _options.print_warnings(warnings_frame(log))
     return 0
