@@ -32,7 +32,7 @@ def main(out_dir):
     report = Path(out_dir) / "report.html"
     with tempfile.TemporaryDirectory() as work, DevTools(work) as dt:
         dt.open(report, width=1000, height=900)
-        dt.screenshot(HERE / "report-top.png", clip=_box(dt, "header#top", max_height=760))
+        dt.screenshot(HERE / "report-top.png", clip=_box(dt, "header#top", max_height=920))
         # the explorer with two filters set
         dt.eval("""(function () {
             var t = document.getElementById('ex-text'); t.value = 'reset';

@@ -65,12 +65,13 @@ def report_pause_ranges(d):
     if enc is None:
         det = d["detectors"].value if "detectors" in d else None
         enc = det.get("encoding") if isinstance(det, dict) else None
+        enc = enc if isinstance(enc, dict) else None
     if enc is None and isinstance(summary.get("pause_edges_seconds"), list):
         enc = {"pause": {"edges": summary.get("pause_edges_seconds"),
                          "labels": summary.get("pause_labels") or []}}
     try:
         return pause_ranges(enc or {})
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, AttributeError):  # an edited file of another shape
         return {}
 
 
