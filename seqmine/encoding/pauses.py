@@ -155,10 +155,17 @@ def pause_ranges(encoding):
     >>> pause_ranges({"pause": {"edges": [5.0, 17.0], "labels": ["short", "medium", "long"]}})
     {'pause:short': 'under 5 s', 'pause:medium': '5 s to under 17 s', 'pause:long': '17 s or more'}
     """
-    pause = (encoding or {}).get("pause") or {}
-    edges = [float(e) for e in pause.get("edges") or []]
-    labels = [str(x) for x in pause.get("labels") or []]
-    if len(labels) != len(edges) + 1:
+    # read from files a user may have edited: anything malformed gives no ranges
+    pause = encoding.get("pause") if isinstance(encoding, dict) else None
+    if not isinstance(pause, dict):
+        return {}
+    edges, labels = pause.get("edges") or [], pause.get("labels") or []
+    try:
+        edges = [float(e) for e in edges]
+        labels = [str(x) for x in labels]
+    except (TypeError, ValueError):
+        return {}
+    if len(labels) != len(edges) + 1 or not all(map(math.isfinite, edges)):
         return {}
     bounds = [0.0, *edges, math.inf]
     return {PAUSE_PREFIX + lab: pause_range_text(bounds[i], bounds[i + 1])

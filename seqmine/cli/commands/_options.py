@@ -43,6 +43,16 @@ FLAG_EXCEPTIONS = {
 }
 
 
+
+class OnOffAction(argparse.BooleanOptionalAction):
+    """``--name`` / ``--no-name``, with our help text on every Python version (argparse
+    before 3.12 appends its own "(default: ...)" note, which breaks once the default is
+    suppressed so that only flags actually given override the configuration)."""
+
+    def __init__(self, *args, help=None, **kwargs):
+        super().__init__(*args, help=help, **kwargs)
+        self.help = help
+
 def flag_for(section, key):
     """The flag of a configuration key: ``("contrast", "n_permutations")`` ->
     ``"--permutations"`` (see :data:`FLAG_EXCEPTIONS`)."""
@@ -201,7 +211,7 @@ def add_event_options(p):
     add_option(g, "events", "timezone", metavar="NAME",
                help="IANA time zone of ISO 8601 times written without a zone, e.g. "
                     "Europe/Berlin (default: UTC)")
-    add_option(g, "events", "decimal_comma", action=argparse.BooleanOptionalAction,
+    add_option(g, "events", "decimal_comma", action=OnOffAction,
                help="numbers in the events and the outcomes are written with a decimal "
                     "comma, 12,5 (default: {default})")
 
@@ -251,7 +261,7 @@ def add_encoding_options(p):
                     "{default})")
     add_option(g, "encode", "mapping", metavar="FILE",
                help="CSV action,symbol to rename/merge (same symbol) or drop (empty symbol)")
-    add_option(g, "encode", "collapse_repeats", action=argparse.BooleanOptionalAction,
+    add_option(g, "encode", "collapse_repeats", action=OnOffAction,
                help="merge immediate repeats (default: {default})")
     add_option(g, "encode", "pause_strategy",
                choices=["quantile", "fixed", "learner_quantile", "none"],
@@ -286,17 +296,17 @@ def add_mining_options(p, title="mining"):
                     "limit (default: {default})")
     add_option(g, "mine", "max_window", type=int_or_none, metavar="N",
                help="largest span of an occurrence in tokens, or 'none' (default: {default})")
-    add_option(g, "mine", "skip_pauses", action=argparse.BooleanOptionalAction,
+    add_option(g, "mine", "skip_pauses", action=OnOffAction,
                help="pause tokens do not count toward gaps and windows, so 'a > b' also "
                     "matches a, pause, b (default: {default})")
-    add_option(g, "mine", "start_with_action", action=argparse.BooleanOptionalAction,
+    add_option(g, "mine", "start_with_action", action=OnOffAction,
                help="report only patterns whose first item is an action (default: {default})")
-    add_option(g, "mine", "end_with_action", action=argparse.BooleanOptionalAction,
+    add_option(g, "mine", "end_with_action", action=OnOffAction,
                help="report only patterns whose last item is an action (default: {default})")
-    add_option(g, "mine", "closed", action=argparse.BooleanOptionalAction,
+    add_option(g, "mine", "closed", action=OnOffAction,
                help="drop patterns contained in a longer one with the same support in every "
                     "group (default: {default})")
-    add_option(g, "mine", "maximal", action=argparse.BooleanOptionalAction,
+    add_option(g, "mine", "maximal", action=OnOffAction,
                help="drop patterns contained in a longer reported pattern (default: {default})")
     add_option(g, "mine", "max_patterns", type=int, metavar="N",
                help="stop when more frequent patterns than N are found (default: {default})")

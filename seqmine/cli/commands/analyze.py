@@ -6,7 +6,7 @@ import argparse
 
 from ...config import default_config, load_config, merge_config
 from . import _options
-from ._options import add_option, print_warnings
+from ._options import OnOffAction, add_option, print_warnings
 
 NAME = "analyze"
 HELP = "run every stage on your event log and outcomes and write the output folder"
@@ -30,7 +30,7 @@ def add_arguments(p):
     _options.add_encoding_options(p)
     _options.add_mining_options(p)
     g = _options.add_contrast_options(p)
-    add_option(g, "transitions", "exclude_pauses", action=argparse.BooleanOptionalAction,
+    add_option(g, "transitions", "exclude_pauses", action=OnOffAction,
                help="transitions skip pause tokens (default: {default})")
     g = p.add_argument_group("later stages")
     add_option(g, "validate", "n_splits", type=int, metavar="K",
@@ -42,7 +42,7 @@ def add_arguments(p):
                to_config=lambda v: not v, help="skip the hidden Markov models")
     add_option(g, "validate", "enabled", action="store_true", default=False,
                to_config=lambda v: not v, help="skip the early-prediction check")
-    add_option(g, "report", "examples", action=argparse.BooleanOptionalAction,
+    add_option(g, "report", "examples", action=OnOffAction,
                help="log excerpts in the report (default: {default})")
     # A flag overrides the configuration only when it is given: no parser defaults.
     keep = {"help", "events", "out", "outcomes", "config", "debug", "quiet"}

@@ -2,14 +2,13 @@
 
 from __future__ import annotations
 
-import argparse
 from pathlib import Path
 
 from ..._util.csvio import write_csv
 from ..._util.progress import is_quiet
 from ...errors import DataFileError, ParameterError
 from . import _options
-from ._options import add_option
+from ._options import OnOffAction, add_option
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run", "read_patternset"]
 
@@ -51,7 +50,7 @@ def add_arguments(parser):
                help="unit of analysis; 'learner' merges each learner's sessions first "
                     "(needs --sequences); 'auto' is 'learner' when some learner has several "
                     "sequences, so each learner counts once (default: {default})")
-    add_option(g, "transitions", "exclude_pauses", action=argparse.BooleanOptionalAction,
+    add_option(g, "transitions", "exclude_pauses", action=OnOffAction,
                help="transitions skip pause tokens (default: {default})")
 
 

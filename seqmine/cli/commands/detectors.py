@@ -9,7 +9,7 @@ from pathlib import Path
 from ..._util.progress import is_quiet
 from ...errors import DataFileError, OptionValueError
 from . import _options
-from ._options import add_option
+from ._options import OnOffAction, add_option
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -70,7 +70,7 @@ def add_arguments(parser):
                    help="override the pattern set's max gap ('none' = no limit)")
     g.add_argument("--max-window", type=_opt_int, default=argparse.SUPPRESS, metavar="N",
                    help="override the pattern set's max window ('none' = no limit)")
-    g.add_argument("--skip-pauses", action=argparse.BooleanOptionalAction, default=None,
+    g.add_argument("--skip-pauses", action=OnOffAction, default=None,
                    help="override whether pause tokens count toward gaps and windows "
                         "(default: as the pattern set was mined)")
     g.add_argument("--absence-events", type=_absence_events, default="auto", metavar="N",

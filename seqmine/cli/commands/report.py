@@ -2,10 +2,9 @@
 
 from __future__ import annotations
 
-import argparse
 
 from ...errors import ParameterError
-from ._options import add_option
+from ._options import OnOffAction, add_option
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
 
@@ -23,7 +22,7 @@ DESCRIPTION = (
 def add_arguments(parser):
     """Options of ``seqmine report``."""
     parser.add_argument("out_dir", metavar="OUT_DIR", help="output folder of 'seqmine analyze'")
-    add_option(parser, "report", "examples", action=argparse.BooleanOptionalAction,
+    add_option(parser, "report", "examples", action=OnOffAction,
                help="example excerpts from the log in the report (default: {default})")
     add_option(parser, "report", "max_patterns", type=int, metavar="N",
                help="differential patterns shown in detail (default: {default})")
