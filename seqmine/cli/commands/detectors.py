@@ -63,7 +63,7 @@ def add_arguments(parser):
                help="share of the detectors that encourage (patterns of the strong group), "
                     "0-1; slots one direction cannot fill go to the other; 'none' = no "
                     "balance (default: {default})")
-    add_option(g, "detectors", "examples", action=argparse.BooleanOptionalAction,
+    add_option(g, "detectors", "examples", action=OnOffAction,
                help="one short example excerpt per detector (default: {default})")
     g = parser.add_argument_group("matching and absence rules")
     g.add_argument("--max-gap", type=_opt_int, default=argparse.SUPPRESS, metavar="N",
