@@ -448,3 +448,25 @@ def test_explorer_holds_at_most_explorer_rows_patterns(folder, capsys):
     assert f"The table holds the first 2 of {n} patterns" in text
     assert main(["report", str(folder), "--explorer-rows", "0"]) == 2
     assert "--explorer-rows must be a whole number of at least 1" in capsys.readouterr().err
+
+
+def test_explorer_shows_the_evidence_columns_when_the_table_has_them(tmp_path):
+    # columns of the volume/order adjustment and the stable pattern id, when present
+    folder = write_output_folder(tmp_path / "o")
+    pat = pd.read_csv(folder / "patterns.csv", dtype=str, keep_default_na=False)
+    n = len(pat)
+    pat.insert(0, "pattern_id", [f"P{i:04d}" for i in range(n)])
+    pat["q_volume"] = np.linspace(0.001, 0.5, n)
+    pat["evidence"] = (["order", "presence", "volume", ""] * n)[:n]
+    pat["replication"] = 0.8
+    pat.to_csv(folder / "patterns.csv", index=False)
+    text = render_report(folder).read_text(encoding="utf-8")
+    data = json.loads(re.search(r'id="explorer-data">(.*?)</script>', text, flags=re.S)
+                      .group(1))
+    keys = [c["key"] for c in data["columns"]]
+    assert keys[:3] == ["_rank", "pattern_id", "pattern"]
+    assert {"q_volume", "evidence", "replication"} <= set(keys)
+    labels = {c["key"]: c["label"] for c in data["columns"]}
+    assert labels["q_volume"] == "q (volume-adjusted)" and labels["evidence"] == "evidence"
+    assert '<select id="ex-evidence">' in text and "the kind of evidence" in text
+    assert [r[keys.index("evidence")] for r in data["rows"]] == pat["evidence"].tolist()

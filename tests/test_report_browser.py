@@ -312,3 +312,27 @@ def test_one_vocabulary_readable_labels_and_one_pattern_notation(demo_report, tm
     assert "Cohen's h" in text and "cohens h" not in text.lower().replace("cohen's h", "")
     table = pd.read_csv(demo_report / "patterns.csv", keep_default_na=False)
     assert table["pattern"].iloc[0] in text.replace("\n", "")
+
+
+def test_explorer_filters_by_evidence_and_sorts_the_volume_adjusted_q(tmp_path):
+    import numpy as np
+
+    folder = write_output_folder(tmp_path / "out")
+    pat = pd.read_csv(folder / "patterns.csv", dtype=str, keep_default_na=False)
+    n = len(pat)
+    pat["q_volume"] = np.round(np.linspace(0.5, 0.001, n), 4)
+    pat["evidence"] = (["order", "presence", "volume", ""] * n)[:n]
+    pat.to_csv(folder / "patterns.csv", index=False)
+    path = render_report(folder)
+    with DevTools(tmp_path / "dt") as dt:
+        dt.open(path)
+        for kind in ("order", "presence", "volume", "none"):
+            _set(dt, "ex-evidence", kind)
+            want = (pat["evidence"] == ("" if kind == "none" else kind)).sum()
+            assert _count(dt) == want, kind
+        _set(dt, "ex-evidence", "")
+        dt.eval("document.querySelector('#explorer-ui thead button[data-col=\"%d\"]')"
+                ".click()" % _column(dt, "q (volume-adjusted)"))
+        ref = pat.assign(q=pat["q_volume"].astype(float)).sort_values("q", kind="mergesort")
+        assert _shown(dt, "#") == [str(i + 1) for i in ref.index[:25]]
+        assert dt.errors == [] and dt.requests == []
