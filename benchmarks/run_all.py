@@ -47,6 +47,7 @@ BENCHMARKS = {
     "mine": ("bench_mine.py", [], ["--quick"], "mine.json", "mine.json"),
     "permutation": ("bench_permutation.py", [], ["--quick"], "permutation.json",
                     "permutation_quick.json"),
+    "evidence": ("bench_evidence.py", [], ["--quick"], "evidence.json", "evidence_quick.json"),
     "phases": ("bench_phases.py", [], ["--quick", "--out", "results/phases_quick.json"],
                "phases.json", "phases_quick.json"),
     "validate": ("bench_validate.py", [], ["--splits", "3"], "validate.json",
@@ -298,8 +299,29 @@ def _startup(data):
     return rows
 
 
+def _evidence(data):
+    """Rows of bench_evidence.py: CPU seconds per step, ratios to Fisher scoring (tests)
+    and to the bootstrap (replication), measured side by side in one process."""
+    steps = data.get("steps", {})
+    size = f"{data.get('learners')} learners x {data.get('patterns')} patterns"
+    ref = {"volume-adjusted test (CMH over strata) + BH": "ratio_volume_to_fisher_cpu",
+           "order test (holders, chance bins, CMH) + BH": "ratio_order_to_fisher_cpu",
+           "replication, 20 splits (30 % findings, half by order test)":
+               "ratio_replication_to_bootstrap_cpu"}
+    rows = []
+    for name, r in steps.items():
+        ratio = data.get(ref.get(name, ""), None)
+        rows.append(_row(name, seconds=r.get("cpu_s"), peak_mb=data.get("peak_rss_mb"),
+                         reference=("bootstrap stability" if "replication" in name else
+                                    "Fisher scoring") if ratio else None,
+                         vs_reference=1 / ratio if ratio else None,
+                         note=f"{size}; CPU seconds"))
+    return rows
+
+
 ADAPTERS = {"startup": _startup, "demo_data": _demo_data, "encode": _encode, "mine": _mine,
-            "permutation": _permutation, "phases": _phases, "validate": _validate,
+            "permutation": _permutation, "evidence": _evidence, "phases": _phases,
+            "validate": _validate,
             "watch": _watch, "pipeline": _pipeline}
 
 

@@ -144,12 +144,10 @@ def reconcile_inputs(loaded, outcomes, *, match_ids=DEFAULT_CONFIG["outcomes"]["
     return loaded, outcomes
 
 
-def contrast_unit(unit, db):
-    """The contrast unit: ``"auto"`` is ``"learner"`` when some learner has several
-    sequences (sessions), so each learner counts once, else ``"sequence"``."""
-    if unit != "auto":
-        return unit
-    return "learner" if len(np.unique(db.learners)) < db.n_sequences else "sequence"
+def contrast_unit(unit, db=None):
+    """The unit the tests count: ``"learner"`` (each learner once, sessions merged; also
+    for ``"auto"``, an older spelling) or ``"sequence"`` (session-level tests)."""
+    return "sequence" if unit == "sequence" else "learner"
 
 
 def _warn_about_matching(load_result, outcomes, grouping, report, names):
@@ -205,14 +203,8 @@ def pseudonymize_inputs(loaded, outcomes, key):
 
 
 def _describe(values):
-    v = values[np.isfinite(values)]
-    if len(v) == 0:
-        return {"n": 0}
-    q = np.quantile(v, [0, 0.25, 0.5, 0.75, 1])
-    return {"n": int(len(v)), "mean": round(float(v.mean()), 6),
-            "min": round(float(q[0]), 6), "q1": round(float(q[1]), 6),
-            "median": round(float(q[2]), 6), "q3": round(float(q[3]), 6),
-            "max": round(float(q[4]), 6)}
+    from .scoring.activity import describe
+    return describe(values)
 
 
 # ---------------------------------------------------------------------- analyze
@@ -232,6 +224,9 @@ class AnalysisResult:
         The files and folders written, in the order they were written.
     patterns : pandas.DataFrame
         The contrast table (``patterns.csv``): one row per mined pattern, most useful first.
+    tokens : pandas.DataFrame
+        Every single action and pause kind scored like the patterns (``tokens.csv``):
+        what each group does more of.
     transitions : pandas.DataFrame
         The lag-1 transition table (``transitions.csv``).
     phases : seqmine.phases.PhaseResult or None
@@ -254,6 +249,7 @@ class AnalysisResult:
     summary: dict
     files: list
     patterns: pd.DataFrame = None
+    tokens: pd.DataFrame = None
     transitions: pd.DataFrame = None
     phases: object = None
     early_prediction: pd.DataFrame = None
@@ -275,8 +271,8 @@ class AnalysisResult:
                  f"{s.get('patterns_significant', 0)} significant; "
                  f"{s.get('detectors', 0)} detectors; {len(self.warnings)} warning(s)"]
         tables = [(name, getattr(self, name)) for name in
-                  ("patterns", "transitions", "early_prediction", "detectors", "rejects",
-                   "warnings")]
+                  ("patterns", "tokens", "transitions", "early_prediction", "detectors",
+                   "rejects", "warnings")]
         shapes = ", ".join(f"{name} {t.shape[0]}x{t.shape[1]}" for name, t in tables
                            if isinstance(t, pd.DataFrame))
         lines.append(f"  tables: {shapes}")
@@ -385,12 +381,14 @@ def _analyze(events_path, outcomes_path, out_dir, cfg, *, log):
     from .inputs.load import load_events
     from .inputs.outcomes import load_outcomes
     from .inputs.privacy import read_key
-    from .mining.miner import save_patternset
+    from .mining.miner import mine, save_patternset
     from .mining.partitions import mine_parallel
     from .reporting.render import render_report, write_examples
+    from .scoring.activity import activity_comparison
     from .scoring.contrast import contrast
     from .scoring.transitions import transitions
 
+    _check_evidence_options(cfg)
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     files = []
@@ -442,12 +440,17 @@ def _analyze(events_path, outcomes_path, out_dir, cfg, *, log):
                           end_with_action=mine_cfg["end_with_action"], closed=mine_cfg["closed"],
                           maximal=mine_cfg["maximal"], max_patterns=mine_cfg["max_patterns"])
         save_patternset(patternset, out / "patternset")
+    unit = contrast_unit(con_cfg["unit"], db)
+    contrast_options = dict(
+        correction=con_cfg["correction"], alpha=con_cfg["alpha"],
+        n_permutations=con_cfg["n_permutations"], random_state=seed,
+        n_bootstrap=con_cfg["n_bootstrap"],
+        n_replication_splits=con_cfg["n_replication_splits"],
+        n_volume_strata=con_cfg["n_volume_strata"], unit=unit, n_jobs=jobs,
+        scheduler=scheduler)
     with stages("scoring patterns"):
-        unit = contrast_unit(con_cfg.get("unit", "auto"), db)
-        table = contrast(patternset, db, correction=con_cfg["correction"], alpha=con_cfg["alpha"],
-                         n_permutations=con_cfg["n_permutations"], random_state=seed,
-                         n_bootstrap=con_cfg["n_bootstrap"], redundancy=con_cfg["redundancy"],
-                         n_jobs=jobs, scheduler=scheduler, unit=unit)
+        table = contrast(patternset, db, redundancy=con_cfg["redundancy"],
+                         **contrast_options)
         table = _order_patterns(table)
         write_csv(table, out / "patterns.csv")
         files.append(out / "patterns.csv")
@@ -455,6 +458,18 @@ def _analyze(events_path, outcomes_path, out_dir, cfg, *, log):
         trans = transitions(db, exclude_pauses=cfg["transitions"]["exclude_pauses"])
         write_csv(trans, out / "transitions.csv")
         files.append(out / "transitions.csv")
+    with stages("scoring single tokens"):
+        # what each group does more of: every action and pause kind, scored whatever
+        # min_length is, in a family of its own
+        singles = mine(db, min_support=1, min_length=1, max_length=1,
+                       start_with_action=False, end_with_action=False)
+        tokens = contrast(singles, db, redundancy=None,
+                          **dict(contrast_options, n_bootstrap=0))
+        tokens.insert(2, "kind", np.where(
+            tokens["pattern"].map(dict(zip(db.vocab, db.is_pause))), "pause", "action"))
+        tokens = _order_patterns(tokens)
+        write_csv(tokens, out / "tokens.csv")
+        files.append(out / "tokens.csv")
     alpha = float(con_cfg["alpha"])
     significant = table[table["q_value"] <= alpha]
     summary.update({
@@ -462,12 +477,25 @@ def _analyze(events_path, outcomes_path, out_dir, cfg, *, log):
         "patterns_significant": int(len(significant)),
         "patterns_significant_distinct": int((significant["redundant_of"].fillna("") == "").sum())
         if "redundant_of" in significant else int(len(significant)),
+        "patterns_surviving": _surviving(table, alpha),
+        "patterns_by_evidence": _by_evidence(table),
+        "tokens_by_evidence": _by_evidence(tokens),
+        "unit_of_analysis": table.attrs.get("unit", "sequence"),
+        "activity": activity_comparison(db),
         "method": {
             "presence_test": f"Fisher's exact test (two-sided) on presence per {unit}",
+            "volume_test": "Cochran-Mantel-Haenszel test of presence across "
+                           f"{table.attrs.get('n_volume_strata', 0)} strata of events per "
+                           f"{unit}",
+            "order_test": "the same stratified test among the units that hold every item "
+                          "of the pattern",
             "rate_test": "Mann-Whitney U on occurrences per 100 tokens",
+            "transition_test": "Welch's t test on each learner's share of transitions "
+                               "(learner level); adjusted residuals are pooled description",
             "correction": con_cfg["correction"], "alpha": alpha, "unit": unit,
             "n_permutations": int(con_cfg["n_permutations"]),
             "n_bootstrap": int(con_cfg["n_bootstrap"]),
+            "n_replication_splits": int(con_cfg["n_replication_splits"]),
             "min_support": mine_cfg["min_support"], "max_length": mine_cfg["max_length"],
             "max_gap": mine_cfg["max_gap"], "n_splits": cfg["validate"]["n_splits"],
             "n_repeats": cfg["validate"]["n_repeats"],
@@ -551,6 +579,7 @@ def _analyze(events_path, outcomes_path, out_dir, cfg, *, log):
                                min_effect=float(de_cfg["min_effect"]), effect=de_cfg["effect"],
                                min_stability=float(de_cfg["min_stability"]),
                                max_detectors=de_cfg["max_detectors"],
+                               evidence=_evidence_option(de_cfg["evidence"]),
                                encourage_share=de_cfg["encourage_share"],
                                absence_quantile=float(de_cfg["absence_quantile"]),
                                absence_after_events="auto" if de_cfg["absence_quantile"]
@@ -586,7 +615,8 @@ def _analyze(events_path, outcomes_path, out_dir, cfg, *, log):
                                explorer_rows=int(cfg["report"]["explorer_rows"]))
         files.append(report)
     return AnalysisResult(
-        out_dir=out, summary=summary, files=files, patterns=table, transitions=trans,
+        out_dir=out, summary=summary, files=files, patterns=table, tokens=tokens,
+        transitions=trans,
         phases=phases, early_prediction=None if validation is None else validation.metrics,
         detectors=pd.DataFrame(doc.get("detectors", [])), rejects=loaded.rejects,
         warnings=warnings_frame(log))
@@ -618,10 +648,49 @@ def _without_timings(summary):
 
 
 def _order_patterns(table):
-    """Most useful first: significant before not, then by q value, then by pattern."""
-    order = table.assign(_sig=table["q_value"].isna()).sort_values(
-        ["_sig", "q_value", "p_value", "length", "pattern"], kind="mergesort")
-    return order.drop(columns="_sig").reset_index(drop=True)
+    """Most useful first: by evidence (order, presence, volume, none), then by q value,
+    then by pattern."""
+    rank = {"order": 0, "presence": 1, "volume": 2}
+    ev = table["evidence"].map(rank).fillna(3) if "evidence" in table else 3
+    order = table.assign(_ev=ev, _sig=table["q_value"].isna()).sort_values(
+        ["_ev", "_sig", "q_value", "p_value", "length", "pattern"], kind="mergesort")
+    return order.drop(columns=["_ev", "_sig"]).reset_index(drop=True)
+
+
+def _surviving(table, alpha):
+    """How many patterns pass before adjustment, after the volume adjustment and the
+    order test."""
+    def n(col):
+        return int((table[col] <= alpha).sum()) if col in table else 0
+    return {"before_adjustment": n("q_value"), "volume_adjusted": n("q_volume"),
+            "order": n("q_order")}
+
+
+def _by_evidence(table):
+    ev = table["evidence"].fillna("") if "evidence" in table else []
+    return {k: int((ev == k).sum()) for k in ("order", "presence", "volume")}
+
+
+def _evidence_option(value):
+    """``[detectors] evidence``: a list of kinds, or "any" / empty for q_value alone."""
+    if value is None or value == "any" or value == [] or value == ["any"]:
+        return None
+    return [value] if isinstance(value, str) else list(value)
+
+
+def _check_evidence_options(cfg):
+    """The unit and detector-evidence options, checked before any work is done."""
+    unit = cfg["contrast"]["unit"]
+    if unit not in ("learner", "sequence", "auto"):
+        raise ParameterError(
+            f"configuration: option 'contrast.unit' must be 'learner' (each learner once) or "
+            f"'sequence' (session-level tests); got {unit!r}.")
+    kinds = _evidence_option(cfg["detectors"]["evidence"])
+    bad = [k for k in (kinds or []) if k not in ("order", "presence", "volume")]
+    if bad:
+        raise ParameterError(
+            f"configuration: option 'detectors.evidence' lists {bad[0]!r}; use some of "
+            f"order, presence, volume, or 'any' to select on q_value alone.")
 
 
 class _Stages:

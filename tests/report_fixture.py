@@ -91,6 +91,15 @@ def write_output_folder(folder, *, hostile=False, examples=True, drop=()):
     rows.append(dict(rows[0], pattern=pats[0][0].rsplit(" > ", 1)[0], length=3,
                      redundant_of=pats[0][0]))
     files["patterns.csv"] = pd.DataFrame(rows).to_csv(index=False)
+    files["tokens.csv"] = pd.DataFrame({
+        "pattern": [reset, paint, "pause:long", setl],
+        "length": 1, "kind": ["action", "action", "pause", "action"],
+        "support_strong": [0.2, 0.3, 0.9, 1.0], f"support_{weak}": [0.6, 0.7, 0.8, 1.0],
+        "rate_strong": [0.4, 0.9, 6.0, 3.0], f"rate_{weak}": [1.6, 2.9, 5.1, 2.8],
+        "p_value": [1e-4, 2e-4, 0.3, 1.0], "q_value": [4e-4, 4e-4, 0.4, 1.0],
+        "q_volume": [5e-4, 6e-4, 0.5, 1.0], "evidence": ["presence", "presence", "", ""],
+        "favours": [weak, weak, "", ""], "q_rate": [1e-5, 3e-5, 0.2, 0.7],
+    }).to_csv(index=False)
     toks = [setl, "advance_week", "measure_height", reset, "pause:long", paint]
     rng = np.random.default_rng(3)
     trs = []

@@ -279,7 +279,6 @@ def test_old_spellings_are_gone():
 #: Options without a configuration key whose default is a parameter of the API.
 CLI_TO_API = [
     ("contrast", "redundancy_order", "scoring.contrast.contrast", "redundancy_order"),
-    ("contrast", "unit", "scoring.contrast.contrast", "unit"),
     ("contrast", "rate_unit", "scoring.contrast.contrast", "rate_unit"),
     ("validate", "train_on", "validation.crossval.validate", "train_on"),
     ("validate", "hmm_states", "validation.features.HMMLikelihoodFeaturizer", "n_states"),

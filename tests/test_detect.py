@@ -38,6 +38,9 @@ def _table():
         "support_weak": [0.5, 0.55, 0.2, 0.4, 0.3, 0.3, 0.31],
         "p_value": [0.001, 0.002, 0.001, 0.003, 0.2, 0.01, 0.9],
         "q_value": [0.004, 0.006, 0.004, 0.008, 0.3, 0.03, 0.9],
+        "q_volume": [0.004, 0.006, 0.004, 0.008, 0.3, 0.03, 0.9],
+        "q_order": [0.004, 0.006, 0.004, None, None, 0.2, None],
+        "evidence": ["order", "order", "order", "presence", "", "presence", ""],
         "favours": ["weak", "weak", "strong", "weak", "", "strong", ""],
         "risk_difference": [-0.4, -0.35, 0.4, -0.35, -0.2, 0.2, -0.01],
         "odds_ratio": [0.11, 0.2, 6.0, 0.08, 0.26, 2.3, 0.95],
@@ -77,23 +80,27 @@ def test_select_options():
         "set_light > set_water", "measure_height > pause:long"]
     assert select_detectors(t, lengths=[4])["length"].tolist() == [4]
     assert len(select_detectors(t, max_detectors=1)) == 1
+    # ranked by the q of each row's own test (order 0.004, 0.004; presence 0.008)
     assert select_detectors(t, min_stability=0, min_effect=0.8)["pattern"].tolist() == [
-        "set_light > set_water > advance_week", "paint_pot",
-        "set_light > advance_week > measure_height > pause:long"]
+        "set_light > set_water > advance_week",
+        "set_light > advance_week > measure_height > pause:long", "paint_pot"]
     t.loc[0, "redundant_of"] = "set_light > set_water"
     assert "set_light > set_water > advance_week" not in select_detectors(t)["pattern"].tolist()
 
 
-def test_select_ranks_by_the_volume_adjusted_evidence_when_present():
+def test_select_ranks_by_the_q_value_of_the_evidence_that_survives_the_volume_adjustment():
     t = _table()
-    base = select_detectors(t, min_stability=0, drop_redundant=False)["pattern"].tolist()
-    assert base[0] == "set_light > set_water > advance_week"  # largest |h| first
-    # with q_volume the ranking follows it (smallest first), effect size breaking ties
-    t["q_volume"] = [0.04, 0.001, 0.001, 0.01, 0.5, 0.002, 0.9]
-    got = select_detectors(t, min_stability=0, drop_redundant=False)["pattern"].tolist()
-    assert got == ["set_light > advance_week > measure_height > pause:long",
-                   "set_light > set_water", "measure_height > pause:long", "paint_pot",
-                   "set_light > set_water > advance_week"]
+    # 'set_light > set_water' has the strongest order evidence, though a smaller effect
+    t.loc[1, "q_order"] = 0.001
+    got = select_detectors(t, drop_redundant=False)["pattern"].tolist()
+    assert got == ["set_light > set_water", "set_light > set_water > advance_week",
+                   "set_light > advance_week > measure_height > pause:long",
+                   "measure_height > pause:long"]
+    # tables without evidence (evidence=None): largest |effect| first, as before
+    plain = select_detectors(t, evidence=None, drop_redundant=False)["pattern"].tolist()
+    assert plain[:3] == ["set_light > set_water > advance_week",
+                         "set_light > advance_week > measure_height > pause:long",
+                         "set_light > set_water"]
 
 
 def test_group_shares_split_the_slots_and_hand_unfilled_ones_on():
@@ -101,7 +108,8 @@ def test_group_shares_split_the_slots_and_hand_unfilled_ones_on():
                       "q_value": 0.01, "cohens_h": [0.9, 0.8, 0.7, 0.6, 0.5, 0.4, 0.3, 0.2],
                       "favours": ["weak"] * 6 + ["strong"] * 2})
     pick = lambda n, shares: select_detectors(  # noqa: E731
-        t, min_stability=0, max_detectors=n, group_shares=shares)["pattern"].tolist()
+        t, min_stability=0, max_detectors=n, group_shares=shares,
+        evidence=None)["pattern"].tolist()
     assert pick(4, None) == ["w0", "w1", "w2", "w3"]
     assert pick(4, {"strong": 0.5, "weak": 0.5}) == ["w0", "w1", "s0", "s1"]
     # 5 slots at 50/50: quotas 2.5/2.5, the remainder goes to the first group by name
@@ -114,7 +122,34 @@ def test_group_shares_split_the_slots_and_hand_unfilled_ones_on():
         pick(3, {"strong": 0, "weak": 0})
 
 
+def test_select_defaults_to_findings_that_survive_the_volume_adjustment():
+    t = _table()
+    # the first pattern is now significant only before the volume adjustment
+    t.loc[0, ["evidence", "q_volume", "q_order"]] = ["volume", 0.2, 0.5]
+    default = select_detectors(t, drop_redundant=False)["pattern"].tolist()
+    assert "set_light > set_water > advance_week" not in default
+    assert default == ["set_light > advance_week > measure_height > pause:long",
+                       "set_light > set_water", "measure_height > pause:long"]
+    widened = select_detectors(t, drop_redundant=False,
+                               evidence=["order", "presence", "volume"])["pattern"].tolist()
+    assert widened[0] == "set_light > set_water > advance_week"
+    assert select_detectors(t, evidence=None, drop_redundant=False)["pattern"].tolist() \
+        == widened
+    # a row is judged by the q value of its own test: an order finding needs q_order <= max_q
+    t.loc[2, "q_order"] = 0.2
+    assert "set_light > advance_week > measure_height > pause:long" not in \
+        select_detectors(t, drop_redundant=False)["pattern"].tolist()
+    assert select_detectors(t, evidence="order", drop_redundant=False)["pattern"].tolist() \
+        == ["set_light > set_water"]
+
+
 def test_select_messages():
+    with pytest.raises(ColumnError, match=r"lacks column\(s\) evidence, q_volume, q_order\. "
+                                          r"The table predates.*evidence=None"):
+        select_detectors(_table().drop(columns=["evidence", "q_volume", "q_order"]))
+    with pytest.raises(ParameterError, match=r"'evidence' parameter of select_detectors must "
+                                             r"list some of order, presence, volume"):
+        select_detectors(_table(), evidence=["beyond"])
     with pytest.raises(ColumnError, match=r"lacks column\(s\) stability.*min_stability=0"):
         select_detectors(_table().drop(columns="stability"))
     with pytest.raises(ColumnError, match=r"lacks column\(s\) hedges_g.*one of risk_difference"):

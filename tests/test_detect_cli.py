@@ -70,6 +70,8 @@ def test_detectors_command_options_override(run_dir, capsys):
      r"'encourage_share' parameter of export_detectors must be in \[0, 1\]"),
     (["patterns.csv", "--absence-events", "0"],
      "--absence-events: expected a whole number >= 1, 'auto' or 'none'"),
+    (["patterns.csv", "--evidence", "beyond"],
+     r"--evidence: expected a comma-separated list of order, presence, volume, or 'any'"),
 ])
 def test_detectors_command_errors_exit_2(run_dir, capsys, args, message):
     argv = ["detectors"] + [str(run_dir / a) if a.endswith((".csv", "sequences")) else a

@@ -117,7 +117,8 @@ def test_one_second_clock_hint_drafts_name_the_pause_range(course):
     long_tok = "pause:long"
     table = pd.DataFrame({"pattern": [f"set_light > {long_tok} > reset"], "favours": ["weak"],
                           "q_value": [0.001], "cohens_h": [0.5], "stability": [0.9]})
-    doc = export_detectors(table, db, {"max_gap": 0})
+    # a hand-made table without the evidence columns: select on q_value alone
+    doc = export_detectors(table, db, {"max_gap": 0}, evidence=None)
     det = doc["detectors"][0]
     edge = db.encoding["pause"]["edges"][1]
     assert f"long pause ({edge:g} s or more)" in det["hint"]

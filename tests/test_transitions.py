@@ -122,7 +122,7 @@ def test_counts_and_table_equal_brute_force(exclude):
             assert row.yules_q == pytest.approx(q, nan_ok=True)
 
 
-def test_group_difference_is_fisher_on_to_b_versus_other():
+def test_group_pooled_is_fisher_on_to_b_versus_other():
     db = _demo_db()
     t = transitions(db, structural_zeros="none")
     counts, _ = transition_counts(db)
@@ -133,14 +133,14 @@ def test_group_difference_is_fisher_on_to_b_versus_other():
         x0, x1 = counts[0, a, b], counts[1, a, b]
         r0, r1 = counts[0, a].sum(), counts[1, a].sum()
         p = stats.fisher_exact([[x0, r0 - x0], [x1, r1 - x1]]).pvalue  # scipy reference
-        assert row.p_difference == pytest.approx(p, rel=1e-8)
+        assert row.p_pooled == pytest.approx(p, rel=1e-8)
         ref_p.append(p)
     from statsmodels.stats.multitest import multipletests
-    np.testing.assert_allclose(t[t.group == "strong"]["q_difference"],
+    np.testing.assert_allclose(t[t.group == "strong"]["q_pooled"],
                                multipletests(ref_p, method="fdr_bh")[1], rtol=1e-9)
     # the two group rows of a transition carry the same test
-    np.testing.assert_array_equal(t[t.group == "strong"]["p_difference"].to_numpy(),
-                                  t[t.group == "weak"]["p_difference"].to_numpy())
+    np.testing.assert_array_equal(t[t.group == "strong"]["p_pooled"].to_numpy(),
+                                  t[t.group == "weak"]["p_pooled"].to_numpy())
 
 
 def test_structural_zeros_with_collapsed_repeats():
@@ -164,7 +164,7 @@ def test_structural_zeros_with_collapsed_repeats():
 def test_no_groups_and_single_group():
     db = SequenceDB.from_lists([["a", "b", "a"], ["b", "b"]])
     t = transitions(db)
-    assert set(t["group"]) == {"all"} and t["p_difference"].isna().all()
+    assert set(t["group"]) == {"all"} and t["p_pooled"].isna().all()
     assert t["count"].sum() == 3
 
 

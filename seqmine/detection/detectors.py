@@ -77,6 +77,8 @@ __all__ = [
     "DETECTORS_FORMAT",
     "DETECTORS_VERSION",
     "DETECTOR_NOTICE",
+    "DEFAULT_EVIDENCE",
+    "EVIDENCE_KINDS",
     "select_detectors",
     "build_detectors",
     "export_detectors",
@@ -100,6 +102,10 @@ DETECTOR_NOTICE = (
 )
 
 _EFFECT_COLUMNS = ("risk_difference", "odds_ratio", "cohens_h", "cliffs_delta")
+#: Values of the contrast table's ``evidence`` column a detector may rest on.
+EVIDENCE_KINDS = ("order", "presence", "volume")
+#: Default: only findings that survive the volume adjustment become detectors.
+DEFAULT_EVIDENCE = tuple(DEFAULT_CONFIG["detectors"]["evidence"])
 _TEMPLATE_FIELDS = ("action", "target", "channel", "session")
 _PAUSE_STRATEGIES = ("quantile", "fixed", "learner_quantile", "none")
 _TOP_KEYS = {"format", "version", "notice", "encoding", "vocabulary", "matching", "groups",
@@ -122,16 +128,20 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
                      min_effect=_DEFAULTS["min_effect"], effect=_DEFAULTS["effect"],
                      min_stability=_DEFAULTS["min_stability"], lengths=None, groups=None,
                      max_detectors=_DEFAULTS["max_detectors"], drop_redundant=True,
-                     group_shares=None):
+                     evidence=DEFAULT_EVIDENCE, group_shares=None):
     """Choose the contrast-table rows worth exporting as detectors.
 
-    A row is kept when it favours a group, its ``q_value <= max_q``, the absolute
+    A row is kept when it favours a group, its ``evidence`` is one of ``evidence``
+    (by default only findings that survive the volume adjustment), the q value of
+    its evidence test is at most ``max_q``, the absolute
     value of its ``effect`` column is at least ``min_effect``, its ``stability`` is at
     least ``min_stability``, its length is allowed and its favoured group is in
     ``groups``. Kept rows are ranked by the evidence that survives the adjustment
-    for activity volume when the table has it (``q_volume``, smallest first), then by
-    absolute effect (largest first), q value and pattern name; without ``q_volume``
-    by absolute effect, q value and pattern name. With ``drop_redundant`` a row is
+    for activity volume, smallest q first: the q value of each row's own test
+    (``q_order`` for order, ``q_volume`` for presence, ``q_value`` for volume); then
+    by absolute effect (largest first), q value and pattern name. With
+    ``evidence=None`` (tables without the evidence columns) rows are ranked by
+    absolute effect, q value and pattern name. With ``drop_redundant`` a row is
     dropped when the contrast table marks it redundant (a non-empty
     ``redundant_of``), or when its pattern contains, or is contained in, an already
     kept pattern favouring the same group (as a subsequence), so one behaviour yields
@@ -163,6 +173,12 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
     max_detectors : int >= 1, optional
         At most this many rows (default 20); None = no limit.
     drop_redundant : bool
+    evidence : sequence of {"order", "presence", "volume"}, or None
+        Kinds of evidence a row may rest on (the ``evidence`` column of the contrast
+        table); the q value compared with ``max_q`` is that of the named test
+        (``q_order``, ``q_volume``, ``q_value`` for ``"volume"``). Default
+        ``("order", "presence")``: differences that activity volume explains are not
+        exported. ``None`` selects on ``q_value`` alone (tables without evidence).
     group_shares : dict, optional
         Favoured group -> share of the slots (non-negative numbers, scaled to add up
         to 1), e.g. ``{"strong": 0.5, "weak": 0.5}``; needs ``max_detectors``.
@@ -175,13 +191,17 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
     Examples
     --------
     >>> t = pd.DataFrame({"pattern": ["a > b", "a > b > c", "d"], "length": [2, 3, 1],
-    ...                   "q_value": [0.01, 0.01, 0.2], "favours": ["weak", "weak", "strong"],
+    ...                   "q_value": [0.01, 0.01, 0.2], "q_volume": [0.01, 0.01, 0.2],
+    ...                   "q_order": [0.01, 0.2, None], "evidence": ["order", "presence", ""],
+    ...                   "favours": ["weak", "weak", "strong"],
     ...                   "cohens_h": [0.5, 0.6, 0.9], "stability": [0.9, 0.8, 0.9]})
     >>> select_detectors(t)["pattern"].tolist()
     ['a > b > c']
+    >>> select_detectors(t, evidence=["order"])["pattern"].tolist()
+    ['a > b']
     >>> t = pd.DataFrame({"pattern": ["a", "b", "c", "d"], "q_value": 0.01,
     ...                   "favours": ["weak", "weak", "weak", "strong"], "cohens_h": 0.5})
-    >>> select_detectors(t, min_stability=0, max_detectors=2,
+    >>> select_detectors(t, min_stability=0, max_detectors=2, evidence=None,
     ...                  group_shares={"strong": 0.5, "weak": 0.5})["pattern"].tolist()
     ['a', 'd']
     """
@@ -198,13 +218,19 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
         raise ParameterError(f"The 'min_stability' parameter of {where} must be in [0, 1]. "
                              f"Got {min_stability!r} instead.")
     max_detectors = check_int(max_detectors, "max_detectors", where, minimum=1, allow_none=True)
+    evidence = _check_evidence(evidence, where)
     needed = ["pattern", "q_value", "favours", effect]
     if min_stability > 0:
         needed.append("stability")
+    if evidence is not None:
+        needed += [c for c in ("evidence", "q_volume", "q_order") if c not in needed]
     missing = [c for c in needed if c not in contrast_table.columns]
     if missing:
         fix = (" Pass min_stability=0 (--min-stability 0) to skip the stability check."
                if missing == ["stability"] else
+               " The table predates the volume and order tests: score it again with "
+               "'seqmine contrast', or pass evidence=None (--evidence any) to select on "
+               "q_value alone." if evidence is not None and "evidence" in missing else
                f" Choose another effect column with effect=/--effect (one of "
                f"{', '.join(c for c in _EFFECT_COLUMNS if c in contrast_table.columns) or 'none present'})."
                if missing == [effect] else "")
@@ -214,8 +240,16 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
     lens = np.array([len(p) for p in pats], dtype=np.int64)
     favours = t["favours"].astype(object).where(t["favours"].notna(), "").astype(str).str.strip()
     q = pd.to_numeric(t["q_value"], errors="coerce").to_numpy(float)
+    q_all = q.copy()
     eff = np.abs(pd.to_numeric(t[effect], errors="coerce").to_numpy(float))
-    keep = (favours != "").to_numpy() & (q <= max_q) & (eff >= min_effect)
+    keep = (favours != "").to_numpy() & (eff >= min_effect)
+    if evidence is not None:
+        # only findings of the allowed kinds, judged by the q value of their own test
+        kind = t["evidence"].astype(object).where(t["evidence"].notna(), "").astype(str)
+        keep &= kind.isin(evidence).to_numpy()
+        for name, col in (("order", "q_order"), ("presence", "q_volume")):
+            q = np.where(kind == name, pd.to_numeric(t[col], errors="coerce"), q)
+    keep &= q <= max_q
     if min_stability > 0:
         stab = pd.to_numeric(t["stability"], errors="coerce").to_numpy(float)
         if len(stab) and np.isnan(stab).all():
@@ -234,10 +268,12 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
         keep &= favours.isin(allowed).to_numpy()
     idx = np.flatnonzero(keep)
     names = t["pattern"].astype(str).to_numpy()
-    if "q_volume" in t.columns:
-        qv = pd.to_numeric(t["q_volume"], errors="coerce").to_numpy(float)
-        qv = np.where(np.isnan(qv), np.inf, qv)
-        order = sorted(idx.tolist(), key=lambda i: (qv[i], -eff[i], q[i], names[i]))
+    # rank by the evidence that survives the volume adjustment: the q value of each
+    # row's own test (q_order for order, q_volume for presence); without evidence
+    # kinds (evidence=None) by effect size
+    if evidence is not None:
+        qs = np.where(np.isnan(q), np.inf, q)
+        order = sorted(idx.tolist(), key=lambda i: (qs[i], -eff[i], q_all[i], names[i]))
     else:
         order = sorted(idx.tolist(), key=lambda i: (-eff[i], q[i], names[i]))
     fav = favours.to_numpy()
@@ -256,6 +292,19 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
     rank = {i: r for r, i in enumerate(order)}
     chosen = sorted(chosen, key=rank.get)
     return t.iloc[chosen].reset_index(drop=True)
+
+
+def _check_evidence(evidence, where):
+    if evidence is None:
+        return None
+    chosen = [evidence] if isinstance(evidence, str) else list(evidence)
+    bad = [e for e in chosen if e not in EVIDENCE_KINDS]
+    if bad or not chosen:
+        raise ParameterError(
+            f"The 'evidence' parameter of {where} must list some of "
+            f"{', '.join(EVIDENCE_KINDS)} (or be None for q_value alone). Got {evidence!r} "
+            f"instead.")
+    return chosen
 
 
 def _check_shares(shares, where):
@@ -456,7 +505,8 @@ def export_detectors(contrast_table, db, constraints=None, *, max_q=_DEFAULTS["m
                      min_effect=_DEFAULTS["min_effect"], effect=_DEFAULTS["effect"],
                      min_stability=_DEFAULTS["min_stability"], lengths=None, groups=None,
                      max_detectors=_DEFAULTS["max_detectors"], drop_redundant=True,
-                     strong=None, weak=None, encourage_share=_DEFAULTS["encourage_share"],
+                     evidence=DEFAULT_EVIDENCE, strong=None, weak=None,
+                     encourage_share=_DEFAULTS["encourage_share"],
                      absence_after_events="auto",
                      absence_quantile=_DEFAULTS["absence_quantile"],
                      absence_after_seconds=None, examples=_DEFAULTS["examples"],
@@ -473,6 +523,7 @@ def export_detectors(contrast_table, db, constraints=None, *, max_q=_DEFAULTS["m
     constraints : dict, optional
         ``PatternSet.constraints`` of the mined patterns.
     max_q, min_effect, effect, min_stability, lengths, groups, max_detectors, drop_redundant
+    evidence
         See :func:`select_detectors`.
     strong, weak, absence_after_seconds
         See :func:`build_detectors`.
@@ -508,12 +559,14 @@ def export_detectors(contrast_table, db, constraints=None, *, max_q=_DEFAULTS["m
     selection = {"max_q": max_q, "min_effect": min_effect, "min_stability": min_stability,
                  "lengths": list(lengths) if isinstance(lengths, (tuple, list)) else lengths,
                  "groups": groups, "max_detectors": max_detectors,
-                 "drop_redundant": drop_redundant}
+                 "drop_redundant": drop_redundant,
+                 "evidence": None if evidence is None else _check_evidence(evidence,
+                                                                           "export_detectors")}
     rows = select_detectors(contrast_table, effect=effect, group_shares=shares,
                             **dict(selection, lengths=lengths))
     selection.update(encourage_share=encourage_share,
-                     ranking="q_volume, then |effect|" if "q_volume" in contrast_table.columns
-                     else "|effect|, then q_value")
+                     ranking="|effect|, then q_value" if evidence is None
+                     else "q of the evidence test, then |effect|")
     constraints = dict(constraints or {})
     match_kw = {"max_gap": _int_or_none(constraints.get("max_gap")),
                 "max_window": _int_or_none(constraints.get("max_window")),

@@ -237,6 +237,7 @@ class FigureIds:
 
 _SECTIONS = [("overview", "Data overview"), ("patterns", "Patterns that differ between groups"),
              ("explorer", "All scored patterns"),
+             ("tokens", "What each group does more of"),
              ("transitions", "Which action follows which"), ("phases", "Phases of work"),
              ("early-prediction", "How early can outcomes be recognised?"),
              ("detectors", "Detectors for hints"), ("method", "Method"),

@@ -43,8 +43,12 @@ def _pattern_card(rank, row, sup_cols, groups, alpha, excerpts, examples, max_ex
            f'<h3><span class="rank">{rank}.</span>{_chips(tokens)}</h3>']
     fav = str(row.get("favours", "") or "")
     q = _as_float(row.get("q_value"))
+    kind = str(row.get("evidence", "") or "")
+    reading = {"order": " (in this order, beyond the items' frequency and activity)",
+               "presence": " (at equal activity)",
+               "volume": " (only before adjusting for activity)"}.get(kind, "")
     if fav:
-        out.append(f"<p>More common among {_group_label(fav, groups)} learners.</p>")
+        out.append(f"<p>More common among {_group_label(fav, groups)} learners{reading}.</p>")
     elif math.isfinite(q) and q > alpha:
         out.append('<p class="note">No reliable difference between groups.</p>')
     if sup_cols:
@@ -58,11 +62,14 @@ def _pattern_card(rank, row, sup_cols, groups, alpha, excerpts, examples, max_ex
         out.append("</div>")
     stats = []
     for label, col, digits in [("q", "q_value", None), ("p", "p_value", None),
+                               ("q (equal activity)", "q_volume", None),
+                               ("q (order)", "q_order", None),
                                ("risk difference", "risk_difference", 2),
                                ("odds ratio", "odds_ratio", 2), ("Cohen's h", "cohens_h", 2),
                                ("Cliff's delta", "cliffs_delta", 2),
                                ("Cramér's V", "cramers_v", 2), ("q (rates)", "q_rate", None),
-                               ("stability", "stability", 2), ("length", "length", 0)]:
+                               ("stability", "stability", 2),
+                               ("replication", "replication", 2), ("length", "length", 0)]:
         if col in row.index:
             val = _fmt_p(row[col]) if digits is None else _fmt(row[col], digits)
             stats.append(f"<span>{label} <b>{val}</b></span>")
@@ -271,7 +278,7 @@ def _transition_table(sub, n=5):
     lo = lo[lo["_k"] < 0]
     hi = hi[hi["_k"] > 0]
     cols = [c for c in ("count", "probability", "expected", "adjusted_residual", "yules_q",
-                        "q_difference") if c in sub.columns]
+                        "learner_probability", "q_learners") if c in sub.columns]
     rows = []
     for label, part in (("more often", hi), ("less often", lo)):
         for _, r in part.iterrows():
@@ -281,7 +288,8 @@ def _transition_table(sub, n=5):
     if not rows:
         return ""
     heads = ["than expected", "transition"] + [{"probability": "share of next steps",
-                                   "q_difference": "q (groups differ)",
+                                   "learner_probability": "share per learner (mean)",
+                                   "q_learners": "q (learners)",
                                    "yules_q": "Yule's Q"}.get(c, c.replace("_", " "))
                                   for c in cols]
     return _table(heads, rows, raw_cells=False, num_cols=tuple(range(2, len(heads))))
@@ -290,9 +298,9 @@ def _transition_table(sub, n=5):
 def _transition_cell(col, value):
     if col == "count":
         return _fmt(value, 0)
-    if col == "probability":
+    if col in ("probability", "learner_probability"):
         return _pct(value)
-    if col == "q_difference":
+    if col in ("q_learners", "q_pooled"):
         return _fmt_p(value)
     return _fmt(value, 2)
 

@@ -30,6 +30,7 @@ from ..errors import DataFileError
 from . import html as hx
 from . import sections as sec
 from .datachecks import DATA_CHECKS_CSS, report_pause_ranges
+from .evidence import findings_by_evidence
 from .examples import build_examples
 from .explorer import DEFAULT_MAX_ROWS, EXPLORER_SCRIPT, script_hash, section_explorer, swatch_css
 from .html import esc
@@ -61,6 +62,7 @@ OUTPUT_FILES = {
     "summary": "summary.json",
     "rejects": "rejects.csv",
     "patterns": "patterns.csv",
+    "tokens": "tokens.csv",
     "transitions": "transitions.csv",
     "phases": "phases",
     "phases_summary": "phases/phases.json",
@@ -88,6 +90,14 @@ SUMMARY_KEYS = {
     "counts.sequences_per_group": "{group: sequences}",
     "counts.patterns_mined": "patterns found by the miner",
     "counts.patterns_significant": "patterns whose q value is at or below alpha",
+    "patterns_surviving": "{before_adjustment, volume_adjusted, order}: patterns with q <= "
+                          "alpha in q_value, q_volume, q_order",
+    "patterns_by_evidence": "{order, presence, volume}: patterns per evidence value",
+    "activity": "{events_per_learner, tokens_per_learner: {group: {n, mean, ...}}, test, "
+                "p_value, ratio_of_means}",
+    "unit_of_analysis": "'learner' or 'sequence' (session-level tests)",
+    "warnings": "[{code, message, count}]; 'sessions_not_independent' labels session-level "
+                "tests",
     "gain_by_group": "{group: {n, min, q1, median, q3, max}} or {group: [values]}",
     "sequence_lengths": "{group: {n, min, q1, median, q3, max}} or {group: [values]} (tokens)",
     "pause_edges_seconds": "pause bin edges in seconds, ascending (or encoding.pause.edges)",
@@ -124,7 +134,12 @@ PATTERN_COLUMNS = {
     "support_<group>": "share of the group's sequences containing the pattern (0-1)",
     "p_value": "raw p value of the presence test",
     "q_value": "p value after the multiple-comparison correction",
-    "favours": "group in which the pattern is more common when significant, else empty",
+    "p_volume": "p value of the presence test at equal activity (volume-adjusted)",
+    "q_volume": "p_volume after the multiple-comparison correction",
+    "p_order": "p value of the order test (patterns of two or more tokens)",
+    "q_order": "p_order after the multiple-comparison correction",
+    "evidence": "'order', 'presence' (beyond activity), 'volume' (activity only) or empty",
+    "favours": "group the evidence favours, else empty",
     "risk_difference": "support in the first group minus support in the second",
     "odds_ratio": "odds of presence, first group over second",
     "cohens_h": "Cohen's h between the two supports",
@@ -132,6 +147,8 @@ PATTERN_COLUMNS = {
     "cramers_v": "Cramer's V (more than two groups)",
     "q_rate": "corrected p value of the rate test",
     "stability": "share of bootstrap resamples with p <= alpha in the same direction (0-1)",
+    "replication": "share of random half splits in which the evidence test holds in both "
+                   "halves (0-1)",
     "redundant_of": "kept pattern this one nearly duplicates, else empty",
 }
 
@@ -145,7 +162,7 @@ TRANSITION_COLUMNS = {
     "expected": "expected count under (quasi-)independence",
     "adjusted_residual": "adjusted residual (z-like; |value| > 1.96 is notable)",
     "yules_q": "Yule's Q of the 2x2 table of the transition (-1..1)",
-    "q_difference": "corrected p value of the difference between groups",
+    "q_pooled": "corrected p value of the difference between groups",
 }
 
 #: Keys of ``phases/phases.json`` (which model file belongs to which group).
@@ -324,6 +341,10 @@ def write_examples(out_dir, db, patterns, **kwargs):
         if "redundant_of" in df.columns:
             df = df[df["redundant_of"].fillna("").astype(str).str.strip() == ""]
         top, _ = hx.top_patterns(df, alpha, max_patterns)
+        groups = findings_by_evidence(df, max_patterns)
+        if groups:  # the cards the report shows: order and presence findings first
+            top = pd.concat([rows for kind, _, _, rows, _ in groups if kind != "volume"]
+                            + [top], ignore_index=True).drop_duplicates("pattern")
         names = [str(p) for p in top["pattern"]]
         favours = ([("" if pd.isna(f) else str(f)) for f in top["favours"]]
                    if "favours" in top.columns else None)
@@ -354,16 +375,19 @@ def _read_all(folder):
     d = {}
     d["summary"] = _read_json(folder, OUTPUT_FILES["summary"], dict)
     d["rejects"] = _read_csv(folder, OUTPUT_FILES["rejects"], numeric=("source_row",))
-    d["patterns"] = _read_csv(
-        folder, OUTPUT_FILES["patterns"],
-        numeric=("length", "p_value", "q_value", "risk_difference", "odds_ratio",
-                 "log_odds_ratio", "growth_rate", "cohens_h", "cliffs_delta", "p_rate",
-                 "q_rate", "chi2", "cramers_v", "kruskal_h", "stability"),
-        numeric_prefix=("support_", "rate_"))
+    pattern_numbers = ("length", "p_value", "q_value", "p_volume", "q_volume", "p_order",
+                       "q_order", "risk_difference", "odds_ratio", "log_odds_ratio",
+                       "growth_rate", "cohens_h", "cliffs_delta", "p_rate", "q_rate", "chi2",
+                       "cramers_v", "kruskal_h", "stability", "replication")
+    d["patterns"] = _read_csv(folder, OUTPUT_FILES["patterns"], numeric=pattern_numbers,
+                              numeric_prefix=("support_", "rate_"))
+    d["tokens"] = _read_csv(folder, OUTPUT_FILES["tokens"], numeric=pattern_numbers,
+                            numeric_prefix=("support_", "rate_"))
     d["transitions"] = _read_csv(
         folder, OUTPUT_FILES["transitions"],
         numeric=("count", "from_total", "to_total", "total", "expected", "probability",
-                 "adjusted_residual", "yules_q", "p_difference", "q_difference"))
+                 "adjusted_residual", "yules_q", "learners", "learner_probability",
+                 "p_learners", "q_learners", "p_pooled", "q_pooled"))
     d["phases_summary"] = _read_json(folder, OUTPUT_FILES["phases_summary"], dict)
     d["state_selection"] = _read_csv(
         folder, OUTPUT_FILES["state_selection"],
@@ -490,6 +514,7 @@ def _page_body(d, *, examples, max_patterns, max_examples, explorer_rows):
         sec.section_patterns(d, figs, examples=examples, max_patterns=max_patterns,
                              max_examples=max_examples),
         explorer,
+        sec.section_tokens(d),
         sec.section_transitions(d, figs),
         sec.section_phases(d, figs),
         sec.section_prediction(d, figs),

@@ -22,6 +22,7 @@ from .html import (
     _describe_grouping,
     _five_numbers,
     _fmt,
+    _fmt_p,
     _group_label,
     _h2,
     _int,
@@ -43,6 +44,14 @@ from .html import (
     lookup,
     top_patterns,
 )
+from .evidence import (
+    STABILITY_TEXT,
+    activity_lines,
+    findings_by_evidence,
+    survival_lines,
+    tokens_table,
+    unit_lines,
+)
 from .prediction import prediction_glance, section_prediction
 from .pieces import (
     _detector_card,
@@ -56,7 +65,8 @@ from .pieces import (
     _transition_table,
 )
 
-__all__ = ["section_intro", "section_overview", "section_patterns", "section_transitions",
+__all__ = ["section_intro", "section_overview", "section_patterns", "section_tokens",
+           "section_transitions",
            "section_phases", "phase_model", "section_prediction", "section_detectors",
            "section_method", "section_cautions"]
 
@@ -83,9 +93,16 @@ def _key_findings(d):
     if isinstance(per, dict) and per:
         items.append("Learners per group: " + ", ".join(
             f"{_group_label(g, groups)} {_int(n)}" for g, n in per.items()) + ".")
+    items += activity_lines(summary, groups)
+    items += survival_lines(summary, d["alpha"])
+    items += unit_lines(summary)
     pat = d["patterns"].value
     if pat is not None and "pattern" in pat.columns:
         sig = _significant(pat, d["alpha"])
+        beyond = ""
+        if "evidence" in pat.columns:  # findings that survive the volume adjustment
+            sig = pat[pat["evidence"].astype(str).isin(["order", "presence"])]
+            beyond = " beyond how active they were"
         if sig is not None:
             if len(sig):
                 fav = (sorted(sig["favours"].value_counts().items(),
@@ -98,12 +115,12 @@ def _key_findings(d):
                     n_distinct = int((sig["redundant_of"].astype(str).str.strip() == "").sum())
                     distinct = f"; {_int(n_distinct)} without near-duplicates"
                 items.append(f"{_int(len(sig))} of {_int(len(pat))} patterns differ reliably "
-                             f"between groups (q ≤ {d['alpha']:g}{distinct})"
+                             f"between groups{beyond} (q ≤ {d['alpha']:g}{distinct})"
                              + (": " + ", ".join(parts) if parts else "") + ".")
                 items += _strongest(sig, groups)
             else:
                 items.append(f"None of the {_int(len(pat))} patterns differs reliably between "
-                             f"groups (q ≤ {d['alpha']:g}).")
+                             f"groups{beyond} (q ≤ {d['alpha']:g}).")
     items += prediction_glance(d)
     items += _detectors_glance(d)
     if not items:
@@ -203,8 +220,9 @@ def section_patterns(d, figs, *, examples, max_patterns, max_examples):
            "between the two supports; <b>odds ratio</b> above 1 means more common in the "
            "first group; <b>Cohen's h</b> and <b>Cliff's delta</b> are standardised effect "
            "sizes (about 0.2 small, 0.5 medium, 0.8 large for h — common practice). "
-           "<b>Stability</b> is how often the pattern came out again on resampled data "
-           "(1 = always).</p>"]
+           "Each finding says what the data support: the <b>order</b> of its items, its "
+           "<b>presence</b> at equal activity, or only the groups' <b>activity</b> "
+           "(volume).</p>", f"<p>{STABILITY_TEXT}</p>"]
     inp = d["patterns"]
     if not inp.ok:
         return _section("patterns", out + [_missing(inp.note)])
@@ -220,28 +238,78 @@ def section_patterns(d, figs, *, examples, max_patterns, max_examples):
         redundant = df["redundant_of"].astype(str).str.strip() != ""
         hidden = int(redundant.sum())
         df = df[~redundant]
-    top, note = top_patterns(df, d["alpha"], max_patterns)
-    if hidden:
-        note += (f" {_plural(hidden, 'pattern')} that nearly duplicate a listed one (same "
-                 "learners) left out here; see the <code>redundant_of</code> column of patterns.csv.")
-    out.append(f'<p class="note">{note}</p>')
-    if sup_cols and len(top):
-        out.append(_plots.svg_support_bars(
-            [_pattern_label(p) for p in top["pattern"]],
-            {g: top[c].to_numpy(float) for g, c in sup_cols}, fig_id=figs()))
     ex_map = {}
     if examples:
         ex_inp = d["examples"]
         if ex_inp.ok and isinstance(ex_inp.value.get("patterns"), dict):
             ex_map = ex_inp.value["patterns"]
-    for rank, (_, row) in enumerate(top.iterrows(), start=1):
-        out.append(_pattern_card(rank, row, sup_cols, groups, d["alpha"],
-                                 ex_map.get(str(row["pattern"])), examples, max_examples))
+    redundant_note = (f" {_plural(hidden, 'pattern')} that nearly duplicate a listed one (same "
+                      "learners) left out here; see the <code>redundant_of</code> column of "
+                      "patterns.csv." if hidden else "")
+    grouped = findings_by_evidence(df, max_patterns)
+    if not grouped:  # a table without the evidence column: one list by q value
+        top, note = top_patterns(df, d["alpha"], max_patterns)
+        out.append(f'<p class="note">{note}{redundant_note}</p>')
+        out += _cards(top, sup_cols, groups, d, figs, ex_map, examples, max_examples)
+    else:
+        out.append(f'<p class="note">Findings are grouped by what the data support; within '
+                   f"a group the most reliable come first.{redundant_note}</p>")
+    for kind, title, reading, rows, total in grouped:
+        out.append(f"<h3>{esc(title)}: {_plural(total, 'pattern')}</h3><p>{reading}</p>")
+        if not total:
+            continue
+        if kind == "volume":
+            out.append(_volume_only_table(rows.head(10), groups, total))
+            continue
+        if total > len(rows):
+            out.append(f'<p class="note">The {len(rows)} most reliable are shown; '
+                       "patterns.csv lists all.</p>")
+        out += _cards(rows, sup_cols, groups, d, figs, ex_map, examples, max_examples)
     if not examples:
         out.append('<p class="note">Example excerpts were switched off for this report.</p>')
     elif not d["examples"].ok:
         out.append(_missing(f"example excerpts: {d['examples'].note}"))
     return _section("patterns", out)
+
+
+def _cards(rows, sup_cols, groups, d, figs, ex_map, examples, max_examples):
+    out = []
+    if sup_cols and len(rows):
+        out.append(_plots.svg_support_bars(
+            [_pattern_label(p) for p in rows["pattern"]],
+            {g: rows[c].to_numpy(float) for g, c in sup_cols}, fig_id=figs()))
+    for rank, (_, row) in enumerate(rows.iterrows(), start=1):
+        out.append(_pattern_card(rank, row, sup_cols, groups, d["alpha"],
+                                 ex_map.get(str(row["pattern"])), examples, max_examples))
+    return out
+
+
+def _volume_only_table(rows, groups, total):
+    heads = ["pattern"] + [f"share {g}" for g in groups] + ["q (before)", "q (at equal "
+                                                            "activity)", "more in"]
+    body = [[_chips(_split(r["pattern"]))] + [_pct(r.get(f"support_{g}")) for g in groups]
+            + [_fmt_p(r.get("q_value")), _fmt_p(r.get("q_volume")),
+               _group_label(r["favours"], groups) if str(r.get("favours") or "") else ""]
+            for _, r in rows.iterrows()]
+    more = f'<p class="note">{_int(total - len(rows))} more in patterns.csv.</p>' \
+        if total > len(rows) else ""
+    return _table(heads, body, raw_cells=False,
+                  num_cols=tuple(range(1, len(groups) + 3))) + more
+
+
+def section_tokens(d):
+    """Single actions and pause kinds: what each group does more of."""
+    out = [_h2("tokens"),
+           "<p>Every action and pause kind on its own, whatever the mined pattern lengths: "
+           "the share of each group's learners who show it, how often it occurs per 100 "
+           "tokens, a rank test on those rates (<b>q (rates)</b>) and the presence test at "
+           "equal activity. Differences here are about how often learners do things; "
+           "the patterns above add the order they do them in.</p>"]
+    inp = d["tokens"]
+    if not inp.ok:
+        return _section("tokens", out + [_missing(inp.note)])
+    out.append(tokens_table(inp.value, d["groups"], d["alpha"]))
+    return _section("tokens", out)
 
 
 def section_transitions(d, figs):
@@ -250,9 +318,13 @@ def section_transitions(d, figs):
            "<p>For each pair of consecutive tokens, the <b>adjusted residual</b> compares how "
            "often the second followed the first with what independence would predict: "
            "blue cells (positive) are followed more often than expected, brown cells "
-           "(negative) less often. Values beyond ±1.96 are notable at about the 5% level "
-           "for one cell (common practice; many cells are shown, so expect some by chance). "
-           "The small number under each residual is the observed count.</p>"]
+           "(negative) less often. The residuals pool every transition of a group as if "
+           "each were independent, so they <b>describe</b> the tables and are not tests: "
+           "very active learners weigh most, and with many transitions tiny differences "
+           "look extreme. The small number under each residual is the observed count. "
+           "Whether the groups differ is tested at the learner level: each learner's own "
+           "share of the transitions out of a token, compared between groups "
+           "(<b>q (learners)</b>, every learner counted once).</p>"]
     inp = d["transitions"]
     if not inp.ok:
         return _section("transitions", out + [_missing(inp.note)])
@@ -426,17 +498,25 @@ def section_method(d):
     add("Longest pattern", "max_length")
     add("Largest gap between pattern items (tokens)", "max_gap")
     add("Presence test", "presence_test")
+    add("Volume-adjusted test", "volume_test")
+    add("Order test", "order_test")
     add("Rate test", "rate_test")
+    add("Transition test", "transition_test")
+    add("Unit of analysis", "unit_of_analysis",
+        lambda v: esc(v) + (" (session-level tests: sessions counted as independent)"
+                            if str(v) == "sequence" else " (each learner counted once)"))
     add("Multiple-comparison correction", "correction",
         lambda v: esc(_CORRECTIONS.get(str(v).lower(), v)))
     add("Threshold on q", "alpha")
     if str(lookup(summary, "correction") or "").lower().startswith("westfall"):
         add("Permutations", "n_permutations")
     add("Bootstrap resamples behind stability", "n_bootstrap")
+    add("Random half splits behind replication", "n_replication_splits")
     add("Cross-validation folds (early prediction)", "n_splits")
     add("Repetitions of the cross-validation (classifiers using phase models)", "n_repeats",
         lambda v: esc(v) + (f" ({esc(lookup(summary, 'n_repeats_hmm'))})"
                             if lookup(summary, "n_repeats_hmm") is not None else ""))
+    items.append(f"<li>{STABILITY_TEXT}</li>")
     items.append("<li><b>Patterns</b> were mined by prefix projection (PrefixSpan) and kept "
                  "when frequent in at least one group. <b>Transitions</b>: lag-1 counts with "
                  "adjusted residuals and Yule's Q. <b>Phases</b>: hidden Markov models with "

@@ -22,6 +22,7 @@ from .effects import (
     mannwhitney_sparse,
     odds_ratio_haldane,
 )
+from .evidence import classify_evidence, evidence_tests
 from .multitest import adjust_pvalues
 from .permutation import (
     bootstrap_significance,
@@ -29,6 +30,7 @@ from .permutation import (
     westfall_young_rates,
 )
 from .redundancy import prune_redundant
+from .replication import split_half_replication
 
 __all__ = [
     "contrast",
@@ -54,7 +56,9 @@ _ORDERS = ("significance", "length")
 def contrast(patterns, db=None, *, lengths=None, groups=None,
              correction=_DEFAULTS["correction"], alpha=_DEFAULTS["alpha"],
              n_permutations=_DEFAULTS["n_permutations"], random_state=DEFAULT_CONFIG["seed"],
-             n_bootstrap=_DEFAULTS["n_bootstrap"], redundancy=_DEFAULTS["redundancy"],
+             n_bootstrap=_DEFAULTS["n_bootstrap"],
+             n_replication_splits=_DEFAULTS["n_replication_splits"],
+             n_volume_strata=_DEFAULTS["n_volume_strata"], redundancy=_DEFAULTS["redundancy"],
              redundancy_order="significance", drop_redundant=False, rate_unit=None,
              unit=_DEFAULTS["unit"], batch_size=None, n_jobs=DEFAULT_CONFIG["n_jobs"],
              scheduler=None):
@@ -66,9 +70,12 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
         Mined or matched patterns with their sparse instance-count matrix.
     db : SequenceDB, optional
         The database the patterns were counted on; gives sequence lengths for rates
-        (and action counts for ``rate_unit="actions"``).
+        (and action counts for ``rate_unit="actions"``), each unit's activity volume
+        (events) for the volume adjustment, its token counts for the order test, and
+        which sequences belong to which learner.
     lengths : array_like of int, optional
-        Length of each sequence in tokens, instead of ``db``.
+        Length of each sequence in tokens, instead of ``db`` (then also the activity
+        volume; no order test).
     groups : sequence of str, optional
         Names of the groups to compare. Two names give a two-group contrast (the
         first is "group A" for signed effect sizes); more give an omnibus test.
@@ -86,6 +93,11 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
         Seed of the permutations and bootstrap resamples (same seed, same table).
     n_bootstrap : int
         Stratified bootstrap resamples for ``stability`` (0 = skip, column NaN).
+    n_replication_splits : int
+        Random half splits for ``replication`` (0 = skip, column NaN).
+    n_volume_strata : int, optional
+        Activity strata of the volume adjustment; default about one per ten units
+        (at least 2, at most 50; see :func:`seqmine.scoring.adjusted.activity_strata`).
     redundancy : float or None
         Jaccard threshold on supporting-sequence sets for ``redundant_of``
         (None = no pruning).
@@ -99,13 +111,15 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
         Rates are instance counts per 100 tokens of the sequence (pauses included),
         per 100 action tokens (needs ``db``), or raw instance counts per sequence.
         Default: ``"tokens"`` when lengths are known, else ``"count"``.
-    unit : {"auto", "sequence", "learner"}
-        Unit of analysis. ``"learner"`` (needs ``db``) first merges each learner's
-        sequences (sessions): instance counts and lengths are summed, a pattern is
-        present when it occurs in any of them; supports are then shares of learners
-        and permutations and resamples move whole learners. ``"auto"`` (the default)
-        is ``"learner"`` when ``db`` shows several sequences for some learner, else
-        ``"sequence"``, so each learner counts once.
+    unit : {"learner", "sequence", "auto"}
+        Unit of analysis. ``"learner"`` first merges each learner's sequences
+        (sessions, known from ``db``): instance counts, lengths and token counts are
+        summed, a pattern is present when it occurs in any of them; supports are then
+        shares of learners and permutations, resamples and splits move whole learners
+        (without ``db`` each sequence counts as one learner). ``"sequence"`` treats
+        every sequence (session) as an independent unit and warns
+        (``sessions_not_independent``) when a learner has several. ``"auto"`` is the
+        same as ``"learner"`` (kept for configurations that spell it so).
     batch_size : int, optional
         Permutations/resamples per sparse product (memory bound).
     n_jobs, scheduler
@@ -122,16 +136,30 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
         group g's sequences containing the pattern (every group of the PatternSet);
         ``rate_<g>`` mean rate (see ``rate_unit``); ``p_value`` two-sided Fisher
         exact test on presence (A vs B); ``q_value`` adjusted by ``correction``;
-        ``favours`` the group with the higher support when ``q_value <= alpha``,
-        else ``""``; ``risk_difference`` support A - support B; ``odds_ratio``
+        ``p_volume`` Cochran-Mantel-Haenszel test of presence across activity strata
+        (the difference at equal activity volume); ``q_volume`` its adjustment (same
+        correction; Holm, also a family-wise control, for "westfall-young");
+        ``p_order`` (patterns of two or more tokens) the same stratified test among the
+        units that hold every item of the pattern: does the group difference concern
+        the order, beyond the items occurring at all; ``q_order`` its adjustment over
+        those patterns (Holm when ``correction`` is "westfall-young"); ``evidence``
+        ``"order"`` (``q_order <= alpha``), else ``"presence"`` (``q_volume <= alpha``),
+        else ``"volume"`` (only ``q_value <= alpha``: a difference that the activity
+        volume explains), else ``""``; ``favours`` the group the evidence test
+        favours (``""`` without evidence); ``risk_difference`` support A - support B; ``odds_ratio``
         presence odds A / B, with 0.5 added to every cell of a table with a zero
         cell (Haldane-Anscombe); ``log_odds_ratio``; ``growth_rate`` support A /
         support B (inf when B is 0); ``cohens_h``; ``cliffs_delta`` on rates,
         P(rate A > rate B) - P(rate A < rate B); ``p_rate`` two-sided Mann-Whitney
         U on rates; ``q_rate`` ``p_rate`` adjusted by ``correction`` (for
         "westfall-young" the same permutations applied to the rank test, with the
-        normal-approximation p-value as statistic); ``stability``; ``redundant_of``
-        the kept pattern whose supporting sequences nearly coincide (``""`` if none).
+        normal-approximation p-value as statistic); ``stability``; ``replication``;
+        ``redundant_of`` the kept pattern whose supporting sequences nearly coincide
+        (``""`` if none).
+
+        Without activity volumes (no ``db`` and no ``lengths``) the volume and order
+        columns are NaN, ``evidence`` is empty and ``favours`` names the group with
+        the higher support when ``q_value <= alpha``.
 
         For more than two groups the effect-size columns are replaced by ``chi2``
         and ``cramers_v`` (Pearson chi-square on the groups x present/absent table,
@@ -148,7 +176,16 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
     replacement (same sizes); ``stability`` is the fraction of resamples in which
     the raw presence test has p <= ``alpha`` (nominal, uncorrected) with the same
     direction as on the full data (the same sign of the risk difference; with more
-    groups the same most-supported group).
+    groups the same most-supported group). Resamples reuse the same learners, so
+    stability says whether a finding rests on a few of them, not whether it would
+    come out again in new learners.
+
+    *Replication.* Each of ``n_replication_splits`` random splits halves every group's
+    units; for each finding, ``replication`` is the fraction of splits in which the
+    test named by ``evidence`` (the volume-adjusted test for ``"presence"``, the raw
+    test for ``"volume"``) has p <= ``alpha`` in both halves, favouring the full-data
+    group (:func:`seqmine.scoring.replication.split_half_replication`); NaN for
+    patterns without evidence (nothing was found to replicate).
 
     *Redundancy.* Patterns are visited by priority (``redundancy_order``); a pattern
     is redundant when the Jaccard index of its set of supporting sequences with
@@ -156,17 +193,16 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
     highest-priority such pattern. Chains do not propagate: a pattern close only to
     a redundant pattern stays kept.
 
-    *Units.* The learner is the unit: with one sequence per learner the sequences are
-    the units and permutations and resamples move whole sequences; with several
-    (sessions), ``unit="auto"`` merges each learner's first. When ``db`` shows several
-    sequences per learner and ``unit="sequence"``, a SeqmineWarning says that they are
+    *Units.* Learners are the units when ``db`` is given; permutations, resamples and
+    splits move whole learners. With ``unit="sequence"`` and several sequences per
+    learner, a SeqmineWarning (code ``sessions_not_independent``) says that they are
     treated as independent. Findings are correlational.
 
     References
     ----------
-    Fisher (1935); Mann & Whitney (1947); Benjamini & Hochberg (1995); Holm (1979);
-    Westfall & Young (1993); Cohen (1988) for h; Cliff (1993) for delta; Dong & Li
-    (1999) for growth rate.
+    Fisher (1935); Mann & Whitney (1947); Mantel & Haenszel (1959); Benjamini &
+    Hochberg (1995); Holm (1979); Westfall & Young (1993); Cohen (1988) for h; Cliff
+    (1993) for delta; Dong & Li (1999) for growth rate.
 
     Examples
     --------
@@ -180,10 +216,10 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
     ...                 group_names=db.group_names, group_sizes=db.group_sizes(),
     ...                 support_counts=[[6, 0], [0, 6]], counts=counts, seq_groups=db.groups)
     >>> table = contrast(ps, db, n_bootstrap=20)
-    >>> table[["pattern", "support_strong", "support_weak", "favours"]]
-      pattern  support_strong  support_weak favours
-    0   a > b             1.0           0.0  strong
-    1   b > a             0.0           1.0    weak
+    >>> table[["pattern", "support_strong", "support_weak", "evidence", "favours"]]
+      pattern  support_strong  support_weak evidence favours
+    0   a > b             1.0           0.0    order  strong
+    1   b > a             0.0           1.0    order    weak
     >>> float(table["p_value"].iloc[0].round(6))  # Fisher [[6, 0], [0, 6]]
     0.002165
     """
@@ -194,6 +230,10 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
     n_permutations = check_int(n_permutations, "n_permutations", "contrast", minimum=1)
     random_state = check_int(random_state, "random_state", "contrast", minimum=0)
     n_bootstrap = check_int(n_bootstrap, "n_bootstrap", "contrast", minimum=0)
+    n_replication_splits = check_int(n_replication_splits, "n_replication_splits", "contrast",
+                                     minimum=0)
+    n_volume_strata = check_int(n_volume_strata, "n_volume_strata", "contrast", minimum=1,
+                                allow_none=True)
     if redundancy is not None:
         redundancy = check_fraction(redundancy, "redundancy", "contrast")
     redundancy_order = check_choice(redundancy_order, "redundancy_order", _ORDERS, "contrast")
@@ -211,6 +251,7 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
         stats = _two_group_stats(pres, rates, labels == 0, labels == 1)
         p = stats["p_value"]
         direction = np.sign(stats["risk_difference"]).astype(np.int64)
+        dir_raw = np.where(direction > 0, 0, np.where(direction < 0, 1, -1))
     else:
         counts = np.rint(_group_sums(pres, labels, len(names)))
         sizes = np.bincount(labels, minlength=len(names))
@@ -218,8 +259,11 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
         h, p_rate = kruskal_sparse(rates, labels, len(names))
         frac = counts / sizes[:, None]
         direction = np.argmax(frac, axis=0)
+        dir_raw = direction
         stats = {"p_value": p, "chi2": chi,
                  "cramers_v": np.sqrt(chi / sizes.sum()), "kruskal_h": h, "p_rate": p_rate}
+    ev = evidence_tests(pres, labels, len(names), patterns.patterns, volume=prep["volume"],
+                        token_counts=prep["token_counts"], n_strata=n_volume_strata)
 
     if correction == "westfall-young":
         _, q = westfall_young_minp(pres, labels, n_permutations=n_permutations,
@@ -235,14 +279,20 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
     else:
         q_rate = adjust_pvalues(stats["p_rate"], correction)
 
-    if len(names) == 2:
-        sup = np.stack([stats["support_a"], stats["support_b"]])
-        fav_idx = np.where(sup[0] > sup[1], 0, 1)
-        fav_ok = (q <= alpha) & (sup[0] != sup[1])
-    else:
-        fav_idx = direction
-        fav_ok = q <= alpha
-    favours = np.where(fav_ok, np.array(names, dtype=object)[fav_idx], "")
+    # the same error rate as q_value; Westfall-Young permutations would have to move
+    # learners only within activity strata, and residual activity differences inside a
+    # stratum break that exchangeability (family-wise error 0.07 at a nominal 0.05 on
+    # generated data), so family-wise control there is Holm's, valid under any dependence
+    family = "holm" if correction == "westfall-young" else correction
+    q_volume = adjust_pvalues(ev["p_volume"], family)
+    q_order = adjust_pvalues(ev["p_order"], family)
+    if ev["strata"] is not None:
+        evidence, favours = classify_evidence(q, q_volume, q_order, dir_raw, ev["dir_volume"],
+                                              ev["dir_order"], names, alpha)
+    else:  # no activity volumes: no adjustment, favours follows q_value
+        evidence = np.full(m, "", dtype=object)
+        _, favours = classify_evidence(q, np.full(m, np.nan), np.full(m, np.nan), dir_raw,
+                                       dir_raw, dir_raw, names, alpha)
 
     if n_bootstrap > 0:
         stability = bootstrap_significance(pres, labels, direction,
@@ -250,6 +300,21 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
                                            random_state=random_state, batch_size=batch_size)
     else:
         stability = np.full(m, np.nan)
+
+    # replication is of findings: the test named by the evidence (without activity
+    # volumes, the raw test of rows that favour a group); NaN for the rest
+    if ev["strata"] is None:
+        tests = np.where(favours != "", "raw", "")
+        rep_dir = dir_raw
+    else:
+        tests = np.where(evidence == "order", "order", np.where(
+            evidence == "presence", "volume", np.where(evidence == "volume", "raw", "")))
+        rep_dir = np.where(evidence == "order", ev["dir_order"],
+                           np.where(evidence == "volume", dir_raw, ev["dir_volume"]))
+    replication = split_half_replication(
+        pres, labels, len(names), tests, rep_dir, alpha=alpha, n_splits=n_replication_splits,
+        random_state=random_state, strata=ev["strata"], token_counts=prep["token_counts"],
+        lengths=ev.get("lengths"), patterns=patterns.patterns)
 
     if redundancy is not None:
         lens = patterns.lengths
@@ -263,6 +328,11 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
 
     table["p_value"] = p
     table["q_value"] = q
+    table["p_volume"] = ev["p_volume"]
+    table["q_volume"] = q_volume
+    table["p_order"] = ev["p_order"]
+    table["q_order"] = q_order
+    table["evidence"] = evidence
     table["favours"] = favours
     if len(names) == 2:
         for col in ("risk_difference", "odds_ratio", "log_odds_ratio", "growth_rate",
@@ -274,6 +344,7 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
     table["p_rate"] = stats["p_rate"]
     table["q_rate"] = q_rate
     table["stability"] = stability
+    table["replication"] = replication
     table["redundant_of"] = redundant_of
     df = pd.DataFrame(table)
     df = df.iloc[np.argsort(p, kind="stable")].reset_index(drop=True)
@@ -281,11 +352,13 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
         df = df[df["redundant_of"] == ""].reset_index(drop=True)
     df.attrs.update(_attrs(prep, correction, alpha, n_permutations, random_state, n_bootstrap,
                            redundancy))
+    df.attrs.update(n_replication_splits=n_replication_splits,
+                    n_volume_strata=int(ev["n_strata"]))
     return df
 
 
 def pairwise_contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh",
-                      alpha=0.05, rate_unit=None, unit="auto"):
+                      alpha=0.05, rate_unit=None, unit="learner"):
     """Two-group comparisons of every pair of groups, as one long table.
 
     Parameters
@@ -374,23 +447,21 @@ def sequence_rates(patterns, lengths=None, *, per=100.0):
 
 # --------------------------------------------------------------------- helpers
 def _prepare_unit(patterns, db, lengths, groups, rate_unit, unit, where):
-    """:func:`_prepare` after merging sequences into learners when ``unit='learner'``
-    (or ``'auto'`` and some learner has several sequences)."""
-    check_choice(unit, "unit", ("auto", "sequence", "learner"), where)
+    """:func:`_prepare` after merging sequences into learners when ``unit='learner'``,
+    plus each unit's activity volume and token counts (``volume``, ``token_counts``)."""
+    check_choice(unit, "unit", ("learner", "sequence", "auto"), where)
     if unit == "auto":
-        repeated = db is not None and len(np.unique(db.learners)) < db.n_sequences
-        unit = "learner" if repeated else "sequence"
-    if unit == "sequence":
-        prep = _prepare(patterns, db, lengths, groups, rate_unit, where)
+        unit = "learner"
+    merge = (unit == "learner" and db is not None and isinstance(patterns, PatternSet)
+             and db.n_sequences == patterns.counts.shape[0]
+             and len(np.unique(db.learners)) < db.n_sequences)
+    if not merge:
+        prep = _prepare(patterns, db, lengths, groups, rate_unit, where,
+                        sessions_ok=unit == "learner")
         prep["patterns"] = patterns
-        return prep
-    if db is None:
-        raise ParameterError(f"unit='learner' of {where} needs db= (to know which sequences "
-                             f"belong to which learner).")
-    if not isinstance(patterns, PatternSet):
-        return _prepare(patterns, db, lengths, groups, rate_unit, where)
-    if db.n_sequences != patterns.counts.shape[0]:
-        return _prepare(patterns, db, lengths, groups, rate_unit, where)
+        prep["unit"] = unit
+        volume, tokens = _unit_activity(db, lengths, None)
+        return _with_activity(prep, volume, tokens)
     if rate_unit is None:
         rate_unit = "tokens"
     rate_unit = check_choice(rate_unit, "rate_unit", _RATE_UNITS, where)
@@ -435,11 +506,36 @@ def _prepare_unit(patterns, db, lengths, groups, rate_unit, unit, where):
     prep["rate_unit"] = rate_unit
     prep["patterns"] = merged
     prep["unit"] = "learner"
+    volume, tokens = _unit_activity(db, lengths, agg)
+    return _with_activity(prep, volume, tokens)
+
+
+def _unit_activity(db, lengths, agg):
+    """Events and token counts per sequence (or per learner when ``agg`` merges them).
+
+    Without ``db`` the volume is ``lengths`` (tokens) and there are no token counts.
+    """
+    if db is None:
+        return (None if lengths is None else np.asarray(lengths, dtype=np.float64)), None
+    seq = db.seq_index
+    events = np.bincount(seq[db.action_mask], minlength=db.n_sequences).astype(np.float64)
+    tokens = sp.csr_matrix((np.ones(db.n_tokens), (seq, np.asarray(db.tokens, np.int64))),
+                           shape=(db.n_sequences, len(db.vocab)))
+    if agg is not None:
+        return np.asarray(agg @ events).ravel(), sp.csr_matrix(agg @ tokens)
+    return events, tokens
+
+
+def _with_activity(prep, volume, tokens):
+    keep = prep["keep"]
+    prep["volume"] = None if volume is None else volume[keep]
+    prep["token_counts"] = None if tokens is None else tokens[keep]
     return prep
 
 
-def _prepare(patterns, db, lengths, groups, rate_unit, where):
-    """Validate inputs; restrict to the compared groups; compute presence and rates."""
+def _prepare(patterns, db, lengths, groups, rate_unit, where, sessions_ok=False):
+    """Validate inputs; restrict to the compared groups; compute presence and rates
+    (``sessions_ok``: sequences are known to be one per learner, no warning needed)."""
     if not isinstance(patterns, PatternSet):
         raise ParameterError(
             f"{where} needs a PatternSet (from seqmine.mining.miner or seqmine.match); got "
@@ -511,13 +607,14 @@ def _prepare(patterns, db, lengths, groups, rate_unit, where):
     lab_all = np.where(seq_groups >= 0, remap[seq_groups], -1)
     keep = np.flatnonzero(lab_all >= 0)
     labels = lab_all[keep]
-    if db is not None:
+    if db is not None and not sessions_ok:
         learners = db.learners[keep]
         if len(np.unique(learners)) < len(learners):
             warnings.warn(SeqmineWarning(
                 f"Some learners have several sequences (sessions); {where} treats sequences "
-                f"as independent units, which overstates the evidence. Use unit='learner' "
-                f"(or encode one sequence per learner) for learner-level tests.",
+                f"as independent units (session-level tests), which overstates the "
+                f"evidence. Use unit='learner' (--contrast-unit learner, the default) for "
+                f"learner-level tests.",
                 code="sessions_not_independent"), stacklevel=3)
     rates_all = sequence_rates(patterns, lengths)
     presence_all = patterns.presence()
@@ -587,10 +684,11 @@ def _two_group_stats(pres, rates, in_a, in_b):
 
 
 def _empty_frame(table, names, correction):
-    cols = list(table) + ["p_value", "q_value", "favours"]
+    cols = list(table) + ["p_value", "q_value", "p_volume", "q_volume", "p_order", "q_order",
+                          "evidence", "favours"]
     cols += (["risk_difference", "odds_ratio", "log_odds_ratio", "growth_rate", "cohens_h",
               "cliffs_delta"] if len(names) == 2 else ["chi2", "cramers_v", "kruskal_h"])
-    cols += ["p_rate", "q_rate", "stability", "redundant_of"]
+    cols += ["p_rate", "q_rate", "stability", "replication", "redundant_of"]
     df = pd.DataFrame({c: table.get(c, []) for c in cols})
     df.attrs.update({"groups": list(names), "correction": correction})
     return df

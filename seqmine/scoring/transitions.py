@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+import scipy.sparse as sp
 from scipy import stats
 
 from .._util.checks import check_choice
@@ -18,6 +19,8 @@ __all__ = [
     "adjusted_residuals",
     "quasi_independence_expected",
     "yules_q",
+    "learner_transition_tests",
+    "welch_means_test",
     "TRANSITION_COLUMNS",
     "MAX_TRANSITION_CELLS",
 ]
@@ -29,13 +32,15 @@ MAX_TRANSITION_CELLS = 2**25
 #: Columns of the table returned by :func:`transitions` (``transitions.csv``).
 TRANSITION_COLUMNS = [
     "group", "from", "to", "count", "from_total", "to_total", "total", "expected",
-    "probability", "adjusted_residual", "yules_q", "p_difference", "q_difference",
+    "probability", "adjusted_residual", "yules_q", "learners", "learner_probability",
+    "p_learners", "q_learners", "p_pooled", "q_pooled",
 ]
 
 
 def transitions(db, *, exclude_pauses=DEFAULT_CONFIG["transitions"]["exclude_pauses"],
                 structural_zeros="auto", correction="bh"):
-    """Lag-1 transition table per group with adjusted residuals and a group test.
+    """Lag-1 transition table per group: adjusted residuals (description) and a
+    learner-level test of the group difference (inference).
 
     Parameters
     ----------
@@ -51,7 +56,7 @@ def transitions(db, *, exclude_pauses=DEFAULT_CONFIG["transitions"]["exclude_pau
         come from iterative proportional fitting (quasi-independence) instead of
         ``row * column / total``. ``"none"``: no structural zeros.
     correction : {"bh", "holm"}
-        Correction of ``p_difference`` over all listed transitions.
+        Correction of ``p_learners`` and ``p_pooled`` over all listed transitions.
 
     Returns
     -------
@@ -69,17 +74,31 @@ def transitions(db, *, exclude_pauses=DEFAULT_CONFIG["transitions"]["exclude_pau
         Liker 1982; Bakeman & Gottman 1997), |z| > 1.96 marks a transition more
         (or less) frequent than chance at about the 5% level, uncorrected;
         ``yules_q`` (AD - BC) / (AD + BC) from the 2x2 collapse A = x, B = r - x,
-        C = c - x, D = N - r - c + x; ``p_difference`` test that the share of a's
-        transitions going to b is the same in every group (Fisher exact on the
-        groups x (to b, to other) table for two groups, Pearson chi-square
-        otherwise; NaN with one group); ``q_difference`` its adjustment; both are
-        repeated on each group's row of the transition.
+        C = c - x, D = N - r - c + x; ``learners`` the group's learners with at least
+        one transition out of a; ``learner_probability`` the mean over those learners
+        of their own share of a's transitions that go to b; ``p_learners`` the
+        learner-level test that the groups' mean shares are equal (Welch's t test for
+        two groups, pairwise Welch tests with Bonferroni otherwise; see
+        :func:`learner_transition_tests`);
+        ``q_learners`` its
+        adjustment; ``p_pooled`` the token-level test on the groups x (to b, to other)
+        table of pooled counts (Fisher exact for two groups, Pearson chi-square
+        otherwise), which treats every transition as independent and so overstates
+        the evidence (description only); ``q_pooled`` its adjustment. Test columns are
+        NaN with one group and repeated on each group's row of the transition.
 
     Notes
     -----
+    Adjusted residuals, Yule's Q and the pooled test count transitions as if each
+    were an independent observation; a few very active learners then dominate, and
+    with many transitions tiny p-values follow from small differences. They
+    *describe* where the groups' transition tables differ; the learner-level test
+    (each learner counted once, whatever their activity) is the inference.
+
     With structural zeros the adjusted-residual formula above is kept with the
     fitted expected counts; it is then an approximation (common practice).
     Transitions are within sequences only; the last token of a sequence starts none.
+    Sessions of one learner are merged for the learner-level test.
 
     References
     ----------
@@ -114,6 +133,8 @@ def transitions(db, *, exclude_pauses=DEFAULT_CONFIG["transitions"]["exclude_pau
     r_all = counts.sum(axis=2)
     p_diff = _group_difference(x_all, r_all[:, pairs[:, 0]] if len(pairs) else x_all)
     q_diff = adjust_pvalues(p_diff, correction)
+    lt = learner_transition_tests(db, pairs, exclude_pauses=exclude_pauses)
+    q_learn = adjust_pvalues(lt["p_learners"], correction)
     vocab = np.array(db.vocab, dtype=object)
     for g in range(n_groups):
         table = counts[g].astype(np.float64)
@@ -136,7 +157,9 @@ def transitions(db, *, exclude_pauses=DEFAULT_CONFIG["transitions"]["exclude_pau
             "expected": expected[a_, b_], "probability": prob,
             "adjusted_residual": z[a_, b_],
             "yules_q": yules_q(x, r[a_] - x, c[b_] - x, n - r[a_] - c[b_] + x),
-            "p_difference": p_diff, "q_difference": q_diff,
+            "learners": lt["learners"][g], "learner_probability": lt["mean_share"][g],
+            "p_learners": lt["p_learners"], "q_learners": q_learn,
+            "p_pooled": p_diff, "q_pooled": q_diff,
         }))
     if not frames:
         return pd.DataFrame({c: [] for c in TRANSITION_COLUMNS})
@@ -188,6 +211,159 @@ def transition_counts(db, *, exclude_pauses=DEFAULT_CONFIG["transitions"]["exclu
     flat = (grp[ok] * v + frm[ok]) * v + to[ok]
     counts = np.bincount(flat, minlength=len(names) * v * v).reshape(len(names), v, v)
     return counts.astype(np.int64), names
+
+
+def learner_transition_tests(db, pairs, *, exclude_pauses=False):
+    """Learner-level test of each transition a -> b between groups.
+
+    Each learner's transitions (over all their sequences) give their own share of a's
+    transitions that go to b, ``x_i / r_i``, defined for learners with ``r_i > 0``.
+    The groups' mean shares are compared with Welch's t test (two groups; pairwise with
+    Bonferroni for more), see :func:`welch_means_test`. Every learner counts once,
+    however active. Given ``r_i``, the share has mean p whatever ``r_i`` is, but its
+    spread shrinks as ``r_i`` grows, so groups that differ in activity differ in
+    spread: a test of means that allows unequal variances stays valid there, while a
+    rank test (which compares whole distributions) would not.
+
+    Parameters
+    ----------
+    db : SequenceDB
+    pairs : ndarray of int, shape (k, 2)
+        (from, to) vocabulary ids of the transitions to test.
+    exclude_pauses : bool
+        Drop pause tokens first (as in :func:`transitions`).
+
+    Returns
+    -------
+    dict
+        ``learners`` (n_groups, k): learners of each group with ``r_i > 0``;
+        ``mean_share`` (n_groups, k): their mean share (NaN without learners);
+        ``p_learners`` (k,): p-values (NaN when fewer than two groups have such
+        learners, or the database has one group).
+
+    Examples
+    --------
+    >>> from seqmine.encoding.sequences import SequenceDB
+    >>> seqs = [["a", "b", "a", "b"], ["a", "a", "b"], ["a", "b", "b"], ["a", "a", "a", "b"],
+    ...         ["a", "b", "a", "b", "a", "b"], ["a", "a", "b", "a"], ["a", "b", "a", "a"],
+    ...         ["b", "a", "a"]]
+    >>> db = SequenceDB.from_lists(seqs, groups=["strong", "weak"] * 4)
+    >>> out = learner_transition_tests(db, np.array([[0, 1]]))
+    >>> out["mean_share"][:, 0].round(4).tolist(), round(float(out["p_learners"][0]), 4)
+    ([0.875, 0.3333], 0.0198)
+
+    (shares 1, 1, 1, 1/2 against 1/2, 1/3, 1/2, 0; ``scipy.stats.ttest_ind(...,
+    equal_var=False)`` gives the same p.)
+    """
+    pairs = np.asarray(pairs, dtype=np.int64).reshape(-1, 2)
+    k = len(pairs)
+    n_groups = db.n_groups
+    out = {"learners": np.zeros((max(n_groups, 1), k), dtype=np.int64),
+           "mean_share": np.full((max(n_groups, 1), k), np.nan), "p_learners": np.full(k, np.nan)}
+    if n_groups < 2 or k == 0 or np.all(db.groups < 0):
+        return out
+    tokens = np.asarray(db.tokens, dtype=np.int64)
+    seq = db.seq_index
+    if exclude_pauses:
+        keep = ~db.is_pause[tokens]
+        tokens, seq = tokens[keep], seq[keep]
+    names, inverse = np.unique(db.learners, return_inverse=True)
+    learner_of_seq = inverse.ravel()
+    n_l = len(names)
+    group_l = np.full(n_l, -1, dtype=np.int64)
+    group_l[learner_of_seq] = db.groups      # a learner's group (one per learner)
+    v = len(db.vocab)
+    same = seq[1:] == seq[:-1]
+    frm, to = tokens[:-1][same], tokens[1:][same]
+    lid = learner_of_seq[seq[:-1][same]]
+    keys = pairs[:, 0] * v + pairs[:, 1]
+    order = np.argsort(keys, kind="stable")
+    flat = frm * v + to
+    pos = np.minimum(np.searchsorted(keys[order], flat), k - 1)
+    sel = keys[order][pos] == flat
+    pair_idx = order[pos[sel]]
+    x = sp.csc_matrix((np.ones(int(sel.sum())), (lid[sel], pair_idx)), shape=(n_l, k))
+    r = sp.csc_matrix((np.ones(len(frm)), (lid, frm)), shape=(n_l, v))
+    for a in np.unique(pairs[:, 0]):
+        cols = np.flatnonzero(pairs[:, 0] == a)
+        ra = r[:, int(a)].toarray().ravel()
+        rows = np.flatnonzero((ra > 0) & (group_l >= 0))
+        if len(rows) == 0:
+            continue
+        share = sp.csc_matrix(sp.diags(1.0 / ra[rows]) @ x[rows][:, cols])
+        lab = group_l[rows]
+        sizes = np.bincount(lab, minlength=n_groups).astype(np.float64)
+        out["learners"][:, cols] = sizes[:, None]
+        ind = sp.csr_matrix((np.ones(len(rows)), (lab, np.arange(len(rows)))),
+                            shape=(n_groups, len(rows)))
+        sums = np.asarray((ind @ share).todense())
+        sumsq = np.asarray((ind @ share.multiply(share)).todense())
+        with np.errstate(divide="ignore", invalid="ignore"):
+            out["mean_share"][:, cols] = np.where(sizes[:, None] > 0,
+                                                  sums / sizes[:, None], np.nan)
+        out["p_learners"][cols] = welch_means_test(sums, sumsq, sizes)
+    return out
+
+
+def welch_means_test(sums, sumsq, sizes):
+    """Heteroscedastic test that group means are equal, per column.
+
+    Parameters
+    ----------
+    sums, sumsq : ndarray, shape (n_groups, k)
+        Per group, the sum and the sum of squares of each column's values.
+    sizes : ndarray, shape (n_groups,)
+        Values per group.
+
+    Returns
+    -------
+    ndarray, shape (k,)
+        Two groups: Welch's t test, two-sided (``scipy.stats.ttest_ind(equal_var=False)``).
+        More groups: Welch's t test for every pair, combined by Bonferroni (the smallest
+        pair p-value times the number of pairs, at most 1). Only groups with at least two
+        values take part; NaN when fewer than two do. A pair without any spread gives 1.0
+        for equal means (scipy gives NaN) and 0.0 for different means (as scipy).
+
+    Notes
+    -----
+    Welch's one-way ANOVA (Welch 1951) would be the classical omnibus test, but on
+    generated null data with three groups of 40 learners and skewed shares it rejected
+    too often (family-wise error 0.06 to 0.09 at a nominal 0.05 over about 150
+    transitions); the Bonferroni combination of pairwise Welch tests held its level
+    (0.02) and stays valid whatever the groups' spreads.
+
+    Examples
+    --------
+    >>> x, y = np.array([1.0, 0.5, 0.75]), np.array([0.0, 0.25, 0.5, 0.25])
+    >>> p = welch_means_test(np.array([[x.sum()], [y.sum()]]),
+    ...                      np.array([[x @ x], [y @ y]]), np.array([3, 4]))
+    >>> from scipy import stats
+    >>> bool(np.isclose(p[0], stats.ttest_ind(x, y, equal_var=False).pvalue))
+    True
+    """
+    sums = np.asarray(sums, dtype=np.float64)
+    sumsq = np.asarray(sumsq, dtype=np.float64)
+    sizes = np.asarray(sizes, dtype=np.float64)
+    use = np.flatnonzero(sizes >= 2)
+    if len(use) < 2:
+        return np.full(sums.shape[1], np.nan)
+    n = sizes[use][:, None]
+    mean = sums[use] / n
+    var = np.maximum(sumsq[use] - n * mean ** 2, 0.0) / (n - 1)
+    var = np.where(var < 1e-12 * np.maximum(mean ** 2, 1.0), 0.0, var)
+    se2 = var / n
+    pairs = [(a, b) for a in range(len(use)) for b in range(a + 1, len(use))]
+    best = np.ones(sums.shape[1])
+    for a, b in pairs:
+        s2 = se2[a] + se2[b]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            t = (mean[a] - mean[b]) / np.sqrt(s2)
+            df = s2 ** 2 / (se2[a] ** 2 / (n[a] - 1) + se2[b] ** 2 / (n[b] - 1))
+            p = 2.0 * stats.t.sf(np.abs(t), df)
+        # no spread in either group: equal means give 1, different means 0 (as scipy)
+        flat = np.abs(mean[a] - mean[b]) <= 1e-12
+        best = np.minimum(best, np.where(s2 > 0, p, np.where(flat, 1.0, 0.0)))
+    return np.minimum(best * len(pairs), 1.0)
 
 
 def adjusted_residuals(table, expected=None):

@@ -521,8 +521,8 @@ class _ContrastScorer:
         self.n_permutations = n_permutations
 
     def __call__(self, patterns, db):
-        # unit="auto" (the default): several sequences (sessions) of one learner are
+        # unit="learner" (the default): several sequences (sessions) of one learner are
         # merged, so each learner counts once
         return contrast(patterns, db, correction=self.correction, alpha=self.alpha,
                         random_state=self.random_state, n_permutations=self.n_permutations,
-                        n_bootstrap=0, redundancy=None)
+                        n_bootstrap=0, n_replication_splits=0, redundancy=None)

@@ -23,7 +23,7 @@ __all__ = ["add_option", "flag_for", "FLAG_EXCEPTIONS", "add_event_options",
            "events_from_args", "outcomes_from_args", "grouping_from_args",
            "encoder_from_args", "mining_params", "add_privacy_option",
            "pseudonymize_inputs", "print_warnings", "int_or_none", "float_or_none",
-           "seconds_or_none",
+           "seconds_or_none", "evidence_list", "add_evidence_option",
            "support_value", "float_list", "label_list", "NONE_WORD", "shown"]
 
 #: How "no limit" / "not set" is written on the command line and in TOML files.
@@ -40,6 +40,7 @@ FLAG_EXCEPTIONS = {
     ("validate", "enabled"): "--no-validate",
     ("validate", "hmm"): "--hmm-states",           # sets validate.hmm.n_states
     ("privacy", "pseudonymize_key"): "--pseudonymize",
+    ("contrast", "unit"): "--contrast-unit",       # --unit: encode (sequences per session)
 }
 
 
@@ -159,6 +160,29 @@ def float_list(text):
     except ValueError:
         raise OptionValueError(
             f"expected comma-separated numbers, e.g. 5,30; got {text!r}") from None
+
+
+def evidence_list(text):
+    """``"order,presence"`` -> ``["order", "presence"]``; ``any`` -> None (select on
+    q_value alone)."""
+    parts = [x.strip().lower() for x in str(text or "").split(",") if x.strip()]
+    if parts == ["any"]:
+        return None
+    if not parts or any(x not in ("order", "presence", "volume") for x in parts):
+        raise OptionValueError(
+            f"expected a comma-separated list of order, presence, volume, or 'any'; "
+            f"got {text!r}")
+    return parts
+
+
+def add_evidence_option(g):
+    """``--evidence``: which findings may become detectors (``[detectors] evidence``)."""
+    add_option(g, "detectors", "evidence", type=evidence_list, metavar="KINDS",
+               default=shown(config_default("detectors", "evidence")),
+               help="kinds of evidence a detector may rest on (the evidence column of "
+                    "patterns.csv): comma-separated order, presence, volume, or 'any' to "
+                    "select on q_value alone (default: {default}: only findings that "
+                    "survive the volume adjustment)")
 
 
 def label_list(text):
@@ -333,6 +357,16 @@ def add_contrast_options(p, title="pattern statistics"):
                     "(default: {default})")
     add_option(g, "contrast", "redundancy", type=float_or_none, metavar="J",
                help="Jaccard threshold for redundancy marks, or 'none' (default: {default})")
+    add_option(g, "contrast", "n_replication_splits", type=int, metavar="N",
+               help="random half splits behind the replication column, 0 = skip "
+                    "(default: {default})")
+    add_option(g, "contrast", "n_volume_strata", type=int_or_none, metavar="N",
+               help="activity strata of the volume-adjusted and order tests, or 'none' for "
+                    "about one per ten learners, 2 to 50 (default: {default})")
+    add_option(g, "contrast", "unit", choices=["learner", "sequence"],
+               help="unit of the tests: 'learner' counts each learner once (sessions "
+                    "merged); 'sequence' treats every session as independent "
+                    "(session-level tests, which overstate the evidence; default: {default})")
     return g
 
 

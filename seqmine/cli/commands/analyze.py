@@ -33,6 +33,7 @@ def add_arguments(p):
     add_option(g, "transitions", "exclude_pauses", action=OnOffAction,
                help="transitions skip pause tokens (default: {default})")
     g = p.add_argument_group("later stages")
+    _options.add_evidence_option(g)
     add_option(g, "validate", "n_splits", type=int, metavar="K",
                help="learner folds of the early-prediction check (default: {default})")
     add_option(g, "validate", "n_repeats", type=int, metavar="R",

@@ -17,10 +17,13 @@ HELP = "test which mined patterns separate the outcome groups (patterns.csv, tra
 DESCRIPTION = (
     "Read a pattern set written by 'seqmine mine' and score every pattern for how it "
     "separates the outcome groups: per-group support and rate, Fisher's exact test on "
-    "presence, Mann-Whitney U on rates, effect sizes, multiple-comparison control "
-    "(Benjamini-Hochberg, Holm or a Westfall-Young permutation test), bootstrap stability "
-    "and redundancy marks. With --transitions (needs --sequences) also writes the lag-1 "
-    "transition table with adjusted residuals. Findings are correlational."
+    "presence, the same difference at equal activity volume (Cochran-Mantel-Haenszel "
+    "over activity strata) and in the items' order, the evidence each finding rests on, "
+    "Mann-Whitney U on rates, effect sizes, multiple-comparison control "
+    "(Benjamini-Hochberg, Holm or a Westfall-Young permutation test), bootstrap stability, "
+    "split-half replication and redundancy marks. With --transitions (needs --sequences) "
+    "also writes the lag-1 transition table with adjusted residuals (description) and a "
+    "learner-level test per transition. Findings are correlational."
 )
 
 
@@ -46,10 +49,6 @@ def add_arguments(parser):
     g.add_argument("--rate-unit", choices=("tokens", "actions", "count"), default=None,
                    help="rates per 100 tokens, per 100 actions or raw counts (default: "
                         "tokens with --sequences, else count)")
-    add_option(g, "contrast", "unit", choices=("auto", "sequence", "learner"),
-               help="unit of analysis; 'learner' merges each learner's sessions first "
-                    "(needs --sequences); 'auto' is 'learner' when some learner has several "
-                    "sequences, so each learner counts once (default: {default})")
     add_option(g, "transitions", "exclude_pauses", action=OnOffAction,
                help="transitions skip pause tokens (default: {default})")
 
@@ -67,22 +66,28 @@ def run(args):
     groups = [g.strip() for g in args.groups.split(",")] if args.groups else None
     table = contrast(ps, db, groups=groups, correction=args.correction, alpha=args.alpha,
                      n_permutations=args.permutations, random_state=args.seed,
-                     n_bootstrap=args.bootstrap, redundancy=args.redundancy,
+                     n_bootstrap=args.bootstrap,
+                     n_replication_splits=args.replication_splits,
+                     n_volume_strata=args.volume_strata, redundancy=args.redundancy,
                      redundancy_order=args.redundancy_order,
                      drop_redundant=args.drop_redundant, rate_unit=args.rate_unit,
-                     unit=args.unit, n_jobs=args.jobs)
+                     unit=args.contrast_unit, n_jobs=args.jobs)
     out = _writable(args.out, "--out")
     write_csv(table, out)
+    ev = table["evidence"].value_counts()
     messages = [f"wrote {len(table)} patterns to {out} "
-                f"({int((table['favours'] != '').sum())} with q <= {args.alpha} "
-                f"by {args.correction})"]
+                f"({int((table['q_value'] <= args.alpha).sum())} with q <= {args.alpha} "
+                f"by {args.correction}; evidence: {int(ev.get('order', 0))} order, "
+                f"{int(ev.get('presence', 0))} presence, {int(ev.get('volume', 0))} volume "
+                f"only)"]
     if args.pairwise:
         if len(table.attrs.get("groups", [])) < 3:
             raise ParameterError("--pairwise needs more than two compared groups; the two-group "
                                  "table already holds the pairwise comparison.")
         pw = pairwise_contrast(ps, db, groups=groups,
                                correction="bh" if args.correction == "bh" else "holm",
-                               alpha=args.alpha, rate_unit=args.rate_unit, unit=args.unit)
+                               alpha=args.alpha, rate_unit=args.rate_unit,
+                               unit=args.contrast_unit)
         path = _writable(args.pairwise, "--pairwise")
         write_csv(pw, path)
         messages.append(f"wrote {len(pw)} pairwise rows to {path}")

@@ -19,7 +19,8 @@ DESCRIPTION = (
     "Read the contrast table written by 'seqmine contrast' (patterns.csv) and the "
     "sequence database the patterns were mined on (for the encoding: symbol template, "
     "action mapping, pause bins, repeat collapsing), keep the patterns that are "
-    "significant, large enough, stable and not redundant, and write detectors.json for "
+    "significant after the volume adjustment (by default), large enough, stable and not "
+    "redundant, and write detectors.json for "
     "'seqmine watch'. Matching constraints (max gap, max window, skip pauses) come from "
     "the miner's pattern set folder (--patterns, or a patternset.json beside the table) "
     "unless given as options. Patterns favouring the weak group become 'discourage' "
@@ -53,6 +54,7 @@ def add_arguments(parser):
                    help="comma-separated groups whose patterns are kept (default: all)")
     add_option(g, "detectors", "max_detectors", type=_options.int_or_none, metavar="N",
                help="most detectors written, or 'none' (default: {default})")
+    _options.add_evidence_option(g)
     g.add_argument("--keep-redundant", action="store_true",
                    help="keep patterns contained in (or containing) a better one")
     g.add_argument("--strong-group", default=None, metavar="NAME",
@@ -110,7 +112,7 @@ def run(args):
         table, db, constraints, max_q=args.max_q, min_effect=args.min_effect,
         effect=args.effect, min_stability=args.min_stability, lengths=lengths, groups=groups,
         max_detectors=args.max_detectors, drop_redundant=not args.keep_redundant,
-        strong=args.strong_group, weak=args.weak_group,
+        evidence=args.evidence, strong=args.strong_group, weak=args.weak_group,
         encourage_share=args.encourage_share, examples=args.examples,
         absence_after_events=args.absence_events, absence_quantile=args.absence_quantile,
         absence_after_seconds=args.absence_seconds)
