@@ -134,7 +134,13 @@ ul.cautions li { margin-bottom: 6px; max-width: 78ch; }
 }
 @page { size: A4; margin: 14mm 12mm; }
 @media print {
-  body { background: #fff; font-size: 10pt; }
+  body { background: #fff; font-size: 9.5pt; line-height: 1.4; }
+  h2 { font-size: 15pt; } h3 { font-size: 11pt; margin: 8px 0 4px; }
+  p { margin: 3px 0 6px; }
+  article.card { padding: 4px 10px 6px; margin: 6px 0; border-radius: 0; }
+  .stats, .bars, .excerpt .who { font-size: 8pt; }
+  .tok { font-size: 8pt; }
+  blockquote.hint { padding: 3px 8px; }
   main, footer { max-width: none; padding: 0; }
   h2 { break-before: page; border-top: 0; margin-top: 0; }
   h2, h3 { break-after: avoid; }
