@@ -14,6 +14,7 @@ __all__ = [
     "DataFileError",
     "ColumnError",
     "ParameterError",
+    "OutputError",
     "OptionValueError",
     "PatternExplosionError",
     "NotFittedError",
@@ -43,6 +44,12 @@ class ColumnError(SeqmineInputError):
 
 class ParameterError(SeqmineInputError):
     """An option or parameter has an invalid value."""
+
+
+class OutputError(SeqmineInputError):
+    """An output cannot be written: a link or an input where an output goes, a file where
+    a folder is needed, no permission, a full disk, or another run writing the same folder.
+    Nothing of the run is left behind when it is raised."""
 
 
 class OptionValueError(ParameterError, argparse.ArgumentTypeError):

@@ -45,9 +45,9 @@ def test_columns_match_output_contract():
     ps = brute_patternset(db, PATTERNS)
     df = contrast(ps, db, n_bootstrap=10)
     assert list(df.columns) == [
-        "pattern", "length", "support_strong", "support_weak", "rate_strong", "rate_weak",
-        "p_value", "q_value", "p_volume", "q_volume", "p_order", "q_order", "evidence",
-        "favours", "risk_difference", "odds_ratio", "log_odds_ratio",
+        "pattern_id", "pattern", "tokens", "length", "support_strong", "support_weak",
+        "rate_strong", "rate_weak", "p_value", "q_value", "p_volume", "q_volume", "p_order",
+        "q_order", "evidence", "favours", "risk_difference", "odds_ratio", "log_odds_ratio",
         "growth_rate", "cohens_h", "cliffs_delta", "p_rate", "q_rate", "stability",
         "replication", "redundant_of"]
     assert set(df["pattern"]) == {" > ".join(p) for p in PATTERNS}
@@ -271,7 +271,8 @@ def test_redundant_duplicate_points_to_shorter_equal_pattern():
                                ("reset",), ("set_light",)])
     df = contrast(ps, db, n_bootstrap=0, redundancy=0.9).set_index("pattern")
     # identical supporting sets and p-values: the shorter pattern is kept
-    assert df.loc["advance_week > measure_height", "redundant_of"] == "measure_height"
+    assert df.loc["advance_week > measure_height", "redundant_of"] == \
+        df.loc["measure_height", "pattern_id"]
     assert df.loc["measure_height", "redundant_of"] == ""
     assert df.loc["set_light", "redundant_of"] == ""
     dropped = contrast(ps, db, n_bootstrap=0, drop_redundant=True)

@@ -187,7 +187,7 @@ REQUIRED = {
     "phases": ["seq", "--out", "o"],
     "validate": ["e.csv", "--outcomes", "o.csv", "--out", "o"],
     "detectors": ["p.csv", "--sequences", "seq", "--out", "d.json"],
-    "watch": ["d.json"], "report": ["o"],
+    "watch": ["d.json"], "report": ["o"], "keygen": ["k.key"],
 }
 
 

@@ -161,7 +161,7 @@ def test_patternset_round_trip(tmp_path):
     assert (back.counts != ps.counts).nnz == 0
     assert back.constraints["max_gap"] == 1
     table = pd.read_csv(tmp_path / "ps" / "patterns.csv")
-    assert list(table.columns) == ["pattern", "length", "support_x", "support_y", "count_x",
+    assert list(table.columns) == ["pattern_id", "pattern", "tokens", "length", "support_x", "support_y", "count_x",
                                    "count_y", "instances_x", "instances_y"]
     assert table.equals(pattern_table(ps)) or np.allclose(
         table["support_y"], pattern_table(ps)["support_y"])

@@ -9,7 +9,7 @@ import pytest
 from seqmine.errors import DataFileError
 from seqmine.inputs.privacy import pseudonymize, pseudonymize_frame, read_key
 
-KEY = b"k" * 32
+KEY = b"7c1f0e9a2b4d6c8e3a5f7b9d1e2c4a60"
 
 
 def test_matches_hmac_sha256_reference():
@@ -38,8 +38,15 @@ def test_key_file_checks(tmp_path):
     p.write_text("short\n")
     with pytest.raises(DataFileError, match="at least 16 random bytes"):
         read_key(p)
-    p.write_text("a" * 40 + "\n")
-    assert read_key(p) == b"a" * 40
+    # long but not random: one repeated byte value, NUL bytes, two alternating values
+    for weak in (b"a" * 40, b"\0" * 16, b"0" * 16, b"01" * 20):
+        p.write_bytes(weak + b"\n")
+        with pytest.raises(DataFileError, match="different byte value"):
+            read_key(p)
+    p.write_text("3f9c1e0b7a5d42c8\n")
+    assert read_key(p) == b"3f9c1e0b7a5d42c8"
+    with pytest.raises(DataFileError, match="is a folder, not a key file"):
+        read_key(tmp_path)
 
 
 def test_encode_command_pseudonymizes_every_output(tmp_path, capsys):
@@ -51,7 +58,7 @@ def test_encode_command_pseudonymizes_every_output(tmp_path, capsys):
     oc.write_text("learner,pre,post,max\n" + "".join(f"ana{i},1,{2 + i},10\n" for i in range(4)),
                   encoding="utf-8")
     key = tmp_path / "key.txt"
-    key.write_text("k" * 32)
+    key.write_bytes(KEY)
     assert main(["encode", str(ev), "--outcomes", str(oc), "--out", str(tmp_path / "out"),
                  "--pseudonymize", str(key), "-q"]) == 0
     for f in (tmp_path / "out").rglob("*"):

@@ -11,6 +11,7 @@ from hypothesis import strategies as st
 
 from seqmine.encoding.sequences import SequenceDB
 from seqmine.errors import ParameterError
+from seqmine.mining.patterns import pattern_id
 from seqmine.reporting.examples import build_examples, find_occurrence
 from seqmine.reporting.render import render_report, write_examples
 
@@ -64,7 +65,7 @@ def test_build_examples_layout_and_groups():
     db = _db()
     ex = build_examples(db, ["a > b", "b > c", "zz > a"], favours=["w", "", ""],
                         max_gap=1, context=1, per_pattern=3)
-    pats = ex["patterns"]
+    pats = {k: ex["patterns"][pattern_id(k.split(" > "))] for k in ("a > b", "b > c", "zz > a")}
     # In group w only L1 (c a c b) has a > b within a gap of 1; L3's gap is 6.
     assert [(e["learner"], e["group"]) for e in pats["a > b"]] == [("L1", "w")]
     assert pats["zz > a"] == []  # unknown token: no excerpt
@@ -81,7 +82,7 @@ def test_build_examples_layout_and_groups():
 def test_long_stretches_are_elided():
     db = _db()
     ex = build_examples(db, ["a > b"], favours=["w"], max_gap=None, context=1, max_span=4)
-    events = [e for x in ex["patterns"]["a > b"] for e in x["events"]
+    events = [e for x in ex["patterns"][pattern_id(["a", "b"])] for e in x["events"]
               if x["learner"] == "L3"]
     assert {"elided": 4} in events
     assert [e["token"] for e in events if "token" in e] == ["a", "c", "c", "b"]
@@ -104,6 +105,7 @@ def test_write_examples_feeds_the_report(tmp_path):
     table.to_csv(tmp_path / "patterns.csv", index=False)
     path = write_examples(tmp_path, db, table, max_gap=1)
     data = json.loads(path.read_text(encoding="utf-8"))
-    assert list(data["patterns"]) == ["a > b", "b > c"]  # significant ones only
+    # significant ones only, keyed by pattern id
+    assert list(data["patterns"]) == [pattern_id(["a", "b"]), pattern_id(["b", "c"])]
     text = render_report(tmp_path).read_text(encoding="utf-8")
     assert "learner L0" in text and 'class="ev hit"' in text and "20 s" in text

@@ -283,7 +283,7 @@ def test_analyze_flags_and_their_messages(tmp_path, capsys):
     cfg_file = tmp_path / "c.toml"
     for text, needle in [('[detectors]\nevidence = ["beyond"]\n',
                           "'detectors.evidence' lists 'beyond'"),
-                         ('[contrast]\nunit = "session"\n', "'contrast.unit' must be 'learner'")]:
+                         ('[contrast]\nunit = "session"\n', "'contrast.unit' must be one of")]:
         cfg_file.write_text(text, encoding="utf-8")
         assert main(base + ["--config", str(cfg_file)]) == 2
         err = capsys.readouterr().err.strip()

@@ -6,6 +6,8 @@ import json
 
 import numpy as np
 
+from .outdir import open_new
+
 __all__ = ["json_default", "write_json", "dumps"]
 
 
@@ -33,5 +35,7 @@ def dumps(data, *, indent=2):
 
 
 def write_json(path, data, *, indent=2):
-    """Write ``data`` as deterministic JSON (see :func:`dumps`) with a final newline."""
-    path.write_text(dumps(data, indent=indent) + "\n", encoding="utf-8")
+    """Write ``data`` as deterministic JSON (see :func:`dumps`) with a final newline, into
+    a new file (never through a link)."""
+    with open_new(path, "w", newline="\n") as fh:
+        fh.write(dumps(data, indent=indent) + "\n")

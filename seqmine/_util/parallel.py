@@ -11,12 +11,13 @@ from __future__ import annotations
 import contextlib
 import functools
 import os
+import sys
 
 from ..errors import ParameterError
 from .checks import check_jobs
-from .progress import is_quiet, quiet_mode
+from .progress import is_quiet, quiet_mode, use_thread_lock
 
-__all__ = ["parallel_map", "using_scheduler", "n_workers"]
+__all__ = ["parallel_map", "using_scheduler", "n_workers", "available_cores", "effective_jobs"]
 
 #: Clients opened by :func:`using_scheduler`, innermost last: (scheduler, client).
 _ACTIVE = []
@@ -54,21 +55,64 @@ def parallel_map(func, items, *, n_jobs=1, scheduler=None):
     if scheduler:
         return _dask_map(func, items, scheduler, n_jobs)
     from joblib import Parallel, delayed
+    n_jobs = min(effective_jobs(n_jobs), len(items))
+    if n_jobs == 1:
+        return [func(x) for x in items]
     return list(Parallel(n_jobs=n_jobs)(delayed(func)(x) for x in items))
 
 
 def n_workers(n_jobs, where=""):
-    """The number of worker processes ``n_jobs`` stands for: -1 = every core, None = 1.
+    """The number of worker processes ``n_jobs`` stands for: -1 = every available core,
+    None = 1.
 
     Examples
     --------
-    >>> n_workers(3), n_workers(None), n_workers(-1) >= 1
+    >>> n_workers(3), n_workers(None), n_workers(-1) == available_cores()
     (3, 1, True)
     """
     if n_jobs is None:
         return 1
     n_jobs = check_jobs(n_jobs, "n_jobs", where)
-    return max(1, os.cpu_count() or 1) if n_jobs == -1 else n_jobs
+    return available_cores() if n_jobs == -1 else n_jobs
+
+
+def available_cores():
+    """Cores this process may run on (its CPU affinity; at least 1).
+
+    Examples
+    --------
+    >>> available_cores() >= 1
+    True
+    """
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except (AttributeError, OSError):  # pragma: no cover - not Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def effective_jobs(n_jobs, *, notify=False):
+    """Local worker processes for ``n_jobs``: ``-1`` means every available core, and more
+    than the available cores is capped to them (more processes than cores only adds
+    overhead). With ``notify`` a capped value is said on standard error. A value that is
+    no worker count is returned unchanged (the caller's check names it).
+
+    Examples
+    --------
+    >>> effective_jobs(1), effective_jobs(-1) == available_cores()
+    (1, True)
+    >>> effective_jobs(10**6) == available_cores()
+    True
+    """
+    if not (isinstance(n_jobs, int) and (n_jobs >= 1 or n_jobs == -1)) or isinstance(n_jobs, bool):
+        return n_jobs  # not a worker count: left to the caller's own check and message
+    workers = n_workers(n_jobs)
+    cores = available_cores()
+    if workers > cores:
+        if notify and not is_quiet():
+            print(f"seqmine: note: {n_jobs} jobs asked for, but only {cores} core(s) are "
+                  f"available; using {cores}.", file=sys.stderr)
+        return cores
+    return workers
 
 
 @contextlib.contextmanager
@@ -116,6 +160,7 @@ def using_scheduler(scheduler, n_jobs=1):
 
 
 def _call_with_quiet(func, quiet, item):
+    use_thread_lock()  # no process-shared semaphore a stopped worker could leak
     with quiet_mode(quiet):
         return func(item)
 

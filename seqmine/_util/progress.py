@@ -15,8 +15,9 @@ import contextlib
 import contextvars
 import os
 import sys
+import threading
 
-__all__ = ["progress", "quiet_mode", "is_quiet", "stage_line"]
+__all__ = ["progress", "quiet_mode", "is_quiet", "stage_line", "use_thread_lock"]
 
 _QUIET = contextvars.ContextVar("seqmine_quiet",
                                 default=os.environ.get("SEQMINE_QUIET", "") not in ("", "0"))
@@ -104,6 +105,21 @@ def progress(iterable=None, *, desc=None, total=None, unit="it", leave=False):
     from tqdm.auto import tqdm
     return tqdm(iterable, desc=desc, total=total, unit=unit, leave=leave,
                 dynamic_ncols=True, mininterval=0.5)
+
+
+def use_thread_lock():
+    """Make progress bars in this process lock with a thread lock only.
+
+    tqdm otherwise creates a multiprocessing semaphore in every process that draws a
+    bar; a worker process stopped while the run is interrupted cannot release it, and
+    the interpreter then warns about leaked semaphores. Called in worker processes,
+    whose bars never share a terminal line with another process's.
+    """
+    if "tqdm" not in sys.modules and "tqdm.auto" not in sys.modules and not _on_terminal():
+        return  # no bar will be drawn here
+    from tqdm.auto import tqdm
+    if "_lock" not in vars(tqdm):
+        tqdm.set_lock(threading.RLock())
 
 
 def stage_line(text):

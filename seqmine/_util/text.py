@@ -16,14 +16,23 @@ import re
 
 __all__ = [
     "CONTROL_CHARACTERS",
+    "TERMINAL_UNSAFE",
     "has_control_characters",
     "replace_control_characters",
+    "terminal_safe",
+    "terminal_safe_json",
 ]
 
 #: Regular-expression character class of the control characters (category ``Cc``).
 CONTROL_CHARACTERS = "[\x00-\x1f\x7f-\x9f]"
 
+#: Characters that may not reach a terminal as they are: the control characters, and
+#: the line/paragraph separators and bidirectional overrides and isolates, which move
+#: or reorder what a person reads.
+TERMINAL_UNSAFE = "[\x00-\x1f\x7f-\x9f\u2028\u2029\u202a-\u202e\u2066-\u2069]"
+
 _CONTROL = re.compile(CONTROL_CHARACTERS)
+_UNSAFE = re.compile(TERMINAL_UNSAFE)
 _CONTROL_BUT_LAYOUT = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f]")
 
 
@@ -58,3 +67,28 @@ def replace_control_characters(text, *, keep_layout=False):
     'a\\ufffdb\\tc'
     """
     return (_CONTROL_BUT_LAYOUT if keep_layout else _CONTROL).sub("\ufffd", text)
+
+
+def terminal_safe(text):
+    """``text`` with every character of :data:`TERMINAL_UNSAFE` written as a Python
+    escape, so a message never moves the cursor, recolours or reorders a terminal.
+
+    Examples
+    --------
+    >>> terminal_safe("bad \\x1b[31mred\\x9b")
+    'bad \\\\x1b[31mred\\\\x9b'
+    """
+    return _UNSAFE.sub(lambda m: m.group().encode("unicode_escape").decode("ascii"), text)
+
+
+def terminal_safe_json(text):
+    """JSON text with every character of :data:`TERMINAL_UNSAFE` written as ``\\uXXXX``
+    (the same JSON value: only strings can hold such characters, and JSON already escapes
+    C0 controls).
+
+    Examples
+    --------
+    >>> terminal_safe_json('{"hint": "\\x9b31m\\u202e"}')
+    '{"hint": "\\\\u009b31m\\\\u202e"}'
+    """
+    return _UNSAFE.sub(lambda m: f"\\u{ord(m.group()):04x}", text)

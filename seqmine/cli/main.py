@@ -10,10 +10,13 @@ from __future__ import annotations
 import argparse
 import importlib
 import pkgutil
+import signal
 import sys
+import threading
 import warnings
 
 from .._util.progress import quiet_mode
+from .._util.text import terminal_safe
 from .._version import __version__
 from ..errors import SeqmineError, SeqmineInputError
 from . import commands
@@ -22,7 +25,7 @@ __all__ = ["main", "build_parser"]
 
 # Order in which sub-commands are listed in --help (pipeline order); others follow.
 _ORDER = ["demo", "analyze", "encode", "mine", "contrast", "phases", "validate",
-          "detectors", "watch", "report"]
+          "detectors", "watch", "report", "keygen"]
 
 
 def _command_modules():
@@ -63,12 +66,51 @@ def build_parser():
     return parser
 
 
+class _StopSignals:
+    """While a command runs, SIGINT (Ctrl-C) and SIGTERM interrupt it with
+    KeyboardInterrupt, so the clean-up code runs: temporary folders are removed, worker
+    pools shut down, the previous output stays. The signal is remembered, so that an
+    interrupt a library turned into another error (pandas reports a read cut short by
+    Ctrl-C as a parser error) is still reported as the interrupt it was. Outside the
+    main thread nothing is changed."""
+
+    _SIGNALS = (signal.SIGINT, signal.SIGTERM)
+
+    def __init__(self):
+        self.received = None
+        self._before = {}
+
+    def _handler(self, signum, frame):
+        self.received = signum
+        raise KeyboardInterrupt
+
+    def __enter__(self):
+        if threading.current_thread() is threading.main_thread():
+            for sig in self._SIGNALS:
+                self._before[sig] = signal.signal(sig, self._handler)
+        return self
+
+    def __exit__(self, *exc):
+        for sig, before in self._before.items():
+            signal.signal(sig, before)
+        return False
+
+    def report(self):
+        """The exit status and line of an interrupted run."""
+        if self.received == signal.SIGTERM:
+            print("seqmine: terminated (SIGTERM); nothing half-written was left behind",
+                  file=sys.stderr)
+            return 128 + signal.SIGTERM
+        print("seqmine: interrupted; nothing half-written was left behind", file=sys.stderr)
+        return 128 + signal.SIGINT
+
+
 def _show_warning(message, category, filename, lineno, file=None, line=None):
     print(f"seqmine: warning: {_one_line(message)}", file=sys.stderr)
 
 
 def _one_line(msg):
-    return " ".join(str(msg).split())
+    return terminal_safe(" ".join(str(msg).split()))
 
 
 def main(argv=None):
@@ -82,39 +124,46 @@ def main(argv=None):
         parser.print_help()
         return 2
     debug = getattr(args, "debug", False)
+    stop = _StopSignals()
     try:
         # quiet mode for this invocation only (a context setting, restored on return)
-        with quiet_mode(bool(getattr(args, "quiet", False))), warnings.catch_warnings():
+        with quiet_mode(bool(getattr(args, "quiet", False))), warnings.catch_warnings(), stop:
             # every warning is shown, as one line, whatever ran before in this process
             warnings.simplefilter("always")
             if not debug:
                 warnings.showwarning = _show_warning
             return int(args._run(args) or 0)
-    except SeqmineInputError as exc:
-        if debug:
-            raise
-        print(f"seqmine: error: {_one_line(exc)}", file=sys.stderr)
-        return 2
+    except KeyboardInterrupt:
+        return stop.report()
     except BrokenPipeError:
         # the reader went away (e.g. 'seqmine watch ... | head'): stop quietly
         import os
         devnull = os.open(os.devnull, os.O_WRONLY)
         os.dup2(devnull, sys.stdout.fileno())
         return 0
-    except KeyboardInterrupt:
-        print("seqmine: interrupted", file=sys.stderr)
-        return 130
-    except SeqmineError as exc:
+    except Exception as exc:
+        if stop.received is not None:  # an interrupt a library reported as another error
+            return stop.report()
         if debug:
             raise
+        return _report_error(exc)
+
+
+def _report_error(exc):
+    """One line on standard error for an error that ended a command; its exit status."""
+    if isinstance(exc, SeqmineInputError):
+        print(f"seqmine: error: {_one_line(exc)}", file=sys.stderr)
+        return 2
+    if isinstance(exc, OSError) and exc.filename:
+        print(f"seqmine: error: {exc.filename}: {exc.strerror or type(exc).__name__}; check "
+              f"the path and its permissions.", file=sys.stderr)
+        return 2
+    if isinstance(exc, SeqmineError):
         print(f"seqmine: error: {_one_line(exc)}", file=sys.stderr)
         return 1
-    except Exception as exc:  # internal error: say so, point to --debug
-        if debug:
-            raise
-        print(f"seqmine: internal error: {type(exc).__name__}: {_one_line(exc)} "
-              f"(re-run with --debug for the traceback and report it)", file=sys.stderr)
-        return 1
+    print(f"seqmine: internal error: {type(exc).__name__}: {_one_line(exc)} "
+          f"(re-run with --debug for the traceback and report it)", file=sys.stderr)
+    return 1
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -21,7 +21,7 @@ File layout (version 1)::
      "matching": {"max_gap": int|null, "max_window": int|null, "skip_pauses": bool},
      "groups": {"names": [...], "strong": str, "weak": str, "sizes": {name: int}},
      "selection": {the filters used},
-     "detectors": [{"id", "tokens", "direction", "favours", "evidence", "hint",
+     "detectors": [{"id", "pattern_id", "tokens", "direction", "favours", "evidence", "hint",
                     "priority", "absence": {"after_events", "after_seconds"} | null,
                     "enabled", "notes", "example"}]}
 
@@ -58,6 +58,7 @@ import difflib
 import json
 import math
 import numbers
+import re
 import string
 import warnings
 from pathlib import Path
@@ -66,12 +67,14 @@ import numpy as np
 import pandas as pd
 
 from .._util.checks import check_int, check_number
+from .._util.outdir import open_new
+from .._util.text import TERMINAL_UNSAFE
 from ..config import DEFAULT_CONFIG
 from ..encoding.pauses import pause_ranges
 from ..encoding.sequences import PAUSE_PREFIX
 from ..errors import ColumnError, DataFileError, ParameterError, SeqmineWarning
 from ..mining.excerpts import build_examples, find_occurrence
-from ..mining.patterns import PATTERN_SEPARATOR, is_subsequence
+from ..mining.patterns import is_subsequence, pattern_id, pattern_tokens, split_readable
 
 __all__ = [
     "DETECTORS_FORMAT",
@@ -110,14 +113,18 @@ _TEMPLATE_FIELDS = ("action", "target", "channel", "session")
 _PAUSE_STRATEGIES = ("quantile", "fixed", "learner_quantile", "none")
 _TOP_KEYS = {"format", "version", "notice", "encoding", "vocabulary", "matching", "groups",
              "selection", "detectors", "created_by"}
-_DETECTOR_KEYS = {"id", "tokens", "direction", "favours", "evidence", "hint", "priority",
-                  "absence", "enabled", "notes", "example"}
+_DETECTOR_KEYS = {"id", "pattern_id", "tokens", "direction", "favours", "evidence", "hint",
+                  "priority", "absence", "enabled", "notes", "example"}
 #: Optional contrast-table columns copied into a detector's evidence when present.
 _EVIDENCE_COLUMNS = ("p_value", "q_value", "p_volume", "q_volume", "p_order", "q_order",
                      "q_rate", "stability", "replication")
 #: Default quantile of the absence rule of encourage detectors (see absence_thresholds).
 ABSENCE_QUANTILE = DEFAULT_CONFIG["detectors"]["absence_quantile"]
 _MATCHING_KEYS = {"max_gap", "max_window", "skip_pauses"}
+#: Longest detector id accepted.
+MAX_ID_LENGTH = 100
+# nothing in an id may move a terminal's cursor or reorder text
+_UNSAFE_ID = re.compile(TERMINAL_UNSAFE)
 
 
 # ====================================================================== selection
@@ -236,7 +243,7 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
                if missing == [effect] else "")
         raise ColumnError(f"The contrast table lacks column(s) {', '.join(missing)}.{fix}")
     t = contrast_table.reset_index(drop=True)
-    pats = [_split_pattern(p) for p in t["pattern"]]
+    pats = [tuple(pattern_tokens(r)) for r in t.to_dict("records")]
     lens = np.array([len(p) for p in pats], dtype=np.int64)
     favours = t["favours"].astype(object).where(t["favours"].notna(), "").astype(str).str.strip()
     q = pd.to_numeric(t["q_value"], errors="coerce").to_numpy(float)
@@ -375,12 +382,12 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
     absence_after_events, absence_after_seconds : optional
         Absence rule for encourage detectors (fire when the pattern has not been
         shown after this many events / seconds of a sequence); ``None`` = off.
-        ``absence_after_events`` may also be a dict pattern -> events (one rule per
-        detector, e.g. from :func:`absence_thresholds`).
+        ``absence_after_events`` may also be a dict pattern id -> events (one rule
+        per detector, e.g. from :func:`absence_thresholds`).
     selection : dict, optional
         The filters used (recorded for provenance).
     examples : dict, optional
-        Pattern (as in the table) -> one excerpt (``{"learner", "group", "events"}``,
+        Pattern id -> one excerpt (``{"learner", "group", "events"}``,
         see :func:`seqmine.mining.excerpts.build_examples`), stored as the
         detector's ``example``.
 
@@ -432,7 +439,7 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
     ranges = pause_ranges(enc)
     detectors = []
     for k, row in enumerate(selected_rows.to_dict("records")):
-        tokens = _split_pattern(row["pattern"], known)
+        tokens = pattern_tokens(row, known)
         fav = "" if _is_missing(row.get("favours")) else str(row["favours"]).strip()
         if fav == weak:
             direction = "discourage"
@@ -467,11 +474,12 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
         if direction == "encourage":
             after = absence_after_events
             if isinstance(after, dict):
-                after = after.get(str(row["pattern"]))
+                after = after.get(_row_id(row, tokens))
             absence = {"after_events": _int_or_none(after),
                        "after_seconds": _finite_or_none(absence_after_seconds)}
         det = {
             "id": f"D{k + 1:03d}",
+            "pattern_id": _row_id(row, tokens),
             "tokens": tokens,
             "direction": direction,
             "favours": fav,
@@ -481,7 +489,7 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
             "absence": absence,
             "enabled": True,
         }
-        example = (examples or {}).get(str(row["pattern"]))
+        example = (examples or {}).get(_row_id(row, tokens))
         if example:
             det["example"] = _plain(example)
         detectors.append(det)
@@ -571,24 +579,29 @@ def export_detectors(contrast_table, db, constraints=None, *, max_q=_DEFAULTS["m
     match_kw = {"max_gap": _int_or_none(constraints.get("max_gap")),
                 "max_window": _int_or_none(constraints.get("max_window")),
                 "skip_pauses": bool(constraints.get("skip_pauses", False))}
-    names = [str(p) for p in rows["pattern"]]
-    favours = [("" if _is_missing(f) else str(f)) for f in rows["favours"]]
+    records = rows.to_dict("records")
+    known = set(db.vocab)
+    tokens = [pattern_tokens(r, known) for r in records]
+    ids = [_row_id(r, t) for r, t in zip(records, tokens)]
+    favours = [("" if _is_missing(r.get("favours")) else str(r["favours"]).strip())
+               for r in records]
     after = absence_after_events
     if isinstance(after, str):
         if after != "auto":
             raise ParameterError(f"The 'absence_after_events' parameter of {where} must be "
                                  f"a whole number, None or 'auto'. Got {after!r} instead.")
-        enc = [(n, f) for n, f in zip(names, favours) if f == strong]
-        after = absence_thresholds(db, [n for n, _ in enc], [f for _, f in enc],
-                                   quantile=absence_quantile, **match_kw)
+        enc = [k for k, f in enumerate(favours) if f == strong]
+        points = absence_thresholds(db, [tokens[k] for k in enc], [favours[k] for k in enc],
+                                    quantile=absence_quantile, **match_kw)
+        after = {ids[k]: p for k, p in zip(enc, points) if p is not None}
         selection["absence"] = f"auto (quantile {absence_quantile:g})"
     else:
         selection["absence"] = after
     excerpts = None
-    if examples and names:
-        found = build_examples(db, names, favours=favours, per_pattern=1, context=1,
+    if examples and records:
+        found = build_examples(db, tokens, favours=favours, per_pattern=1, context=1,
                                max_span=8, random_state=random_state, **match_kw)["patterns"]
-        excerpts = {n: (found.get(n) or [None])[0] for n in names}
+        excerpts = {i: (found.get(pattern_id(t)) or [None])[0] for i, t in zip(ids, tokens)}
     return build_detectors(
         rows, db.encoding, constraints, group_names=db.group_names, strong=strong, weak=weak,
         group_sizes=[len(set(db.learners[db.groups == g].tolist()))
@@ -615,8 +628,8 @@ def absence_thresholds(db, patterns, favours, *, quantile=ABSENCE_QUANTILE, max_
     Parameters
     ----------
     db : SequenceDB
-    patterns : list of str
-        Readable patterns (tokens joined by ``" > "``).
+    patterns : list of (list of str or str)
+        Patterns as token lists, or as readable text (tokens joined by ``" > "``).
     favours : list of str
         Favoured group of each pattern.
     quantile : float in (0, 1], default 0.75
@@ -625,16 +638,17 @@ def absence_thresholds(db, patterns, favours, *, quantile=ABSENCE_QUANTILE, max_
 
     Returns
     -------
-    dict
-        pattern -> whole number of events (patterns found in no sequence are left out).
+    list
+        Per pattern, a whole number of events, or None when no sequence of its group
+        contains it.
 
     Examples
     --------
     >>> from seqmine.encoding.sequences import SequenceDB
     >>> db = SequenceDB.from_lists([["a", "b", "c"], ["c", "c", "a", "b"], ["b", "a"]],
     ...                            groups=["s", "s", "w"])
-    >>> absence_thresholds(db, ["a > b"], ["s"], quantile=0.5, max_gap=0)
-    {'a > b': 3}
+    >>> absence_thresholds(db, [["a", "b"], "b > a"], ["s", "s"], quantile=0.5, max_gap=0)
+    [3, None]
     """
     quantile = check_number(quantile, "quantile", "absence_thresholds", minimum=0, strict=True)
     if quantile > 1:
@@ -642,9 +656,10 @@ def absence_thresholds(db, patterns, favours, *, quantile=ABSENCE_QUANTILE, max_
                              f"(0, 1]. Got {quantile!r} instead.")
     index = {v: i for i, v in enumerate(db.vocab)}
     groups = np.asarray(db.groups)
-    out = {}
-    for text, fav in zip(patterns, favours):
-        toks = _split_pattern(text, set(index))
+    out = []
+    for pat, fav in zip(patterns, favours):
+        toks = split_readable(pat, set(index))
+        out.append(None)
         if any(t not in index for t in toks) or fav not in db.group_names:
             continue
         ids = [index[t] for t in toks]
@@ -656,7 +671,7 @@ def absence_thresholds(db, patterns, favours, *, quantile=ABSENCE_QUANTILE, max_
             if pos is not None:
                 points.append(int(np.sum(~db.is_pause[seq[:pos[-1] + 1]])))
         if points:
-            out[str(text)] = int(math.ceil(np.quantile(points, quantile)))
+            out[-1] = int(math.ceil(np.quantile(points, quantile)))
     return out
 
 
@@ -692,7 +707,8 @@ def save_detectors(detectors, path):
     validate_detectors(detectors, source=str(path))
     text = json.dumps(_plain(detectors), indent=2, ensure_ascii=False, allow_nan=False)
     path.parent.mkdir(parents=True, exist_ok=True)
-    path.write_text(text + "\n", encoding="utf-8")
+    with open_new(path) as fh:
+        fh.write(text + "\n")
     return path
 
 
@@ -870,6 +886,13 @@ def _validate_detector(d, k, pause_ok, labels, seen, fail):
     did = d["id"]
     if not isinstance(did, str) or not did.strip():
         fail(f"{at}.id", f"{did!r} must be a non-empty string.")
+    if _UNSAFE_ID.search(did) or did != did.strip() or len(did) > MAX_ID_LENGTH:
+        fail(f"{at}.id", f"{did!r} must be at most {MAX_ID_LENGTH} printable characters "
+                         f"without control characters or surrounding spaces (it is printed "
+                         f"on terminals), e.g. 'D001' or 'too-many-resets'.")
+    pid = d.get("pattern_id")
+    if pid is not None and (not isinstance(pid, str) or _UNSAFE_ID.search(pid)):
+        fail(f"{at}.pattern_id", f"{pid!r} must be a pattern id from patterns.csv or null.")
     if did in seen:
         fail(f"{at}.id", f"{did!r} is also the id of detectors[{seen[did]}]; ids must be unique.")
     seen[did] = k
@@ -924,39 +947,12 @@ def _unknown_keys(obj, allowed, at, fail):
             fail(f"{at}.{key}" if at else str(key), f"unknown field; {hint}")
 
 
-def _split_pattern(text, known=None):
-    """Tokens of a pattern written as ``"a > b"``.
-
-    Token names may themselves contain ``>`` (e.g. ``menu>open``); the separator is
-    ``" > "`` with its spaces. When ``known`` token names are given, a name that
-    contains the separator itself is recognised too.
-    """
-    if isinstance(text, (list, tuple)):
-        return [str(t) for t in text]
-    pieces = str(text).split(PATTERN_SEPARATOR)
-    if known:
-        seg = _segment(pieces, known)
-        if seg is not None:
-            return seg
-    parts = [p.strip() for p in pieces]
-    if not parts or any(p == "" for p in parts):
-        raise ParameterError(f"Pattern {text!r} has an empty token; patterns are token names "
-                             f"joined by {PATTERN_SEPARATOR!r}.")
-    return parts
-
-
-def _segment(pieces, known):
-    """Split ``pieces`` (the text cut at every separator) into known tokens, or None."""
-    n = len(pieces)
-    best = [None] * (n + 1)  # best[i]: a segmentation of pieces[i:]
-    best[n] = []
-    for i in range(n - 1, -1, -1):
-        for j in range(i + 1, n + 1):
-            tok = PATTERN_SEPARATOR.join(pieces[i:j])
-            if tok in known and best[j] is not None:
-                best[i] = [tok] + best[j]
-                break
-    return best[0]
+def _row_id(row, tokens):
+    """The row's ``pattern_id`` (tables before pattern ids: computed from the tokens)."""
+    pid = row.get("pattern_id")
+    if isinstance(pid, str) and pid.strip():
+        return pid.strip()
+    return pattern_id(tokens)
 
 
 def _length_mask(lens, lengths):

@@ -16,6 +16,7 @@ from pathlib import Path
 import numpy as np
 
 from .._util.checks import check_fraction
+from .._util.outdir import open_new
 from ..errors import DataFileError, ParameterError
 
 __all__ = ["SequenceDB", "PAUSE_PREFIX", "smallest_int_dtype"]
@@ -327,11 +328,11 @@ class SequenceDB:
         """
         folder = Path(folder)
         folder.mkdir(parents=True, exist_ok=True)
-        np.savez_compressed(
-            folder / "arrays.npz",
-            tokens=self.tokens, offsets=self.offsets, is_pause=self.is_pause,
-            times=self.times, source_rows=self.source_rows, groups=self.groups,
-        )
+        with open_new(folder / "arrays.npz", "wb") as fh:
+            np.savez_compressed(
+                fh, tokens=self.tokens, offsets=self.offsets, is_pause=self.is_pause,
+                times=self.times, source_rows=self.source_rows, groups=self.groups,
+            )
         meta = {
             "format": "seqmine-sequencedb",
             "version": _FORMAT_VERSION,
@@ -341,8 +342,8 @@ class SequenceDB:
             "sessions": self.sessions.tolist(),
             "encoding": self.encoding,
         }
-        (folder / "sequences.json").write_text(
-            json.dumps(meta, indent=1, sort_keys=True, ensure_ascii=False), encoding="utf-8")
+        with open_new(folder / "sequences.json") as fh:
+            fh.write(json.dumps(meta, indent=1, sort_keys=True, ensure_ascii=False))
         return folder
 
     @classmethod

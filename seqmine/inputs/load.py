@@ -34,6 +34,7 @@ from ..config import DEFAULT_CONFIG, EVENT_ROLES
 from ..errors import ColumnError, DataFileError, ParameterError, SeqmineWarning
 from . import readers
 from .clock import TIED_SHARE_WARNING, TIME_UNITS, diagnose_clock, read_times, resolve_timezone
+from .sources import regular_input
 
 __all__ = [
     "LoadResult",
@@ -213,6 +214,18 @@ def load_events(path, *, columns=None, format=DEFAULT_CONFIG["events"]["format"]
     check_choice(duplicates, "duplicates", ("reject", "keep"), "load_events")
     check_choice(time_unit, "time_unit", tuple(TIME_UNITS), "load_events")
     resolve_timezone(timezone)
+    with regular_input(path, "events", max_bytes=max_bytes) as (regular, shown):
+        result = _load_events(regular, columns=columns, format=format, delimiter=delimiter,
+                              encoding=encoding, duplicates=duplicates,
+                              max_action_length=max_action_length, max_bytes=max_bytes,
+                              times={"time_unit": time_unit, "timezone": timezone,
+                                     "decimal_comma": decimal_comma})
+    result.path = shown
+    return result
+
+
+def _load_events(path, *, columns, format, delimiter, encoding, duplicates, max_action_length,
+                 max_bytes, times):
     if delimiter in ("\\t", "tab", "TAB"):  # a tab typed on a command line
         delimiter = "\t"
     if delimiter is not None and (not isinstance(delimiter, str) or len(delimiter) != 1
@@ -244,7 +257,6 @@ def load_events(path, *, columns=None, format=DEFAULT_CONFIG["events"]["format"]
         raw = readers.read_jsonl(path, encoding)
     else:
         raw = readers.read_xapi(path, encoding)
-    times = {"time_unit": time_unit, "timezone": timezone, "decimal_comma": decimal_comma}
     return _validate(raw, cols, path, duplicates, max_action_length, times)
 
 

@@ -24,6 +24,7 @@ from sklearn.base import BaseEstimator
 from .._util.checks import check_choice, check_columns, check_fraction
 from ..config import DEFAULT_CONFIG
 from ..errors import DataFileError, ParameterError
+from .sources import regular_input
 
 __all__ = [
     "normalized_gain",
@@ -113,6 +114,14 @@ def load_outcomes(path, *, columns=None, kind="auto", max_score=None, delimiter=
         scores, ``post`` or ``pre`` above ``max``.
     """
     check_choice(kind, "kind", ("auto", "gain", "score", "label"), "load_outcomes")
+    with regular_input(path, "outcomes") as (regular, shown):
+        out = _load_outcomes(regular, columns=columns, kind=kind, max_score=max_score,
+                             delimiter=delimiter, decimal_comma=decimal_comma)
+    out.attrs["path"] = shown
+    return out
+
+
+def _load_outcomes(path, *, columns, kind, max_score, delimiter, decimal_comma):
     path = Path(path)
     roles = {r: r for r in ("learner", "pre", "post", "max", "score", "label")}
     roles.update({k: v for k, v in (columns or {}).items() if v})

@@ -10,6 +10,8 @@ from __future__ import annotations
 
 import hashlib
 import hmac
+import os
+import secrets
 from pathlib import Path
 
 import numpy as np
@@ -17,31 +19,101 @@ import pandas as pd
 
 from ..errors import DataFileError
 
-__all__ = ["read_key", "pseudonymize", "pseudonymize_frame", "MIN_KEY_BYTES"]
+__all__ = ["read_key", "new_key", "write_key", "key_fingerprint", "pseudonymize",
+           "pseudonymize_frame", "pseudonymize_value", "MIN_KEY_BYTES", "MIN_DISTINCT_BYTES"]
 
 #: Shortest accepted key (bytes, after stripping surrounding whitespace).
 MIN_KEY_BYTES = 16
+#: Fewest different byte values an accepted key holds.
+MIN_DISTINCT_BYTES = 8
 
 _PREFIX = "p_"
 _HEX_CHARS = 16  # 64 bits: collisions are checked, not assumed away
 
 
 def read_key(path):
-    """Read a pseudonymization key file (any bytes; at least 16 after stripping).
+    """Read a pseudonymization key file.
 
-    Create one with e.g. ``python -c "import secrets; print(secrets.token_hex(32))" > key.txt``
-    and keep it apart from the outputs.
+    A key needs at least :data:`MIN_KEY_BYTES` bytes (after stripping surrounding white
+    space) with at least :data:`MIN_DISTINCT_BYTES` different byte values, so that
+    ``0000000000000000`` or 16 NUL bytes are refused. ``seqmine keygen KEY_FILE`` writes a
+    strong key (see :func:`write_key`); keep it apart from the outputs.
     """
     path = Path(path)
+    if path.is_dir():
+        raise DataFileError(f"{path}: is a folder, not a key file; give the file written by "
+                            f"'seqmine keygen {path / 'seqmine.key'}'.")
     if not path.is_file():
-        raise DataFileError(f"{path}: key file not found; create one with "
-                            f"python -c \"import secrets; print(secrets.token_hex(32))\" > {path}")
-    key = path.read_bytes().strip()
+        raise DataFileError(f"{path}: key file not found; create one with 'seqmine keygen "
+                            f"{path}'.")
+    try:
+        key = path.read_bytes().strip()
+    except OSError as exc:
+        raise DataFileError(f"{path}: the key file cannot be read ({exc.strerror}); check its "
+                            f"permissions.") from None
     if len(key) < MIN_KEY_BYTES:
         raise DataFileError(
             f"{path}: the key has {len(key)} bytes; use at least {MIN_KEY_BYTES} random bytes "
-            f"(e.g. secrets.token_hex(32)).")
+            f"(create one with 'seqmine keygen KEY_FILE').")
+    distinct = len(set(key))
+    if distinct < MIN_DISTINCT_BYTES:
+        raise DataFileError(
+            f"{path}: the key uses only {distinct} different byte value(s); a key needs at "
+            f"least {MIN_DISTINCT_BYTES} (it looks typed, not random): create one with "
+            f"'seqmine keygen KEY_FILE'.")
     return key
+
+
+def new_key():
+    """A fresh random key: 64 hex characters (256 bits from :mod:`secrets`).
+
+    Examples
+    --------
+    >>> k = new_key()
+    >>> len(k), len(set(k)) >= MIN_DISTINCT_BYTES
+    (64, True)
+    """
+    while True:
+        key = secrets.token_hex(32).encode("ascii")
+        if len(set(key)) >= MIN_DISTINCT_BYTES:  # fails with probability below 1e-40
+            return key
+
+
+def write_key(path):
+    """Write a new key to ``path`` (which must not exist), readable by its owner only.
+
+    Returns
+    -------
+    pathlib.Path
+    """
+    path = Path(path)
+    if path.is_symlink() or path.exists():
+        raise DataFileError(f"{path}: already exists; seqmine never overwrites a key (the "
+                            f"pseudonyms made with it could not be reproduced): choose a new "
+                            f"file name.")
+    flags = os.O_WRONLY | os.O_CREAT | os.O_EXCL | getattr(os, "O_NOFOLLOW", 0)
+    try:  # 0o600: the umask can only take bits away
+        fd = os.open(path, flags, 0o600)
+    except OSError as exc:
+        raise DataFileError(f"{path}: cannot create the key file ({exc.strerror}); check the "
+                            f"folder.") from None
+    try:
+        os.write(fd, new_key() + b"\n")
+    finally:
+        os.close(fd)
+    return path
+
+
+def key_fingerprint(key):
+    """A short keyed check value of ``key`` that reveals nothing about it; two runs used
+    the same key exactly when their fingerprints agree.
+
+    Examples
+    --------
+    >>> key_fingerprint(b"0123456789abcdef") == key_fingerprint(b"0123456789abcdef")
+    True
+    """
+    return hmac.new(key, b"seqmine key fingerprint", hashlib.sha256).hexdigest()[:16]
 
 
 def pseudonymize(identifiers, key):
@@ -76,10 +148,29 @@ def pseudonymize(identifiers, key):
     return np.array([table[i] for i in np.asarray(list(identifiers), dtype=object)], dtype=object)
 
 
-def pseudonymize_frame(df, key, column="learner"):
-    """A copy of ``df`` with ``column`` replaced by pseudonyms."""
+def pseudonymize_frame(df, key, column="learner", *, keep_empty=False):
+    """A copy of ``df`` with ``column`` replaced by pseudonyms (empty cells stay empty
+    with ``keep_empty``, as for sessions where empty means "none")."""
     out = df.copy()
     if column in out.columns and len(out):
         uniq, inv = np.unique(out[column].astype(str).to_numpy(), return_inverse=True)
-        out[column] = pseudonymize(uniq, key)[inv]
+        pseudo = pseudonymize(uniq, key)
+        if keep_empty:
+            pseudo = np.where(uniq == "", "", pseudo).astype(object)
+        out[column] = pseudo[inv]
     return out
+
+
+def pseudonymize_value(value, key):
+    """Pseudonym of one identifier as a live event carries it: a JSON string, or a
+    JSON number (``183`` and ``"183"`` get the same pseudonym, as the offline loader
+    reads both as the text ``183``).
+
+    Examples
+    --------
+    >>> k = b"0123456789abcdef"
+    >>> pseudonymize_value(183, k) == pseudonymize_value("183", k) == pseudonymize(["183"], k)[0]
+    True
+    """
+    text = value.strip() if isinstance(value, str) else str(value)
+    return str(pseudonymize([text], key)[0])

@@ -40,7 +40,9 @@ _CR = 13
 
 
 def guess_format(path):
-    """Format from the file name (a ``.gz`` ending is looked through)."""
+    """Format from the file name (a ``.gz`` ending is looked through); a name without a
+    telling ending (standard input, a pipe) is recognised by its first character: ``{``
+    JSON Lines, ``[`` xAPI statements, else CSV."""
     name = Path(path).name.lower()
     if name.endswith(".gz"):
         name = name[:-3]
@@ -52,7 +54,23 @@ def guess_format(path):
         return "jsonl"
     if name.endswith(".json"):
         return "xapi"
+    if not name.endswith((".csv", ".txt")):
+        first = _first_byte(path)  # no telling extension (standard input, a pipe)
+        if first == b"{":
+            return "jsonl"
+        if first == b"[":
+            return "xapi"
     return "csv"
+
+
+def _first_byte(path):
+    """The first byte of ``path`` after a byte-order mark and white space (b"" if none)."""
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(4096)
+    except OSError:
+        return b""
+    return head.removeprefix(b"\xef\xbb\xbf").lstrip()[:1]
 
 
 def is_gzip(path):
@@ -64,7 +82,7 @@ def is_gzip(path):
 def uncompressed_size(path, size):
     """Bytes after decompression (the gzip trailer's size, or a tenfold guess when the
     trailer cannot be right); ``size`` for plain files."""
-    if not is_gzip(path):
+    if not is_gzip(path) or size < 4:  # too short for a trailer: reading it will say so
         return size
     with open(path, "rb") as fh:
         fh.seek(-4, 2)

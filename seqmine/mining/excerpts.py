@@ -17,7 +17,7 @@ import numpy as np
 from .._util.checks import check_int
 from ..config import DEFAULT_CONFIG
 from ..errors import ParameterError
-from .patterns import PATTERN_SEPARATOR
+from .patterns import PATTERN_SEPARATOR, pattern_id
 
 __all__ = ["build_examples", "find_occurrence"]
 
@@ -33,8 +33,9 @@ def build_examples(db, patterns, *, favours=None, max_gap=_MINE["max_gap"],
     Parameters
     ----------
     db : SequenceDB
-    patterns : list of str
-        Readable patterns (tokens joined by ``" > "``), as in ``patterns.csv``.
+    patterns : list of (list of str or str)
+        Patterns as token lists (exact), or as readable text (tokens joined by
+        ``" > "``; a token containing ``" > "`` needs the list form).
     favours : list of str, optional
         Per pattern, the group to draw examples from (``""`` = any grouped sequence).
     max_gap, max_window, skip_pauses
@@ -53,7 +54,8 @@ def build_examples(db, patterns, *, favours=None, max_gap=_MINE["max_gap"],
     Returns
     -------
     dict
-        ``{"patterns": {pattern: [excerpt, ...]}}``; an excerpt is ``{"learner",
+        ``{"patterns": {pattern_id: [excerpt, ...]}}`` (see
+        :func:`~seqmine.mining.patterns.pattern_id`); an excerpt is ``{"learner",
         "group", "events": [{"time", "token", "matched", "pause"?} or {"elided"}]}``;
         ``pause`` (seconds) is set on pause tokens: the time from the event before
         to the event after.
@@ -62,8 +64,8 @@ def build_examples(db, patterns, *, favours=None, max_gap=_MINE["max_gap"],
     --------
     >>> from seqmine.encoding.sequences import SequenceDB
     >>> db = SequenceDB.from_lists([["a", "x", "b", "c"], ["b", "a"]], groups=["s", "w"])
-    >>> ex = build_examples(db, ["a > b"], max_gap=1)
-    >>> [(e["token"], e["matched"]) for e in ex["patterns"]["a > b"][0]["events"]]
+    >>> ex = build_examples(db, [["a", "b"]], max_gap=1)
+    >>> [(e["token"], e["matched"]) for e in ex["patterns"][pattern_id(["a", "b"])][0]["events"]]
     [('a', True), ('x', False), ('b', True), ('c', False)]
     """
     per_pattern = check_int(per_pattern, "per_pattern", "build_examples", minimum=1)
@@ -81,10 +83,12 @@ def build_examples(db, patterns, *, favours=None, max_gap=_MINE["max_gap"],
     order = rng.permutation(db.n_sequences)
     groups = np.asarray(db.groups)
     out = {}
-    for k, text in enumerate(patterns):
-        names = [t.strip() for t in str(text).split(PATTERN_SEPARATOR)]
+    for k, pat in enumerate(patterns):
+        names = ([str(t) for t in pat] if isinstance(pat, (list, tuple))
+                 else [t.strip() for t in str(pat).split(PATTERN_SEPARATOR)])
+        key = pattern_id(names)
         if any(n not in index for n in names):
-            out[str(text)] = []
+            out[key] = []
             continue
         ids = [index[n] for n in names]
         want = (favours[k] if favours is not None else "") or ""
@@ -102,7 +106,7 @@ def build_examples(db, patterns, *, favours=None, max_gap=_MINE["max_gap"],
             excerpts.append(_excerpt(db, int(s), pos, context, max_span))
             if len(excerpts) == per_pattern:
                 break
-        out[str(text)] = excerpts
+        out[key] = excerpts
     return {"patterns": out}
 
 

@@ -30,6 +30,7 @@ import scipy.sparse as sp
 from .._util.checks import check_int
 from .._util.csvio import write_csv
 from .._util.jsonio import json_default
+from .._util.outdir import open_new
 from ..config import DEFAULT_CONFIG
 from ..encoding.sequences import SequenceDB
 from ..errors import DataFileError, ParameterError
@@ -356,8 +357,8 @@ def save_patternset(ps, folder, *, table_name="patterns.csv"):
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
     write_csv(pattern_table(ps), folder / table_name)
-    sp.save_npz(folder / "counts.npz", sp.csr_matrix(ps.counts, dtype=np.int64),
-                compressed=True)
+    with open_new(folder / "counts.npz", "wb") as fh:
+        sp.save_npz(fh, sp.csr_matrix(ps.counts, dtype=np.int64), compressed=True)
     meta = {
         "format": _PS_FORMAT, "version": _PS_VERSION,
         "patterns": [list(p) for p in ps.patterns],
@@ -371,8 +372,8 @@ def save_patternset(ps, folder, *, table_name="patterns.csv"):
         "constraints": {k: json_default(v) if isinstance(v, np.generic) else v
                         for k, v in ps.constraints.items()},
     }
-    (folder / "patternset.json").write_text(
-        json.dumps(meta, indent=1, sort_keys=True, ensure_ascii=False), encoding="utf-8")
+    with open_new(folder / "patternset.json") as fh:
+        fh.write(json.dumps(meta, indent=1, sort_keys=True, ensure_ascii=False))
     return folder
 
 

@@ -24,6 +24,8 @@ looks forward, so a live watcher computes exactly the same count event by event.
 
 from __future__ import annotations
 
+import hashlib
+import json
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -32,7 +34,8 @@ import scipy.sparse as sp
 
 from ..errors import ParameterError
 
-__all__ = ["PatternSet", "PATTERN_SEPARATOR", "format_pattern", "parse_pattern", "is_subsequence"]
+__all__ = ["PatternSet", "PATTERN_SEPARATOR", "format_pattern", "parse_pattern", "pattern_id",
+           "tokens_text", "parse_tokens", "pattern_tokens", "split_readable", "is_subsequence"]
 
 #: Separator between tokens in a pattern's readable name (``a > b > c``).
 PATTERN_SEPARATOR = " > "
@@ -41,6 +44,99 @@ PATTERN_SEPARATOR = " > "
 def format_pattern(pattern, vocab):
     """Readable name of a pattern given as token ids."""
     return PATTERN_SEPARATOR.join(vocab[t] for t in pattern)
+
+
+def pattern_id(tokens):
+    """Stable identifier of a pattern given as its token names.
+
+    ``P`` + the first 16 hex digits of the SHA-256 of the token list as compact JSON:
+    the same tokens give the same id in every run and every file, whatever the tokens
+    contain (`` > ``, quotes, commas, leading ``=``).
+
+    Examples
+    --------
+    >>> pattern_id(["a > b", "c"]) == pattern_id(["a", "b", "c"])
+    False
+    >>> pattern_id(["set_light", "measure"]) == pattern_id(("set_light", "measure"))
+    True
+    """
+    digest = hashlib.sha256(tokens_text(tokens).encode("utf-8")).hexdigest()
+    return "P" + digest[:16]
+
+
+def tokens_text(tokens):
+    """The exact, unambiguous text form of a token list: compact JSON.
+
+    Examples
+    --------
+    >>> print(tokens_text(["a > b", "c,d"]))
+    ["a > b","c,d"]
+    """
+    return json.dumps([str(t) for t in tokens], ensure_ascii=False, separators=(",", ":"))
+
+
+def parse_tokens(text):
+    """Token list of :func:`tokens_text` output (or of a list already); ParameterError
+    if it is not a JSON list of strings.
+
+    Examples
+    --------
+    >>> parse_tokens('["a > b","c"]')
+    ['a > b', 'c']
+    """
+    if isinstance(text, (list, tuple)):
+        items = list(text)
+    else:
+        try:
+            items = json.loads(str(text))
+        except ValueError:
+            items = None
+    if not isinstance(items, list) or not items or not all(isinstance(t, str) for t in items):
+        raise ParameterError(f"Pattern tokens {str(text)[:80]!r} are not a JSON list of token "
+                             f"names such as [\"a\", \"b\"]; write the table again with "
+                             f"'seqmine contrast'.")
+    return items
+
+
+def pattern_tokens(row, known=None):
+    """Tokens of one pattern-table row (a mapping): from its ``tokens`` column when
+    present (exact), else by splitting ``pattern`` at `` > `` (for tables written before
+    token lists; a token containing `` > `` is recognised when ``known`` lists it)."""
+    tokens = row.get("tokens") if hasattr(row, "get") else None
+    if isinstance(tokens, (list, tuple)) or (isinstance(tokens, str) and tokens.strip()):
+        return parse_tokens(tokens)
+    return split_readable(row["pattern"], known)
+
+
+def split_readable(text, known=None):
+    """Tokens of a readable pattern ``"a > b"``; with ``known`` token names, a name that
+    itself contains the separator is recognised (the shortest split into known names)."""
+    if isinstance(text, (list, tuple)):
+        return [str(t) for t in text]
+    pieces = str(text).split(PATTERN_SEPARATOR)
+    if known:
+        seg = _segment(pieces, known)
+        if seg is not None:
+            return seg
+    parts = [p.strip() for p in pieces]
+    if not parts or any(p == "" for p in parts):
+        raise ParameterError(f"Pattern {text!r} has an empty token; patterns are token names "
+                             f"joined by {PATTERN_SEPARATOR!r}.")
+    return parts
+
+
+def _segment(pieces, known):
+    """Split ``pieces`` (the text cut at every separator) into known tokens, or None."""
+    n = len(pieces)
+    best = [None] * (n + 1)  # best[i]: a segmentation of pieces[i:]
+    best[n] = []
+    for i in range(n - 1, -1, -1):
+        for j in range(i + 1, n + 1):
+            tok = PATTERN_SEPARATOR.join(pieces[i:j])
+            if tok in known and best[j] is not None:
+                best[i] = [tok] + best[j]
+                break
+    return best[0]
 
 
 def is_subsequence(short, long):
@@ -138,6 +234,16 @@ class PatternSet:
         return [format_pattern(p, self.vocab) for p in self.patterns]
 
     @property
+    def tokens(self):
+        """Token names of each pattern (lists)."""
+        return [[self.vocab[t] for t in p] for p in self.patterns]
+
+    @property
+    def ids(self):
+        """Stable identifier of each pattern (:func:`pattern_id`)."""
+        return [pattern_id(t) for t in self.tokens]
+
+    @property
     def lengths(self):
         """Length of each pattern."""
         return np.array([len(p) for p in self.patterns], dtype=np.int64)
@@ -163,9 +269,12 @@ class PatternSet:
         )
 
     def to_frame(self):
-        """Tidy table: ``pattern``, ``length``, ``support_<group>`` (fractions), ``count_<group>``."""
+        """Tidy table: ``pattern_id``, ``pattern``, ``tokens`` (JSON list), ``length``,
+        ``support_<group>`` (fractions), ``count_<group>``."""
         frac = self.support_fractions()
-        data = {"pattern": self.names, "length": self.lengths}
+        toks = self.tokens
+        data = {"pattern_id": [pattern_id(t) for t in toks], "pattern": self.names,
+                "tokens": [tokens_text(t) for t in toks], "length": self.lengths}
         for g, name in enumerate(self.group_names):
             data[f"support_{name}"] = frac[:, g]
         for g, name in enumerate(self.group_names):

@@ -11,6 +11,7 @@ import networkx as nx
 import numpy as np
 import pandas as pd
 
+from .._util.outdir import open_new
 from ..config import DEFAULT_CONFIG
 from ..encoding.sequences import SequenceDB
 from ..errors import DataFileError, ParameterError
@@ -259,7 +260,8 @@ class PhaseModel:
 
     def write_graphml(self, path, threshold=0.05):
         """Write :meth:`to_graph` as GraphML."""
-        nx.write_graphml(self.to_graph(threshold), str(path))
+        with open_new(path, "wb") as fh:
+            nx.write_graphml(self.to_graph(threshold), fh)
         return Path(path)
 
     # ------------------------------------------------------------- storage
@@ -303,7 +305,8 @@ class PhaseModel:
     def save(self, path):
         """Write the model as plain JSON (no executable object serialisation)."""
         path = Path(path)
-        path.write_text(json.dumps(self.to_dict(), indent=1, sort_keys=True), encoding="utf-8")
+        with open_new(path) as fh:
+            fh.write(json.dumps(self.to_dict(), indent=1, sort_keys=True))
         return path
 
     @classmethod

@@ -9,6 +9,7 @@ formatted here, never taken as text from the files.
 from __future__ import annotations
 
 import contextvars
+import json
 import math
 import re
 from html import escape
@@ -16,11 +17,12 @@ from html import escape
 import numpy as np
 
 from .._util.text import replace_control_characters
+from ..mining.patterns import pattern_id
 from . import plots as _plots
 
 __all__ = ["esc", "lookup", "config_of", "counts_of", "group_names_of", "top_patterns",
            "FigureIds", "PAGE_TITLE", "CSS", "CONFIG_SECTIONS", "LABELS", "label_of",
-           "wrap_figures", "PATTERN_SEPARATOR"]
+           "wrap_figures", "PATTERN_SEPARATOR", "row_tokens", "row_excerpts"]
 
 PAGE_TITLE = "seqmine report: behaviour patterns and outcomes"
 #: How the report writes a pattern: the tokens joined as in patterns.csv.
@@ -312,8 +314,29 @@ def _split(pattern):
     return [t.strip() for t in str(pattern).split(_SEP)]
 
 
-def _pattern_label(pattern):
-    return _SEP.join(_split(pattern))
+def row_tokens(row):
+    """Tokens of a patterns.csv row: its ``tokens`` column (exact) when present and
+    readable, else the ``pattern`` text split at `` > ``."""
+    text = row.get("tokens") if hasattr(row, "get") else None
+    if isinstance(text, str) and text.strip():
+        try:
+            items = json.loads(text)
+        except ValueError:
+            items = None
+        if isinstance(items, list) and items and all(isinstance(t, str) for t in items):
+            return items
+    return _split(row["pattern"])
+
+
+def row_excerpts(examples, row):
+    """The excerpts of ``examples.json``'s ``patterns`` for a patterns.csv row: keyed by
+    ``pattern_id`` (or, in files written before pattern ids, by the pattern text)."""
+    pid = row.get("pattern_id") if hasattr(row, "get") else None
+    if not (isinstance(pid, str) and pid.strip()):
+        pid = pattern_id(row_tokens(row))
+    if pid in examples:
+        return examples[pid]
+    return examples.get(str(row["pattern"]))
 
 
 def _group_label(g, groups):

@@ -33,12 +33,13 @@ from .html import (
     config_of,
     esc,
     label_of,
+    row_tokens,
 )
 
 __all__ = []
 
 def _pattern_card(rank, row, sup_cols, groups, alpha, excerpts, examples, max_examples):
-    tokens = _split(row["pattern"])
+    tokens = row_tokens(row)
     out = ['<article class="card">',
            f'<h3><span class="rank">{rank}.</span>{_chips(tokens)}</h3>']
     fav = str(row.get("favours", "") or "")

@@ -24,6 +24,9 @@ from pathlib import Path
 
 import pandas as pd
 
+from .._util.csvio import restore_frame
+from .._util.outdir import open_new
+from .._util.runrecord import has_record, output_status
 from .._version import __version__
 from ..config import DEFAULT_CONFIG
 from ..errors import DataFileError
@@ -129,7 +132,9 @@ REJECT_COLUMNS = {"source_row": "row number in the input file", "reason": "why i
 
 #: Columns of ``patterns.csv`` (``<group>`` = each group name).
 PATTERN_COLUMNS = {
+    "pattern_id": "stable identifier of the pattern (examples and detectors refer to it)",
     "pattern": "tokens joined by ' > ' (required)",
+    "tokens": "the tokens as a JSON list (exact; preferred over splitting 'pattern')",
     "length": "number of tokens",
     "support_<group>": "share of the group's sequences containing the pattern (0-1)",
     "p_value": "raw p value of the presence test",
@@ -245,7 +250,7 @@ DETECTOR_KEYS = {
 
 #: Keys of ``examples.json``: ``{"patterns": {pattern: [excerpt, ...]}}``.
 EXAMPLE_KEYS = {
-    "patterns": "pattern (as in patterns.csv) -> list of excerpts",
+    "patterns": "pattern_id (as in patterns.csv; older files: pattern text) -> list of excerpts",
     "excerpt.learner": "learner id (pseudonymised when the run was)",
     "excerpt.group": "group of the learner (optional)",
     "excerpt.events": "list of {time (s), token (or action), pause (s to next, optional), matched (bool)}",
@@ -307,10 +312,16 @@ def render_report(out_dir, *, examples=DEFAULT_CONFIG["report"]["examples"],
     page = _page(data, examples=examples, max_patterns=max_patterns, max_examples=max_examples,
                  explorer_rows=explorer_rows)
     target = folder / REPORT_FILE
-    tmp = folder / (REPORT_FILE + ".tmp")
-    with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
-        fh.write(page)
-    os.replace(tmp, target)
+    if target.is_symlink():  # checked first, so nothing is written at all
+        open_new(target)
+    tmp = folder / f".{REPORT_FILE}.seqmine-tmp-{os.getpid()}"
+    try:
+        with open_new(tmp, "w", newline="\n") as fh:
+            fh.write(page)
+        os.replace(tmp, target)  # the page appears whole, never half-written
+    finally:
+        if tmp.exists():
+            tmp.unlink()
     return target
 
 
@@ -322,9 +333,10 @@ def write_examples(out_dir, db, patterns, **kwargs):
     out_dir : str or path-like
     db : SequenceDB
         The encoded sequences the patterns were mined from.
-    patterns : pandas.DataFrame or list of str
+    patterns : pandas.DataFrame or list
         ``patterns.csv`` as a table (its top rows by q are used: significant,
-        non-redundant, at most ``max_patterns``) or a list of readable patterns.
+        non-redundant, at most ``max_patterns``) or a list of patterns (token lists,
+        or readable text).
     **kwargs
         ``max_patterns`` (default 15), ``alpha`` (default 0.05), and the options of
         :func:`build_examples` (matching constraints, ``per_pattern``, ``context``,
@@ -345,15 +357,15 @@ def write_examples(out_dir, db, patterns, **kwargs):
         if groups:  # the cards the report shows: order and presence findings first
             top = pd.concat([rows for kind, _, _, rows, _ in groups if kind != "volume"]
                             + [top], ignore_index=True).drop_duplicates("pattern")
-        names = [str(p) for p in top["pattern"]]
+        names = [hx.row_tokens(r) for _, r in top.iterrows()]
         favours = ([("" if pd.isna(f) else str(f)) for f in top["favours"]]
                    if "favours" in top.columns else None)
     else:
-        names, favours = [str(p) for p in patterns], kwargs.pop("favours", None)
+        names, favours = list(patterns), kwargs.pop("favours", None)
     data = build_examples(db, names, favours=favours, **kwargs)
     path = Path(out_dir) / OUTPUT_FILES["examples"]
-    path.write_text(json.dumps(data, indent=1, ensure_ascii=False) + "\n",
-                    encoding="utf-8")
+    with open_new(path) as fh:
+        fh.write(json.dumps(data, indent=1, ensure_ascii=False) + "\n")
     return path
 
 
@@ -369,6 +381,13 @@ class _Input:
     @property
     def ok(self):
         return self.value is not None
+
+
+#: The stage of the run record that writes each file the report reads.
+_FILE_STAGES = {"rejects": "load", "patterns": "contrast", "transitions": "transitions",
+                "phases_summary": "phases", "state_selection": "phases", "occupancy": "phases",
+                "early_prediction": "validate", "detectors": "detectors",
+                "examples": "examples"}
 
 
 def _read_all(folder):
@@ -404,11 +423,38 @@ def _read_all(folder):
         numeric_prefix=("accuracy", "balanced_accuracy", "recall_", "roc_auc"))
     d["detectors"] = _read_json(folder, OUTPUT_FILES["detectors"], dict)
     d["examples"] = _read_json(folder, OUTPUT_FILES["examples"], dict)
-    d["models"], d["graphml"], d["models_note"] = _read_models(folder, d["phases_summary"])
+    d["record_notes"] = _apply_record(folder, d)
+    d["models"], d["graphml"], d["models_note"] = _read_models(
+        folder, d["phases_summary"], blocked=d.pop("phases_blocked", None))
     summary = d["summary"].value or {}
     d["groups"] = _group_names(summary, d)
     d["alpha"] = _alpha(summary)
     return d
+
+
+def _apply_record(folder, d):
+    """Keep only what the folder's run record lists as written by a finished stage.
+
+    Without a record (a folder written by hand or by an older seqmine) every file is
+    used. With one, a file of a stage that was skipped or removed (or that the record
+    does not list) is treated as missing, with the record's reason as the note, so the
+    page never mixes files of two runs. Returns notes about files changed after the
+    run (used, but said).
+    """
+    summary = d["summary"].value
+    notes = []
+    for key, stage in _FILE_STAGES.items():
+        if not has_record(summary):
+            break
+        name = OUTPUT_FILES[key]
+        ok, note = output_status(summary, folder, name, stage)
+        if not ok:
+            d[key] = _Input(name, note=note)
+            if stage == "phases":
+                d["phases_blocked"] = note
+        elif note:
+            notes.append(note)
+    return notes
 
 
 def _read_json(folder, name, kind):
@@ -431,7 +477,8 @@ def _read_csv(folder, name, numeric=(), numeric_prefix=()):
         return _Input(name, note=f"{name} not found")
     try:
         # Everything as text first: a token called "NA" or "null" must stay a string.
-        df = pd.read_csv(path, dtype=str, keep_default_na=False, encoding="utf-8")
+        df = restore_frame(pd.read_csv(path, dtype=str, keep_default_na=False,
+                                       encoding="utf-8"))
     except (OSError, UnicodeDecodeError, ValueError, pd.errors.ParserError) as exc:
         return _Input(name, note=f"{name} could not be read ({type(exc).__name__})")
     for col in df.columns:
@@ -440,11 +487,13 @@ def _read_csv(folder, name, numeric=(), numeric_prefix=()):
     return _Input(name, df)
 
 
-def _read_models(folder, phases_summary):
+def _read_models(folder, phases_summary, blocked=None):
     """Phase models as ``[{"group", "file", "states", "transmat"}]``, GraphML names, note."""
     pdir = folder / OUTPUT_FILES["phases"]
     if not pdir.is_dir():
         return [], [], "phases/ not found"
+    if blocked:
+        return [], [], blocked  # the run record says the phases are not this run's
     mapping = (phases_summary.value or {}).get("models")
     if isinstance(mapping, dict) and mapping:
         files = [(str(k), f"{v}.json") for k, v in mapping.items() if isinstance(v, str)]
@@ -510,6 +559,7 @@ def _page_body(d, *, examples, max_patterns, max_examples, explorer_rows):
     scripted = 'id="explorer-data"' in explorer
     parts = [
         sec.section_intro(d),
+        *[f'<p class="note">{esc(n)}</p>' for n in d.get("record_notes", [])],
         sec.section_overview(d, figs),
         sec.section_patterns(d, figs, examples=examples, max_patterns=max_patterns,
                              max_examples=max_examples),

@@ -30,17 +30,18 @@ from .html import (
     _matrix,
     _missing,
     _ordered,
-    _pattern_label,
     _pct,
     _plural,
     _section,
     _significant,
-    _split,
     _str_list,
     _table,
     config_of,
     counts_of,
     esc,
+    row_excerpts,
+    PATTERN_SEPARATOR,
+    row_tokens,
     lookup,
     top_patterns,
 )
@@ -146,7 +147,7 @@ def _strongest(sig, groups):
         sup = [f"{esc(h)} {_pct(r[f'support_{h}'])}" for h in groups
                if f"support_{h}" in r.index]
         items.append(f"Most reliable pattern more common among {_group_label(g, groups)}: "
-                     f"{_chips(_split(r['pattern']))}"
+                     f"{_chips(row_tokens(r))}"
                      + (f" (in {', '.join(sup)} of sequences)" if sup else "") + ".")
     return items
 
@@ -276,18 +277,18 @@ def _cards(rows, sup_cols, groups, d, figs, ex_map, examples, max_examples):
     out = []
     if sup_cols and len(rows):
         out.append(_plots.svg_support_bars(
-            [_pattern_label(p) for p in rows["pattern"]],
+            [PATTERN_SEPARATOR.join(row_tokens(r)) for _, r in rows.iterrows()],
             {g: rows[c].to_numpy(float) for g, c in sup_cols}, fig_id=figs()))
     for rank, (_, row) in enumerate(rows.iterrows(), start=1):
         out.append(_pattern_card(rank, row, sup_cols, groups, d["alpha"],
-                                 ex_map.get(str(row["pattern"])), examples, max_examples))
+                                 row_excerpts(ex_map, row), examples, max_examples))
     return out
 
 
 def _volume_only_table(rows, groups, total):
     heads = ["pattern"] + [f"share {g}" for g in groups] + ["q (before)", "q (at equal "
                                                             "activity)", "more in"]
-    body = [[_chips(_split(r["pattern"]))] + [_pct(r.get(f"support_{g}")) for g in groups]
+    body = [[_chips(row_tokens(r))] + [_pct(r.get(f"support_{g}")) for g in groups]
             + [_fmt_p(r.get("q_value")), _fmt_p(r.get("q_volume")),
                _group_label(r["favours"], groups) if str(r.get("favours") or "") else ""]
             for _, r in rows.iterrows()]
@@ -488,8 +489,13 @@ def section_method(d):
     out = [_h2("method")]
     items = []
 
+    recorded = isinstance(summary.get("stages"), dict)
+
     def add(label, key, fmt=esc):
-        v = lookup(summary, key)
+        # with a run record, only the statements of stages that ran (kept in method and
+        # at the top level by the record), never a configured value of a stage that did not
+        v = ((summary.get("method") or {}).get(key, summary.get(key)) if recorded
+             else lookup(summary, key))
         if v is not None and v != "":
             items.append(f"<li><b>{label}:</b> {fmt(v)}</li>")
 

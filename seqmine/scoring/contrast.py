@@ -12,7 +12,7 @@ import scipy.sparse as sp
 from .._util.checks import check_choice, check_fraction, check_int
 from ..config import CONTRAST_CORRECTIONS, DEFAULT_CONFIG
 from ..errors import ParameterError, SeqmineWarning
-from ..mining.patterns import PatternSet
+from ..mining.patterns import PatternSet, pattern_id, tokens_text
 from .effects import (
     chi2_presence,
     cohens_h,
@@ -132,7 +132,9 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
         One row per pattern, sorted by ``p_value`` (ties keep the pattern order).
         Columns for two groups A, B:
 
-        ``pattern`` tokens joined by ``" > "``; ``length``; ``support_<g>`` share of
+        ``pattern_id`` stable identifier (:func:`~seqmine.mining.patterns.pattern_id`);
+        ``pattern`` tokens joined by ``" > "``; ``tokens`` the tokens as a JSON list
+        (exact even when a token contains ``" > "``); ``length``; ``support_<g>`` share of
         group g's sequences containing the pattern (every group of the PatternSet);
         ``rate_<g>`` mean rate (see ``rate_unit``); ``p_value`` two-sided Fisher
         exact test on presence (A vs B); ``q_value`` adjusted by ``correction``;
@@ -154,8 +156,8 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
         U on rates; ``q_rate`` ``p_rate`` adjusted by ``correction`` (for
         "westfall-young" the same permutations applied to the rank test, with the
         normal-approximation p-value as statistic); ``stability``; ``replication``;
-        ``redundant_of`` the kept pattern whose supporting sequences nearly coincide
-        (``""`` if none).
+        ``redundant_of`` the ``pattern_id`` of the kept pattern whose supporting
+        sequences nearly coincide (``""`` if none).
 
         Without activity volumes (no ``db`` and no ``lengths``) the volume and order
         columns are NaN, ``evidence`` is empty and ``favours`` names the group with
@@ -321,8 +323,8 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
         order = (np.lexsort((np.arange(m), lens, p)) if redundancy_order == "significance"
                  else np.lexsort((np.arange(m), p, lens)))
         rep = prune_redundant(pres, order, redundancy)
-        pnames = np.array(patterns.names, dtype=object)
-        redundant_of = np.where(rep >= 0, pnames[np.maximum(rep, 0)], "")
+        pids = np.array(table["pattern_id"], dtype=object)
+        redundant_of = np.where(rep >= 0, pids[np.maximum(rep, 0)], "")
     else:
         redundant_of = np.full(m, "", dtype=object)
 
@@ -384,12 +386,15 @@ def pairwise_contrast(patterns, db=None, *, lengths=None, groups=None, correctio
     names, labels = prep["names"], prep["labels"]
     frames = []
     pnames = patterns.names
+    toks = patterns.tokens
+    pids, ptoks = [pattern_id(t) for t in toks], [tokens_text(t) for t in toks]
     for ga, gb in itertools.combinations(range(len(names)), 2):
         mask = (labels == ga) | (labels == gb)
         st = _two_group_stats(prep["presence"][mask], prep["rates"][mask],
                               labels[mask] == ga, labels[mask] == gb)
         frames.append(pd.DataFrame({
-            "group_a": names[ga], "group_b": names[gb], "pattern": pnames,
+            "group_a": names[ga], "group_b": names[gb], "pattern_id": pids, "pattern": pnames,
+            "tokens": ptoks,
             "length": patterns.lengths, "support_a": st["support_a"],
             "support_b": st["support_b"], "rate_a": st["rate_a"], "rate_b": st["rate_b"],
             "p_value": st["p_value"], "risk_difference": st["risk_difference"],
@@ -636,7 +641,9 @@ def _prepare(patterns, db, lengths, groups, rate_unit, where, sessions_ok=False)
 
 def _base_columns(patterns, rates, prep):
     seq_groups = patterns.seq_groups
-    table = {"pattern": patterns.names, "length": patterns.lengths}
+    toks = patterns.tokens
+    table = {"pattern_id": [pattern_id(t) for t in toks], "pattern": patterns.names,
+             "tokens": [tokens_text(t) for t in toks], "length": patterns.lengths}
     names = prep["all_names"]
     sizes = np.bincount(seq_groups[seq_groups >= 0], minlength=len(names))
     with np.errstate(divide="ignore", invalid="ignore"):

@@ -27,7 +27,7 @@ from ..config import DEFAULT_CONFIG
 from ..encoding.sequences import SequenceDB
 from ..errors import NotFittedError, ParameterError
 from ..mining.miner import match, mine
-from ..mining.patterns import PATTERN_SEPARATOR
+from ..mining.patterns import PATTERN_SEPARATOR, pattern_tokens
 from ..phases.classify import GroupHMMClassifier
 from ..scoring.contrast import contrast
 
@@ -182,8 +182,8 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
         else:
             scores = pd.DataFrame({"pattern": [], "p_value": [], "q_value": []})
         self.scores_ = scores
-        chosen = select_patterns(scores, alpha=self.alpha, top_k=self.top_k)
-        self.patterns_ = [tuple(p.split(PATTERN_SEPARATOR)) for p in chosen]
+        chosen = select_patterns(scores, alpha=self.alpha, top_k=self.top_k, as_tokens=True)
+        self.patterns_ = [tuple(p) for p in chosen]
         return self
 
     def transform(self, X):
@@ -416,7 +416,7 @@ class HMMLikelihoodFeaturizer(TransformerMixin, BaseEstimator):
 
 # --------------------------------------------------------------------- helpers
 def select_patterns(scores, *, alpha=_CONTRAST["alpha"],
-                    top_k=DEFAULT_CONFIG["validate"]["top_k"]):
+                    top_k=DEFAULT_CONFIG["validate"]["top_k"], as_tokens=False):
     """Choose patterns from a contrast table: significant first, smallest p-values.
 
     Parameters
@@ -428,10 +428,13 @@ def select_patterns(scores, *, alpha=_CONTRAST["alpha"],
     top_k : int
         Keep at most this many (ordered by p-value, then pattern name, so ties
         are broken deterministically).
+    as_tokens : bool
+        Return each pattern as its token list (from the ``tokens`` column when the
+        table has one, which is exact even for tokens containing ``" > "``).
 
     Returns
     -------
-    list of str
+    list of str (or of list of str)
 
     Examples
     --------
@@ -442,12 +445,17 @@ def select_patterns(scores, *, alpha=_CONTRAST["alpha"],
     """
     if len(scores) == 0:
         return []
-    t = pd.DataFrame({"pattern": scores["pattern"].astype(str),
-                      "p_value": pd.to_numeric(scores["p_value"]),
-                      "q_value": pd.to_numeric(scores["q_value"])})
+    rows = scores.reset_index(drop=True)
+    t = pd.DataFrame({"pattern": rows["pattern"].astype(str),
+                      "p_value": pd.to_numeric(rows["p_value"]),
+                      "q_value": pd.to_numeric(rows["q_value"]),
+                      "tokens": (rows["tokens"].astype(str) if "tokens" in rows.columns
+                                 else rows["pattern"].astype(str))})
     t = t[t["q_value"] <= alpha]
-    t = t.sort_values(["p_value", "pattern"], kind="mergesort")
-    return t["pattern"].head(int(top_k)).tolist()
+    t = t.sort_values(["p_value", "pattern", "tokens"], kind="mergesort").head(int(top_k))
+    if not as_tokens:
+        return t["pattern"].tolist()
+    return [pattern_tokens(r) for r in rows.loc[t.index].to_dict("records")]
 
 
 def group_codes(db, y):

@@ -379,12 +379,13 @@ def events_from_args(args, path):
                        timezone=args.timezone, decimal_comma=args.decimal_comma)
 
 
-def outcomes_from_args(args):
+def outcomes_from_args(args, path=None):
     from ...inputs.outcomes import load_outcomes
     cols = {"learner": args.outcome_learner_column, "pre": args.pre_column,
             "post": args.post_column, "max": args.max_column, "score": args.score_column,
             "label": args.label_column}
-    return load_outcomes(args.outcomes, columns=cols, max_score=args.max_score,
+    return load_outcomes(args.outcomes if path is None else path, columns=cols,
+                         max_score=args.max_score,
                          decimal_comma=getattr(args, "decimal_comma", False))
 
 

@@ -7,7 +7,7 @@ import json
 from pathlib import Path
 
 from ..._util.progress import is_quiet
-from ...errors import DataFileError, OptionValueError
+from ...errors import DataFileError, OptionValueError, ParameterError
 from . import _options
 from ._options import OnOffAction, add_option
 
@@ -33,12 +33,15 @@ DESCRIPTION = (
 def add_arguments(parser):
     """Options of ``seqmine detectors``."""
     parser.add_argument("table", metavar="CONTRAST_CSV",
-                        help="contrast table (patterns.csv) written by 'seqmine contrast'")
-    _options.add_sequences_option(parser, positional=False)
+                        help="contrast table (patterns.csv) written by 'seqmine contrast', or "
+                             "an output folder of 'seqmine analyze' to re-select its detectors")
+    _options.add_sequences_option(parser, positional=False, required=False)
     parser.add_argument("--patterns", metavar="DIR", default=None,
                         help="pattern set folder written by 'seqmine mine' (gives the matching "
                              "constraints; default: a patternset.json beside the table)")
-    parser.add_argument("--out", required=True, metavar="JSON", help="detectors file to write")
+    parser.add_argument("--out", default=None, metavar="JSON",
+                        help="detectors file to write (default with an output folder as "
+                             "CONTRAST_CSV: its detectors.json)")
     g = parser.add_argument_group("selection")
     add_option(g, "detectors", "max_q", type=float, metavar="Q",
                help="largest q value kept (default: {default})")
@@ -89,26 +92,49 @@ def add_arguments(parser):
 
 def run(args):
     """Run ``seqmine detectors``."""
+    from ...detection.detectors import save_detectors
+    from ...encoding.sequences import SequenceDB
+    from ...pipeline import target_run_folder
+    folder = target_run_folder(args.table, args.out)
+    if folder is not None:
+        return _run_in_folder(args, folder)
+    if args.out is None or args.sequences is None:
+        raise ParameterError("--out JSON and --sequences DIR are needed unless CONTRAST_CSV is "
+                             "an output folder of 'seqmine analyze'.")
+    table_path = Path(args.table)
+    table = _read_table(table_path)
+    db = SequenceDB.load(args.sequences)
+    constraints, source = _constraints(args, table_path)
+    doc = _export(args, table, db, constraints)
+    doc["selection"].update(source=str(table_path), constraints_from=source)
+    from ..._util.outdir import writing_file
+    with writing_file(args.out, "--out", inputs=[args.table]) as tmp:
+        save_detectors(doc, tmp)
+    _say(doc, table, args.out)
+    return 0
+
+
+def _read_table(table_path):
     import pandas as pd
 
-    from ...detection.detectors import export_detectors, save_detectors
-    from ...encoding.sequences import SequenceDB
-    table_path = Path(args.table)
+    from ..._util.csvio import read_csv
     if not table_path.is_file():
         raise DataFileError(f"{table_path}: contrast table not found; create it with "
                             f"'seqmine contrast'.")
     try:
-        table = pd.read_csv(table_path, keep_default_na=True)
+        return read_csv(table_path, keep_default_na=True)
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
         raise DataFileError(f"{table_path}: unreadable CSV ({' '.join(str(exc).split())}); "
                             f"write it again with 'seqmine contrast'.") from None
-    db = SequenceDB.load(args.sequences)
-    constraints, source = _constraints(args, table_path)
+
+
+def _export(args, table, db, constraints):
+    from ...detection.detectors import export_detectors
     lengths = None
     if args.min_length is not None or args.max_length is not None:
         lengths = (args.min_length, args.max_length)
     groups = [g.strip() for g in args.favours.split(",") if g.strip()] if args.favours else None
-    doc = export_detectors(
+    return export_detectors(
         table, db, constraints, max_q=args.max_q, min_effect=args.min_effect,
         effect=args.effect, min_stability=args.min_stability, lengths=lengths, groups=groups,
         max_detectors=args.max_detectors, drop_redundant=not args.keep_redundant,
@@ -116,13 +142,69 @@ def run(args):
         encourage_share=args.encourage_share, examples=args.examples,
         absence_after_events=args.absence_events, absence_quantile=args.absence_quantile,
         absence_after_seconds=args.absence_seconds)
-    doc["selection"].update(source=str(table_path), constraints_from=source)
-    out = save_detectors(doc, args.out)
+
+
+def _say(doc, table, out):
     if not is_quiet():
         n_dis = sum(d["direction"] == "discourage" for d in doc["detectors"])
         print(f"wrote {len(doc['detectors'])} detectors ({n_dis} discourage, "
               f"{len(doc['detectors']) - n_dis} encourage) from {len(table)} patterns to {out}; "
               f"review every hint text before use")
+
+
+def _run_in_folder(args, folder):
+    """Re-run the detectors stage of an output folder, from its own contrast table."""
+    from ..._util.runrecord import read_summary
+    from ...detection.detectors import save_detectors
+    from ...encoding.sequences import SequenceDB
+    from ...errors import OutputError
+    from ...pipeline import detectors_summary, own_stage_folder, rerun_stage, stage_output_folder
+    stages = (read_summary(folder) or {}).get("stages") or {}
+    contrast = stages.get("contrast") or {}
+    table_name = (contrast.get("settings") or {}).get("table", "patterns.csv")
+    tables = [rel for rel in (contrast.get("outputs") or {}) if rel == table_name]
+    if contrast.get("status") != "done" or not tables:
+        raise DataFileError(f"{folder}: the run record lists no contrast table to select "
+                            f"detectors from; run 'seqmine contrast {folder}' first.")
+    db_dir = own_stage_folder(folder, "encode", args.sequences)
+    ps_dir = stage_output_folder(folder, "mine", "patternset.json")
+    own = [(Path(folder) / tables[0]).resolve(), Path(folder).resolve()]
+    if Path(args.table).resolve() not in own:
+        raise OutputError(f"{args.table} is not the contrast table of the run in {folder}; "
+                          f"detectors written there must come from {own[0]}.")
+    name = "detectors.json"
+    if args.out and Path(args.out).resolve() != Path(folder).resolve():
+        rel = Path(args.out).resolve().relative_to(Path(folder).resolve())
+        if len(rel.parts) != 1 or rel.suffix.lower() != ".json":
+            raise ParameterError(f"--out {args.out}: inside an output folder the detectors "
+                                 f"file is a .json file directly in {folder}.")
+        name = rel.name
+    if args.patterns is None and ps_dir is not None:
+        args.patterns = str(ps_dir)
+    settings = {k: getattr(args, k) for k in (
+        "max_q", "effect", "min_effect", "min_stability", "min_length", "max_length",
+        "favours", "max_detectors", "keep_redundant", "strong_group", "weak_group",
+        "absence_events", "absence_seconds", "encourage_share", "absence_quantile",
+        "examples")}
+
+    def work(st):
+        table = _read_table(st.path / tables[0])
+        db = SequenceDB.load(st.path / db_dir.relative_to(folder))
+        constraints, source = _constraints(args, Path(folder) / tables[0])
+        doc = _export(args, table, db, constraints)
+        doc["selection"].update(source=tables[0], constraints_from=str(
+            Path(source).relative_to(folder)) if Path(source).is_absolute() and
+            Path(source).is_relative_to(folder) else source)
+        save_detectors(doc, st.path / name)
+        return detectors_summary(doc), (doc, table)
+
+    (doc, table), target, _ = rerun_stage(
+        folder, "detectors", NAME, work, settings=settings, config_section="detectors",
+        config_values={"max_q": args.max_q, "min_stability": args.min_stability,
+                       "max_detectors": args.max_detectors,
+                       "encourage_share": args.encourage_share,
+                       "absence_quantile": args.absence_quantile, "examples": args.examples})
+    _say(doc, table, target / name)
     return 0
 
 

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 from ..._util.csvio import write_csv
@@ -26,22 +25,44 @@ def add_arguments(p):
 
 
 def run(args):
+    from ..._util.jsonio import write_json
+    from ..._util.outdir import writing_folder
+    from ..._util.runrecord import RunRecord, file_input, new_files, snapshot
     from ..._util.warnlog import collect_warnings
-    from ...pipeline import prepare_sequences, warnings_frame
+    from ...inputs.privacy import key_fingerprint, read_key
+    from ...inputs.sources import STDIN, STDIN_NAME, regular_input
+    from ...pipeline import prepare_sequences, recorded_names, warnings_frame
+
     out = Path(args.out)
-    with collect_warnings() as log:
+    key = read_key(args.pseudonymize) if args.pseudonymize else None
+    with writing_folder(out, "--out", inputs=[args.events, args.outcomes, args.mapping,
+                                              args.pseudonymize],
+                        owned=recorded_names(out)) as st, \
+            regular_input(args.events, "events", max_bytes=args.max_bytes) as ev, \
+            regular_input(args.outcomes, "outcomes") as oc, collect_warnings() as log:
+        record = RunRecord(NAME)
+        before = snapshot(st.path)
         loaded, outcomes = _options.pseudonymize_inputs(
-            args, _options.events_from_args(args, args.events), _options.outcomes_from_args(args))
+            args, _options.events_from_args(args, ev[0]), _options.outcomes_from_args(args, oc[0]))
+        inputs = {role: file_input(pair[0], STDIN if pair[1] == STDIN_NAME else pair[1])
+                  for role, pair in (("events", ev), ("outcomes", oc))}
+        write_csv(loaded.rejects, st.path / "rejects.csv")
+        record.done("load", settings={"privacy": {
+            "pseudonymized": key is not None,
+            "key_fingerprint": key_fingerprint(key) if key is not None else None}},
+            inputs=inputs, outputs=new_files(st.path, before))
+        before = snapshot(st.path)
+        encoder = _options.encoder_from_args(args)
         prepared = prepare_sequences(
             loaded, outcomes,
             grouping_factory=lambda o: _options.grouping_from_args(args, o),
-            encoder=_options.encoder_from_args(args))
-    out.mkdir(parents=True, exist_ok=True)
-    prepared.db.save(out / "sequences")
-    write_csv(prepared.rejects, out / "rejects.csv")
-    summary = dict(prepared.summary, warnings=log.as_list())
-    (out / "summary.json").write_text(json.dumps(summary, indent=2, sort_keys=True) + "\n",
-                                      encoding="utf-8")
+            encoder=encoder)
+        prepared.db.save(st.path / "sequences")
+        record.done("encode", settings=encoder.get_params() | {
+            "mapping": args.mapping, "grouping": prepared.grouping.rule},
+            inputs={"load": {"stage": "load"}}, outputs=new_files(st.path, before))
+        summary = dict(prepared.summary, pseudonymized=key is not None, warnings=log.as_list())
+        write_json(st.path / "summary.json", record.apply(summary))
     if not args.quiet:
         s = prepared.summary
         print(f"encoded {s['sequences']} sequences ({s['tokens']} tokens) from "

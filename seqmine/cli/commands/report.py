@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-
 from ...errors import ParameterError
 from ._options import OnOffAction, add_option
 
@@ -33,15 +32,27 @@ def add_arguments(parser):
 
 def run(args):
     """Render the report and print where it is."""
+    from ...pipeline import rerun_stage, target_run_folder
     from ...reporting.render import render_report
+
     if args.max_patterns < 1:
         raise ParameterError(
             f"--max-patterns must be a whole number of at least 1. Got {args.max_patterns}.")
     if args.explorer_rows < 1:
         raise ParameterError(
             f"--explorer-rows must be a whole number of at least 1. Got {args.explorer_rows}.")
-    path = render_report(args.out_dir, examples=args.examples, max_patterns=args.max_patterns,
-                         explorer_rows=args.explorer_rows)
+    folder = target_run_folder(args.out_dir)
+    options = {"examples": args.examples, "max_patterns": args.max_patterns,
+               "explorer_rows": args.explorer_rows}
+    if folder is None:  # a folder without a run record: rendered from its files
+        path = render_report(args.out_dir, **options)
+    else:
+        def work(st):
+            page = render_report(st.path, **options)
+            return {}, page.name
+
+        name, target, _ = rerun_stage(folder, "report", NAME, work, settings=options)
+        path = target / name
     if not args.quiet:
         print(f"Report written to {path}")
     return 0

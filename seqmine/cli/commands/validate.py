@@ -67,7 +67,12 @@ def add_arguments(p):
 
 
 def run(args):
+    from ..._util.outdir import writing_folder
+    from ..._util.parallel import effective_jobs
+    from ...inputs.sources import regular_input
+    from ...pipeline import recorded_names, target_run_folder
     from ...validation.crossval import default_featurizers, validate
+
     fractions = args.fractions
     if not fractions:
         raise ParameterError("--fractions needs at least one number in (0, 1], e.g. 0.25,0.5,1.")
@@ -76,8 +81,16 @@ def run(args):
         if c not in CLASSIFIERS:
             raise ParameterError(
                 f"--classifiers: unknown name {c!r}; choose from {', '.join(CLASSIFIERS)}.")
-    loaded, outcomes = _options.pseudonymize_inputs(
-        args, _options.events_from_args(args, args.events), _options.outcomes_from_args(args))
+    jobs = effective_jobs(args.jobs, notify=True) if args.scheduler in (
+        None, "local") else args.jobs
+    out = Path(args.out)
+    folder = target_run_folder(out=out, out_is_folder=True)
+    with regular_input(args.events, "events", max_bytes=args.max_bytes) as ev, \
+            regular_input(args.outcomes, "outcomes") as oc:
+        if folder is not None:
+            _check_same_inputs(args, folder, ev, oc)
+        loaded, outcomes = _options.pseudonymize_inputs(
+            args, _options.events_from_args(args, ev[0]), _options.outcomes_from_args(args, oc[0]))
     featurizers = default_featurizers(
         random_state=args.seed,
         pattern_params=dict(_options.mining_params(args), top_k=args.top_k, alpha=args.alpha),
@@ -88,8 +101,13 @@ def run(args):
         grouping=_options.grouping_from_args(args, outcomes),
         encoder=_options.encoder_from_args(args), featurizers=featurizers,
         classifiers=classifiers, train_on=args.train_on, n_bootstrap=args.bootstrap,
-        alpha=args.alpha, random_state=args.seed, n_jobs=args.jobs, scheduler=args.scheduler)
-    out = result.save(Path(args.out))
+        alpha=args.alpha, random_state=args.seed, n_jobs=jobs, scheduler=args.scheduler)
+    if folder is not None:
+        _save_in_folder(args, folder, result, loaded)
+    else:
+        with writing_folder(out, "--out", inputs=[args.events, args.outcomes],
+                            owned=recorded_names(out)) as st:
+            result.save(st.path)
     if not args.quiet:
         earliest = result.earliest_fraction()
         parts = [f"{k} {'never' if v != v else f'{v:g}'}" for k, v in earliest.items()]
@@ -99,3 +117,47 @@ def run(args):
               f"({result.runtime_seconds:.1f} s); earliest fraction beating the majority "
               f"baseline: {', '.join(parts)} -> {out / 'early_prediction.csv'}")
     return 0
+
+
+def _check_same_inputs(args, folder, ev, oc):
+    """Validation written into an output folder must use the run's own data and key."""
+    from ..._util.runrecord import file_input, read_summary
+    from ...errors import OutputError
+    from ...inputs.privacy import key_fingerprint, read_key
+    load = ((read_summary(folder) or {}).get("stages") or {}).get("load") or {}
+    recorded = load.get("inputs") or {}
+    for role, pair, given in (("events", ev, args.events), ("outcomes", oc, args.outcomes)):
+        want = (recorded.get(role) or {}).get("sha256")
+        if want and file_input(pair[0])["sha256"] != want:
+            raise OutputError(f"{given}: not the {role} file the run in {folder} was made from "
+                              f"(its content differs from the record); validate into another "
+                              f"folder, or re-run 'seqmine analyze'.")
+    privacy = (load.get("settings") or {}).get("privacy") or {}
+    key = read_key(args.pseudonymize) if args.pseudonymize else None
+    if privacy.get("pseudonymized") and key is None:
+        raise OutputError(f"{folder}: the run there is pseudonymized; give the same "
+                          f"--pseudonymize KEY_FILE, so no raw identifier enters the folder.")
+    if key is not None and privacy.get("key_fingerprint") not in (None, key_fingerprint(key)):
+        raise OutputError(f"{args.pseudonymize}: not the key the run in {folder} was "
+                          f"pseudonymized with; give that key (pseudonyms would not match).")
+    if key is not None and not privacy.get("pseudonymized"):
+        raise OutputError(f"{folder}: the run there is not pseudonymized; validate into "
+                          f"another folder or re-run 'seqmine analyze --pseudonymize'.")
+
+
+def _save_in_folder(args, folder, result, loaded):
+    from ...pipeline import rerun_stage, validation_summary
+    settings = {"n_splits": args.splits, "loo": args.loo, "fractions": args.fractions,
+                "classifiers": args.classifiers, "train_on": args.train_on, "seed": args.seed,
+                "n_bootstrap": args.bootstrap, "top_k": args.top_k, "alpha": args.alpha,
+                "hmm_states": args.hmm_states, **_options.mining_params(args)}
+
+    def work(st):
+        result.save(st.path)
+        return validation_summary(result, {"n_splits": args.splits},
+                                  int(loaded.events["learner"].nunique())), None
+
+    rerun_stage(folder, "validate", NAME, work, settings=settings,
+                inputs={"load": {"stage": "load"}},
+                outside_inputs=[args.events, args.outcomes], config_section="validate",
+                config_values={"n_splits": args.splits, "n_bootstrap": args.bootstrap})

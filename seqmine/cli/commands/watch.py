@@ -7,7 +7,9 @@ import os
 import sys
 from pathlib import Path
 
+from ..._util.text import terminal_safe, terminal_safe_json
 from ...errors import DataFileError, ParameterError
+from ...inputs.sources import STDIN, is_stream
 from . import _options
 
 __all__ = ["NAME", "HELP", "DESCRIPTION", "add_arguments", "run"]
@@ -37,7 +39,8 @@ def add_arguments(parser):
     parser.add_argument("detectors", metavar="DETECTORS_JSON",
                         help="detectors file written by 'seqmine detectors'")
     parser.add_argument("events", metavar="EVENTS_JSONL", nargs="?", default=None,
-                        help="JSON-lines events (default: standard input)")
+                        help="JSON-lines events: a file, a named pipe, or '-' for standard "
+                             "input (the default)")
     parser.add_argument("--cooldown", type=float, default=60.0, metavar="S",
                         help="seconds after a delivered hint during which further hints to "
                              "that learner are suppressed (default 60)")
@@ -70,25 +73,32 @@ def run(args):
     """Run ``seqmine watch``."""
     from ...detection.watcher import Watcher
     idle = _idle(args.idle_timeout)
+    pseudo = _pseudonymizer(args.pseudonymize) if args.pseudonymize else None
     watcher = Watcher(args.detectors, cooldown_seconds=args.cooldown, idle_timeout=idle,
                       out_of_order_tolerance=args.tolerance,
                       hint_on_encourage=args.encourage_hints,
                       max_absence_hints=args.max_absence_hints,
                       reject_duplicates=args.duplicates == "reject")
-    pseudo = _pseudonymizer(args.pseudonymize) if args.pseudonymize else None
     err = sys.stderr
     out = sys.stdout
     for note in watcher.notes:
-        print(f"seqmine watch: note: {note}", file=err)
+        _say(err, f"seqmine watch: note: {note}")
     watcher.notes.clear()
-    if args.events is None:
+    if args.events is None or args.events == STDIN:
         stream, name, interactive = sys.stdin, "<stdin>", True
     else:
         path = Path(args.events)
-        if not path.is_file():
+        piped = is_stream(path)  # a named pipe or <(...): read as it arrives
+        if path.is_dir():
+            raise DataFileError(f"{path}: is a folder, not a JSON-lines events file.")
+        if not (path.is_file() or piped):
             raise DataFileError(f"{path}: events file not found; check the path.")
-        stream = path.open("r", encoding="utf-8-sig", errors="replace", newline=None)
-        name, interactive = str(path), False
+        try:
+            stream = path.open("r", encoding="utf-8-sig", errors="replace", newline=None)
+        except OSError as exc:
+            raise DataFileError(f"{path}: cannot be read ({exc.strerror}); check the path and "
+                                f"its permissions.") from None
+        name, interactive = str(path), piped
     hints_only = args.hints_only
     try:
         _loop(stream, name, interactive, watcher, out, err, args, hints_only, pseudo)
@@ -116,24 +126,25 @@ def _loop(stream, name, interactive, watcher, out, err, args, hints_only, pseudo
         try:
             event = json.loads(line)
         except (ValueError, RecursionError) as exc:
-            why = (f"{exc.msg} at column {exc.colno}" if isinstance(exc, json.JSONDecodeError)
+            why = (json_problem(exc, line) if isinstance(exc, json.JSONDecodeError)
                    else "a number with too many digits" if isinstance(exc, ValueError)
                    else "nested too deeply")
-            print(f"seqmine watch: {name}:{lineno}: malformed JSON ({why}); event skipped",
-                  file=err)
+            _say(err, f"seqmine watch: {name}:{lineno}: malformed JSON ({why}); event skipped")
             watcher.stats["events"] += 1
             watcher.stats["rejected"] += 1
             continue
-        if pseudo is not None and isinstance(event, dict) and "learner" in event:
-            event["learner"] = pseudo(event["learner"])
+        if pseudo is not None and isinstance(event, dict):
+            for field in ("learner", "session"):
+                if field in event:
+                    event[field] = pseudo(event[field])
         try:
             firings = watcher.process(event)
         except EventError as exc:
-            print(f"seqmine watch: {name}:{lineno}: {exc}; event skipped", file=err)
+            _say(err, f"seqmine watch: {name}:{lineno}: {exc}; event skipped")
             continue
         if watcher.notes:
             for note in watcher.notes:
-                print(f"seqmine watch: {name}:{lineno}: note: {note}", file=err)
+                _say(err, f"seqmine watch: {name}:{lineno}: note: {note}")
             watcher.notes.clear()
         if firings:
             _write(out, firings, watcher, args.times, hints_only)
@@ -148,31 +159,68 @@ def _write(out, firings, watcher, times, hints_only):
     for f in firings:
         if hints_only and f.suppressed:
             continue
-        out.write(json.dumps(f.to_dict(iso_times=iso), ensure_ascii=False) + "\n")
+        out.write(terminal_safe_json(json.dumps(f.to_dict(iso_times=iso), ensure_ascii=False))
+                  + "\n")
 
 
 def _pseudonymizer(key_path):
-    """learner -> pseudonym (as in the offline analysis); other values pass unchanged,
-    so the watcher rejects them exactly as it would without the option."""
+    """learner or session -> pseudonym (as in the offline analysis); a JSON number gets
+    the pseudonym of its text (``183`` like ``"183"``, as the offline loader reads both);
+    other values pass unchanged, so the watcher rejects them exactly as it would without
+    the option. An empty session stays empty ("no session")."""
     from ..._util.text import has_control_characters
-    from ...inputs.privacy import pseudonymize, read_key
+    from ...inputs.privacy import pseudonymize_value, read_key
 
     key = read_key(key_path)
     cache = {}
 
     def convert(value):
-        if type(value) is not str:
-            return value
-        s = value.strip()
-        if not s or has_control_characters(s):
+        if type(value) is str:
+            s = value.strip()
+            if not s or has_control_characters(s):
+                return value
+        elif type(value) in (int, float):
+            s = str(value)
+        else:
             return value
         p = cache.get(s)
         if p is None:
             if len(cache) > 1_000_000:  # bound memory on endless streams
                 cache.clear()
-            p = cache[s] = str(pseudonymize([s], key)[0])
+            p = cache[s] = pseudonymize_value(s, key)
         return p
     return convert
+
+
+def json_problem(exc, line):
+    """Why ``line`` is not JSON, with the column (1-based, in characters of the line as
+    read, without its line end) where the parser stopped.
+
+    Examples
+    --------
+    >>> import json
+    >>> def why(line):
+    ...     try:
+    ...         json.loads(line)
+    ...     except json.JSONDecodeError as exc:
+    ...         return json_problem(exc, line)
+    >>> why('{"learner": "a", "action": "x}')
+    'unterminated string starting at column 28'
+    >>> why('{"learner": "a", "action": "x\\n')
+    'the line ends after column 29 before the JSON value is complete (truncated?)'
+    >>> why('{"a" 1}')
+    "expecting ':' delimiter at column 6"
+    """
+    text = line.rstrip("\r\n")
+    if exc.pos >= len(text):
+        return (f"the line ends after column {len(text)} before the JSON value is complete "
+                f"(truncated?)")
+    what = exc.msg[:-3] if exc.msg.endswith(" at") else exc.msg
+    return f"{what[:1].lower() + what[1:]} at column {exc.pos + 1}"
+
+
+def _say(err, message):
+    print(terminal_safe(message), file=err)
 
 
 def _idle(text):
