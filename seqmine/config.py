@@ -297,6 +297,8 @@ OPTION_RULES = {
     "phases.max_sequences": ("int", (2, 10**9, True)),
     "validate.enabled": ("bool", ()),
     "validate.n_splits": ("int", (2, 1000, False)),
+    "validate.n_repeats": ("int", (1, 1000, False)),
+    "validate.n_repeats_hmm": ("int", (1, 1000, False)),
     "validate.fractions": ("numbers", (0, 1, True, False)),
     "validate.n_bootstrap": ("int", (1, 10**6, False)),
     "validate.top_k": ("int", (1, 10**6, False)),
@@ -308,8 +310,12 @@ OPTION_RULES = {
     "detectors.min_stability": ("num", (0, 1, False, False, False)),
     "detectors.max_detectors": ("int", (1, 10**6, True)),
     "detectors.evidence": ("evidence", ()),
+    "detectors.encourage_share": ("num", (0, 1, False, False, True)),
+    "detectors.absence_quantile": ("num", (0, 1, True, False, True)),
+    "detectors.examples": ("bool", ()),
     "report.examples": ("bool", ()),
     "report.max_patterns": ("int", (1, 10**4, False)),
+    "report.explorer_rows": ("int", (1, 10**7, False)),
     "privacy.pseudonymize_key": ("str", (True,)),
 }
 

@@ -754,9 +754,7 @@ def _analyze(ev, oc, staging, cfg, *, log):
                                max_detectors=de_cfg["max_detectors"],
                                evidence=_evidence_option(de_cfg["evidence"]),
                                encourage_share=de_cfg["encourage_share"],
-                               absence_quantile=float(de_cfg["absence_quantile"]),
-                               absence_after_events="auto" if de_cfg["absence_quantile"]
-                               else None,
+                               **_absence_option(de_cfg["absence_quantile"]),
                                examples=bool(de_cfg["examples"]), random_state=seed)
         save_detectors(doc, out / "detectors.json")
         files.append(out / "detectors.json")
@@ -1001,6 +999,14 @@ def _surviving(table, alpha):
 def _by_evidence(table):
     ev = table["evidence"].fillna("") if "evidence" in table else []
     return {k: int((ev == k).sum()) for k in ("order", "presence", "volume")}
+
+
+def _absence_option(quantile):
+    """Absence rules of encourage detectors from ``detectors.absence_quantile`` (none =
+    no absence rule)."""
+    if quantile is None:
+        return {"absence_after_events": None}
+    return {"absence_after_events": "auto", "absence_quantile": float(quantile)}
 
 
 def _evidence_option(value):

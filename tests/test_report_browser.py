@@ -166,7 +166,7 @@ def test_explorer_sorts_filters_and_pages(demo_report, tmp_path):
         assert _count(dt) == len(table)
         # default order: as in patterns.csv
         assert _shown(dt, "#") == [str(i) for i in range(1, 26)]
-        first = dt.eval("document.querySelector('#ex-body tr td:nth-child(2)').textContent")
+        first = _shown(dt, "pattern")[0]
         assert first == table["pattern"].iloc[0].replace(" > ", ">")
         # sort by the weak group's support: descending first, then ascending; the
         # reference is pandas on patterns.csv (ties keep the file order)

@@ -118,7 +118,7 @@ EXPLORER_SCRIPT = r"""
       cols.forEach(function (c, j) {
         if (c.hidden) { return; }
         var td = document.createElement("td"), v = shown[i][j];
-        if (c.kind === "tokens") { tokensCell(td, v); }
+        if (c.kind === "tokens") { td.className = "pat"; tokensCell(td, v); }
         else if (c.kind === "group") { groupCell(td, v); }
         else { td.textContent = fmt(v, c.kind); if (c.kind !== "text") { td.className = "num"; } }
         tr.appendChild(td);

@@ -124,7 +124,7 @@ ul.cautions li { margin-bottom: 6px; max-width: 78ch; }
 .ex-table th[aria-sort=ascending] button::after { content: " ▲"; font-size: 10px; }
 .ex-table th[aria-sort=descending] button::after { content: " ▼"; font-size: 10px; }
 .ex-table td { white-space: nowrap; }
-.ex-table td:nth-child(2) { white-space: normal; min-width: 18em; }
+.ex-table td.pat { white-space: normal; min-width: 18em; }
 .glance-no { font-weight: 600; }
 @media (max-width: 640px) {
   main { padding: 14px 12px 8px; }
