@@ -464,7 +464,7 @@ def test_explorer_shows_the_evidence_columns_when_the_table_has_them(tmp_path):
     data = json.loads(re.search(r'id="explorer-data">(.*?)</script>', text, flags=re.S)
                       .group(1))
     keys = [c["key"] for c in data["columns"]]
-    assert keys[:3] == ["_rank", "pattern_id", "pattern"]
+    assert keys[:2] == ["_rank", "pattern"] and keys[-2:] == ["pattern_id", "_redundant"]
     assert {"q_volume", "evidence", "replication"} <= set(keys)
     labels = {c["key"]: c["label"] for c in data["columns"]}
     assert labels["q_volume"] == "q (volume-adjusted)" and labels["evidence"] == "evidence"

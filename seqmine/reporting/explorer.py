@@ -191,8 +191,6 @@ def explorer_columns(df, groups):
     ['_rank', 'pattern', 'length', 'favours', 'support_s', 'q_value', '_redundant']
     """
     cols = [{"key": "_rank", "label": "#", "kind": "int"}]
-    if "pattern_id" in df.columns:
-        cols.append({"key": "pattern_id", "label": label_of("pattern_id"), "kind": "text"})
     cols.append({"key": "pattern", "label": label_of("pattern"), "kind": "tokens"})
     cols.append({"key": "length", "label": label_of("length"), "kind": "int"})
     cols.append({"key": "favours", "label": label_of("favours"), "kind": "group"})
@@ -204,6 +202,8 @@ def explorer_columns(df, groups):
         if key in df.columns:
             cols.append({"key": key, "label": label_of(key), "kind": kind,
                          "desc": key in ("stability", "replication")})
+    if "pattern_id" in df.columns:  # the stable id of patterns.csv, last (it is long)
+        cols.append({"key": "pattern_id", "label": label_of("pattern_id"), "kind": "text"})
     cols.append({"key": "_redundant", "label": "", "kind": "int", "hidden": True})
     return cols
 
