@@ -4,13 +4,15 @@ Run from the repository root::
 
     python benchmarks/bench_validate.py [--folds K] [--jobs N]
 
-Prints the run time (serial and with --jobs) and the early-prediction curve of each
-classifier at 25 %, 50 % and 100 % of the session, and writes them to
-``benchmarks/results/validate.json``.
+Prints the run time (serial and with --jobs), the CPU seconds of one split against the
+default repeated split (measured side by side, with the load average), and the
+early-prediction curve of each classifier at 25 %, 50 % and 100 % of the session, and
+writes them to ``benchmarks/results/validate.json``.
 """
 
 import argparse
 import json
+import os
 import time
 from pathlib import Path
 
@@ -18,6 +20,7 @@ import numpy as np
 
 from seqmine.inputs.load import load_events
 from seqmine.inputs.outcomes import load_outcomes
+from seqmine.config import DEFAULT_CONFIG
 from seqmine.validation.crossval import validate
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -42,6 +45,23 @@ def main():
         timings[jobs] = time.perf_counter() - t0
     r = results[1]
     same = all(results[j].to_frame().equals(r.to_frame()) for j in results)
+    # the cost of the repetitions: one split against the default, CPU seconds of this
+    # process (the serial path), each run twice in alternation
+    va = DEFAULT_CONFIG["validate"]
+    settings = {"one split": (1, 1), "default": (va["n_repeats"], va["n_repeats_hmm"])}
+    cpu = {k: [] for k in settings}
+    for _ in range(2):
+        for name, (rep, rep_hmm) in settings.items():
+            t0 = time.process_time()
+            validate(events, outcomes, n_splits=args.splits, fractions=fractions, n_jobs=1,
+                     random_state=0, n_repeats=rep, n_repeats_hmm=rep_hmm)
+            cpu[name].append(time.process_time() - t0)
+    repeats = {
+        "settings": {k: {"n_repeats": v[0], "n_repeats_hmm": v[1]} for k, v in settings.items()},
+        "cpu_seconds": {k: round(min(v), 2) for k, v in cpu.items()},
+        "ratio_default_to_one_split": round(min(cpu["default"]) / min(cpu["one split"]), 2),
+        "load_average": [round(x, 2) for x in os.getloadavg()],
+    }
     table = r.to_frame()
     curve = {}
     for name, part in table.groupby("classifier", sort=False):
@@ -57,6 +77,7 @@ def main():
         "folds": args.splits, "fractions": fractions,
         "seconds": {f"jobs={j}": round(t, 2) for j, t in timings.items()},
         "parallel_identical_to_serial": bool(same),
+        "repetitions": repeats,
         "earliest_fraction": {k: (None if np.isnan(v) else v)
                               for k, v in r.earliest_fraction().items()},
         "curve": curve,

@@ -23,7 +23,7 @@ from .inputs.outcomes import Grouping, match_learners, reconcile_learner_ids
 __all__ = ["Prepared", "prepare_sequences", "pseudonymize_inputs", "reconcile_inputs",
            "analyze", "AnalysisResult", "warnings_frame", "MIN_GROUP_LEARNERS",
            "LOPSIDED_RATIO", "contrast_unit", "order_patterns", "merge_summary", "mine_summary",
-           "contrast_summary", "phases_summary", "validation_summary",
+           "contrast_summary", "phases_summary", "validation_summary", "detectors_summary",
            "validation_pattern_params", "public_config", "run_folder_of", "rerun_stage",
            "recorded_names", "stage_output_folder", "own_stage_folder", "target_run_folder"]
 
@@ -731,9 +731,12 @@ def _analyze(ev, oc, staging, cfg, *, log):
                                         hmm_params=dict(va_cfg.get("hmm") or {}))
             va_events, va_outcomes = _sample_learners(prepared.events, prepared.outcomes,
                                                       va_cfg.get("max_learners"), seed)
+            # the groups are the labels being predicted: the grouping fitted once on the
+            # outcome table (prepare_sequences) is used unchanged in every fold
             validation = validate(
                 va_events, va_outcomes, n_splits=int(va_cfg["n_splits"]),
-                fractions=va_cfg["fractions"], grouping=clone(grouping),
+                n_repeats=int(va_cfg["n_repeats"]), n_repeats_hmm=int(va_cfg["n_repeats_hmm"]),
+                fractions=va_cfg["fractions"], grouping=prepared.grouping,
                 encoder=clone(encoder), featurizers=feats,
                 n_bootstrap=int(va_cfg["n_bootstrap"]), alpha=alpha, random_state=seed,
                 n_jobs=jobs, scheduler=scheduler)
@@ -750,10 +753,13 @@ def _analyze(ev, oc, staging, cfg, *, log):
                                min_effect=float(de_cfg["min_effect"]), effect=de_cfg["effect"],
                                min_stability=float(de_cfg["min_stability"]),
                                max_detectors=de_cfg["max_detectors"],
-                               evidence=_evidence_option(de_cfg["evidence"]))
+                               evidence=_evidence_option(de_cfg["evidence"]),
+                               encourage_share=de_cfg["encourage_share"],
+                               **_absence_option(de_cfg["absence_quantile"]),
+                               examples=bool(de_cfg["examples"]), random_state=seed)
         save_detectors(doc, out / "detectors.json")
         files.append(out / "detectors.json")
-        owned += merge_summary(summary, {"detectors": len(doc.get("detectors", []))})
+        owned += merge_summary(summary, detectors_summary(doc))
 
     # 7. examples and report
     rep_cfg = cfg["report"]
@@ -777,7 +783,8 @@ def _analyze(ev, oc, staging, cfg, *, log):
     write_json(out / "summary.json", record.apply(summary))
     with run.stage("report", "report", rep_cfg, inputs=run.done_inputs()):
         report = render_report(out, examples=bool(rep_cfg["examples"]),
-                               max_patterns=int(rep_cfg["max_patterns"]))
+                               max_patterns=int(rep_cfg["max_patterns"]),
+                               explorer_rows=int(rep_cfg["explorer_rows"]))
         files.append(report)
     write_json(out / "summary.json", record.apply(summary))
     files.append(out / "summary.json")
@@ -888,12 +895,28 @@ def phases_summary(phases, phase_db):
 
 
 def validation_summary(validation, va_cfg, n_learners):
-    """The summary keys the early-prediction stage owns."""
+    """The summary keys the early-prediction stage owns: whether and from when any
+    classifier beat the majority baseline, the design (folds, repetitions) and the
+    learners scored (the groups are fixed once, so every grouped learner is)."""
     digest = validation.summary()
-    early = {k: digest[k] for k in ("earliest_fraction", "earliest_fraction_sustained")
-             if k in digest}
-    early["learners_sampled"] = int(n_learners)
-    return {"early_prediction": early, "method": {"n_splits": va_cfg["n_splits"]}}
+    settings = validation.settings
+    early = {k: digest[k] for k in ("earliest_fraction", "earliest_fraction_sustained",
+                                    "beats_baseline") if k in digest}
+    early.update(learners_sampled=int(n_learners),
+                 learners_scored=int(settings["n_learners"]),
+                 n_splits=settings["n_splits"], n_repeats=int(settings["n_repeats"]),
+                 n_repeats_hmm=int(settings["n_repeats_hmm"]), groups_fixed_once=True)
+    return {"early_prediction": early,
+            "method": {"n_splits": va_cfg["n_splits"], "n_repeats": va_cfg["n_repeats"],
+                       "n_repeats_hmm": va_cfg["n_repeats_hmm"]}}
+
+
+def detectors_summary(doc):
+    """The summary keys the detectors stage owns: how many detectors, per direction."""
+    dets = doc.get("detectors", [])
+    return {"detectors": len(dets),
+            "detectors_by_direction": {d: sum(x["direction"] == d for x in dets)
+                                       for d in ("encourage", "discourage")}}
 
 
 def validation_pattern_params(mine_cfg, con_cfg, va_cfg):
@@ -977,6 +1000,14 @@ def _surviving(table, alpha):
 def _by_evidence(table):
     ev = table["evidence"].fillna("") if "evidence" in table else []
     return {k: int((ev == k).sum()) for k in ("order", "presence", "volume")}
+
+
+def _absence_option(quantile):
+    """Absence rules of encourage detectors from ``detectors.absence_quantile`` (none =
+    no absence rule)."""
+    if quantile is None:
+        return {"absence_after_events": None}
+    return {"absence_after_events": "auto", "absence_quantile": float(quantile)}
 
 
 def _evidence_option(value):

@@ -20,6 +20,10 @@ from seqmine.config import DEFAULT_CONFIG, default_config
 
 M, C, V, P = "mine", "contrast", "validate", "phases"
 
+#: [detectors] keys used when the file is built (direction balance, absence rules,
+#: examples), not by the row selection alone.
+_EXPORT_ONLY = {"encourage_share", "absence_quantile", "examples"}
+
 #: (object, parameter, configuration section, key); the API default must equal the
 #: configuration's (tuples compare as lists, a range as [min_states, max_states]).
 API_DEFAULTS = [
@@ -54,13 +58,17 @@ API_DEFAULTS = [
     ("phases.fitting.select_n_states", "n_states", P, ("min_states", "max_states")),
     *[("phases.fitting.fit_phase_model", k, P, k) for k in ("n_restarts", "n_iter", "tol")],
     *[("phases.classify.GroupHMMClassifier", k, P, k) for k in ("n_restarts", "n_iter", "tol")],
-    *[("validation.crossval.validate", k, V, k) for k in ("n_splits", "fractions", "n_bootstrap")],
+    *[("validation.crossval.validate", k, V, k) for k in ("n_splits", "n_repeats",
+                                                           "n_repeats_hmm", "fractions",
+                                                           "n_bootstrap")],
     ("validation.crossval.validate", "alpha", C, "alpha"),
     ("validation.crossval.learner_splits", "n_splits", V, "n_splits"),
     ("validation.metrics.early_prediction_table", "n_bootstrap", V, "n_bootstrap"),
     ("validation.metrics.early_prediction_table", "alpha", C, "alpha"),
-    *[(f"detection.detectors.{f}", k, "detectors", k) for f in
-      ("select_detectors", "export_detectors") for k in DEFAULT_CONFIG["detectors"]],
+    *[("detection.detectors.export_detectors", k, "detectors", k)
+      for k in DEFAULT_CONFIG["detectors"]],
+    *[("detection.detectors.select_detectors", k, "detectors", k)
+      for k in DEFAULT_CONFIG["detectors"] if k not in _EXPORT_ONLY],
     *[("encoding.encoder.Encoder", k, "encode", k) for k in DEFAULT_CONFIG["encode"]],
     *[("inputs.load.load_events", k, "events", k) for k in
       ("format", "delimiter", "encoding", "duplicates", "max_bytes", "time_unit", "timezone",
@@ -69,7 +77,8 @@ API_DEFAULTS = [
     ("inputs.outcomes.reconcile_learner_ids", "match_ids", "outcomes", "match_ids"),
     ("pipeline.reconcile_inputs", "match_ids", "outcomes", "match_ids"),
     *[("inputs.outcomes.Grouping", k, "outcomes", k) for k in ("fraction", "low", "high")],
-    *[("reporting.render.render_report", k, "report", k) for k in ("examples", "max_patterns")],
+    *[("reporting.render.render_report", k, "report", k) for k in ("examples", "max_patterns",
+                                                                    "explorer_rows")],
 ]
 
 #: Names a public signature must not use (scikit-learn conventions; one name per idea).

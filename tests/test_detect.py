@@ -80,11 +80,46 @@ def test_select_options():
         "set_light > set_water", "measure_height > pause:long"]
     assert select_detectors(t, lengths=[4])["length"].tolist() == [4]
     assert len(select_detectors(t, max_detectors=1)) == 1
+    # ranked by the q of each row's own test (order 0.004, 0.004; presence 0.008)
     assert select_detectors(t, min_stability=0, min_effect=0.8)["pattern"].tolist() == [
-        "set_light > set_water > advance_week", "paint_pot",
-        "set_light > advance_week > measure_height > pause:long"]
+        "set_light > set_water > advance_week",
+        "set_light > advance_week > measure_height > pause:long", "paint_pot"]
     t.loc[0, "redundant_of"] = "set_light > set_water"
     assert "set_light > set_water > advance_week" not in select_detectors(t)["pattern"].tolist()
+
+
+def test_select_ranks_by_the_q_value_of_the_evidence_that_survives_the_volume_adjustment():
+    t = _table()
+    # 'set_light > set_water' has the strongest order evidence, though a smaller effect
+    t.loc[1, "q_order"] = 0.001
+    got = select_detectors(t, drop_redundant=False)["pattern"].tolist()
+    assert got == ["set_light > set_water", "set_light > set_water > advance_week",
+                   "set_light > advance_week > measure_height > pause:long",
+                   "measure_height > pause:long"]
+    # tables without evidence (evidence=None): largest |effect| first, as before
+    plain = select_detectors(t, evidence=None, drop_redundant=False)["pattern"].tolist()
+    assert plain[:3] == ["set_light > set_water > advance_week",
+                         "set_light > advance_week > measure_height > pause:long",
+                         "set_light > set_water"]
+
+
+def test_group_shares_split_the_slots_and_hand_unfilled_ones_on():
+    t = pd.DataFrame({"pattern": [f"w{i}" for i in range(6)] + ["s0", "s1"],
+                      "q_value": 0.01, "cohens_h": [0.9, 0.8, 0.7, 0.6, 0.5, 0.4, 0.3, 0.2],
+                      "favours": ["weak"] * 6 + ["strong"] * 2})
+    pick = lambda n, shares: select_detectors(  # noqa: E731
+        t, min_stability=0, max_detectors=n, group_shares=shares,
+        evidence=None)["pattern"].tolist()
+    assert pick(4, None) == ["w0", "w1", "w2", "w3"]
+    assert pick(4, {"strong": 0.5, "weak": 0.5}) == ["w0", "w1", "s0", "s1"]
+    # 5 slots at 50/50: quotas 2.5/2.5, the remainder goes to the first group by name
+    # ('strong'), which has only 2 rows, so its third slot goes to the best weak row left
+    assert pick(5, {"strong": 1, "weak": 1}) == ["w0", "w1", "w2", "s0", "s1"]
+    assert pick(3, {"strong": 1, "weak": 0}) == ["w0", "s0", "s1"]
+    with pytest.raises(ParameterError, match="'group_shares' of select_detectors must be"):
+        pick(3, {"strong": -1, "weak": 1})
+    with pytest.raises(ParameterError, match="add up to 0"):
+        pick(3, {"strong": 0, "weak": 0})
 
 
 def test_select_defaults_to_findings_that_survive_the_volume_adjustment():
@@ -231,7 +266,7 @@ INVALID = [
     (_set(["format"], "other"), r"format: is 'other', expected 'seqmine-detectors'"),
     (_set(["version"], "1"), r"version: '1' is not a detectors file version"),
     (_set(["version"], 0), r"version: 0 is not a detectors file version"),
-    (_set(["version"], 2), r"version 2 is newer than this seqmine reads \(version 1\); upgrade"),
+    (_set(["version"], 3), r"version 3 is newer than this seqmine reads \(version 2\); upgrade"),
     (_set(["detectrs"], []), r"detectrs: unknown field; did you mean 'detectors'\?"),
     (_set(["zzz"], 1), r"zzz: unknown field; allowed: created_by, detectors, encoding"),
     (_del(["matching"]), r"matching: is missing; export the detectors again"),

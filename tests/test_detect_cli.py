@@ -66,6 +66,10 @@ def test_detectors_command_options_override(run_dir, capsys):
     (["patterns.csv", "--max-q", "3"], r"'max_q' parameter of select_detectors must be in"),
     (["patterns.csv", "--strong-group", "top"], "'strong' group 'top' of build_detectors"),
     (["patterns.csv", "--max-gap", "-2"], "--max-gap: expected a whole number >= 0 or 'none'"),
+    (["patterns.csv", "--encourage-share", "2"],
+     r"'encourage_share' parameter of export_detectors must be in \[0, 1\]"),
+    (["patterns.csv", "--absence-events", "0"],
+     "--absence-events: expected a whole number >= 1, 'auto' or 'none'"),
     (["patterns.csv", "--evidence", "beyond"],
      r"--evidence: expected a comma-separated list of order, presence, volume, or 'any'"),
 ])
@@ -85,9 +89,38 @@ def test_detectors_command_without_sequence_db(run_dir, capsys):
     assert "not a sequence database folder" in capsys.readouterr().err
 
 
+def test_detectors_command_balance_and_examples_options(run_dir):
+    # one distinct candidate per direction (the others are nested or unstable)
+    out = run_dir / "d.json"
+    base = ["detectors", str(run_dir / "patterns.csv"), "--sequences", str(run_dir / "sequences"),
+            "--out", str(out), "-q"]
+    assert main(base + ["--max-detectors", "1", "--encourage-share", "0"]) == 0
+    assert [d["direction"] for d in load_detectors(out)["detectors"]] == ["discourage"]
+    assert main(base + ["--max-detectors", "1", "--encourage-share", "1"]) == 0
+    assert [d["direction"] for d in load_detectors(out)["detectors"]] == ["encourage"]
+    # a slot one direction cannot fill goes to the other
+    assert main(base + ["--max-detectors", "2", "--encourage-share", "1", "--no-examples",
+                        "--absence-events", "none"]) == 0
+    dets = load_detectors(out)["detectors"]
+    assert sorted(d["direction"] for d in dets) == ["discourage", "encourage"]
+    assert not any("example" in d for d in dets)
+    assert [d["absence"]["after_events"] for d in dets if d["direction"] == "encourage"] == [None]
+
+
 def test_export_detectors_matches_the_two_steps(run_dir):
     db = SequenceDB.load(run_dir / "sequences")
-    doc = export_detectors(_table(), db, {"max_gap": 1}, absence_after_seconds=600)
+    doc = export_detectors(_table(), db, {"max_gap": 1}, absence_after_seconds=600,
+                           absence_after_events=None)
     assert [d["id"] for d in doc["detectors"]] == ["D001", "D002"]
     assert doc["detectors"][1]["absence"] == {"after_events": None, "after_seconds": 600.0}
+    # by default the absence rule comes from the data: the one strong sequence completes
+    # 'set_light > advance_week > measure_height > pause:long' at its 3rd action event
+    # (counted by hand; the pause token is not an event)
+    doc = export_detectors(_table(), db, {"max_gap": 1})
+    assert doc["detectors"][1]["absence"] == {"after_events": 3, "after_seconds": None}
+    ex = doc["detectors"][1]["example"]
+    assert ex["group"] == "strong" and [e["token"] for e in ex["events"] if e["matched"]] == [
+        "set_light", "advance_week", "measure_height", "pause:long"]
+    assert doc["detectors"][1]["evidence"]["pause_ranges"] == {"pause:long": "30 s or more"}
+    assert "long pause (30 s or more)" in doc["detectors"][1]["hint"]
     assert doc["selection"]["max_q"] == 0.05 and doc["selection"]["effect"] == "cohens_h"

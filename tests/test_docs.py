@@ -142,6 +142,8 @@ def test_links_between_docs_resolve():
                 continue
             name, _, frag = target.partition("#")
             name = name or path.name
+            if not name.endswith(".md") and (path.parent / name).is_file():
+                continue  # an image or another file beside the docs
             if name not in anchors:
                 if name not in _PENDING:
                     broken.append(f"{path.name}: {target}")
@@ -163,3 +165,25 @@ def test_quickstart_covers_every_command():
     sub = next(a for a in build_parser()._actions if a.dest == "command")
     missing = [name for name in sub.choices if f"seqmine {name}" not in text]
     assert not missing, f"quickstart.md shows no command line for {missing}"
+
+
+def test_every_work_cited_in_methods_is_in_its_reference_list():
+    text = (DOCS / "methods.md").read_text(encoding="utf-8")
+    body, refs = text.split("## References", 1)
+    # reference entries: "- Surname, I., [& Other, I.] (YYYY)" possibly over several lines
+    entries = re.findall(r"^- (.*?)\((\d{4})[a-z]?\)", refs, flags=re.M | re.S)
+    listed = {(re.split(r"[ ,]", authors.strip(), maxsplit=1)[0], year)
+              for authors, year in entries}
+    assert len(listed) >= 25
+    # citations in the text: "Name (YYYY)", "Name YYYY", "Name et al. YYYY",
+    # "Name & Other (YYYY)", "Name, Other & Third YYYY"
+    cited = set(re.findall(
+        r"\b([A-Z][A-Za-z\-]+)(?:\s+et al\.)?(?:(?:,|\s+&|\s+and)\s+[A-Z][A-Za-z\-]+)*,?"
+        r"\s+\(?(\d{4})\b",
+        body))
+    missing = sorted(c for c in cited if c not in listed and c[0] not in _NOT_AUTHORS)
+    assert missing == [], f"cited in methods.md but not in its reference list: {missing}"
+
+
+#: Capitalised words that precede a year in methods.md without being a citation.
+_NOT_AUTHORS = {"KDD"}

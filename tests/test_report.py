@@ -7,6 +7,7 @@ import re
 import numpy as np
 import pandas as pd
 import pytest
+from browser_helper import check_report_scripts
 from report_fixture import HOSTILE, write_output_folder
 
 from seqmine.cli.main import main
@@ -14,7 +15,7 @@ from seqmine.errors import DataFileError
 from seqmine.reporting import plots as _plots
 from seqmine.reporting.render import OUTPUT_FILES, REPORT_FILE, _read_csv, render_report
 
-SECTION_IDS = ["overview", "patterns", "transitions", "phases", "early-prediction",
+SECTION_IDS = ["overview", "patterns", "explorer", "transitions", "phases", "early-prediction",
                "detectors", "method", "cautions"]
 
 
@@ -193,22 +194,51 @@ def test_byte_identical_and_path_independent(tmp_path):
 def test_self_contained_no_urls(folder):
     text = render_report(folder).read_text(encoding="utf-8")
     assert not re.search(r"https?://", text)
-    assert "<script" not in text.lower() and "<link" not in text.lower()
+    assert "<link" not in text.lower()
     assert "@import" not in text and "url(" not in text.replace("url(#fig", "")
+    # the one script is the explorer's, allowed by its hash; the other is JSON data
+    assert check_report_scripts(text) == 1
     for tag, attrs in _parse(text).tags:
-        assert tag not in ("script", "img", "iframe", "object", "embed", "link", "base")
+        assert tag not in ("img", "iframe", "object", "embed", "link", "base")
         for k, v in attrs.items():
             assert not k.startswith("on")
             if k in ("href", "xlink:href", "src"):
-                assert v.startswith("#"), (tag, k, v)
+                # in-page anchors, and the table beside the report (a link, not a load)
+                assert v.startswith("#") or v == "patterns.csv", (tag, k, v)
     assert "default-src 'none'" in text  # Content-Security-Policy forbids scripts/loads
+
+
+def test_explorer_script_is_allowed_by_its_hash_and_its_data_cannot_break_out(tmp_path):
+    from seqmine.reporting.explorer import EXPLORER_SCRIPT, script_hash
+
+    folder = write_output_folder(tmp_path / "evil", hostile=True)
+    text = render_report(folder).read_text(encoding="utf-8")
+    # reference: hashlib on the script text as it stands in the page
+    import base64
+    import hashlib
+    body = re.search(r"<script>(.*?)</script>", text, flags=re.S).group(1)
+    assert body == EXPLORER_SCRIPT
+    digest = base64.b64encode(hashlib.sha256(body.encode("utf-8")).digest()).decode()
+    assert f"script-src 'sha256-{digest}'" in text and script_hash() == f"'sha256-{digest}'"
+    data = re.search(r'<script type="application/json" id="explorer-data">(.*?)</script>',
+                     text, flags=re.S).group(1)
+    assert not re.search(r"[<>&']", data)
+    rows = json.loads(data)["rows"]
+    patterns = pd.read_csv(folder / "patterns.csv", dtype=str, keep_default_na=False)["pattern"]
+    assert [r[1] for r in rows] == patterns.tolist()  # every pattern, exactly as in the file
+
+
+def test_without_patterns_there_is_no_script(tmp_path):
+    folder = write_output_folder(tmp_path / "o", drop=("patterns.csv",))
+    text = render_report(folder).read_text(encoding="utf-8")
+    assert "<script" not in text and "script-src" not in text
 
 
 def test_hostile_strings_are_escaped(tmp_path):
     folder = write_output_folder(tmp_path / "evil", hostile=True)
     text = render_report(folder).read_text(encoding="utf-8")
     low = text.lower()
-    assert "<script" not in low
+    assert check_report_scripts(text) == 1  # the explorer's own script only
     assert "<img" not in low and "</svg></section>" not in low
     for raw in HOSTILE.values():
         if any(c in raw for c in "<>\"'&"):
@@ -217,7 +247,9 @@ def test_hostile_strings_are_escaped(tmp_path):
     parsed = _parse(text)
     assert parsed.title.startswith("seqmine report")
     for tag, attrs in parsed.tags:
-        assert tag not in ("script", "img", "iframe", "object", "embed")
+        assert tag not in ("img", "iframe", "object", "embed")
+        assert tag != "script" or attrs in ({}, {"type": "application/json",
+                                                 "id": "explorer-data"}), attrs
         for k, v in attrs.items():
             assert not k.startswith("on"), (tag, k)
             assert not (v or "").strip().lower().startswith("javascript:"), (tag, k)
@@ -305,14 +337,17 @@ def test_stage_formats_are_read(folder):
                      r"<td class=num>30%</td>", text)
     # Early prediction: the majority classifier is the baseline, not a curve;
     # earliest share at which each classifier beats it.
-    assert "pattern: from 50% of the sequence." in text
-    assert "frequency_pause: from 75% of the sequence." in text
-    assert "majority: from" not in text
+    assert "patterns: from 50% of the sequence." in text
+    assert "action frequencies and pauses: from 75% of the sequence." in text
+    assert "majority baseline: from" not in text
     # Detectors: priority 1 first, absence rule, notice, nested evidence, counts.
     assert text.index("D001") < text.index("D002")
-    assert "also fires when the pattern has not occurred after 30 events" in text
+    assert "Hints when the pattern has <b>not occurred</b> after 30 events of a sequence" \
+        in text and "Hints when the pattern <b>occurs</b>." in text
     assert "Detectors come from correlational findings; pilot them first." in text
-    assert "support (strong) <b>70%</b>" in text and "odds ratio <b>9.330</b>" in text
+    assert re.search(r"<td><span class=\"swatch\"[^>]*></span><b>strong</b></td>"
+                     r"<td class=num>20</td><td class=num>70%</td>", text)
+    assert "odds ratio <b>9.330</b>" in text
     assert "2 detectors: 1 encourage, 1 discourage." in text
     assert "the steps of a pattern follow each other directly" not in text
     assert "at most 1 other tokens between two steps" in text
@@ -362,5 +397,76 @@ def test_at_a_glance_names_the_strongest_patterns(folder):
     assert "Most reliable pattern more common among" in glance
     strong = glance.split("more common among")[1]
     assert "measure_height" in strong and "strong 70%, weak 20%" in strong
-    assert "After 25% of a sequence, the best classifier (pattern) reaches a balanced " \
-           "accuracy of 0.53" in glance
+    assert ("Early recognition: the <b>patterns</b> classifier beat the majority baseline "
+            "from <b>50%</b> of the sequence on, with a balanced accuracy of 0.63; majority "
+            "baseline accuracy 0.50") in glance
+    assert "2 detectors exported for review: 1 encourage, 1 discourage." in glance
+
+
+def test_first_screen_says_plainly_when_no_classifier_beats_the_baseline(tmp_path):
+    folder = write_output_folder(tmp_path / "o")
+    ep = pd.read_csv(folder / "early_prediction.csv")
+    ep["beats_baseline"] = False
+    ep.to_csv(folder / "early_prediction.csv", index=False)
+    text = render_report(folder).read_text(encoding="utf-8")
+    glance = text.split('class="keybox"')[1].split("</div>")[0]
+    assert ('<span class="glance-no">No classifier beat the majority baseline</span> at any '
+            "observed share of the sequence (25%, 50%, 75%, 100%;") in glance
+    assert "not at any observed share" in text
+
+
+def test_repetitions_and_fixed_groups_are_stated(tmp_path):
+    folder = write_output_folder(tmp_path / "o")
+    ep = pd.read_csv(folder / "early_prediction.csv")
+    ep["n_repeats"] = np.where(ep["classifier"] == "frequency_pause", 1, 3)
+    ep["balanced_accuracy_min"] = ep["balanced_accuracy"] - 0.04
+    ep["balanced_accuracy_max"] = ep["balanced_accuracy"] + 0.03
+    ep.to_csv(folder / "early_prediction.csv", index=False)
+    summary = json.loads((folder / "summary.json").read_text())
+    summary["grouping"] = {"rule": "fraction", "low": 0.1, "high": 0.45}
+    summary["early_prediction"] = {"n_splits": 5, "n_repeats": 3, "n_repeats_hmm": 1,
+                                   "learners_scored": 40, "groups_fixed_once": True}
+    (folder / "summary.json").write_text(json.dumps(summary))
+    text = render_report(folder).read_text(encoding="utf-8")
+    glance = text.split('class="keybox"')[1].split("</div>")[0]
+    assert ("balanced accuracy of 0.63 (range 0.59–0.66 over 3 repetitions); majority baseline "
+            "accuracy 0.50 (5-fold cross-validation × 3 repetitions)") in glance
+    assert ("decided once from the outcome table by the rule: top and bottom shares of the "
+            "outcome, at or above 0.45 and at or below 0.10; the learners between get no "
+            "group. The same groups were kept in every fold, so all 40 learners with a group "
+            "were scored") in text
+    assert "Run in 1 repetition only: <i>action frequencies and pauses</i>" in text
+    assert "<th class=num>balanced accuracy range</th>" in text
+    assert "<td class=num>0.59–0.66</td>" in text
+
+
+def test_explorer_holds_at_most_explorer_rows_patterns(folder, capsys):
+    text = render_report(folder, explorer_rows=2).read_text(encoding="utf-8")
+    data = re.search(r'id="explorer-data">(.*?)</script>', text, flags=re.S).group(1)
+    assert len(json.loads(data)["rows"]) == 2
+    n = len(pd.read_csv(folder / "patterns.csv"))
+    assert f"The table holds the first 2 of {n} patterns" in text
+    assert main(["report", str(folder), "--explorer-rows", "0"]) == 2
+    assert "--explorer-rows must be a whole number of at least 1" in capsys.readouterr().err
+
+
+def test_explorer_shows_the_evidence_columns_when_the_table_has_them(tmp_path):
+    # columns of the volume/order adjustment and the stable pattern id, when present
+    folder = write_output_folder(tmp_path / "o")
+    pat = pd.read_csv(folder / "patterns.csv", dtype=str, keep_default_na=False)
+    n = len(pat)
+    pat.insert(0, "pattern_id", [f"P{i:04d}" for i in range(n)])
+    pat["q_volume"] = np.linspace(0.001, 0.5, n)
+    pat["evidence"] = (["order", "presence", "volume", ""] * n)[:n]
+    pat["replication"] = 0.8
+    pat.to_csv(folder / "patterns.csv", index=False)
+    text = render_report(folder).read_text(encoding="utf-8")
+    data = json.loads(re.search(r'id="explorer-data">(.*?)</script>', text, flags=re.S)
+                      .group(1))
+    keys = [c["key"] for c in data["columns"]]
+    assert keys[:2] == ["_rank", "pattern"] and keys[-2:] == ["pattern_id", "_redundant"]
+    assert {"q_volume", "evidence", "replication"} <= set(keys)
+    labels = {c["key"]: c["label"] for c in data["columns"]}
+    assert labels["q_volume"] == "q (volume-adjusted)" and labels["evidence"] == "evidence"
+    assert '<select id="ex-evidence">' in text and "the kind of evidence" in text
+    assert [r[keys.index("evidence")] for r in data["rows"]] == pat["evidence"].tolist()

@@ -7,7 +7,7 @@ import json
 import os
 
 import pytest
-from browser_helper import start_tags
+from browser_helper import check_report_scripts, start_tags
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -72,6 +72,7 @@ def test_any_content_renders(tmp_path_factory, summary, detectors, examples, pha
     text = render_report(folder).read_text(encoding="utf-8")
     tags = start_tags(text)
     ids = {a.get("id") for _, a in tags}
-    assert {"overview", "patterns", "transitions", "phases", "early-prediction", "detectors",
-            "method", "cautions"} <= ids
-    assert not any(t in ("script", "img", "iframe") for t, _ in tags)
+    assert {"overview", "patterns", "explorer", "transitions", "phases", "early-prediction",
+            "detectors", "method", "cautions"} <= ids
+    assert not any(t in ("img", "iframe") for t, _ in tags)
+    check_report_scripts(text)  # the explorer's own script and data only

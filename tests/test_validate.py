@@ -37,10 +37,11 @@ def _run(ev, oc, **kw):
     kw.setdefault("n_splits", 3)
     kw.setdefault("fractions", [0.25, 0.5, 1.0])
     kw.setdefault("n_bootstrap", 200)
+    kw.setdefault("n_repeats", 1)
     kw.setdefault("random_state", 0)
+    kw.setdefault("grouping", MedianGrouping())
     feats = kw.pop("featurizers", None) or _feats(kw["random_state"])
-    return validate(ev, oc, grouping=MedianGrouping(), encoder=QuantileEncoder(),
-                    featurizers=feats, **kw)
+    return validate(ev, oc, encoder=QuantileEncoder(), featurizers=feats, **kw)
 
 
 @pytest.fixture(scope="module")
@@ -119,34 +120,76 @@ def test_planted_pattern_in_held_out_learners_only_is_never_selected(steps):
     feats = default_featurizers(pattern_params={**steps(), "top_k": 500},
                                 hmm_params=dict(n_states=2, n_restarts=1, n_iter=10))
     r = _run(ev2, oc, featurizers=feats, fractions=[1.0], n_bootstrap=10)
-    sel = {k: [p for p in v if "open_guide" in p] for k, v in r.selected_patterns.items()}
+    sel = {k: [p for p in v if "open_guide" in p] for (_r, k), v in
+           r.selected_patterns.items()}
     assert sel[0] == []
     # the same pattern is selected where it is in the training data (the check can fail)
     assert sel[1] and sel[2]
     assert r.folds.set_index("learner").loc[target, "fold"].eq(0).all()
 
 
-def test_pause_edges_and_groups_come_from_training_learners_only():
+def test_pause_edges_come_from_training_learners_and_groups_are_fixed_once():
     ev, oc = planted_data(45, seed=3)
     rng = np.random.default_rng(0)
     oc = oc.assign(score=rng.permutation(np.linspace(0, 1, len(oc))))
     r = _run(ev, oc, fractions=[1.0], n_bootstrap=10, classifiers=["frequency_pause"])
     all_edges = QuantileEncoder().fit(ev).encoding_["pause"]["edges"]
-    n_differ = 0
-    for k, part in r.folds.groupby("fold"):
+    full = MedianGrouping().fit(oc)
+    for (_rep, k), enc in r.encodings.items():
+        part = r.folds[r.folds["fold"] == k]
         train = sorted(set(ev.learner) - set(part.learner))
         edges = QuantileEncoder().fit(ev[ev.learner.isin(train)]).encoding_["pause"]["edges"]
-        assert r.encodings[k]["pause"]["edges"] == edges
+        assert enc["pause"]["edges"] == edges
         assert edges != all_edges
-        g = MedianGrouping().fit(oc[oc.learner.isin(train)])
+        # the groups are labels decided once from the whole outcome table
         held = oc[oc.learner.isin(part.learner)]
-        expected = g.transform(held)
         got = r.predictions[r.predictions.fold == k].drop_duplicates("learner")
-        assert got.set_index("learner")["group"].to_dict() == expected.to_dict()
-        full = MedianGrouping().fit(oc).transform(held)
-        n_differ += int((full != expected).sum())
-    # held-out labels follow the training threshold, which differs from the all-data one
-    assert n_differ > 0
+        assert got.set_index("learner")["group"].to_dict() == full.transform(held).to_dict()
+    assert r.settings["n_learners"] == len(oc)
+
+
+def test_every_grouped_learner_is_scored_with_the_cut_points_of_the_outcome_table():
+    # a thirds split on all outcomes: the middle third has no group, everyone else is
+    # scored, with the groups the whole table gives (re-cutting inside folds would lose
+    # learners between the training-fold cut points)
+    from seqmine.inputs.outcomes import Grouping
+
+    ev, oc = planted_data(60, seed=7)
+    oc = oc.assign(score=np.linspace(0, 1, len(oc)))
+    grouping = Grouping("fraction", fraction=1 / 3, value="score")
+    expected = grouping.fit(oc).transform(oc).dropna()
+    r = _run(ev, oc, fractions=[1.0], n_bootstrap=10, classifiers=["frequency_pause"],
+             grouping=Grouping("fraction", fraction=1 / 3, value="score"))
+    got = r.predictions.drop_duplicates("learner").set_index("learner")["group"]
+    assert got.sort_index().to_dict() == expected.sort_index().to_dict()
+    assert r.settings["n_learners"] == len(expected) == 40
+    assert r.settings["grouping"]["rule"] == "fraction"
+    assert r.settings["grouping"]["low"] == pytest.approx(np.quantile(oc["score"], 1 / 3))
+
+
+def test_repeated_splits_deal_learners_anew_and_hmm_classifiers_repeat_less():
+    ev, oc = planted_data(30, seed=8)
+    one = _run(ev, oc, fractions=[0.5, 1.0], n_bootstrap=20, n_repeats=1)
+    three = _run(ev, oc, fractions=[0.5, 1.0], n_bootstrap=20, n_repeats=3, n_repeats_hmm=1)
+    f = three.folds
+    assert sorted(f["repeat"].unique()) == [0, 1, 2]
+    assert (f.groupby("repeat")["learner"].nunique() == 30).all()
+    # the repetitions deal the learners into other folds
+    by = f.pivot(index="learner", columns="repeat", values="fold")
+    assert (by[0] != by[1]).any() and (by[1] != by[2]).any()
+    n_rep = three.to_frame().groupby("classifier")["n_repeats"].first().to_dict()
+    assert n_rep == {"pattern": 3, "frequency_pause": 3, "majority": 3, "hmm": 1, "fusion": 1}
+    assert set(three.predictions.query("classifier == 'hmm'")["repeat"]) == {0}
+    # repetition 0 is the single split
+    cols = ["learner", "fraction", "proba_weak"]
+    a = one.predictions.query("classifier == 'pattern'")[cols].reset_index(drop=True)
+    b = three.predictions.query("classifier == 'pattern' and repeat == 0")[cols]
+    pd.testing.assert_frame_equal(a, b.reset_index(drop=True))
+    # the spread over repetitions brackets the mean
+    t = three.to_frame()
+    assert (t["accuracy_min"] <= t["accuracy"] + 1e-12).all()
+    assert (t["accuracy_max"] >= t["accuracy"] - 1e-12).all()
+    assert three.settings["n_repeats"] == 3 and three.settings["n_repeats_hmm"] == 1
 
 
 def test_parallel_folds_give_identical_results():
@@ -190,20 +233,24 @@ def test_save_and_summary(planted_result, tmp_path):
     assert set(digest["baseline_accuracy"]) == {"0.25", "0.5", "1"}
 
 
+def _runner(ev, oc, grouping, **kw):
+    groups = grouping.fit(oc).transform(oc)
+    return _FoldRunner(events=ev.assign(learner=ev.learner.astype(str)),
+                       groups=groups.to_dict(), group_names=grouping.group_names_,
+                       encoder=QuantileEncoder(), featurizers=_feats(), C=1.0, **kw)
+
+
 def test_pipeline_classifier_matches_the_fold_runner(planted):
     # make_classifier's scikit-learn Pipeline and the shared-featurizer fold runner agree
     ev, oc = planted
     tr = sorted(oc.learner)[:40]
     te = sorted(oc.learner)[40:]
-    runner = _FoldRunner(grouping=MedianGrouping(), encoder=QuantileEncoder(),
-                         featurizers=_feats(), classifiers=["fusion", "majority"],
-                         fractions=[1.0], C=1.0)
-    out = runner((0, ev[ev.learner.isin(tr)], ev[ev.learner.isin(te)],
-                  oc[oc.learner.isin(tr)], oc[oc.learner.isin(te)]))
-    g = MedianGrouping().fit(oc[oc.learner.isin(tr)])
+    runner = _runner(ev, oc, MedianGrouping(), fractions=[1.0])
+    out = runner((0, 0, tr, te, ["fusion", "majority"]))
+    g = MedianGrouping().fit(oc)
     enc = QuantileEncoder().fit(ev[ev.learner.isin(tr)])
     db_tr, db_te = enc.transform(ev[ev.learner.isin(tr)]), enc.transform(ev[ev.learner.isin(te)])
-    y_tr = g.transform(oc[oc.learner.isin(tr)])[db_tr.learners].to_numpy()
+    y_tr = g.transform(oc)[db_tr.learners].to_numpy()
     pipe = make_classifier("fusion", featurizers=_feats()).fit(db_tr, y_tr)
     got = out["predictions"].query("classifier == 'fusion'").set_index("learner")
     proba = pipe.predict_proba(db_te)
@@ -213,17 +260,11 @@ def test_pipeline_classifier_matches_the_fold_runner(planted):
 
 def test_fold_runner_rejects_a_training_fold_with_one_group(planted):
     ev, oc = planted
-    strong = oc[oc.score > 0.5]
-    runner = _FoldRunner(grouping=_AllStrong(), encoder=QuantileEncoder(), featurizers=_feats(),
-                         classifiers=["pattern", "majority"], fractions=[1.0], C=1.0)
+    strong = sorted(oc.loc[oc.score > 0.5, "learner"])
+    runner = _runner(ev, oc, MedianGrouping(), fractions=[1.0])
     with pytest.raises(ParameterError, match=r"Fold 2: the training learners hold only "
                                              r"group\(s\) 'strong'"):
-        runner((2, ev[ev.learner.isin(strong.learner)], ev, strong, oc))
-
-
-class _AllStrong(MedianGrouping):
-    def transform(self, outcomes):
-        return pd.Series("strong", index=outcomes["learner"].astype(str).to_numpy())
+        runner((0, 2, strong, sorted(oc.learner), ["pattern", "majority"]))
 
 
 @pytest.mark.parametrize("kw, msg", [
@@ -283,10 +324,11 @@ def test_leave_one_learner_out_and_its_baseline_artefact():
     # fixed, balanced labels: the held-out learner is always the training minority, so
     # the majority baseline is always wrong (documented in validate's Notes)
     labelled = oc.assign(label=np.where(oc["score"] > 0.5, "strong", "weak"))
-    r = validate(ev, labelled, loo=True, fractions=[1.0], n_bootstrap=20,
+    r = validate(ev, labelled, loo=True, n_repeats=3, fractions=[1.0], n_bootstrap=20,
                  grouping=_FixedLabels(), encoder=QuantileEncoder(), featurizers=_feats(),
                  classifiers=["frequency_pause"])
     assert r.to_frame().query("classifier == 'majority'")["accuracy"].item() == 0.0
+    assert r.settings["n_repeats"] == 1  # leave-one-out has one split only
 
 
 class _FixedLabels:

@@ -36,7 +36,7 @@ def greenhouse_data():
 @pytest.fixture(scope="module")
 def greenhouse_result(greenhouse_data):
     ev, oc = greenhouse_data
-    return validate(ev, oc, n_splits=3, fractions=[0.25, 0.5, 1.0], n_bootstrap=300,
+    return validate(ev, oc, n_splits=3, n_repeats=1, fractions=[0.25, 0.5, 1.0], n_bootstrap=300,
                     grouping=Grouping(), encoder=Encoder(),
                     featurizers=default_featurizers(random_state=0, hmm_params=FAST_HMM))
 
@@ -61,10 +61,10 @@ def test_pause_edges_are_learned_on_training_events_only(greenhouse_data, greenh
     r = greenhouse_result
     all_edges = Encoder().fit(ev).encoding_["pause"]["edges"]
     differ = 0
-    for k, part in r.folds.groupby("fold"):
+    for (rep, k), part in r.folds.groupby(["repeat", "fold"]):
         train = ev[~ev["learner"].isin(set(part["learner"]))]
         edges = Encoder().fit(train).encoding_["pause"]["edges"]
-        assert r.encodings[k]["pause"]["edges"] == edges
+        assert r.encodings[(rep, k)]["pause"]["edges"] == edges
         differ += edges != all_edges
     assert differ > 0
 
@@ -78,7 +78,7 @@ def small_files(tmp_path_factory):
 def _cli(paths, out, *extra):
     return main(["validate", str(paths["events"]), "--outcomes", str(paths["outcomes"]),
                  "--out", str(out), "--quiet", "--splits", "3", "--fractions", "0.5,1",
-                 "--bootstrap", "50", "--hmm-states", "2", *extra])
+                 "--bootstrap", "50", "--hmm-states", "2", "--repeats", "2", *extra])
 
 
 def test_cli_writes_the_tables(small_files, tmp_path):
@@ -87,6 +87,8 @@ def test_cli_writes_the_tables(small_files, tmp_path):
     assert set(t["classifier"]) == {"pattern", "hmm", "frequency_pause", "fusion", "majority"}
     assert sorted(set(t["fraction"])) == [0.5, 1.0]
     assert (t["n_learners"] == 30).all()
+    n_rep = t.groupby("classifier")["n_repeats"].first().to_dict()
+    assert n_rep == {"pattern": 2, "frequency_pause": 2, "majority": 2, "hmm": 1, "fusion": 1}
     for name in ["early_prediction_long.csv", "validation_predictions.csv",
                  "validation_folds.json"]:
         assert (tmp_path / "a" / name).is_file()
@@ -135,7 +137,8 @@ def test_greenhouse_with_shuffled_gains_gives_no_classifier_an_edge():
         ev, oc = _greenhouse(60, seed=200 + seed)
         rng = np.random.default_rng(seed)
         oc = oc.assign(gain=rng.permutation(oc["gain"].to_numpy()))
-        r = validate(ev, oc, n_splits=3, fractions=[0.5, 1.0], n_bootstrap=50, random_state=seed,
+        r = validate(ev, oc, n_splits=3, n_repeats=1, fractions=[0.5, 1.0], n_bootstrap=50,
+                     random_state=seed,
                      grouping=Grouping(), encoder=Encoder(),
                      featurizers=default_featurizers(random_state=seed, hmm_params=FAST_HMM))
         t = r.to_frame()
@@ -158,8 +161,9 @@ def test_several_sessions_per_learner_stay_in_one_fold_and_are_pooled():
     assert (multi > 1).any()  # some learners have two sessions
     # the pattern featurizer's tests merge a learner's sessions (learner unit), so no
     # warning about sessions treated as independent units is raised (warnings are errors)
-    r = validate(ev, oc, n_splits=3, fractions=[0.5, 1.0], n_bootstrap=50, grouping=Grouping(),
-                 encoder=enc, featurizers=default_featurizers(hmm_params=FAST_HMM))
+    r = validate(ev, oc, n_splits=3, n_repeats=1, fractions=[0.5, 1.0], n_bootstrap=50,
+                 grouping=Grouping(), encoder=enc,
+                 featurizers=default_featurizers(hmm_params=FAST_HMM))
     p = r.predictions
     # one prediction per learner (sessions pooled), every learner held out once
     assert not p.duplicated(["classifier", "fraction", "learner"]).any()

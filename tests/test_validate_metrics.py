@@ -111,13 +111,75 @@ def test_baseline_test_is_one_sided_exact_mcnemar():
     preds = _predictions(3, n=60)
     table = early_prediction_table(preds, GROUPS, n_bootstrap=20)
     row = table[(table.classifier == "model") & (table.fraction == 1.0)].iloc[0]
-    b, c = row["n_only_classifier_right"], row["n_only_baseline_right"]
+    b, c = row["n_classifier_better"], row["n_baseline_better"]
     # reference: statsmodels' exact McNemar test is two-sided, 2 * min tail
     ref = mcnemar([[0, b], [c, 0]], exact=True).pvalue
     if b > c:
         assert row["p_value"] == pytest.approx(ref / 2, rel=1e-9)
     assert row["beats_baseline"] == (row["p_value"] < 0.05)
     assert not table.loc[table.classifier == "majority", "beats_baseline"].any()
+
+
+def _repeated(seed, n_repeats, n=40):
+    """Predictions of several repetitions (each from its own random table)."""
+    parts = [_predictions(seed + r, n=n).assign(repeat=r) for r in range(n_repeats)]
+    y = parts[0]["group"].to_numpy()
+    for p in parts:  # the groups are fixed once: the same truth in every repetition
+        p["group"] = y
+    return pd.concat(parts, ignore_index=True)
+
+
+def test_repeated_metrics_are_means_over_repetitions_with_their_range():
+    # reference: scikit-learn on each repetition separately, then mean / min / max
+    preds = _repeated(11, 3)
+    table = early_prediction_table(preds, GROUPS, n_bootstrap=50, random_state=1)
+    for (name, frac), part in preds.groupby(["classifier", "fraction"]):
+        row = table[(table.classifier == name) & (table.fraction == frac)].iloc[0]
+        per = [balanced_accuracy_score(r["group"], r["predicted"])
+               for _, r in part.groupby("repeat")]
+        assert row["n_repeats"] == 3
+        assert row["balanced_accuracy"] == pytest.approx(np.mean(per), abs=1e-12)
+        assert row["balanced_accuracy_min"] == pytest.approx(min(per), abs=1e-12)
+        assert row["balanced_accuracy_max"] == pytest.approx(max(per), abs=1e-12)
+        aucs = [roc_auc_score(r["group"] == "weak", r["proba_weak"])
+                for _, r in part.groupby("repeat")]
+        assert row["roc_auc"] == pytest.approx(np.mean(aucs), abs=1e-12)
+
+
+def test_repeated_baseline_test_is_a_sign_test_on_per_learner_shares():
+    # reference: scipy's binomial test on the signs of the paired share differences
+    # (the sign test, Dixon & Mood 1946), counted by hand here
+    from scipy.stats import binomtest
+
+    preds = _repeated(21, 4, n=60)
+    table = early_prediction_table(preds, GROUPS, n_bootstrap=20)
+    for name in ["model", "noisy"]:
+        part = preds[(preds.classifier == name) & (preds.fraction == 1.0)]
+        base = preds[(preds.classifier == "majority") & (preds.fraction == 1.0)]
+        share = (part["predicted"] == part["group"]).groupby(part["learner"]).mean()
+        share_b = (base["predicted"] == base["group"]).groupby(base["learner"]).mean()
+        d = share - share_b
+        b, c = int((d > 0).sum()), int((d < 0).sum())
+        row = table[(table.classifier == name) & (table.fraction == 1.0)].iloc[0]
+        assert (row["n_classifier_better"], row["n_baseline_better"]) == (b, c)
+        assert row["p_value"] == pytest.approx(
+            binomtest(b, b + c, 0.5, alternative="greater").pvalue, rel=1e-12)
+
+
+def test_a_classifier_with_fewer_repetitions_is_compared_on_its_own():
+    preds = _repeated(31, 3)
+    short = preds[~((preds.classifier == "noisy") & (preds.repeat > 0))]
+    table = early_prediction_table(short, GROUPS, n_bootstrap=20)
+    one = early_prediction_table(short[short.repeat == 0], GROUPS, n_bootstrap=20)
+    cols = ["accuracy", "p_value", "baseline_accuracy", "n_classifier_better"]
+    a = table[table.classifier == "noisy"][cols].reset_index(drop=True)
+    b = one[one.classifier == "noisy"][cols].reset_index(drop=True)
+    pd.testing.assert_frame_equal(a, b)
+    assert set(table.loc[table.classifier == "noisy", "n_repeats"]) == {1}
+    assert set(table.loc[table.classifier == "model", "n_repeats"]) == {3}
+    with pytest.raises(ParameterError, match=r"lack the 'majority' baseline in repetition"):
+        early_prediction_table(preds[~((preds.classifier == "majority") & (preds.repeat == 2))],
+                               GROUPS)
 
 
 def test_bootstrap_is_seeded_and_intervals_bracket_the_estimate():

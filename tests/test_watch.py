@@ -105,6 +105,40 @@ def test_absence_after_events_and_seconds():
     assert w.tick(500.0) == []
 
 
+def test_an_absence_hint_held_back_is_tried_again_after_the_cooldown():
+    # a discourage hint at t=2 starts the cool-down; the encourage absence point (4th
+    # event, t=3) falls inside it, so that hint is suppressed and tried again at the
+    # first event after the cool-down -- unless the pattern has occurred meanwhile
+    w = Watcher(_doc(), cooldown_seconds=10)
+    out = _feed(w, [ev("a", 0, "open_chart"), ev("a", 1, "set_light"), ev("a", 2, "set_water"),
+                    ev("a", 3, "open_chart"), ev("a", 8, "open_chart"),
+                    ev("a", 13, "open_chart"), ev("a", 30, "open_chart")])
+    assert [(f.detector, f.kind, f.time, f.suppressed, f.reason) for f in out] == [
+        ("burst", "occurrence", 2.0, False, None),
+        ("measure", "absence", 3.0, True, "cooldown"),
+        ("measure", "absence", 13.0, False, None)]
+    w = Watcher(_doc(), cooldown_seconds=10)
+    out = _feed(w, [ev("b", 0, "open_chart"), ev("b", 1, "set_light"), ev("b", 2, "set_water"),
+                    ev("b", 3, "open_chart"), ev("b", 5, "advance_week"),
+                    ev("b", 6, "measure_height"), ev("b", 20, "open_chart")])
+    assert [(f.detector, f.kind, f.suppressed) for f in out] == [
+        ("burst", "occurrence", False), ("measure", "absence", True),
+        ("measure", "occurrence", True)]
+
+
+def test_absence_hints_per_sequence_are_limited():
+    dets = [{"id": f"e{k}", "tokens": [f"x{k}", "y"], "direction": "encourage",
+             "absence": {"after_events": 2 + k, "after_seconds": None}} for k in range(3)]
+    w = Watcher(_doc(dets=dets), cooldown_seconds=0, max_absence_hints=2)
+    out = _feed(w, [ev("a", t, "open_chart") for t in range(6)])
+    assert [(f.detector, f.suppressed, f.reason) for f in out] == [
+        ("e0", False, None), ("e1", False, None), ("e2", True, "limit")]
+    w = Watcher(_doc(dets=dets), cooldown_seconds=0, max_absence_hints=None)
+    assert not any(f.suppressed for f in _feed(w, [ev("a", t, "open_chart") for t in range(6)]))
+    with pytest.raises(ParameterError, match="'max_absence_hints' parameter of Watcher"):
+        Watcher(_doc(dets=dets), max_absence_hints=-1)
+
+
 # ------------------------------------------------------------- encoder state
 def test_sessions_split_sequences_and_reset_matching():
     enc = {"template": "{action}", "unit": "session", "session_gap": 100.0,

@@ -23,9 +23,32 @@ File layout (version 1)::
      "selection": {the filters used},
      "detectors": [{"id", "pattern_id", "tokens", "direction", "favours", "evidence", "hint",
                     "priority", "absence": {"after_events", "after_seconds"} | null,
-                    "enabled", "notes"}]}
+                    "enabled", "notes", "example"}]}
 
 Priority: a smaller number is delivered first (1 = most important).
+
+Hints worth piloting
+--------------------
+* **Both directions.** :func:`select_detectors` shares the detector slots between the
+  favoured groups (``group_shares``; :func:`export_detectors` takes the share of
+  ``encourage`` detectors, ``encourage_share``, default one half); slots one
+  direction cannot fill go to the other.
+* **Ranking.** When the contrast table carries the activity-volume adjustment
+  (``q_volume``), candidates are ranked by it first -- evidence that survives the
+  adjustment for how much a learner does -- then by effect size; otherwise by effect
+  size, then q value.
+* **Contents.** Each detector's ``evidence`` holds the support (share of sequences)
+  and rate (occurrences per 100 tokens) per group, the group sizes, p and q values
+  (also the volume- and order-adjusted ones and the evidence class when present),
+  effect sizes, stability and replication, and the range in seconds of every pause
+  token of the pattern (``pause_ranges``); ``example`` is one short excerpt of a
+  sequence from the favoured group (the learner id as stored in the sequences:
+  pseudonymized when the run was given a key).
+* **Delivery.** Discourage detectors hint when the pattern occurs. Encourage
+  detectors hint when the pattern has *not* occurred by the point at which most
+  learners of the favoured group who showed it had shown it (``absence``; by default
+  the 75th percentile of the action events up to the end of its first occurrence;
+  :func:`absence_thresholds`). See :class:`seqmine.detection.watcher.Watcher`.
 """
 
 from __future__ import annotations
@@ -50,7 +73,8 @@ from ..config import DEFAULT_CONFIG
 from ..encoding.pauses import pause_ranges
 from ..encoding.sequences import PAUSE_PREFIX
 from ..errors import ColumnError, DataFileError, ParameterError, SeqmineWarning
-from ..mining.patterns import is_subsequence, pattern_id, pattern_tokens
+from ..mining.excerpts import build_examples, find_occurrence
+from ..mining.patterns import is_subsequence, pattern_id, pattern_tokens, split_readable
 
 __all__ = [
     "DETECTORS_FORMAT",
@@ -65,12 +89,14 @@ __all__ = [
     "load_detectors",
     "validate_detectors",
     "default_hint",
+    "absence_thresholds",
 ]
 
 #: Value of the ``format`` field of every detectors file.
 DETECTORS_FORMAT = "seqmine-detectors"
-#: Newest detectors file version this seqmine reads and writes.
-DETECTORS_VERSION = 1
+#: Newest detectors file version this seqmine reads and writes (version 2 added the
+#: optional ``example`` of each detector; version 1 files are read as they are).
+DETECTORS_VERSION = 2
 #: Caution copied into every detectors file.
 DETECTOR_NOTICE = (
     "Detectors come from correlational findings. Educators must review and rewrite "
@@ -88,7 +114,12 @@ _PAUSE_STRATEGIES = ("quantile", "fixed", "learner_quantile", "none")
 _TOP_KEYS = {"format", "version", "notice", "encoding", "vocabulary", "matching", "groups",
              "selection", "detectors", "created_by"}
 _DETECTOR_KEYS = {"id", "pattern_id", "tokens", "direction", "favours", "evidence", "hint",
-                  "priority", "absence", "enabled", "notes"}
+                  "priority", "absence", "enabled", "notes", "example"}
+#: Optional contrast-table columns copied into a detector's evidence when present.
+_EVIDENCE_COLUMNS = ("p_value", "q_value", "p_volume", "q_volume", "p_order", "q_order",
+                     "q_rate", "stability", "replication")
+#: Default quantile of the absence rule of encourage detectors (see absence_thresholds).
+ABSENCE_QUANTILE = DEFAULT_CONFIG["detectors"]["absence_quantile"]
 _MATCHING_KEYS = {"max_gap", "max_window", "skip_pauses"}
 #: Longest detector id accepted.
 MAX_ID_LENGTH = 100
@@ -104,7 +135,7 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
                      min_effect=_DEFAULTS["min_effect"], effect=_DEFAULTS["effect"],
                      min_stability=_DEFAULTS["min_stability"], lengths=None, groups=None,
                      max_detectors=_DEFAULTS["max_detectors"], drop_redundant=True,
-                     evidence=DEFAULT_EVIDENCE):
+                     evidence=DEFAULT_EVIDENCE, group_shares=None):
     """Choose the contrast-table rows worth exporting as detectors.
 
     A row is kept when it favours a group, its ``evidence`` is one of ``evidence``
@@ -112,11 +143,21 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
     its evidence test is at most ``max_q``, the absolute
     value of its ``effect`` column is at least ``min_effect``, its ``stability`` is at
     least ``min_stability``, its length is allowed and its favoured group is in
-    ``groups``. Kept rows are ranked by absolute effect (largest first), then q value,
-    then pattern name; with ``drop_redundant`` a row is dropped when the contrast
-    table marks it redundant (a non-empty ``redundant_of``), or when its pattern
-    contains, or is contained in, an already kept pattern favouring the same group
-    (as a subsequence), so one behaviour yields one detector.
+    ``groups``. Kept rows are ranked by the evidence that survives the adjustment
+    for activity volume, smallest q first: the q value of each row's own test
+    (``q_order`` for order, ``q_volume`` for presence, ``q_value`` for volume); then
+    by absolute effect (largest first), q value and pattern name. With
+    ``evidence=None`` (tables without the evidence columns) rows are ranked by
+    absolute effect, q value and pattern name. With ``drop_redundant`` a row is
+    dropped when the contrast table marks it redundant (a non-empty
+    ``redundant_of``), or when its pattern contains, or is contained in, an already
+    kept pattern favouring the same group (as a subsequence), so one behaviour yields
+    one detector.
+
+    ``group_shares`` divides the ``max_detectors`` slots between the favoured groups
+    (largest remainders, so the quotas add up); each group fills its quota with its
+    best-ranked rows and slots a group cannot fill go to the best remaining rows of
+    the others. Without it the best rows are taken whatever group they favour.
 
     Parameters
     ----------
@@ -145,6 +186,9 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
         (``q_order``, ``q_volume``, ``q_value`` for ``"volume"``). Default
         ``("order", "presence")``: differences that activity volume explains are not
         exported. ``None`` selects on ``q_value`` alone (tables without evidence).
+    group_shares : dict, optional
+        Favoured group -> share of the slots (non-negative numbers, scaled to add up
+        to 1), e.g. ``{"strong": 0.5, "weak": 0.5}``; needs ``max_detectors``.
 
     Returns
     -------
@@ -162,6 +206,11 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
     ['a > b > c']
     >>> select_detectors(t, evidence=["order"])["pattern"].tolist()
     ['a > b']
+    >>> t = pd.DataFrame({"pattern": ["a", "b", "c", "d"], "q_value": 0.01,
+    ...                   "favours": ["weak", "weak", "weak", "strong"], "cohens_h": 0.5})
+    >>> select_detectors(t, min_stability=0, max_detectors=2, evidence=None,
+    ...                  group_shares={"strong": 0.5, "weak": 0.5})["pattern"].tolist()
+    ['a', 'd']
     """
     where = "select_detectors"
     if not isinstance(contrast_table, pd.DataFrame):
@@ -198,6 +247,7 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
     lens = np.array([len(p) for p in pats], dtype=np.int64)
     favours = t["favours"].astype(object).where(t["favours"].notna(), "").astype(str).str.strip()
     q = pd.to_numeric(t["q_value"], errors="coerce").to_numpy(float)
+    q_all = q.copy()
     eff = np.abs(pd.to_numeric(t[effect], errors="coerce").to_numpy(float))
     keep = (favours != "").to_numpy() & (eff >= min_effect)
     if evidence is not None:
@@ -225,17 +275,29 @@ def select_detectors(contrast_table, *, max_q=_DEFAULTS["max_q"],
         keep &= favours.isin(allowed).to_numpy()
     idx = np.flatnonzero(keep)
     names = t["pattern"].astype(str).to_numpy()
-    order = sorted(idx.tolist(), key=lambda i: (-eff[i], q[i], names[i]))
-    chosen = []
+    # rank by the evidence that survives the volume adjustment: the q value of each
+    # row's own test (q_order for order, q_volume for presence); without evidence
+    # kinds (evidence=None) by effect size
+    if evidence is not None:
+        qs = np.where(np.isnan(q), np.inf, q)
+        order = sorted(idx.tolist(), key=lambda i: (qs[i], -eff[i], q_all[i], names[i]))
+    else:
+        order = sorted(idx.tolist(), key=lambda i: (-eff[i], q[i], names[i]))
+    fav = favours.to_numpy()
+    # one behaviour, one detector: drop rows nested in a better one of the same group
+    distinct = []
     for i in order:
-        if drop_redundant and any(favours.iloc[j] == favours.iloc[i]
-                                  and (is_subsequence(pats[j], pats[i])
-                                       or is_subsequence(pats[i], pats[j]))
-                                  for j in chosen):
+        if drop_redundant and any(fav[j] == fav[i] and (is_subsequence(pats[j], pats[i])
+                                                        or is_subsequence(pats[i], pats[j]))
+                                  for j in distinct):
             continue
-        chosen.append(i)
-        if max_detectors is not None and len(chosen) >= max_detectors:
-            break
+        distinct.append(i)
+    if group_shares is None or max_detectors is None:
+        chosen = distinct[:max_detectors] if max_detectors is not None else distinct
+    else:
+        chosen = _share_slots(distinct, fav, _check_shares(group_shares, where), max_detectors)
+    rank = {i: r for r, i in enumerate(order)}
+    chosen = sorted(chosen, key=rank.get)
     return t.iloc[chosen].reset_index(drop=True)
 
 
@@ -252,10 +314,48 @@ def _check_evidence(evidence, where):
     return chosen
 
 
+def _check_shares(shares, where):
+    if not isinstance(shares, dict) or not shares:
+        raise ParameterError(f"The 'group_shares' parameter of {where} must be a dict of "
+                             f"group -> share, e.g. {{'strong': 0.5, 'weak': 0.5}}. Got "
+                             f"{shares!r} instead.")
+    out = {}
+    for g, v in shares.items():
+        x = _finite_or_none(v)
+        if x is None or x < 0:
+            raise ParameterError(f"The share of group {g!r} in 'group_shares' of {where} must "
+                                 f"be a number >= 0. Got {v!r} instead.")
+        out[str(g)] = x
+    total = sum(out.values())
+    if total <= 0:
+        raise ParameterError(f"The shares in 'group_shares' of {where} add up to 0; give at "
+                             f"least one group a positive share.")
+    return {g: x / total for g, x in out.items()}
+
+
+def _share_slots(ranked, fav, shares, n):
+    """Indices taken from ``ranked`` with per-group quotas (largest remainders); slots
+    a group cannot fill go to the best remaining rows of any group."""
+    exact = {g: shares.get(g, 0.0) * n for g in shares}
+    quota = {g: int(math.floor(x)) for g, x in exact.items()}
+    left = n - sum(quota.values())
+    for g in sorted(exact, key=lambda g: (-(exact[g] - quota[g]), g))[:left]:
+        quota[g] += 1
+    taken, rest = [], []
+    for i in ranked:
+        if quota.get(fav[i], 0) > 0:
+            quota[fav[i]] -= 1
+            taken.append(i)
+        else:
+            rest.append(i)
+    return taken + rest[:max(0, n - len(taken))]
+
+
 # ======================================================================= building
 def build_detectors(selected_rows, encoding, constraints=None, *, group_names, strong=None,
                     weak=None, group_sizes=None, vocabulary=None, effect="cohens_h",
-                    absence_after_events=None, absence_after_seconds=None, selection=None):
+                    absence_after_events=None, absence_after_seconds=None, selection=None,
+                    examples=None):
     """Turn selected contrast rows into a detectors document (a plain dict).
 
     Parameters
@@ -280,10 +380,16 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
     effect : str
         Effect-size column the watcher ranks simultaneous firings by.
     absence_after_events, absence_after_seconds : optional
-        Default absence rule for encourage detectors (fire when the pattern has not
-        been shown after this many events / seconds of a sequence); ``None`` = off.
+        Absence rule for encourage detectors (fire when the pattern has not been
+        shown after this many events / seconds of a sequence); ``None`` = off.
+        ``absence_after_events`` may also be a dict pattern id -> events (one rule
+        per detector, e.g. from :func:`absence_thresholds`).
     selection : dict, optional
         The filters used (recorded for provenance).
+    examples : dict, optional
+        Pattern id -> one excerpt (``{"learner", "group", "events"}``,
+        see :func:`seqmine.mining.excerpts.build_examples`), stored as the
+        detector's ``example``.
 
     Returns
     -------
@@ -304,8 +410,7 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
     group_names = [str(g) for g in group_names]
     if len(group_names) < 2:
         raise ParameterError(f"{where} needs at least two group names; got {group_names}.")
-    strong = strong if strong is not None else ("strong" if "strong" in group_names else group_names[0])
-    weak = weak if weak is not None else ("weak" if "weak" in group_names else group_names[1])
+    strong, weak = _strong_weak(group_names, strong, weak)
     for role, name in (("strong", strong), ("weak", weak)):
         if name not in group_names:
             raise ParameterError(f"The '{role}' group {name!r} of {where} is not one of the "
@@ -347,25 +452,32 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
         evidence = {
             "support": {g: _finite_or_none(row.get(f"support_{g}")) for g in group_names
                         if f"support_{g}" in row},
+            "rate": {g: _finite_or_none(row.get(f"rate_{g}")) for g in group_names
+                     if f"rate_{g}" in row},
             "n": dict(group_sizes) if group_sizes else {},
             "p_value": _finite_or_none(row.get("p_value")),
             "q_value": _finite_or_none(row.get("q_value")),
-            "effects": {c: _finite_or_none(row.get(c)) for c in _EFFECT_COLUMNS if c in row},
-            "stability": _finite_or_none(row.get("stability")),
         }
-        for key in ("q_volume", "q_order", "replication"):
-            if key in row:
-                evidence[key] = _finite_or_none(row.get(key))
+        if not evidence["rate"]:
+            del evidence["rate"]
+        for col in _EVIDENCE_COLUMNS[2:]:
+            if col in row and col != "stability":
+                evidence[col] = _finite_or_none(row.get(col))
         if "evidence" in row:
-            evidence["kind"] = "" if _is_missing(row.get("evidence")) else str(row["evidence"])
+            evidence["kind"] = "" if _is_missing(row["evidence"]) else str(row["evidence"])
+        evidence["effects"] = {c: _finite_or_none(row.get(c)) for c in _EFFECT_COLUMNS if c in row}
+        evidence["stability"] = _finite_or_none(row.get("stability"))
         shown = {t: ranges[t] for t in tokens if t in ranges}
         if shown:
             evidence["pause_ranges"] = shown
         absence = None
         if direction == "encourage":
-            absence = {"after_events": _int_or_none(absence_after_events),
+            after = absence_after_events
+            if isinstance(after, dict):
+                after = after.get(_row_id(row, tokens))
+            absence = {"after_events": _int_or_none(after),
                        "after_seconds": _finite_or_none(absence_after_seconds)}
-        detectors.append({
+        det = {
             "id": f"D{k + 1:03d}",
             "pattern_id": _row_id(row, tokens),
             "tokens": tokens,
@@ -376,7 +488,11 @@ def build_detectors(selected_rows, encoding, constraints=None, *, group_names, s
             "priority": 1,
             "absence": absence,
             "enabled": True,
-        })
+        }
+        example = (examples or {}).get(_row_id(row, tokens))
+        if example:
+            det["example"] = _plain(example)
+        detectors.append(det)
     sizes = {str(g): int(n) for g, n in (group_sizes or {}).items()}
     doc = {
         "format": DETECTORS_FORMAT,
@@ -397,9 +513,12 @@ def export_detectors(contrast_table, db, constraints=None, *, max_q=_DEFAULTS["m
                      min_effect=_DEFAULTS["min_effect"], effect=_DEFAULTS["effect"],
                      min_stability=_DEFAULTS["min_stability"], lengths=None, groups=None,
                      max_detectors=_DEFAULTS["max_detectors"], drop_redundant=True,
-                     evidence=DEFAULT_EVIDENCE,
-                     strong=None, weak=None, absence_after_events=None,
-                     absence_after_seconds=None):
+                     evidence=DEFAULT_EVIDENCE, strong=None, weak=None,
+                     encourage_share=_DEFAULTS["encourage_share"],
+                     absence_after_events="auto",
+                     absence_quantile=_DEFAULTS["absence_quantile"],
+                     absence_after_seconds=None, examples=_DEFAULTS["examples"],
+                     random_state=DEFAULT_CONFIG["seed"]):
     """Select rows of a contrast table and build the detectors document in one step.
 
     Parameters
@@ -408,34 +527,152 @@ def export_detectors(contrast_table, db, constraints=None, *, max_q=_DEFAULTS["m
         Output of ``contrast()``.
     db : SequenceDB
         The database the patterns were mined on (gives the encoding, group names and
-        sizes, and the offline vocabulary).
+        sizes, the offline vocabulary, the examples and the absence rules).
     constraints : dict, optional
         ``PatternSet.constraints`` of the mined patterns.
     max_q, min_effect, effect, min_stability, lengths, groups, max_detectors, drop_redundant
     evidence
         See :func:`select_detectors`.
-    strong, weak, absence_after_events, absence_after_seconds
+    strong, weak, absence_after_seconds
         See :func:`build_detectors`.
+    encourage_share : float in [0, 1] or None, default 0.5
+        Share of the ``max_detectors`` slots for encourage detectors (patterns more
+        common in the strong group); the rest go to discourage detectors, and slots
+        one direction cannot fill go to the other. ``None``: no balance, the best
+        rows whatever their direction.
+    absence_after_events : int, None or "auto", default "auto"
+        Absence rule of encourage detectors: ``"auto"`` derives one per detector from
+        the data (:func:`absence_thresholds` with ``absence_quantile``), an int is
+        used for every encourage detector, ``None`` switches it off.
+    absence_quantile : float in (0, 1], default 0.75
+    examples : bool, default True
+        Store one short excerpt per detector (from a sequence of the favoured group).
+    random_state : int, default 20261202
+        Seed of the order in which sequences are searched for examples.
 
     Returns
     -------
     dict
         A valid detectors document (write it with :func:`save_detectors`).
     """
+    where = "export_detectors"
+    strong, weak = _strong_weak(db.group_names, strong, weak)
+    shares = None
+    if encourage_share is not None:
+        share = check_number(encourage_share, "encourage_share", where, minimum=0)
+        if share > 1:
+            raise ParameterError(f"The 'encourage_share' parameter of {where} must be in "
+                                 f"[0, 1]. Got {share!r} instead.")
+        shares = {strong: share, weak: 1.0 - share}
     selection = {"max_q": max_q, "min_effect": min_effect, "min_stability": min_stability,
                  "lengths": list(lengths) if isinstance(lengths, (tuple, list)) else lengths,
                  "groups": groups, "max_detectors": max_detectors,
                  "drop_redundant": drop_redundant,
                  "evidence": None if evidence is None else _check_evidence(evidence,
                                                                            "export_detectors")}
-    rows = select_detectors(contrast_table, effect=effect, **dict(selection, lengths=lengths))
+    rows = select_detectors(contrast_table, effect=effect, group_shares=shares,
+                            **dict(selection, lengths=lengths))
+    selection.update(encourage_share=encourage_share,
+                     ranking="|effect|, then q_value" if evidence is None
+                     else "q of the evidence test, then |effect|")
+    constraints = dict(constraints or {})
+    match_kw = {"max_gap": _int_or_none(constraints.get("max_gap")),
+                "max_window": _int_or_none(constraints.get("max_window")),
+                "skip_pauses": bool(constraints.get("skip_pauses", False))}
+    records = rows.to_dict("records")
+    known = set(db.vocab)
+    tokens = [pattern_tokens(r, known) for r in records]
+    ids = [_row_id(r, t) for r, t in zip(records, tokens)]
+    favours = [("" if _is_missing(r.get("favours")) else str(r["favours"]).strip())
+               for r in records]
+    after = absence_after_events
+    if isinstance(after, str):
+        if after != "auto":
+            raise ParameterError(f"The 'absence_after_events' parameter of {where} must be "
+                                 f"a whole number, None or 'auto'. Got {after!r} instead.")
+        enc = [k for k, f in enumerate(favours) if f == strong]
+        points = absence_thresholds(db, [tokens[k] for k in enc], [favours[k] for k in enc],
+                                    quantile=absence_quantile, **match_kw)
+        after = {ids[k]: p for k, p in zip(enc, points) if p is not None}
+        selection["absence"] = f"auto (quantile {absence_quantile:g})"
+    else:
+        selection["absence"] = after
+    excerpts = None
+    if examples and records:
+        found = build_examples(db, tokens, favours=favours, per_pattern=1, context=1,
+                               max_span=8, random_state=random_state, **match_kw)["patterns"]
+        excerpts = {i: (found.get(pattern_id(t)) or [None])[0] for i, t in zip(ids, tokens)}
     return build_detectors(
         rows, db.encoding, constraints, group_names=db.group_names, strong=strong, weak=weak,
         group_sizes=[len(set(db.learners[db.groups == g].tolist()))
                      for g in range(len(db.group_names))],
         vocabulary=[v for v, p in zip(db.vocab, db.is_pause) if not p], effect=effect,
-        absence_after_events=absence_after_events, absence_after_seconds=absence_after_seconds,
-        selection=selection)
+        absence_after_events=after, absence_after_seconds=absence_after_seconds,
+        selection=selection, examples=excerpts)
+
+
+def absence_thresholds(db, patterns, favours, *, quantile=ABSENCE_QUANTILE, max_gap=None,
+                       max_window=None, skip_pauses=False):
+    """Per pattern, the action events by which most learners who showed it had shown it.
+
+    For each pattern, every sequence of its favoured group that contains it is
+    searched for the earliest-ending occurrence (the semantics of
+    :mod:`seqmine.mining.patterns`); the number of action events (pause tokens not
+    counted) up to and including its last token is the sequence's *first-completion
+    point*. The threshold is the ``quantile`` of these points, rounded up: by then
+    that share of the favoured group's learners who ever showed the pattern had
+    shown it, so a learner who has not is late. An encourage detector's absence rule
+    fires there. The watcher counts the events of a sequence after the action
+    mapping, so the two agree unless repeated actions are collapsed.
+
+    Parameters
+    ----------
+    db : SequenceDB
+    patterns : list of (list of str or str)
+        Patterns as token lists, or as readable text (tokens joined by ``" > "``).
+    favours : list of str
+        Favoured group of each pattern.
+    quantile : float in (0, 1], default 0.75
+    max_gap, max_window, skip_pauses
+        Matching constraints of the patterns.
+
+    Returns
+    -------
+    list
+        Per pattern, a whole number of events, or None when no sequence of its group
+        contains it.
+
+    Examples
+    --------
+    >>> from seqmine.encoding.sequences import SequenceDB
+    >>> db = SequenceDB.from_lists([["a", "b", "c"], ["c", "c", "a", "b"], ["b", "a"]],
+    ...                            groups=["s", "s", "w"])
+    >>> absence_thresholds(db, [["a", "b"], "b > a"], ["s", "s"], quantile=0.5, max_gap=0)
+    [3, None]
+    """
+    quantile = check_number(quantile, "quantile", "absence_thresholds", minimum=0, strict=True)
+    if quantile > 1:
+        raise ParameterError(f"The 'quantile' parameter of absence_thresholds must be in "
+                             f"(0, 1]. Got {quantile!r} instead.")
+    index = {v: i for i, v in enumerate(db.vocab)}
+    groups = np.asarray(db.groups)
+    out = []
+    for pat, fav in zip(patterns, favours):
+        toks = split_readable(pat, set(index))
+        out.append(None)
+        if any(t not in index for t in toks) or fav not in db.group_names:
+            continue
+        ids = [index[t] for t in toks]
+        points = []
+        for s in np.flatnonzero(groups == db.group_names.index(fav)):
+            seq = db.sequence(int(s))
+            pos = find_occurrence(seq, ids, db.is_pause, max_gap=max_gap,
+                                  max_window=max_window, skip_pauses=skip_pauses)
+            if pos is not None:
+                points.append(int(np.sum(~db.is_pause[seq[:pos[-1] + 1]])))
+        if points:
+            out[-1] = int(math.ceil(np.quantile(points, quantile)))
+    return out
 
 
 def default_hint(tokens, direction, pause_ranges=None):
@@ -522,7 +759,7 @@ def validate_detectors(doc, *, source="detectors"):
     >>> validate_detectors({"format": "seqmine-detectors", "version": 9})
     Traceback (most recent call last):
     ...
-    seqmine.errors.DataFileError: detectors: version 9 is newer than this seqmine reads (version 1); upgrade seqmine or export the detectors again.
+    seqmine.errors.DataFileError: detectors: version 9 is newer than this seqmine reads (version 2); upgrade seqmine or export the detectors again.
     """
     def fail(field, msg):
         raise DataFileError(f"{source}: {field}: {msg}" if field else f"{source}: {msg}")
@@ -686,6 +923,8 @@ def _validate_detector(d, k, pause_ok, labels, seen, fail):
         fail(f"{at}.enabled", f"{d['enabled']!r} must be true or false.")
     if "evidence" in d and d["evidence"] is not None and not isinstance(d["evidence"], dict):
         fail(f"{at}.evidence", "must be an object.")
+    if d.get("example") is not None and not isinstance(d["example"], dict):
+        fail(f"{at}.example", "must be an object (one excerpt) or null.")
     ab = d.get("absence")
     if ab is not None:
         if not isinstance(ab, dict) or set(ab) - {"after_events", "after_seconds"}:
@@ -738,6 +977,15 @@ def _readable(token, ranges=None):
         span = (ranges or {}).get(token)
         return f"{words} ({span})" if span else words
     return token
+
+
+def _strong_weak(group_names, strong=None, weak=None):
+    names = [str(g) for g in group_names]
+    if len(names) < 2:
+        raise ParameterError(f"Detectors need at least two groups; got {names}.")
+    strong = strong if strong is not None else ("strong" if "strong" in names else names[0])
+    weak = weak if weak is not None else ("weak" if "weak" in names else names[1])
+    return strong, weak
 
 
 def _is_missing(v):

@@ -14,6 +14,25 @@ event, or an encourage pattern that was just shown) carry ``suppressed=True`` an
 reason. Encourage detectors can also fire on *absence*: the pattern has not been shown
 after a number of events or seconds of a sequence.
 
+Default delivery policy
+-----------------------
+Both directions reach learners, each at the moment it can help:
+
+* a **discourage** detector hints when its pattern occurs;
+* an **encourage** detector hints when its pattern has *not* occurred by its absence
+  point (``absence`` in the detectors file; ``seqmine detectors`` and ``analyze`` set
+  it per detector from the data, see :func:`seqmine.detection.detectors.absence_thresholds`).
+  Completing an encourage pattern is counted but not hinted (``reason="no_hint"``),
+  unless ``hint_on_encourage=True`` (e.g. to acknowledge it);
+* at most one hint per event (the smallest ``priority``, then the largest effect, then
+  the one hinted least recently), and none within ``cooldown_seconds`` of the last;
+* an absence hint held back by the cool-down or outranked is tried again at the
+  learner's next event after the cool-down, as long as the pattern has still not
+  occurred (it is a standing suggestion, not a reaction to one event);
+* at most ``max_absence_hints`` absence hints (default 2) per sequence, so a learner
+  is not handed every productive ordering at once; further absence firings are
+  reported with ``reason="limit"``.
+
 Exactness
 ---------
 Per-learner occurrence counts equal the offline instance counts when (1) each
@@ -48,7 +67,7 @@ from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from pathlib import Path
 
-from .._util.checks import check_number
+from .._util.checks import check_int, check_number
 from .._util.isotime import parse_iso_datetime
 from .._util.text import has_control_characters
 from ..encoding.sequences import PAUSE_PREFIX
@@ -95,7 +114,8 @@ class Firing:
     suppressed : bool
         True when the hint should not be shown now.
     reason : str or None
-        Why it is suppressed: ``"cooldown"``, ``"outranked"`` or ``"no_hint"``.
+        Why it is suppressed: ``"cooldown"``, ``"outranked"``, ``"no_hint"`` (a
+        completed encourage pattern) or ``"limit"`` (``max_absence_hints`` reached).
     """
 
     learner: str
@@ -201,6 +221,8 @@ class Watcher:
     hint_on_encourage : bool
         Whether a completed encourage pattern is delivered as a hint (e.g. praise);
         by default it is counted but suppressed with ``reason="no_hint"``.
+    max_absence_hints : int >= 0 or None, default 2
+        Most absence hints delivered per sequence (``None``: no limit).
     reject_duplicates : bool
         Reject an event equal to an earlier one of the same learner at the same time
         (learner, time, action, session, target, channel), like the loader's default.
@@ -230,7 +252,7 @@ class Watcher:
 
     def __init__(self, detectors, *, cooldown_seconds=60.0, idle_timeout=86400.0,
                  out_of_order_tolerance=1.0,
-                 hint_on_encourage=False, reject_duplicates=True):
+                 hint_on_encourage=False, reject_duplicates=True, max_absence_hints=2):
         where = "Watcher"
         if isinstance(detectors, (str, Path)):
             doc = load_detectors(detectors)
@@ -243,6 +265,8 @@ class Watcher:
         self.out_of_order_tolerance = check_number(out_of_order_tolerance,
                                                    "out_of_order_tolerance", where, minimum=0)
         self.hint_on_encourage = bool(hint_on_encourage)
+        self.max_absence_hints = check_int(max_absence_hints, "max_absence_hints", where,
+                                           minimum=0, allow_none=True)
         self.reject_duplicates = bool(reject_duplicates)
         self.notes = []
         self._compile(doc)
@@ -546,6 +570,8 @@ class Watcher:
         st.abs_e = 0
         st.abs_s = 0
         st.abs_done = set()
+        st.abs_retry = []
+        st.abs_hints = 0
 
     def _advance(self, st, tok, counted, time, fired):
         """Feed one token at the next position of the learner's current sequence."""
@@ -588,6 +614,12 @@ class Watcher:
                 nodes[n] = (s, cbs, c, times)
 
     def _check_absence(self, st, t, fired, learner):
+        if st.abs_retry and not (st.last_hint is not None
+                                 and t - st.last_hint < self.cooldown_seconds):
+            retry, st.abs_retry = st.abs_retry, []
+            for k in retry:
+                if k not in st.last_end:
+                    fired.append((k, None))
         rules = self._abs_events
         while st.abs_e < len(rules) and rules[st.abs_e][0] <= st.n_events:
             k = rules[st.abs_e][1]
@@ -619,11 +651,16 @@ class Watcher:
         cooldown = self.cooldown_seconds
         cooling = st.last_hint is not None and t - st.last_hint < cooldown
         held = (True, "cooldown") if cooling else (False, None)
+        limit = self.max_absence_hints
         for d, times in fired:
             if times is None:
-                f = Firing(learner, ids[d], "absence", t, (), label, 0, dirs[d], prios[d],
-                           hints[d], held[0], held[1])
-                cands.append(f)
+                if limit is not None and st.abs_hints >= limit:
+                    f = Firing(learner, ids[d], "absence", t, (), label, 0, dirs[d], prios[d],
+                               hints[d], True, "limit")
+                else:
+                    f = Firing(learner, ids[d], "absence", t, (), label, 0, dirs[d], prios[d],
+                               hints[d], held[0], held[1])
+                    cands.append(f)
             else:
                 occ = counts.get(d, 0) + 1
                 counts[d] = occ
@@ -638,6 +675,7 @@ class Watcher:
             out.append(f)
         self.stats["firings"] += len(out)
         if cooling or not cands:
+            self._retry_absence(st, out)
             return out
         if cooldown > 0 and len(cands) > 1:
             effect = self._det_effect
@@ -652,8 +690,19 @@ class Watcher:
         for f in cands:
             st.last_hint = t
             st.hint_times[f._index] = t
+            if f.kind == "absence":
+                st.abs_hints += 1
         self.stats["hints"] += len(cands)
+        self._retry_absence(st, out)
         return out
+
+    @staticmethod
+    def _retry_absence(st, firings):
+        """Absence hints held back now are tried again after the cool-down."""
+        for f in firings:
+            if (f.kind == "absence" and f.suppressed and f.reason != "limit"
+                    and f._index not in st.abs_retry):
+                st.abs_retry.append(f._index)
 
     def _expire(self, now, keep):
         self._last_sweep = now
@@ -670,8 +719,8 @@ class _Learner:
     __slots__ = ("raw_time", "last_time", "last_us", "prev_tok_time", "prev_sym", "dup_time",
                  "dup_first", "dup_keys",
                  "seq", "session", "label", "pos", "c", "nodes", "last_end", "n_events",
-                 "start_time", "abs_e", "abs_s", "abs_done", "counts", "last_hint",
-                 "hint_times")
+                 "start_time", "abs_e", "abs_s", "abs_done", "abs_retry", "abs_hints", "counts",
+                 "last_hint", "hint_times")
 
     def __init__(self):
         self.raw_time = _NEG_INF
@@ -694,6 +743,8 @@ class _Learner:
         self.abs_e = 0
         self.abs_s = 0
         self.abs_done = set()
+        self.abs_retry = []
+        self.abs_hints = 0
         self.counts = {}
         self.last_hint = None
         self.hint_times = {}

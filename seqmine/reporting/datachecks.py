@@ -11,7 +11,7 @@ from __future__ import annotations
 import math
 
 from ..encoding.pauses import format_seconds, pause_ranges
-from .html import _int, esc
+from .html import _int, esc, esc_message
 
 __all__ = ["data_checks_box", "report_pause_ranges", "DATA_CHECKS_CSS"]
 
@@ -39,7 +39,7 @@ def data_checks_box(d):
             n = (f" <small>({_int(count)})</small>" if isinstance(count, (int, float))
                  and not isinstance(count, bool) and math.isfinite(count) else "")
             items.append(f"<li><code>{esc(w.get('code', ''))}</code> "
-                         f"{esc(w.get('message', ''), max_chars=1200)}{n}</li>")
+                         f"{esc_message(w.get('message', ''), max_chars=1200)}{n}</li>")
     facts = _facts(summary)
     if items:
         head = (f"<b>Data checks</b>: {len(items)} thing(s) the run assumed or could not "
@@ -65,12 +65,13 @@ def report_pause_ranges(d):
     if enc is None:
         det = d["detectors"].value if "detectors" in d else None
         enc = det.get("encoding") if isinstance(det, dict) else None
+        enc = enc if isinstance(enc, dict) else None
     if enc is None and isinstance(summary.get("pause_edges_seconds"), list):
         enc = {"pause": {"edges": summary.get("pause_edges_seconds"),
                          "labels": summary.get("pause_labels") or []}}
     try:
         return pause_ranges(enc or {})
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, AttributeError):  # an edited file of another shape
         return {}
 
 

@@ -11,6 +11,7 @@ from __future__ import annotations
 import contextvars
 import json
 import math
+import re
 from html import escape
 
 import numpy as np
@@ -19,11 +20,14 @@ from .._util.text import replace_control_characters
 from ..mining.patterns import pattern_id
 from . import plots as _plots
 
-__all__ = ["esc", "lookup", "config_of", "counts_of", "group_names_of", "top_patterns",
-           "FigureIds", "PAGE_TITLE", "CSS", "CONFIG_SECTIONS", "row_tokens", "row_excerpts"]
+__all__ = ["esc", "esc_message", "lookup", "config_of", "counts_of", "group_names_of", "top_patterns",
+           "FigureIds", "PAGE_TITLE", "CSS", "CONFIG_SECTIONS", "LABELS", "label_of",
+           "wrap_figures", "PATTERN_SEPARATOR", "row_tokens", "row_excerpts"]
 
 PAGE_TITLE = "seqmine report: behaviour patterns and outcomes"
-_SEP = " > "
+#: How the report writes a pattern: the tokens joined as in patterns.csv.
+PATTERN_SEPARATOR = " > "
+_SEP = PATTERN_SEPARATOR
 _CORRECTIONS = {
     "bh": "Benjamini–Hochberg false discovery rate",
     "fdr_bh": "Benjamini–Hochberg false discovery rate",
@@ -60,7 +64,7 @@ th, td { border-bottom: 1px solid var(--line); padding: 4px 10px; text-align: le
   vertical-align: top; }
 th { background: var(--soft); font-weight: 600; }
 td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; }
-.grid2 { display:grid; grid-template-columns: repeat(auto-fit, minmax(440px, 1fr));
+.grid2 { display:grid; grid-template-columns: repeat(auto-fit, minmax(min(440px, 100%), 1fr));
   gap: 4px 24px; align-items: start; }
 .grid1 .fig { max-width: 760px; }
 .grid2 table, .grid1 table { width: 100%; max-width: 760px; font-size: 13px; }
@@ -103,7 +107,57 @@ pre { background: var(--soft); border:1px solid var(--line); padding: 8px 10px;
 .swatch { display:inline-block; width: 11px; height: 11px; border-radius: 2px;
   margin-right: 6px; vertical-align: -1px; }
 ul.cautions li { margin-bottom: 6px; max-width: 78ch; }
-@media print { h2 { break-before: auto; } article.card { break-inside: avoid; } }
+.tablebox { max-width: 100%; overflow-x: auto; margin: 8px 0 14px; }
+.tablebox > table { margin: 0; }
+.figbox { max-width: 100%; overflow-x: auto; }
+.figbox > svg.fig { min-width: var(--minw, 0); }
+.explorer .ex-controls { display:flex; flex-wrap:wrap; gap: 6px 16px; align-items:flex-end;
+  margin: 8px 0; font-size: 14px; }
+.explorer label { display:flex; flex-direction:column; gap:2px; color: var(--muted); }
+.explorer label.check { flex-direction:row; align-items:center; gap:6px; }
+.explorer input, .explorer select, .explorer button { font: inherit; color: var(--ink); }
+.explorer input[type=search] { min-width: 12em; }
+.ex-pager { display:flex; flex-wrap:wrap; align-items:center; gap: 6px 12px; margin: 6px 0;
+  font-size: 14px; }
+.ex-table th button { font: inherit; font-weight: 600; background: none; border: 0;
+  padding: 0; cursor: pointer; color: var(--ink); text-align: inherit; }
+.ex-table th[aria-sort=ascending] button::after { content: " ▲"; font-size: 10px; }
+.ex-table th[aria-sort=descending] button::after { content: " ▼"; font-size: 10px; }
+.ex-table td { white-space: nowrap; }
+.ex-table td.pat { white-space: normal; min-width: 18em; }
+.glance-no { font-weight: 600; }
+@media (max-width: 640px) {
+  main { padding: 14px 12px 8px; }
+  footer { padding: 12px 12px 24px; }
+  h1 { font-size: 22px; }
+  nav.toc ol { columns: 1; }
+  .bars { grid-template-columns: minmax(60px, max-content) 1fr 4em; }
+  article.card { padding: 8px 10px 10px; }
+}
+@page { size: A4; margin: 14mm 12mm; }
+@media print {
+  body { background: #fff; font-size: 9.5pt; line-height: 1.4; }
+  h2 { font-size: 15pt; } h3 { font-size: 11pt; margin: 8px 0 4px; }
+  p { margin: 3px 0 6px; }
+  article.card { padding: 4px 10px 6px; margin: 6px 0; border-radius: 0; }
+  .stats, .bars, .excerpt .who { font-size: 8pt; }
+  .tok { font-size: 8pt; }
+  blockquote.hint { padding: 3px 8px; }
+  main, footer { max-width: none; padding: 0; }
+  h2 { break-before: page; border-top: 0; margin-top: 0; }
+  h2, h3 { break-after: avoid; }
+  article.card, .figbox, .keybox { break-inside: avoid; }
+  nav.toc, #explorer-ui, #explorer-fallback { display: none; }
+  .tablebox, .figbox { overflow: visible; }
+  .figbox > svg.fig { min-width: 0; max-width: 100%; }
+  table { max-width: 100%; font-size: 8pt; }
+  th, td { padding: 2px 5px; overflow-wrap: anywhere; }
+  .grid2 { display: block; }
+  pre { white-space: pre-wrap; overflow-wrap: anywhere; max-height: none; }
+  a { color: inherit; text-decoration: none; }
+  .print-only { display: block; }
+}
+.print-only { display: none; }
 """
 
 
@@ -119,6 +173,27 @@ def esc(value, max_chars=400):
     if len(s) > max_chars:
         s = s[: max_chars - 1] + "…"
     return escape(s, quote=True)
+
+
+#: Technical words inside a message: configuration keys (``phases.max_states``), file
+#: names (``model_group-weak.json``), option flags (``--states``) and other words with an
+#: underscore. Matched on the escaped text, so they hold no markup.
+_TECHNICAL_WORD = re.compile(r"(?<![\w&;-])(?:--[a-z][\w-]*|[\w.-]*_[\w.-]*\w|"
+                             r"[\w-]+\.(?:json|csv|html|toml|gz|jsonl))")
+
+
+def esc_message(value, max_chars=400):
+    """Like :func:`esc`, with configuration keys, file names and flags set as code.
+
+    Messages written for the console name options and files; in the report these read
+    as code, not as prose.
+
+    Examples
+    --------
+    >>> esc_message("try --states 2-7 or phases.max_states = 7")
+    'try <code>--states</code> 2-7 or <code>phases.max_states</code> = 7'
+    """
+    return _TECHNICAL_WORD.sub(lambda m: f"<code>{m.group(0)}</code>", esc(value, max_chars))
 
 
 #: Sections of the configuration searched (in order) by :func:`lookup`.
@@ -190,6 +265,7 @@ class FigureIds:
 
 
 _SECTIONS = [("overview", "Data overview"), ("patterns", "Patterns that differ between groups"),
+             ("explorer", "All scored patterns"),
              ("tokens", "What each group does more of"),
              ("transitions", "Which action follows which"), ("phases", "Phases of work"),
              ("early-prediction", "How early can outcomes be recognised?"),
@@ -218,8 +294,9 @@ def _missing(reason):
 
 
 def _table(heads, rows, *, raw_cells=False, num_cols=()):
-    """HTML table. Cells are HTML already (callers escape); with raw_cells they
-    include their own <td>."""
+    """HTML table in its own horizontal scroll box (so a wide table never widens the
+    page). Cells are HTML already (callers escape); with raw_cells they include their
+    own <td>."""
     th = "".join(f'<th{" class=num" if i in num_cols else ""}>{esc(h)}</th>'
                  for i, h in enumerate(heads))
     body = []
@@ -230,14 +307,15 @@ def _table(heads, rows, *, raw_cells=False, num_cols=()):
             cells = "".join(f'<td{" class=num" if i in num_cols else ""}>{c}</td>'
                             for i, c in enumerate(r))
         body.append(f"<tr>{cells}</tr>")
-    return f"<table><thead><tr>{th}</tr></thead><tbody>{''.join(body)}</tbody></table>"
+    return (f'<div class="tablebox"><table><thead><tr>{th}</tr></thead>'
+            f"<tbody>{''.join(body)}</tbody></table></div>")
 
 
 #: Pause token -> its range in seconds, for the page being written (set by render).
 PAUSE_RANGES = contextvars.ContextVar("pause_ranges", default={})
 
 #: Sections whose figures name pause tokens: they end with a key to the ranges.
-_PAUSE_KEY_SECTIONS = ("patterns", "transitions", "phases")
+_PAUSE_KEY_SECTIONS = ("patterns", "explorer", "transitions", "phases")
 
 
 def _chip(tok):
@@ -250,7 +328,7 @@ def _chip(tok):
 
 
 def _chips(tokens):
-    return '<span class="arrow">→</span>'.join(_chip(t) for t in tokens)
+    return '<span class="arrow">&gt;</span>'.join(_chip(t) for t in tokens)
 
 
 def _split(pattern):
@@ -350,6 +428,12 @@ def _five_numbers(obj):
 
 
 def _describe_grouping(v):
+    """Readable rule of the outcome groups (``summary.json`` ``grouping``)."""
+    if isinstance(v, dict) and v.get("rule") in _RULES and all(
+            _is_finite(v.get(k)) for k in ("low", "high")):
+        return esc(_RULES[v["rule"]].format(low=_fmt(v["low"], 2), high=_fmt(v["high"], 2)))
+    if isinstance(v, dict) and v.get("rule") == "label":
+        return "the groups named in the outcome table's label column"
     if isinstance(v, dict):
         rule = v.get("rule")
         rest = [f"{esc(k)} {_fmt(x, 3) if _is_finite(x) else esc(x)}"
@@ -359,10 +443,93 @@ def _describe_grouping(v):
     return esc(v)
 
 
+_RULES = {
+    "median": "median split of the outcome at {low}, the learners above it forming the "
+              "better group",
+    "fraction": "top and bottom shares of the outcome, at or above {high} and at or below "
+                "{low}; the learners between get no group",
+    "thresholds": "fixed cut points, at or above {high} and below {low}; the learners "
+                  "between get no group",
+}
+
+
 def _metric_head(c):
-    if c.startswith("recall_"):
-        return f"recall {c[len('recall_'):]}"
-    return {"roc_auc": "ROC AUC", "balanced_accuracy": "balanced accuracy"}.get(c, c)
+    return label_of(c)
+
+
+#: Readable label of every column or value name the report shows (one vocabulary for
+#: the tables, the cards, the explorer and the detector evidence).
+LABELS = {
+    "pattern": "pattern", "pattern_id": "pattern id", "length": "length",
+    "favours": "favours", "p_value": "p", "q_value": "q",
+    "p_volume": "p (volume-adjusted)", "q_volume": "q (volume-adjusted)",
+    "p_order": "p (order)", "q_order": "q (order)", "evidence": "evidence",
+    "kind": "evidence", "risk_difference": "risk difference", "odds_ratio": "odds ratio",
+    "log_odds_ratio": "log odds ratio", "growth_rate": "growth rate",
+    "cohens_h": "Cohen's h", "cliffs_delta": "Cliff's delta", "cramers_v": "Cramér's V",
+    "p_rate": "p (rates)", "q_rate": "q (rates)", "stability": "stability",
+    "replication": "replication", "redundant_of": "near-duplicate of",
+    "support": "support", "rate": "rate per 100 tokens", "n": "sequences",
+    "effects": "effect sizes",
+    "classifier": "classifier", "fraction": "observed", "n_learners": "held-out learners",
+    "n_repeats": "repetitions", "accuracy": "accuracy",
+    "balanced_accuracy": "balanced accuracy", "roc_auc": "ROC AUC",
+    "baseline_accuracy": "majority baseline accuracy", "baseline": "majority baseline",
+    "beats_baseline": "beats baseline", "n_classifier_better": "learners better classified",
+    "n_baseline_better": "learners better by baseline",
+    "count": "count", "probability": "share of next steps", "expected": "expected count",
+    "adjusted_residual": "adjusted residual", "yules_q": "Yule's Q",
+    "q_difference": "q (groups differ)", "p_difference": "p (groups differ)",
+    "n_states": "phases", "bic": "BIC", "heldout_loglik": "held-out log-likelihood",
+    "model": "model", "group": "group",
+}
+_PREFIXED = {"support_": "support", "rate_": "rate", "recall_": "recall"}
+
+
+def label_of(key):
+    """Readable label of a column or value name.
+
+    Examples
+    --------
+    >>> label_of("cohens_h"), label_of("support_strong"), label_of("n_learners")
+    ("Cohen's h", 'support strong', 'held-out learners')
+    """
+    key = str(key)
+    if key in LABELS:
+        return LABELS[key]
+    for prefix, word in _PREFIXED.items():
+        if key.startswith(prefix):
+            return f"{word} {key[len(prefix):]}"
+    return key.replace("_", " ")
+
+
+_SVG_ROOT = re.compile(r'<svg role="img"[^>]*class="fig"[^>]*width="([\d.]+)pt"[^>]*>')
+
+
+def wrap_figures(html, min_scale=0.75):
+    """Put every report figure in a box that scrolls sideways on narrow screens.
+
+    A figure shrinks with the page down to ``min_scale`` of its drawn size (so text
+    drawn at 9 pt stays at least 9 px tall), then its box scrolls instead.
+
+    Examples
+    --------
+    >>> wrap_figures('<svg role="img" class="fig" width="300pt" height="9pt"></svg>')
+    '<div class="figbox" style="--minw:300px"><svg role="img" class="fig" width="300pt" height="9pt"></svg></div>'
+    """
+    out, pos = [], 0
+    for m in _SVG_ROOT.finditer(html):
+        end = html.find("</svg>", m.end())
+        if end < 0:
+            break
+        end += len("</svg>")
+        width_px = float(m.group(1)) * 4 / 3 * min_scale
+        out.append(html[pos:m.start()])
+        out.append(f'<div class="figbox" style="--minw:{width_px:.0f}px">'
+                   + html[m.start():end] + "</div>")
+        pos = end
+    out.append(html[pos:])
+    return "".join(out)
 
 
 def _plural(n, word):

@@ -32,6 +32,7 @@ from .html import (
     _true,
     config_of,
     esc,
+    label_of,
     row_tokens,
 )
 
@@ -112,7 +113,7 @@ def _excerpt(ex, groups):
             f'<div class="flow">{"".join(cells)}</div></div>')
 
 
-def _detector_card(i, det, groups):
+def _detector_card(i, det, groups, show_example=True):
     tokens = det.get("tokens", det.get("pattern"))
     if isinstance(tokens, str):
         tokens = _split(tokens)
@@ -134,36 +135,71 @@ def _detector_card(i, det, groups):
         out.append(f'<blockquote class="hint">{esc(hint, max_chars=2000)}</blockquote>')
     else:
         out.append('<p class="note">No hint text yet.</p>')
+    out.append(f"<p>{_when_it_hints(det, direction)}</p>")
     facts = []
     if det.get("priority") is not None:
         facts.append(f"<span>priority <b>{esc(det['priority'])}</b></span>")
     if det.get("favours"):
         facts.append(f"<span>more common among {_group_label(det['favours'], groups)}</span>")
-    absence = det.get("absence")
-    if isinstance(absence, dict):
-        when = []
-        if _is_finite(absence.get("after_events")):
-            when.append(f"{_int(absence['after_events'])} events")
-        if _is_finite(absence.get("after_seconds")):
-            when.append(_duration(absence["after_seconds"]))
-        if when:
-            facts.append("<span>also fires when the pattern has not occurred after "
-                         + " or ".join(when) + "</span>")
     for key in ("max_gap", "max_window"):
         if det.get(key) is not None:
-            facts.append(f"<span>{key.replace('_', ' ')} <b>{esc(det[key])}</b></span>")
+            facts.append(f"<span>{esc(label_of(key))} <b>{esc(det[key])}</b></span>")
     if facts:
         out.append('<div class="stats">' + "".join(facts) + "</div>")
     if det.get("notes"):
         out.append(f"<p>Notes: {esc(det['notes'], max_chars=2000)}</p>")
     ev = det.get("evidence")
     if isinstance(ev, dict) and ev:
-        items = [f"<span>{esc(label)} <b>{_evidence_value(key, v)}</b></span>"
-                 for label, key, v in _flatten(ev)]
-        out.append('<div class="stats evidence"><span class="note">evidence:</span>'
-                   + "".join(items) + "</div>")
+        out.append(_evidence_block(ev, groups))
+    if isinstance(det.get("example"), dict) and show_example:
+        out.append(_excerpt(det["example"], groups))
     out.append("</article>")
     return "\n".join(out)
+
+
+def _when_it_hints(det, direction):
+    """One sentence: when the watcher delivers this detector's hint by default."""
+    if det.get("enabled") is False:
+        return "Switched off: the watcher ignores it."
+    if direction == "discourage":
+        return "Hints when the pattern <b>occurs</b>."
+    absence = det.get("absence") if isinstance(det.get("absence"), dict) else {}
+    when = []
+    if _is_finite(absence.get("after_events")):
+        when.append(f"{_int(absence['after_events'])} events")
+    if _is_finite(absence.get("after_seconds")):
+        when.append(_duration(absence["after_seconds"]))
+    if when:
+        return ("Hints when the pattern has <b>not occurred</b> after "
+                + " or ".join(when) + " of a sequence; completing it is counted, not hinted.")
+    return ("Counted when it occurs; no absence rule, so by default it never hints (see "
+            "<code>absence</code> in detectors.json).")
+
+
+def _evidence_block(ev, groups):
+    """Per-group supports and rates as a small table, the other evidence as a line."""
+    per = {k: ev.get(k) for k in ("n", "support", "rate") if isinstance(ev.get(k), dict)}
+    # pause ranges are shown in the token chips themselves
+    rest = {k: v for k, v in ev.items() if k not in per and k != "pause_ranges"}
+    out = []
+    names = _ordered([g for d in per.values() for g in d], groups)
+    if names:
+        cols = [k for k in ("n", "support", "rate") if k in per]
+        rows = []
+        for g in names:
+            row = [_group_label(g, groups)]
+            for k in cols:
+                v = per[k].get(g)
+                row.append(_int(v) if k == "n" else _pct(v) if k == "support" else _fmt(v, 2))
+            rows.append(row)
+        out.append(_table(["group"] + [label_of(k) for k in cols], rows,
+                          num_cols=tuple(range(1, len(cols) + 1))))
+    items = [f"<span>{esc(label)} <b>{_evidence_value(key, v)}</b></span>"
+             for label, key, v in _flatten(rest)]
+    if items:
+        out.append('<div class="stats evidence"><span class="note">evidence:</span>'
+                   + "".join(items) + "</div>")
+    return "".join(out)
 
 
 def _flatten(obj, prefix=(), depth=0):
@@ -175,10 +211,10 @@ def _flatten(obj, prefix=(), depth=0):
             out += _flatten(v, path, depth + 1)
         else:
             if path[0] == "effects" and len(path) == 2:
-                label = path[1].replace("_", " ")
+                label = label_of(path[1])
             else:
-                label = path[0].replace("_", " ") + (f" ({', '.join(path[1:])})"
-                                                     if len(path) > 1 else "")
+                label = label_of(path[0]) + (f" ({', '.join(path[1:])})"
+                                             if len(path) > 1 else "")
             out.append((label, "/".join(path), v))
     return out
 
@@ -189,9 +225,9 @@ def _evidence_value(key, v):
             return "–"
         return esc(v if not isinstance(v, (dict, list)) else json.dumps(v, sort_keys=True))
     head = key.split("/")[0]
-    if "p_value" in key or "q_value" in key:
+    if head.startswith(("p_", "q_")) or "p_value" in key or "q_value" in key:
         return _fmt_p(v)
-    if head.startswith(("support", "recall")) or key.startswith("support_"):
+    if head.startswith(("support", "recall", "replication")) or key.startswith("support_"):
         return _pct(v)
     if head == "n":
         return _int(v)
@@ -248,7 +284,7 @@ def _transition_table(sub, n=5):
     for label, part in (("more often", hi), ("less often", lo)):
         for _, r in part.iterrows():
             rows.append([esc(label), f"<span class=\"pair\">{_chip(r['from'])}<span "
-                         f"class=\"arrow\">→</span>{_chip(r['to'])}</span>"]
+                         f"class=\"arrow\">&gt;</span>{_chip(r['to'])}</span>"]
                         + [_transition_cell(c, r[c]) for c in cols])
     if not rows:
         return ""

@@ -3,9 +3,12 @@
 :func:`render_report` reads the files the pipeline wrote (names and columns listed
 in the module constants below, which are the reader's contract) and writes
 ``report.html`` beside them: one page, inline CSS, figures as inline SVG, no
-scripts, no external fonts, images or links, and a Content-Security-Policy that
-forbids scripts and network loads. Every string taken from the data (tokens,
-actions, learner ids, group names, hint text, reasons) is HTML-escaped.
+external fonts, images or links, and a Content-Security-Policy that forbids network
+loads and every script except the pattern explorer's, which it allows by its SHA-256
+hash (:mod:`seqmine.reporting.explorer`). Every string taken from the data (tokens,
+actions, learner ids, group names, hint text, reasons) is HTML-escaped. Wide tables
+and figures scroll inside their own box on narrow screens, and a print style sheet
+lays the page out on A4.
 
 Each section is rendered when its file exists and shows a short "not produced in
 this run" note otherwise; a missing column leaves out only what needs it. Output is
@@ -32,6 +35,7 @@ from . import sections as sec
 from .datachecks import DATA_CHECKS_CSS, report_pause_ranges
 from .evidence import findings_by_evidence
 from .examples import build_examples
+from .explorer import DEFAULT_MAX_ROWS, EXPLORER_SCRIPT, script_hash, section_explorer, swatch_css
 from .html import esc
 
 __all__ = [
@@ -115,6 +119,9 @@ SUMMARY_KEYS = {
     "method.max_length": "longest pattern mined",
     "method.max_gap": "largest gap (tokens) between pattern items",
     "method.n_splits": "learner-level cross-validation folds of early prediction",
+    "method.n_repeats": "repetitions of the k-fold split of early prediction",
+    "early_prediction": "{n_splits, n_repeats, n_repeats_hmm, learners_scored, "
+                        "groups_fixed_once, beats_baseline, earliest_fraction}",
     "pseudonymized": "true when learner identifiers were replaced by keyed hashes",
     "configuration": "effective configuration, shown verbatim (also accepted: config)",
     "versions": "{package: version}",
@@ -213,12 +220,15 @@ PREDICTION_COLUMNS = {
     "classifier": "name of the classifier ('majority' = the baseline)",
     "fraction": "share of each sequence observed (0-1]",
     "n_learners": "held-out learners",
+    "n_repeats": "repetitions of the k-fold split behind the row",
     "accuracy": "accuracy over held-out learners",
     "balanced_accuracy": "mean of per-group recalls",
     "recall_<group>": "share of the group's learners recognised",
     "roc_auc": "area under the ROC curve",
     "<metric>_low": "lower bootstrap bound of each metric",
     "<metric>_high": "upper bootstrap bound of each metric",
+    "<metric>_min": "lowest value of each metric over the repetitions",
+    "<metric>_max": "highest value of each metric over the repetitions",
     "baseline_accuracy": "accuracy of always predicting the majority group",
     "beats_baseline": "true when the classifier beats the baseline (one-sided test)",
 }
@@ -235,7 +245,9 @@ DETECTOR_KEYS = {
     "priority": "number; smaller is delivered first (1 = most important)",
     "enabled": "false to switch a detector off",
     "absence": "{after_events, after_seconds}: encourage detectors fire when absent",
-    "evidence": "object of evidence values (support, n, p_value, q_value, effects, stability)",
+    "evidence": "object of evidence values (support, rate, n, p_value, q_value, effects, "
+                "stability, ...)",
+    "example": "one excerpt {learner, group, events}",
     "notes": "free text for reviewers",
 }
 
@@ -251,7 +263,8 @@ _DEFAULT_ALPHA = DEFAULT_CONFIG["contrast"]["alpha"]
 
 
 def render_report(out_dir, *, examples=DEFAULT_CONFIG["report"]["examples"],
-                  max_patterns=DEFAULT_CONFIG["report"]["max_patterns"], max_examples=2):
+                  max_patterns=DEFAULT_CONFIG["report"]["max_patterns"], max_examples=2,
+                  explorer_rows=DEFAULT_CONFIG["report"]["explorer_rows"]):
     """Write ``report.html`` into an output folder, from the files in it.
 
     Parameters
@@ -265,6 +278,9 @@ def render_report(out_dir, *, examples=DEFAULT_CONFIG["report"]["examples"],
         Differential patterns shown in detail.
     max_examples : int, default 2
         Excerpts shown per pattern.
+    explorer_rows : int, default 5000
+        Most patterns placed in the pattern explorer (the most reliable first; all
+        are in patterns.csv).
 
     Returns
     -------
@@ -296,7 +312,8 @@ def render_report(out_dir, *, examples=DEFAULT_CONFIG["report"]["examples"],
             f"({', '.join(sorted(set(OUTPUT_FILES.values()) - {'phases'}))}); run "
             f"'seqmine analyze' into it first.")
     data = _read_all(folder)
-    page = _page(data, examples=examples, max_patterns=max_patterns, max_examples=max_examples)
+    page = _page(data, examples=examples, max_patterns=max_patterns, max_examples=max_examples,
+                 explorer_rows=explorer_rows)
     target = folder / REPORT_FILE
     if target.is_symlink():  # checked first, so nothing is written at all
         open_new(target)
@@ -534,41 +551,49 @@ def _alpha(summary):
 # --------------------------------------------------------------------------- page
 
 
-def _page(d, *, examples, max_patterns, max_examples):
+def _page(d, *, examples, max_patterns, max_examples, explorer_rows=DEFAULT_MAX_ROWS):
     token = hx.PAUSE_RANGES.set(report_pause_ranges(d))
     try:
         return _page_body(d, examples=examples, max_patterns=max_patterns,
-                          max_examples=max_examples)
+                          max_examples=max_examples, explorer_rows=explorer_rows)
     finally:
         hx.PAUSE_RANGES.reset(token)
 
 
-def _page_body(d, *, examples, max_patterns, max_examples):
+def _page_body(d, *, examples, max_patterns, max_examples, explorer_rows):
     figs = hx.FigureIds()
+    explorer = section_explorer(d, max_rows=explorer_rows)
+    scripted = 'id="explorer-data"' in explorer
     parts = [
         sec.section_intro(d),
         *[f'<p class="note">{esc(n)}</p>' for n in d.get("record_notes", [])],
         sec.section_overview(d, figs),
         sec.section_patterns(d, figs, examples=examples, max_patterns=max_patterns,
                              max_examples=max_examples),
+        explorer,
         sec.section_tokens(d),
         sec.section_transitions(d, figs),
         sec.section_phases(d, figs),
         sec.section_prediction(d, figs),
-        sec.section_detectors(d),
+        sec.section_detectors(d, examples=examples),
         sec.section_method(d),
         sec.section_cautions(d),
     ]
     summary = d["summary"].value or {}
     version = summary.get("seqmine_version") or (summary.get("versions") or {}).get("seqmine")
     footer = f"Written by seqmine {esc(version or __version__)} from the files in this folder."
-    body = "\n".join(parts)
+    body = hx.wrap_figures("\n".join(parts))
+    # scripts: only the explorer's, allowed by its hash; nothing may be fetched
+    script_src = f"script-src {script_hash()}; " if scripted else ""
+    script = f"<script>{EXPLORER_SCRIPT}</script>\n" if scripted else ""
     return (
         "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
         "<meta http-equiv=\"Content-Security-Policy\" content=\"default-src 'none'; "
-        "style-src 'unsafe-inline'; base-uri 'none'; form-action 'none'\">\n"
+        f"{script_src}style-src 'unsafe-inline'; base-uri 'none'; form-action 'none'\">\n"
         "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n"
         "<meta name=\"referrer\" content=\"no-referrer\">\n"
-        f"<title>{hx.PAGE_TITLE}</title>\n<style>\n{hx.CSS}{DATA_CHECKS_CSS}</style>\n</head>\n<body>\n"
-        f"<main>\n{body}\n</main>\n<footer>{footer}</footer>\n</body>\n</html>\n"
+        f"<title>{hx.PAGE_TITLE}</title>\n<style>\n{hx.CSS}{DATA_CHECKS_CSS}{swatch_css()}"
+        "</style>\n</head>\n"
+        f"<body>\n<main>\n{body}\n</main>\n<footer>{footer}</footer>\n{script}</body>\n"
+        "</html>\n"
     )

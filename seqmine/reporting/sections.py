@@ -28,7 +28,6 @@ from .html import (
     _int,
     _is_finite,
     _matrix,
-    _metric_head,
     _missing,
     _ordered,
     _pct,
@@ -37,11 +36,12 @@ from .html import (
     _significant,
     _str_list,
     _table,
-    _true,
     config_of,
     counts_of,
     esc,
+    esc_message,
     row_excerpts,
+    PATTERN_SEPARATOR,
     row_tokens,
     lookup,
     top_patterns,
@@ -54,6 +54,7 @@ from .evidence import (
     tokens_table,
     unit_lines,
 )
+from .prediction import prediction_glance, section_prediction
 from .pieces import (
     _detector_card,
     _group_table,
@@ -122,10 +123,8 @@ def _key_findings(d):
             else:
                 items.append(f"None of the {_int(len(pat))} patterns differs reliably between "
                              f"groups{beyond} (q ≤ {d['alpha']:g}).")
-    items += _earliest_glance(d["early_prediction"].value)
-    det = (d["detectors"].value or {}).get("detectors")
-    if isinstance(det, list):
-        items.append(f"{_int(len(det))} detectors exported for review.")
+    items += prediction_glance(d)
+    items += _detectors_glance(d)
     if not items:
         return ""
     return ('<div class="keybox"><b>At a glance</b><ul>' + "".join(f"<li>{i}</li>" for i in items)
@@ -154,19 +153,15 @@ def _strongest(sig, groups):
     return items
 
 
-def _earliest_glance(df):
-    """One line: the best balanced accuracy reached, and after how much of the sequence."""
-    if df is None or not {"fraction", "balanced_accuracy"} <= set(df.columns):
+def _detectors_glance(d):
+    """One line: how many detectors, in which direction."""
+    det = (d["detectors"].value or {}).get("detectors")
+    if not isinstance(det, list):
         return []
-    sub = df[df["classifier"].astype(str) != "majority"] if "classifier" in df.columns else df
-    sub = sub[np.isfinite(sub["balanced_accuracy"]) & np.isfinite(sub["fraction"])]
-    if sub.empty:
-        return []
-    early = sub[sub["fraction"] == sub["fraction"].min()]
-    best = early.sort_values("balanced_accuracy", ascending=False, kind="mergesort").iloc[0]
-    name = f" ({esc(best['classifier'])})" if "classifier" in sub.columns else ""
-    return [f"After {_pct(best['fraction'])} of a sequence, the best classifier{name} reaches "
-            f"a balanced accuracy of {_fmt(best['balanced_accuracy'], 2)} (chance 0.5)."]
+    dirs = [str(x.get("direction", "")) for x in det if isinstance(x, dict)]
+    return [f"{_plural(len(det), 'detector')} exported for review: "
+            f"{_int(dirs.count('encourage'))} encourage, {_int(dirs.count('discourage'))} "
+            "discourage."]
 
 
 def section_overview(d, figs):
@@ -251,8 +246,8 @@ def section_patterns(d, figs, *, examples, max_patterns, max_examples):
         if ex_inp.ok and isinstance(ex_inp.value.get("patterns"), dict):
             ex_map = ex_inp.value["patterns"]
     redundant_note = (f" {_plural(hidden, 'pattern')} that nearly duplicate a listed one (same "
-                      "learners) left out here; see the redundant_of column of patterns.csv."
-                      if hidden else "")
+                      "learners) left out here; see the <code>redundant_of</code> column of "
+                      "patterns.csv." if hidden else "")
     grouped = findings_by_evidence(df, max_patterns)
     if not grouped:  # a table without the evidence column: one list by q value
         top, note = top_patterns(df, d["alpha"], max_patterns)
@@ -283,7 +278,7 @@ def _cards(rows, sup_cols, groups, d, figs, ex_map, examples, max_examples):
     out = []
     if sup_cols and len(rows):
         out.append(_plots.svg_support_bars(
-            [" → ".join(row_tokens(r)) for _, r in rows.iterrows()],
+            [PATTERN_SEPARATOR.join(row_tokens(r)) for _, r in rows.iterrows()],
             {g: rows[c].to_numpy(float) for g, c in sup_cols}, fig_id=figs()))
     for rank, (_, row) in enumerate(rows.iterrows(), start=1):
         out.append(_pattern_card(rank, row, sup_cols, groups, d["alpha"],
@@ -385,7 +380,7 @@ def section_phases(d, figs):
                             for t, p in st["emissions"][:5])] for st in states]
         cells.append(
             f"<div><h3>{_group_label(m['group'], d['groups'])} "
-            f'<span class="note">({esc(m["file"])})</span></h3>\n'
+            f'<span class="note">(<code>{esc(m["file"])}</code>)</span></h3>\n'
             + _plots.svg_state_diagram(states, m["transmat"], min_prob=min_prob,
                                        title=f"Phase model: {m['group']}", fig_id=figs())
             + _table(["phase", "stays (steps)", "most frequent tokens"], rows,
@@ -413,7 +408,7 @@ def _phase_warnings(psum):
     if not msgs:
         return ""
     return ('<div class="note"><b>Check before reading the phases:</b><ul>'
-            + "".join(f"<li>{esc(m)}</li>" for m in msgs) + "</ul></div>")
+            + "".join(f"<li>{esc_message(m)}</li>" for m in msgs) + "</ul></div>")
 
 
 def phase_model(data):
@@ -463,117 +458,23 @@ def phase_model(data):
     return {"states": states, "transmat": tm}
 
 
-def section_prediction(d, figs):
-    """Early prediction curves against the majority baseline."""
-    out = [_h2("early-prediction"),
-           "<p>Classifiers were trained on some learners and tested on others, seeing only "
-           "the first part of each test sequence. <b>Balanced accuracy</b> averages the share "
-           "recognised in each group, so 0.5 is chance whatever the group sizes. The dashed "
-           "line is the <b>majority baseline</b>: always guessing the larger group. Shaded "
-           "bands are bootstrap confidence intervals.</p>"]
-    inp = d["early_prediction"]
-    if not inp.ok:
-        return _section("early-prediction", out + [_missing(inp.note)])
-    df = inp.value
-    metrics = [m for m in ("balanced_accuracy", "accuracy") if m in df.columns]
-    if "fraction" not in df.columns or not metrics:
-        return _section("early-prediction", out + [_missing(
-            "early_prediction.csv needs 'fraction' and 'accuracy' or 'balanced_accuracy'")])
-    if "classifier" not in df.columns:
-        df = df.assign(classifier="classifier")
-    df = df.assign(classifier=df["classifier"].astype(str))
-    names = list(dict.fromkeys(df["classifier"]))
-    rank = {n: i for i, n in enumerate(names)}
-    df = (df.assign(_r=df["classifier"].map(rank))
-          .sort_values(["_r", "fraction"], kind="mergesort").drop(columns="_r"))
-    base_col = next((c for c in ("baseline_accuracy", "baseline") if c in df.columns), None)
-    shown = [n for n in names if n != "majority"] or names
-    charts = []
-    for metric in metrics:
-        curves = {}
-        for name in shown:
-            sub = df[df["classifier"] == name]
-            lo, hi = _bounds(sub, metric)
-            curves[name] = {"fraction": sub["fraction"], "value": sub[metric],
-                            "low": lo, "high": hi}
-        baseline = chance = None
-        if metric == "accuracy":
-            if base_col is not None:
-                b = df.groupby("fraction", sort=True)[base_col].mean()
-                baseline = {"fraction": b.index, "value": b.to_numpy(),
-                            "label": "majority baseline"}
-            elif "majority" in names and len(shown) < len(names):
-                b = df[df["classifier"] == "majority"]
-                baseline = {"fraction": b["fraction"], "value": b["accuracy"],
-                            "label": "majority baseline"}
-        if metric == "balanced_accuracy":
-            chance = 0.5
-        label = metric.replace("_", " ")
-        charts.append("<div>" + _plots.svg_prediction_curves(
-            curves, fig_id=figs(), baseline=baseline, chance=chance, ylabel=label,
-            title=f"{label.capitalize()} by share of sequence observed") + "</div>")
-    out.append('<div class="grid2">' + "".join(charts) + "</div>")
-    out.append(_earliest(df, shown))
-    recall = [c for c in df.columns if c.startswith("recall_") and not c.endswith(("_low",
-                                                                                    "_high"))]
-    cols = [c for c in ("n_learners", "accuracy", "balanced_accuracy", *recall, "roc_auc",
-                        base_col) if c is not None and c in df.columns]
-    rows = []
-    for _, r in df.iterrows():
-        row = [esc(r["classifier"]), _pct(r["fraction"])]
-        for c in cols:
-            row.append(_int(r[c]) if c == "n_learners" else _fmt(r[c], 2))
-        if "beats_baseline" in df.columns:
-            row.append("✓" if _true(r["beats_baseline"]) else "")
-        rows.append(row)
-    heads = (["classifier", "observed"] + [_metric_head(c) for c in cols]
-             + (["beats baseline"] if "beats_baseline" in df.columns else []))
-    out.append("<details><summary>All values</summary>"
-               + _table(heads, rows, raw_cells=False, num_cols=tuple(range(1, 2 + len(cols))))
-               + "</details>")
-    return _section("early-prediction", out)
-
-
-def _bounds(sub, metric):
-    for lo, hi in ((f"{metric}_low", f"{metric}_high"),
-                   (f"{metric}_ci_low", f"{metric}_ci_high")):
-        if lo in sub.columns and hi in sub.columns and sub[[lo, hi]].notna().all().all():
-            return sub[lo], sub[hi]
-    return None, None
-
-
-def _earliest(df, names):
-    """Earliest fraction at which each classifier is reliably better than the baseline."""
-    if "beats_baseline" in df.columns:
-        rule = ("the classifier was right for significantly more held-out learners than "
-                "the majority baseline (one-sided test)")
-        hit = df["beats_baseline"].map(_true)
-    elif "balanced_accuracy" in df.columns and _bounds(df, "balanced_accuracy")[0] is not None:
-        rule = "the lower confidence bound of balanced accuracy is above chance"
-        hit = _bounds(df, "balanced_accuracy")[0] > 0.5
-    else:
-        return ""
-    parts = []
-    for name in names:
-        sel = (df["classifier"] == name) & hit
-        if sel.any():
-            parts.append(f"<li>{esc(name)}: from {_pct(df.loc[sel, 'fraction'].min())} of "
-                         "the sequence.</li>")
-        else:
-            parts.append(f"<li>{esc(name)}: not at any observed share.</li>")
-    return (f"<p>Earliest reliable recognition (first share of the sequence at which {rule}):"
-            "</p><ul>" + "".join(parts) + "</ul>")
-
-
-def section_detectors(d):
-    """Exported detectors with direction, hint text and evidence."""
+def section_detectors(d, *, examples=True):
+    """Exported detectors with direction, delivery, hint text, evidence and an example."""
     out = [_h2("detectors"),
            "<p>Each detector watches a live event stream for one pattern and, when it "
            "fires, can show its hint. <b>Encourage</b> marks orderings more common among "
            "learners who did well; <b>discourage</b> marks orderings more common among those "
            "who did not. Hint texts and priorities are drafts to edit in "
            "<code>detectors.json</code> (priority 1 is delivered first); review them with "
-           "educators and pilot them before they reach learners.</p>"]
+           "educators and pilot them before they reach learners.</p>"
+           "<p><b>Delivery by default</b> (<code>seqmine watch</code>): a discourage "
+           "detector hints when its pattern occurs; an encourage detector hints when its "
+           "pattern has <i>not</i> occurred by its absence point (by then three in four "
+           "learners of the favoured group who ever showed it had shown it). At most one "
+           "hint per event, none within the cool-down after the last (60 s), and at most "
+           "two absence hints per sequence; an absence hint held back is tried again after "
+           "the cool-down. Each card shows the supports and rates per group, the q values, "
+           "the length of every pause in seconds and one short example.</p>"]
     inp = d["detectors"]
     if not inp.ok:
         return _section("detectors", out + [_missing(inp.note)])
@@ -608,7 +509,7 @@ def section_detectors(d):
                + (f"; {_int(off)} switched off" if off else "") + ".</p>")
     indexed.sort(key=lambda t: (_priority(t[1].get("priority")), t[0]))
     for i, det in indexed:
-        out.append(_detector_card(i, det, d["groups"]))
+        out.append(_detector_card(i, det, d["groups"], show_example=examples))
     return _section("detectors", out)
 
 
@@ -648,13 +549,17 @@ def section_method(d):
     add("Bootstrap resamples behind stability", "n_bootstrap")
     add("Random half splits behind replication", "n_replication_splits")
     add("Cross-validation folds (early prediction)", "n_splits")
+    add("Repetitions of the cross-validation (classifiers using phase models)", "n_repeats",
+        lambda v: esc(v) + (f" ({esc(lookup(summary, 'n_repeats_hmm'))})"
+                            if lookup(summary, "n_repeats_hmm") is not None else ""))
     items.append(f"<li>{STABILITY_TEXT}</li>")
     items.append("<li><b>Patterns</b> were mined by prefix projection (PrefixSpan) and kept "
                  "when frequent in at least one group. <b>Transitions</b>: lag-1 counts with "
                  "adjusted residuals and Yule's Q. <b>Phases</b>: hidden Markov models with "
                  "categorical emissions fitted by Baum–Welch, decoded with Viterbi. <b>Early "
-                 "prediction</b>: learner-level cross-validation with all pattern discovery "
-                 "inside the training folds.</li>")
+                 "prediction</b>: learner-level cross-validation, repeated with fresh shuffles, with all "
+                 "pattern discovery inside the training folds; the outcome groups are "
+                 "decided once from the outcome table and kept in every fold.</li>")
     out.append("<ul>" + "".join(items) + "</ul>")
     counts = counts_of(summary)
     out.append(_group_table(counts, d["groups"], title="Sample sizes"))

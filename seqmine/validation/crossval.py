@@ -1,9 +1,13 @@
 """Learner-level cross-validation of the whole discovery pipeline and early prediction.
 
-Every step that learns from data -- the outcome grouping thresholds, the pause-bin
-edges, pattern mining, differential selection and the group HMMs -- is fitted on the
-training learners of a fold only, then applied unchanged to the held-out learners,
-whose sequences are cut to their first 10 %, 20 %, ... of events and classified.
+Every step that learns from the logs -- the pause-bin edges, pattern mining,
+differential selection and the group HMMs -- is fitted on the training learners of a
+fold only, then applied unchanged to the held-out learners, whose sequences are cut
+to their first 10 %, 20 %, ... of events and classified. The outcome groups are the
+labels being predicted: they are decided once from the outcome table (rule and cut
+points) and stay fixed in every fold, so every grouped learner is scored. The split
+into folds is repeated with fresh shuffles and the metrics are averaged over the
+repetitions, with their spread.
 Findings are correlational; a detector built on them should be piloted and reviewed
 by educators before it drives hints for real learners.
 """
@@ -36,7 +40,7 @@ from .features import (
     HMMLikelihoodFeaturizer,
     PatternFeaturizer,
 )
-from .metrics import early_prediction_table
+from .metrics import early_prediction_table, metric_names
 
 __all__ = [
     "validate",
@@ -47,16 +51,21 @@ __all__ = [
     "make_classifier",
     "CLASSIFIERS",
     "DEFAULT_FRACTIONS",
+    "HMM_CLASSIFIERS",
 ]
 
 _DEFAULTS = DEFAULT_CONFIG["validate"]
 _SEED = DEFAULT_CONFIG["seed"]
 
+#: Classifiers that use the HMM featurizer (the expensive one; see ``n_repeats_hmm``).
+HMM_CLASSIFIERS = tuple(n for n, f in CLASSIFIERS.items() if "hmm" in f)
 
-def validate(events, outcomes, *, n_splits=_DEFAULTS["n_splits"], loo=False,
-             fractions=DEFAULT_FRACTIONS, grouping=None, encoder=None, featurizers=None,
-             classifiers=None, C=1.0, train_on="full", n_bootstrap=_DEFAULTS["n_bootstrap"],
-             confidence=0.95, alpha=DEFAULT_CONFIG["contrast"]["alpha"], random_state=_SEED,
+def validate(events, outcomes, *, n_splits=_DEFAULTS["n_splits"],
+             n_repeats=_DEFAULTS["n_repeats"], n_repeats_hmm=_DEFAULTS["n_repeats_hmm"],
+             loo=False, fractions=DEFAULT_FRACTIONS, grouping=None, encoder=None,
+             featurizers=None, classifiers=None, C=1.0, train_on="full",
+             n_bootstrap=_DEFAULTS["n_bootstrap"], confidence=0.95,
+             alpha=DEFAULT_CONFIG["contrast"]["alpha"], random_state=_SEED,
              n_jobs=DEFAULT_CONFIG["n_jobs"], scheduler=None):
     """Cross-validate the discovery pipeline by learner and measure early prediction.
 
@@ -69,14 +78,26 @@ def validate(events, outcomes, *, n_splits=_DEFAULTS["n_splits"], loo=False,
         Outcome table with a ``learner`` column, as from ``load_outcomes``.
     n_splits : int, default 5
         Number of stratified folds (ignored when ``loo``).
+    n_repeats : int >= 1, default 3
+        The k-fold split is repeated this many times with fresh shuffles (repeated
+        cross-validation); metrics are averaged over the repetitions and their
+        lowest and highest value reported. Ignored with ``loo`` (one split only).
+    n_repeats_hmm : int >= 1, default 1
+        Classifiers that use the HMM featurizer (:data:`HMM_CLASSIFIERS`: ``hmm`` and
+        ``fusion``) run in the first ``min(n_repeats_hmm, n_repeats)`` repetitions
+        only: fitting group HMMs in every fold costs much more than the other
+        featurizers, so by default they get one repetition and the cheap classifiers
+        the rest. The baseline test of each classifier uses the repetitions it ran in.
     loo : bool, default False
         Leave one learner out instead of k folds (see Notes on the baseline).
     fractions : sequence of float in (0, 1]
         Observed fractions of each held-out sequence (of its action events, see
         :meth:`SequenceDB.cut`); default :data:`DEFAULT_FRACTIONS`.
     grouping : estimator, optional
-        Unfitted outcome grouping with ``fit(outcomes)``, ``transform(outcomes)``
-        (learner -> group name, NaN = none) and ``group_names_``. Default
+        Outcome grouping with ``fit(outcomes)``, ``transform(outcomes)`` (learner ->
+        group name, NaN = none) and ``group_names_``. It is fitted once on the whole
+        outcome table (unless it is fitted already, i.e. has ``group_names_``) and its
+        labels are used unchanged in every fold. Default
         ``seqmine.inputs.outcomes.Grouping()`` (median split on normalized gain).
     encoder : estimator, optional
         Unfitted encoder with ``fit(events)``, ``transform(events) -> SequenceDB``
@@ -99,9 +120,9 @@ def validate(events, outcomes, *, n_splits=_DEFAULTS["n_splits"], loo=False,
     alpha : float, default 0.05
         Level of the one-sided test against the majority baseline.
     random_state : int, default 20261202
-        Seeds the fold split, the featurizers and the bootstrap.
+        Seeds the fold splits, the featurizers and the bootstrap.
     n_jobs : int, default 1
-        Folds run in this many local processes (joblib; -1 = all cores); results are
+        Folds (of all repetitions) run in this many local processes (joblib; -1 = all cores); results are
         identical to the serial run.
     scheduler : str, optional
         Run the folds on a Dask cluster: a scheduler address (``"tcp://host:8786"``)
@@ -124,19 +145,25 @@ def validate(events, outcomes, *, n_splits=_DEFAULTS["n_splits"], loo=False,
     L2-regularised logistic regression. ``majority`` predicts the training fold's
     most frequent group (:class:`~sklearn.dummy.DummyClassifier`).
 
-    Held-out learners are labelled with the *training* fold's grouping thresholds
-    and encoded with the training pause edges. The fold split is stratified by the
-    grouping fitted on all learners; that only balances fold composition and does
-    not enter any fitted model. By default classifiers are trained on the full
+    *Groups are fixed once.* The outcome groups are what is predicted, not features
+    learnt from the logs: the grouping rule and its cut points are applied once to
+    the whole outcome table, every learner with events and a group is held out once
+    per repetition and scored, and the folds are stratified by these groups.
+    Held-out learners are encoded with the training fold's pause edges. By default classifiers are trained on the full
     training sequences and applied to the cut held-out sequences (see
     ``train_on``); pattern features are rates per 100 tokens so their scale does
     not depend on sequence length. When
     a learner has several sequences, the predicted probabilities of its sequences
     are averaged and the learner is the unit of every metric.
 
-    Learners with events but no outcome, or whose outcome gives no group on all
-    learners (e.g. the middle of a ``fraction`` split), take no part; a held-out
-    learner that gets no group under the training thresholds is not scored.
+    Learners with events but no outcome, or whose outcome gives no group (e.g. the
+    middle of a ``fraction`` split), take no part.
+
+    *Repetitions.* Repetition 0 uses ``random_state`` for the shuffle of the stratified
+    split, repetition ``r`` a seed derived from ``(random_state, r)``; a different
+    assignment of learners to folds (for example after pseudonymization renamed
+    them) moves single-split results, and the spread over repetitions shows by how
+    much.
 
     With leave-one-out, fixed labels and balanced groups the majority baseline is
     always wrong (the held-out learner's group is the training minority), which
@@ -150,6 +177,8 @@ def validate(events, outcomes, *, n_splits=_DEFAULTS["n_splits"], loo=False,
     check_number(C, "C", where, minimum=0, strict=True)
     check_choice(train_on, "train_on", ("full", "matched"), where)
     check_jobs(n_jobs, "n_jobs", where)
+    n_repeats = check_int(n_repeats, "n_repeats", where, minimum=1)
+    n_repeats_hmm = check_int(n_repeats_hmm, "n_repeats_hmm", where, minimum=1)
     names = list(CLASSIFIERS) if classifiers is None else list(classifiers)
     for n in names:
         if n not in CLASSIFIERS:
@@ -166,6 +195,9 @@ def validate(events, outcomes, *, n_splits=_DEFAULTS["n_splits"], loo=False,
     if missing:
         raise ParameterError(f"featurizers lacks {missing}; give one for each of {needed}.")
     featurizers = {f: featurizers[f] for f in needed}
+    if loo:
+        n_repeats = 1
+    n_repeats_hmm = min(n_repeats_hmm, n_repeats)
 
     started = time.perf_counter()
     if not isinstance(events, pd.DataFrame) and hasattr(events, "events"):
@@ -177,63 +209,61 @@ def validate(events, outcomes, *, n_splits=_DEFAULTS["n_splits"], loo=False,
             raise ParameterError(f"The {label} table needs a 'learner' column.")
     events = events.assign(learner=events["learner"].astype(str))
     outcomes = outcomes.assign(learner=outcomes["learner"].astype(str))
-    # stratification labels only (fold composition), from all learners
-    strat_grouping = _fresh(grouping).fit(outcomes)
-    strat = _group_series(strat_grouping.transform(outcomes), outcomes)
+    # the groups are the labels being predicted: decided once, from the outcome table
+    if not hasattr(grouping, "group_names_"):
+        grouping = _fresh(grouping).fit(outcomes)
+    group_names = [str(g) for g in grouping.group_names_]
+    groups = _group_series(grouping.transform(outcomes), outcomes)
     has_events = set(events["learner"].unique())
-    learners = np.array(sorted(lr for lr, g in strat.items()
+    learners = np.array(sorted(lr for lr, g in groups.items()
                                if lr in has_events and not pd.isna(g)), dtype=object)
-    labels = np.array([str(strat[lr]) for lr in learners], dtype=object)
-    split = learner_splits(learners, labels, n_splits=n_splits, loo=loo,
-                           random_state=random_state)
-
-    ev_by = {lr: idx for lr, idx in events.groupby("learner", sort=False).indices.items()}
-    jobs = []
-    for k, (tr, te) in enumerate(split):
-        tr_l, te_l = learners[tr], learners[te]
-        ev_tr = events.iloc[np.sort(np.concatenate([ev_by[lr] for lr in tr_l]))]
-        ev_te = events.iloc[np.sort(np.concatenate([ev_by[lr] for lr in te_l]))]
-        oc_tr = outcomes[outcomes["learner"].isin(set(tr_l))]
-        oc_te = outcomes[outcomes["learner"].isin(set(te_l))]
-        jobs.append((k, ev_tr, ev_te, oc_tr, oc_te))
-    run = _FoldRunner(grouping=grouping, encoder=encoder, featurizers=featurizers,
-                      classifiers=names, fractions=fractions, C=C, train_on=train_on)
+    labels = np.array([str(groups[lr]) for lr in learners], dtype=object)
+    splits = [learner_splits(learners, labels, n_splits=n_splits, loo=loo,
+                             random_state=_repeat_seed(random_state, r))
+              for r in range(n_repeats)]
+    cheap = [n for n in names if n not in HMM_CLASSIFIERS]
+    jobs = [(r, k, learners[tr], learners[te], names if r < n_repeats_hmm else cheap)
+            for r, split in enumerate(splits) for k, (tr, te) in enumerate(split)]
+    run = _FoldRunner(events=events, groups=dict(zip(learners, labels)),
+                      group_names=group_names, encoder=encoder, featurizers=featurizers,
+                      fractions=fractions, C=C, train_on=train_on)
     if n_jobs == 1 and not scheduler:
         outs = [run(job) for job in progress(jobs, desc="folds", unit="fold")]
     else:
         outs = parallel_map(run, jobs, n_jobs=n_jobs, scheduler=scheduler)
-    group_names = outs[0]["group_names"]
-    for o in outs:
-        if o["group_names"] != group_names:
-            raise ParameterError(
-                f"Fold {o['fold']} produced groups {o['group_names']} but fold 0 produced "
-                f"{group_names}; the grouping must give the same group names in every fold.")
     predictions = pd.concat([o["predictions"] for o in outs], ignore_index=True)
     order = {n: i for i, n in enumerate(names)}
     predictions = predictions.sort_values(
-        ["classifier", "fraction", "learner"], key=lambda s: s.map(order) if s.name ==
-        "classifier" else s, kind="mergesort", ignore_index=True)
+        ["classifier", "repeat", "fraction", "learner"], key=lambda s: s.map(order)
+        if s.name == "classifier" else s, kind="mergesort", ignore_index=True)
     metrics = early_prediction_table(predictions, group_names, n_bootstrap=n_bootstrap,
                                      confidence=confidence, alpha=alpha,
                                      random_state=random_state)
     fold_table = pd.DataFrame({
-        "learner": np.concatenate([learners[te] for _, te in split]),
-        "fold": np.concatenate([np.full(len(te), k) for k, (_, te) in enumerate(split)]),
-    }).sort_values("learner", kind="mergesort", ignore_index=True)
+        "learner": np.concatenate([learners[te] for split in splits for _, te in split]),
+        "repeat": np.concatenate([np.full(len(te), r) for r, split in enumerate(splits)
+                                  for _, te in split]),
+        "fold": np.concatenate([np.full(len(te), k) for split in splits
+                                for k, (_, te) in enumerate(split)]),
+    }).sort_values(["repeat", "learner"], kind="mergesort", ignore_index=True)
     settings = {
         "n_splits": None if loo else int(n_splits), "loo": bool(loo),
+        "n_repeats": int(n_repeats), "n_repeats_hmm": int(n_repeats_hmm),
         "fractions": list(fractions), "classifiers": names, "C": float(C),
         "train_on": train_on,
         "n_bootstrap": int(n_bootstrap), "confidence": float(confidence),
         "alpha": float(alpha), "random_state": int(random_state),
-        "test": "one-sided exact McNemar (binomial test on discordant pairs) vs majority",
+        "test": "one-sided sign test on per-learner correctness vs majority (exact "
+                "McNemar with one repetition)",
+        "grouping": _grouping_record(grouping),
         "n_learners": int(len(learners)),
+        "n_learners_per_group": {g: int(np.sum(labels == g)) for g in group_names},
         "n_learners_without_outcome_group": int(len(has_events - set(learners))),
     }
     return ValidationResult(
         metrics=metrics, predictions=predictions, folds=fold_table,
-        selected_patterns={o["fold"]: o["selected_patterns"] for o in outs},
-        encodings={o["fold"]: o["encoding"] for o in outs},
+        selected_patterns={(o["repeat"], o["fold"]): o["selected_patterns"] for o in outs},
+        encodings={(o["repeat"], o["fold"]): o["encoding"] for o in outs},
         group_names=list(group_names), settings=settings,
         runtime_seconds=time.perf_counter() - started,
     )
@@ -248,16 +278,19 @@ class ValidationResult:
     metrics : pandas.DataFrame
         The early-prediction table (see :func:`early_prediction_table`).
     predictions : pandas.DataFrame
-        One row per held-out learner x classifier x fraction: ``fold``,
-        ``learner``, ``group`` (true, from the training thresholds),
-        ``classifier``, ``fraction``, ``predicted``, ``proba_<group>``.
+        One row per held-out learner x classifier x repetition x fraction:
+        ``repeat``, ``fold``, ``learner``, ``group`` (true, fixed once from the
+        outcome table), ``classifier``, ``fraction``, ``predicted``,
+        ``proba_<group>``.
     folds : pandas.DataFrame
-        ``learner``, ``fold`` (the fold in which the learner was held out).
+        ``learner``, ``repeat``, ``fold`` (the fold in which the learner was held out
+        in that repetition).
     selected_patterns : dict
-        Fold -> readable names of the patterns selected on that fold's training
-        learners.
+        ``(repeat, fold)`` -> readable names of the patterns selected on that fold's
+        training learners.
     encodings : dict
-        Fold -> the encoder's ``encoding_`` fitted on that fold's training events.
+        ``(repeat, fold)`` -> the encoder's ``encoding_`` fitted on that fold's
+        training events.
     group_names : list of str
     settings : dict
     runtime_seconds : float
@@ -281,23 +314,24 @@ class ValidationResult:
         """Plot-ready long table: ``classifier``, ``fraction``, ``metric``, ``value``,
         ``low``, ``high``, ``n_learners``."""
         m = self.metrics
-        metric_names = ["accuracy", "balanced_accuracy", "roc_auc"] + [
-            f"recall_{g}" for g in self.group_names]
+        names = metric_names(self.group_names)
         rows = []
-        for name in metric_names:
+        for name in names:
             part = m[["classifier", "fraction", "n_learners"]].copy()
             part["metric"] = name
-            part["value"] = m[name].to_numpy()
-            part["low"] = m[f"{name}_low"].to_numpy()
-            part["high"] = m[f"{name}_high"].to_numpy()
+            for suffix, col in (("", "value"), ("_low", "low"), ("_high", "high"),
+                                ("_min", "repeat_min"), ("_max", "repeat_max")):
+                part[col] = m[f"{name}{suffix}"].to_numpy() if f"{name}{suffix}" in m else np.nan
             rows.append(part)
         out = pd.concat(rows, ignore_index=True)
-        return out[["classifier", "fraction", "metric", "value", "low", "high", "n_learners"]]
+        return out[["classifier", "fraction", "metric", "value", "low", "high", "repeat_min",
+                    "repeat_max", "n_learners"]]
 
     def earliest_fraction(self, *, sustained=False):
         """Smallest fraction at which each classifier beats the majority baseline.
 
-        "Beats" means the one-sided exact McNemar test rejects at ``alpha`` (see
+        "Beats" means the one-sided sign test on per-learner correctness (the exact
+        McNemar test with one repetition) rejects at ``alpha`` (see
         :func:`early_prediction_table`).
 
         Parameters
@@ -327,9 +361,11 @@ class ValidationResult:
 
         Keys: ``settings``, ``group_names``, ``earliest_fraction`` and
         ``earliest_fraction_sustained`` (classifier -> fraction or None),
-        ``accuracy`` and ``balanced_accuracy`` (classifier -> fraction -> value),
-        ``baseline_accuracy`` (fraction -> value), ``patterns_selected_per_fold``
-        and ``runtime_seconds`` (rounded to 0.1 s).
+        ``beats_baseline`` (true when any classifier beats the majority baseline
+        at some fraction), ``accuracy`` and ``balanced_accuracy`` (classifier ->
+        fraction -> value), ``baseline_accuracy`` (fraction -> value),
+        ``patterns_selected_per_fold`` (``"repeat/fold"`` -> count) and
+        ``runtime_seconds`` (rounded to 0.1 s).
         """
         m = self.metrics
 
@@ -342,16 +378,18 @@ class ValidationResult:
             return {k: (None if np.isnan(v) else float(v)) for k, v in series.items()}
 
         base = m[m["classifier"] == "majority"]
+        earliest = clean(self.earliest_fraction())
         return {
             "settings": dict(self.settings),
             "group_names": list(self.group_names),
-            "earliest_fraction": clean(self.earliest_fraction()),
+            "earliest_fraction": earliest,
             "earliest_fraction_sustained": clean(self.earliest_fraction(sustained=True)),
+            "beats_baseline": any(v is not None for v in earliest.values()),
             "accuracy": nested("accuracy"),
             "balanced_accuracy": nested("balanced_accuracy"),
             "baseline_accuracy": {f"{f:g}": round(float(v), 6) for f, v in
                                   zip(base["fraction"], base["accuracy"])},
-            "patterns_selected_per_fold": {str(k): len(v) for k, v in
+            "patterns_selected_per_fold": {_fold_key(k): len(v) for k, v in
                                            sorted(self.selected_patterns.items())},
             "runtime_seconds": round(float(self.runtime_seconds), 1),
         }
@@ -371,11 +409,12 @@ class ValidationResult:
             "earliest_fraction": digest["earliest_fraction"],
             "earliest_fraction_sustained": digest["earliest_fraction_sustained"],
             "folds": [
-                {"fold": int(k),
-                 "held_out": self.folds.loc[self.folds["fold"] == k, "learner"].tolist(),
-                 "selected_patterns": list(self.selected_patterns[k]),
-                 "encoding": self.encodings[k]}
-                for k in sorted(self.selected_patterns)
+                {"repeat": int(r), "fold": int(k),
+                 "held_out": self.folds.loc[(self.folds["repeat"] == r)
+                                            & (self.folds["fold"] == k), "learner"].tolist(),
+                 "selected_patterns": list(self.selected_patterns[(r, k)]),
+                 "encoding": self.encodings[(r, k)]}
+                for r, k in sorted(self.selected_patterns)
             ],
         }
         write_json(folder / "validation_folds.json", info, indent=1)
@@ -465,43 +504,59 @@ def make_classifier(name, *, featurizers=None, C=1.0, random_state=_SEED):
 
 # --------------------------------------------------------------------- private
 class _FoldRunner:
-    """Runs one fold: fit every learned step on training learners, predict held-out."""
+    """Runs one fold: fit every learned step on training learners, predict held-out.
 
-    def __init__(self, *, grouping, encoder, featurizers, classifiers, fractions, C,
+    ``groups`` maps each learner to its group, fixed once for all folds; a job is
+    ``(repeat, fold, training learners, held-out learners, classifiers)``.
+    """
+
+    def __init__(self, *, events, groups, group_names, encoder, featurizers, fractions, C,
                  train_on="full"):
-        self.grouping = grouping
+        self.events = events
+        self.groups = groups
+        self.group_names = list(group_names)
         self.encoder = encoder
         self.featurizers = featurizers
-        self.classifiers = classifiers
         self.fractions = fractions
         self.C = C
         self.train_on = train_on
 
     def __call__(self, job):
-        fold, ev_tr, ev_te, oc_tr, oc_te = job
-        grouping = _fresh(self.grouping).fit(oc_tr)
-        names = [str(g) for g in grouping.group_names_]
-        g_tr = _group_series(grouping.transform(oc_tr), oc_tr)
-        g_te = _group_series(grouping.transform(oc_te), oc_te)
+        # The models of a fold are small (hundreds of learners, tens of features): a
+        # multi-threaded BLAS only adds hand-over costs there, which grow with the load
+        # of the machine (measured: a logistic-regression fit 20x slower on a busy
+        # 2-core machine). threadpoolctl ships with scikit-learn.
+        from threadpoolctl import threadpool_limits
+
+        with threadpool_limits(limits=1, user_api="blas"):
+            return self._run(job)
+
+    def _run(self, job):
+        repeat, fold, tr_l, te_l, classifiers = job
+        names = self.group_names
+        learner = self.events["learner"]
+        ev_tr = self.events[learner.isin(set(tr_l))]
+        ev_te = self.events[learner.isin(set(te_l))]
+        groups = pd.Series(self.groups, dtype=object)
         encoder = _fresh(self.encoder).fit(ev_tr)
-        db_tr = _with_learner_groups(encoder.transform(ev_tr), g_tr, names)
-        db_te = _with_learner_groups(encoder.transform(ev_te), g_te, names)
+        db_tr = _with_learner_groups(encoder.transform(ev_tr), groups, names)
+        db_te = _with_learner_groups(encoder.transform(ev_te), groups, names)
         db_tr = db_tr.subset(db_tr.groups >= 0)
         db_te = db_te.subset(db_te.groups >= 0)
         present = np.unique(db_tr.groups)
         if len(present) < len(names):
             only = ", ".join(repr(names[i]) for i in present) or "none"
             raise ParameterError(
-                f"Fold {fold}: the training learners hold only group(s) {only} after "
-                f"grouping with the training thresholds; use fewer folds or check the "
-                f"outcomes.")
+                f"Fold {fold}: the training learners hold only group(s) {only}; use fewer "
+                f"folds or check the outcomes.")
         y_tr = db_tr.groups
+        needed = sorted({f for c in classifiers for f in CLASSIFIERS[c]})
         fitted = {}
         blocks = {}
-        for fname, feat in self.featurizers.items():
-            fitted[fname] = clone(feat).fit(db_tr, y_tr)
+        for fname in needed:
+            fitted[fname] = clone(self.featurizers[fname]).fit(db_tr, y_tr)
             blocks[fname] = np.asarray(fitted[fname].transform(db_tr), dtype=float)
-        full_models = models = self._fit_models(blocks, y_tr)
+        full_models = models = self._fit_models(blocks, y_tr, classifiers)
         rows = []
         learners_te = db_te.learners
         uniq, inv = np.unique(learners_te, return_inverse=True)
@@ -516,8 +571,8 @@ class _FoldRunner:
                 cut_tr = db_tr.cut(frac)
                 models = self._fit_models(
                     {f: np.asarray(m.transform(cut_tr), dtype=float)
-                     for f, m in fitted.items()}, y_tr)
-            for cname in self.classifiers:
+                     for f, m in fitted.items()}, y_tr, classifiers)
+            for cname in classifiers:
                 if cname == "majority":
                     X = np.zeros((cut.n_sequences, 1))
                 else:
@@ -527,9 +582,9 @@ class _FoldRunner:
                 np.add.at(per, inv, proba)
                 per /= n_seq[:, None]
                 pred = np.argmax(per, axis=1)
-                frame = {"fold": fold, "learner": uniq, "group": [names[i] for i in true],
-                         "classifier": cname, "fraction": float(frac),
-                         "predicted": [names[i] for i in pred]}
+                frame = {"repeat": repeat, "fold": fold, "learner": uniq,
+                         "group": [names[i] for i in true], "classifier": cname,
+                         "fraction": float(frac), "predicted": [names[i] for i in pred]}
                 for gi, g in enumerate(names):
                     frame[f"proba_{g}"] = per[:, gi]
                 rows.append(pd.DataFrame(frame))
@@ -538,15 +593,14 @@ class _FoldRunner:
             selected = [n.removeprefix("pattern: ") for n in
                         fitted["pattern"].get_feature_names_out() if n != "no_pattern"]
         return {
-            "fold": fold, "group_names": names, "predictions": pd.concat(rows, ignore_index=True),
+            "repeat": repeat, "fold": fold, "predictions": pd.concat(rows, ignore_index=True),
             "selected_patterns": selected,
             "encoding": copy.deepcopy(getattr(encoder, "encoding_", {})),
         }
 
-
-    def _fit_models(self, blocks, y_tr):
+    def _fit_models(self, blocks, y_tr, classifiers):
         models = {}
-        for cname in self.classifiers:
+        for cname in classifiers:
             if cname == "majority":
                 models[cname] = DummyClassifier(strategy="most_frequent").fit(
                     np.zeros((len(y_tr), 1)), y_tr)
@@ -606,6 +660,28 @@ def _with_learner_groups(db, groups, names):
     codes = np.array([pos.get(str(groups.get(lr)), -1) if not pd.isna(groups.get(lr, np.nan))
                       else -1 for lr in db.learners], dtype=np.int64)
     return db.with_groups(codes, names)
+
+
+def _repeat_seed(seed, repeat):
+    """Seed of the fold shuffle of repetition ``repeat`` (``seed`` itself for the first)."""
+    if repeat == 0:
+        return int(seed)
+    return int(np.random.SeedSequence([int(seed), int(repeat)]).generate_state(1)[0])
+
+
+def _fold_key(key):
+    return f"{key[0]}/{key[1]}" if isinstance(key, tuple) else str(key)
+
+
+def _grouping_record(grouping):
+    """The grouping rule and cut points as plain JSON values."""
+    out = {}
+    rule = getattr(grouping, "rule", None)
+    if rule is not None:
+        out["rule"] = str(rule)
+    for k, v in (getattr(grouping, "thresholds_", None) or {}).items():
+        out[str(k)] = float(v)
+    return out
 
 
 def _fresh(est):

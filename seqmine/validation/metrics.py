@@ -14,7 +14,7 @@ from scipy.stats import binomtest
 from ..config import DEFAULT_CONFIG
 from ..errors import ParameterError
 
-__all__ = ["early_prediction_table"]
+__all__ = ["early_prediction_table", "metric_names"]
 
 
 def early_prediction_table(predictions, group_names, *,
@@ -27,13 +27,15 @@ def early_prediction_table(predictions, group_names, *,
     ----------
     predictions : pandas.DataFrame
         Columns ``classifier``, ``fraction``, ``learner``, ``group``,
-        ``predicted`` and ``proba_<group>`` for every group; must contain the
-        ``majority`` classifier, and every classifier x fraction must cover the same
+        ``predicted`` and ``proba_<group>`` for every group, and optionally
+        ``repeat`` (the repetition of the cross-validation; absent = one). Must
+        contain the ``majority`` classifier in every repetition any other classifier
+        has, and every classifier x fraction x repetition must cover the same
         learners.
     group_names : list of str
     n_bootstrap : int
         Resamples (with replacement) of the held-out learners; the same resamples
-        are used for every classifier and fraction (paired).
+        are used for every classifier, fraction and repetition (paired).
     confidence : float
         Percentile interval level.
     alpha : float
@@ -43,49 +45,86 @@ def early_prediction_table(predictions, group_names, *,
     Returns
     -------
     pandas.DataFrame
-        ``classifier``, ``fraction``, ``n_learners``, then ``accuracy``,
-        ``balanced_accuracy``, ``recall_<group>`` for each group and ``roc_auc``,
-        each followed by ``<metric>_low`` and ``<metric>_high``; then
-        ``baseline_accuracy``, ``n_only_classifier_right``,
-        ``n_only_baseline_right``, ``p_value``, ``beats_baseline``.
+        ``classifier``, ``fraction``, ``n_learners``, ``n_repeats``, then
+        ``accuracy``, ``balanced_accuracy``, ``recall_<group>`` for each group and
+        ``roc_auc``, each followed by ``<metric>_low`` and ``<metric>_high`` (bootstrap
+        interval) and ``<metric>_min`` and ``<metric>_max`` (lowest and highest value
+        over the repetitions); then ``baseline_accuracy``, ``n_classifier_better``,
+        ``n_baseline_better``, ``p_value``, ``beats_baseline``.
 
     Notes
     -----
-    ``roc_auc`` scores the probability of ``group_names[1]`` for two groups
-    (one-vs-rest macro average for more), as :func:`sklearn.metrics.roc_auc_score`.
-    ``balanced_accuracy`` is the mean recall over the groups present. Intervals
-    are bootstrap percentile intervals over held-out learners pooled across folds
-    (the fold models are held fixed); a resample in which a metric is undefined
-    (e.g. one group absent, for its recall or the AUC) is left out of that metric's
-    interval.
+    A metric is computed in each repetition on all held-out learners and averaged
+    over the repetitions; ``_min`` and ``_max`` show how much it moves when the
+    learners are dealt into other folds. ``roc_auc`` scores the probability of
+    ``group_names[1]`` for two groups (one-vs-rest macro average for more), as
+    :func:`sklearn.metrics.roc_auc_score`. ``balanced_accuracy`` is the mean recall
+    over the groups present. Intervals are bootstrap percentile intervals over the
+    held-out learners (the fold models are held fixed): each resample of learners
+    is applied to every repetition and the repetition mean is recomputed; a
+    resample in which a metric is undefined (e.g. one group absent, for its recall
+    or the AUC) is left out of that metric's interval.
 
-    The classifier *beats the baseline* at a fraction when the one-sided exact
-    McNemar test on paired correctness rejects at ``alpha``: with ``b`` learners
-    classified correctly only by the classifier and ``c`` only by the majority
-    baseline, ``p = P(X >= b)`` for ``X ~ Binomial(b + c, 1/2)`` (McNemar 1947;
-    recommended for comparing two classifiers on one test set by Dietterich 1998).
-    The tests at different fractions are not corrected for multiplicity; the
-    earliest fraction is the smallest fraction that rejects.
+    The classifier *beats the baseline* at a fraction when a one-sided sign test on
+    paired per-learner correctness rejects at ``alpha``. For each learner the share
+    of repetitions in which the classifier was right is compared with the share in
+    which the majority baseline was right (in the same repetitions); ``b`` learners
+    (``n_classifier_better``) have the higher share with the classifier and ``c``
+    (``n_baseline_better``) with the baseline, ties are dropped, and
+    ``p = P(X >= b)`` for ``X ~ Binomial(b + c, 1/2)`` (the sign test, Dixon & Mood
+    1946). With one repetition ``b`` and ``c`` are the discordant pairs and the test
+    is the exact McNemar test (McNemar 1947), recommended for comparing two
+    classifiers on one test set by Dietterich (1998). The tests at different
+    fractions are not corrected for multiplicity; the earliest fraction is the
+    smallest fraction that rejects.
 
     References
     ----------
     .. [1] McNemar, Q. (1947). Note on the sampling error of the difference between
        correlated proportions or percentages. Psychometrika 12(2), 153-157.
-    .. [2] Dietterich, T. G. (1998). Approximate statistical tests for comparing
+    .. [2] Dixon, W. J., & Mood, A. M. (1946). The statistical sign test. Journal of
+       the American Statistical Association 41(236), 557-566.
+    .. [3] Dietterich, T. G. (1998). Approximate statistical tests for comparing
        supervised classification learning algorithms. Neural Computation 10(7).
-    .. [3] Efron, B., & Tibshirani, R. J. (1993). An Introduction to the Bootstrap
+    .. [4] Efron, B., & Tibshirani, R. J. (1993). An Introduction to the Bootstrap
        (percentile intervals).
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> rows = [("m", r, lr, g, p) for r in (0, 1) for lr, g, p in
+    ...         [("a", "x", "x"), ("b", "y", "y"), ("c", "y", "x" if r else "y")]]
+    >>> rows += [("majority", r, lr, g, "y") for r in (0, 1) for lr, g in
+    ...          [("a", "x"), ("b", "y"), ("c", "y")]]
+    >>> p = pd.DataFrame(rows, columns=["classifier", "repeat", "learner", "group",
+    ...                                 "predicted"]).assign(fraction=1.0)
+    >>> p["proba_y"] = (p["predicted"] == "y").astype(float)
+    >>> p["proba_x"] = 1 - p["proba_y"]
+    >>> t = early_prediction_table(p, ["x", "y"], n_bootstrap=10)
+    >>> r = t.iloc[0]
+    >>> [round(float(r[c]), 3) for c in ("n_repeats", "accuracy", "accuracy_min",
+    ...                                   "accuracy_max")]
+    [2.0, 0.833, 0.667, 1.0]
     """
     group_names = list(group_names)
     k = len(group_names)
     pos = {g: i for i, g in enumerate(group_names)}
-    preds = predictions.sort_values(["classifier", "fraction", "learner"], kind="mergesort")
-    cells = {key: part for key, part in preds.groupby(["classifier", "fraction"], sort=False)}
+    if "repeat" not in predictions.columns:
+        predictions = predictions.assign(repeat=0)
+    preds = predictions.sort_values(["classifier", "fraction", "repeat", "learner"],
+                                    kind="mergesort")
+    cells = {key: part for key, part in
+             preds.groupby(["classifier", "fraction", "repeat"], sort=False)}
     classifiers = list(dict.fromkeys(predictions["classifier"]))
     if "majority" not in classifiers:
         raise ParameterError("predictions need the 'majority' classifier as the baseline.")
     fractions = sorted(set(predictions["fraction"]))
-    first = cells[(classifiers[0], fractions[0])]
+    repeats = {name: sorted({r for (c, _f, r) in cells if c == name}) for name in classifiers}
+    missing = sorted(set().union(*repeats.values()) - set(repeats["majority"]))
+    if missing:
+        raise ParameterError(f"predictions lack the 'majority' baseline in repetition(s) "
+                             f"{missing}; the baseline must run in every repetition.")
+    first = cells[(classifiers[0], fractions[0], repeats[classifiers[0]][0])]
     learners = first["learner"].to_numpy()
     n = len(learners)
     rng = np.random.default_rng(random_state)
@@ -94,47 +133,69 @@ def early_prediction_table(predictions, group_names, *,
     q = (1 - confidence) / 2
     rows = []
     for frac in fractions:
-        base = cells[("majority", frac)]
-        y = base["group"].map(pos).to_numpy(dtype=np.int64)
-        base_right = base["predicted"].map(pos).to_numpy() == y
+        base_right = {}
+        for r in repeats["majority"]:
+            base = cells[("majority", frac, r)]
+            y = base["group"].map(pos).to_numpy(dtype=np.int64)
+            base_right[r] = base["predicted"].map(pos).to_numpy() == y
         for name in classifiers:
-            part = cells[(name, frac)]
-            if not np.array_equal(part["learner"].to_numpy(), learners):
-                raise ParameterError(
-                    f"Classifier {name!r} at fraction {frac} covers other learners than "
-                    f"{classifiers[0]!r}; every cell must cover the same held-out learners.")
-            pred = part["predicted"].map(pos).to_numpy(dtype=np.int64)
-            proba = part[[f"proba_{g}" for g in group_names]].to_numpy(dtype=float)
-            point = _metrics(y, pred, proba, np.ones((1, n)), k)
-            boots = _metrics(y, pred, proba, weights, k)
-            row = {"classifier": name, "fraction": float(frac), "n_learners": n}
-            for key in point:
+            point, boots, right = [], [], []
+            for r in repeats[name]:
+                part = cells.get((name, frac, r))
+                if part is None or not np.array_equal(part["learner"].to_numpy(), learners):
+                    raise ParameterError(
+                        f"Classifier {name!r} at fraction {frac} (repetition {r}) covers other "
+                        f"learners than {classifiers[0]!r}; every cell must cover the same "
+                        f"held-out learners.")
+                y = part["group"].map(pos).to_numpy(dtype=np.int64)
+                pred = part["predicted"].map(pos).to_numpy(dtype=np.int64)
+                proba = part[[f"proba_{g}" for g in group_names]].to_numpy(dtype=float)
+                point.append(_metrics(y, pred, proba, np.ones((1, n)), k))
+                boots.append(_metrics(y, pred, proba, weights, k))
+                right.append(pred == y)
+            row = {"classifier": name, "fraction": float(frac), "n_learners": n,
+                   "n_repeats": len(repeats[name])}
+            for key in point[0]:
                 col = _metric_column(key, group_names)
-                row[col] = float(point[key][0])
-                vals = boots[key]
+                per_repeat = np.array([p[key][0] for p in point])
+                row[col] = float(np.mean(per_repeat))
+                vals = np.mean([b[key] for b in boots], axis=0)
                 vals = vals[np.isfinite(vals)]
                 if len(vals):
                     row[f"{col}_low"] = float(np.quantile(vals, q))
                     row[f"{col}_high"] = float(np.quantile(vals, 1 - q))
                 else:
                     row[f"{col}_low"] = row[f"{col}_high"] = float("nan")
-            right = pred == y
-            b = int(np.sum(right & ~base_right))
-            c = int(np.sum(~right & base_right))
+                row[f"{col}_min"] = float(np.min(per_repeat))
+                row[f"{col}_max"] = float(np.max(per_repeat))
+            share = np.mean(right, axis=0)
+            share_base = np.mean([base_right[r] for r in repeats[name]], axis=0)
+            b = int(np.sum(share > share_base))
+            c = int(np.sum(share < share_base))
             p = float(binomtest(b, b + c, 0.5, alternative="greater").pvalue) if b + c else 1.0
-            row.update(baseline_accuracy=float(base_right.mean()),
-                       n_only_classifier_right=b, n_only_baseline_right=c, p_value=p,
+            row.update(baseline_accuracy=float(share_base.mean()),
+                       n_classifier_better=b, n_baseline_better=c, p_value=p,
                        beats_baseline=bool(p < alpha) and name != "majority")
             rows.append(row)
     table = pd.DataFrame(rows)
     metric_cols = []
-    for key in ["accuracy", "balanced_accuracy"] + [f"recall_{g}" for g in group_names] + [
-            "roc_auc"]:
-        metric_cols += [key, f"{key}_low", f"{key}_high"]
-    cols = (["classifier", "fraction", "n_learners"] + metric_cols
-            + ["baseline_accuracy", "n_only_classifier_right", "n_only_baseline_right",
+    for key in metric_names(group_names):
+        metric_cols += [key, f"{key}_low", f"{key}_high", f"{key}_min", f"{key}_max"]
+    cols = (["classifier", "fraction", "n_learners", "n_repeats"] + metric_cols
+            + ["baseline_accuracy", "n_classifier_better", "n_baseline_better",
                "p_value", "beats_baseline"])
     return table[cols]
+
+
+def metric_names(group_names):
+    """Metric columns of the early-prediction table, in order.
+
+    Examples
+    --------
+    >>> metric_names(["strong", "weak"])
+    ['accuracy', 'balanced_accuracy', 'recall_strong', 'recall_weak', 'roc_auc']
+    """
+    return ["accuracy", "balanced_accuracy"] + [f"recall_{g}" for g in group_names] + ["roc_auc"]
 
 
 def _metric_column(key, group_names):

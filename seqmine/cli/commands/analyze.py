@@ -36,6 +36,9 @@ def add_arguments(p):
     _options.add_evidence_option(g)
     add_option(g, "validate", "n_splits", type=int, metavar="K",
                help="learner folds of the early-prediction check (default: {default})")
+    add_option(g, "validate", "n_repeats", type=int, metavar="R",
+               help="repetitions of the fold split, each with a fresh shuffle "
+                    "(default: {default})")
     add_option(g, "phases", "enabled", action="store_true", default=False,
                to_config=lambda v: not v, help="skip the hidden Markov models")
     add_option(g, "validate", "enabled", action="store_true", default=False,

@@ -64,6 +64,12 @@ def add_arguments(parser):
                    help="name of the strong group (default: 'strong' or the first group)")
     g.add_argument("--weak-group", default=None, metavar="NAME",
                    help="name of the weak group (default: 'weak' or the second group)")
+    add_option(g, "detectors", "encourage_share", type=_options.float_or_none, metavar="S",
+               help="share of the detectors that encourage (patterns of the strong group), "
+                    "0-1; slots one direction cannot fill go to the other; 'none' = no "
+                    "balance (default: {default})")
+    add_option(g, "detectors", "examples", action=OnOffAction,
+               help="one short example excerpt per detector (default: {default})")
     g = parser.add_argument_group("matching and absence rules")
     g.add_argument("--max-gap", type=_opt_int, default=argparse.SUPPRESS, metavar="N",
                    help="override the pattern set's max gap ('none' = no limit)")
@@ -72,9 +78,14 @@ def add_arguments(parser):
     g.add_argument("--skip-pauses", action=OnOffAction, default=None,
                    help="override whether pause tokens count toward gaps and windows "
                         "(default: as the pattern set was mined)")
-    g.add_argument("--absence-events", type=int, default=None, metavar="N",
-                   help="encourage detectors also fire when the pattern has not been shown "
-                        "after N events of a sequence (default: off)")
+    g.add_argument("--absence-events", type=_absence_events, default="auto", metavar="N",
+                   help="encourage detectors hint when the pattern has not been shown after "
+                        "N events of a sequence; 'auto' (default) sets it per detector from "
+                        "the data (see --absence-quantile); 'none' switches it off")
+    add_option(g, "detectors", "absence_quantile", type=float, metavar="Q",
+               help="with --absence-events auto: the point by which this share of the "
+                    "strong group's learners who showed the pattern had shown it "
+                    "(default: {default})")
     g.add_argument("--absence-seconds", type=float, default=None, metavar="S",
                    help="... or after S seconds of a sequence (default: off)")
 
@@ -128,7 +139,9 @@ def _export(args, table, db, constraints):
         effect=args.effect, min_stability=args.min_stability, lengths=lengths, groups=groups,
         max_detectors=args.max_detectors, drop_redundant=not args.keep_redundant,
         evidence=args.evidence, strong=args.strong_group, weak=args.weak_group,
-        absence_after_events=args.absence_events, absence_after_seconds=args.absence_seconds)
+        encourage_share=args.encourage_share, examples=args.examples,
+        absence_after_events=args.absence_events, absence_quantile=args.absence_quantile,
+        absence_after_seconds=args.absence_seconds)
 
 
 def _say(doc, table, out):
@@ -145,7 +158,7 @@ def _run_in_folder(args, folder):
     from ...detection.detectors import save_detectors
     from ...encoding.sequences import SequenceDB
     from ...errors import OutputError
-    from ...pipeline import own_stage_folder, rerun_stage, stage_output_folder
+    from ...pipeline import detectors_summary, own_stage_folder, rerun_stage, stage_output_folder
     stages = (read_summary(folder) or {}).get("stages") or {}
     contrast = stages.get("contrast") or {}
     table_name = (contrast.get("settings") or {}).get("table", "patterns.csv")
@@ -171,7 +184,8 @@ def _run_in_folder(args, folder):
     settings = {k: getattr(args, k) for k in (
         "max_q", "effect", "min_effect", "min_stability", "min_length", "max_length",
         "favours", "max_detectors", "keep_redundant", "strong_group", "weak_group",
-        "absence_events", "absence_seconds")}
+        "absence_events", "absence_seconds", "encourage_share", "absence_quantile",
+        "examples")}
 
     def work(st):
         table = _read_table(st.path / tables[0])
@@ -182,14 +196,26 @@ def _run_in_folder(args, folder):
             Path(source).relative_to(folder)) if Path(source).is_absolute() and
             Path(source).is_relative_to(folder) else source)
         save_detectors(doc, st.path / name)
-        return {"detectors": len(doc["detectors"])}, (doc, table)
+        return detectors_summary(doc), (doc, table)
 
     (doc, table), target, _ = rerun_stage(
         folder, "detectors", NAME, work, settings=settings, config_section="detectors",
         config_values={"max_q": args.max_q, "min_stability": args.min_stability,
-                       "max_detectors": args.max_detectors})
+                       "max_detectors": args.max_detectors,
+                       "encourage_share": args.encourage_share,
+                       "absence_quantile": args.absence_quantile, "examples": args.examples})
     _say(doc, table, target / name)
     return 0
+
+
+def _absence_events(text):
+    """``auto``, ``none`` or a whole number of events >= 1."""
+    if str(text).strip().lower() == "auto":
+        return "auto"
+    v = _options.int_or_none(text)
+    if v is not None and v < 1:
+        raise OptionValueError(f"expected a whole number >= 1, 'auto' or 'none'; got {text!r}")
+    return v
 
 
 def _opt_int(text):

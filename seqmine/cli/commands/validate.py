@@ -16,10 +16,12 @@ _HMM_STATES = 3
 NAME = "validate"
 HELP = "cross-validate the discovery pipeline by learner and measure early prediction"
 DESCRIPTION = (
-    "Split learners into folds (stratified k-fold or leave-one-learner-out). In each fold "
-    "the grouping thresholds, pause bins, mined patterns, selected contrasting patterns "
-    "and group HMMs are learned on the training learners only, then the held-out "
-    "learners' sequences are cut to their first 10%, 20%, ... of events and classified. "
+    "Split learners into folds (stratified k-fold, repeated with fresh shuffles, or "
+    "leave-one-learner-out). The outcome groups are decided once from the outcome table "
+    "and kept in every fold. In each fold the pause bins, mined patterns, selected "
+    "contrasting patterns and group HMMs are learned on the training learners only, then "
+    "the held-out learners' sequences are cut to their first 10%, 20%, ... of events and "
+    "classified; metrics are averaged over the repetitions, with their range. "
     "Writes OUT/early_prediction.csv (accuracy, balanced accuracy, per-group recall, ROC "
     "AUC with bootstrap intervals, the majority baseline and whether each classifier "
     "beats it), OUT/early_prediction_long.csv (plot-ready), "
@@ -34,6 +36,11 @@ def add_arguments(p):
     add_option(split, "validate", "n_splits", type=int, metavar="K",
                help="stratified folds over learners (default: {default})")
     split.add_argument("--loo", action="store_true", help="leave one learner out instead")
+    add_option(p, "validate", "n_repeats", type=int, metavar="R",
+               help="repeat the k-fold split R times with fresh shuffles (default: {default})")
+    add_option(p, "validate", "n_repeats_hmm", type=int, metavar="R",
+               help="repetitions of the classifiers using group HMMs (hmm, fusion), which "
+                    "cost most (default: {default})")
     add_option(p, "validate", "fractions", type=_options.float_list, metavar="F1,F2,...",
                default=_options.shown(DEFAULT_CONFIG["validate"]["fractions"]),
                help="observed shares of each held-out sequence, in (0, 1] (default: {default})")
@@ -89,7 +96,8 @@ def run(args):
         pattern_params=dict(_options.mining_params(args), top_k=args.top_k, alpha=args.alpha),
         hmm_params=dict(n_states=args.hmm_states))
     result = validate(
-        loaded.events, outcomes, n_splits=args.splits, loo=args.loo, fractions=fractions,
+        loaded.events, outcomes, n_splits=args.splits, n_repeats=args.repeats,
+        n_repeats_hmm=args.repeats_hmm, loo=args.loo, fractions=fractions,
         grouping=_options.grouping_from_args(args, outcomes),
         encoder=_options.encoder_from_args(args), featurizers=featurizers,
         classifiers=classifiers, train_on=args.train_on, n_bootstrap=args.bootstrap,
@@ -103,8 +111,9 @@ def run(args):
     if not args.quiet:
         earliest = result.earliest_fraction()
         parts = [f"{k} {'never' if v != v else f'{v:g}'}" for k, v in earliest.items()]
-        print(f"validated {result.settings['n_learners']} learners in "
-              f"{'leave-one-out' if args.loo else f'{args.splits} folds'} "
+        how = ("leave-one-out" if args.loo else
+               f"{args.splits} folds x {result.settings['n_repeats']} repetitions")
+        print(f"validated {result.settings['n_learners']} learners in {how} "
               f"({result.runtime_seconds:.1f} s); earliest fraction beating the majority "
               f"baseline: {', '.join(parts)} -> {out / 'early_prediction.csv'}")
     return 0

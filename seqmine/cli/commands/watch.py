@@ -23,8 +23,11 @@ DESCRIPTION = (
     "detector firing to standard output: type, learner, detector, kind (occurrence or "
     "absence), direction, time, event_times, sequence, occurrence, priority, suppressed, "
     "reason and hint. Occurrence firings count exactly like the offline instance counts; "
-    "'suppressed' marks hints held back by the cool-down or outranked by another firing "
-    "of the same event. A bad event (malformed JSON, missing field, bad time, out of "
+    "'suppressed' marks hints held back by the cool-down, outranked by another firing "
+    "of the same event, over the per-sequence limit of absence hints, or completed "
+    "encourage patterns (not hinted unless --encourage-hints). Default delivery: "
+    "discourage detectors hint when their pattern occurs, encourage detectors when their "
+    "pattern is missing at its absence point. A bad event (malformed JSON, missing field, bad time, out of "
     "order beyond the tolerance, duplicate) gets one error line on standard error and "
     "is skipped; processing continues. Exit status 2 only for an unusable detectors file, a missing events file "
     "or a bad option."
@@ -51,6 +54,10 @@ def add_arguments(parser):
                         help="print only firings whose hint is delivered (not suppressed)")
     parser.add_argument("--encourage-hints", action="store_true",
                         help="deliver completed encourage patterns as hints too (e.g. praise)")
+    parser.add_argument("--max-absence-hints", type=_options.int_or_none, default=2,
+                        metavar="N",
+                        help="most hints per sequence from encourage detectors whose pattern "
+                             "is missing (absence rules); 'none' = no limit (default: 2)")
     _options.add_duplicates_option(parser, what="exact duplicate events")
     parser.add_argument("--times", choices=("auto", "seconds", "iso"), default="auto",
                         help="time format of the output (default: as the input)")
@@ -70,6 +77,7 @@ def run(args):
     watcher = Watcher(args.detectors, cooldown_seconds=args.cooldown, idle_timeout=idle,
                       out_of_order_tolerance=args.tolerance,
                       hint_on_encourage=args.encourage_hints,
+                      max_absence_hints=args.max_absence_hints,
                       reject_duplicates=args.duplicates == "reject")
     err = sys.stderr
     out = sys.stdout
@@ -226,3 +234,4 @@ def _idle(text):
     if not v > 0:
         raise ParameterError(f"--idle-timeout must be > 0 seconds or 'none'. Got {text!r} instead.")
     return v
+
