@@ -470,3 +470,17 @@ def test_explorer_shows_the_evidence_columns_when_the_table_has_them(tmp_path):
     assert labels["q_volume"] == "q (volume-adjusted)" and labels["evidence"] == "evidence"
     assert '<select id="ex-evidence">' in text and "the kind of evidence" in text
     assert [r[keys.index("evidence")] for r in data["rows"]] == pat["evidence"].tolist()
+
+
+def test_survival_line_explains_more_findings_than_raw_significant():
+    from seqmine.reporting.evidence import survival_lines
+
+    summary = {"patterns_surviving": {"before_adjustment": 10, "volume_adjusted": 9,
+                                      "order": 4},
+               "patterns_by_evidence": {"order": 4, "presence": 7, "volume": 1}}
+    line, = survival_lines(summary, 0.05)
+    assert "10 before adjustment, 9 at equal activity" in line
+    assert "corrected on its own" in line
+    summary["patterns_by_evidence"] = {"order": 4, "presence": 5, "volume": 1}
+    line, = survival_lines(summary, 0.05)
+    assert "corrected on its own" not in line

@@ -41,6 +41,8 @@ def main(out_dir):
             f.dispatchEvent(new Event('change')); })()""")
         dt.screenshot(HERE / "report-explorer.png",
                       clip=_box(dt, "section.sec-explorer", max_height=620))
+        dt.screenshot(HERE / "report-phases.png",
+                      clip=_box(dt, "section.sec-phases .grid1 > div:nth-child(2)", max_height=760))
         dt.screenshot(HERE / "report-prediction.png",
                       clip=_box(dt, "section.sec-early-prediction", max_height=700))
         dt.screenshot(HERE / "report-detector.png",

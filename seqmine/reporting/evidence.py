@@ -132,6 +132,13 @@ def survival_lines(summary, alpha):
         line += (f" By what the data support: {_int(by.get('order', 0))} order, "
                  f"{_int(by.get('presence', 0))} presence beyond activity, "
                  f"{_int(by.get('volume', 0))} activity only.")
+        n_by = sum(int(by.get(k, 0) or 0) for k in ("order", "presence", "volume")
+                   if isinstance(by.get(k, 0), (int, float)))
+        if n_by > int(surv.get("before_adjustment", 0) or 0):
+            # an adjusted test can find what the raw one missed (the adjustment takes
+            # activity's share of the variation out); say so, or the counts look wrong
+            line += (" Each test is corrected on its own, so a pattern can pass the "
+                     "adjusted or the order test without passing the raw one.")
     return [line]
 
 
