@@ -847,7 +847,18 @@ def score_tokens(db, **options):
     from .scoring.contrast import contrast
     singles = mine(db, min_support=1, min_length=1, max_length=1,
                    start_with_action=False, end_with_action=False)
-    tokens = contrast(singles, db, redundancy=None, n_bootstrap=0, **options)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        tokens = contrast(singles, db, redundancy=None, n_bootstrap=0, **options)
+    for w in caught:  # re-issued; the one on presence is about tokens here, not patterns
+        if getattr(w.message, "code", None) == "no_variation":
+            warnings.warn(SeqmineWarning(
+                "Every action and pause kind is in all of the compared units or in none, so "
+                "the presence tests of tokens.csv cannot tell the groups apart (p = 1); what "
+                "each group does more of shows in its rate columns (p_rate, q_rate).",
+                code="tokens_no_variation"), stacklevel=2)
+        else:
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
     tokens.insert(2, "kind", np.where(
         tokens["pattern"].map(dict(zip(db.vocab, db.is_pause))), "pause", "action"))
     return order_patterns(tokens)

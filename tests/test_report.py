@@ -397,7 +397,7 @@ def test_at_a_glance_names_the_strongest_patterns(folder):
     assert "Most reliable pattern more common among" in glance
     strong = glance.split("more common among")[1]
     assert "measure_height" in strong and "strong 70%, weak 20%" in strong
-    assert ("Early recognition: the <b>patterns</b> classifier beat the majority baseline "
+    assert ("Early recognition: the classifier on <b>patterns</b> beat the majority baseline "
             "from <b>50%</b> of the sequence on, with a balanced accuracy of 0.63; majority "
             "baseline accuracy 0.50") in glance
     assert "2 detectors exported for review: 1 encourage, 1 discourage." in glance

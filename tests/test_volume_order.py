@@ -298,3 +298,23 @@ def test_report_survives_a_detectors_file_whose_encoding_is_not_an_object(tmp_pa
     (tmp_path / "detectors.json").write_text(json.dumps({"encoding": [None]}),
                                              encoding="utf-8")
     assert "<!DOCTYPE html>" in render_report(tmp_path).read_text(encoding="utf-8")
+
+
+def test_token_table_says_when_every_token_is_everywhere():
+    # Every learner does every action: the token presence tests cannot differ, and the
+    # run says so about tokens.csv, not about the mined patterns.
+    import warnings as _w
+
+    from seqmine import SequenceDB
+    from seqmine.errors import SeqmineWarning
+    from seqmine.pipeline import score_tokens
+
+    seqs = [["a", "b", "c"], ["c", "b", "a"], ["b", "a", "c"], ["a", "c", "b"]] * 3
+    db = SequenceDB.from_lists(seqs, groups=["strong", "weak"] * 6)
+    with _w.catch_warnings(record=True) as caught:
+        _w.simplefilter("always")
+        table = score_tokens(db, unit="sequence")
+    codes = [getattr(w.message, "code", None) for w in caught
+             if issubclass(w.category, SeqmineWarning)]
+    assert "tokens_no_variation" in codes and "no_variation" not in codes
+    assert (table["p_value"] == 1).all()

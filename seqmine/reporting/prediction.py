@@ -92,8 +92,9 @@ def prediction_glance(d):
             if "baseline_accuracy" in best.index and math.isfinite(_as_float(
                 best["baseline_accuracy"])) else "")
     also = (f" ({'also ' + ', '.join(esc(o) for o in others)})" if others else "")
-    return [f"Early recognition: the <b>{esc(classifier_label(best['classifier']))}</b> "
-            f"classifier beat the majority baseline from <b>{_pct(first)}</b> of the sequence "
+    label = esc(classifier_label(best["classifier"]))
+    return [f"Early recognition: the classifier on <b>{label}</b> "
+            f"beat the majority baseline from <b>{_pct(first)}</b> of the sequence "
             f"on{also}, with a balanced accuracy of {_fmt(best['balanced_accuracy'], 2)}"
             f"{spread}{base} ({design})."]
 
