@@ -40,3 +40,10 @@ def test_the_rules_catch_what_they_look_for():
     assert OWN_SKIP.search("pytest.importor" 'skip("seqmine.mining.miner")')
     assert not OWN_SKIP.search("pytest.importor" 'skip("pyarrow")')
     assert OUTSIDE_SHEET in "# value from CHECK" + "_VALUES.md"
+
+
+def test_no_merge_leftovers_in_the_source_tree():
+    # backups that a merge tool leaves (x.py.orig, x.py.rej) would ship in the package
+    leftovers = [str(p.relative_to(ROOT)) for d in ("seqmine", "tests", "docs", "benchmarks")
+                 for p in (ROOT / d).rglob("*") if p.suffix in {".orig", ".rej"}]
+    assert not leftovers, f"{leftovers}: delete these merge leftovers"
