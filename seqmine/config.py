@@ -77,7 +77,7 @@ DEFAULT_CONFIG = {
         "min_support": 0.2, "min_length": 2, "max_length": 4, "max_gap": 0,
         "max_window": None, "skip_pauses": True, "start_with_action": True,
         "end_with_action": False, "closed": False, "maximal": False,
-        "max_patterns": 200_000,
+        "max_patterns": 200_000, "support_unit": "sequence",
     },
     "contrast": {
         "correction": "bh", "alpha": 0.05, "n_permutations": 1000,
@@ -276,6 +276,7 @@ OPTION_RULES = {
     "mine.end_with_action": ("bool", ()),
     "mine.closed": ("bool", ()),
     "mine.maximal": ("bool", ()),
+    "mine.support_unit": ("choice", (("learner", "sequence"),)),
     "mine.max_patterns": ("int", (1, 10**9, False)),
     "contrast.correction": ("choice", (CONTRAST_CORRECTIONS,)),
     "contrast.alpha": ("num", (0, 1, True, True, False)),

@@ -675,7 +675,8 @@ def _analyze(ev, oc, staging, cfg, *, log):
                           skip_pauses=mine_cfg["skip_pauses"],
                           start_with_action=mine_cfg["start_with_action"],
                           end_with_action=mine_cfg["end_with_action"], closed=mine_cfg["closed"],
-                          maximal=mine_cfg["maximal"], max_patterns=mine_cfg["max_patterns"])
+                          maximal=mine_cfg["maximal"], max_patterns=mine_cfg["max_patterns"],
+                          support_unit=mine_cfg["support_unit"])
         save_patternset(patternset, out / "patternset")
         owned += merge_summary(summary, mine_summary(patternset, mine_cfg))
     alpha = float(con_cfg["alpha"])
@@ -821,6 +822,7 @@ def mine_summary(patternset, mine_cfg):
     """The summary keys the mining stage owns."""
     return {"patterns_mined": int(patternset.n_patterns),
             "method": {"min_support": mine_cfg["min_support"],
+                       "support_unit": mine_cfg.get("support_unit", DEFAULT_CONFIG["mine"]["support_unit"]),
                        "max_length": mine_cfg["max_length"], "max_gap": mine_cfg["max_gap"]}}
 
 
@@ -934,7 +936,7 @@ def validation_pattern_params(mine_cfg, con_cfg, va_cfg):
     """Pattern-discovery settings used inside each validation fold."""
     params = {k: mine_cfg[k] for k in (
         "min_support", "min_length", "max_length", "max_gap", "max_window", "skip_pauses",
-        "start_with_action", "end_with_action", "max_patterns")}
+        "start_with_action", "end_with_action", "max_patterns", "support_unit")}
     params.update(correction="bh" if con_cfg["correction"] == "westfall-young"
                   else con_cfg["correction"], alpha=float(con_cfg["alpha"]),
                   top_k=int(va_cfg["top_k"]))

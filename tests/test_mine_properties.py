@@ -17,7 +17,7 @@ from hypothesis import strategies as st
 import seqmine.mining.miner as mine_module
 from seqmine.encoding.sequences import SequenceDB
 
-from _unconstrained import match, mine
+from _unconstrained import match, mine, mine_parallel
 
 
 # ------------------------------------------------------------ brute force
@@ -260,3 +260,74 @@ def test_invariants_extension_and_shuffle(dbspec, cons, rnd):
     assert ps2.patterns == ps.patterns
     assert np.array_equal(ps2.support_counts, ps.support_counts)
     assert (ps2.counts != ps.counts[order]).nnz == 0
+
+
+@st.composite
+def databases_with_learners(draw):
+    seqs, groups = draw(databases())
+    n_learners = draw(st.integers(1, max(1, len(seqs))))
+    learners = [draw(st.integers(0, n_learners - 1)) for _ in seqs]
+    return seqs, groups, learners
+
+
+def brute_learner_mine(seqs, groups, learners, n_groups, *, min_support, closed, maximal,
+                       **cons):
+    """Patterns frequent by distinct learners per group (a learner counts once however
+    many of its sequences hold the pattern); supports and counts stay per sequence."""
+    every = brute_mine(seqs, groups, n_groups, IS_PAUSE, min_support=1, **cons)
+    units = {(lrn, g) for lrn, g in zip(learners, groups) if g >= 0}
+    sizes = [sum(1 for _, g in units if g == j) for j in range(n_groups)]
+    result = {}
+    for p, (sup, counts) in every.items():
+        by_learner = [len({lrn for lrn, g, c in zip(learners, groups, counts)
+                           if g == j and c > 0}) for j in range(n_groups)]
+        if isinstance(min_support, int):
+            freq = any(by_learner[j] >= min_support for j in range(n_groups) if sizes[j])
+        else:
+            freq = any(by_learner[j] / sizes[j] >= min_support
+                       for j in range(n_groups) if sizes[j])
+        if freq:
+            result[p] = (sup, counts)
+    if closed or maximal:
+        result = {p: v for p, v in result.items()
+                  if not (maximal and any(len(q) > len(p) and is_subsequence(p, q)
+                                          for q in result))
+                  and not (closed and any(len(q) > len(p) and is_subsequence(p, q)
+                                          and result[q][0] == v[0] for q in result))}
+    return result
+
+
+@pytest.mark.slow
+@SETTINGS
+@given(databases_with_learners(), constraint_settings(), st.data())
+def test_learner_support_equals_brute_force(dbspec, cons, data):
+    # Reference: the exhaustive enumerator above, counting distinct learners per group.
+    seqs, groups, learners = dbspec
+    names = [[VOCAB[t] for t in s] for s in seqs]
+    lids = [f"L{x}" for x in learners]
+    if groups is None:
+        db = SequenceDB.from_lists(names, pause_tokens=PAUSES, vocab=VOCAB, learners=lids)
+        eff_groups, n_groups = [0] * len(seqs), 1
+    else:
+        db = SequenceDB.from_lists(names, groups=groups, group_names=["strong", "weak"],
+                                   pause_tokens=PAUSES, vocab=VOCAB, learners=lids)
+        eff_groups, n_groups = groups, 2
+    sizes = [len({lrn for lrn, g in zip(learners, eff_groups) if g == j})
+             for j in range(n_groups)]
+    if max(sizes) == 0 or not any(seqs):
+        return
+    if data.draw(st.booleans()):
+        min_support = data.draw(st.integers(1, max(sizes)))
+    else:
+        min_support = data.draw(st.sampled_from([0.2, 1 / 3, 0.5, 2 / 3, 1.0]))
+    ps = mine(db, min_support=min_support, support_unit="learner", **cons)
+    ref = brute_learner_mine(seqs, eff_groups, learners, n_groups, min_support=min_support,
+                             **cons)
+    got = _as_dict(ps)
+    assert set(got) == set(ref)
+    for p in ref:
+        assert got[p] == ref[p], p
+    par = mine_parallel(db, min_support=min_support, support_unit="learner", partitions=2,
+                        **cons)
+    assert par.patterns == ps.patterns
+    assert np.array_equal(par.support_counts, ps.support_counts)

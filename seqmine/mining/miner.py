@@ -59,15 +59,21 @@ def mine(db, *, min_support=_DEFAULTS["min_support"], min_length=_DEFAULTS["min_
          start_with_action=_DEFAULTS["start_with_action"],
          end_with_action=_DEFAULTS["end_with_action"], closed=_DEFAULTS["closed"],
          maximal=_DEFAULTS["maximal"], max_patterns=DEFAULT_MAX_PATTERNS,
-         instance_counts=True, first_items=None):
+         instance_counts=True, first_items=None, support_unit=_DEFAULTS["support_unit"]):
     """Mine ordered patterns that are frequent in at least one group.
 
     Parameters
     ----------
     db : SequenceDB
     min_support : float in (0, 1] or int >= 1
-        A float is a share of a group's sequences; an int is a number of sequences.
-        A pattern is kept when some group reaches it.
+        A float is a share of a group's sequences (or learners, see ``support_unit``);
+        an int is a number of them. A pattern is kept when some group reaches it.
+    support_unit : {"sequence", "learner"}, default "sequence"
+        What ``min_support`` counts. ``"sequence"``: the group's sequences.
+        ``"learner"``: the learners of a group with the pattern in at least one of their
+        sequences, so a behaviour learners show in one of many sessions is not missed,
+        and a learner with many sessions counts once. The two agree when each learner
+        has one sequence. Either way ``support_counts`` holds sequence supports.
     min_length, max_length : int
         Pattern lengths reported (``max_length=None``: no upper limit).
     max_gap : int >= 0, optional
@@ -152,9 +158,17 @@ def mine(db, *, min_support=_DEFAULTS["min_support"], min_length=_DEFAULTS["min_
         if not isinstance(val, (bool, np.bool_)):
             raise ParameterError(f"The '{name}' parameter of mine must be True or False. "
                                  f"Got {val!r} instead.")
+    if support_unit not in ("learner", "sequence"):
+        raise ParameterError(f"The 'support_unit' parameter of {where} must be 'learner' or "
+                             f"'sequence'. Got {support_unit!r} instead.")
     names, sizes, seq_groups, gidx = _group_slots(db)
-    thr = _thresholds(min_support, sizes, where)
     G = len(names)
+    units = learner_units(db.learners, seq_groups, G) if support_unit == "learner" else None
+    # Searched on sequence counts with the learner threshold: a pattern in T learners is
+    # in at least T sequences, and so are its prefixes, so pruning stays exact; the
+    # learner count itself is checked on the reported patterns below.
+    thr = _thresholds(min_support, sizes if units is None else units[2], where,
+                      "sequences" if units is None else "learners")
 
     # level 1 by a presence count: which symbols are frequent in some group
     sym_support = _symbol_support(db, gidx, G)
@@ -196,7 +210,7 @@ def mine(db, *, min_support=_DEFAULTS["min_support"], min_length=_DEFAULTS["min_
         allowed_fn=allowed_fn, keep_fn=keep_fn, target_fn=target_fn,
         max_length=max_length, max_patterns=max_patterns,
         cons=engine_cons,
-        with_counts=bool(instance_counts))
+        with_counts=bool(instance_counts) or units is not None)
 
     # reported candidates in search order: length, then last item, item before it, ...
     pats, support, nodes = [], [], []
@@ -209,6 +223,15 @@ def mine(db, *, min_support=_DEFAULTS["min_support"], min_length=_DEFAULTS["min_
         pats.extend(tuple(r) for r in rows.tolist())
         support.append(lev["support"][tgt])
     support = np.concatenate(support) if support else np.zeros((0, G), dtype=np.int64)
+    nodes = np.concatenate(nodes) if nodes else np.zeros(0, dtype=np.int64)
+    all_counts = None
+    if units is not None:
+        all_counts = assemble_counts(triples, offsets, nodes)
+        by_learner = learner_support(all_counts, units, G)
+        frequent = np.any(by_learner >= thr[None, :], axis=1)
+        pats = [p for p, f in zip(pats, frequent.tolist()) if f]
+        support, nodes = support[frequent], nodes[frequent]
+        all_counts = all_counts[:, np.flatnonzero(frequent)]
     keep = np.ones(len(pats), dtype=bool)
     if closed or maximal:
         not_closed, not_maximal = _superpattern_flags(pats, support, len(db.vocab))
@@ -217,14 +240,18 @@ def mine(db, *, min_support=_DEFAULTS["min_support"], min_length=_DEFAULTS["min_
         if maximal:
             keep &= ~not_maximal
     idx = np.flatnonzero(keep)
-    nodes = np.concatenate(nodes) if nodes else np.zeros(0, dtype=np.int64)
-    counts = assemble_counts(triples, offsets, nodes[idx])
+    if all_counts is None:
+        counts = assemble_counts(triples, offsets, nodes[idx])
+    elif instance_counts:
+        counts = sp.csr_matrix(all_counts[:, idx])
+    else:  # asked for no matrix: the same empty matrix as the search without counts
+        counts = sp.csr_matrix((db.n_sequences, len(idx)), dtype=all_counts.dtype)
     constraints = dict(
         min_support=min_support, min_length=min_length, max_length=max_length,
         max_gap=max_gap, max_window=max_window, skip_pauses=bool(skip_pauses),
         start_with_action=bool(start_with_action), end_with_action=bool(end_with_action),
         closed=bool(closed), maximal=bool(maximal), max_patterns=max_patterns,
-        instance_counts=bool(instance_counts),
+        instance_counts=bool(instance_counts), support_unit=support_unit,
         order="length, then last item, item before it, ... (vocabulary ids)")
     return PatternSet(
         patterns=[pats[i] for i in idx], vocab=list(db.vocab), is_pause=db.is_pause.copy(),
@@ -472,8 +499,59 @@ def _group_slots(db, allow_empty=False):
     return list(db.group_names), sizes, db.groups.astype(np.int64), gidx
 
 
-def _thresholds(min_support, sizes, where):
-    """Smallest support count meeting ``min_support`` in each group (huge if none)."""
+def learner_units(learners, seq_groups, n_groups):
+    """Learner-in-group units of the sequences, or None when each has its own learner.
+
+    Returns ``(unit_of_sequence, unit_group, units_per_group)``: a unit is a learner
+    within one group (a learner whose sequences are in two groups counts in each);
+    sequences without a group belong to no unit (-1).
+
+    Examples
+    --------
+    >>> u, g, n = learner_units(np.array(["a", "a", "b"]), np.array([0, 0, 1]), 2)
+    >>> u.tolist(), g.tolist(), n.tolist()
+    ([0, 0, 1], [0, 1], [1, 1])
+    """
+    learners = np.asarray(learners)
+    seq_groups = np.asarray(seq_groups, dtype=np.int64)
+    if len(np.unique(learners)) == len(learners):
+        return None
+    _, lid = np.unique(learners, return_inverse=True)
+    lid = lid.ravel().astype(np.int64)
+    has = seq_groups >= 0
+    key = lid * (n_groups + 1) + np.where(has, seq_groups, n_groups)
+    keys, unit = np.unique(key, return_inverse=True)
+    unit = unit.ravel().astype(np.int64)
+    unit_group = (keys % (n_groups + 1)).astype(np.int64)
+    unit_group[unit_group == n_groups] = -1
+    unit[~has] = -1
+    return unit, unit_group, np.bincount(unit_group[unit_group >= 0],
+                                         minlength=n_groups).astype(np.int64)
+
+
+def learner_support(counts, units, n_groups):
+    """Per-group learner support ``(n_patterns, n_groups)`` of a sequences x patterns
+    count matrix, with the units of :func:`learner_units`."""
+    unit, unit_group, _ = units
+    counts = sp.csr_matrix(counts)
+    ok = unit >= 0
+    n_units = len(unit_group)
+    agg = sp.csr_matrix((np.ones(int(ok.sum())), (unit[ok], np.flatnonzero(ok))),
+                        shape=(n_units, counts.shape[0]))
+    present = counts.copy()
+    present.data = (present.data > 0).astype(np.float64)
+    in_unit = (agg @ present).tocsr()
+    in_unit.data = (in_unit.data > 0).astype(np.float64)
+    member = sp.csr_matrix((np.ones(n_units), (np.where(unit_group >= 0, unit_group, 0),
+                                               np.arange(n_units))),
+                           shape=(n_groups, n_units))
+    member = member.multiply((unit_group >= 0)[None, :].astype(np.float64)).tocsr()
+    return np.rint((member @ in_unit).toarray().T).astype(np.int64)
+
+
+def _thresholds(min_support, sizes, where, unit="sequences"):
+    """Smallest support count meeting ``min_support`` in each group (huge if none);
+    ``sizes`` and the count are of ``unit`` (learners or sequences)."""
     huge = np.iinfo(np.int64).max
     if isinstance(min_support, (bool, np.bool_)) or not isinstance(min_support, numbers.Real):
         raise ParameterError(f"The 'min_support' parameter of {where} must be a float in "
@@ -482,7 +560,7 @@ def _thresholds(min_support, sizes, where):
         m = int(min_support)
         if m < 1 or m > sizes.max():
             raise ParameterError(
-                f"The 'min_support' parameter of {where} is a count of {m} sequences, but the "
+                f"The 'min_support' parameter of {where} is a count of {m} {unit}, but the "
                 f"largest group has {int(sizes.max())}; use a count between 1 and "
                 f"{int(sizes.max())} or a fraction in (0, 1].")
         return np.where(sizes > 0, m, huge).astype(np.int64)

@@ -119,18 +119,20 @@ def _partition_first_items(db, n_parts):
 
 
 def _slim(db):
-    """What the miner reads, without times, rows or identifiers (sent to each worker)."""
+    """What the miner reads, without times, rows or identifiers (sent to each worker):
+    learners travel as numbers, which is all that learner support needs."""
+    learner_codes = np.unique(db.learners, return_inverse=True)[1].ravel()
     return (db.tokens, db.offsets, list(db.vocab), db.is_pause, db.groups,
-            list(db.group_names))
+            list(db.group_names), learner_codes)
 
 
 def _mine_partition(task):
-    (tokens, offsets, vocab, is_pause, groups, group_names), part, kwargs = task
+    (tokens, offsets, vocab, is_pause, groups, group_names, learner_codes), part, kwargs = task
     n_tok, n_seq = len(tokens), len(offsets) - 1
     db = SequenceDB(tokens=tokens, offsets=offsets, vocab=vocab, is_pause=is_pause,
                     times=np.broadcast_to(np.float64(0), n_tok),
                     source_rows=np.broadcast_to(np.int64(0), n_tok),
-                    learners=np.full(n_seq, "", dtype=object),
+                    learners=learner_codes.astype(str).astype(object),
                     sessions=np.full(n_seq, "", dtype=object),
                     groups=groups, group_names=group_names)
     with quiet_mode():  # one bar per partition would interleave

@@ -78,6 +78,9 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
     max_patterns : int or None, default None
         Pattern-explosion guard of the miner (None = the miner's default,
         ``DEFAULT_CONFIG["mine"]["max_patterns"]``).
+    support_unit : {"sequence", "learner"}, default "sequence"
+        What ``min_support`` counts (see :func:`seqmine.mining.miner.mine`); passed to
+        the miner only when it is not the default, so a pluggable miner without it works.
     correction : str, default "bh"
         Multiple-testing correction passed to the scorer.
     n_permutations : int, default 1000
@@ -131,6 +134,7 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
                  start_with_action=_MINE["start_with_action"],
                  end_with_action=_MINE["end_with_action"], closed=_MINE["closed"],
                  maximal=_MINE["maximal"], max_patterns=None,
+                 support_unit=_MINE["support_unit"],
                  correction=_CONTRAST["correction"], alpha=_CONTRAST["alpha"],
                  n_permutations=_CONTRAST["n_permutations"],
                  top_k=DEFAULT_CONFIG["validate"]["top_k"], value="rate", random_state=_SEED,
@@ -146,6 +150,7 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
         self.closed = closed
         self.maximal = maximal
         self.max_patterns = max_patterns
+        self.support_unit = support_unit
         self.correction = correction
         self.alpha = alpha
         self.n_permutations = n_permutations
@@ -173,6 +178,8 @@ class PatternFeaturizer(TransformerMixin, BaseEstimator):
                                      "maximal") if getattr(self, k)}
         if self.max_patterns is not None:
             options["max_patterns"] = self.max_patterns
+        if self.support_unit != _MINE["support_unit"]:  # a pluggable miner may lack it
+            options["support_unit"] = self.support_unit
         mined = miner(db, min_support=self.min_support, min_length=self.min_length,
                       max_length=self.max_length, max_gap=self.max_gap,
                       max_window=self.max_window, skip_pauses=self.skip_pauses, **options)

@@ -310,7 +310,11 @@ def add_mining_options(p, title="mining"):
     g = p.add_argument_group(title)
     add_option(g, "mine", "min_support", type=support_value, metavar="S",
                help="share of a group's sequences (e.g. 0.2) or a count of sequences "
-                    "(e.g. 5) a pattern must reach in at least one group (default: {default})")
+                    "(e.g. 5) a pattern must reach in at least one group; learners with "
+                    "--support-unit learner (default: {default})")
+    add_option(g, "mine", "support_unit", choices=["sequence", "learner"],
+               help="what --min-support counts: sequences, or learners with the pattern in "
+                    "any of their sequences (default: {default})")
     add_option(g, "mine", "min_length", type=int, metavar="N",
                help="shortest pattern reported (default: {default})")
     add_option(g, "mine", "max_length", type=int_or_none, metavar="N",
