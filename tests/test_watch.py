@@ -307,6 +307,24 @@ def test_cli_watch_reads_file_and_reports_bad_lines(tmp_path, capsys):
     assert [json.loads(x)["detector"] for x in capsys.readouterr().out.splitlines()] == ["burst"]
 
 
+def test_cli_watch_writes_times_in_the_streams_unit(tmp_path, capsys):
+    # A millisecond clock (as the analysis recorded it) gives firing times in
+    # milliseconds, the unit the events came in, not seconds.
+    det = _write_doc(tmp_path, _doc(encoding={"template": "{action}",
+                                              "time": {"unit": "ms"}}))
+    events = tmp_path / "events.jsonl"
+    events.write_text("\n".join(json.dumps(e) for e in [
+        ev("a", 1767261600000, "set_light"), ev("a", 1767261601500, "set_water")]) + "\n",
+        encoding="utf-8")
+    assert main(["watch", det, str(events), "-q"]) == 0
+    out = [json.loads(x) for x in capsys.readouterr().out.splitlines()]
+    assert [(r["detector"], r["time"], r["event_times"]) for r in out] == [
+        ("burst", 1767261601500, [1767261600000, 1767261601500])]
+    assert main(["watch", det, str(events), "-q", "--times", "iso"]) == 0
+    out = [json.loads(x) for x in capsys.readouterr().out.splitlines()]
+    assert out[0]["time"] == "2026-01-01T10:00:01.500000Z"
+
+
 def test_cli_watch_reads_stdin(tmp_path, capsys, monkeypatch):
     det = _write_doc(tmp_path)
     text = "\n".join(json.dumps(e) for e in [ev("a", 0, "reset"), ev("b", 0, "reset")]) + "\n"

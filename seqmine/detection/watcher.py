@@ -133,9 +133,17 @@ class Firing:
     #: position of the detector in the file (set by the watcher; not a parameter)
     _index: int = field(default=-1, init=False, repr=False, compare=False)
 
-    def to_dict(self, iso_times=False):
-        """Plain JSON record (``type`` = ``"firing"``); times as ISO 8601 if asked."""
-        fmt = _iso if iso_times else (lambda x: x)
+    def to_dict(self, iso_times=False, per_second=1):
+        """Plain JSON record (``type`` = ``"firing"``); times as ISO 8601 if asked, else
+        as numbers in the stream's unit (``per_second`` = 1000 for milliseconds).
+
+        Examples
+        --------
+        >>> f = Firing("a", "d", "occurrence", 1700000000.25, event_times=(1700000000.25,))
+        >>> f.to_dict(per_second=1000)["time"], f.to_dict()["time"]
+        (1700000000250, 1700000000.25)
+        """
+        fmt = _iso if iso_times else (lambda x: _in_unit(x, per_second))
         return {
             "type": "firing", "learner": self.learner, "detector": self.detector,
             "kind": self.kind, "direction": self.direction, "time": fmt(self.time),
@@ -282,6 +290,12 @@ class Watcher:
     def n_learners(self):
         """Number of learners whose state is currently held."""
         return len(self._learners)
+
+    @property
+    def per_second(self):
+        """Units of a numeric stream time per second (1000 for milliseconds), from the
+        detectors file's clock; numeric times in firings are written in that unit."""
+        return self._per_second
 
     @property
     def time_kind(self):
@@ -776,6 +790,15 @@ def _opt_text(value):
     if type(value) is str:
         return value.strip()
     return str(value).strip()
+
+
+def _in_unit(seconds, per_second):
+    """Seconds as a number of the stream's units (a whole number when it is one)."""
+    if per_second == 1:
+        return seconds
+    value = seconds * per_second
+    whole = round(value)
+    return int(whole) if abs(value - whole) < 1e-3 else value
 
 
 def _iso(seconds):

@@ -159,8 +159,8 @@ def _write(out, firings, watcher, times, hints_only):
     for f in firings:
         if hints_only and f.suppressed:
             continue
-        out.write(terminal_safe_json(json.dumps(f.to_dict(iso_times=iso), ensure_ascii=False))
-                  + "\n")
+        record = f.to_dict(iso_times=iso, per_second=1 if iso else watcher.per_second)
+        out.write(terminal_safe_json(json.dumps(record, ensure_ascii=False)) + "\n")
 
 
 def _pseudonymizer(key_path):
