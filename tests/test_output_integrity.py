@@ -305,3 +305,27 @@ def test_jobs_above_the_cores_are_capped_with_a_notice(runs, tmp_path, capsys):
     err = capsys.readouterr().err
     assert (f"64 jobs asked for, but only {available_cores()} core(s) are available; "
             f"using {available_cores()}") in err
+
+
+def test_files_reach_the_disk_before_the_swap(tmp_path, monkeypatch):
+    # Durability: every staged file and folder is flushed before the folder is swapped
+    # in, and the parent folder (which holds the renames) after it.
+    from seqmine._util import outdir
+
+    events = []
+    real_sync, real_swap = outdir._sync, outdir._swap_names
+    monkeypatch.setattr(outdir, "_sync", lambda p: (events.append(("sync", str(p))),
+                                                   real_sync(p)))
+    monkeypatch.setattr(outdir, "_swap_names", lambda a, b: (events.append(("swap", "")),
+                                                           real_swap(a, b)))
+    target = tmp_path / "run"
+    with outdir.writing_folder(target) as st:
+        (st.path / "sub").mkdir()
+        (st.path / "a.csv").write_text("x\n")
+        (st.path / "sub" / "b.json").write_text("{}")
+        staged = str(st.path)
+    swap = events.index(("swap", ""))
+    before = {p for kind, p in events[:swap]}
+    assert {f"{staged}/a.csv", f"{staged}/sub/b.json", f"{staged}/sub", staged} <= before
+    assert ("sync", str(tmp_path)) in events[swap:]
+    assert (target / "sub" / "b.json").read_text() == "{}"

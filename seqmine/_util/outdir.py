@@ -4,7 +4,9 @@ A command that writes an output folder builds it in a temporary sibling folder
 (``.NAME.seqmine-tmp-XXXX`` beside ``NAME``) and, when every file is written, swaps it
 into place in one step (``renameat2(RENAME_EXCHANGE)`` where the system has it, else
 two renames that the next run repairs if it was cut between them). Until the swap the
-previous complete folder stays as it was; a run that fails or is interrupted removes
+previous complete folder stays as it was. Every file and folder is flushed to the disk
+(``fsync``) before the swap and the parent folder after it, so a power cut leaves
+either the previous folder or the new one whole. A run that fails or is interrupted removes
 its temporary folder (one killed with SIGKILL leaves it, and the next run into the same
 folder removes it). A lock file beside the folder (``.NAME.seqmine-lock``, held with
 ``flock``) refuses a second run into the same folder while the first is writing.
@@ -190,7 +192,9 @@ def writing_file(target, option="--out", *, inputs=()):
                 if path.is_symlink():
                     raise OutputError(f"{option} {path} became a symbolic link while the "
                                       f"command ran; nothing was written.")
+                _sync(tmp)
                 os.replace(tmp, path)
+                _sync(path.parent)
     finally:
         with contextlib.suppress(OSError):
             os.unlink(tmp)
@@ -212,7 +216,9 @@ def writing_files(folder, names, option="--out", *, inputs=()):
             with _signals_held():
                 for target in targets:
                     if (tmp / target.name).exists():
+                        _sync(tmp / target.name)
                         os.replace(tmp / target.name, target)
+                _sync(Path(folder))
     finally:
         with _signals_held():
             shutil.rmtree(tmp, ignore_errors=True)
@@ -343,8 +349,37 @@ def _clone(src, dst, option):
 
 
 # -------------------------------------------------------------------- the swap
+def _sync(path):
+    """Flush one file or folder to the disk (no-op where the file system cannot)."""
+    with contextlib.suppress(OSError):
+        fd = os.open(path, os.O_RDONLY)
+        try:
+            os.fsync(fd)
+        finally:
+            os.close(fd)
+
+
+def _sync_tree(folder):
+    """Flush every file and folder under ``folder``, so that the swap that follows never
+    exposes a folder whose files a power cut would leave empty."""
+    for root, dirs, files in os.walk(folder):
+        for name in files:
+            p = os.path.join(root, name)
+            if not os.path.islink(p):
+                _sync(p)
+        _sync(root)
+
+
 def _swap(tmp, target):
     os.chmod(tmp, 0o777 & ~_umask())
+    _sync_tree(tmp)
+    try:
+        _swap_names(tmp, target)
+    finally:
+        _sync(target.parent)  # the renames themselves
+
+
+def _swap_names(tmp, target):
     if not target.exists():
         os.rename(tmp, target)
         return
