@@ -316,6 +316,14 @@ def test_three_groups_omnibus_and_pairwise():
     np.testing.assert_allclose(sub["p_value"], two.loc[sub.index, "p_value"])
     np.testing.assert_allclose(sub["cliffs_delta"], two.loc[sub.index, "cliffs_delta"])
     np.testing.assert_allclose(pw["q_value"], adjust_pvalues(pw["p_value"].to_numpy(), "bh"))
+    # the volume-adjusted and order tests of a pair are those of the two-group table
+    for col in ("p_volume", "p_order"):
+        np.testing.assert_allclose(sub[col], two.loc[sub.index, col], equal_nan=True)
+    for col in ("q_volume", "q_order"):
+        np.testing.assert_allclose(
+            pw[col], adjust_pvalues(pw["p" + col[1:]].to_numpy(), "bh"), equal_nan=True)
+    assert set(pw["evidence"]) <= {"order", "presence", "volume", ""}
+    assert ((pw["favours"] != "") == (pw["evidence"] != "")).all()
 
 
 # ----------------------------------------------------------------- bad input

@@ -360,24 +360,28 @@ def contrast(patterns, db=None, *, lengths=None, groups=None,
 
 
 def pairwise_contrast(patterns, db=None, *, lengths=None, groups=None, correction="bh",
-                      alpha=0.05, rate_unit=None, unit="learner"):
+                      alpha=0.05, rate_unit=None, unit="learner",
+                      n_volume_strata=_DEFAULTS["n_volume_strata"]):
     """Two-group comparisons of every pair of groups, as one long table.
 
     Parameters
     ----------
-    patterns, db, lengths, groups, alpha, rate_unit, unit
+    patterns, db, lengths, groups, alpha, rate_unit, unit, n_volume_strata
         As in :func:`contrast`.
     correction : {"bh", "holm"}
-        Applied over all (pair, pattern) tests together.
+        Applied over all (pair, pattern) tests together (also to the volume-adjusted
+        and the order tests, each a family of its own).
 
     Returns
     -------
     pandas.DataFrame
         Columns ``group_a``, ``group_b``, ``pattern``, ``length``, ``support_a``,
-        ``support_b``, ``rate_a``, ``rate_b``, ``p_value``, ``q_value``, ``favours``,
+        ``support_b``, ``rate_a``, ``rate_b``, ``p_value``, ``q_value``, ``p_volume``,
+        ``q_volume``, ``p_order``, ``q_order``, ``evidence``, ``favours``,
         ``risk_difference``, ``odds_ratio``, ``log_odds_ratio``, ``growth_rate``,
         ``cohens_h``, ``cliffs_delta``, ``p_rate``, ``q_rate`` (same definitions as
-        :func:`contrast`, with A = ``group_a``). Pairs follow the group order.
+        :func:`contrast`, with A = ``group_a``; activity strata are formed within each
+        pair). Pairs follow the group order.
     """
     prep = _prepare_unit(patterns, db, lengths, groups, rate_unit, unit, "pairwise_contrast")
     patterns = prep["patterns"]
@@ -388,26 +392,55 @@ def pairwise_contrast(patterns, db=None, *, lengths=None, groups=None, correctio
     pnames = patterns.names
     toks = patterns.tokens
     pids, ptoks = [pattern_id(t) for t in toks], [tokens_text(t) for t in toks]
+    directions = []
     for ga, gb in itertools.combinations(range(len(names)), 2):
         mask = (labels == ga) | (labels == gb)
         st = _two_group_stats(prep["presence"][mask], prep["rates"][mask],
                               labels[mask] == ga, labels[mask] == gb)
+        pair_labels = np.where(labels[mask] == ga, 0, 1).astype(np.int64)
+        ev = evidence_tests(
+            prep["presence"][mask], pair_labels, 2, patterns.patterns,
+            volume=None if prep["volume"] is None else prep["volume"][mask],
+            token_counts=None if prep["token_counts"] is None else prep["token_counts"][mask],
+            n_strata=n_volume_strata)
+        rd = np.sign(st["risk_difference"])
+        directions.append((np.where(rd > 0, 0, np.where(rd < 0, 1, -1)), ev["dir_volume"],
+                           ev["dir_order"], ev["strata"] is not None))
         frames.append(pd.DataFrame({
             "group_a": names[ga], "group_b": names[gb], "pattern_id": pids, "pattern": pnames,
             "tokens": ptoks,
             "length": patterns.lengths, "support_a": st["support_a"],
             "support_b": st["support_b"], "rate_a": st["rate_a"], "rate_b": st["rate_b"],
-            "p_value": st["p_value"], "risk_difference": st["risk_difference"],
+            "p_value": st["p_value"], "p_volume": ev["p_volume"], "p_order": ev["p_order"],
+            "risk_difference": st["risk_difference"],
             "odds_ratio": st["odds_ratio"], "log_odds_ratio": st["log_odds_ratio"],
             "growth_rate": st["growth_rate"], "cohens_h": st["cohens_h"],
             "cliffs_delta": st["cliffs_delta"], "p_rate": st["p_rate"],
         }))
     df = pd.concat(frames, ignore_index=True)
-    df.insert(df.columns.get_loc("p_value") + 1, "q_value",
-              adjust_pvalues(df["p_value"].to_numpy(), correction))
-    fav = np.where(df["support_a"] > df["support_b"], df["group_a"], df["group_b"])
-    ok = (df["q_value"] <= alpha) & (df["support_a"] != df["support_b"])
-    df.insert(df.columns.get_loc("q_value") + 1, "favours", np.where(ok, fav, ""))
+    q = adjust_pvalues(df["p_value"].to_numpy(), correction)
+    q_volume = adjust_pvalues(df["p_volume"].to_numpy(), correction)
+    q_order = adjust_pvalues(df["p_order"].to_numpy(), correction)
+    df.insert(df.columns.get_loc("p_value") + 1, "q_value", q)
+    df.insert(df.columns.get_loc("p_volume") + 1, "q_volume", q_volume)
+    df.insert(df.columns.get_loc("p_order") + 1, "q_order", q_order)
+    evidence, favours, start = [], [], 0
+    for (ga, gb), (d_raw, d_vol, d_ord, has_volume) in zip(
+            itertools.combinations(range(len(names)), 2), directions):
+        rows = slice(start, start + len(d_raw))
+        start += len(d_raw)
+        pair = [names[ga], names[gb]]
+        if has_volume:
+            e, f = classify_evidence(q[rows], q_volume[rows], q_order[rows], d_raw, d_vol,
+                                     d_ord, pair, alpha)
+        else:  # no activity volumes: no adjustment, favours follows q_value
+            nan = np.full(len(d_raw), np.nan)
+            _, f = classify_evidence(q[rows], nan, nan, d_raw, d_raw, d_raw, pair, alpha)
+            e = np.full(len(d_raw), "", dtype=object)
+        evidence.append(e)
+        favours.append(f)
+    df.insert(df.columns.get_loc("q_order") + 1, "evidence", np.concatenate(evidence))
+    df.insert(df.columns.get_loc("evidence") + 1, "favours", np.concatenate(favours))
     df["q_rate"] = adjust_pvalues(df["p_rate"].to_numpy(), correction)
     return df
 

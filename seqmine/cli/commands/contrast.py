@@ -97,7 +97,8 @@ def run(args):
         pw = pairwise_contrast(ps, db, groups=groups,
                                correction="bh" if opts["correction"] == "bh" else "holm",
                                alpha=opts["alpha"], rate_unit=opts["rate_unit"],
-                               unit=opts["contrast_unit"])
+                               unit=opts["contrast_unit"],
+                               n_volume_strata=opts["volume_strata"])
         messages.append(_write(pw, args.pairwise, "--pairwise", reads, "pairwise rows"))
     if args.transitions:
         tr = transitions(db, exclude_pauses=args.exclude_pauses)
@@ -199,7 +200,8 @@ def _run_in_folder(args, folder):
                                      "two-group table already holds the pairwise comparison.")
             write_csv(pairwise_contrast(
                 ps, db, groups=groups, correction="bh" if opts["correction"] == "bh" else "holm",
-                alpha=opts["alpha"], rate_unit=opts["rate_unit"], unit=opts["contrast_unit"]),
+                alpha=opts["alpha"], rate_unit=opts["rate_unit"], unit=opts["contrast_unit"],
+                n_volume_strata=opts["volume_strata"]),
                 st.path / pw_name)
         return contrast_summary(table, {
             "correction": opts["correction"], "alpha": opts["alpha"],
