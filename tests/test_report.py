@@ -415,6 +415,21 @@ def test_first_screen_says_plainly_when_no_classifier_beats_the_baseline(tmp_pat
     assert "not at any observed share" in text
 
 
+def test_early_recognition_is_read_beside_an_activity_difference(tmp_path):
+    import json
+
+    folder = write_output_folder(tmp_path / "o")
+    text = render_report(folder).read_text(encoding="utf-8")
+    assert "read this accuracy beside the activity difference" not in text
+    summary = json.loads((folder / "summary.json").read_text())
+    summary["activity"] = {"p_value": 0.001, "ratio_of_means": 1.4,
+                           "test": "Mann-Whitney U (two-sided) on events per learner"}
+    (folder / "summary.json").write_text(json.dumps(summary))
+    text = render_report(folder).read_text(encoding="utf-8")
+    glance = text.split('class="keybox"')[1].split("</div>")[0]
+    assert "read this accuracy beside the activity difference" in glance
+
+
 def test_repetitions_and_fixed_groups_are_stated(tmp_path):
     folder = write_output_folder(tmp_path / "o")
     ep = pd.read_csv(folder / "early_prediction.csv")

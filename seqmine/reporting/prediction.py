@@ -96,7 +96,20 @@ def prediction_glance(d):
     return [f"Early recognition: the classifier on <b>{label}</b> "
             f"beat the majority baseline from <b>{_pct(first)}</b> of the sequence "
             f"on{also}, with a balanced accuracy of {_fmt(best['balanced_accuracy'], 2)}"
-            f"{spread}{base} ({design})."]
+            f"{spread}{base} ({design}).{_activity_caveat(d)}"]
+
+
+def _activity_caveat(d):
+    """A sentence when the groups differ in how much they did: the features are shares
+    and rates per token, not counts, but longer work still shapes them."""
+    summary = d["summary"].value if "summary" in d else None
+    act = summary.get("activity") if isinstance(summary, dict) else None
+    p = _as_float(act.get("p_value")) if isinstance(act, dict) else float("nan")
+    if not (math.isfinite(p) and p <= 0.05):
+        return ""
+    return (" The groups also differ in how much they did. The classifiers use shares and "
+            "rates per token, not counts, but how long a learner works can still shape "
+            "them, so read this accuracy beside the activity difference.")
 
 
 def section_prediction(d, figs):
