@@ -158,6 +158,7 @@ ul.cautions li { margin-bottom: 6px; max-width: 78ch; }
   .print-only { display: block; }
 }
 .print-only { display: none; }
+code.nw { white-space: nowrap; }
 """
 
 
@@ -178,8 +179,10 @@ def esc(value, max_chars=400):
 #: Technical words inside a message: configuration keys (``phases.max_states``), file
 #: names (``model_group-weak.json``), option flags (``--states``) and other words with an
 #: underscore. Matched on the escaped text, so they hold no markup.
-_TECHNICAL_WORD = re.compile(r"(?<![\w&;-])(?:--[a-z][\w-]*|[\w.-]*_[\w.-]*\w|"
-                             r"[\w-]+\.(?:json|csv|html|toml|gz|jsonl))")
+_TECHNICAL_WORD = re.compile(
+    r"(?<![\w&;/.-])(?:--[a-z][\w-]*|"
+    r"(?:/?[\w.-]+/)*[\w-]+(?:\.(?:json|jsonl|csv|tsv|parquet|html|toml|gz))+"
+    r"(?![\w])|[\w.-]*_[\w.-]*\w)")
 
 
 def esc_message(value, max_chars=400):
@@ -191,9 +194,17 @@ def esc_message(value, max_chars=400):
     Examples
     --------
     >>> esc_message("try --states 2-7 or phases.max_states = 7")
-    'try <code>--states</code> 2-7 or <code>phases.max_states</code> = 7'
+    'try <code class="nw">--states</code> 2-7 or <code>phases.max_states</code> = 7'
+    >>> esc_message("events.csv.gz: 3 rows")
+    '<code>events.csv.gz</code>: 3 rows'
     """
-    return _TECHNICAL_WORD.sub(lambda m: f"<code>{m.group(0)}</code>", esc(value, max_chars))
+    def code(m):
+        word = m.group(0)
+        # an option flag stays on one line (a break after "--" reads as two words)
+        return f'<code class="nw">{word}</code>' if word.startswith("--") else \
+            f"<code>{word}</code>"
+
+    return _TECHNICAL_WORD.sub(code, esc(value, max_chars))
 
 
 #: Sections of the configuration searched (in order) by :func:`lookup`.
