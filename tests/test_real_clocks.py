@@ -9,6 +9,7 @@ import json
 import re
 import warnings
 import zoneinfo
+from pathlib import Path
 from datetime import datetime, timezone
 
 import numpy as np
@@ -415,6 +416,42 @@ def test_damaged_gzip_and_zip_say_so(tmp_path):
     z = tmp_path / "events.zip"
     z.write_bytes(b"PK\x03\x04" + b"\x00" * 40)
     with pytest.raises(DataFileError, match=r"is a zip archive; unzip it"):
+        load_events(z)
+
+
+@pytest.mark.parametrize("compress", ["bz2", "xz"])
+def test_bzip2_and_xz_files_are_read_directly_events_and_outcomes(tmp_path, compress):
+    # The compressors are Python's own (bz2, lzma); the loaded table must equal the
+    # plain file's, whatever the file is called.
+    import bz2
+    import lzma
+
+    pack = {"bz2": bz2.compress, "xz": lzma.compress}[compress]
+    ev, oc = logs.numeric_log("s", n_learners=5)
+    plain, plain_oc = logs.write(tmp_path / "plain", ev, oc)
+    path = tmp_path / "events.data"  # no telling name: recognised by the first bytes
+    path.write_bytes(pack(ev.to_csv(index=False, lineterminator="\n").encode("utf-8")))
+    got, _ = _load(path)
+    ref, _ = _load(plain)
+    pd.testing.assert_frame_equal(got.events, ref.events)
+    from seqmine.inputs.outcomes import load_outcomes
+
+    packed_oc = tmp_path / f"outcomes.csv.{compress}"
+    packed_oc.write_bytes(pack(Path(plain_oc).read_bytes()))
+    pd.testing.assert_frame_equal(load_outcomes(packed_oc), load_outcomes(plain_oc),
+                                  check_like=True)
+
+
+def test_damaged_bzip2_and_zstandard_say_so(tmp_path):
+    import bz2
+
+    bad = tmp_path / "events.csv.bz2"
+    bad.write_bytes(bz2.compress(b"learner,time,action\na,1,x\n" * 50)[:-20])
+    with pytest.raises(DataFileError, match=r"the bzip2 data is damaged .*; compress the file again"):
+        load_events(bad)
+    z = tmp_path / "events.csv.zst"
+    z.write_bytes(b"\x28\xb5\x2f\xfd" + b"\x00" * 40)
+    with pytest.raises(DataFileError, match=r"Zstandard-compressed.*zstd -d"):
         load_events(z)
 
 

@@ -14,6 +14,7 @@ kept as they are.
 
 from __future__ import annotations
 
+import io
 import re
 from pathlib import Path
 
@@ -24,6 +25,7 @@ from sklearn.base import BaseEstimator
 from .._util.checks import check_choice, check_columns, check_fraction
 from ..config import DEFAULT_CONFIG
 from ..errors import DataFileError, ParameterError
+from .readers import read_bytes
 from .sources import regular_input
 
 __all__ = [
@@ -130,14 +132,14 @@ def _load_outcomes(path, *, columns, kind, max_score, delimiter, decimal_comma):
     if path.stat().st_size == 0:
         raise DataFileError(f"{path}: the outcomes file is empty.")
     try:
-        with open(path, encoding="utf-8-sig") as fh:
-            header = fh.readline()
+        # compressed outcomes (.csv.gz, .bz2, .xz) are read like compressed events
+        text = read_bytes(path, "outcomes").decode("utf-8-sig")
+        header = text.split("\n", 1)[0]
         sep = delimiter
         if sep is None:
             counts = {c: header.count(c) for c in (",", "\t", ";", "|")}
             sep = max(counts, key=counts.get) if max(counts.values()) else ","
-        df = pd.read_csv(path, sep=sep, dtype=str, keep_default_na=False,
-                         encoding="utf-8-sig")
+        df = pd.read_csv(io.StringIO(text), sep=sep, dtype=str, keep_default_na=False)
     except UnicodeDecodeError:
         raise DataFileError(f"{path}: not valid UTF-8 text; re-save the outcomes as UTF-8.") from None
     except (pd.errors.ParserError, pd.errors.EmptyDataError) as exc:

@@ -2,8 +2,9 @@
 
 Every reader returns a DataFrame of strings with one row per record of the file, in
 file order, and in ``attrs["bad_rows"]`` the records that could not be read:
-``{record number: (reason, detail)}`` (their cells are empty). Gzip-compressed files
-are recognised by their first bytes and read directly, whatever their name.
+``{record number: (reason, detail)}`` (their cells are empty). Gzip-, bzip2- and
+xz-compressed files are recognised by their first bytes and read directly, whatever
+their name; zip archives and Zstandard files are refused with what to do.
 
 Delimited text is scanned once before it is parsed: a record (a line, or several when
 a quoted field holds a line break) with more or fewer fields than the header goes to
@@ -14,10 +15,12 @@ again on the next line.
 
 from __future__ import annotations
 
+import bz2
 import codecs
 import csv
 import gzip
 import io
+import lzma
 import json
 import zlib
 from itertools import islice
@@ -28,12 +31,18 @@ import pandas as pd
 
 from ..errors import DataFileError, ParameterError
 
-__all__ = ["guess_format", "read_bytes", "is_gzip", "uncompressed_size", "read_delimited",
+__all__ = ["guess_format", "read_bytes", "is_gzip", "compression_of", "uncompressed_size",
+           "read_delimited",
            "read_parquet", "read_jsonl", "read_xapi", "FORMATS"]
 
 FORMATS = ("csv", "tsv", "parquet", "jsonl", "xapi")
 _GZIP_MAGIC = b"\x1f\x8b"
 _ZIP_MAGIC = b"PK\x03\x04"
+_ZSTD_MAGIC = b"\x28\xb5\x2f\xfd"
+#: Compressed forms read directly: name -> opener (recognised by :func:`compression_of`).
+_OPENERS = {"gzip": gzip.open, "bzip2": bz2.open, "xz": lzma.open}
+#: Name endings of compressed files, looked through to find the format.
+COMPRESSED_SUFFIXES = (".gz", ".bz2", ".xz")
 _QUOTE = 34
 _NL = 10
 _CR = 13
@@ -44,8 +53,8 @@ def guess_format(path):
     telling ending (standard input, a pipe) is recognised by its first character: ``{``
     JSON Lines, ``[`` xAPI statements, else CSV."""
     name = Path(path).name.lower()
-    if name.endswith(".gz"):
-        name = name[:-3]
+    for suffix in COMPRESSED_SUFFIXES:
+        name = name.removesuffix(suffix)
     if name.endswith((".tsv", ".tab")):
         return "tsv"
     if name.endswith((".parquet", ".pq")):
@@ -75,15 +84,42 @@ def _first_byte(path):
 
 def is_gzip(path):
     """True when the file starts with the gzip signature."""
+    return compression_of(path) == "gzip"
+
+
+def compression_of(path):
+    """``"gzip"``, ``"bzip2"``, ``"xz"`` or None (plain), from the file's first bytes.
+
+    Examples
+    --------
+    >>> import tempfile, bz2, os
+    >>> fd, p = tempfile.mkstemp(); os.close(fd)
+    >>> _ = open(p, "wb").write(bz2.compress(b"learner,time,action\n"))
+    >>> compression_of(p)
+    'bzip2'
+    """
     with open(path, "rb") as fh:
-        return fh.read(2) == _GZIP_MAGIC
+        head = fh.read(10)
+    if head.startswith(_GZIP_MAGIC):
+        return "gzip"
+    if head.startswith(b"\xfd7zXZ\x00"):
+        return "xz"
+    # "BZh", the block size digit, then a block or the end-of-stream signature
+    if (head[:3] == b"BZh" and head[3:4] in (b"1", b"2", b"3", b"4", b"5", b"6", b"7",
+                                              b"8", b"9")
+            and head[4:10] in (b"\x31\x41\x59\x26\x53\x59", b"\x17\x72\x45\x38\x50\x90")):
+        return "bzip2"
+    return None
 
 
 def uncompressed_size(path, size):
     """Bytes after decompression (the gzip trailer's size, or a tenfold guess when the
-    trailer cannot be right); ``size`` for plain files."""
-    if not is_gzip(path) or size < 4:  # too short for a trailer: reading it will say so
+    trailer cannot be right or the format has none); ``size`` for plain files."""
+    kind = compression_of(path)
+    if kind is None:
         return size
+    if kind != "gzip" or size < 4:  # no usable trailer: reading it will say so
+        return 10 * size
     with open(path, "rb") as fh:
         fh.seek(-4, 2)
         trailer = int.from_bytes(fh.read(4), "little")
@@ -92,21 +128,26 @@ def uncompressed_size(path, size):
     return trailer if size <= trailer <= 1000 * size else 10 * size
 
 
-def read_bytes(path):
-    """The file's bytes, decompressed when gzip-compressed."""
+def read_bytes(path, what="events"):
+    """The file's bytes, decompressed when gzip-, bzip2- or xz-compressed."""
     with open(path, "rb") as fh:
         head = fh.read(4)
     if head.startswith(_ZIP_MAGIC):
         raise DataFileError(
-            f"{path}: is a zip archive; unzip it and give the events file inside (gzip "
-            f"files, .gz, are read directly).")
-    if head.startswith(_GZIP_MAGIC):
+            f"{path}: is a zip archive; unzip it and give the {what} file inside (gzip, "
+            f"bzip2 and xz files are read directly).")
+    if head.startswith(_ZSTD_MAGIC):
+        raise DataFileError(
+            f"{path}: is Zstandard-compressed, which this Python cannot read; decompress it "
+            f"(zstd -d) or compress it with gzip instead.")
+    kind = compression_of(path)
+    if kind is not None:
         try:
-            with gzip.open(path, "rb") as fh:
+            with _OPENERS[kind](path, "rb") as fh:
                 return fh.read()
-        except (OSError, EOFError, zlib.error) as exc:
+        except (OSError, EOFError, ValueError, zlib.error, lzma.LZMAError) as exc:
             raise DataFileError(
-                f"{path}: the gzip data is damaged ({type(exc).__name__}: "
+                f"{path}: the {kind} data is damaged ({type(exc).__name__}: "
                 f"{' '.join(str(exc).split())}); compress the file again.") from None
     return Path(path).read_bytes()
 
