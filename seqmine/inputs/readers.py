@@ -92,9 +92,9 @@ def compression_of(path):
 
     Examples
     --------
-    >>> import tempfile, bz2, os
-    >>> fd, p = tempfile.mkstemp(); os.close(fd)
-    >>> _ = open(p, "wb").write(bz2.compress(b"learner,time,action\n"))
+    >>> import bz2, pathlib, tempfile
+    >>> p = pathlib.Path(tempfile.mkdtemp()) / "events.csv.bz2"
+    >>> _ = p.write_bytes(bz2.compress(b"learner,time,action"))
     >>> compression_of(p)
     'bzip2'
     """
