@@ -609,7 +609,7 @@ def _analyze(ev, oc, staging, cfg, *, log):
     from .inputs.load import load_events
     from .inputs.outcomes import load_outcomes
     from .inputs.privacy import key_fingerprint, read_key
-    from .mining.miner import save_patternset
+    from .mining.miner import note_sequence_support, save_patternset
     from .mining.partitions import mine_parallel
     from .reporting.render import render_report, write_examples
     from .scoring.activity import activity_comparison
@@ -678,6 +678,7 @@ def _analyze(ev, oc, staging, cfg, *, log):
                           maximal=mine_cfg["maximal"], max_patterns=mine_cfg["max_patterns"],
                           support_unit=mine_cfg["support_unit"])
         save_patternset(patternset, out / "patternset")
+        note_sequence_support(db, mine_cfg["min_support"], mine_cfg["support_unit"])
         owned += merge_summary(summary, mine_summary(patternset, mine_cfg))
     alpha = float(con_cfg["alpha"])
     unit = contrast_unit(con_cfg["unit"], db)

@@ -51,3 +51,15 @@ def test_command_line_option_and_record(tmp_path):
     assert meta["constraints"]["support_unit"] == "learner"
     assert main(["mine", str(tmp_path / "sequences"), "--out", str(tmp_path / "bad"),
                  "--support-unit", "learners", "-q"]) == 2
+
+
+def test_sequence_support_with_several_sessions_per_learner_is_flagged(tmp_path, capsys):
+    db = _sessions_db()  # 16 sequences of 8 learners: 2.0 per learner
+    db.save(tmp_path / "sequences")
+    assert main(["mine", str(tmp_path / "sequences"), "--out", str(tmp_path / "a"),
+                 "--min-support", "0.5"]) == 0
+    err = capsys.readouterr().err
+    assert "warning [support_counts_sequences]" in err and "2.0 sequences each" in err
+    assert main(["mine", str(tmp_path / "sequences"), "--out", str(tmp_path / "b"),
+                 "--min-support", "0.5", "--support-unit", "learner"]) == 0
+    assert "support_counts_sequences" not in capsys.readouterr().err

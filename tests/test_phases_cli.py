@@ -74,6 +74,7 @@ def test_cli_hints_at_top_of_range(tmp_path, capsys):
     assert summary["n_states"] == 2 and summary["n_states_at_top_of_range"]
     # said once, as a warning that names the option to widen
     assert err.count("largest tried") == 1
-    assert "seqmine: warning: The chosen number of phases (2) is the largest tried" in err
+    assert ("seqmine: warning [phase_states_at_top_of_range]: The chosen number of phases (2) "
+            "is the largest tried") in err
     assert "--states 1-4" in err
     assert [w["code"] for w in summary["warnings"]] == ["phase_states_at_top_of_range"]

@@ -106,7 +106,9 @@ class _StopSignals:
 
 
 def _show_warning(message, category, filename, lineno, file=None, line=None):
-    print(f"seqmine: warning: {_one_line(message)}", file=sys.stderr)
+    code = getattr(message, "code", None)  # a SeqmineWarning names itself, as in summary.json
+    tag = f" [{code}]" if code and code != "general" else ""
+    print(f"seqmine: warning{tag}: {_one_line(message)}", file=sys.stderr)
 
 
 def _one_line(msg):

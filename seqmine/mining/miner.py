@@ -22,6 +22,7 @@ from __future__ import annotations
 import itertools
 import json
 import numbers
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -33,7 +34,7 @@ from .._util.jsonio import json_default
 from .._util.outdir import open_new
 from ..config import DEFAULT_CONFIG
 from ..encoding.sequences import SequenceDB
-from ..errors import DataFileError, ParameterError
+from ..errors import DataFileError, ParameterError, SeqmineWarning
 from ._search import assemble_counts, build_trie, node_offsets, search
 from .patterns import PatternSet, is_subsequence, parse_pattern
 
@@ -497,6 +498,26 @@ def _group_slots(db, allow_empty=False):
     G = db.n_groups
     gidx = np.where(db.groups >= 0, db.groups, G).astype(np.int64)
     return list(db.group_names), sizes, db.groups.astype(np.int64), gidx
+
+
+#: Mean sequences per learner from which a sequence-counted minimum support is flagged.
+SESSIONS_PER_LEARNER_NOTE = 2.0
+
+
+def note_sequence_support(db, min_support, support_unit):
+    """Warn (``support_counts_sequences``) when ``min_support`` counts sequences while
+    learners have several each: a behaviour shown in one session per learner can stay
+    below it and is then never tested. Returns the mean sequences per learner."""
+    n_learners = len(np.unique(db.learners)) if db.n_sequences else 0
+    ratio = db.n_sequences / n_learners if n_learners else 0.0
+    if support_unit == "sequence" and ratio >= SESSIONS_PER_LEARNER_NOTE:
+        warnings.warn(SeqmineWarning(
+            f"Minimum support ({min_support}) counts sequences, and learners have "
+            f"{ratio:.1f} sequences each on average: a behaviour that learners show in one "
+            f"session of several can stay below it and is then never tested. "
+            f"--support-unit learner counts learners instead (more patterns, more tests).",
+            code="support_counts_sequences"), stacklevel=2)
+    return ratio
 
 
 def learner_units(learners, seq_groups, n_groups):

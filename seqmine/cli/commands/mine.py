@@ -36,7 +36,7 @@ def add_arguments(parser):
 def run(args):
     """Run the command; returns the exit status."""
     from ...encoding.sequences import SequenceDB
-    from ...mining.miner import mine, save_patternset
+    from ...mining.miner import mine, note_sequence_support, save_patternset
     from ...pipeline import target_run_folder
 
     params = _options.mining_params(args)
@@ -48,6 +48,7 @@ def run(args):
                              "'seqmine encode' or 'seqmine analyze'.")
     db = SequenceDB.load(args.sequences)
     ps = mine(db, **params)
+    note_sequence_support(db, params["min_support"], params["support_unit"])
     out = Path(args.out)
     if out.suffix.lower() == ".csv":
         from ..._util.outdir import writing_files
@@ -74,7 +75,7 @@ def _say(ps, db, table):
 def _run_in_folder(args, folder, params):
     """Re-run the mining stage of an output folder (its later stages are removed)."""
     from ...encoding.sequences import SequenceDB
-    from ...mining.miner import mine, save_patternset
+    from ...mining.miner import mine, note_sequence_support, save_patternset
     from ...pipeline import mine_summary, own_stage_folder, rerun_stage
     db_dir = own_stage_folder(folder, "encode", args.sequences)
     name = "patternset"
@@ -90,6 +91,7 @@ def _run_in_folder(args, folder, params):
     def work(st):
         db = SequenceDB.load(st.path / db_dir.relative_to(folder))
         ps = mine(db, **params)
+        note_sequence_support(db, params["min_support"], params["support_unit"])
         save_patternset(ps, st.path / name)
         return mine_summary(ps, params), (ps, db)
 
