@@ -63,3 +63,16 @@ def test_sequence_support_with_several_sessions_per_learner_is_flagged(tmp_path,
     assert main(["mine", str(tmp_path / "sequences"), "--out", str(tmp_path / "b"),
                  "--min-support", "0.5", "--support-unit", "learner"]) == 0
     assert "support_counts_sequences" not in capsys.readouterr().err
+
+
+def test_analyze_records_and_reports_what_support_counts(tmp_path):
+    from _run_helpers import analyze_argv, make_data
+
+    data = make_data(tmp_path / "data")
+    out = tmp_path / "out"
+    assert main(analyze_argv(data, out, "--support-unit", "learner", "-q")) == 0
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["method"]["support_unit"] == "learner"
+    assert summary["configuration"]["mine"]["support_unit"] == "learner"
+    page = (out / "report.html").read_text(encoding="utf-8")
+    assert "What the minimum support counts:</b> learners (a learner counts once" in page

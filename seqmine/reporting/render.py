@@ -116,6 +116,7 @@ SUMMARY_KEYS = {
     "method.n_permutations": "permutations for Westfall-Young",
     "method.n_bootstrap": "bootstrap resamples behind stability",
     "method.min_support": "minimum support in at least one group",
+    "method.support_unit": "what the minimum support counts: 'sequence' or 'learner'",
     "method.max_length": "longest pattern mined",
     "method.max_gap": "largest gap (tokens) between pattern items",
     "method.n_splits": "learner-level cross-validation folds of early prediction",

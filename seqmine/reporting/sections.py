@@ -531,6 +531,10 @@ def section_method(d):
 
     add("Groups", "grouping", _describe_grouping)
     add("Minimum support (in at least one group)", "min_support")
+    add("What the minimum support counts", "support_unit",
+        lambda v: {"learner": "learners (a learner counts once if any of its sequences holds "
+                              "the pattern)",
+                   "sequence": "sequences"}.get(str(v), esc(v)))
     add("Longest pattern", "max_length")
     add("Largest gap between pattern items (tokens)", "max_gap")
     add("Presence test", "presence_test")
