@@ -31,7 +31,7 @@ import pandas as pd
 
 from ..errors import DataFileError, ParameterError
 
-__all__ = ["guess_format", "read_bytes", "is_gzip", "compression_of", "uncompressed_size",
+__all__ = ["guess_format", "read_bytes", "compression_of", "uncompressed_size",
            "read_delimited",
            "read_parquet", "read_jsonl", "read_xapi", "FORMATS"]
 
@@ -80,11 +80,6 @@ def _first_byte(path):
     except OSError:
         return b""
     return head.removeprefix(b"\xef\xbb\xbf").lstrip()[:1]
-
-
-def is_gzip(path):
-    """True when the file starts with the gzip signature."""
-    return compression_of(path) == "gzip"
 
 
 def compression_of(path):

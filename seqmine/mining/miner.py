@@ -563,10 +563,9 @@ def learner_support(counts, units, n_groups):
     present.data = (present.data > 0).astype(np.float64)
     in_unit = (agg @ present).tocsr()
     in_unit.data = (in_unit.data > 0).astype(np.float64)
-    member = sp.csr_matrix((np.ones(n_units), (np.where(unit_group >= 0, unit_group, 0),
-                                               np.arange(n_units))),
+    grouped = np.flatnonzero(unit_group >= 0)
+    member = sp.csr_matrix((np.ones(len(grouped)), (unit_group[grouped], grouped)),
                            shape=(n_groups, n_units))
-    member = member.multiply((unit_group >= 0)[None, :].astype(np.float64)).tocsr()
     return np.rint((member @ in_unit).toarray().T).astype(np.int64)
 
 

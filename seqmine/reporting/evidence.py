@@ -87,6 +87,13 @@ def findings_by_evidence(df, n):
     return out
 
 
+def activity_differs(summary):
+    """True when the run's activity test found the groups differ (p <= 0.05)."""
+    act = summary.get("activity") if isinstance(summary, dict) else None
+    p = act.get("p_value") if isinstance(act, dict) else None
+    return _is_finite(p) and _as_float(p) <= 0.05
+
+
 def activity_lines(summary, groups):
     """First-screen lines: how much the groups differ in activity, with the test."""
     act = summary.get("activity")
@@ -110,7 +117,7 @@ def activity_lines(summary, groups):
         ratio = act.get("ratio_of_means")
         line += (f" Ratio of means {_fmt(ratio, 2)}; " if _is_finite(ratio) else " ") \
             + f"{test}: p {_p_text(p)}."
-        if _as_float(p) <= 0.05:
+        if activity_differs(summary):
             line += (" <b>The groups differ in how much they did</b>: a more active group "
                      "has more chances to show any pattern, so compare the counts after "
                      "the volume adjustment below.")
@@ -132,8 +139,8 @@ def survival_lines(summary, alpha):
         line += (f" By what the data support: {_int(by.get('order', 0))} order, "
                  f"{_int(by.get('presence', 0))} presence beyond activity, "
                  f"{_int(by.get('volume', 0))} activity only.")
-        n_by = sum(int(by.get(k, 0) or 0) for k in ("order", "presence", "volume")
-                   if isinstance(by.get(k, 0), (int, float)))
+        counts = [by.get(k) for k in ("order", "presence", "volume")]
+        n_by = sum(c for c in counts if isinstance(c, (int, float)))
         if n_by > int(surv.get("before_adjustment", 0) or 0):
             # an adjusted test can find what the raw one missed (the adjustment takes
             # activity's share of the variation out); say so, or the counts look wrong

@@ -14,6 +14,7 @@ import math
 import numpy as np
 
 from . import plots as _plots
+from .evidence import activity_differs
 from .html import (
     _describe_grouping,
     _fmt,
@@ -102,10 +103,7 @@ def prediction_glance(d):
 def _activity_caveat(d):
     """A sentence when the groups differ in how much they did: the features are shares
     and rates per token, not counts, but longer work still shapes them."""
-    summary = d["summary"].value if "summary" in d else None
-    act = summary.get("activity") if isinstance(summary, dict) else None
-    p = _as_float(act.get("p_value")) if isinstance(act, dict) else float("nan")
-    if not (math.isfinite(p) and p <= 0.05):
+    if not activity_differs(d["summary"].value if "summary" in d else None):
         return ""
     return (" The groups also differ in how much they did. The classifiers use shares and "
             "rates per token, not counts, but how long a learner works can still shape "
